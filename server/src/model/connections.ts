@@ -1,0 +1,54 @@
+// Projections between neuron models: declared `connect A -> B`, or, when the file declares
+// none, the implicit self-projection of every model that both fires and receives spikes
+// (docs/language.md "Projections").
+import type * as A from '../syntax/ast';
+import type { LowerContext } from './lower';
+import { closest } from './suggest';
+import type { Connection, ResolvedNeuron } from './types';
+
+export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[], ctx: LowerContext): Connection[] {
+  const byName = new Map(neurons.map((n) => [n.name, n] as const));
+  const declared = file.items.filter((i): i is A.ConnectDecl => i.kind === 'connect');
+  const out: Connection[] = [];
+  const seen = new Map<string, A.ConnectDecl>();
+  for (const c of declared) {
+    if (!c.from || !c.to) continue;
+    const from = endpoint(c.from, byName, ctx);
+    const to = endpoint(c.to, byName, ctx);
+    if (!from || !to) continue;
+    let ok = true;
+    if (!from.decl.members.some((m) => m.kind === 'fire')) {
+      ctx.diagnostics.push({ severity: 'error', code: 'invalid-connection', range: c.from.range,
+        message: `${from.name} has no 'fire when' block: it never emits spikes, so it cannot project` });
+      ok = false;
+    }
+    if (!to.decl.members.some((m) => m.kind === 'incoming')) {
+      ctx.diagnostics.push({ severity: 'error', code: 'invalid-connection', range: c.to.range,
+        message: `${to.name} has no 'incoming' block: it cannot receive spikes` });
+      ok = false;
+    }
+    const key = `${from.name}->${to.name}`;
+    const prior = seen.get(key);
+    if (prior) {
+      ctx.diagnostics.push({ severity: 'warning', code: 'duplicate-declaration', range: c.range,
+        message: `${from.name} -> ${to.name} is already connected`, related: [{ message: 'first connection', range: prior.range }] });
+      continue;
+    }
+    seen.set(key, c);
+    if (ok) out.push({ from: from.name, to: to.name, decl: c, implicit: false });
+  }
+  if (declared.length === 0) {
+    for (const n of neurons) if (n.fire && n.incoming) out.push({ from: n.name, to: n.name, implicit: true });
+  }
+  return out;
+}
+
+function endpoint(id: A.Ident, byName: Map<string, ResolvedNeuron>, ctx: LowerContext): ResolvedNeuron | undefined {
+  const n = byName.get(id.name);
+  if (n) { ctx.references.push({ range: id.range, target: n.symbol }); return n; }
+  const guess = closest(id.name, byName.keys());
+  ctx.diagnostics.push({ severity: 'error', code: 'unknown-name', range: id.range,
+    message: `no neuron named '${id.name}' in this file` + (guess ? `; did you mean '${guess}'?` : ''),
+    ...(guess ? { fixes: [{ title: `Change to '${guess}'`, edits: [{ range: id.range, newText: guess }], preferred: true }] } : {}) });
+  return undefined;
+}

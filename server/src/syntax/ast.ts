@@ -1,0 +1,78 @@
+// The syntax tree of a .saltus file. Every node carries the half-open range [start, end)
+// of UTF-16 code-unit offsets into the source text (JavaScript string indices, which are
+// exactly what LSP positions count). Conversion to line/character happens only in outputs/.
+//
+// Architecture invariant: nothing here knows about units, dimensions or LSP; a parse of
+// broken text yields a tree with `undefined` holes plus errors, never an exception.
+
+export interface Range { start: number; end: number }
+
+export interface Ident { name: string; range: Range }
+
+/** Unit text as written between the brackets, e.g. "mV/ms"; `range` covers the text inside the brackets. */
+export interface UnitText { text: string; range: Range }
+
+export type Expr =
+  | NumberExpr
+  | NameExpr
+  | UnaryExpr
+  | BinaryExpr
+  | CallExpr
+  | ParenExpr;
+
+export interface NumberExpr { kind: 'number'; value: number; raw: string; unit?: UnitText; range: Range }
+/** A declared name or the time `t`. */
+export interface NameExpr { kind: 'name'; name: string; range: Range }
+export interface UnaryExpr { kind: 'unary'; op: '-' | '+'; operand: Expr; range: Range }
+export interface BinaryExpr { kind: 'binary'; op: '+' | '-' | '*' | '/' | '^'; left: Expr; right: Expr; opRange: Range; range: Range }
+export interface CallExpr { kind: 'call'; callee: Ident; args: Expr[]; range: Range }
+export interface ParenExpr { kind: 'paren'; inner: Expr; range: Range }
+
+export interface Quantity { expr: Expr; range: Range }
+
+export interface ParamDecl {
+  kind: 'param'; name: Ident; value?: Expr; trainable: boolean; trainableRange?: Range;
+  doc?: DocString; range: Range; keywordRange: Range;
+}
+export interface StateDecl {
+  kind: 'state'; name: Ident; unit?: UnitText; initial?: Expr; doc?: DocString; range: Range; keywordRange: Range;
+}
+export interface LetDecl { kind: 'let'; name: Ident; value?: Expr; doc?: DocString; range: Range; keywordRange: Range }
+/** `dX/dt = EXPR`; `target` is X with the range of the X inside the `dX/dt` token. */
+export interface FlowEq { kind: 'flow'; target: Ident; derivRange: Range; value?: Expr; range: Range }
+export interface Jump { kind: 'jump'; target: Ident; value?: Expr; range: Range }
+
+export type Direction = 'up' | 'down' | 'either';
+export interface FireBlock {
+  kind: 'fire'; lhs?: Expr; rhs?: Expr; direction?: Direction; directionRange?: Range;
+  jumps: Jump[]; range: Range; keywordRange: Range;
+}
+export interface IncomingBlock {
+  kind: 'incoming'; weight?: Ident; unit?: UnitText; jumps: Jump[]; range: Range; keywordRange: Range;
+}
+
+export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock;
+
+export interface DocString { text: string; range: Range }
+
+export interface NeuronDecl {
+  kind: 'neuron'; name?: Ident; doc?: DocString; members: Member[];
+  range: Range; keywordRange: Range; bodyRange?: Range;
+}
+export interface TimestepDecl { kind: 'timestep'; value?: Expr; range: Range; keywordRange: Range }
+export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; range: Range; keywordRange: Range }
+
+export type TopLevel = NeuronDecl | TimestepDecl | ConnectDecl;
+
+export interface Comment { text: string; range: Range }
+
+export interface SourceFile {
+  kind: 'file';
+  items: TopLevel[];
+  comments: Comment[];
+  range: Range;
+}
+
+export interface SyntaxError { message: string; range: Range }
+
+export interface ParseResult { file: SourceFile; errors: SyntaxError[] }

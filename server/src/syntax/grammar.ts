@@ -1,0 +1,253 @@
+// The Saltus grammar as one reused chevrotain CstParser instance (error recovery on).
+// The concrete syntax tree it yields is turned into the typed AST by build.ts.
+//
+//   file      := (timestep | neuron | connect)*
+//   timestep  := 'timestep' expr
+//   neuron    := 'neuron' NAME STRING? '{' member* '}'
+//   member    := param | state | let | flow | fire | incoming | jump (diagnosed: outside a block)
+//   param     := 'param' NAME '=' expr 'trainable'? STRING?
+//   state     := 'state' NAME unit? ('=' expr)? STRING?
+//   let       := 'let' NAME '=' expr STRING?
+//   flow      := DERIVATIVE '=' expr
+//   fire      := 'fire' 'when' expr 'crosses' expr ('up'|'down'|'either') '{' jump* '}'
+//   incoming  := 'incoming' NAME unit? '{' jump* '}'
+//   jump      := NAME ':=' expr
+//   connect   := 'connect' NAME '->' NAME
+//   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
+//   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
+//   primary   := NUMBER unit? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
+//   unit      := '[' UNITBODY ']'
+import { CstParser, type CstNode, type IParserErrorMessageProvider, type TokenType, type IToken } from 'chevrotain';
+import * as T from './tokens';
+
+const label = (t: TokenType): string => (t as { LABEL?: string }).LABEL ?? t.name;
+const shown = (tok: IToken): string => (tok.tokenType.name === 'EOF' ? 'the end of the file' : `'${tok.image}'`);
+
+const messages: IParserErrorMessageProvider = {
+  buildMismatchTokenMessage: ({ expected, actual }) => `expected ${label(expected)} but found ${shown(actual)}`,
+  buildNotAllInputParsedMessage: ({ firstRedundant }) =>
+    `unexpected ${shown(firstRedundant)}: a file holds 'timestep', 'neuron' and 'connect' declarations`,
+  buildNoViableAltMessage: ({ expectedPathsPerAlt, actual, ruleName }) => {
+    const firsts = new Set<string>();
+    for (const alt of expectedPathsPerAlt) for (const path of alt) if (path[0]) firsts.add(label(path[0]));
+    const what = RULE_WHAT[ruleName] ?? 'this';
+    return `expected ${what} (${[...firsts].slice(0, 8).join(', ')}) but found ${shown(actual[0]!)}`;
+  },
+  buildEarlyExitMessage: ({ expectedIterationPaths, actual }) => {
+    const firsts = new Set<string>();
+    for (const path of expectedIterationPaths) if (path[0]) firsts.add(label(path[0]));
+    return `expected ${[...firsts].join(' or ')} but found ${shown(actual[0]!)}`;
+  },
+};
+
+const RULE_WHAT: Record<string, string> = {
+  topLevel: "a 'timestep', 'neuron' or 'connect' declaration",
+  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming')",
+  primary: 'a value: a number, a name, t or a parenthesised expression',
+  direction: "a crossing direction: 'up', 'down' or 'either'",
+  unaryExpr: 'a value',
+};
+
+export class SaltusParser extends CstParser {
+  constructor() {
+    super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset' });
+    this.performSelfAnalysis();
+  }
+
+  public file = this.RULE('file', () => {
+    this.MANY(() => this.SUBRULE(this.topLevel));
+  });
+
+  private topLevel = this.RULE('topLevel', () => {
+    this.OR([
+      { ALT: () => this.SUBRULE(this.timestepDecl) },
+      { ALT: () => this.SUBRULE(this.neuronDecl) },
+      { ALT: () => this.SUBRULE(this.connectDecl) },
+    ]);
+  });
+
+  private timestepDecl = this.RULE('timestepDecl', () => {
+    this.CONSUME(T.Timestep);
+    this.SUBRULE(this.expr);
+  });
+
+  private connectDecl = this.RULE('connectDecl', () => {
+    this.CONSUME(T.Connect);
+    this.CONSUME1(T.Identifier, { LABEL: 'from' });
+    this.CONSUME(T.Arrow);
+    this.CONSUME2(T.Identifier, { LABEL: 'to' });
+  });
+
+  private neuronDecl = this.RULE('neuronDecl', () => {
+    this.CONSUME(T.Neuron);
+    this.CONSUME(T.Identifier);
+    this.OPTION(() => this.CONSUME(T.StringLiteral));
+    this.CONSUME(T.LCurly);
+    this.MANY(() => this.SUBRULE(this.member));
+    this.CONSUME(T.RCurly);
+  });
+
+  private member = this.RULE('member', () => {
+    this.OR([
+      { ALT: () => this.SUBRULE(this.paramDecl) },
+      { ALT: () => this.SUBRULE(this.stateDecl) },
+      { ALT: () => this.SUBRULE(this.letDecl) },
+      { ALT: () => this.SUBRULE(this.flowEq) },
+      { ALT: () => this.SUBRULE(this.fireBlock) },
+      { ALT: () => this.SUBRULE(this.incomingBlock) },
+      { ALT: () => this.SUBRULE(this.jump) },
+    ]);
+  });
+
+  private paramDecl = this.RULE('paramDecl', () => {
+    this.CONSUME(T.Param);
+    this.CONSUME(T.Identifier);
+    this.CONSUME(T.Equals);
+    this.SUBRULE(this.expr);
+    this.OPTION(() => this.CONSUME(T.Trainable));
+    this.OPTION2(() => this.CONSUME(T.StringLiteral));
+  });
+
+  private stateDecl = this.RULE('stateDecl', () => {
+    this.CONSUME(T.State);
+    this.CONSUME(T.Identifier);
+    this.OPTION(() => this.SUBRULE(this.unit));
+    this.OPTION2(() => {
+      this.CONSUME(T.Equals);
+      this.SUBRULE(this.expr);
+    });
+    this.OPTION3(() => this.CONSUME(T.StringLiteral));
+  });
+
+  private letDecl = this.RULE('letDecl', () => {
+    this.CONSUME(T.Let);
+    this.CONSUME(T.Identifier);
+    this.CONSUME(T.Equals);
+    this.SUBRULE(this.expr);
+    this.OPTION(() => this.CONSUME(T.StringLiteral));
+  });
+
+  private flowEq = this.RULE('flowEq', () => {
+    this.CONSUME(T.Derivative);
+    this.CONSUME(T.Equals);
+    this.SUBRULE(this.expr);
+  });
+
+  private fireBlock = this.RULE('fireBlock', () => {
+    this.CONSUME(T.Fire);
+    this.CONSUME(T.When);
+    this.SUBRULE1(this.expr, { LABEL: 'lhs' });
+    this.CONSUME(T.Crosses);
+    this.SUBRULE2(this.expr, { LABEL: 'rhs' });
+    this.SUBRULE(this.direction);
+    this.SUBRULE(this.jumpBlock);
+  });
+
+  private direction = this.RULE('direction', () => {
+    this.OR([
+      { ALT: () => this.CONSUME(T.Up) },
+      { ALT: () => this.CONSUME(T.Down) },
+      { ALT: () => this.CONSUME(T.Either) },
+    ]);
+  });
+
+  private incomingBlock = this.RULE('incomingBlock', () => {
+    this.CONSUME(T.Incoming);
+    this.CONSUME(T.Identifier);
+    this.OPTION(() => this.SUBRULE(this.unit));
+    this.SUBRULE(this.jumpBlock);
+  });
+
+  private jumpBlock = this.RULE('jumpBlock', () => {
+    this.CONSUME(T.LCurly);
+    this.MANY(() => this.SUBRULE(this.jump));
+    this.CONSUME(T.RCurly);
+  });
+
+  private jump = this.RULE('jump', () => {
+    this.CONSUME(T.Identifier);
+    this.CONSUME(T.Assign);
+    this.SUBRULE(this.expr);
+  });
+
+  private unit = this.RULE('unit', () => {
+    this.CONSUME(T.LBracket);
+    this.OPTION(() => this.CONSUME(T.UnitBody));
+    this.CONSUME(T.RBracket);
+  });
+
+  public expr = this.RULE('expr', () => {
+    this.SUBRULE(this.term, { LABEL: 'operands' });
+    this.MANY(() => {
+      this.OR([{ ALT: () => this.CONSUME(T.Plus, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Minus, { LABEL: 'ops' }) }]);
+      this.SUBRULE2(this.term, { LABEL: 'operands' });
+    });
+  });
+
+  private term = this.RULE('term', () => {
+    this.SUBRULE(this.unaryExpr, { LABEL: 'operands' });
+    this.MANY(() => {
+      this.OR([{ ALT: () => this.CONSUME(T.Star, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Slash, { LABEL: 'ops' }) }]);
+      this.SUBRULE2(this.unaryExpr, { LABEL: 'operands' });
+    });
+  });
+
+  private unaryExpr = this.RULE('unaryExpr', () => {
+    this.OR([
+      {
+        ALT: () => {
+          this.OR2([{ ALT: () => this.CONSUME(T.Minus, { LABEL: 'sign' }) }, { ALT: () => this.CONSUME(T.Plus, { LABEL: 'sign' }) }]);
+          this.SUBRULE(this.unaryExpr, { LABEL: 'operand' });
+        },
+      },
+      { ALT: () => this.SUBRULE(this.power) },
+    ]);
+  });
+
+  private power = this.RULE('power', () => {
+    this.SUBRULE(this.primary);
+    this.OPTION(() => {
+      this.CONSUME(T.Caret);
+      this.SUBRULE(this.unaryExpr, { LABEL: 'exponent' });
+    });
+  });
+
+  private primary = this.RULE('primary', () => {
+    this.OR([
+      {
+        ALT: () => {
+          this.CONSUME(T.NumberLiteral);
+          this.OPTION(() => this.SUBRULE(this.unit));
+        },
+      },
+      {
+        ALT: () => {
+          this.CONSUME(T.Identifier);
+          this.OPTION2(() => {
+            this.CONSUME(T.LParen);
+            this.OPTION3(() => {
+              this.SUBRULE(this.expr, { LABEL: 'args' });
+              this.MANY(() => {
+                this.CONSUME(T.Comma);
+                this.SUBRULE2(this.expr, { LABEL: 'args' });
+              });
+            });
+            this.CONSUME(T.RParen);
+          });
+        },
+      },
+      { ALT: () => this.CONSUME(T.Time) },
+      {
+        ALT: () => {
+          this.CONSUME2(T.LParen, { LABEL: 'open' });
+          this.SUBRULE3(this.expr, { LABEL: 'inner' });
+          this.CONSUME2(T.RParen, { LABEL: 'close' });
+        },
+      },
+    ]);
+  });
+}
+
+/** The one parser instance (chevrotain parsers are built once and reused). */
+export const parserInstance = new SaltusParser();
+export type { CstNode };

@@ -1,0 +1,48 @@
+// Entry point of the syntax stage: text -> { file, errors }. Never throws: lexer and
+// parser errors become SyntaxErrors with ranges inside the text.
+import type { IToken } from 'chevrotain';
+import type * as A from './ast';
+import { buildFile, tokRange } from './build';
+import { parserInstance } from './grammar';
+import { saltusLexer } from './tokens';
+
+export interface ParseOutput extends A.ParseResult {
+  /** Jumps written outside a fire/incoming block (reported by the resolver). */
+  strayJumps: A.Jump[];
+  tokens: IToken[];
+}
+
+export function parse(text: string): ParseOutput {
+  const errors: A.SyntaxError[] = [];
+  const clamp = (r: A.Range): A.Range => {
+    const start = Math.max(0, Math.min(r.start, text.length));
+    return { start, end: Math.max(start, Math.min(r.end, text.length)) };
+  };
+  try {
+    const lexed = saltusLexer.tokenize(text);
+    for (const e of lexed.errors) {
+      const ch = text.slice(e.offset, e.offset + Math.max(1, e.length));
+      errors.push({ message: `unexpected character${ch.length > 1 ? 's' : ''} '${ch.length > 12 ? ch.slice(0, 12) + '…' : ch}'`, range: clamp({ start: e.offset, end: e.offset + Math.max(1, e.length) }) });
+    }
+    parserInstance.input = lexed.tokens;
+    const cst = parserInstance.file();
+    for (const e of parserInstance.errors) {
+      let r: A.Range;
+      if (Number.isFinite(e.token.startOffset) && e.token.tokenType.name !== 'EOF') r = tokRange(e.token);
+      else {
+        const prev = (e as { previousToken?: IToken }).previousToken;
+        const at = prev && Number.isFinite(prev.startOffset) ? tokRange(prev).end : text.length;
+        r = { start: Math.max(0, at - 1), end: at };
+      }
+      errors.push({ message: e.message, range: clamp(r) });
+    }
+    const comments: A.Comment[] = (lexed.groups.comments ?? []).map((t) => ({ text: t.image, range: tokRange(t) }));
+    const { file, strayJumps } = buildFile(cst, text.length);
+    file.comments = comments;
+    return { file, errors, strayJumps, tokens: lexed.tokens };
+  } catch (err) {
+    // A defect in the parser must not take the editor down: report it as a syntax error.
+    errors.push({ message: `internal parser error: ${(err as Error).message}`, range: clamp({ start: 0, end: Math.min(1, text.length) }) });
+    return { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors, strayJumps: [], tokens: [] };
+  }
+}
