@@ -55,7 +55,8 @@ export function lower(e: A.Expr, scope: Scope, ctx: LowerContext): Lowered {
 function lowerInner(e: A.Expr, scope: Scope, ctx: LowerContext): Lowered {
   switch (e.kind) {
     case 'number': {
-      if (!e.unit) return { sym: S.num(e.value), dim: DIMENSIONLESS };
+      // A bare 0 fits every unit (`dX/dt = 0`, `V := 0`): it gets no dimension of its own.
+      if (!e.unit) return e.value === 0 ? { sym: S.num(0) } : { sym: S.num(e.value), dim: DIMENSIONLESS };
       return lowerUnit(e.value, e.unit, ctx);
     }
     case 'paren': return lower(e.inner, scope, ctx);

@@ -25,10 +25,10 @@ interface Candidate {
   parts?: readonly { text: string; e: number }[];
 }
 
-interface Expression {
-  text: string;
+export interface UnitExpression {
+  readonly text: string;
   /** Factor converting one of this unit to SI coherent base units. */
-  scale: number;
+  readonly scale: number;
 }
 
 const MAX_PREFERRED = 24;
@@ -120,7 +120,7 @@ function cost(parts: { c: Candidate; e: number }[]): number {
   return total;
 }
 
-function toExpression(chosen: { c: Candidate; e: number }[]): Expression {
+function toExpression(chosen: { c: Candidate; e: number }[]): UnitExpression {
   const ordered = [...chosen].sort((x, y) => x.c.order - y.c.order);
   // Expand standard compounds into their symbols and merge repeated symbols.
   const factors: { text: string; compound: boolean; e: number }[] = [];
@@ -138,7 +138,7 @@ function toExpression(chosen: { c: Candidate; e: number }[]): Expression {
   };
 }
 
-function siBaseExpression(dim: Dim): Expression {
+function siBaseExpression(dim: Dim): UnitExpression {
   const factors = BASE_SYMBOLS.map((text, i) => ({ text, compound: false, e: dim[i] ?? 0 })).filter((f) => f.e !== 0);
   return { text: renderFactors(factors), scale: 1 };
 }
@@ -152,7 +152,7 @@ function sumEquals(target: Dim, x: Dim, y: Dim, z?: Dim): boolean {
   return true;
 }
 
-function search(dim: Dim, cands: Candidate[]): Expression | null {
+function search(dim: Dim, cands: Candidate[]): UnitExpression | null {
   let best: { c: Candidate; e: number }[] | null = null;
   let bestCost = Infinity;
   const consider = (parts: { c: Candidate; e: number }[]) => {
@@ -206,10 +206,10 @@ function search(dim: Dim, cands: Candidate[]): Expression | null {
 }
 
 const CACHE_LIMIT = 256;
-const cache = new Map<string, Expression>();
+const cache = new Map<string, UnitExpression>();
 
 /** The unit expression chosen for a dimension, with its SI scale. Dimensionless gives '1'. */
-export function unitExpressionFor(dim: Dim, preferred: readonly string[] = []): Expression {
+export function unitExpressionFor(dim: Dim, preferred: readonly string[] = []): UnitExpression {
   try {
     if (isDimensionless(dim)) return { text: '1', scale: 1 };
     if (!dim.every((v) => Number.isFinite(v))) return { text: '?', scale: 1 };

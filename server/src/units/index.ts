@@ -24,4 +24,4 @@ export {
 } from './dimension';
 export { type UnitParseOk, type UnitParseError, type UnitParseResult, parseUnit } from './unitParse';
 export { type SymbolLookup, UNIT_SYMBOL_PATTERN, lookupUnitSymbol } from './unitSymbols';
-export { formatDim, formatQuantity, formatNumber, describeDim, unitExpressionFor } from './format';
+export { type UnitExpression, formatDim, formatQuantity, formatNumber, describeDim, unitExpressionFor } from './format';
