@@ -1,6 +1,6 @@
 // Budgeted simplification with a numeric safety net. Every derived expression goes through
-// `simplifyChecked`: the light normaliser (symbolic/normalise.ts) is applied only to
-// expressions within the node budget, and its result is accepted only where it agrees with
+// `simplifyChecked`: the light normaliser (symbolic/normalise.ts), and the expanded form
+// (expand.ts) where that is smaller, are applied only to expressions within the node budget, and its result is accepted only where it agrees with
 // the unsimplified form at random points (relative to the size of the terms, so cancellation
 // does not cause false alarms). Otherwise the unsimplified form is kept and a note says why.
 // Invariant: the returned Sym is always numerically equal to the input wherever the input is
@@ -8,6 +8,7 @@
 import { type Sym, freeSymbols, size } from '../symbolic/sym';
 import { normalise } from '../symbolic/normalise';
 import { applyFunction, evaluate } from '../symbolic/evaluate';
+import { expand } from './expand';
 
 export interface DeriveBudget {
   /** Largest expression (nodes) the normaliser and the guard-surface substitution work on. */
@@ -68,7 +69,12 @@ export function simplifyChecked(raw: Sym, budget: DeriveBudget, what: string): S
   if (n > budget.maxNodes) {
     return { sym: raw, note: `${what}: ${n} nodes exceed the budget of ${budget.maxNodes}; shown unsimplified` };
   }
-  const simple = normalise(raw, { maxNodes: budget.maxNodes });
+  let simple = normalise(raw, { maxNodes: budget.maxNodes });
+  const expanded = expand(simple);
+  if (size(expanded) <= budget.maxNodes) {
+    const e = normalise(expanded, { maxNodes: budget.maxNodes });
+    if (size(e) < size(simple)) simple = e;
+  }
   if (simple === raw) return { sym: raw };
   const verdict = numericallyEqual(raw, simple, budget.checkPoints, n);
   if (verdict === 'different') {

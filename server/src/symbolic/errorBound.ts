@@ -10,31 +10,41 @@
 import type { Sym } from './sym';
 import { type Env, applyFunction, evaluate } from './evaluate';
 
-const U = 2 ** -53;
-
 export interface Bounded { value: number; bound: number }
 
-/** Value and first-order absolute rounding-error bound of s at env. */
-export function evaluateWithBound(s: Sym, env: Env): Bounded {
-  const r = walk(s, env);
+export interface BoundOptions {
+  /** Unit roundoff of the arithmetic (default 2^-53, doubles; 2^-24 for floats). */
+  unitRoundoff?: number;
+  /** Count the rounding of literals and inputs to that arithmetic too (default false). */
+  inexactLeaves?: boolean;
+}
+
+/** Value (in doubles) and first-order absolute rounding-error bound of s at env, for
+ *  arithmetic with the given unit roundoff. */
+export function evaluateWithBound(s: Sym, env: Env, opts: BoundOptions = {}): Bounded {
+  const u = opts.unitRoundoff ?? 2 ** -53;
+  const r = walk(s, env, { u, leaf: opts.inexactLeaves ? u : 0 });
   return Number.isFinite(r.value) ? r : { value: r.value, bound: Infinity };
 }
 
-function walk(s: Sym, env: Env): Bounded {
+interface Arithmetic { u: number; leaf: number }
+
+function walk(s: Sym, env: Env, c: Arithmetic): Bounded {
+  const U = c.u, LEAF = c.leaf;
   switch (s.k) {
-    case 'num': return { value: s.v, bound: 0 };
-    case 'sym': return { value: evaluate(s, env), bound: 0 };
+    case 'num': return { value: s.v, bound: LEAF * Math.abs(s.v) };
+    case 'sym': { const value = evaluate(s, env); return { value, bound: LEAF * Math.abs(value) }; }
     case 'add': {
       let value = 0, bound = 0;
       s.terms.forEach((t, i) => {
-        const x = walk(t, env);
+        const x = walk(t, env, c);
         value += x.value;
         bound += x.bound + (i > 0 ? U * Math.abs(value) : 0);
       });
       return { value, bound };
     }
     case 'mul': {
-      const xs = s.factors.map((f) => walk(f, env));
+      const xs = s.factors.map((f) => walk(f, env, c));
       let value = 1;
       for (const x of xs) value *= x.value;
       let bound = Math.max(0, xs.length - 1) * U * Math.abs(value);
@@ -46,9 +56,9 @@ function walk(s: Sym, env: Env): Bounded {
       });
       return { value, bound };
     }
-    case 'pow': return power(walk(s.base, env), walk(s.exp, env));
+    case 'pow': return power(walk(s.base, env, c), walk(s.exp, env, c), U);
     case 'fn': {
-      const xs = s.args.map((a) => walk(a, env));
+      const xs = s.args.map((a) => walk(a, env, c));
       const value = applyFunction(s.name, xs.map((x) => x.value));
       const a = xs[0]?.value ?? NaN, ba = xs[0]?.bound ?? 0, v = Math.abs(value);
       switch (s.name) {
@@ -58,14 +68,14 @@ function walk(s: Sym, env: Env): Bounded {
         case 'tanh': return { value, bound: (1 - value * value) * ba + 2 * U * v };
         case 'sigmoid': return { value, bound: value * (1 - value) * ba + 4 * U * v };
         case 'abs': return { value, bound: ba };
-        case 'pow': return xs.length === 2 ? power(xs[0]!, xs[1]!) : { value, bound: NaN };
+        case 'pow': return xs.length === 2 ? power(xs[0]!, xs[1]!, U) : { value, bound: NaN };
         case 'min': case 'max': return { value, bound: Math.max(0, ...xs.map((x) => x.bound)) };
       }
     }
   }
 }
 
-function power(b: Bounded, e: Bounded): Bounded {
+function power(b: Bounded, e: Bounded, U: number): Bounded {
   const value = Math.pow(b.value, e.value);
   const v = Math.abs(value);
   const dBase = b.bound === 0 ? 0 : Math.abs(e.value * Math.pow(b.value, e.value - 1)) * b.bound;

@@ -26,6 +26,9 @@ interface Dialect {
   symbol(name: string): string;
   power(base: Printed, exp: Printed, rawExp: Sym): Printed;
   call(name: FnName, args: Printed[]): Printed;
+  /** How a number literal prints where it is a power's base or a divisor that may be 0
+   *  (Python needs NumPy floats there: `(-2) ** 0.5` is complex, `1 / 0` raises). */
+  operand?(literal: Printed): Printed;
 }
 
 const wrap = (x: Printed, min: number): string => (x.p >= min ? x.t : `(${x.t})`);
@@ -39,13 +42,14 @@ function printer(d: Dialect): (s: Sym) => string {
       case 'sym': return { t: d.symbol(s.name), p: ATOM };
       case 'add': return sum(s.terms);
       case 'mul': return product(s);
-      case 'pow': return s.exp.k === 'num' && s.exp.v < 0 ? product(s) : d.power(p(s.base), p(s.exp), s.exp);
+      case 'pow': return s.exp.k === 'num' && s.exp.v < 0 ? product(s) : d.power(operand(s.base), p(s.exp), s.exp);
       case 'fn':
         if (!arityOk(s.name, s.args.length)) return { t: d.number(NaN), p: ATOM };
         if (s.args.length === 1 && (s.name === 'min' || s.name === 'max')) return p(s.args[0]!);
         return d.call(s.name, s.args.map(p));
     }
   };
+  const operand = (s: Sym): Printed => (s.k === 'num' && d.operand ? d.operand(p(s)) : p(s));
   const sum = (terms: Sym[]): Printed => {
     if (terms.length === 0) return { t: d.number(0), p: ATOM };
     if (terms.length === 1) return p(terms[0]!);
@@ -66,7 +70,7 @@ function printer(d: Dialect): (s: Sym) => string {
     for (const x of f.numerator) items.push(p(x));
     const below: Printed[] = [];
     if (f.divisor !== 1) below.push({ t: d.number(f.divisor), p: ATOM });
-    for (const x of f.denominator) below.push(p(x));
+    for (const x of f.denominator) below.push(operand(x));
     let body: Printed;
     if (below.length === 0) {
       body = items.length === 0 ? { t: d.number(1), p: ATOM }
@@ -157,6 +161,7 @@ export function toPython(s: Sym, opts: PythonOptions = {}): string {
     number: (v) => (Number.isNaN(v) ? `${np}.nan` : v === Infinity ? `${np}.inf` : String(v)),
     symbol: opts.name ?? ((n) => (PY_KEYWORDS.has(n) ? n + '_' : n)),
     power: (b, e) => ({ t: `${wrap(b, ATOM)} ** ${wrap(e, ATOM)}`, p: POWER }),
+    operand: (literal) => ({ t: `${np}.float64(${literal.t})`, p: ATOM }),
     call: (name, args) => {
       if (name === 'sigmoid') return { t: `(1 / (1 + ${np}.exp(${minusArg(args[0]!)})))`, p: ATOM };
       if (name === 'min' || name === 'max') return nested(`${np}.${names[name]}`, args);

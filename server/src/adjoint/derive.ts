@@ -1,0 +1,315 @@
+// Symbolic derivation of the EventProp adjoint system of one neuron model, in general: any
+// flow f, guard g = LHS - RHS, spike jump h and incoming jump r the language can express
+// (LANGUAGE.md "Derived results"; docs/adjoint.md has every formula). Canonical costate
+// lambda = dL/dx(t); jump formulas give lambda just BEFORE the event in terms of lambda_X
+// (just AFTER it), the pre-event state names and the symbols of names.ts.
+//
+// Invariants: deriveNeuron never throws (a failure becomes a note and an empty derivation);
+// every expression is exact (simplification is budgeted and verified at random points, see
+// verify.ts; the guard-surface form is used only where the formula is evaluated on the
+// surface, i.e. the spike formulas); the result depends only on the model content that
+// modelHash prints.
+import { type Sym, ZERO, add, dependsOn, freeSymbols, mul, num, pow, size, substitute, sym } from '../symbolic/sym';
+import { derivative } from '../symbolic/derivative';
+import { key } from '../symbolic/normalise';
+import { toMathjs } from '../symbolic/print';
+import type { Direction } from '../syntax/ast';
+import type { ResolvedNeuron } from '../model/types';
+import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from './names';
+import { type DeriveBudget, DEFAULT_BUDGET, simplifyChecked } from './verify';
+import { type SurfaceRule, guardSurfaceRule, onSurface, vanishingConditions } from './surface';
+import { type DerivationIssue, type Where, conditionText, denominatorIssues, nonSmoothIssues } from './singularities';
+
+export type { DerivationIssue, Where } from './singularities';
+export type { Condition, SurfaceRule } from './surface';
+
+export interface SpikeDerivation {
+  direction: Direction;
+  /** dg/dt just before the event, (dg/dx) f(x-) + dg/dt, in its guard-surface form where simpler. */
+  gdot: Sym;
+  /** The same slope without the guard-surface substitution. */
+  gdotRaw: Sym;
+  /** Phi times gdot: lambda+ . (f(x+) - h_x f(x-) - h_t) + coupling - dlp_dt + lV_post - lV_pre. */
+  phiNumerator: Sym;
+  phi: Sym;
+  /** lambda_X just before the event for every state X (symbol `phi` kept). */
+  jump: Map<string, Sym>;
+  /** The substitution LHS = RHS used on the guard surface, when one was found. */
+  surface?: SurfaceRule;
+  /** Forward state values the backward pass needs at each spike of this neuron. */
+  record: string[];
+  eventBased: boolean;
+}
+
+export interface IncomingDerivation {
+  weight: string;
+  /** lambda_Y of the target just before a received spike. */
+  jump: Map<string, Sym>;
+  /** dL/dw increment per received spike: lambda+ . dr/dw. */
+  weightGradient: Sym;
+  /** This target's term of the sender's `coupling`: lambda+ . (f(y+) - r_y f(y-) - r_t). */
+  coupling: Sym;
+  /** Target state values needed at each received spike. */
+  record: string[];
+}
+
+export interface ParamGradient {
+  /** Integrand over the flow: lambda . df/dp. */
+  flow: Sym;
+  /** Increment per spike of this neuron: lambda+ . dh/dp + phi dg/dp (null without fire block). */
+  spike: Sym | null;
+  /** Increment per received spike: lambda+ . dr/dp (null without incoming block). */
+  incoming: Sym | null;
+}
+
+export interface TrajectoryNeeds {
+  /** The adjoint flow is independent of the forward state: nothing stored between events. */
+  eventBased: boolean;
+  /** States whose forward trajectory the adjoint flow needs. */
+  adjointStates: string[];
+  /** States the parameter-gradient integrands need (beyond adjointStates). */
+  gradientStates: string[];
+  /** Bytes per neuron and time step to store them as float64. */
+  bytesPerStep: number;
+}
+
+export interface NeuronDerivation {
+  name: string;
+  hash: string;
+  wellFormed: boolean;
+  states: string[];
+  /** Parameters whose gradients were derived (trainable ones, or all with params: 'all'). */
+  gradientParams: string[];
+  /** J[i][j] = d f_i / d x_j over `states`. */
+  jacobian: Sym[][];
+  adjointFlow: Map<string, Sym>;
+  spike: SpikeDerivation | null;
+  incoming: IncomingDerivation | null;
+  paramGradients: Map<string, ParamGradient>;
+  trajectory: TrajectoryNeeds;
+  issues: DerivationIssue[];
+  notes: string[];
+  millis: number;
+}
+
+export interface DeriveContext {
+  budget?: Partial<DeriveBudget>;
+  /** Which parameters get gradients: the trainable ones (default) or all. */
+  params?: 'trainable' | 'all';
+}
+
+/** A stable hash of everything the derivation reads (printed Syms, names, flags). */
+export function modelHash(n: ResolvedNeuron): string {
+  const parts: string[] = [n.name, n.wellFormed ? 'ok' : 'bad'];
+  parts.push('S', ...n.states.map((s) => s.name));
+  parts.push('P', ...n.params.map((p) => `${p.name}${p.trainable ? '*' : ''}`));
+  for (const s of n.states) { const f = n.flows.get(s.name); if (f) parts.push(`d${s.name}=${key(f)}`); }
+  if (n.fire) {
+    parts.push('F', key(n.fire.lhs), key(n.fire.rhs), key(n.fire.guard), n.fire.direction);
+    for (const [x, h] of n.fire.jumps) parts.push(`${x}:=${key(h)}`);
+  }
+  if (n.incoming) {
+    parts.push('I', n.incoming.weight);
+    for (const [x, r] of n.incoming.jumps) parts.push(`${x}:=${key(r)}`);
+  }
+  const text = parts.join('\u0001');
+  let h1 = 0x811c9dc5, h2 = 0x01000193 ^ text.length;
+  for (let i = 0; i < text.length; i++) {
+    const c = text.charCodeAt(i);
+    h1 = Math.imul(h1 ^ c, 0x01000193) >>> 0;
+    h2 = Math.imul(h2 ^ c, 0x5bd1e995) >>> 0;
+    h2 ^= h2 >>> 13;
+  }
+  return h1.toString(16).padStart(8, '0') + h2.toString(16).padStart(8, '0');
+}
+
+/** Shared state of one derivation: budget, notes, issues. */
+class Work {
+  notes: string[] = [];
+  issues: DerivationIssue[] = [];
+  constructor(readonly budget: DeriveBudget, readonly where: Where) {}
+  simp(raw: Sym, what: string, where: Where = this.where): Sym {
+    const r = simplifyChecked(raw, this.budget, what);
+    if (r.note) {
+      this.notes.push(r.note);
+      this.issues.push({ code: 'derivation-budget', where, conditions: [], message: r.note });
+    }
+    return r.sym;
+  }
+}
+
+const dot = (pairs: [Sym, Sym][]): Sym => add(...pairs.map(([a, b]) => mul(a, b)));
+const stateFree = (s: Sym, states: readonly string[]): string[] => {
+  const f = freeSymbols(s);
+  return states.filter((x) => f.has(x));
+};
+
+export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): NeuronDerivation {
+  const start = performance.now();
+  const states = neuron.states.map((s) => s.name);
+  const gradientParams = neuron.params.filter((p) => ctx.params === 'all' || p.trainable).map((p) => p.name);
+  const base: NeuronDerivation = {
+    name: neuron.name, hash: modelHash(neuron), wellFormed: neuron.wellFormed, states, gradientParams,
+    jacobian: [], adjointFlow: new Map(), spike: null, incoming: null, paramGradients: new Map(),
+    trajectory: { eventBased: true, adjointStates: [], gradientStates: [], bytesPerStep: 0 }, issues: [], notes: [], millis: 0,
+  };
+  if (!neuron.wellFormed) {
+    base.notes.push(`${neuron.name} has errors: nothing is derived until they are fixed`);
+    base.millis = performance.now() - start;
+    return base;
+  }
+  try {
+    const work = new Work({ ...DEFAULT_BUDGET, ...ctx.budget }, { kind: 'flow', state: states[0] ?? '' });
+    const out = derive(neuron, states, gradientParams, work);
+    return { ...base, ...out, issues: work.issues, notes: work.notes, millis: performance.now() - start };
+  } catch (err) {
+    base.notes.push(`internal error while deriving ${neuron.name}: ${(err as Error).message}`);
+    base.millis = performance.now() - start;
+    return base;
+  }
+}
+
+type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'incoming' | 'paramGradients' | 'trajectory'>;
+
+function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string[], work: Work): Derived {
+  const lambda = states.map((x) => sym(lambdaName(x)));
+  const f = states.map((x) => neuron.flows.get(x) ?? ZERO);
+  const jacobian = f.map((fi) => states.map((x) => derivative(fi, x)));
+
+  // Adjoint flow: dlambda_X/dt = -sum_Y (df_Y/dX) lambda_Y - dlV_dX.
+  const adjointFlow = new Map<string, Sym>();
+  states.forEach((x, j) => {
+    const raw = add(...states.map((_, i) => mul(num(-1), jacobian[i]![j]!, lambda[i]!)), mul(num(-1), sym(lossPartialName(x))));
+    adjointFlow.set(x, work.simp(raw, `adjoint flow of ${x}`, { kind: 'flow', state: x }));
+  });
+  states.forEach((x, i) => {
+    const where: Where = { kind: 'flow', state: x };
+    const exprs = [f[i]!, ...jacobian[i]!, ...gradientParams.map((p) => derivative(f[i]!, p))];
+    work.issues.push(...nonSmoothIssues(where, [f[i]!], states), ...denominatorIssues(where, exprs, states));
+  });
+
+  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, work) : null;
+  const incoming = neuron.incoming ? deriveIncoming(neuron, states, lambda, f, gradientParams, work) : null;
+
+  const paramGradients = new Map<string, ParamGradient>();
+  for (const p of gradientParams) {
+    const flow = work.simp(dot(f.map((fi, i) => [lambda[i]!, derivative(fi, p)])), `flow integrand of the ${p} gradient`);
+    let spikeInc: Sym | null = null;
+    if (neuron.fire && spike) {
+      const fire = neuron.fire;
+      const hp = states.map((x) => derivative(fire.jumps.get(x) ?? sym(x), p));
+      const raw = add(dot(hp.map((d, i) => [lambda[i]!, d])), mul(sym(PHI), derivative(fire.guard, p)));
+      const r = onSurface(work.simp(raw, `spike increment of the ${p} gradient`, { kind: 'fire' }), spike.surface, work.budget);
+      spikeInc = r.sym;
+    }
+    let inc: Sym | null = null;
+    if (neuron.incoming) {
+      const inj = neuron.incoming;
+      const rp = states.map((x) => derivative(inj.jumps.get(x) ?? sym(x), p));
+      inc = work.simp(dot(rp.map((d, i) => [lambda[i]!, d])), `incoming increment of the ${p} gradient`, { kind: 'incoming' });
+    }
+    paramGradients.set(p, { flow, spike: spikeInc, incoming: inc });
+  }
+  if (spike) {
+    const extra = [...paramGradients.values()].flatMap((g) => (g.spike ? stateFree(g.spike, states) : []));
+    spike.record = states.filter((x) => spike.record.includes(x) || extra.includes(x));
+  }
+
+  const adjointStates = states.filter((x) => [...adjointFlow.values()].some((e) => dependsOn(e, x)));
+  const gradientStates = states.filter((x) => !adjointStates.includes(x)
+    && [...paramGradients.values()].some((g) => dependsOn(g.flow, x)));
+  const trajectory: TrajectoryNeeds = {
+    eventBased: adjointStates.length === 0, adjointStates, gradientStates,
+    bytesPerStep: 8 * (adjointStates.length + gradientStates.length),
+  };
+  if (spike) spike.eventBased = trajectory.eventBased;
+  work.notes.push(trajectory.eventBased
+    ? 'the adjoint flow does not depend on the forward state: the backward pass is purely event-based (only the values at spikes are recorded)'
+    : `the adjoint flow depends on ${adjointStates.join(', ')}: the backward pass needs their forward trajectory (${8 * adjointStates.length} bytes per neuron and time step)`);
+  if (gradientStates.length > 0) {
+    work.notes.push(`the parameter-gradient integrands also need the trajectory of ${gradientStates.join(', ')}`);
+  }
+  return { jacobian, adjointFlow, spike, incoming, paramGradients, trajectory };
+}
+
+function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], work: Work): SpikeDerivation {
+  const fire = neuron.fire!;
+  const where: Where = { kind: 'fire' };
+  const g = fire.guard;
+  const h = states.map((x) => fire.jumps.get(x) ?? sym(x));
+  const gx = states.map((x) => derivative(g, x));
+  const gt = derivative(g, TIME);
+  const hx = h.map((hi) => states.map((x) => derivative(hi, x)));
+  const ht = h.map((hi) => derivative(hi, TIME));
+  const post = new Map(states.map((x, i) => [x, h[i]!] as const));
+  // Tangential part: f(x+) - h_x f(x-) - h_t, component by component.
+  const tangential = states.map((_, i) => add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), hx[i]![j]!, f[j]!)), mul(num(-1), ht[i]!)));
+
+  const gdotRaw = work.simp(add(dot(gx.map((d, j) => [d, f[j]!])), gt), 'guard slope', where);
+  const preferred = [fire.lhs, fire.rhs].flatMap((s) => (s.k === 'sym' && states.includes(s.name) ? [s.name] : []));
+  const rule = guardSurfaceRule(g, states, preferred);
+  let surfaceUsed = false;
+  const surf = (s: Sym): Sym => {
+    const r = onSurface(s, rule, work.budget);
+    if (r.note) work.notes.push(r.note);
+    if (r.used) surfaceUsed = true;
+    return r.sym;
+  };
+  const gdot = surf(gdotRaw);
+  const numerRaw = add(dot(tangential.map((d, i) => [lambda[i]!, d])), sym(COUPLING), mul(num(-1), sym(DLP_DT)), sym(LV_POST), mul(num(-1), sym(LV_PRE)));
+  const phiNumerator = surf(work.simp(numerRaw, 'phi numerator', where));
+  const phi = surf(work.simp(mul(phiNumerator, pow(gdot, num(-1))), 'phi', where));
+  const jump = new Map<string, Sym>();
+  states.forEach((x, j) => {
+    const raw = add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!)), mul(sym(PHI), gx[j]!));
+    jump.set(x, surf(work.simp(raw, `jump of lambda_${x}`, where)));
+  });
+
+  if (surfaceUsed && rule) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
+  work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
+    + (neuron.incoming ? ' (for the implicit self-projection, the targets are other neurons of this model)' : ''));
+
+  // Grazing: the slope can vanish on the guard surface.
+  const grazing = vanishingConditions(gdot, states);
+  if (grazing.length > 0) {
+    work.issues.push({ code: 'grazing-crossing', where, conditions: grazing,
+      message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: the spike time has no derivative there (guard slope ${slopeText(gdot)})` });
+  }
+  const jumpExprs = [...h, ...hx.flat(), g, ...gx];
+  work.issues.push(...nonSmoothIssues(where, [g, ...h], states), ...denominatorIssues(where, jumpExprs, states));
+  if (!dependsOnState(gdot, states) && gdot.k === 'num' && gdot.v === 0) {
+    work.notes.push('the guard slope is identically zero: the guard is never crossed transversally');
+  }
+
+  const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
+  return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}), record, eventBased: true };
+}
+
+function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
+  const inj = neuron.incoming!;
+  const where: Where = { kind: 'incoming' };
+  const w = inj.weight;
+  const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
+  const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
+  const rt = r.map((ri) => derivative(ri, TIME));
+  const post = new Map(states.map((x, i) => [x, r[i]!] as const));
+  const tangential = states.map((_, i) => add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)));
+  const coupling = work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
+  const jump = new Map<string, Sym>();
+  states.forEach((x, j) => jump.set(x, work.simp(add(...states.map((_, i) => mul(ry[i]![j]!, lambda[i]!))), `incoming jump of lambda_${x}`, where)));
+  const weightGradient = work.simp(dot(r.map((ri, i) => [lambda[i]!, derivative(ri, w)])), 'weight gradient', where);
+  const exprs = [...r, ...ry.flat(), ...r.map((ri) => derivative(ri, w)), ...gradientParams.flatMap((p) => r.map((ri) => derivative(ri, p)))];
+  work.issues.push(...nonSmoothIssues(where, r, states), ...denominatorIssues(where, exprs, states));
+  const record = states.filter((x) => [coupling, weightGradient, ...jump.values()].some((e) => dependsOn(e, x)));
+  return { weight: w, jump, weightGradient, coupling, record };
+}
+
+function dependsOnState(s: Sym, states: readonly string[]): boolean {
+  return states.some((x) => dependsOn(s, x)) || dependsOn(s, TIME);
+}
+
+function slopeText(s: Sym): string {
+  return size(s) > 60 ? '(long)' : `= ${toMathjs(s)}`;
+}

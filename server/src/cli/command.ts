@@ -1,0 +1,68 @@
+// What a `saltus` subcommand is, and the helpers every command shares: the I/O it may use,
+// the usage error it throws for bad arguments, and option parsing on node:util parseArgs.
+//
+// Adding a subcommand = one file in cli/commands/ exporting a `Command`, plus one line in the
+// COMMANDS table of cli/main.ts. Invariants: a command writes only through `io` (so `lsp
+// --stdio` keeps stdout for the protocol), reports bad arguments by throwing UsageError (main
+// turns it into exit code 2 and one line on stderr, never a stack trace), and returns its exit
+// code rather than calling process.exit, so buffered output is flushed.
+import { parseArgs, type ParseArgsConfig } from 'node:util';
+
+export interface CliIO {
+  out(text: string): void;
+  err(text: string): void;
+  /** Whether colour may be used on `out`: stdout is a TTY and NO_COLOR is unset or empty. */
+  colour: boolean;
+  cwd: string;
+  env: Readonly<Record<string, string | undefined>>;
+}
+
+/** A command either finishes with an exit code or keeps the process alive (a server). */
+export type CommandResult = { exitCode: number } | { keepRunning: true };
+
+export interface Command {
+  /** The word after `saltus`. */
+  name: string;
+  /** One line for the command list in `saltus --help`. */
+  summary: string;
+  /** The full text of `saltus help NAME`: usage lines, then options and exit codes. */
+  help: string;
+  run(argv: string[], io: CliIO): Promise<CommandResult>;
+}
+
+/** Bad arguments, an unreadable input file: exit code 2 with this message on stderr. */
+export class UsageError extends Error {
+  constructor(message: string, readonly command?: string) {
+    super(message);
+    this.name = 'UsageError';
+  }
+}
+
+type Options = NonNullable<ParseArgsConfig['options']>;
+
+/**
+ * parseArgs in strict mode with positionals allowed; its TypeErrors (unknown option, missing
+ * value) become UsageErrors naming the command. `--help`/`-h` is added to every command.
+ */
+export function parseCommandArgs<O extends Options>(command: string, argv: string[], options: O) {
+  try {
+    return parseArgs({
+      args: argv,
+      options: { ...options, help: { type: 'boolean', short: 'h' } },
+      allowPositionals: true,
+      strict: true,
+    });
+  } catch (e) {
+    const raw = (e as Error).message ?? String(e);
+    // Node's wording ends with advice about `--` that does not fit our commands; keep the first sentence.
+    const first = raw.split(/\.\s/)[0]!.replace(/\.$/, '');
+    throw new UsageError(first, command);
+  }
+}
+
+/** Reads a one-of option, e.g. --format text|json|sarif. */
+export function oneOf<T extends string>(command: string, option: string, value: string | undefined, allowed: readonly T[], fallback: T): T {
+  if (value === undefined) return fallback;
+  if ((allowed as readonly string[]).includes(value)) return value as T;
+  throw new UsageError(`--${option} must be one of ${allowed.join(', ')}; got '${value}'`, command);
+}
