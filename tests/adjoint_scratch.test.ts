@@ -1,19 +1,10 @@
 import { test } from 'vitest';
-import { analyse } from '../server/src/pipeline';
-import { deriveNeuron } from '../server/src/adjoint/derive';
-import { toMathjs } from '../server/src/symbolic/print';
-import { readFileSync } from 'node:fs';
-const P = (s: any) => s ? toMathjs(s) : String(s);
+import { simulate } from '../server/src/simulate';
+import { fdCases } from './helpers/fdCases';
 test('x', () => {
-  const src = readFileSync('/work/shared/LANGUAGE.md','utf8').split('```')[1]!;
-  const a = analyse(src);
-  for (const n of a.model.neurons) {
-    const d = deriveNeuron(n, { params: 'all' });
-    console.log(n.name, d.millis.toFixed(2), 'ms');
-    for (const [x, e] of d.adjointFlow) console.log('  dl' + x, P(e));
-    if (d.spike) { console.log('  gdot', P(d.spike.gdot), '| raw', P(d.spike.gdotRaw)); console.log('  phi', P(d.spike.phi)); for (const [x, e] of d.spike.jump) console.log('  jump', x, P(e)); console.log('  record', d.spike.record); }
-    if (d.incoming) { console.log('  coupling', P(d.incoming.coupling), 'wg', P(d.incoming.weightGradient)); for (const [x, e] of d.incoming.jump) console.log('  injump', x, P(e)); }
-    for (const [p, g] of d.paramGradients) console.log('  grad', p, P(g.flow), '|', P(g.spike), '|', P(g.incoming));
-    console.log(d.trajectory, d.notes, d.issues.map(i => i.message));
+  const c = fdCases()[3]!.c;
+  for (const T of [0.002, 0.005, 0.01, 0.02]) {
+  const tr = simulate(c.net, T, c.inputs, { rtol: 1e-10, loss: c.loss });
+  console.log(T, tr.errors, tr.steps, tr.rejected, tr.spikes, tr.final, tr.events.map(e => [e.kind, e.time, Array.from(e.pre).map(x=>x.toExponential(3)).join(',')]));
   }
 });

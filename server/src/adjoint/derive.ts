@@ -225,7 +225,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   if (spike) spike.eventBased = trajectory.eventBased;
   work.notes.push(trajectory.eventBased
     ? 'the adjoint flow does not depend on the forward state: the backward pass is purely event-based (only the values at spikes are recorded)'
-    : `the adjoint flow depends on ${adjointStates.join(', ')}: the backward pass needs their forward trajectory (${8 * adjointStates.length} bytes per neuron and time step)`);
+    : `the adjoint flow depends on ${adjointStates.join(', ')}: the backward pass needs the forward trajectory of ${adjointStates.join(', ')} (${8 * adjointStates.length} bytes per neuron and time step)`);
   if (gradientStates.length > 0) {
     work.notes.push(`the parameter-gradient integrands also need the trajectory of ${gradientStates.join(', ')}`);
   }
@@ -243,8 +243,8 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const ht = h.map((hi) => derivative(hi, TIME));
   const post = new Map(states.map((x, i) => [x, h[i]!] as const));
   // Tangential part: f(x+) - h_x f(x-) - h_t, component by component.
-  const tangential = states.map((_, i) => add(substitute(f[i]!, post),
-    ...states.map((__, j) => mul(num(-1), hx[i]![j]!, f[j]!)), mul(num(-1), ht[i]!)));
+  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), hx[i]![j]!, f[j]!)), mul(num(-1), ht[i]!)), `tangential term of ${x}`, where));
 
   const gdotRaw = work.simp(add(dot(gx.map((d, j) => [d, f[j]!])), gt), 'guard slope', where);
   const preferred = [fire.lhs, fire.rhs].flatMap((s) => (s.k === 'sym' && states.includes(s.name) ? [s.name] : []));
@@ -294,8 +294,8 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
   const rt = r.map((ri) => derivative(ri, TIME));
   const post = new Map(states.map((x, i) => [x, r[i]!] as const));
-  const tangential = states.map((_, i) => add(substitute(f[i]!, post),
-    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)));
+  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)), `tangential term of ${x}`, where));
   const coupling = work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
   const jump = new Map<string, Sym>();
   states.forEach((x, j) => jump.set(x, work.simp(add(...states.map((_, i) => mul(ry[i]![j]!, lambda[i]!))), `incoming jump of lambda_${x}`, where)));

@@ -30,9 +30,13 @@ export interface Command {
   run(argv: string[], io: CliIO): Promise<CommandResult>;
 }
 
-/** Bad arguments, an unreadable input file: exit code 2 with this message on stderr. */
+/**
+ * Bad arguments, an unreadable input file: exit code 2 with this message on stderr, followed
+ * by a pointer to `saltus help COMMAND` unless `pointToHelp` is false (a missing file is not
+ * a question of usage).
+ */
 export class UsageError extends Error {
-  constructor(message: string, readonly command?: string) {
+  constructor(message: string, readonly command?: string, readonly pointToHelp = true) {
     super(message);
     this.name = 'UsageError';
   }
@@ -56,7 +60,7 @@ export function parseCommandArgs<O extends Options>(command: string, argv: strin
     const raw = (e as Error).message ?? String(e);
     // Node's wording ends with advice about `--` that does not fit our commands; keep the first sentence.
     const first = raw.split(/\.\s/)[0]!.replace(/\.$/, '');
-    throw new UsageError(first, command);
+    throw new UsageError(first.charAt(0).toLowerCase() + first.slice(1), command);
   }
 }
 

@@ -59,7 +59,7 @@ export function readSourceFiles(command: string, paths: string[], cwd: string): 
   const read = paths.map((p) => readSourceFile(p, cwd));
   const problems = read.filter((r): r is { path: string; problem: string } => 'problem' in r);
   if (problems.length > 0) {
-    throw new UsageError(problems.map((p) => `${p.path}: ${p.problem}`).join('\n'), command);
+    throw new UsageError(problems.map((p) => `${p.path}: ${p.problem}`).join('\n'), command, false);
   }
   return read as SourceFile[];
 }

@@ -8,7 +8,8 @@
 //   sigmoid' = s (1 - s) u', abs' = u/|u| u' (undefined at u = 0),
 //   max(u,v)' = (u'+v')/2 + (u-v)(u'-v')/(2|u-v|), min likewise with a minus (undefined at
 //   u = v); n-ary min/max are read as nested binary ones.
-// The input is normalised first and the result is normalised (canonical, see normalise.ts).
+// The input is normalised first and the result is normalised (canonical, see normalise.ts;
+// a raw derivative over normalise's default budget of 200 000 nodes comes back un-normalised).
 // Invariants: pure; shared sub-trees are differentiated once per call (identity memo).
 // `nonSmoothPoints` and `denominators` list the expressions whose vanishing makes the
 // derivative undefined, for the diagnostics "derivative undefined where ...".

@@ -4,8 +4,9 @@
 // are taken as accurate to 1 ulp, and input errors propagate through the partial derivatives).
 // Numeric checks use it to tell rounding from disagreement: two evaluations of equal
 // expressions agree to within the sum of their bounds, to first order.
-// Invariant: bound >= 0 (Infinity or NaN when the value is not finite); same semantics and
-// the same UnboundSymbolError as `evaluate`.
+// Invariant: bound >= 0; Infinity when the value or any intermediate value is not finite
+// (the first-order analysis does not hold there); same semantics and the same
+// UnboundSymbolError as `evaluate`.
 
 import type { Sym } from './sym';
 import { type Env, applyFunction, evaluate } from './evaluate';
@@ -23,13 +24,20 @@ export interface BoundOptions {
  *  arithmetic with the given unit roundoff. */
 export function evaluateWithBound(s: Sym, env: Env, opts: BoundOptions = {}): Bounded {
   const u = opts.unitRoundoff ?? 2 ** -53;
-  const r = walk(s, env, { u, leaf: opts.inexactLeaves ? u : 0 });
-  return Number.isFinite(r.value) ? r : { value: r.value, bound: Infinity };
+  const c: Arithmetic = { u, leaf: opts.inexactLeaves ? u : 0, nonFinite: false };
+  const r = walk(s, env, c);
+  return c.nonFinite || Number.isNaN(r.bound) ? { value: r.value, bound: Infinity } : r;
 }
 
-interface Arithmetic { u: number; leaf: number }
+interface Arithmetic { u: number; leaf: number; nonFinite: boolean }
 
 function walk(s: Sym, env: Env, c: Arithmetic): Bounded {
+  const r = node(s, env, c);
+  if (!Number.isFinite(r.value)) c.nonFinite = true;
+  return r;
+}
+
+function node(s: Sym, env: Env, c: Arithmetic): Bounded {
   const U = c.u, LEAF = c.leaf;
   switch (s.k) {
     case 'num': return { value: s.v, bound: LEAF * Math.abs(s.v) };
@@ -52,7 +60,7 @@ function walk(s: Sym, env: Env, c: Arithmetic): Bounded {
         if (x.bound === 0) return;
         let others = 1;
         xs.forEach((y, j) => { if (j !== i) others *= y.value; });
-        bound += x.bound * Math.abs(others);
+        bound += times(x.bound, Math.abs(others));
       });
       return { value, bound };
     }
@@ -62,11 +70,11 @@ function walk(s: Sym, env: Env, c: Arithmetic): Bounded {
       const value = applyFunction(s.name, xs.map((x) => x.value));
       const a = xs[0]?.value ?? NaN, ba = xs[0]?.bound ?? 0, v = Math.abs(value);
       switch (s.name) {
-        case 'exp': return { value, bound: v * ba + 2 * U * v };
-        case 'log': return { value, bound: ba / Math.abs(a) + 2 * U * v };
-        case 'sqrt': return { value, bound: ba / (2 * v) + U * v };
-        case 'tanh': return { value, bound: (1 - value * value) * ba + 2 * U * v };
-        case 'sigmoid': return { value, bound: value * (1 - value) * ba + 4 * U * v };
+        case 'exp': return { value, bound: times(v, ba) + 2 * U * v };
+        case 'log': return { value, bound: times(ba, 1 / Math.abs(a)) + 2 * U * v };
+        case 'sqrt': return { value, bound: times(ba, 1 / (2 * v)) + U * v };
+        case 'tanh': return { value, bound: times(1 - value * value, ba) + 2 * U * v };
+        case 'sigmoid': return { value, bound: times(value * (1 - value), ba) + 4 * U * v };
         case 'abs': return { value, bound: ba };
         case 'pow': return xs.length === 2 ? power(xs[0]!, xs[1]!, U) : { value, bound: NaN };
         case 'min': case 'max': return { value, bound: Math.max(0, ...xs.map((x) => x.bound)) };
@@ -75,10 +83,13 @@ function walk(s: Sym, env: Env, c: Arithmetic): Bounded {
   }
 }
 
+/** Product where an exact zero wins over an infinite sensitivity (no error, no NaN). */
+const times = (a: number, b: number): number => (a === 0 || b === 0 ? 0 : a * b);
+
 function power(b: Bounded, e: Bounded, U: number): Bounded {
   const value = Math.pow(b.value, e.value);
   const v = Math.abs(value);
-  const dBase = b.bound === 0 ? 0 : Math.abs(e.value * Math.pow(b.value, e.value - 1)) * b.bound;
-  const dExp = e.bound === 0 ? 0 : v * Math.abs(Math.log(Math.abs(b.value))) * e.bound;
+  const dBase = times(b.bound, Math.abs(e.value * Math.pow(b.value, e.value - 1)));
+  const dExp = times(e.bound, times(v, Math.abs(Math.log(Math.abs(b.value)))));
   return { value, bound: dBase + dExp + 2 * U * v };
 }

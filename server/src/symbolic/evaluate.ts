@@ -1,10 +1,10 @@
 // Numeric evaluation of Sym: a whitelisted tree walker (never eval / new Function) and a
 // compiler to a closure tree for simulation loops (symbols resolved to array indices once).
 //
-// Semantics are IEEE doubles as in JavaScript's Math: x^y is Math.pow (NaN for a negative
-// base with a non-integer exponent), log/sqrt of negatives give NaN, sigmoid(x) is
-// 1/(1+exp(-x)), min/max are n-ary. A function node with the wrong number of arguments
-// evaluates to NaN.
+// Semantics are IEEE doubles as in JavaScript's Math: a factor x^-1 of a product divides
+// (a*b^-1 is a/b, as printed), x^y is Math.pow (NaN for a negative base with a non-integer
+// exponent), log/sqrt of negatives give NaN, sigmoid(x) is 1/(1+exp(-x)), min/max are
+// n-ary. A function node with the wrong number of arguments evaluates to NaN.
 // The only exception thrown here is UnboundSymbolError: evaluating (or compiling) a symbol
 // that the environment (or name list) does not bind. `tryEvaluate` never throws.
 
@@ -64,7 +64,11 @@ export function evaluate(s: Sym, env: Env): number {
     case 'num': return s.v;
     case 'sym': return lookup(env, s.name);
     case 'add': { let r = 0; for (const t of s.terms) r += evaluate(t, env); return r; }
-    case 'mul': { let r = 1; for (const f of s.factors) r *= evaluate(f, env); return r; }
+    case 'mul': {
+      let r = 1;
+      for (const f of s.factors) r = isReciprocal(f) ? r / evaluate(f.base, env) : r * evaluate(f, env);
+      return r;
+    }
     case 'pow': return Math.pow(evaluate(s.base, env), evaluate(s.exp, env));
     case 'fn': return applyFunction(s.name, s.args.map((a) => evaluate(a, env)));
   }
@@ -100,6 +104,9 @@ export function compileVector(fs: readonly Sym[], names: readonly string[]): (va
   };
 }
 
+/** x^-1: evaluated as a division (one rounding less than multiplying by 1/x). */
+const isReciprocal = (f: Sym): f is Sym & { k: 'pow' } => f.k === 'pow' && f.exp.k === 'num' && f.exp.v === -1;
+
 function build(s: Sym, index: ReadonlyMap<string, number>): Compiled {
   switch (s.k) {
     case 'num': { const v = s.v; return () => v; }
@@ -109,7 +116,13 @@ function build(s: Sym, index: ReadonlyMap<string, number>): Compiled {
       return (x) => x[i]!;
     }
     case 'add': return fold(s.terms.map((t) => build(t, index)), 0, (a, b) => a + b);
-    case 'mul': return fold(s.factors.map((t) => build(t, index)), 1, (a, b) => a * b);
+    case 'mul': {
+      const over = s.factors.filter(isReciprocal).map((f) => build(f.base, index));
+      const times = fold(s.factors.filter((f) => !isReciprocal(f)).map((t) => build(t, index)), 1, (a, b) => a * b);
+      if (over.length === 0) return times;
+      const below = fold(over, 1, (a, b) => a * b);
+      return over.length === 1 ? (x) => times(x) / over[0]!(x) : (x) => times(x) / below(x);
+    }
     case 'pow': {
       const b = build(s.base, index);
       if (s.exp.k === 'num') {

@@ -1,22 +1,25 @@
 // Canonical light simplifier for Sym (replaces mathjs `simplify` on the keystroke path).
 //
-// Canonical form (what `normalise` returns, every sub-tree included):
+// Canonical form (what `normalise` returns, every sub-tree included); "ordered" means
+// numbers, symbols, powers, calls, products, sums, then by `key`:
 // - add: >= 2 terms, none an add, at most one number (first, non-zero), like terms collected
-//   (c1*X + c2*X -> (c1+c2)*X, X compared by `key`), other terms sorted by key;
+//   (c1*X + c2*X -> (c1+c2)*X, X compared by key), terms ordered by X;
 // - mul: >= 2 factors, none a mul, at most one number (first, not 0 or 1), equal bases merged
-//   (X^a * X^b -> X^(a+b) for numeric a, b; X * X^-1 -> 1), other factors sorted by key; a
-//   numeric factor is distributed over a single sum only when that does not grow the tree;
-// - pow: exponent never 0 or 1, numeric powers of numbers folded when finite, integer powers
-//   of products distributed, (x^a)^b merged only where that is an identity wherever the left
-//   side is real (b integer, or a not an even integer: (x^2)^0.5 stays, it is |x|, not x);
+//   (X^a * X^b -> X^(a+b) for numeric a, b; X * X^-1 -> 1), factors ordered; a numeric
+//   factor is distributed over a single sum only when that does not grow the tree;
+// - pow: exponent never 0 or 1, numeric powers of numbers folded when finite, 1^x -> 1,
+//   integer powers of products distributed, (x^a)^b merged only where that is an identity
+//   wherever the left side is real (b integer, or a not an even integer: (x^2)^0.5 stays,
+//   it is |x|, not x), sqrt(u)^(2k) -> u^k, |u|^(2k) -> u^(2k);
 // - fn: arguments canonical, numeric calls folded when finite, `pow(a,b)` becomes a pow node,
-//   min/max flattened, deduplicated and sorted.
-// Simplifications may only extend the domain (x*x^-1 -> 1 is defined at 0); where the input
-// is finite the value is unchanged up to rounding.
+//   log(exp(u)) -> u, abs(c*X) -> |c|*abs(X), min/max flattened, deduplicated and ordered.
+// Rules may only extend the domain (x*x^-1 -> 1 is also defined at x = 0): where the input
+// is finite the value is unchanged up to rounding (and up to underflow: (x^3)^0.5 is 0 at
+// x = -5e-324 because x^3 underflows to -0, while x^1.5 is NaN there).
 // Invariants: idempotent (normalise(normalise(x)) is structurally normalise(x)); inputs are
 // never mutated; results are remembered in a WeakSet so re-normalising a canonical sub-tree
-// is O(1). Work is about O(n log n) string compares; no rule grows a tree beyond distributing
-// integer powers over products.
+// is O(1). Work is about O(n log n) key compares; no rule grows a tree except distributing
+// an integer power over a product.
 
 import { type FnName, type Sym, ONE, dependsOn, num, size, substitute } from './sym';
 import { applyFunction, arityOk } from './evaluate';
@@ -64,7 +67,14 @@ export function substituteAndNormalise(s: Sym, map: ReadonlyMap<string, Sym> | R
   return normalise(substitute(s, m));
 }
 
-const byKey = (a: Sym, b: Sym): number => { const ka = key(a), kb = key(b); return ka < kb ? -1 : ka > kb ? 1 : 0; };
+const RANK: Record<Sym['k'], number> = { num: 0, sym: 1, pow: 2, fn: 3, mul: 4, add: 5 };
+/** Canonical order: numbers, symbols, powers, calls, products, sums; then by key. */
+const byKey = (a: Sym, b: Sym): number => {
+  const r = RANK[a.k] - RANK[b.k];
+  if (r !== 0) return r;
+  const ka = key(a), kb = key(b);
+  return ka < kb ? -1 : ka > kb ? 1 : 0;
+};
 const mark = (s: Sym): Sym => { CANONICAL.add(s); return s; };
 const mkNum = (v: number): Sym => mark(num(Object.is(v, -0) ? 0 : v));
 
@@ -110,14 +120,14 @@ function buildAdd(input: Sym[], depth = 0): Sym {
   for (const t of input) visit(t);
   const terms: Sym[] = [];
   let regroup = false;
-  for (const { rest, c } of groups.values()) {
+  // Terms are ordered by their non-numeric part (unique after collecting).
+  for (const { rest, c } of [...groups.values()].sort((g, h) => byKey(g.rest, h.rest))) {
     if (c === 0) continue;
     const t = withCoefficient(c, rest);
     if (t.k === 'add' || t.k === 'num') regroup = true;
     terms.push(t);
   }
   if (regroup && depth < 8) return buildAdd(constant === 0 ? terms : [mkNum(constant), ...terms], depth + 1);
-  terms.sort(byKey);
   if (constant !== 0 || terms.length === 0) terms.unshift(mkNum(constant));
   return terms.length === 1 ? terms[0]! : mark({ k: 'add', terms });
 }

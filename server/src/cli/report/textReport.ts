@@ -25,33 +25,48 @@ const colourPaint: Paint = {
 };
 const plainPaint: Paint = { severity: (_s, t) => t, bold: (t) => t, dim: (t) => t };
 
-/** The code points of `line` from `from` (UTF-16 offset) to `to`, counted as code points. */
-function codePointsBetween(line: string, from: number, to: number): number {
-  return Array.from(line.slice(from, to)).length;
+/**
+ * Terminal columns a code point takes: 0 for combining marks and zero-width joiners, 2 for
+ * emoji shown as pictures and East Asian wide/fullwidth ranges (the common blocks, after
+ * Unicode UAX #11; a heuristic, not the full table), else 1.
+ */
+export function columnWidth(ch: string): number {
+  if (/^[\p{Mn}\p{Me}\u200B-\u200D\uFE0F]$/u.test(ch)) return 0;
+  if (/^\p{Emoji_Presentation}$/u.test(ch)) return 2;
+  const cp = ch.codePointAt(0) ?? 0;
+  const wide = (cp >= 0x1100 && cp <= 0x115f) || (cp >= 0x2e80 && cp <= 0xa4cf && cp !== 0x303f) ||
+    (cp >= 0xac00 && cp <= 0xd7a3) || (cp >= 0xf900 && cp <= 0xfaff) || (cp >= 0xfe30 && cp <= 0xfe4f) ||
+    (cp >= 0xff00 && cp <= 0xff60) || (cp >= 0xffe0 && cp <= 0xffe6) || (cp >= 0x20000 && cp <= 0x3fffd);
+  return wide ? 2 : 1;
+}
+
+/** Blank padding as wide as `chars` on a terminal, keeping tabs so they expand alike. */
+function padFor(chars: string[]): string {
+  return chars.map((c) => (c === '\t' ? '\t' : ' '.repeat(columnWidth(c)))).join('');
 }
 
 /**
- * The source line and its underline, with tabs kept in the padding so the carets line up in
- * a terminal. Returns [shownLine, underline] without colour.
+ * The source line and its underline (UTF-16 character range [startChar, endChar) of the
+ * line), cut around the caret when the line is long. Returns [shownLine, underline].
  */
 export function excerpt(line: string, startChar: number, endChar: number): [string, string] {
   const start = Math.max(0, Math.min(startChar, line.length));
   const end = Math.max(start, Math.min(endChar, line.length));
   const chars = Array.from(line);
-  const startCp = codePointsBetween(line, 0, start);
-  const widthCp = Math.max(1, codePointsBetween(line, start, end));
+  const startCp = Array.from(line.slice(0, start)).length;
+  const endCp = startCp + Array.from(line.slice(start, end)).length;
   let from = 0;
   let to = chars.length;
   if (chars.length > MAX_SHOWN) {
     from = Math.max(0, Math.min(startCp - CONTEXT_BEFORE, chars.length - MAX_SHOWN));
     to = Math.min(chars.length, from + MAX_SHOWN);
   }
-  const shown = chars.slice(from, to);
   const lead = from > 0 ? '…' : '';
   const tail = to < chars.length ? '…' : '';
-  const pad = chars.slice(from, startCp).map((c) => (c === '\t' ? '\t' : ' ')).join('');
-  const carets = '^'.repeat(Math.max(1, Math.min(widthCp, to - startCp)));
-  return [lead + shown.join('') + tail, (lead ? ' ' : '') + pad + carets];
+  const underlined = chars.slice(startCp, Math.min(endCp, to));
+  const width = underlined.reduce((w, c) => w + (c === '\t' ? 1 : columnWidth(c)), 0);
+  const carets = '^'.repeat(Math.max(1, width));
+  return [lead + chars.slice(from, to).join('') + tail, (lead ? ' ' : '') + padFor(chars.slice(from, startCp)) + carets];
 }
 
 function location(file: CheckedFile, offset: number): string {

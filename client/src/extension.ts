@@ -1,0 +1,81 @@
+// The VS Code side of Saltus (dist/client.js): starts the language server (dist/server.js)
+// over node IPC, shows a language status item for .saltus files, and registers the
+// commands that exist. Everything about the language itself lives in the server.
+// Invariants: only commands listed in package.json `contributes.commands` are registered
+// (tests/client.test.ts checks both directions); stale status replies are dropped.
+import * as path from 'node:path';
+import * as vscode from 'vscode';
+import { LanguageClient, State, TransportKind, type LanguageClientOptions, type ServerOptions } from 'vscode-languageclient/node';
+// The reply type of the server's `saltus/analysisSummary` request (a type only: erased).
+import type { AnalysisSummary } from '../../server/src/outputs/summary';
+
+let client: LanguageClient | undefined;
+
+export async function activate(context: vscode.ExtensionContext): Promise<void> {
+  const serverModule = context.asAbsolutePath(path.join('dist', 'server.js'));
+  const serverOptions: ServerOptions = {
+    run: { module: serverModule, transport: TransportKind.ipc },
+    debug: { module: serverModule, transport: TransportKind.ipc, options: { execArgv: ['--nolazy', '--inspect=6019'] } },
+  };
+  const clientOptions: LanguageClientOptions = {
+    documentSelector: [{ language: 'saltus' }],
+    synchronize: { configurationSection: 'saltus' },
+  };
+  const lc = new LanguageClient('saltus', 'Saltus', serverOptions, clientOptions);
+  client = lc;
+
+  const status = vscode.languages.createLanguageStatusItem('saltus.status', { language: 'saltus' });
+  status.name = 'Saltus';
+  status.command = { title: 'Restart', command: 'saltus.restartServer' };
+  let asked = 0; // the newest summary request; older replies are ignored
+  const refresh = async (): Promise<void> => {
+    const ticket = ++asked;
+    if (lc.state !== State.Running) {
+      status.text = lc.state === State.Starting ? '$(sync~spin) Saltus starting' : '$(error) Saltus stopped';
+      status.severity = lc.state === State.Starting ? vscode.LanguageStatusSeverity.Information : vscode.LanguageStatusSeverity.Error;
+      status.detail = 'language server';
+      return;
+    }
+    const doc = vscode.window.activeTextEditor?.document;
+    if (!doc || doc.languageId !== 'saltus') return;
+    try {
+      const s = await lc.sendRequest<AnalysisSummary>('saltus/analysisSummary', { uri: doc.uri.toString() });
+      if (ticket !== asked) return;
+      const n = s.neurons.length;
+      status.text = `${n} neuron${n === 1 ? '' : 's'} · ${s.errors} error${s.errors === 1 ? '' : 's'}`;
+      status.severity = s.errors > 0 ? vscode.LanguageStatusSeverity.Warning : vscode.LanguageStatusSeverity.Information;
+      status.detail = `language server running · ${s.warnings} warning${s.warnings === 1 ? '' : 's'}`;
+    } catch (e) {
+      if (ticket !== asked) return;
+      status.text = '$(warning) Saltus';
+      status.detail = `no summary: ${(e as Error).message}`;
+    }
+  };
+
+  context.subscriptions.push(
+    status,
+    lc.onDidChangeState(() => void refresh()),
+    vscode.window.onDidChangeActiveTextEditor(() => void refresh()),
+    vscode.languages.onDidChangeDiagnostics((e) => {
+      const active = vscode.window.activeTextEditor?.document.uri.toString();
+      if (active && e.uris.some((u) => u.toString() === active)) void refresh();
+    }),
+    vscode.commands.registerCommand('saltus.restartServer', async () => {
+      await (lc.state === State.Stopped ? lc.start() : lc.restart());
+    }),
+    // LEAD: register "Saltus: Show derived adjoint" (saltus.showAdjoint) here, and add it to
+    // package.json contributes.commands (tests/client.test.ts checks that the two agree).
+  );
+
+  try {
+    await lc.start();
+  } catch {
+    // The client has already shown the failure; the status item offers a restart.
+  }
+  void refresh();
+}
+
+export async function deactivate(): Promise<void> {
+  await client?.stop();
+  client = undefined;
+}

@@ -1,0 +1,124 @@
+// Renderers of a NeuronDerivation: plain text (CLI, logs), Markdown (hover, preview), LaTeX
+// (preview, papers) and the JSON contract of docs/adjoint.md (`adjointJson`).
+// Invariants: every EXPR in the JSON is `toMathjs` text (mathjs `parse` reads it; `^` for
+// powers; SI numbers, no units; parameters by name); renderers never throw and never change
+// a derivation.
+import type { Sym } from '../symbolic/sym';
+import { toMathjs } from '../symbolic/print';
+import { toLatex } from '../symbolic/latex';
+import type { NeuronDerivation } from './derive';
+import { lambdaName } from './names';
+
+export type Expr = string;
+
+export interface AdjointJsonModel {
+  name: string;
+  hash: string;
+  states: string[];
+  adjointFlow: Record<string, Expr>;
+  spike: { direction: string; gdot: Expr; phi: Expr; jump: Record<string, Expr>; record: string[]; eventBased: boolean } | null;
+  incoming: { weight: string; jump: Record<string, Expr>; weightGradient: Expr; coupling: Expr; record: string[] } | null;
+  paramGradients: Record<string, { flow: Expr; spike: Expr | null; incoming: Expr | null }>;
+  trajectory: { eventBased: boolean; adjointStates: string[]; gradientStates: string[]; bytesPerStep: number };
+  notes: string[];
+}
+export interface AdjointJson { models: AdjointJsonModel[] }
+
+const nonZero = (s: Sym | null): boolean => s !== null && !(s.k === 'num' && s.v === 0);
+const text = (s: Sym | null): Expr | null => (s ? toMathjs(s) : null);
+const record = (m: Map<string, Sym>): Record<string, Expr> => Object.fromEntries([...m].map(([k, v]) => [k, toMathjs(v)]));
+
+/** The JSON contract (docs/adjoint.md "JSON"). */
+export function adjointJson(derivations: readonly NeuronDerivation[]): AdjointJson {
+  return {
+    models: derivations.map((d) => ({
+      name: d.name, hash: d.hash, states: d.states,
+      adjointFlow: record(d.adjointFlow),
+      spike: d.spike ? { direction: d.spike.direction, gdot: toMathjs(d.spike.gdot), phi: toMathjs(d.spike.phi), jump: record(d.spike.jump),
+        record: d.spike.record, eventBased: d.spike.eventBased } : null,
+      incoming: d.incoming ? { weight: d.incoming.weight, jump: record(d.incoming.jump), weightGradient: toMathjs(d.incoming.weightGradient),
+        coupling: toMathjs(d.incoming.coupling), record: d.incoming.record } : null,
+      paramGradients: Object.fromEntries([...d.paramGradients].map(([p, g]) => [p, { flow: toMathjs(g.flow), spike: text(g.spike), incoming: text(g.incoming) }])),
+      trajectory: { ...d.trajectory },
+      notes: [...d.notes],
+    })),
+  };
+}
+
+/** Plain-text lines of one derivation (mathjs syntax). */
+export function renderText(d: NeuronDerivation): string {
+  const out: string[] = [`Adjoint system of ${d.name} (canonical costate lambda = dL/dx; lambda(T) = 0, integrated backwards)`];
+  if (!d.wellFormed) return [...out, ...d.notes].join('\n');
+  for (const [x, e] of d.adjointFlow) out.push(`  d${lambdaName(x)}/dt = ${toMathjs(e)}`);
+  if (d.spike) {
+    const s = d.spike;
+    out.push(`At a spike (lambda_X: just after; states: just before):`);
+    out.push(`  gdot = ${toMathjs(s.gdot)}`, `  phi = ${toMathjs(s.phi)}`);
+    for (const [x, e] of s.jump) out.push(`  ${lambdaName(x)}- = ${toMathjs(e)}`);
+    out.push(`  record at each spike: ${s.record.length ? s.record.join(', ') : '(nothing but the time)'}`);
+  }
+  if (d.incoming) {
+    const i = d.incoming;
+    out.push(`At a received spike (weight ${i.weight}):`);
+    for (const [x, e] of i.jump) out.push(`  ${lambdaName(x)}- = ${toMathjs(e)}`);
+    out.push(`  dL/d${i.weight} += ${toMathjs(i.weightGradient)}`, `  coupling term (summed into the sender's coupling) = ${toMathjs(i.coupling)}`);
+  }
+  for (const [p, g] of d.paramGradients) {
+    const parts = [nonZero(g.flow) ? `integral of ${toMathjs(g.flow)} dt` : '',
+      nonZero(g.spike) ? `sum over spikes of ${toMathjs(g.spike!)}` : '',
+      nonZero(g.incoming) ? `sum over received spikes of ${toMathjs(g.incoming!)}` : ''].filter((x) => x);
+    out.push(`dL/d${p} = ${parts.length ? parts.join(' + ') : '0'}`);
+  }
+  out.push(...d.notes.map((n) => `note: ${n}`));
+  return out.join('\n');
+}
+
+/** LaTeX (an `aligned` block per section) of one derivation. */
+export function renderLatex(d: NeuronDerivation): string {
+  const L = (s: Sym): string => toLatex(s);
+  const lam = (x: string): string => `\\lambda_{${x}}`;
+  const rows: string[] = [];
+  for (const [x, e] of d.adjointFlow) rows.push(`\\frac{d${lam(x)}}{dt} &= ${L(e)}`);
+  if (d.spike) {
+    rows.push(`\\dot g &= ${L(d.spike.gdot)}`, `\\phi &= ${L(d.spike.phi)}`);
+    for (const [x, e] of d.spike.jump) rows.push(`${lam(x)}^- &= ${L(e)}`);
+  }
+  if (d.incoming) {
+    for (const [x, e] of d.incoming.jump) rows.push(`${lam(x)}^- &= ${L(e)} \\quad\\text{(received spike)}`);
+    rows.push(`\\Delta \\frac{\\partial L}{\\partial ${d.incoming.weight}} &= ${L(d.incoming.weightGradient)}`);
+    rows.push(`\\text{coupling term} &= ${L(d.incoming.coupling)}`);
+  }
+  for (const [p, g] of d.paramGradients) {
+    const parts = [nonZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', nonZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
+      nonZero(g.incoming) ? `\\sum_{\\text{received}} ${L(g.incoming!)}` : ''].filter((x) => x);
+    rows.push(`\\frac{\\partial L}{\\partial ${p}} &= ${parts.length ? parts.join(' + ') : '0'}`);
+  }
+  return `\\begin{aligned}\n${rows.join(' \\\\\n')}\n\\end{aligned}`;
+}
+
+/** Markdown for the preview: every formula as inline code, with the notes. */
+export function renderMarkdown(d: NeuronDerivation): string {
+  const c = (s: Sym): string => '`' + toMathjs(s) + '`';
+  const out: string[] = [`### Adjoint system of ${d.name}`, '', 'Canonical costate `lambda = dL/dx(t)`, `lambda(T) = 0`, integrated backwards in time.', ''];
+  if (!d.wellFormed) return [...out, ...d.notes].join('\n');
+  out.push('**Adjoint flow**', '');
+  for (const [x, e] of d.adjointFlow) out.push(`- \`d${lambdaName(x)}/dt\` = ${c(e)}`);
+  if (d.spike) {
+    out.push('', '**At a spike** (lambdas just after, states just before the event)', '', `- guard slope \`gdot\` = ${c(d.spike.gdot)}`, `- \`phi\` = ${c(d.spike.phi)}`);
+    for (const [x, e] of d.spike.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
+    out.push(`- record at each spike: ${d.spike.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
+  }
+  if (d.incoming) {
+    out.push('', `**At a received spike** (weight \`${d.incoming.weight}\`)`, '');
+    for (const [x, e] of d.incoming.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
+    out.push(`- weight gradient increment = ${c(d.incoming.weightGradient)}`, `- coupling term in the sender's \`phi\` = ${c(d.incoming.coupling)}`);
+  }
+  if (d.paramGradients.size) {
+    out.push('', '**Parameter gradients**', '');
+    for (const [p, g] of d.paramGradients) {
+      out.push(`- \`${p}\`: integrand ${c(g.flow)}` + (nonZero(g.spike) ? `; per spike ${c(g.spike!)}` : '') + (nonZero(g.incoming) ? `; per received spike ${c(g.incoming!)}` : ''));
+    }
+  }
+  if (d.notes.length) out.push('', '**Notes**', '', ...d.notes.map((n) => `- ${n}`));
+  return out.join('\n');
+}

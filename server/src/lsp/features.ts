@@ -1,0 +1,144 @@
+// LSP handlers for the editor features: each converts positions, calls the pure provider
+// in outputs/ on the cached analysis, and converts the result back to LSP types.
+//
+// Invariant: every handler is wrapped by `guarded`: an exception is logged and answered
+// with the feature's empty result (null or []), never a crash; a ResponseError (a refusal
+// meant for the user, e.g. an invalid new name) passes through. Unknown or closed
+// documents give the empty result.
+import {
+  CodeActionKind, CompletionItemKind, DocumentHighlightKind, ErrorCodes, InlayHintKind, InsertTextFormat, ResponseError, SymbolKind,
+  type CodeAction, type CompletionItem, type Connection, type DocumentSymbol, type Diagnostic as LspDiagnostic,
+  type DocumentHighlight, type FoldingRange, type InlayHint, type Location, type TextEdit,
+} from 'vscode-languageserver';
+import { complete, type CompletionKind } from '../outputs/completion';
+import { quickFixes } from '../outputs/codeActions';
+import { foldingRanges } from '../outputs/folding';
+import { formatEdits } from '../outputs/format';
+import { hover, type HoverSection } from '../outputs/hover';
+import { inlayHints } from '../outputs/inlayHints';
+import { definition, highlights, references } from '../outputs/navigation';
+import { isRefusal, prepareRename, rename } from '../outputs/rename';
+import { encodeSemanticTokens, semanticTokens } from '../outputs/semanticTokens';
+import { documentSymbols, type OutlineKind, type OutlineSymbol } from '../outputs/symbols';
+import { analysisSummary } from '../outputs/summary';
+import type { Analysis } from '../pipeline';
+import { fromRange, isDiagnosticData, toLspDiagnostic, toOffset, toRange, toTextEdit } from './convert';
+import type { DocumentState } from './server';
+
+/** The pure providers the handlers call (replaceable for tests). */
+export const DEFAULT_FEATURES = {
+  hover, complete, documentSymbols, definition, references, highlights, prepareRename, rename,
+  semanticTokens, foldingRanges, formatEdits, quickFixes, inlayHints, analysisSummary,
+};
+export type Features = typeof DEFAULT_FEATURES;
+
+const COMPLETION_KIND: Record<CompletionKind, CompletionItemKind> = {
+  param: CompletionItemKind.Constant, state: CompletionItemKind.Variable, let: CompletionItemKind.Field, weight: CompletionItemKind.Property,
+  time: CompletionItemKind.Constant, keyword: CompletionItemKind.Keyword, function: CompletionItemKind.Function, unit: CompletionItemKind.Unit,
+  neuron: CompletionItemKind.Class, equation: CompletionItemKind.Snippet,
+};
+const OUTLINE_KIND: Record<OutlineKind, SymbolKind> = {
+  timestep: SymbolKind.Property, neuron: SymbolKind.Class, param: SymbolKind.Constant, state: SymbolKind.Variable, let: SymbolKind.Field,
+  equation: SymbolKind.Function, fire: SymbolKind.Event, incoming: SymbolKind.Event, connect: SymbolKind.Interface,
+};
+
+export function registerFeatures(connection: Connection, state: DocumentState, f: Features, sections: readonly HoverSection[]): void {
+  function guarded<P extends { textDocument?: { uri?: string } }, R>(name: string, empty: R, fn: (a: Analysis, uri: string, p: P) => R): (p: P) => R {
+    return (p: P) => {
+      try {
+        const uri = p?.textDocument?.uri;
+        const c = typeof uri === 'string' ? state.analysisFor(uri) : undefined;
+        if (!c || !uri) return empty;
+        return fn(c.analysis, uri, p);
+      } catch (e) {
+        if (e instanceof ResponseError) throw e;
+        state.log(`saltus: ${name} failed: ${(e as Error)?.stack ?? String(e)}`);
+        return empty;
+      }
+    };
+  }
+
+  connection.onHover(guarded('hover', null, (a, _uri, p) => {
+    const h = f.hover(a, toOffset(a, p.position), sections);
+    return h ? { contents: { kind: 'markdown' as const, value: h.markdown }, range: toRange(a, h.range) } : null;
+  }));
+
+  connection.onCompletion(guarded('completion', [] as CompletionItem[], (a, _uri, p) =>
+    f.complete(a, toOffset(a, p.position)).map((c): CompletionItem => ({
+      label: c.label,
+      kind: COMPLETION_KIND[c.kind],
+      ...(c.detail ? { detail: c.detail } : {}),
+      ...(c.documentation ? { documentation: { kind: 'markdown' as const, value: c.documentation } } : {}),
+      sortText: `${String(c.rank).padStart(3, '0')}_${c.label}`,
+      filterText: c.label,
+      textEdit: { range: toRange(a, c.replace), newText: c.snippet ?? c.label },
+      insertTextFormat: c.snippet ? InsertTextFormat.Snippet : InsertTextFormat.PlainText,
+    }))));
+
+  const outline = (a: Analysis, s: OutlineSymbol): DocumentSymbol => ({
+    name: s.name, kind: OUTLINE_KIND[s.kind], ...(s.detail ? { detail: s.detail } : {}),
+    range: toRange(a, s.range), selectionRange: toRange(a, s.selectionRange), children: s.children.map((c) => outline(a, c)),
+  });
+  connection.onDocumentSymbol(guarded('document symbols', [] as DocumentSymbol[], (a) => f.documentSymbols(a).map((s) => outline(a, s))));
+
+  connection.onDefinition(guarded('definition', null, (a, uri, p) => {
+    const r = f.definition(a, toOffset(a, p.position));
+    return r ? { uri, range: toRange(a, r) } : null;
+  }));
+  connection.onReferences(guarded('references', [] as Location[], (a, uri, p) =>
+    f.references(a, toOffset(a, p.position), p.context?.includeDeclaration !== false).map((r) => ({ uri, range: toRange(a, r) }))));
+  connection.onDocumentHighlight(guarded('highlights', [] as DocumentHighlight[], (a, _uri, p) =>
+    f.highlights(a, toOffset(a, p.position)).map((h) => ({ range: toRange(a, h.range), kind: h.kind === 'write' ? DocumentHighlightKind.Write : DocumentHighlightKind.Read }))));
+
+  connection.onPrepareRename(guarded('prepare rename', null, (a, _uri, p) => {
+    const r = f.prepareRename(a, toOffset(a, p.position));
+    if (isRefusal(r)) throw new ResponseError(ErrorCodes.InvalidRequest, r.error);
+    return { range: toRange(a, r.range), placeholder: r.placeholder };
+  }));
+  connection.onRenameRequest(guarded('rename', null, (a, uri, p) => {
+    const r = f.rename(a, toOffset(a, p.position), p.newName);
+    if (isRefusal(r)) throw new ResponseError(ErrorCodes.InvalidRequest, r.error);
+    return { changes: { [uri]: r.edits.map((e) => toTextEdit(a, e)) } };
+  }));
+
+  connection.languages.semanticTokens.on(guarded('semantic tokens', { data: [] as number[] }, (a) => ({ data: encodeSemanticTokens(a, f.semanticTokens(a)) })));
+
+  connection.onFoldingRanges(guarded('folding', [] as FoldingRange[], (a) =>
+    f.foldingRanges(a).map((r) => ({ startLine: r.startLine, endLine: r.endLine, ...(r.kind ? { kind: r.kind } : {}) }))));
+
+  connection.onDocumentFormatting(guarded('formatting', [] as TextEdit[], (a) => {
+    const edits = f.formatEdits(a.text);
+    if (!edits) { state.log('saltus: not formatted: the file has syntax errors (fix them first)'); return []; }
+    return edits.map((e) => toTextEdit(a, e));
+  }));
+
+  connection.onCodeAction(guarded('code actions', [] as CodeAction[], (a, uri, p) => {
+    const actions: CodeAction[] = [];
+    const given = (p.context?.diagnostics ?? []).filter((d) => d.source === 'saltus' && isDiagnosticData(d.data));
+    if (given.length > 0) {
+      for (const d of given) {
+        if (!isDiagnosticData(d.data)) continue;
+        for (const fix of d.data.fixes) actions.push(action(fix.title, fix.preferred, d, { [uri]: fix.edits }));
+      }
+      return actions;
+    }
+    const c = state.analysisFor(uri)!;
+    for (const q of f.quickFixes(a, fromRange(a, p.range), state.diagnosticsFor(c))) {
+      actions.push(action(q.title, q.preferred, toLspDiagnostic(a, q.diagnostic, uri), { [uri]: q.fix.edits.map((e) => toTextEdit(a, e)) }));
+    }
+    return actions;
+  }));
+
+  connection.languages.inlayHint.on(guarded('inlay hints', [] as InlayHint[], (a, _uri, p) =>
+    f.inlayHints(a, p.range ? fromRange(a, p.range) : undefined).map((h) => ({
+      position: a.lines.positionAt(h.offset), label: h.label, kind: InlayHintKind.Type, paddingLeft: true, tooltip: h.tooltip,
+    }))));
+
+  // { uri } -> AnalysisSummary, or null for a document that is not open.
+  const summary = guarded('analysis summary', null, (a, uri) => f.analysisSummary(a, state.diagnosticsFor(state.analysisFor(uri)!)));
+  connection.onRequest('saltus/analysisSummary', (p: { uri?: string } | undefined) => summary({ textDocument: { uri: p?.uri } }));
+}
+
+function action(title: string, preferred: boolean, diagnostic: LspDiagnostic, changes: Record<string, TextEdit[]>): CodeAction {
+  return { title, kind: CodeActionKind.QuickFix, diagnostics: [diagnostic], isPreferred: preferred, edit: { changes } };
+}

@@ -1,0 +1,170 @@
+// The Saltus language server: document sync, diagnostics, settings, and the wiring of the
+// feature handlers (features.ts). `startServer(connection)` sets everything up and listens.
+//
+// Diagnostics: every open/change is analysed without an artificial delay; when several
+// changes are queued, only the newest text is analysed (coalesced with setImmediate: a
+// check runs once no newer version arrived during the last event-loop turn). The fast
+// diagnostics are published with the document version; the slow derived checks run on a
+// later turn and are published merged, only if that version is still current.
+// Invariants: no handler throws to the connection (features.ts wraps each); results for
+// unknown or closed documents are null/empty; diagnostics are cleared on close.
+import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigurationNotification, type Connection, type InitializeResult } from 'vscode-languageserver';
+import { TextDocument } from 'vscode-languageserver-textdocument';
+import { analyse, derivedDiagnostics, type Analysis, type DerivedOptions } from '../pipeline';
+import type { Diagnostic } from '../outputs/diagnostic';
+import type { HoverSection } from '../outputs/hover';
+import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
+import { toLspDiagnostic } from './convert';
+import { DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
+import { DEFAULT_FEATURES, registerFeatures, type Features } from './features';
+
+export interface ServerOptions {
+  /** Derived hover sections (step analysis, adjoint), appended after the basic hover. */
+  hoverSections?: readonly HoverSection[];
+  /** Replaces feature implementations (tests inject failing ones to check the guards). */
+  features?: Partial<Features>;
+  /** The slow checks; defaults to the pipeline's derivedDiagnostics. */
+  derived?: (a: Analysis, opts: DerivedOptions) => Diagnostic[];
+}
+
+/** The newest analysis of one document version, with its derived diagnostics once computed. */
+export interface CachedAnalysis { uri: string; version: number; analysis: Analysis; derived?: Diagnostic[] }
+
+export interface DocumentState {
+  analysisFor(uri: string): CachedAnalysis | undefined;
+  /** Fast and (when computed) derived diagnostics of the current version. */
+  diagnosticsFor(c: CachedAnalysis): Diagnostic[];
+  log(message: string): void;
+}
+
+export function startServer(connection: Connection, options: ServerOptions = {}): void {
+  const documents = new TextDocuments(TextDocument);
+  const cache = new Map<string, CachedAnalysis>();
+  const pending = new Map<string, { seen?: number }>();
+  let settings: SaltusSettings = DEFAULT_SETTINGS;
+  let canReadConfiguration = false;
+  let canRegisterConfiguration = false;
+  const derive = options.derived ?? derivedDiagnostics;
+  const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
+
+  const state: DocumentState = {
+    analysisFor(uri) {
+      const doc = typeof uri === 'string' ? documents.get(uri) : undefined;
+      if (!doc) return undefined;
+      const hit = cache.get(uri);
+      if (hit && hit.version === doc.version) return hit;
+      const fresh: CachedAnalysis = { uri, version: doc.version, analysis: analyse(doc.getText()) };
+      cache.set(uri, fresh);
+      return fresh;
+    },
+    diagnosticsFor(c) {
+      if (!c.derived?.length) return c.analysis.diagnostics;
+      return [...c.analysis.diagnostics, ...c.derived].sort((x, y) => x.range.start - y.range.start || x.range.end - y.range.end);
+    },
+    log,
+  };
+
+  const publish = (c: CachedAnalysis): void => {
+    const diagnostics = state.diagnosticsFor(c).map((d) => toLspDiagnostic(c.analysis, d, c.uri));
+    void connection.sendDiagnostics({ uri: c.uri, version: c.version, diagnostics });
+  };
+
+  const validate = (uri: string): void => {
+    try {
+      const c = state.analysisFor(uri);
+      if (!c) return;
+      publish(c);
+      setImmediate(() => deriveLater(uri, c.version));
+    } catch (e) {
+      log(`saltus: checking ${uri} failed: ${(e as Error)?.stack ?? String(e)}`);
+    }
+  };
+
+  const deriveLater = (uri: string, version: number): void => {
+    try {
+      const c = state.analysisFor(uri);
+      if (!c || c.version !== version || c.derived) return;
+      const opts: DerivedOptions = settings.timestepSI !== undefined ? { timestepSI: settings.timestepSI } : {};
+      c.derived = derive(c.analysis, opts);
+      if (documents.get(uri)?.version === version && c.derived.length > 0) publish(c);
+    } catch (e) {
+      log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`);
+    }
+  };
+
+  /** Checks `uri` once no newer version arrived during the last turn (coalesces queued edits). */
+  const schedule = (uri: string): void => {
+    if (pending.has(uri)) return;
+    const entry: { seen?: number } = {};
+    pending.set(uri, entry);
+    const tick = (): void => {
+      const doc = documents.get(uri);
+      if (!doc || pending.get(uri) !== entry) { if (pending.get(uri) === entry) pending.delete(uri); return; }
+      if (entry.seen !== doc.version) { entry.seen = doc.version; setImmediate(tick); return; }
+      pending.delete(uri);
+      validate(uri);
+    };
+    setImmediate(tick);
+  };
+
+  const revalidateAll = (): void => {
+    for (const c of cache.values()) delete c.derived;
+    for (const doc of documents.all()) schedule(doc.uri);
+  };
+
+  const loadSettings = async (pushed?: unknown): Promise<void> => {
+    try {
+      const raw = canReadConfiguration ? await connection.workspace.getConfiguration({ section: 'saltus' })
+        : (pushed as { saltus?: unknown } | undefined)?.saltus;
+      settings = readSettings(raw);
+      for (const p of settings.problems) log(`saltus: ${p}`);
+    } catch (e) {
+      log(`saltus: reading settings failed: ${(e as Error)?.message ?? String(e)}`);
+    }
+    revalidateAll();
+  };
+
+  connection.onInitialize((params): InitializeResult => {
+    const caps = params.capabilities;
+    canReadConfiguration = caps.workspace?.configuration === true;
+    canRegisterConfiguration = caps.workspace?.didChangeConfiguration?.dynamicRegistration === true;
+    return {
+      capabilities: {
+        textDocumentSync: { openClose: true, change: TextDocumentSyncKind.Incremental, save: { includeText: false } },
+        hoverProvider: true,
+        completionProvider: { triggerCharacters: ['['], resolveProvider: false },
+        documentSymbolProvider: true,
+        definitionProvider: true,
+        referencesProvider: true,
+        documentHighlightProvider: true,
+        renameProvider: { prepareProvider: true },
+        semanticTokensProvider: { legend: { tokenTypes: [...SEMANTIC_TOKEN_TYPES], tokenModifiers: [...SEMANTIC_TOKEN_MODIFIERS] }, full: true, range: false },
+        foldingRangeProvider: true,
+        documentFormattingProvider: true,
+        codeActionProvider: { codeActionKinds: [CodeActionKind.QuickFix] },
+        inlayHintProvider: true,
+      },
+      serverInfo: { name: 'saltus' },
+    };
+  });
+
+  connection.onInitialized(() => {
+    if (canRegisterConfiguration) void connection.client.register(DidChangeConfigurationNotification.type, { section: 'saltus' }).catch(() => undefined);
+    if (canReadConfiguration) void loadSettings();
+  });
+  connection.onDidChangeConfiguration((p) => { void loadSettings(p.settings); });
+
+  documents.onDidOpen((e) => schedule(e.document.uri));
+  documents.onDidChangeContent((e) => { if (settings.diagnosticsWhen === 'typing') schedule(e.document.uri); });
+  documents.onDidSave((e) => schedule(e.document.uri));
+  documents.onDidClose((e) => {
+    cache.delete(e.document.uri);
+    pending.delete(e.document.uri);
+    void connection.sendDiagnostics({ uri: e.document.uri, diagnostics: [] });
+  });
+  connection.onShutdown(() => { pending.clear(); });
+
+  registerFeatures(connection, state, { ...DEFAULT_FEATURES, ...options.features }, options.hoverSections ?? []);
+  documents.listen(connection);
+  connection.listen();
+}

@@ -1,0 +1,60 @@
+// Quick fixes: the fixes a diagnostic carries (from the resolver and analyses), plus fixes
+// built here for some diagnostic codes (FIX_BUILDERS), offered for the diagnostics that
+// overlap the requested range.
+//
+// Invariant: every edit of a fix lies inside the text it was computed for; applying a
+// fix's edits (they never overlap) removes the problem its diagnostic reports.
+import type { Analysis } from '../pipeline';
+import type * as A from '../syntax/ast';
+import type { Diagnostic, DiagnosticCode, Fix } from './diagnostic';
+import { overlaps } from './locate';
+
+export interface QuickFix { title: string; diagnostic: Diagnostic; fix: Fix; preferred: boolean }
+
+type FixBuilder = (a: Analysis, d: Diagnostic) => Fix[];
+
+/** Fixes that the diagnostics themselves do not carry, keyed by diagnostic code. */
+export const FIX_BUILDERS: Partial<Record<DiagnosticCode, FixBuilder>> = {
+  'unused-declaration': removeUnusedDeclaration,
+};
+
+/** All fixes for one diagnostic: its own first, then the ones built for its code. */
+export function fixesFor(a: Analysis, d: Diagnostic): Fix[] {
+  const own = d.fixes ?? [];
+  const built = FIX_BUILDERS[d.code]?.(a, d) ?? [];
+  return [...own, ...built.filter((b) => !own.some((o) => o.title === b.title))];
+}
+
+export function quickFixes(a: Analysis, range: A.Range, diagnostics: readonly Diagnostic[] = a.diagnostics): QuickFix[] {
+  const out: QuickFix[] = [];
+  for (const d of diagnostics) {
+    if (!overlaps(d.range, range)) continue;
+    for (const fix of fixesFor(a, d)) out.push({ title: fix.title, diagnostic: d, fix, preferred: fix.preferred === true });
+  }
+  return out;
+}
+
+/** Applies non-overlapping edits (offsets into `text`) from the end backwards. */
+export function applyEdits(text: string, edits: readonly { range: A.Range; newText: string }[]): string {
+  const sorted = [...edits].sort((x, y) => y.range.start - x.range.start || y.range.end - x.range.end);
+  let out = text;
+  for (const e of sorted) out = out.slice(0, e.range.start) + e.newText + out.slice(e.range.end);
+  return out;
+}
+
+/** `param x = ...` / `let x = ...` never used: delete its line (or just it, when the line holds more). */
+function removeUnusedDeclaration(a: Analysis, d: Diagnostic): Fix[] {
+  const sym = a.model.symbols.find((s) => (s.kind === 'param' || s.kind === 'let') && s.nameRange.start === d.range.start);
+  if (!sym) return [];
+  let { start, end } = sym.declRange;
+  const lineStart = a.text.lastIndexOf('\n', start - 1) + 1;
+  let lineEnd = a.text.indexOf('\n', end);
+  if (lineEnd < 0) lineEnd = a.text.length;
+  const before = a.text.slice(lineStart, start), after = a.text.slice(end, lineEnd);
+  const afterCode = after.replace(/#.*$/, '');
+  if (before.trim() === '' && afterCode.trim() === '' && !after.includes('#')) {
+    start = lineStart;
+    end = Math.min(a.text.length, lineEnd + 1);
+  }
+  return [{ title: `Remove the unused ${sym.kind} '${sym.name}'`, edits: [{ range: { start, end }, newText: '' }] }];
+}

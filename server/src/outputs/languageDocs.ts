@@ -1,0 +1,43 @@
+// One-line explanations of the language's keywords and built-in functions, in the
+// project's own words (docs/language.md is the long form). Shared by hover and completion.
+//
+// Invariant: every entry of KEYWORDS (syntax/tokens.ts) and of FUNCTION_NAMES
+// (symbolic/sym.ts) has an explanation here (checked by the tests).
+import type { FnName } from '../symbolic/sym';
+
+export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
+  neuron: 'Declares a neuron model: its parameters, states, flow equations, at most one firing transition and what an incoming spike does. `neuron NAME "doc" { ... }`',
+  param: 'A constant of the model, with its unit: `param NAME = VALUE trainable? "doc"?`. `trainable` asks for its gradient.',
+  state: 'A state variable: it follows its `dX/dt` equation between events and may jump at events. `state NAME [UNIT]? (= VALUE)? "doc"?`; the initial value is 0 when omitted.',
+  let: 'A named sub-expression, substituted wherever it is used; it holds no state of its own. `let NAME = EXPR "doc"?`',
+  fire: 'The spike-emitting transition: `fire when LHS crosses RHS up|down|either { jumps }`. The neuron spikes where the guard LHS − RHS reaches 0 in that direction; then the jumps apply.',
+  when: 'Part of `fire when LHS crosses RHS ...`: introduces the left side of the guard.',
+  crosses: 'Separates the two sides of the guard in `fire when LHS crosses RHS ...`; the guard is LHS − RHS and must be a single unit.',
+  up: 'Crossing direction: the guard LHS − RHS reaches 0 while increasing (its time derivative is positive).',
+  down: 'Crossing direction: the guard LHS − RHS reaches 0 while decreasing (its time derivative is negative).',
+  either: 'Crossing direction: the guard LHS − RHS reaches 0 in either direction.',
+  incoming: 'What a presynaptic spike does to this neuron: `incoming NAME [UNIT]? { jumps }`. NAME is the synaptic weight, which is always trainable.',
+  connect: 'A projection: `connect A -> B` sends the spikes of A to the `incoming` block of B. Without any `connect`, a model that fires and receives projects onto itself.',
+  timestep: 'The time step used by the step analysis and generated code, e.g. `timestep 0.1 [ms]`; the `saltus.timestep` setting can override it.',
+  trainable: 'Marks a parameter whose gradient the derived adjoint equations compute.',
+  t: 'The time. It may appear in flows and guards, not in parameter values or initial values.',
+};
+
+export interface FunctionDoc { signature: string; definition: string; units: string; smooth: boolean }
+
+export const FUNCTION_DOCS: Readonly<Record<FnName, FunctionDoc>> = {
+  exp: { signature: 'exp(x)', definition: 'exp(x) = e^x', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
+  log: { signature: 'log(x)', definition: 'log(x) = ln x, the natural logarithm (x > 0)', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
+  sqrt: { signature: 'sqrt(x)', definition: 'sqrt(x) = x^(1/2) (x ≥ 0)', units: 'The result has half the unit exponents of x.', smooth: true },
+  tanh: { signature: 'tanh(x)', definition: 'tanh(x) = (e^x − e^−x) / (e^x + e^−x)', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
+  sigmoid: { signature: 'sigmoid(x)', definition: 'sigmoid(x) = 1 / (1 + e^−x)', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
+  abs: { signature: 'abs(x)', definition: 'abs(x) = |x|; not differentiable at x = 0', units: 'The result has the unit of x.', smooth: false },
+  min: { signature: 'min(a, b, ...)', definition: 'the smallest argument (2 to 8); not differentiable where two arguments are equal', units: 'All arguments share one unit, which the result has.', smooth: false },
+  max: { signature: 'max(a, b, ...)', definition: 'the largest argument (2 to 8); not differentiable where two arguments are equal', units: 'All arguments share one unit, which the result has.', smooth: false },
+  pow: { signature: 'pow(x, y)', definition: 'pow(x, y) = x^y', units: 'y must be dimensionless, and a constant when x has a unit.', smooth: true },
+};
+
+export function functionMarkdown(name: FnName): string {
+  const d = FUNCTION_DOCS[name];
+  return ['```saltus', d.signature, '```', `**built-in function** — ${d.definition}`, '', d.units].join('\n');
+}

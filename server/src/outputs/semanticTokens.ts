@@ -1,0 +1,72 @@
+// Semantic highlighting: one classified range per token, using standard LSP token types
+// only (keyword, number, string, comment, operator, function, parameter, variable,
+// property, type) and the standard modifiers `declaration` and `readonly`:
+//   params -> parameter, states -> variable, lets -> variable+readonly,
+//   the incoming weight -> property, neuron names -> type, built-in calls -> function,
+//   `dX/dt` -> variable (the state it differentiates), `t` -> keyword.
+// Unit text inside brackets is left to the TextMate grammar. `encodeSemanticTokens` writes
+// the LSP relative encoding (5 integers per token) with the LineIndex of the analysis.
+//
+// Invariant: tokens are sorted, disjoint and single-line (no Saltus token spans lines).
+import type { Analysis } from '../pipeline';
+import type * as A from '../syntax/ast';
+import type { SymbolKind } from '../model/types';
+import { FUNCTION_NAMES } from '../symbolic/sym';
+import { tokenRange } from './locate';
+
+export const SEMANTIC_TOKEN_TYPES = ['keyword', 'number', 'string', 'comment', 'operator', 'function', 'parameter', 'variable', 'property', 'type'] as const;
+export const SEMANTIC_TOKEN_MODIFIERS = ['declaration', 'readonly'] as const;
+export type SemanticType = (typeof SEMANTIC_TOKEN_TYPES)[number];
+export type SemanticModifier = (typeof SEMANTIC_TOKEN_MODIFIERS)[number];
+
+export interface SemanticToken { range: A.Range; type: SemanticType; modifiers: SemanticModifier[] }
+
+const OPERATORS = new Set(['Assign', 'Arrow', 'Equals', 'Plus', 'Minus', 'Star', 'Slash', 'Caret']);
+const SYMBOL_TYPE: Record<SymbolKind, SemanticType> = { param: 'parameter', state: 'variable', let: 'variable', weight: 'property', neuron: 'type' };
+
+export function semanticTokens(a: Analysis): SemanticToken[] {
+  const kinds = new Map<number, { kind: SymbolKind; declaration: boolean }>();
+  for (const s of a.model.symbols) kinds.set(s.nameRange.start, { kind: s.kind, declaration: true });
+  for (const r of a.model.references) if (!kinds.has(r.range.start)) kinds.set(r.range.start, { kind: r.target.kind, declaration: false });
+  const out: SemanticToken[] = [];
+  const tokens = a.parse.tokens;
+  for (let i = 0; i < tokens.length; i++) {
+    const t = tokens[i]!;
+    const type = t.tokenType.name;
+    const range = tokenRange(t);
+    if (type.startsWith('Kw_')) out.push({ range, type: 'keyword', modifiers: [] });
+    else if (type === 'NumberLiteral') out.push({ range, type: 'number', modifiers: [] });
+    else if (type === 'StringLiteral' || type === 'UnitString') out.push({ range, type: 'string', modifiers: [] });
+    else if (OPERATORS.has(type)) out.push({ range, type: 'operator', modifiers: [] });
+    else if (type === 'Derivative') out.push({ range, type: 'variable', modifiers: [] });
+    else if (type === 'Identifier') {
+      const k = kinds.get(range.start);
+      if (k) {
+        const modifiers: SemanticModifier[] = [];
+        if (k.declaration) modifiers.push('declaration');
+        if (k.kind === 'let') modifiers.push('readonly');
+        out.push({ range, type: SYMBOL_TYPE[k.kind], modifiers });
+      } else if ((FUNCTION_NAMES as readonly string[]).includes(t.image) && tokens[i + 1]?.tokenType.name === 'LParen') {
+        out.push({ range, type: 'function', modifiers: [] });
+      }
+    }
+  }
+  for (const c of a.parse.file.comments) out.push({ range: c.range, type: 'comment', modifiers: [] });
+  return out.sort((x, y) => x.range.start - y.range.start);
+}
+
+/** The LSP encoding: per token [deltaLine, deltaStartChar, length, typeIndex, modifierBits]. */
+export function encodeSemanticTokens(a: Analysis, tokens: readonly SemanticToken[]): number[] {
+  const data: number[] = [];
+  let prevLine = 0, prevChar = 0;
+  for (const t of tokens) {
+    const p = a.lines.positionAt(t.range.start);
+    const length = t.range.end - t.range.start;
+    if (length <= 0) continue;
+    let bits = 0;
+    for (const m of t.modifiers) bits |= 1 << SEMANTIC_TOKEN_MODIFIERS.indexOf(m);
+    data.push(p.line - prevLine, p.line === prevLine ? p.character - prevChar : p.character, length, SEMANTIC_TOKEN_TYPES.indexOf(t.type), bits);
+    prevLine = p.line; prevChar = p.character;
+  }
+  return data;
+}

@@ -1,0 +1,207 @@
+// Backward (adjoint) pass of the hybrid simulation: integrates the DERIVED adjoint flow of
+// every neuron backwards from lambda(T) = 0 (DOPRI5, forward state from the forward pass's
+// dense output), applies the DERIVED jumps at every recorded event in reverse order, and
+// accumulates the weight, input-weight and parameter gradients. Every formula comes from a
+// NeuronDerivation (adjoint/derive.ts) through symbolic `compile`; nothing here knows a model.
+//
+// Invariants: never throws for bad input (errors come back in `errors`); at an event the
+// sender's and targets' new lambdas are computed from the post-event lambdas and pre-event
+// states before any is written; gradients are dL/d(value) of the simulated loss.
+import type { ResolvedNeuron } from '../model/types';
+import { type Compiled, compile } from '../symbolic/evaluate';
+import { type Sym, ZERO } from '../symbolic/sym';
+import type { NeuronDerivation } from '../adjoint/derive';
+import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../adjoint/names';
+import { type IntegrateOptions, Stepper, integrate } from './dopri';
+import { type InputTrain, type Loss, type Network, stateScales } from './network';
+import { type Instance, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';
+
+export interface BackwardOptions {
+  loss?: Loss;
+  /** The derivation used for each model (e.g. adjoint/cache.ts `derivationFor`). */
+  derivation: (model: ResolvedNeuron) => NeuronDerivation;
+  rtol?: number;
+}
+
+export interface Gradients {
+  errors: string[];
+  /** dL/dw per synapse, in network order. */
+  weights: number[];
+  /** dL/dw per input train. */
+  inputWeights: number[];
+  /** dL/dp per neuron instance, for the derivation's gradientParams. */
+  params: Record<string, number>[];
+  /** dL/dx(0): the costate at t = 0, in the network layout. */
+  initial: Float64Array;
+}
+
+/** A derivation compiled over [states, lambdas, params, weight?, t, phi, coupling, dlp_dt, lV_pre, lV_post, dlV_dX...]. */
+interface CompiledAdjoint {
+  names: string[];
+  flow: Compiled[];
+  paramFlow: Compiled[];
+  phi?: Compiled;
+  jump?: Compiled[];
+  paramSpike?: Compiled[];
+  inJump?: Compiled[];
+  weightGradient?: Compiled;
+  coupling?: Compiled;
+  paramIncoming?: Compiled[];
+  gradientParams: string[];
+}
+
+function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjoint {
+  const states = m.states.map((s) => s.name);
+  const names = [...states, ...states.map(lambdaName), ...m.params.map((p) => p.name), ...(m.incoming ? [m.incoming.weight] : []),
+    TIME, PHI, COUPLING, DLP_DT, LV_PRE, LV_POST, ...states.map(lossPartialName)];
+  const c = (s: Sym | null | undefined): Compiled => compile(s ?? ZERO, names);
+  const ps = d.gradientParams.map((p) => d.paramGradients.get(p)!);
+  const out: CompiledAdjoint = { names, gradientParams: d.gradientParams,
+    flow: states.map((x) => c(d.adjointFlow.get(x))), paramFlow: ps.map((g) => c(g.flow)) };
+  if (d.spike) {
+    out.phi = c(d.spike.phi);
+    out.jump = states.map((x) => c(d.spike!.jump.get(x)));
+    out.paramSpike = ps.map((g) => c(g.spike));
+  }
+  if (d.incoming) {
+    out.inJump = states.map((x) => c(d.incoming!.jump.get(x)));
+    out.weightGradient = c(d.incoming.weightGradient);
+    out.coupling = c(d.incoming.coupling);
+    out.paramIncoming = ps.map((g) => c(g.incoming));
+  }
+  return out;
+}
+
+/** Per instance: compiled adjoint, its values buffer, where its accumulators live. */
+interface AdjointInstance { a: CompiledAdjoint; buf: Float64Array; nStates: number; nParams: number; acc: number; fwd: Instance }
+
+export function backward(net: Network, traj: Trajectory, inputs: readonly InputTrain[], options: BackwardOptions): Gradients {
+  const layout = traj.layout;
+  const errors: string[] = [...traj.errors];
+  const result: Gradients = { errors, weights: net.synapses.map(() => 0), inputWeights: inputs.map(() => 0),
+    params: net.neurons.map(() => ({})), initial: new Float64Array(layout.total) };
+  if (errors.length) return result;
+  let ai: AdjointInstance[];
+  try {
+    const fwd = instancesOf(net, layout, options.loss, errors);
+    const compiled = new Map<ResolvedNeuron, CompiledAdjoint>();
+    let acc = layout.total;
+    ai = net.neurons.map((nn, i) => {
+      let a = compiled.get(nn.model);
+      if (!a) {
+        const d = options.derivation(nn.model);
+        if (!d.wellFormed || d.notes.some((n) => n.startsWith('internal error'))) errors.push(`no derivation for ${nn.model.name}`);
+        a = compileDerivation(nn.model, d);
+        compiled.set(nn.model, a);
+      }
+      const nStates = nn.model.states.length;
+      const buf = new Float64Array(a.names.length);
+      buf.set(fwd[i]!.vals.subarray(nStates, nStates + nn.model.params.length), 2 * nStates);
+      const out: AdjointInstance = { a, buf, nStates, nParams: nn.model.params.length, acc, fwd: fwd[i]! };
+      acc += a.gradientParams.length;
+      return out;
+    });
+  } catch (e) {
+    errors.push((e as Error).message);
+    return result;
+  }
+  if (errors.length) return result;
+  const nZ = ai.length ? ai[ai.length - 1]!.acc + ai[ai.length - 1]!.a.gradientParams.length : layout.total;
+  const slot = (x: AdjointInstance, name: string): number => x.a.names.indexOf(name);
+  const special = ai.map((x) => ({ t: slot(x, TIME), phi: slot(x, PHI), coupling: slot(x, COUPLING), dlp: slot(x, DLP_DT),
+    pre: slot(x, LV_PRE), post: slot(x, LV_POST), w: x.fwd.c.model.incoming ? slot(x, x.fwd.c.model.incoming.weight) : -1 }));
+
+  /** Fill instance i's buffer from the network state x, costates z and time t (dlV_dX too). */
+  const fill = (i: number, x: Float64Array, z: Float64Array, t: number): Float64Array => {
+    const it = ai[i]!, n = it.nStates, off = layout.offset[i]!;
+    for (let j = 0; j < n; j++) { it.buf[j] = x[off + j]!; it.buf[n + j] = z[off + j]!; }
+    it.buf[special[i]!.t] = t;
+    const grad = it.fwd.loss.gradient;
+    const v = load(it.fwd, x, t);
+    const base = it.buf.length - n;
+    for (let j = 0; j < n; j++) it.buf[base + j] = grad ? grad[j]!(v) : 0;
+    return it.buf;
+  };
+
+  const x = new Float64Array(layout.total);
+  let iv = traj.intervals[0]!;
+  const hint = { seg: 0 };
+  const rhs = (t: number, z: Float64Array, dz: Float64Array): void => {
+    stateInInterval(iv, t, x, hint);
+    ai.forEach((it, i) => {
+      const b = fill(i, x, z, t);
+      const off = layout.offset[i]!;
+      for (let j = 0; j < it.nStates; j++) dz[off + j] = it.a.flow[j]!(b);
+      it.a.paramFlow.forEach((f, k) => { dz[it.acc + k] = -f(b); });
+    });
+  };
+  const st = new Stepper(nZ, rhs);
+  // Absolute tolerances: lambda_X ~ L / scale(X) and dL/dp ~ L / |p|, with L the simulated loss.
+  const rtol = options.rtol ?? 1e-10;
+  const lossScale = Math.max(Math.abs(traj.loss), 1e-300);
+  const atol = new Float64Array(nZ);
+  ai.forEach((it, i) => {
+    stateScales(net.neurons[i]!).forEach((sc, j) => { atol[layout.offset[i]! + j] = rtol * lossScale / sc; });
+    it.a.gradientParams.forEach((p, k) => {
+      const v = Math.abs(it.buf[it.a.names.indexOf(p)]!);
+      atol[it.acc + k] = rtol * lossScale / (v > 0 ? v : 1);
+    });
+  });
+  const opts: IntegrateOptions = { rtol, atol, typical: new Float64Array(nZ), floorFraction: 1e-3,
+    maxStep: traj.duration / 50, h: traj.duration / 500, maxSteps: 2_000_000 };
+  let z: Float64Array = new Float64Array(nZ);
+  const lossAt = (state: Float64Array, t: number): number =>
+    ai.reduce((s, it) => s + (it.fwd.loss.integrand ? it.fwd.loss.integrand(load(it.fwd, state, t)) : 0), 0);
+
+  /** Target side of one delivered spike: new lambdas, weight gradient, parameter increments. */
+  const receive = (m: number, w: number, e: { pre: Float64Array; time: number }, zPlus: Float64Array, zNew: Float64Array): number => {
+    const it = ai[m]!, b = fill(m, e.pre, zPlus, e.time), off = layout.offset[m]!;
+    b[special[m]!.w] = w;
+    setWeight(it.fwd, w);
+    for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.inJump![j]!(b);
+    it.a.paramIncoming!.forEach((f, k) => { zNew[it.acc + k] = zNew[it.acc + k]! + f(b); });
+    return it.a.weightGradient!(b);
+  };
+
+  for (let k = traj.intervals.length - 1; k >= 0; k--) {
+    iv = traj.intervals[k]!;
+    hint.seg = iv.segments.length - 1;
+    if (iv.t1 > iv.t0 && iv.segments.length > 0) {
+      const res = integrate(st, iv.t1, z, iv.t0, opts, undefined, () => {});
+      if (res.error) { errors.push(`backward integration failed: ${res.error}`); return result; }
+      z = res.y;
+    }
+    if (k === 0) break;
+    const e = traj.events[k - 1]!;
+    const zPlus = Float64Array.from(z);
+    const zNew = Float64Array.from(z);
+    if (e.kind === 'input') {
+      result.inputWeights[e.train!]! += receive(e.neuron, inputs[e.train!]!.weight, e, zPlus, zNew);
+    } else {
+      const n = e.neuron, sp = special[n]!;
+      let coupling = 0;
+      net.synapses.forEach((s, si) => {
+        if (s.from !== n) return;
+        const it = ai[s.to]!, b = fill(s.to, e.pre, zPlus, e.time);
+        b[special[s.to]!.w] = s.weight;
+        coupling += it.a.coupling!(b);
+        result.weights[si]! += receive(s.to, s.weight, e, zPlus, zNew);
+      });
+      const it = ai[n]!;
+      const b = fill(n, e.pre, zPlus, e.time);
+      const v = load(it.fwd, e.pre, e.time);
+      b[sp.dlp] = it.fwd.loss.perSpikeRate ? it.fwd.loss.perSpikeRate(v) : 0;
+      b[sp.pre] = lossAt(e.pre, e.time);
+      b[sp.post] = lossAt(e.post, e.time);
+      b[sp.coupling] = coupling;
+      b[sp.phi] = it.a.phi!(b);
+      const off = layout.offset[n]!;
+      for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
+      it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
+    }
+    z = zNew;
+  }
+  result.initial = z.slice(0, layout.total);
+  ai.forEach((it, i) => { it.a.gradientParams.forEach((p, k) => { result.params[i]![p] = z[it.acc + k]!; }); });
+  return result;
+}

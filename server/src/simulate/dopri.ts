@@ -1,0 +1,233 @@
+// Dormand-Prince 5(4) integration with dense output and exact event location, for the
+// forward and backward passes of the hybrid simulation (Hairer, Norsett & Wanner, Solving
+// ODEs I, 2nd ed., Sec. II.5-II.6: the DOPRI5 tableau and its 4th-order continuous
+// extension `contd5`).
+//
+// Events: a guard that changes sign over an accepted step (in its declared direction) is
+// located by the Illinois variant of regula falsi on tau -> g(t0 + tau, step(y0, tau)), i.e.
+// on a genuine DOPRI5 step of length tau rather than on the interpolant, to full double
+// precision in time (|bracket| <= 4 ulp of t, well below 1e-12 s for model times). The
+// located time is a smooth function of the model's parameters, so finite differences
+// through it are clean.
+// Invariants: works in either time direction (sign of tEnd - t0); never modifies y0;
+// segments passed to onSegment cover [t0, t_stop] without gaps, in integration order.
+
+export type Rhs = (t: number, y: Float64Array, dy: Float64Array) => void;
+
+export interface GuardSet {
+  count: number;
+  /** Writes g_i(t, y) into out. */
+  eval(t: number, y: Float64Array, out: Float64Array): void;
+  /** +1 up (g rises through 0), -1 down, 0 either. */
+  direction: Int8Array;
+}
+
+export interface DenseSegment { t0: number; h: number; n: number; r: Float64Array }
+
+export interface IntegrateOptions {
+  rtol: number;
+  /** Absolute floor of the error scale, per component. */
+  atol: Float64Array;
+  /** Running typical magnitude per component (updated in place); the error scale never
+   *  drops below floorFraction * typical, so a component crossing zero is not over-resolved. */
+  typical: Float64Array;
+  floorFraction: number;
+  maxStep: number;
+  /** Initial |h|; updated to the last proposed step. */
+  h: number;
+  maxSteps: number;
+}
+
+export interface IntegrateResult {
+  t: number;
+  y: Float64Array;
+  /** Index of the guard that fired at t (undefined when tEnd was reached). */
+  hit?: number;
+  steps: number;
+  rejected: number;
+  error?: string;
+}
+
+const C = [0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1, 1];
+const A: number[][] = [
+  [],
+  [1 / 5],
+  [3 / 40, 9 / 40],
+  [44 / 45, -56 / 15, 32 / 9],
+  [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729],
+  [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656],
+  [35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84],
+];
+const E = [71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525, -1 / 40];
+const D = [-12715105075 / 11282082432, 0, 87487479700 / 32700410799, -10690763975 / 1880347072,
+  701980252875 / 199316789632, -1453857185 / 822651844, 69997945 / 29380423];
+
+/** Scratch space for one system size. */
+export class Stepper {
+  readonly k: Float64Array[];
+  readonly tmp: Float64Array;
+  readonly y1: Float64Array;
+  readonly err: Float64Array;
+  constructor(readonly n: number, readonly rhs: Rhs) {
+    this.k = Array.from({ length: 7 }, () => new Float64Array(n));
+    this.tmp = new Float64Array(n);
+    this.y1 = new Float64Array(n);
+    this.err = new Float64Array(n);
+  }
+
+  /** One step of size h from (t, y), with k[0] = f(t, y) already set; fills y1, err, k[1..6]. */
+  step(t: number, y: Float64Array, h: number): void {
+    const { k, tmp, n } = this;
+    for (let s = 1; s < 7; s++) {
+      const a = A[s]!;
+      for (let i = 0; i < n; i++) {
+        let acc = 0;
+        for (let j = 0; j < s; j++) acc += a[j]! * k[j]![i]!;
+        tmp[i] = y[i]! + h * acc;
+      }
+      this.rhs(t + C[s]! * h, tmp, k[s]!);
+    }
+    // Stage 7 is evaluated at y1 (FSAL), so tmp holds y1.
+    for (let i = 0; i < n; i++) {
+      this.y1[i] = tmp[i]!;
+      let e = 0;
+      for (let j = 0; j < 7; j++) e += E[j]! * k[j]![i]!;
+      this.err[i] = h * e;
+    }
+  }
+
+  /** Dense-output coefficients of the last step (y0 -> y1 over h). */
+  dense(t0: number, y: Float64Array, h: number): DenseSegment {
+    const { k, n } = this;
+    const r = new Float64Array(5 * n);
+    for (let i = 0; i < n; i++) {
+      const dy = this.y1[i]! - y[i]!;
+      const bspl = h * k[0]![i]! - dy;
+      let d = 0;
+      for (let j = 0; j < 7; j++) d += D[j]! * k[j]![i]!;
+      r[i] = y[i]!;
+      r[n + i] = dy;
+      r[2 * n + i] = bspl;
+      r[3 * n + i] = dy - h * k[6]![i]! - bspl;
+      r[4 * n + i] = h * d;
+    }
+    return { t0, h, n, r };
+  }
+}
+
+/** The dense output of seg at time t (clamped to the segment) into out. */
+export function denseEval(seg: DenseSegment, t: number, out: Float64Array): Float64Array {
+  const { n, r } = seg;
+  const th = seg.h === 0 ? 0 : Math.min(1, Math.max(0, (t - seg.t0) / seg.h));
+  const th1 = 1 - th;
+  for (let i = 0; i < n; i++) {
+    out[i] = r[i]! + th * (r[n + i]! + th1 * (r[2 * n + i]! + th * (r[3 * n + i]! + th1 * r[4 * n + i]!)));
+  }
+  return out;
+}
+
+function errorNorm(st: Stepper, y0: Float64Array, o: IntegrateOptions): number {
+  let s = 0;
+  for (let i = 0; i < st.n; i++) {
+    const sc = o.atol[i]! + o.rtol * Math.max(Math.abs(y0[i]!), Math.abs(st.y1[i]!), o.floorFraction * o.typical[i]!);
+    const q = sc > 0 ? st.err[i]! / sc : 0;
+    s += q * q;
+  }
+  return st.n === 0 ? 0 : Math.sqrt(s / st.n);
+}
+
+const crossed = (g0: number, g1: number, dir: number): boolean =>
+  dir > 0 ? g0 < 0 && g1 >= 0 : dir < 0 ? g0 > 0 && g1 <= 0 : (g0 < 0 && g1 >= 0) || (g0 > 0 && g1 <= 0);
+
+/**
+ * Integrate from (t0, y0) to tEnd, stopping early at the first guard crossing.
+ * onSegment receives the dense output of every accepted step (the last one truncated at the event).
+ */
+export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: number, o: IntegrateOptions,
+  guards: GuardSet | undefined, onSegment: (seg: DenseSegment) => void): IntegrateResult {
+  const dir = tEnd >= t0 ? 1 : -1;
+  const y = Float64Array.from(y0);
+  let t = t0, steps = 0, rejected = 0;
+  const g0 = new Float64Array(guards?.count ?? 0), g1 = new Float64Array(guards?.count ?? 0);
+  if (guards) guards.eval(t, y, g0);
+  st.rhs(t, y, st.k[0]!);
+  while (dir * (tEnd - t) > 0) {
+    if (steps + rejected > o.maxSteps) return { t, y, steps, rejected, error: `more than ${o.maxSteps} steps` };
+    let h = Math.min(o.h, o.maxStep);
+    const remaining = Math.abs(tEnd - t);
+    const last = h >= remaining * (1 - 1e-12);
+    if (last) h = remaining;
+    st.step(t, y, dir * h);
+    const err = errorNorm(st, y, o);
+    if (!(err <= 1)) {
+      rejected++;
+      o.h = h * Math.max(0.1, 0.9 * Math.pow(Number.isFinite(err) ? err : 1e10, -0.2));
+      if (o.h < 1e-14 * Math.max(1, Math.abs(t))) return { t, y, steps, rejected, error: `step size underflow at t = ${t}` };
+      continue;
+    }
+    steps++;
+    o.h = h * Math.min(5, Math.max(0.2, 0.9 * Math.pow(Math.max(err, 1e-10), -0.2)));
+    const tNew = last ? tEnd : t + dir * h;
+    if (guards) {
+      guards.eval(tNew, st.y1, g1);
+      let best: { i: number; tau: number } | undefined;
+      for (let i = 0; i < guards.count; i++) {
+        if (!crossed(g0[i]!, g1[i]!, guards.direction[i]!)) continue;
+        const tau = locate(st, guards, i, t, y, dir * h, g0[i]!, g1[i]!);
+        if (!best || Math.abs(tau) < Math.abs(best.tau)) best = { i, tau };
+      }
+      if (best) {
+        st.rhs(t, y, st.k[0]!);
+        st.step(t, y, best.tau);
+        onSegment(st.dense(t, y, best.tau));
+        return { t: t + best.tau, y: Float64Array.from(st.y1), hit: best.i, steps, rejected };
+      }
+    }
+    onSegment(st.dense(t, y, tNew - t));
+    for (let i = 0; i < st.n; i++) {
+      y[i] = st.y1[i]!;
+      const a = Math.abs(y[i]!);
+      if (a > o.typical[i]!) o.typical[i] = a;
+    }
+    g0.set(g1);
+    t = tNew;
+    st.k[0]!.set(st.k[6]!);
+  }
+  return { t, y, steps, rejected };
+}
+
+/** Signed step tau in (0, h] at which guard i crosses, on the crossed side of the root. */
+function locate(st: Stepper, guards: GuardSet, i: number, t: number, y: Float64Array, h: number, ga: number, gb: number): number {
+  const k0 = Float64Array.from(st.k[0]!);
+  const gv = new Float64Array(guards.count);
+  const phi = (tau: number): number => {
+    st.k[0]!.set(k0);
+    st.step(t, y, tau);
+    guards.eval(t + tau, st.y1, gv);
+    return gv[i]!;
+  };
+  // Invariant: a is on the uncrossed side, b on the crossed side (g reached or passed 0).
+  const up = gb > ga;
+  const isCrossed = (g: number): boolean => (up ? g >= 0 : g <= 0);
+  let a = 0, b = h, fa = ga, fb = gb, kept = 0, width = Math.abs(h);
+  for (let it = 0; it < 200; it++) {
+    if (Math.abs(b - a) <= 4 * Number.EPSILON * Math.max(Math.abs(t + b), Math.abs(t))) break;
+    let c = (a * fb - b * fa) / (fb - fa);
+    if (it % 4 === 3 && Math.abs(b - a) > 0.5 * width) c = 0.5 * (a + b); // not shrinking fast: bisect
+    if (it % 4 === 3) width = Math.abs(b - a);
+    if (!(c > Math.min(a, b) && c < Math.max(a, b))) c = 0.5 * (a + b);
+    if (c === a || c === b) break;
+    const fc = phi(c);
+    if (isCrossed(fc)) {
+      b = c; fb = fc;
+      if (kept === -1) fa /= 2; // Illinois: the same end kept twice
+      kept = -1;
+    } else {
+      a = c; fa = fc;
+      if (kept === 1) fb /= 2;
+      kept = 1;
+    }
+  }
+  st.k[0]!.set(k0);
+  return b;
+}

@@ -1,0 +1,145 @@
+// Faces of the step analysis: the JSON of `saltus step --format json` (contract in
+// docs/step-analysis.md), the CLI text, and hover markdown.
+// Invariants: pure; JSON has only finite numbers or null (NaN and infinities become null);
+// every time in JSON is in SI seconds.
+import type { StepReport } from './analyse';
+import { formatNumber } from '../units/format';
+import type { SchemeLabel } from './scheme';
+
+export interface StepJsonModel {
+  name: string;
+  dt_s: number | null;
+  reference: 'rest' | 'initial';
+  states: Record<string, { scheme: SchemeLabel }>;
+  stepRadius: number | null;
+  exactRadius: number | null;
+  relativeStepError: number | null;
+  maxStableDt_s: number | null;
+  exactPropagator: (number | null)[][] | null;
+}
+export interface StepJson { models: StepJsonModel[] }
+
+const fin = (v: number): number | null => (Number.isFinite(v) ? v : null);
+
+export function stepReportJson(reports: readonly StepReport[]): StepJson {
+  return {
+    models: reports.map((r) => {
+      const states: Record<string, { scheme: SchemeLabel }> = {};
+      for (const s of r.states) states[s.name] = { scheme: s.scheme };
+      return {
+        name: r.neuron,
+        dt_s: fin(r.dt_s),
+        reference: r.reference.kind,
+        states,
+        stepRadius: fin(r.stepRadius),
+        exactRadius: fin(r.exactRadius),
+        relativeStepError: fin(r.relativeStepError),
+        maxStableDt_s: r.maxStableDt_s === null ? null : fin(r.maxStableDt_s),
+        exactPropagator: r.exactPropagator ? r.exactPropagator.matrix.map((row) => row.map(fin)) : null,
+      };
+    }),
+  };
+}
+
+const num = (v: number, digits = 6): string => (Number.isFinite(v) ? String(Number(v.toPrecision(digits))) : String(v));
+const pct = (v: number): string => (Number.isFinite(v) ? `${num(v * 100, 3)} %` : String(v));
+
+function matrixLines(m: readonly (readonly number[])[], labels: readonly string[], indent: string): string[] {
+  const cells = m.map((row) => row.map((v) => num(v)));
+  const width = Math.max(1, ...cells.flat().map((c) => c.length));
+  const lw = Math.max(1, ...labels.map((l) => l.length));
+  return cells.map((row, i) => `${indent}${labels[i]!.padEnd(lw)} [ ${row.map((c) => c.padStart(width)).join('  ')} ]`);
+}
+
+function stabilityLine(r: StepReport): string {
+  if (r.order.length === 0) return r.stabilityNote;
+  const now = r.unstable ? `UNSTABLE at dt = ${formatTime(r.dt_s)}` : r.stable ? `stable at dt = ${formatTime(r.dt_s)}` : '';
+  return now ? `${now}; ${r.stabilityNote}` : r.stabilityNote;
+}
+
+function accuracyLine(r: StepReport): string {
+  const within = r.relativeStepError <= r.accuracyBound;
+  const limit = r.accurateDt_s === null ? 'within the bound at every dt scanned' : `within the bound for dt up to ${formatTime(r.accurateDt_s)}`;
+  return `relative one-step error ||M - P|| / ||P|| = ${num(r.relativeStepError, 3)} (${within ? 'within' : 'ABOVE'} the ${pct(r.accuracyBound)} bound); ${limit}`;
+}
+
+/** Plain text for `saltus step FILE`. */
+export function stepReportText(reports: readonly StepReport[]): string {
+  const out: string[] = [];
+  for (const r of reports) {
+    out.push(`${r.neuron}  (dt = ${formatTime(r.dt_s)})`);
+    out.push(`  reference: ${r.reference.kind} - ${r.reference.note}`);
+    out.push('  states:');
+    const w = Math.max(...r.states.map((s) => s.name.length), 1);
+    for (const s of r.states) out.push(`    ${s.name.padEnd(w)}  ${s.scheme.padEnd(28)}  ${s.reason}`);
+    if (r.order.length && !Number.isFinite(r.stepRadius)) {
+      out.push('  figures: not assessed');
+    } else if (r.order.length) {
+      out.push(`  spectral radius: step M ${num(r.stepRadius)}, exact flow P = expm(J dt) ${num(r.exactRadius)}`);
+      out.push(`  ${accuracyLine(r)}`);
+    }
+    out.push(`  stability: ${stabilityLine(r)}`);
+    if (r.exactPropagator) {
+      out.push(`  exact propagator (${r.exactPropagator.method}; recommended for this linear time-invariant flow), x(t + dt) = P x(t) + q:`);
+      out.push(...matrixLines(r.exactPropagator.matrix, r.exactPropagator.states, '    '));
+      if (r.exactPropagator.offset.some((v) => v !== 0)) out.push(`    q = [ ${r.exactPropagator.offset.map((v) => num(v)).join('  ')} ]`);
+    } else {
+      out.push(`  exact propagator: none (${r.lti.reason}); recommended scheme: ${r.recommended}`);
+    }
+    if (r.crossing) {
+      out.push(`  threshold on the grid: ${r.crossing.method}`);
+      out.push(`    bound: ${r.crossing.bound}`);
+      out.push(r.crossing.probe
+        ? `    ${r.crossing.probeNote}: spike time within about ${formatTime(r.crossing.probe.timeError_s)} (without interpolation: ${formatTime(r.crossing.gridBound_s)})`
+        : `    ${r.crossing.probeNote}`);
+    }
+    for (const p of r.problems) out.push(`  note: ${p}`);
+    out.push('');
+  }
+  return out.join('\n');
+}
+
+/** Hover markdown: the neuron's summary (on `timestep`), or one state's scheme (on its equation). */
+export function stepHoverMarkdown(report: StepReport, stateName?: string): string {
+  const r = report;
+  const lines: string[] = [];
+  const st = stateName !== undefined ? r.states.find((s) => s.name === stateName) : undefined;
+  if (st) {
+    lines.push(`**Step of \`${st.name}\`** in \`${r.neuron}\`: \`${st.scheme}\``, '', st.reason, '');
+    if (r.exactPropagator) {
+      const i = r.exactPropagator.states.indexOf(st.name);
+      const row = r.exactPropagator.matrix[i]!.map((v, j) => `${num(v)}·${r.exactPropagator!.states[j]}`).join(' + ');
+      const q = r.exactPropagator.offset[i]!;
+      lines.push(`Exact propagator over dt = ${formatTime(r.dt_s)} (recommended): \`${st.name}(t+dt) = ${row}${q !== 0 ? ` + ${num(q)}` : ''}\``, '');
+    }
+  } else {
+    lines.push(`**Step analysis of \`${r.neuron}\`** at dt = ${formatTime(r.dt_s)}`, '');
+    for (const s of r.states) lines.push(`- \`${s.name}\`: ${s.scheme}`);
+    lines.push('');
+  }
+  lines.push(`Reference: ${r.reference.kind} (${r.reference.note})`, '');
+  if (r.order.length && Number.isFinite(r.stepRadius)) {
+    lines.push(`Spectral radius of the step ${num(r.stepRadius, 4)}, of the exact flow ${num(r.exactRadius, 4)}; ${accuracyLine(r)}.`, '');
+  }
+  lines.push(`Stability: ${stabilityLine(r)}.`);
+  if (!st && r.exactPropagator) lines.push('', `An exact propagator exists (${r.exactPropagator.method}); it is the recommended scheme for this flow.`);
+  if (!st && r.crossing) {
+    lines.push('', `Threshold: located by linear interpolation of the guard within a step; ${r.crossing.probe
+      ? `spike-time error about ${formatTime(r.crossing.probe.timeError_s)} at the probe crossing`
+      : 'error bound dt^2 max|g\'\'| / (8 |g\'|)'} (up to ${formatTime(r.crossing.gridBound_s)} without interpolation).`);
+  }
+  for (const p of r.problems) lines.push('', `Note: ${p}`);
+  return lines.join('\n');
+}
+
+/** A time for messages: '0.1 ms', '0.25 ms', '5 us', '1.5 s'. */
+export function formatTime(seconds: number): string {
+  if (!Number.isFinite(seconds)) return String(seconds);
+  const a = Math.abs(seconds);
+  if (a === 0) return '0 s';
+  if (a >= 1) return `${formatNumber(seconds, 4)} s`;
+  if (a >= 1e-5) return `${formatNumber(seconds * 1e3, 4)} ms`;
+  if (a >= 1e-8) return `${formatNumber(seconds * 1e6, 4)} us`;
+  return `${formatNumber(seconds * 1e9, 4)} ns`;
+}
+

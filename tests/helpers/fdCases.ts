@@ -1,0 +1,103 @@
+// Test helper: the finite-difference check cases for every shipped sample and for the
+// synthetic models that exercise what the samples do not (time in guards and jumps, a
+// non-identity incoming jump, a trainable parameter inside the incoming jump, a down
+// crossing). Scenario numbers are our own (invented pump-vibration spike pattern).
+import { fromMathjs } from '../../server/src/symbolic';
+import type { CheckCase } from './gradientCheck';
+import { modelNeuron, sampleNeuron } from './models';
+
+/** Invented vibration-sensor spike pattern: knocks every few ms with jitter (seconds). */
+export const KNOCKS = [0.0012, 0.0031, 0.0049, 0.0093, 0.0131, 0.0162, 0.0221, 0.0265, 0.0302, 0.0371];
+
+export const MIXED = `
+neuron Mixed "test-only: time in guard and jumps, non-identity incoming jump" {
+  param tau_m = 10 [ms] trainable
+  param tau_s = 4 [ms] trainable
+  param tau_r = 30 [ms] trainable
+  param theta = 1 trainable
+  param k = 0.5 trainable
+  param I_max = 8 trainable
+  state V = 0
+  state I = 0
+  state B = 0
+  dV/dt = (I - V + 0.3 * tanh(V)) / tau_m
+  dI/dt = -I / tau_s
+  dB/dt = -B / tau_r + 0.1 * V^2 / tau_m
+  fire when V + k * B crosses theta * (1 + 0.5 * exp(-t / tau_r)) up {
+    V := k * B
+    B := B + 1 - exp(-t / tau_r)
+  }
+  incoming w {
+    I := I + w * (1 - I / I_max)
+    V := V + 0.05 * w
+  }
+}
+neuron Dipper "test-only: fires on a downward crossing" {
+  param tau_m = 10 [ms] trainable
+  param tau_s = 5 [ms]
+  param theta = 1 trainable
+  state V = 0
+  state I = 0
+  dV/dt = (I - V) / tau_m
+  dI/dt = -I / tau_s
+  fire when V crosses -theta down { V := 0 }
+  incoming w { I := I + w }
+}`;
+
+export interface NamedCase { name: string; source: string; c: CheckCase }
+
+export function fdCases(): NamedCase[] {
+  const lif = sampleNeuron('lif_current.saltus', 'LifCurrent');
+  const ro = sampleNeuron('lif_current.saltus', 'Readout');
+  const roAlone = sampleNeuron('readout.saltus', 'Readout');
+  const alif = sampleNeuron('adaptive_lif.saltus', 'AdaptiveLif');
+  const adex = sampleNeuron('adex.saltus', 'AdEx');
+  const izh = sampleNeuron('izhikevich.saltus', 'Izhikevich');
+  const mixed = modelNeuron(MIXED, 'Mixed');
+  const dipper = modelNeuron(MIXED, 'Dipper');
+  const L = fromMathjs;
+  return [
+    { name: 'lif_current: LIF -> LIF -> Readout', source: 'samples/lif_current.saltus', c: {
+      net: { neurons: [{ model: lif }, { model: lif }, { model: ro }], synapses: [{ from: 0, to: 1, weight: 4 }, { from: 1, to: 0, weight: 1.5 }, { from: 1, to: 2, weight: 0.8 }, { from: 0, to: 2, weight: -0.3 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 1, times: [0.006, 0.02], weight: 2.5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 0, perSpike: L('100 * (t - 0.01)^2'), integrand: L('0.1 * V^2') }] },
+    } },
+    { name: 'readout alone', source: 'samples/readout.saltus', c: {
+      net: { neurons: [{ model: roAlone }], synapses: [] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 0.7 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 0, integrand: L('(V - 0.4)^2 + 0.1 * I^2') }] },
+    } },
+    { name: 'adaptive_lif: two recurrent AdaptiveLif', source: 'samples/adaptive_lif.saltus', c: {
+      net: { neurons: [{ model: alif }, { model: alif, params: { beta: 0.35 } }], synapses: [{ from: 0, to: 1, weight: 3 }, { from: 1, to: 0, weight: -1 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 6 }, { target: 1, times: [0.004, 0.017], weight: 3 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 1, integrand: L('(V - 0.3)^2 + A^2'), perSpike: L('50 * t^2') }, { neuron: 0, perSpike: L('10 * t') }] },
+    } },
+    { name: 'adex: AdEx -> AdEx (SI units)', source: 'samples/adex.saltus', c: {
+      net: { neurons: [{ model: adex }, { model: adex }], synapses: [{ from: 0, to: 1, weight: 1.5e-9 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 2.5e-9 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 1, integrand: L('1e4 * (V + 0.06)^2') }, { neuron: 0, perSpike: L('1e3 * (t - 0.01)^2') }] },
+    } },
+    { name: 'izhikevich: Izhikevich -> Izhikevich', source: 'samples/izhikevich.saltus', c: {
+      net: { neurons: [{ model: izh }, { model: izh }], synapses: [{ from: 0, to: 1, weight: 0.02 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 0.03 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 1, integrand: L('1e3 * (v + 0.06)^2') }, { neuron: 0, perSpike: L('1e3 * (t - 0.01)^2'), integrand: L('1e2 * u^2') }] },
+    } },
+    { name: 'Mixed: time-dependent guard and jumps, nonlinear incoming jump', source: 'tests/helpers/fdCases.ts MIXED', c: {
+      net: { neurons: [{ model: mixed }, { model: mixed, params: { k: 0.3 } }], synapses: [{ from: 0, to: 1, weight: 3 }, { from: 1, to: 0, weight: 1 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 4 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 1, integrand: L('(V - 0.2)^2 + B^2'), perSpike: L('20 * t') }, { neuron: 0, integrand: L('I^2 / 100') }] },
+    } },
+    { name: 'Dipper: downward crossing', source: 'tests/helpers/fdCases.ts MIXED', c: {
+      net: { neurons: [{ model: dipper }, { model: ro }], synapses: [{ from: 0, to: 1, weight: 1 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: -5 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 1, integrand: L('(V - 0.3)^2') }, { neuron: 0, perSpike: L('30 * t^2') }] },
+    } },
+  ];
+}

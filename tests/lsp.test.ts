@@ -1,0 +1,250 @@
+// Black-box test of the language server: bundles server/src/lsp/main.ts with esbuild,
+// starts it as `node server.js --stdio`, and talks LSP (3.17) to it with a real JSON-RPC
+// client (vscode-languageserver-protocol over vscode-jsonrpc streams). Also an in-process
+// server with an injected failing provider, to check that a handler exception is logged and
+// answered with an empty result.
+import { spawn, type ChildProcess } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { PassThrough } from 'node:stream';
+import { build } from 'esbuild';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import {
+  createProtocolConnection, StreamMessageReader, StreamMessageWriter, type ProtocolConnection,
+  type PublishDiagnosticsParams, type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
+} from 'vscode-languageserver-protocol/node';
+import { LineIndex } from '../server/src/outputs/lineIndex';
+import { parseTimestep, readSettings } from '../server/src/lsp/settings';
+
+const root = join(__dirname, '..');
+const samplesDir = join(root, 'samples');
+const SAMPLES = existsSync(samplesDir) ? readdirSync(samplesDir).filter((f) => f.endsWith('.saltus')) : [];
+
+const LIF = `# vibration sensor: a pump motor's 🐝 hum, Δt = 0.1 ms
+timestep 0.1 [ms]
+neuron Sensor "τ-scaled LIF 🎯" {
+  param tau_m = 20 [ms] "membrane time constant"
+  param tau_s = 5 [ms]
+  param theta = 1
+  state V = 0
+  state I = 0
+  dV/dt = (I - V) / tau_m
+  dI/dt = -I / tau_s
+  fire when V crosses theta up { V := 0 }
+  incoming w { I := I + w }
+}
+`;
+
+class Client {
+  readonly diagnostics = new Map<string, PublishDiagnosticsParams[]>();
+  readonly logs: string[] = [];
+  private waiters: (() => void)[] = [];
+  settings: Record<string, unknown> = { timestep: '', diagnostics: { when: 'typing' } };
+  constructor(readonly conn: ProtocolConnection) {
+    conn.onNotification('textDocument/publishDiagnostics', (p: PublishDiagnosticsParams) => {
+      const list = this.diagnostics.get(p.uri) ?? [];
+      list.push(p);
+      this.diagnostics.set(p.uri, list);
+      this.wake();
+    });
+    conn.onNotification('window/logMessage', (p: { message: string }) => { this.logs.push(p.message); this.wake(); });
+    conn.onRequest('workspace/configuration', (p: { items: unknown[] }) => p.items.map(() => this.settings));
+    conn.onRequest('client/registerCapability', () => null);
+    conn.listen();
+  }
+  private wake(): void { const w = this.waiters; this.waiters = []; for (const f of w) f(); }
+  /** Resolves when `cond` holds (checked on each notification), rejects after `ms`. */
+  until<T>(cond: () => T | undefined, ms = 10_000, what = 'condition'): Promise<T> {
+    return new Promise((resolve, reject) => {
+      const timer = setTimeout(() => reject(new Error(`timed out waiting for ${what}`)), ms);
+      const check = (): void => {
+        const v = cond();
+        if (v !== undefined && v !== false) { clearTimeout(timer); resolve(v); } else this.waiters.push(check);
+      };
+      check();
+    });
+  }
+  diagnosticsFor(uri: string, version: number): Promise<PublishDiagnosticsParams> {
+    return this.until(() => this.diagnostics.get(uri)?.find((p) => p.version === version), 10_000, `diagnostics of ${uri} v${version}`);
+  }
+  open(uri: string, text: string, version = 1): void {
+    void this.conn.sendNotification('textDocument/didOpen', { textDocument: { uri, languageId: 'saltus', version, text } });
+  }
+}
+
+const pos = (text: string, needle: string, k = 0): { line: number; character: number } => {
+  const i = text.indexOf(needle);
+  if (i < 0) throw new Error(needle);
+  return new LineIndex(text).positionAt(i + k);
+};
+
+describe('language server over stdio', () => {
+  let dir = '';
+  let proc: ChildProcess;
+  let client: Client;
+  let stderr = '';
+
+  beforeAll(async () => {
+    dir = mkdtempSync(join(tmpdir(), 'saltus-lsp-test-'));
+    const entry = join(dir, 'entry.ts');
+    writeFileSync(entry, `import { runLanguageServer } from ${JSON.stringify(join(root, 'server/src/lsp/main'))};\nrunLanguageServer();\n`);
+    await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: join(dir, 'server.js'), logLevel: 'silent' });
+    proc = spawn(process.execPath, [join(dir, 'server.js'), '--stdio'], { stdio: ['pipe', 'pipe', 'pipe'] });
+    proc.stderr!.on('data', (d) => { stderr += String(d); });
+    client = new Client(createProtocolConnection(new StreamMessageReader(proc.stdout!), new StreamMessageWriter(proc.stdin!)));
+    const init = await client.conn.sendRequest('initialize', {
+      processId: process.pid, rootUri: null, workspaceFolders: null,
+      capabilities: { workspace: { configuration: true, didChangeConfiguration: { dynamicRegistration: true } }, textDocument: { publishDiagnostics: { versionSupport: true } } },
+    }) as { capabilities: Record<string, unknown> };
+    expect(init.capabilities).toMatchObject({ hoverProvider: true, renameProvider: { prepareProvider: true }, inlayHintProvider: true, documentFormattingProvider: true });
+    await client.conn.sendNotification('initialized', {});
+  }, 60_000);
+
+  afterAll(() => {
+    if (proc.exitCode === null) proc.kill();
+    rmSync(dir, { recursive: true, force: true });
+  });
+
+  it('publishes versioned diagnostics for every sample (or the inline model)', async () => {
+    const docs: [string, string][] = SAMPLES.length ? SAMPLES.map((f) => [`file:///samples/${f}`, readFileSync(join(samplesDir, f), 'utf8')]) : [['file:///inline/lif.saltus', LIF]];
+    for (const [uri, text] of docs) client.open(uri, text);
+    for (const [uri] of docs) {
+      const d = await client.diagnosticsFor(uri, 1);
+      for (const x of d.diagnostics) expect(x.source).toBe('saltus');
+      if (uri.endsWith('mistakes.saltus')) expect(d.diagnostics.some((x) => x.severity === 1)).toBe(true);
+    }
+  });
+
+  it('answers hover, completion (names and units) and rename on an open document', async () => {
+    const uri = 'file:///inline/sensor.saltus';
+    client.open(uri, LIF);
+    expect((await client.diagnosticsFor(uri, 1)).diagnostics).toEqual([]);
+    const h = await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, '/ tau_m', 3) }) as Hover;
+    expect((h.contents as MarkupContent).value).toContain('value: 20 [ms] = 0.02 s');
+    expect(h.range).toEqual({ start: pos(LIF, '/ tau_m', 2), end: pos(LIF, '/ tau_m', 7) });
+
+    const names = await client.conn.sendRequest('textDocument/completion', { textDocument: { uri }, position: pos(LIF, '(I - V)', 1) }) as CompletionItem[];
+    expect(names.map((c) => c.label)).toEqual(expect.arrayContaining(['tau_m', 'tau_s', 'theta', 'V', 'I', 't', 'exp']));
+    const units = await client.conn.sendRequest('textDocument/completion', { textDocument: { uri }, position: pos(LIF, '[ms] "', 1) }) as CompletionItem[];
+    expect(units.map((c) => c.label)).toEqual(expect.arrayContaining(['mV', 'ms', 'nA', 'pF']));
+
+    const edit = await client.conn.sendRequest('textDocument/rename', { textDocument: { uri }, position: pos(LIF, 'state V', 6), newName: 'U' }) as WorkspaceEdit;
+    const edits = edit.changes![uri]!;
+    expect(edits).toHaveLength(5); // declaration, the V of dV/dt, (I - V), the guard, the jump target
+    expect(edits).toContainEqual({ range: { start: pos(LIF, 'dV/dt', 1), end: pos(LIF, 'dV/dt', 2) }, newText: 'U' });
+    await expect(client.conn.sendRequest('textDocument/rename', { textDocument: { uri }, position: pos(LIF, 'state V', 6), newName: 'theta' }))
+      .rejects.toThrow(/already declared/);
+  });
+
+  it('clears an error after the edit that fixes it, and offers its quick fix', async () => {
+    const uri = 'file:///inline/typo.saltus';
+    const broken = LIF.replace('-I / tau_s', '-I / tau_ss');
+    client.open(uri, broken);
+    const d1 = await client.diagnosticsFor(uri, 1);
+    const err = d1.diagnostics.find((x) => x.code === 'unknown-name')!;
+    expect(err.message).toContain("did you mean 'tau_s'");
+    const actions = await client.conn.sendRequest('textDocument/codeAction', { textDocument: { uri }, range: err.range, context: { diagnostics: [err] } }) as CodeAction[];
+    expect(actions[0]!.title).toBe("Change to 'tau_s'");
+    expect(actions[0]!.edit!.changes![uri]).toEqual([{ range: err.range, newText: 'tau_s' }]);
+    const t0 = performance.now();
+    void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: 2 }, contentChanges: [{ range: err.range, text: 'tau_s' }] });
+    const d2 = await client.diagnosticsFor(uri, 2);
+    const latency = performance.now() - t0;
+    expect(d2.diagnostics).toEqual([]);
+    console.log(`edit -> diagnostics round trip: ${latency.toFixed(1)} ms`);
+    expect(latency).toBeLessThan(1000);
+  });
+
+  it('analyses only the newest of several queued edits', async () => {
+    const uri = 'file:///inline/burst.saltus';
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    const end = pos(LIF, '}\n', 0);
+    for (let v = 2; v <= 6; v++) {
+      void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: v }, contentChanges: [{ range: { start: end, end }, text: ' ' }] });
+    }
+    await client.diagnosticsFor(uri, 6);
+    const intermediate = client.diagnostics.get(uri)!.filter((p) => p.version! > 1 && p.version! < 6).length;
+    expect(intermediate).toBeLessThan(4);
+  });
+
+  it('honours saltus.diagnostics.when = saving', async () => {
+    const uri = 'file:///inline/saving.saltus';
+    client.settings = { diagnostics: { when: 'saving' } };
+    await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
+    await new Promise((r) => setTimeout(r, 200));
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: 2 }, contentChanges: [{ text: LIF.replace('tau_s\n', 'tau_q\n') }] });
+    await new Promise((r) => setTimeout(r, 300));
+    expect(client.diagnostics.get(uri)!.some((p) => p.version === 2)).toBe(false);
+    void client.conn.sendNotification('textDocument/didSave', { textDocument: { uri } });
+    const d = await client.diagnosticsFor(uri, 2);
+    expect(d.diagnostics.some((x) => x.code === 'unknown-name')).toBe(true);
+    client.settings = { diagnostics: { when: 'typing' } };
+    await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
+  });
+
+  it('answers null or [] for a never-opened document and survives a malformed request', async () => {
+    const nowhere = { textDocument: { uri: 'file:///never/opened.saltus' }, position: { line: 0, character: 0 } };
+    expect(await client.conn.sendRequest('textDocument/hover', nowhere)).toBeNull();
+    expect(await client.conn.sendRequest('textDocument/completion', nowhere)).toEqual([]);
+    expect(await client.conn.sendRequest('textDocument/definition', nowhere)).toBeNull();
+    expect(await client.conn.sendRequest('saltus/analysisSummary', { uri: 'file:///never/opened.saltus' })).toBeNull();
+    // An open document but no position: the handler throws inside, the guard answers null and logs.
+    expect(await client.conn.sendRequest('textDocument/hover', { textDocument: { uri: 'file:///inline/sensor.saltus' } })).toBeNull();
+    await client.until(() => client.logs.find((l) => l.includes('hover failed')), 5000, 'the logged failure');
+    const summary = await client.conn.sendRequest('saltus/analysisSummary', { uri: 'file:///inline/sensor.saltus' });
+    expect(summary).toEqual({ neurons: [{ name: 'Sensor', states: ['V', 'I'], wellFormed: true }], errors: 0, warnings: 0 });
+  });
+
+  it('clears diagnostics on close, then shuts down and exits with code 0', async () => {
+    const uri = 'file:///inline/typo.saltus';
+    const before = client.diagnostics.get(uri)!.length;
+    void client.conn.sendNotification('textDocument/didClose', { textDocument: { uri } });
+    await client.until(() => client.diagnostics.get(uri)!.length > before, 5000, 'cleared diagnostics');
+    expect(client.diagnostics.get(uri)!.at(-1)!.diagnostics).toEqual([]);
+    const exited = new Promise<number | null>((resolve) => proc.on('exit', (code) => resolve(code)));
+    await client.conn.sendRequest('shutdown');
+    void client.conn.sendNotification('exit');
+    expect(await exited).toBe(0);
+    expect(stderr).toBe('');
+  });
+});
+
+describe('handler guard (in-process server with a failing provider)', () => {
+  it('logs the exception and answers null; later requests still work', async () => {
+    const { createConnection, ProposedFeatures } = await import('vscode-languageserver/node');
+    const { startServer } = await import('../server/src/lsp/server');
+    const toServer = new PassThrough(), toClient = new PassThrough();
+    const serverConn = createConnection(ProposedFeatures.all, new StreamMessageReader(toServer), new StreamMessageWriter(toClient));
+    startServer(serverConn, { features: { hover: () => { throw new Error('injected failure'); } } });
+    const client = new Client(createProtocolConnection(new StreamMessageReader(toClient), new StreamMessageWriter(toServer)));
+    await client.conn.sendRequest('initialize', { processId: null, rootUri: null, capabilities: {} });
+    await client.conn.sendNotification('initialized', {});
+    const uri = 'file:///guard.saltus';
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    expect(await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, 'tau_m') })).toBeNull();
+    await client.until(() => client.logs.find((l) => l.includes('hover failed') && l.includes('injected failure')), 5000, 'log');
+    const defn = await client.conn.sendRequest('textDocument/definition', { textDocument: { uri }, position: pos(LIF, '/ tau_m', 3) });
+    expect(defn).toEqual({ uri, range: { start: pos(LIF, 'tau_m'), end: pos(LIF, 'tau_m', 5) } });
+    client.conn.dispose();
+  });
+});
+
+describe('settings', () => {
+  it('reads saltus.timestep as a time with its unit, and refuses others', () => {
+    expect(parseTimestep('0.05 [ms]')).toBeCloseTo(5e-5, 15);
+    expect(parseTimestep('50 [us]')).toBeCloseTo(5e-5, 15);
+    expect(parseTimestep('2')).toEqual({ error: expect.stringMatching(/time/) });
+    expect(parseTimestep('1 [mV]')).toEqual({ error: expect.stringMatching(/time/) });
+    expect(parseTimestep('0.1 [ms]\nneuron X {}')).toEqual({ error: expect.any(String) });
+    expect(readSettings({ timestep: '', diagnostics: { when: 'saving' } })).toEqual({ diagnosticsWhen: 'saving', problems: [] });
+    const bad = readSettings({ timestep: 'fast', diagnostics: { when: 'sometimes' } });
+    expect(bad.timestepSI).toBeUndefined();
+    expect(bad.diagnosticsWhen).toBe('typing');
+    expect(bad.problems).toHaveLength(2);
+  });
+});

@@ -1,0 +1,219 @@
+// The step analysis on text (analyse() -> analyseStep) and on the project's samples:
+// Izhikevich 2003 and AdEx (Brette & Gerstner 2005) get the linearised scheme; reference
+// states against the values in /work/shared/REFERENCES.md; the accuracy figure of the LIF
+// against its closed form (Rotter & Diesmann 1999); the spike-time bound against the LIF
+// first-passage time under constant drive (Gerstner et al. 2014, ch. 1); the JSON contract.
+import { describe, expect, test } from 'vitest';
+import { readFileSync } from 'node:fs';
+import { analyse } from '../server/src/pipeline';
+import type { ResolvedNeuron } from '../server/src/model/types';
+import {
+  analyseStep, buildScheme, exactPropagator, exactStep, interpolateCrossing, stepDiagnostics, stepHoverMarkdown,
+  stepReportJson, stepReportText,
+} from '../server/src/step';
+
+const sample = (file: string) => analyse(readFileSync(new URL(`../samples/${file}`, import.meta.url), 'utf8'));
+function only(text: string): ResolvedNeuron {
+  const a = analyse(text);
+  expect(a.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
+  return a.model.neurons[0]!;
+}
+
+describe('Izhikevich 2003 RS sample (samples/izhikevich.saltus)', () => {
+  const a = sample('izhikevich.saltus');
+  const n = a.model.neurons[0]!;
+  const r = analyseStep(n, a.model.timestepSI!);
+
+  test('v is linearised (quadratic), u exponential Euler, I exact; the info diagnostic sits on dv/dt', () => {
+    expect(a.model.timestepSI).toBe(1e-4);
+    expect(Object.fromEntries(r.states.map((s) => [s.name, s.scheme]))).toEqual({
+      v: 'linearised-exponential-euler', u: 'exponential-euler', I: 'exact' });
+    const ds = stepDiagnostics(r, n, a.model.timestepDecl!.range);
+    expect(ds.map((d) => d.code)).toEqual(['step-linearised']);
+    expect(ds[0]!.severity).toBe('info');
+    expect(ds[0]!.range).toEqual(n.flowDecls.get('v')!.range);
+  });
+
+  test('reference is the RS resting point v = -70 mV, u = -14 mV (REFERENCES.md [V]); stable at 0.1 ms', () => {
+    expect(r.reference.kind).toBe('rest');
+    expect(r.reference.values.v).toBeCloseTo(-0.070, 12);
+    expect(r.reference.values.u).toBeCloseTo(-0.014, 12);
+    expect(r.stable).toBe(true);
+    expect(r.unstable).toBe(false);
+    expect(r.stepRadius).toBeLessThan(1);
+    // J at rest (per ms): [[0.08 v + 5, -1, 1], [a b, -a, 0], [0, 0, -1/tau_s]] = [[-0.6, -1, 1], [0.004, -0.02, 0], ...]
+    expect(r.jacobian[0]![0]).toBeCloseTo(-600, 9);
+    expect(r.jacobian[1]![0]).toBeCloseTo(4, 9); // d f_u/d v = a b / tau_scale = 0.004 per ms = 4 per s
+    // the exact flow radius is e^{dt * max Re lambda}; max Re lambda of the 2x2 block by hand:
+    // lambda = (tr +- sqrt(tr^2 - 4 det))/2, tr = -0.62, det = 0.012 + 0.004 = 0.016 per ms^2
+    const lam = (-0.62 + Math.sqrt(0.62 ** 2 - 4 * 0.016)) / 2; // -0.02686 per ms
+    expect(r.exactRadius).toBeCloseTo(Math.exp(0.1 * lam), 12);
+    expect(r.relativeStepError).toBeGreaterThan(0);
+    expect(r.relativeStepError).toBeLessThan(r.accuracyBound);
+  });
+
+  test('probe crossing at v = 30 mV: dt^2 |v\'\'| / (8 |v\'|) with v\' = 340 mV/ms, v\'\' = 7.4 * 340 - 0.02 * 20 by hand', () => {
+    const vdot = 0.04 * 900 + 150 + 140 + 14; // mV/ms at v = 30, u = -14, I = 0
+    const vddot = (0.08 * 30 + 5) * vdot - 0.02 * (0.2 * 30 + 14); // mV/ms^2
+    const bound = (0.1 ** 2 * vddot) / (8 * vdot); // ms
+    expect(r.crossing!.probe!.timeError_s * 1e3).toBeCloseTo(bound, 12);
+  });
+
+  test('Izhikevich without a resting point (tonic drive): the initial state is the reference', () => {
+    const text = readFileSync(new URL('../samples/izhikevich.saltus', import.meta.url), 'utf8').replace('param k0 = 140 [mV]', 'param k0 = 150 [mV]');
+    const t = analyse(text);
+    const rr = analyseStep(t.model.neurons[0]!, 1e-4);
+    expect(rr.reference.kind).toBe('initial');
+    expect(rr.reference.note).toMatch(/no resting fixed point/);
+  });
+
+  test('a saddle is not a resting state: starting on the RS saddle (-50 mV) falls back to the initial state', () => {
+    const text = readFileSync(new URL('../samples/izhikevich.saltus', import.meta.url), 'utf8')
+      .replace('state v [mV] = -70 [mV]', 'state v [mV] = -50 [mV]').replace('state u [mV] = -14 [mV]', 'state u [mV] = -10 [mV]');
+    const rr = analyseStep(analyse(text).model.neurons[0]!, 1e-4);
+    expect(rr.reference.kind).toBe('initial');
+    expect(rr.reference.note).toMatch(/not stable/);
+  });
+});
+
+describe('AdEx sample (samples/adex.saltus, Brette & Gerstner 2005 set)', () => {
+  const a = sample('adex.saltus');
+  const n = a.model.neurons[0]!;
+  const r = analyseStep(n, a.model.timestepSI!);
+
+  test('V linearised (through exp), w exponential Euler, I exact; rest -70.59992 mV (REFERENCES.md [V])', () => {
+    expect(r.states.map((s) => s.scheme)).toEqual(['linearised-exponential-euler', 'exponential-euler', 'exact']);
+    expect(r.states[0]!.reason).toContain('exp(');
+    expect(r.reference.kind).toBe('rest');
+    // REFERENCES.md gives -70.59992 (truncated); by hand (g_L + a) dV = g_L Delta_T e^{(E_L + dV - V_T)/Delta_T}, dV = 7.246e-5 mV
+    expect(r.reference.values.V! * 1e3).toBeCloseTo(-70.59992, 4);
+    expect(r.reference.values.V! * 1e3).toBeCloseTo(-70.6 + 7.246e-5, 7);
+    expect(r.stable).toBe(true);
+    expect(r.maxStableDt_s).toBeNull();
+    expect(stepDiagnostics(r, n).map((d) => d.code)).toEqual(['step-linearised']);
+  });
+
+  test('figures do not depend on the units chosen for w (nA in the sample, pA here)', () => {
+    const text = readFileSync(new URL('../samples/adex.saltus', import.meta.url), 'utf8').replace('state w [nA]', 'state w [pA]');
+    const r2 = analyseStep(analyse(text).model.neurons[0]!, 1e-4);
+    expect(Math.abs(r2.relativeStepError / r.relativeStepError - 1)).toBeLessThan(1e-9);
+    expect(r2.stepRadius).toBeCloseTo(r.stepRadius, 14);
+  });
+});
+
+describe('LIF samples: exact propagator offered, accuracy figure against the closed form', () => {
+  const a = sample('lif_current.saltus');
+  const lif = a.model.neurons.find((n) => n.name === 'LifCurrent')!;
+
+  test('exact propagator equals Rotter & Diesmann 1999 with 1/C = 1/tau_m: tau_s/(tau_m - tau_s) (e^{-h/tau_m} - e^{-h/tau_s})', () => {
+    const r = analyseStep(lif, 1e-4);
+    expect(r.recommended).toBe('exact-propagator');
+    const P = r.exactPropagator!.matrix;
+    expect(Math.abs(P[0]![1]! / ((5 / 15) * (Math.exp(-0.1 / 20) - Math.exp(-0.1 / 5))) - 1)).toBeLessThan(1e-13);
+  });
+
+  test('relative one-step error = |M_VI - P_VI| / ||P||_F, by hand; step-inaccurate above the 1 % bound (dt = 3 ms)', () => {
+    const rel = (h: number): number => {
+      const em = Math.exp(-h / 20), es = Math.exp(-h / 5);
+      const pvi = (5 / 15) * (em - es), mvi = 1 - em; // exponential Euler holds I: V+ = V e^{-h/tau_m} + I (1 - e^{-h/tau_m})
+      return Math.abs(mvi - pvi) / Math.hypot(em, es, pvi);
+    };
+    const at01 = analyseStep(lif, 1e-4);
+    expect(Math.abs(at01.relativeStepError / rel(0.1) - 1)).toBeLessThan(1e-6);
+    const at3 = analyseStep(lif, 3e-3);
+    expect(Math.abs(at3.relativeStepError / rel(3) - 1)).toBeLessThan(1e-6);
+    expect(at3.accurate).toBe(false);
+    // the largest accurate dt solves rel(h) = 0.01; check it by bisection on the hand formula
+    let lo = 0.1, hi = 3;
+    for (let k = 0; k < 100; k++) { const mid = (lo + hi) / 2; if (rel(mid) <= 0.01) lo = mid; else hi = mid; }
+    expect(Math.abs(at3.accurateDt_s! * 1e3 / lo - 1)).toBeLessThan(1e-5);
+    const ds = stepDiagnostics(at3, lif, a.model.timestepDecl!.range);
+    expect(ds.map((d) => [d.code, d.severity])).toEqual([['step-inaccurate', 'warning']]);
+    expect(ds[0]!.range).toEqual(a.model.timestepDecl!.range);
+    expect(stepDiagnostics(at01, lif)).toEqual([]);
+  });
+
+  test('LIF first passage under constant drive: interpolated spike time within the bound dt^2/(8 tau) (Gerstner et al. 2014: T = tau ln(RI/(RI - theta)) = 10.9861228867 ms [V])', () => {
+    const n = only(`
+neuron Driven {
+  param tau = 10 [ms]
+  param RI = 1.5
+  param theta = 1
+  state V = 0
+  dV/dt = (RI - V) / tau
+  fire when V crosses theta up { V := 0 }
+}`);
+    const dt = 0.3e-3;
+    const r = analyseStep(n, dt);
+    // along the flow g = V - theta: g' = (RI - V)/tau, g'' = -g'/tau, so the bound is dt^2/(8 tau)
+    expect(r.crossing!.probe!.timeError_s).toBeCloseTo(dt * dt / (8 * 10e-3), 15);
+    const p = exactPropagator(buildScheme(n), undefined, dt)!;
+    let x = Float64Array.from([0]), t = 0;
+    for (let k = 0; k < 1000; k++) {
+      const next = exactStep(p, x);
+      if (x[0]! < 1 && next[0]! >= 1) break;
+      x = next; t += dt;
+    }
+    const located = interpolateCrossing(x[0]! - 1, exactStep(p, x)[0]! - 1, t, dt);
+    const exact = 10e-3 * Math.log(1.5 / 0.5);
+    expect(exact * 1e3).toBeCloseTo(10.9861228867, 9);
+    const err = Math.abs(located - exact);
+    expect(err).toBeGreaterThan(0);
+    expect(err).toBeLessThanOrEqual(r.crossing!.probe!.timeError_s);
+  });
+});
+
+describe('faces: JSON contract, text, hover', () => {
+  test('JSON has exactly the contract keys, SI seconds, null where stable at every dt', () => {
+    const a = sample('lif_current.saltus');
+    const reps = a.model.neurons.map((n) => analyseStep(n, a.model.timestepSI!));
+    const json = stepReportJson(reps);
+    expect(Object.keys(json)).toEqual(['models']);
+    const m = json.models[0]!;
+    expect(Object.keys(m)).toEqual(['name', 'dt_s', 'reference', 'states', 'stepRadius', 'exactRadius', 'relativeStepError', 'maxStableDt_s', 'exactPropagator']);
+    expect(m).toMatchObject({ name: 'LifCurrent', dt_s: 1e-4, reference: 'rest', states: { V: { scheme: 'exponential-euler' }, I: { scheme: 'exact' } }, maxStableDt_s: null });
+    expect(m.exactPropagator).toHaveLength(2);
+    expect(JSON.parse(JSON.stringify(json))).toEqual(json);
+  });
+
+  test('JSON of the unstable oscillator carries maxStableDt_s in seconds; non-finite figures become null', () => {
+    const osc = only(`
+neuron Resonator {
+  param omega = 628.3185307179586 [1/s]
+  param g = 200 [1/s]
+  state x = 0
+  state v = 0 [1/s]
+  dx/dt = v
+  dv/dt = -omega^2 * x - g * v
+}`);
+    const m = stepReportJson([analyseStep(osc, 1e-3)]).models[0]!;
+    expect(m.maxStableDt_s!).toBeCloseTo(200 / 628.3185307179586 ** 2, 12);
+    const bad = stepReportJson([analyseStep(osc, NaN)]).models[0]!;
+    expect(bad.dt_s).toBeNull();
+    expect(bad.stepRadius).toBeNull();
+  });
+
+  test('text and hover name the scheme of each state and the figures', () => {
+    const a = sample('adex.saltus');
+    const r = analyseStep(a.model.neurons[0]!, a.model.timestepSI!);
+    const text = stepReportText([r]);
+    expect(text).toContain('AdEx  (dt = 0.1 ms)');
+    expect(text).toContain('linearised-exponential-euler');
+    expect(text).toMatch(/spectral radius: step M 0\.99\d+/);
+    const hoverV = stepHoverMarkdown(r, 'V');
+    expect(hoverV).toContain('`linearised-exponential-euler`');
+    expect(stepHoverMarkdown(r)).toContain('**Step analysis of `AdEx`** at dt = 0.1 ms');
+  });
+
+  test('every sample: no throw, finite figures for well-formed neurons, no step error at the sample dt', () => {
+    for (const f of ['adaptive_lif.saltus', 'adex.saltus', 'izhikevich.saltus', 'lif_current.saltus', 'mistakes.saltus', 'readout.saltus']) {
+      const a = sample(f);
+      for (const n of a.model.neurons) {
+        const r = analyseStep(n, a.model.timestepSI ?? 1e-4);
+        if (n.wellFormed) expect(Number.isFinite(r.stepRadius)).toBe(true);
+        expect(stepDiagnostics(r, n).some((d) => d.severity === 'error')).toBe(false);
+        expect(typeof stepReportText([r])).toBe('string');
+      }
+    }
+  });
+});
