@@ -121,6 +121,11 @@ describe('quick fixes', () => {
     expect(fixed).toBe(base);
   });
 
+  it('removes a second declaration of a name with its line', () => {
+    const text = base.replace('  state V = 0\n', '  state V = 0\n  param tau_m = 10 [ms] "again"\n');
+    expect(fixOnce(text, 'duplicate-declaration')).toBe(base);
+  });
+
   it('offers nothing for a range away from the diagnostics', () => {
     const text = base.replace('-V / tau_m', '-V / tau_n');
     expect(quickFixes(analyse(text), { start: 0, end: 3 })).toEqual([]);

@@ -5,7 +5,7 @@ import { analyse } from '../server/src/pipeline';
 import { definition, highlights, references } from '../server/src/outputs/navigation';
 import { isRefusal, prepareRename, rename } from '../server/src/outputs/rename';
 import { applyEdits } from '../server/src/outputs/codeActions';
-import { marked, slices } from './helpers/cursor';
+import { cursor, marked, slices } from './helpers/cursor';
 
 const LIF = `timestep 0.1 [ms]
 neuron Lif {
@@ -148,5 +148,16 @@ describe('rename', () => {
     expect(errorFor('tau_mem')).toBe('accepted');
     const n = rename(a, at('neuron Out', 8), 'Lif');
     expect(isRefusal(n) && n.error).toMatch(/already declared/);
+  });
+});
+
+describe('test helper: cursor and range markers', () => {
+  it('strips ‸ / $0 and «» and reports UTF-16 offsets', () => {
+    expect(cursor('a🐝b‸c')).toEqual({ text: 'a🐝bc', offset: 4 });
+    expect(cursor('x$0y')).toEqual({ text: 'xy', offset: 1 });
+    const m = marked('«ab» c «d»');
+    expect(m).toEqual({ text: 'ab c d', offset: -1, ranges: [{ start: 0, end: 2 }, { start: 5, end: 6 }] });
+    expect(() => cursor('no marker')).toThrow();
+    expect(() => marked('«open')).toThrow();
   });
 });

@@ -148,7 +148,7 @@ neuron Driven {
     // along the flow g = V - theta: g' = (RI - V)/tau, g'' = -g'/tau, so the bound is dt^2/(8 tau)
     expect(r.crossing!.probe!.timeError_s).toBeCloseTo(dt * dt / (8 * 10e-3), 15);
     const p = exactPropagator(buildScheme(n), undefined, dt)!;
-    let x = Float64Array.from([0]), t = 0;
+    let x: Float64Array = Float64Array.from([0]), t = 0;
     for (let k = 0; k < 1000; k++) {
       const next = exactStep(p, x);
       if (x[0]! < 1 && next[0]! >= 1) break;

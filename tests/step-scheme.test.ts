@@ -256,3 +256,35 @@ neuron Slow {
     }
   });
 });
+
+describe('robustness: awkward flows never throw and stay bounded', () => {
+  const flows = [
+    'dV/dt = -abs(V) / tau',                 // kink at the reference V = 0: derivative undefined
+    'dV/dt = log(V) / tau',                  // -Infinity at V = 0
+    'dV/dt = exp(V * 1e6) / tau',            // overflow away from 0
+    'dV/dt = (max(V, 0.5) - V) / tau',
+    'dV/dt = V / (tau - tau)',               // division by zero
+    'dV/dt = 1e300 * V / tau',
+    'dV/dt = sqrt(V - 1) / tau',             // NaN at the reference
+    'dV/dt = V^3 / tau - V / tau',
+    'dV/dt = sigmoid(V) / tau - V / tau',
+    'dV/dt = tanh(V) * t / tau / tau',       // time-dependent
+  ];
+  for (const f of flows) {
+    test(f, async () => {
+      const { stepReportJson: json, stepReportText: text, stepHoverMarkdown: hover } = await import('../server/src/step');
+      const a = analyse(`timestep 0.1 [ms]\nneuron N {\n param tau = 10 [ms]\n state V = 0\n ${f}\n fire when V crosses 1 up { V := 0 }\n}`);
+      const n = a.model.neurons[0]!;
+      const started = performance.now();
+      const r = analyseStep(n, 1e-4);
+      expect(performance.now() - started).toBeLessThan(2000);
+      const j = json([r]);
+      expect(JSON.parse(JSON.stringify(j))).toEqual(j);
+      expect(typeof text([r])).toBe('string');
+      expect(typeof hover(r, 'V')).toBe('string');
+      expect(Array.isArray(stepDiagnostics(r, n))).toBe(true);
+      const s = buildScheme(n);
+      expect(stepOnce(s, [0.3], undefined, 1e-4)).toHaveLength(1);
+    });
+  }
+});

@@ -191,7 +191,7 @@ const { expr } = fc.letrec<{ expr: Sym }>((tie) => ({
 const coordinate = fc.double({ min: -2, max: 2, noNaN: true }).map((v) => (Math.abs(v) < 1e-6 ? 0 : v));
 const point = fc.tuple(coordinate, coordinate, coordinate).map(([x, y, z]) => ({ x, y, z }));
 // Fixed seed for reproducible CI; SYMBOLIC_SEED / SYMBOLIC_RUNS explore further.
-const RUNS = { numRuns: Number(process.env.SYMBOLIC_RUNS ?? 400), seed: Number(process.env.SYMBOLIC_SEED ?? 20250101) };
+const RUNS = { numRuns: Number(process.env.SYMBOLIC_RUNS ?? 1500), seed: Number(process.env.SYMBOLIC_SEED ?? 20250101) };
 /** A fresh deep copy (defeats normalise's memo of canonical nodes). */
 const clone = (s: Sym): Sym => JSON.parse(JSON.stringify(s)) as Sym;
 

@@ -185,10 +185,10 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   states.forEach((x, i) => {
     const where: Where = { kind: 'flow', state: x };
     const exprs = [f[i]!, ...jacobian[i]!, ...gradientParams.map((p) => derivative(f[i]!, p))];
-    work.issues.push(...nonSmoothIssues(where, [f[i]!], states), ...denominatorIssues(where, exprs, states));
+    work.issues.push(...nonSmoothIssues(where, [f[i]!], [...states, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   });
 
-  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, work) : null;
+  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, gradientParams, work) : null;
   const incoming = neuron.incoming ? deriveIncoming(neuron, states, lambda, f, gradientParams, work) : null;
 
   const paramGradients = new Map<string, ParamGradient>();
@@ -232,7 +232,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   return { jacobian, adjointFlow, spike, incoming, paramGradients, trajectory };
 }
 
-function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], work: Work): SpikeDerivation {
+function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): SpikeDerivation {
   const fire = neuron.fire!;
   const where: Where = { kind: 'fire' };
   const g = fire.guard;
@@ -268,7 +268,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
 
   if (surfaceUsed && rule) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
   work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
-    + (neuron.incoming ? ' (for the implicit self-projection, the targets are other neurons of this model)' : ''));
+    + (neuron.incoming ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
 
   // Grazing: the slope can vanish on the guard surface.
   const grazing = vanishingConditions(gdot, states);
@@ -277,7 +277,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
       message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: the spike time has no derivative there (guard slope ${slopeText(gdot)})` });
   }
   const jumpExprs = [...h, ...hx.flat(), g, ...gx];
-  work.issues.push(...nonSmoothIssues(where, [g, ...h], states), ...denominatorIssues(where, jumpExprs, states));
+  work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
   if (!dependsOnState(gdot, states) && gdot.k === 'num' && gdot.v === 0) {
     work.notes.push('the guard slope is identically zero: the guard is never crossed transversally');
   }
@@ -301,7 +301,7 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   states.forEach((x, j) => jump.set(x, work.simp(add(...states.map((_, i) => mul(ry[i]![j]!, lambda[i]!))), `incoming jump of lambda_${x}`, where)));
   const weightGradient = work.simp(dot(r.map((ri, i) => [lambda[i]!, derivative(ri, w)])), 'weight gradient', where);
   const exprs = [...r, ...ry.flat(), ...r.map((ri) => derivative(ri, w)), ...gradientParams.flatMap((p) => r.map((ri) => derivative(ri, p)))];
-  work.issues.push(...nonSmoothIssues(where, r, states), ...denominatorIssues(where, exprs, states));
+  work.issues.push(...nonSmoothIssues(where, r, [...states, w, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   const record = states.filter((x) => [coupling, weightGradient, ...jump.values()].some((e) => dependsOn(e, x)));
   return { weight: w, jump, weightGradient, coupling, record };
 }

@@ -1,8 +1,9 @@
 // Where the derived equations stop being differentiable: kinks of abs/min/max (code
 // `non-smooth`) and denominators (or log/sqrt arguments) that can vanish with the state
 // (code `vanishing-denominator`). Range-free: diagnostics.ts maps `where` to text ranges.
-// Invariant: only conditions that depend on a state or on t are reported (parameters are
-// fixed non-zero constants); each condition is reported once per equation.
+// Invariant: denominators are reported only when they depend on a state or on t (parameters
+// are fixed non-zero constants); kinks also when they move with the weight or a parameter
+// whose gradient is derived (abs(w) has no derivative at w = 0); each once per equation.
 import { type Sym, freeSymbols } from '../symbolic/sym';
 import { denominators, nonSmoothPoints } from '../symbolic/derivative';
 import { key } from '../symbolic/normalise';
@@ -33,8 +34,10 @@ export function whereText(w: Where): string {
 const varies = (s: Sym, states: readonly string[]): boolean =>
   [...freeSymbols(s)].some((n) => n === TIME || states.includes(n));
 
-/** Kinks of abs/min/max in the given expressions of one equation. */
-export function nonSmoothIssues(where: Where, exprs: readonly Sym[], states: readonly string[]): DerivationIssue[] {
+/** Kinks of abs/min/max in the given expressions of one equation that move with `names`
+ *  (states, and the weight and parameters whose gradients are derived). */
+export function nonSmoothIssues(where: Where, exprs: readonly Sym[], names: readonly string[]): DerivationIssue[] {
+  const states = names;
   const seen = new Set<string>();
   const out: DerivationIssue[] = [];
   for (const e of exprs) {

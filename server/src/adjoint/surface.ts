@@ -60,12 +60,28 @@ export function asEquation(f: Sym, states: readonly string[]): Condition {
   return { lhs, rhs };
 }
 
+/** True when s > 0 for every real value of its symbols (a cheap sufficient test:
+ *  positive constants, even powers, exp, sums and products of those). */
+export function provablyPositive(s: Sym): boolean {
+  const nonNegative = (t: Sym): boolean =>
+    provablyPositive(t) || (t.k === 'pow' && t.exp.k === 'num' && Number.isInteger(t.exp.v) && t.exp.v % 2 === 0)
+    || (t.k === 'fn' && t.name === 'abs');
+  switch (s.k) {
+    case 'num': return s.v > 0;
+    case 'add': return s.terms.every(nonNegative) && s.terms.some(provablyPositive);
+    case 'mul': return s.factors.every(provablyPositive);
+    case 'pow': return provablyPositive(s.base);
+    case 'fn': return s.name === 'exp' || s.name === 'sigmoid' || (s.name === 'sqrt' && provablyPositive(s.args[0]!));
+    default: return false;
+  }
+}
+
 /** The conditions under which s (a product) vanishes through a state- or time-dependent factor. */
 export function vanishingConditions(s: Sym, states: readonly string[]): Condition[] {
   const n = normalise(s);
   const out: Condition[] = [];
   const visit = (f: Sym): void => {
-    if (!varies(f, states)) return;
+    if (!varies(f, states) || provablyPositive(f)) return;
     if (f.k === 'mul') { f.factors.forEach(visit); return; }
     if (f.k === 'pow') {
       if (f.exp.k === 'num' && f.exp.v > 0) visit(f.base);

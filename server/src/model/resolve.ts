@@ -7,7 +7,7 @@
 // gives one `unknown-name` and no follow-on `unit-mismatch`.
 import type * as A from '../syntax/ast';
 import * as S from '../symbolic/sym';
-import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, type Dim } from '../units/dimension';
+import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, isDimensionless, type Dim } from '../units/dimension';
 import { parseUnit } from '../units/unitParse';
 import type { Diagnostic, Fix } from '../outputs/diagnostic';
 import { constantValue, describe, lower, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
@@ -272,7 +272,8 @@ function checkFlowDim(m: A.FlowEq, target: SymbolInfo, rhs: Dim, params: ParamIn
     else if (dimEqual(dimMul(rhs, p.dim!), want)) fixes.push({ title: `Multiply the right side by '${p.name}'`, edits: wrap(v, '*', p.name), preferred: fixes.length === 0 });
   }
   ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: v.range,
-    message: `d${target.name}/dt must be ${describe(target.dim, ctx)} per time (${describe(want, ctx)}); the right side is ${describe(rhs, ctx)}`
+    message: (isDimensionless(target.dim!) ? `d${target.name}/dt must be a rate (${describe(want, ctx)}) because ${target.name} is dimensionless`
+      : `d${target.name}/dt must be ${describe(target.dim, ctx)} per time (${describe(want, ctx)})`) + `; the right side is ${describe(rhs, ctx)}`
       + (fixes.length ? ` — did you forget to ${fixes[0]!.title.startsWith('Divide') ? 'divide' : 'multiply'} by ${timeParams.find((p) => fixes[0]!.title.includes(`'${p.name}'`))?.name}?` : ''),
     ...(fixes.length ? { fixes } : {}) });
 }

@@ -16,6 +16,7 @@ type FixBuilder = (a: Analysis, d: Diagnostic) => Fix[];
 /** Fixes that the diagnostics themselves do not carry, keyed by diagnostic code. */
 export const FIX_BUILDERS: Partial<Record<DiagnosticCode, FixBuilder>> = {
   'unused-declaration': removeUnusedDeclaration,
+  'duplicate-declaration': removeDuplicateDeclaration,
 };
 
 /** All fixes for one diagnostic: its own first, then the ones built for its code. */
@@ -46,15 +47,31 @@ export function applyEdits(text: string, edits: readonly { range: A.Range; newTe
 function removeUnusedDeclaration(a: Analysis, d: Diagnostic): Fix[] {
   const sym = a.model.symbols.find((s) => (s.kind === 'param' || s.kind === 'let') && s.nameRange.start === d.range.start);
   if (!sym) return [];
-  let { start, end } = sym.declRange;
-  const lineStart = a.text.lastIndexOf('\n', start - 1) + 1;
-  let lineEnd = a.text.indexOf('\n', end);
-  if (lineEnd < 0) lineEnd = a.text.length;
-  const before = a.text.slice(lineStart, start), after = a.text.slice(end, lineEnd);
-  const afterCode = after.replace(/#.*$/, '');
-  if (before.trim() === '' && afterCode.trim() === '' && !after.includes('#')) {
-    start = lineStart;
-    end = Math.min(a.text.length, lineEnd + 1);
+  return [{ title: `Remove the unused ${sym.kind} '${sym.name}'`, edits: [removal(a.text, sym.declRange)] }];
+}
+
+/** A second param/state/let of the same name (the resolver ignores it): delete it. */
+function removeDuplicateDeclaration(a: Analysis, d: Diagnostic): Fix[] {
+  for (const item of a.parse.file.items) {
+    if (item.kind !== 'neuron') continue;
+    for (const m of item.members) {
+      if ((m.kind === 'param' || m.kind === 'state' || m.kind === 'let') && m.name.range.start === d.range.start && m.name.range.end === d.range.end) {
+        return [{ title: `Remove this second declaration of '${m.name.name}'`, edits: [removal(a.text, m.range)] }];
+      }
+    }
   }
-  return [{ title: `Remove the unused ${sym.kind} '${sym.name}'`, edits: [{ range: { start, end }, newText: '' }] }];
+  return [];
+}
+
+/** Deletes `range`, with its whole line when nothing else (but spaces) is on it. */
+function removal(text: string, range: A.Range): { range: A.Range; newText: string } {
+  let { start, end } = range;
+  const lineStart = text.lastIndexOf('\n', start - 1) + 1;
+  let lineEnd = text.indexOf('\n', end);
+  if (lineEnd < 0) lineEnd = text.length;
+  if (text.slice(lineStart, start).trim() === '' && text.slice(end, lineEnd).trim() === '') {
+    start = lineStart;
+    end = Math.min(text.length, lineEnd + 1);
+  }
+  return { range: { start, end }, newText: '' };
 }

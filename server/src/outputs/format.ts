@@ -59,6 +59,10 @@ export function formatText(text: string): string | undefined {
     curOpens = false;
   };
 
+  // For each item, the first token after it (comments are placed by what follows them).
+  const nextToken: (Item | undefined)[] = new Array(items.length);
+  for (let k = items.length - 1, seen: Item | undefined; k >= 0; k--) { nextToken[k] = seen; if (!items[k]!.comment) seen = items[k]; }
+
   let depth = 0;
   let inlineDepth = 0;
   let endedByComment = false;
@@ -70,7 +74,7 @@ export function formatText(text: string): string | undefined {
     if (it.comment) {
       if (prev && breaks === 0 && cur !== null) { cur.commentAt = cur.text.length; cur.text += '  ' + it.text; }
       else {
-        const next = items.slice(k + 1).find((x) => !x.comment);
+        const next = nextToken[k];
         const between = !next || isStart(next.index) || next.type === 'RCurly';
         newLine(INDENT.repeat(depth) + (between ? '' : CONTINUATION), breaks >= 2);
         cur!.text += it.text;

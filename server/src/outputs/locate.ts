@@ -13,8 +13,9 @@ export const tokenRange = (t: IToken): A.Range => ({ start: t.startOffset, end: 
 export const contains = (r: A.Range, offset: number): boolean => r.start <= offset && offset < r.end;
 /** Contains, counting the end position too (caret just after the last character). */
 export const touches = (r: A.Range, offset: number): boolean => r.start <= offset && offset <= r.end;
+/** Ranges share a character, or an empty one (a caret) sits inside or at an end of the other. */
 export const overlaps = (a: A.Range, b: A.Range): boolean =>
-  a.start < b.end && b.start < a.end || (a.start === a.end && touches(b, a.start)) || (b.start === b.end && touches(a, b.start));
+  (a.start < b.end && b.start < a.end) || (a.start === a.end && touches(b, a.start)) || (b.start === b.end && touches(a, b.start));
 
 /** Index of the first token that ends after `offset` (binary search; tokens are sorted). */
 function firstEndingAfter(tokens: readonly IToken[], offset: number): number {

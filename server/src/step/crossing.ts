@@ -3,8 +3,8 @@
 // in the declared direction between t_k and t_k + dt is located by linear interpolation
 //   t* ~ t_k + dt g_k / (g_k - g_{k+1}).
 // Bound: the linear interpolant p of g on one step satisfies |g - p| <= dt^2 max|g''| / 8
-// (interpolation remainder theorem, e.g. Burden & Faires, Numerical Analysis, Thm. 3.3 with
-// n = 1), so where |g'| >= G1 near the crossing the located time is off by at most
+// (the Lagrange interpolation remainder for n = 1, e.g. Burden & Faires, Numerical Analysis;
+// cited from memory), so where |g'| >= G1 near the crossing the located time is off by at most
 //   dt^2 max|g''| / (8 G1)
 // (plus the effect of the scheme's own state error on g). Without interpolation (event at
 // the grid point after the crossing) the error is up to dt. g' and g'' are the symbolic

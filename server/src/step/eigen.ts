@@ -2,7 +2,7 @@
 // to upper Hessenberg form by stabilised elementary similarity transforms, and the
 // Francis double-shift QR iteration with exceptional shifts. This follows the classic
 // EISPACK routines balanc / elmhes / hqr (Wilkinson & Reinsch 1971, Handbook for Automatic
-// Computation II, contributions II/11, II/13, II/14), as they are commonly transcribed.
+// Computation II; cited from memory), as they are commonly transcribed.
 //
 // Why our own: the analyses must finish on every input (a language server runs them on
 // each keystroke); common library implementations of this iteration loop without an

@@ -1,5 +1,5 @@
 // The phi functions of exponential integrators (Hochbruck & Ostermann 2010, Acta Numerica
-// 19:209, eq. 2.10): phi1(z) = (e^z - 1)/z = sum_k z^k/(k+1)!, and its derivative
+// 19:209; from memory): phi1(z) = (e^z - 1)/z = sum_k z^k/(k+1)!, and its derivative
 // phi1'(z) = (e^z (z - 1) + 1)/z^2 = sum_{k>=1} k z^(k-1)/(k+1)!.
 // Accuracy: phi1 uses expm1 (no cancellation) and a 3-term series for |z| < 1e-5, where the
 // first omitted term z^3/24 is below 5e-17 relative; phi1' uses its power series for

@@ -216,7 +216,11 @@ export function stepJacobianAt(scheme: StepScheme, x: ArrayLike<number>, params:
       const p1 = phi1(z);
       const second = f[i] === 0 ? 0 : f[i]! * dt * dphi1(z);
       for (let j = 0; j < n; j++) {
-        M[i]![j]! += dt * (J[i]![j]! * p1 + (second === 0 || H[i]![j] === 0 ? 0 : second * H[i]![j]!));
+        const curvature = second === 0 || H[i]![j] === 0 ? 0 : second * H[i]![j]!;
+        // a_i is d f_i/d x_i, so the diagonal 1 + dt J_ii phi1(z) is e^z; written as e^z (plus
+        // the rounding difference J_ii - a_i) it keeps its relative accuracy when e^z is tiny
+        if (i === j) M[i]![i] = Math.exp(z) + dt * ((J[i]![i]! - a[i]!) * p1 + curvature);
+        else M[i]![j] = dt * (J[i]![j]! * p1 + curvature);
       }
     }
     return M;
