@@ -3,7 +3,7 @@
 // (docs/language.md "Projections").
 import type * as A from '../syntax/ast';
 import type { LowerContext } from './lower';
-import { closest } from './suggest';
+import { suggestions, unknownName } from './suggest';
 import type { Connection, ResolvedNeuron } from './types';
 
 export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[], ctx: LowerContext): Connection[] {
@@ -46,9 +46,6 @@ export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[]
 function endpoint(id: A.Ident, byName: Map<string, ResolvedNeuron>, ctx: LowerContext): ResolvedNeuron | undefined {
   const n = byName.get(id.name);
   if (n) { ctx.references.push({ range: id.range, target: n.symbol }); return n; }
-  const guess = closest(id.name, byName.keys());
-  ctx.diagnostics.push({ severity: 'error', code: 'unknown-name', range: id.range,
-    message: `no neuron named '${id.name}' in this file` + (guess ? `; did you mean '${guess}'?` : ''),
-    ...(guess ? { fixes: [{ title: `Change to '${guess}'`, edits: [{ range: id.range, newText: guess }], preferred: true }] } : {}) });
+  ctx.diagnostics.push(unknownName(id.range, `no neuron named '${id.name}' in this file`, suggestions(id.name, byName.keys())));
   return undefined;
 }

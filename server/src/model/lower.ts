@@ -13,7 +13,7 @@ import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, dimPow, isDimensionless,
 import { formatDim } from '../units/format';
 import type { Diagnostic } from '../outputs/diagnostic';
 import type { SymbolInfo } from './types';
-import { closest } from './suggest';
+import { suggestions, unknownName } from './suggest';
 
 /** What a name means inside the expression being lowered. */
 export type Binding =
@@ -89,13 +89,7 @@ function lowerName(e: A.NameExpr, scope: Scope, ctx: LowerContext): Lowered {
   }
   const b = scope.lookup(e.name);
   if (!b) {
-    const guess = closest(e.name, scope.names());
-    ctx.diagnostics.push({
-      severity: 'error', code: 'unknown-name',
-      message: `'${e.name}' is not declared here` + (guess ? `; did you mean '${guess}'?` : ''),
-      range: e.range,
-      ...(guess ? { fixes: [{ title: `Change to '${guess}'`, edits: [{ range: e.range, newText: guess }], preferred: true }] } : {}),
-    });
+    ctx.diagnostics.push(unknownName(e.range, `'${e.name}' is not declared here`, suggestions(e.name, scope.names())));
     return {};
   }
   ctx.references.push({ range: e.range, target: b.info });
@@ -167,10 +161,8 @@ export function constantValue(s: S.Sym): number | undefined {
 function lowerCall(e: A.CallExpr, scope: Scope, ctx: LowerContext): Lowered {
   const name = e.callee.name;
   if (!(S.FUNCTION_NAMES as readonly string[]).includes(name)) {
-    const guess = closest(name, S.FUNCTION_NAMES);
-    ctx.diagnostics.push({ severity: 'error', code: 'unknown-name', range: e.callee.range,
-      message: `'${name}' is not a function; the functions are ${S.FUNCTION_NAMES.join(', ')}` + (guess ? ` (did you mean '${guess}'?)` : ''),
-      ...(guess ? { fixes: [{ title: `Change to '${guess}'`, edits: [{ range: e.callee.range, newText: guess }], preferred: true }] } : {}) });
+    ctx.diagnostics.push(unknownName(e.callee.range, `'${name}' is not a function`, suggestions(name, S.FUNCTION_NAMES),
+      `; the functions are ${S.FUNCTION_NAMES.join(', ')}`));
     for (const a of e.args) lower(a, scope, ctx);
     return {};
   }

@@ -12,7 +12,7 @@ import { parseUnit } from '../units/unitParse';
 import type { Diagnostic, Fix } from '../outputs/diagnostic';
 import { constantValue, describe, lower, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
 import { resolveConnections } from './connections';
-import { closest } from './suggest';
+import { suggestions, unknownName } from './suggest';
 import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SymbolInfo } from './types';
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
@@ -31,7 +31,8 @@ export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): Reso
 
   for (const item of file.items) {
     if (item.kind === 'neuron') {
-      const n = resolveNeuron(item, ctx, symbols);
+      const own: SymbolInfo[] = [];
+      const n = resolveNeuron(item, ctx, own);
       if (!n) continue;
       const first = seen.get(n.name);
       if (first) {
@@ -41,6 +42,7 @@ export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): Reso
       }
       seen.set(n.name, n.symbol);
       neurons.push(n);
+      symbols.push(...own);
     } else if (item.kind === 'timestep') {
       if (timestepDecl) {
         ctx.diagnostics.push({ severity: 'error', code: 'duplicate-declaration', range: item.keywordRange,
@@ -254,10 +256,8 @@ function stateTarget(id: A.Ident, table: Map<string, { info: SymbolInfo }>, neur
     return undefined;
   }
   const states = [...table.values()].filter((e) => e.info.kind === 'state').map((e) => e.info.name);
-  const guess = closest(id.name, states);
-  ctx.diagnostics.push({ severity: 'error', code: 'unknown-name', range: id.range,
-    message: `'${id.name}' is not a state of ${neuron}` + (guess ? `; did you mean '${guess}'?` : `; declare it with 'state ${id.name} = ...'`),
-    ...(guess ? { fixes: [{ title: `Change to '${guess}'`, edits: [{ range: id.range, newText: guess }], preferred: true }] } : {}) });
+  ctx.diagnostics.push(unknownName(id.range, `'${id.name}' is not a state of ${neuron}`, suggestions(id.name, states),
+    `; declare it with 'state ${id.name} = ...'`));
   return undefined;
 }
 
