@@ -8,6 +8,7 @@ import * as vscode from 'vscode';
 import { LanguageClient, State, TransportKind, type LanguageClientOptions, type ServerOptions } from 'vscode-languageclient/node';
 // The reply type of the server's `saltus/analysisSummary` request (a type only: erased).
 import type { AnalysisSummary } from '../../server/src/outputs/summary';
+import { showAdjoint, watchAdjoint } from './adjointPanel';
 
 let client: LanguageClient | undefined;
 
@@ -39,8 +40,8 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
     const doc = vscode.window.activeTextEditor?.document;
     if (!doc || doc.languageId !== 'saltus') return;
     try {
-      const s = await lc.sendRequest<AnalysisSummary>('saltus/analysisSummary', { uri: doc.uri.toString() });
-      if (ticket !== asked) return;
+      const s = await lc.sendRequest<AnalysisSummary | null>('saltus/analysisSummary', { uri: doc.uri.toString() });
+      if (ticket !== asked || !s) return;
       const n = s.neurons.length;
       status.text = `${n} neuron${n === 1 ? '' : 's'} · ${s.errors} error${s.errors === 1 ? '' : 's'}`;
       status.severity = s.errors > 0 ? vscode.LanguageStatusSeverity.Warning : vscode.LanguageStatusSeverity.Information;
@@ -63,8 +64,9 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
     vscode.commands.registerCommand('saltus.restartServer', async () => {
       await (lc.state === State.Stopped ? lc.start() : lc.restart());
     }),
-    // LEAD: register "Saltus: Show derived adjoint" (saltus.showAdjoint) here, and add it to
-    // package.json contributes.commands (tests/client.test.ts checks that the two agree).
+    vscode.commands.registerCommand('saltus.showAdjoint', (uri?: string | vscode.Uri) =>
+      showAdjoint(context, lc, typeof uri === 'string' ? vscode.Uri.parse(uri) : uri)),
+    watchAdjoint(context, lc),
   );
 
   try {

@@ -9,6 +9,7 @@ import { resolveFile } from './model/resolve';
 import type { ResolvedFile } from './model/types';
 import type { Diagnostic } from './outputs/diagnostic';
 import { LineIndex } from './outputs/lineIndex';
+import { adjointDiagnostics, derivationFor, type NeuronDerivation } from './adjoint/index';
 
 export interface Analysis {
   text: string;
@@ -49,6 +50,11 @@ export interface DerivedOptions {
   timestepSI?: number;
 }
 
+/** The adjoint derivation of every well-formed neuron (cached by model content in adjoint/). */
+export function derivations(a: Analysis): NeuronDerivation[] {
+  return a.model.neurons.filter((n) => n.wellFormed).map((n) => derivationFor(n));
+}
+
 /**
  * The slow checks: step analysis and adjoint derivation diagnostics (grazing crossings,
  * non-smooth points, unstable steps). Cached per model content inside those stages, so
@@ -57,5 +63,15 @@ export interface DerivedOptions {
  */
 export function derivedDiagnostics(a: Analysis, opts: DerivedOptions = {}): Diagnostic[] {
   void opts;
-  return clampAll([], a.text.length);
+  const out: Diagnostic[] = [];
+  for (const n of a.model.neurons) {
+    if (!n.wellFormed) continue;
+    try {
+      out.push(...adjointDiagnostics(derivationFor(n), n));
+    } catch (err) {
+      out.push({ severity: 'warning', code: 'derivation-budget', range: n.symbol.nameRange,
+        message: `the adjoint of ${n.name} could not be derived: ${(err as Error).message}` });
+    }
+  }
+  return clampAll(out, a.text.length);
 }

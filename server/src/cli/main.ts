@@ -9,13 +9,14 @@
 import { UsageError, type CliIO, type Command } from './command';
 import { checkCommand } from './commands/check';
 import { lspCommand } from './commands/lsp';
+import { adjointCommand } from './commands/adjoint';
 import { SALTUS_VERSION } from './version';
 
 /** The subcommands, in the order `saltus --help` lists them. */
 export const COMMANDS: readonly Command[] = [
   checkCommand,
   lspCommand,
-  // LEAD: `saltus step` and `saltus adjoint` go here, one line each (cli/commands/step.ts, adjoint.ts).
+  adjointCommand,
 ];
 
 export function usageText(): string {

@@ -94,9 +94,3 @@ export class CScope {
     return out;
   }
 }
-
-/** `(void)x;` for each listed parameter that the code lines never mention (comments excluded). */
-export function unusedParams(names: readonly string[], code: readonly string[]): string[] {
-  const text = code.filter((l) => !/^\s*(\/\*|\*|\/\/)/.test(l)).map((l) => l.replace(/\/\*.*?\*\//g, '')).join('\n');
-  return names.filter((n) => !new RegExp(`(?<![\\w.>])${n}\\b`).test(text)).map((n) => `(void)${n};`);
-}

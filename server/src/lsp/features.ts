@@ -42,21 +42,26 @@ const OUTLINE_KIND: Record<OutlineKind, SymbolKind> = {
   equation: SymbolKind.Function, fire: SymbolKind.Event, incoming: SymbolKind.Event, connect: SymbolKind.Interface,
 };
 
+export type Guard = <P extends { textDocument?: { uri?: string } }, R>(name: string, empty: R, fn: (a: Analysis, uri: string, p: P) => R) => (p: P) => R;
+
+/** Wraps a handler: unknown documents give `empty`, an exception is logged and gives `empty`. */
+export function makeGuard(state: DocumentState): Guard {
+  return (name, empty, fn) => (p) => {
+    try {
+      const uri = p?.textDocument?.uri;
+      const c = typeof uri === 'string' ? state.analysisFor(uri) : undefined;
+      if (!c || !uri) return empty;
+      return fn(c.analysis, uri, p);
+    } catch (e) {
+      if (e instanceof ResponseError) throw e;
+      state.log(`saltus: ${name} failed: ${(e as Error)?.stack ?? String(e)}`);
+      return empty;
+    }
+  };
+}
+
 export function registerFeatures(connection: Connection, state: DocumentState, f: Features, sections: readonly HoverSection[]): void {
-  function guarded<P extends { textDocument?: { uri?: string } }, R>(name: string, empty: R, fn: (a: Analysis, uri: string, p: P) => R): (p: P) => R {
-    return (p: P) => {
-      try {
-        const uri = p?.textDocument?.uri;
-        const c = typeof uri === 'string' ? state.analysisFor(uri) : undefined;
-        if (!c || !uri) return empty;
-        return fn(c.analysis, uri, p);
-      } catch (e) {
-        if (e instanceof ResponseError) throw e;
-        state.log(`saltus: ${name} failed: ${(e as Error)?.stack ?? String(e)}`);
-        return empty;
-      }
-    };
-  }
+  const guarded = makeGuard(state);
 
   connection.onHover(guarded('hover', null, (a, _uri, p) => {
     const h = f.hover(a, toOffset(a, p.position), sections);

@@ -5,6 +5,7 @@
 // Invariant: the process exits 0 after `shutdown` + `exit`, 1 on `exit` without shutdown.
 import { createConnection, ProposedFeatures } from 'vscode-languageserver/node';
 import type { HoverSection } from '../outputs/hover';
+import { DERIVED_SECTIONS } from '../outputs/derivedHover';
 import { startServer, type ServerOptions } from './server';
 
 /**
@@ -12,7 +13,7 @@ import { startServer, type ServerOptions } from './server';
  * basic hover, in this order. Each gets { analysis, offset, target, neuron } and returns
  * Markdown or undefined; one that throws is skipped.
  */
-export const DERIVED_HOVER_SECTIONS: HoverSection[] = [];
+export const DERIVED_HOVER_SECTIONS: HoverSection[] = DERIVED_SECTIONS;
 
 export function runLanguageServer(options: ServerOptions = {}): void {
   const connection = createConnection(ProposedFeatures.all);

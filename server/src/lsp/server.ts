@@ -17,6 +17,7 @@ import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/seman
 import { toLspDiagnostic } from './convert';
 import { DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
 import { DEFAULT_FEATURES, registerFeatures, type Features } from './features';
+import { registerDerivedFeatures } from './derivedFeatures';
 
 export interface ServerOptions {
   /** Derived hover sections (step analysis, adjoint), appended after the basic hover. */
@@ -143,6 +144,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
         documentFormattingProvider: true,
         codeActionProvider: { codeActionKinds: [CodeActionKind.QuickFix] },
         inlayHintProvider: true,
+        codeLensProvider: { resolveProvider: false },
       },
       serverInfo: { name: 'saltus' },
     };
@@ -165,6 +167,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   connection.onShutdown(() => { pending.clear(); });
 
   registerFeatures(connection, state, { ...DEFAULT_FEATURES, ...options.features }, options.hoverSections ?? []);
+  registerDerivedFeatures(connection, state);
   documents.listen(connection);
   connection.listen();
 }

@@ -50,8 +50,12 @@ export function renderModelsBody(models: PreviewModel[]): string {
 }
 
 export function renderPage(body: string, o: PageOptions): string {
-  const src = o.cspSource ?? "'self'";
-  const csp = `default-src 'none'; style-src ${src} 'nonce-${o.nonce}'; font-src ${src}; img-src ${src} data:;`;
+  // Inside VS Code: only the webview's own stylesheet and fonts, no script. A standalone page
+  // (opened from disk, where browsers match no CSP source to file: URLs) forbids scripts,
+  // plugins and forms, and lets its own folder's stylesheet and fonts load.
+  const csp = o.cspSource
+    ? `default-src 'none'; style-src ${o.cspSource} 'nonce-${o.nonce}'; font-src ${o.cspSource}; img-src ${o.cspSource} data:;`
+    : `script-src 'none'; object-src 'none'; base-uri 'none'; form-action 'none'; connect-src 'none';`;
   return `<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta http-equiv="Content-Security-Policy" content="${csp}">
@@ -76,14 +80,14 @@ header h1 { font-size: 18px; margin: 0 0 2px; font-weight: 600; }
 .sub { color: var(--muted); margin: 0 0 12px; font-size: 12px; }
 .model { border-top: 2px solid var(--rule); padding-top: 8px; margin-top: 18px; }
 h2 { font-size: 16px; margin: 4px 0; color: var(--accent); }
-h3 { font-size: 13px; text-transform: uppercase; letter-spacing: .06em; color: var(--muted); margin: 14px 0 4px; }
+h3 { font-size: 13px; font-weight: 600; letter-spacing: .02em; color: var(--muted); margin: 14px 0 4px; }
 .badge { font-size: 11px; font-weight: 500; padding: 1px 8px; border-radius: 9px; background: var(--badge); color: var(--badge-fg); vertical-align: middle; }
 .doc, .note { color: var(--muted); margin: 2px 0 6px; font-size: 12px; }
 table.eqs { border-collapse: collapse; width: 100%; }
 table.eqs th { text-align: left; font-weight: 500; white-space: nowrap; padding: 4px 14px 4px 0; vertical-align: middle; width: 1%; font-size: 12px; color: var(--muted); }
-table.eqs td { padding: 2px 0; overflow-x: auto; }
+table.eqs td { padding: 2px 0; }
 table.eqs tr + tr td, table.eqs tr + tr th { border-top: 1px dotted var(--rule); }
-.katex-display { margin: 4px 0; text-align: left; }
+.katex-display { margin: 4px 0; text-align: left; overflow-x: auto; overflow-y: hidden; padding: 2px 0; }
 .katex-display > .katex { text-align: left; }
 ul.notes { color: var(--muted); font-size: 12px; padding-left: 18px; }
 .empty { color: var(--muted); }

@@ -1,0 +1,110 @@
+// `npm run package`: builds dist/ and packs the extension into saltus-VERSION.vsix with
+// @vscode/vsce, offline. vsce 4.x needs Node >= 22, so it is installed into .e2e/cache/vsce
+// and run with a Node 24 taken from the npm registry (scripts/e2e/tools.mjs); the
+// project's own dependencies and the system Node stay as they are.
+// Invariants: vsce runs with --no-dependencies (dist/ bundles every runtime dependency) and
+// under scripts/e2e/no-network.cjs, so any attempt to reach a marketplace or any other host
+// fails the packaging; the finished .vsix is opened and checked: it must hold the bundles,
+// grammar, icon, README, LICENSE and CHANGELOG, and no node_modules, sources or maps.
+// Options: --no-build (use dist/ as it is), --out FILE. Prints the .vsix path last.
+import { existsSync, readFileSync, statSync } from 'node:fs';
+import { join, relative, resolve } from 'node:path';
+import { listZip } from './e2e/zipList.mjs';
+import { ensureNode24, ensureVsce, log, mustRun, NODE24, ROOT, runCommand } from './e2e/tools.mjs';
+
+/** Paths (inside the .vsix, under extension/) that must be there. */
+export const REQUIRED_IN_VSIX = [
+  'extension/package.json',
+  'extension/readme.md',
+  'extension/changelog.md',
+  'extension/LICENSE.txt',
+  'extension/dist/client.js',
+  'extension/dist/server.js',
+  'extension/dist/cli.js',
+  'extension/grammar/saltus.tmLanguage.json',
+  'extension/grammar/language-configuration.json',
+  'extension/grammar/snippets.json',
+];
+
+/** Entries that must not be packed: they are either bundled into dist/ or not for users. */
+const FORBIDDEN_IN_VSIX = [
+  [/^extension\/node_modules\//, 'node_modules (dist/ bundles the runtime dependencies)'],
+  [/\.map$/, 'source maps'],
+  [/\.ts$/, 'TypeScript sources'],
+  [/^extension\/(server|client)\/src\//, 'sources'],
+  [/^extension\/tests\//, 'tests'],
+  [/^extension\/\.e2e\//, 'the e2e cache'],
+  [/\.vsix$/, 'another .vsix'],
+];
+
+function parseArgs(argv) {
+  const opts = { build: true, out: undefined };
+  for (let i = 0; i < argv.length; i++) {
+    if (argv[i] === '--no-build') opts.build = false;
+    else if (argv[i] === '--out') opts.out = resolve(argv[++i] ?? '');
+    else throw new Error(`package: unknown option ${argv[i]} (known: --no-build, --out FILE)`);
+  }
+  return opts;
+}
+
+/** What the manifest must say before packing; returns a list of problems. */
+export function manifestProblems(pkg) {
+  const problems = [];
+  if (!pkg.icon) problems.push('package.json has no "icon"');
+  else if (!existsSync(join(ROOT, pkg.icon))) problems.push(`icon ${pkg.icon} does not exist (node media/make-icon.mjs draws it)`);
+  if (Array.isArray(pkg.activationEvents) && pkg.activationEvents.length > 0) {
+    problems.push(`activationEvents ${JSON.stringify(pkg.activationEvents)}: VS Code infers activation from contributes (onLanguage, commands); list none`);
+  }
+  if (!pkg.repository) problems.push('package.json has no "repository"');
+  if (!pkg.capabilities?.untrustedWorkspaces || !pkg.capabilities?.virtualWorkspaces) problems.push('capabilities.untrustedWorkspaces/virtualWorkspaces are not declared');
+  for (const f of ['README.md', 'LICENSE', 'CHANGELOG.md']) if (!existsSync(join(ROOT, f))) problems.push(`${f} is missing`);
+  return problems;
+}
+
+/** Problems with the packed file list (names as stored in the zip). */
+export function contentProblems(names, pkg) {
+  const problems = [];
+  const lower = new Set(names.map((n) => n.toLowerCase()));
+  const required = [...REQUIRED_IN_VSIX, ...(pkg.icon ? [`extension/${pkg.icon.replace(/^\.\//, '')}`] : [])];
+  for (const r of required) if (!lower.has(r.toLowerCase())) problems.push(`missing from the .vsix: ${r}`);
+  for (const n of names) {
+    for (const [re, why] of FORBIDDEN_IN_VSIX) if (re.test(n)) { problems.push(`should not be in the .vsix (${why}): ${n}`); break; }
+  }
+  return problems;
+}
+
+async function main() {
+  const opts = parseArgs(process.argv.slice(2));
+  const pkg = JSON.parse(readFileSync(join(ROOT, 'package.json'), 'utf8'));
+  const out = opts.out ?? join(ROOT, `${pkg.name}-${pkg.version}.vsix`);
+  if (opts.build) {
+    log('building dist/');
+    await mustRun(process.execPath, [join(ROOT, 'scripts/build.mjs')], { timeoutMs: 300_000 });
+  }
+  if (pkg.icon && !existsSync(join(ROOT, pkg.icon)) && existsSync(join(ROOT, 'media/make-icon.mjs'))) {
+    await mustRun(process.execPath, [join(ROOT, 'media/make-icon.mjs')], { timeoutMs: 60_000 });
+  }
+  const before = manifestProblems(pkg);
+  if (before.length) throw new Error(`package: the manifest is not ready:\n  ${before.join('\n  ')}`);
+
+  await ensureNode24();
+  const vsce = await ensureVsce();
+  log(`vsce package (Node ${(await mustRun(NODE24, ['--version'])).trim()}, offline)`);
+  const guard = join(ROOT, 'scripts/e2e/no-network.cjs');
+  const args = ['--require', guard, vsce, 'package', '--no-dependencies', '--no-rewrite-relative-links', '--out', out];
+  const r = await runCommand(NODE24, args, { timeoutMs: 300_000, env: { ...process.env, VSCE_TELEMETRY: 'off' } });
+  process.stdout.write(r.out.split('\n').filter((l) => l.trim()).map((l) => `  vsce: ${l}\n`).join(''));
+  if (r.out.includes('no-network guard')) throw new Error('package: vsce tried to reach the network (see above)');
+  if (r.code !== 0 || !existsSync(out)) throw new Error(`package: vsce failed (exit ${r.code})`);
+
+  const entries = listZip(out);
+  const problems = contentProblems(entries.map((e) => e.name), pkg);
+  if (problems.length) throw new Error(`package: ${relative(ROOT, out)} is not right:\n  ${problems.join('\n  ')}`);
+  const kib = (statSync(out).size / 1024).toFixed(0);
+  log(`packed ${entries.length} files, ${kib} KiB: ${entries.map((e) => e.name.replace(/^extension\//, '')).filter((n) => !n.startsWith('dist/katex/fonts/')).join(', ')} (+ KaTeX fonts)`);
+  console.log(out);
+}
+
+if (process.argv[1] && resolve(process.argv[1]) === resolve(import.meta.filename ?? '')) {
+  main().catch((e) => { console.error(e instanceof Error ? e.message : String(e)); process.exit(1); });
+}

@@ -1,0 +1,25 @@
+// The derived sections appended to hovers: the adjoint of a state, of the fire block and
+// of the incoming block (adjoint/hover.ts), and the step analysis of an equation and of
+// the timestep (step/report.ts). Each is a HoverSection (outputs/hover.ts); the language
+// server passes DERIVED_SECTIONS to `hover`.
+import { adjointHoverMarkdown, derivationFor } from '../adjoint/index';
+import type { HoverSection } from './hover';
+
+const adjointSection: HoverSection = ({ target, neuron }) => {
+  if (!neuron?.wellFormed) return undefined;
+  if (target.kind === 'symbol' && target.symbol.kind === 'state' && target.symbol.neuron === neuron.name) {
+    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'state', name: target.symbol.name });
+  }
+  if (target.kind === 'keyword' && (target.word === 'fire' || target.word === 'when' || target.word === 'crosses') && neuron.fire) {
+    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'fire' });
+  }
+  if (target.kind === 'keyword' && target.word === 'incoming' && neuron.incoming) {
+    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'incoming' });
+  }
+  if (target.kind === 'symbol' && target.symbol.kind === 'weight' && neuron.incoming) {
+    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'incoming' });
+  }
+  return undefined;
+};
+
+export const DERIVED_SECTIONS: HoverSection[] = [adjointSection];
