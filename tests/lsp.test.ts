@@ -226,6 +226,32 @@ describe('language server over stdio', () => {
     await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
   });
 
+  it('shows the adjoint verdict as a CodeLens, the derived adjoint on hover, and the typeset preview', async () => {
+    const uri = 'file:///inline/derived.saltus';
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    const lenses = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri } }) as { range: unknown; command: { title: string; command: string; arguments: unknown[] } }[];
+    expect(lenses.map((l) => l.command.title)).toEqual(['adjoint: event-based']);
+    expect(lenses[0]!.command).toMatchObject({ command: 'saltus.showAdjoint', arguments: [uri, 'Sensor'] });
+    // Hover on the state I: its adjoint flow, dlambda_I/dt = lambda_I/tau_s - dlV_dI - lambda_V/tau_m (canonical form, docs/adjoint.md).
+    const h = await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, 'state I', 6) }) as Hover;
+    const md = (h.contents as MarkupContent).value;
+    expect(md).toContain('dlambda_I/dt');
+    expect(md).toContain('lambda_V / tau_m');
+    const fire = await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, 'fire', 1) }) as Hover;
+    expect((fire.contents as MarkupContent).value).toContain('phi');
+    const preview = await client.conn.sendRequest('saltus/adjointPreview', { uri }) as { title: string; body: string; models: string[] };
+    expect(preview.models).toEqual(['Sensor']);
+    expect(preview.body).toContain('class="katex"');
+    expect(preview.body).toContain('τ-scaled LIF 🎯');
+    expect(await client.conn.sendRequest('saltus/adjointPreview', { uri: 'file:///never/opened.saltus' })).toBeNull();
+    const broken = 'file:///inline/derived-broken.saltus';
+    client.open(broken, LIF.replace('(I - V) / tau_m', 'I - V'));
+    await client.diagnosticsFor(broken, 1);
+    const l2 = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri: broken } }) as { command: { title: string } }[];
+    expect(l2.map((l) => l.command.title)).toEqual(['adjoint: fix the errors first']);
+  });
+
   it('answers null or [] for a never-opened document and survives a malformed request', async () => {
     const nowhere = { textDocument: { uri: 'file:///never/opened.saltus' }, position: { line: 0, character: 0 } };
     expect(await client.conn.sendRequest('textDocument/hover', nowhere)).toBeNull();
@@ -236,7 +262,8 @@ describe('language server over stdio', () => {
     expect(await client.conn.sendRequest('textDocument/hover', { textDocument: { uri: 'file:///inline/sensor.saltus' } })).toBeNull();
     await client.until(() => client.logs.find((l) => l.includes('hover failed')), 5000, 'the logged failure');
     const summary = await client.conn.sendRequest('saltus/analysisSummary', { uri: 'file:///inline/sensor.saltus' });
-    expect(summary).toEqual({ neurons: [{ name: 'Sensor', states: ['V', 'I'], wellFormed: true }], errors: 0, warnings: 0 });
+    // The one warning is the grazing condition of the LIF crossing (I = theta), from the derived checks.
+    expect(summary).toEqual({ neurons: [{ name: 'Sensor', states: ['V', 'I'], wellFormed: true }], errors: 0, warnings: 1 });
   });
 
   it('clears diagnostics on close, then shuts down and exits with code 0', async () => {

@@ -11,7 +11,7 @@ import { type Sym, ZERO } from '../symbolic/sym';
 import { toPlain } from '../symbolic/print';
 import { lambdaName } from '../adjoint/names';
 import { cComment } from './escape';
-import { type CFlavour, CScope, type StateSource, cTypes } from './cexpr';
+import { type CFlavour, CScope, cTypes } from './cexpr';
 import { propagatorTerms } from './structure';
 import type { ModelPlan } from './plan';
 import { schemeLines } from './header';

@@ -70,7 +70,7 @@ export function headerLines(plan: ModelPlan, o: HeaderOptions): string[] {
   lines.push(`Precision: ${o.precision}. Parameters: ${o.inlineParams ? 'INLINED as the model values above (--inline-params); regenerate to change them' : 'passed at run time in a params struct/dict (the model values are the defaults)'}.`);
   lines.push('');
   lines.push(`Forward step (the scheme the step analysis chose for each state; analysed at dt = ${formatTime(plan.dtSI)}):`);
-  lines.push(...schemeLines(plan).map((l) => esc(l)));
+  lines.push(...schemeLines(plan).map((l) => l.replace(/^(\s*)(.*)$/, (_, pad: string, text: string) => pad + esc(text))));
   const st = plan.step;
   if (st.order.length) {
     lines.push(`  stability: ${esc(st.unstable ? `UNSTABLE at ${formatTime(plan.dtSI)}; ${st.stabilityNote}` : st.stabilityNote)}`);

@@ -16,7 +16,7 @@ import { propagatorTerms } from './structure';
 import { numpyHelpers } from './numpyHelpers';
 import { numpyBackward } from './numpyBackward';
 
-class PyScope {
+export class PyScope {
   readonly used = new Set<string>();
   constructor(readonly plan: ModelPlan, readonly inline: boolean) {}
   e(s: Sym): string {
@@ -169,16 +169,17 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
     }
     return out;
   };
-  numpyBackward(plan, { PyScope, setup, loads, gradLines, fnDef, plain, st, assign });
+  numpyBackward(plan, { inline, PyScope, setup, loads, gradLines, fnDef, plain, st, assign });
   L.splice(headLength, 0, ...numpyHelpers(L.slice(headLength).join('\n')));
   return { name, content: L.join('\n').trimEnd() + '\n' };
 }
 
 export interface BackwardKit {
-  PyScope: new (plan: ModelPlan, inline: boolean) => { used: Set<string>; e(s: Sym): string };
-  setup: (scope: { used: Set<string> }, body: readonly string[], time: string | null) => string[];
-  loads: (scope: { used: Set<string> }, from: string, all?: boolean) => string[];
-  gradLines: (sc: { used: Set<string>; e(s: Sym): string }, pick: (p: string) => Sym | null | undefined, factor: string, mask?: string) => string[];
+  inline: boolean;
+  PyScope: typeof PyScope;
+  setup: (scope: PyScope, body: readonly string[], time: string | null) => string[];
+  loads: (scope: PyScope, from: string, all?: boolean) => string[];
+  gradLines: (sc: PyScope, pick: (p: string) => Sym | null | undefined, factor: string, mask?: string) => string[];
   fnDef: (sig: string, doc: string[], body: string[]) => void;
   plain: (s: Sym) => string;
   st: (n: string) => { id: string; name: string };

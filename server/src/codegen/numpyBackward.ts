@@ -11,17 +11,14 @@ import { propagatorTerms } from './structure';
 import type { BackwardKit } from './numpy';
 
 export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
-  const S = plan.states, inline = false;
-  void inline;
+  const S = plan.states;
   const needsFwd = (used: Set<string>, from: string): string[] => (S.some((s) => used.has(s.name))
     ? [`if ${from} is None:`, `    raise ValueError("${plan.prefix}: this phase needs ${from}, the forward state (see the docstring)")`] : []);
   const lambdaPass = (used: Set<string>, name: string): void => { used.add(lambdaName(name)); };
-  const inl = !!(k.PyScope.length && false);
-  void inl;
 
   // backward_step
   {
-    const sc = new k.PyScope(plan, plan.params.length === 0 ? true : planInline(plan));
+    const sc = new k.PyScope(plan, k.inline);
     const body: string[] = [...k.gradLines(sc, (p) => plan.adjoint.paramGradients.get(p)!.flow, 'dt * '), 'out = {}'];
     const doc = ['Backward (adjoint) step: costates lambda = dL/dx from t_start + dt back to t_start, on the derived adjoint flow',
       ...plan.backward.map((b) => `  dlambda_${k.st(b.state).name}/dt = ${k.plain(b.flow)}`),
@@ -50,7 +47,7 @@ export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
   }
   const sp = plan.adjoint.spike;
   if (plan.fire && sp) {
-    const sc = new k.PyScope(plan, planInline(plan));
+    const sc = new k.PyScope(plan, k.inline);
     const body = ['mask = np.asarray(spiked, dtype=bool)', 'with np.errstate(divide="ignore", invalid="ignore", over="ignore"):',
       `    phi = ${sc.e(sp.phi)}`, ...k.gradLines(sc, (p) => plan.adjoint.paramGradients.get(p)!.spike, '', 'mask').map((l) => `    ${l}`), '    out = {}'];
     for (const s of S) {
@@ -69,7 +66,7 @@ export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
   }
   const inc = plan.adjoint.incoming;
   if (plan.incoming && inc) {
-    const sc = new k.PyScope(plan, planInline(plan));
+    const sc = new k.PyScope(plan, k.inline);
     const first = `adj["lambda_${S[0]!.id}"]`;
     const body = [`mask = np.ones(np.shape(${first}), dtype=bool) if received is None else np.asarray(received, dtype=bool)`,
       `weight_grad = np.where(mask, ${sc.e(inc.weightGradient)}, 0.0)`, `coupling_out = np.where(mask, ${sc.e(inc.coupling)}, 0.0)`,
@@ -88,8 +85,4 @@ export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
         `term of its sender's coupling, ${k.plain(inc.coupling)} (0 where nothing was received). pre: the record of incoming().`],
       [...k.setup(sc, body, 't_start'), ...k.loads(sc, 'pre'), ...body]);
   }
-}
-
-function planInline(plan: ModelPlan): boolean {
-  return plan.inlineParams;
 }
