@@ -44,7 +44,6 @@ export class VscodeUi {
 
   /** Puts the caret at line:column with Go to Line (Ctrl+G), which also scrolls it into view. */
   async goTo(line, column = 1) {
-    await this.editor.locator('.view-lines').click({ position: { x: 5, y: 5 } });
     await this.page.keyboard.press('Control+G');
     const box = this.page.locator('.quick-input-widget input');
     await box.waitFor();

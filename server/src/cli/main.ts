@@ -9,6 +9,7 @@
 import { UsageError, type CliIO, type Command } from './command';
 import { checkCommand } from './commands/check';
 import { lspCommand } from './commands/lsp';
+import { generateCommand } from './commands/generate';
 import { adjointCommand } from './commands/adjoint';
 import { SALTUS_VERSION } from './version';
 
@@ -16,6 +17,7 @@ import { SALTUS_VERSION } from './version';
 export const COMMANDS: readonly Command[] = [
   checkCommand,
   lspCommand,
+  generateCommand,
   adjointCommand,
 ];
 

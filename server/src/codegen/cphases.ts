@@ -76,7 +76,7 @@ export class CPhases {
   private expEuler(target: string, x: string, a: string, b: string, comment: string): string[] {
     const { R } = cTypes(this.f);
     return [`/* ${comment} */`, '{', `    const ${R} step_a = ${a};`, `    const ${R} step_z = step_a * dt;`,
-      `    ${target} = ${x} * ${this.exp('step_z')} + ${b} * dt * ${this.M}_phi1(step_z);`, '}'];
+      `    ${target} = ${x} * ${this.exp('step_z')}${b === '(0.0)' || b === '(0.0f)' ? '' : ` + ${b} * dt * ${this.M}_phi1(step_z)`};`, '}'];
   }
 
   forwardStep(): PhaseCode {

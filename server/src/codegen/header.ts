@@ -43,7 +43,8 @@ export function schemeLines(plan: ModelPlan): string[] {
     for (const s of plan.states) out.push(`  ${s.name}: exact propagator`);
   } else {
     for (const e of plan.perState) {
-      const label = e.kind === 'held' ? 'held (no flow)' : e.label === 'exact' ? 'exponential Euler, exact for this state' : e.label;
+      const label = e.kind === 'held' ? 'held (no flow; exact)' : e.label === 'exact' ? 'exponential Euler, exact for this state (exact)'
+        : e.label === 'exponential-euler' ? 'exponential Euler (exponential-euler)' : 'linearised exponential Euler (linearised-exponential-euler)';
       out.push(`  ${e.state}: ${label}`);
     }
   }

@@ -100,7 +100,7 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
     }
     return out;
   };
-  const assign = (target: string) => [`for name, value in out.items():`, `    ${target}[name][...] = value`];
+  const assign = (target: string) => ['for name, value in out.items():', `    ${target}[name][...] = value`];
   const fnDef = (sig: string, doc: string[], body: string[]) => { L.push(`def ${sig}:`, ...ind([...docstring(doc), ...body]), '', ''); };
 
   // forward_step
@@ -124,7 +124,7 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
           `step_a = ${sc.e(e.a)}`, 'step_z = step_a * dt');
         const b = e.kind === 'affine' ? `(${sc.e(e.b!)})` : 'step_b';
         if (e.kind !== 'affine') body.push(`step_b = ${sc.e(e.flow!)} - step_a * ${s.id}`);
-        body.push(`out["${s.id}"] = ${s.id} * np.exp(step_z) + ${b} * dt * _phi1(step_z)`);
+        body.push(`out["${s.id}"] = ${s.id} * np.exp(step_z)${b === '(0)' ? '' : ` + ${b} * dt * _phi1(step_z)`}`);
       }
     }
     body.push(...assign('state'));
@@ -141,22 +141,22 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
     const body = ['g_start = np.asarray(guard_before)', `g_end = ${sc.e(fire.guard)}`, `crossed = ${test}`,
       'spike_time = np.where(crossed, _crossing_time(g_start, g_end, t_start, dt), np.nan)',
       'record = {name: np.array(value, copy=True) for name, value in state.items()}', 'out = {}',
-      ...fire.jumps.map((j) => `out["${st(j.state).id}"] = np.where(crossed, ${sc.e(j.value)}, ${st(j.state).id})`), ...assign('state'),
+      ...fire.jumps.map((j) => { sc.used.add(j.state); return `out["${st(j.state).id}"] = np.where(crossed, ${sc.e(j.value)}, ${st(j.state).id})`; }), ...assign('state'),
       'return crossed, spike_time, record'];
     fnDef('spike(state, coeffs, t_start, guard_before)', [`Threshold test (g = ${plain(fire.guard)}, crossing ${fire.direction}) and spike jumps, after forward_step.`,
       `Jumps: ${fire.jumps.map((j) => `${pyStringBody(j.state)} := ${plain(j.value)}`).join(', ')} (right sides read before the spike).`,
       'Returns (spiked, spike_time, record): the mask of spiking neurons, the crossing time by linear interpolation',
       'of g between the grid values (NaN where no spike), and a copy of the state just before the jumps.'],
-    [...setup(sc, body, 't_start + dt'), ...loads(sc, 'state', true), ...body]);
+    [...setup(sc, body, 't_start + dt'), ...loads(sc, 'state'), ...body]);
   }
   if (plan.incoming) {
     const sc = new PyScope(plan, inline);
     const body = ['mask = np.ones(np.shape(state[STATES[0]]), dtype=bool) if received is None else np.asarray(received, dtype=bool)',
       'record = {name: np.array(value, copy=True) for name, value in state.items()}', 'out = {}',
-      ...plan.incoming.jumps.map((j) => `out["${st(j.state).id}"] = np.where(mask, ${sc.e(j.value)}, ${st(j.state).id})`), ...assign('state'), 'return record'];
+      ...plan.incoming.jumps.map((j) => { sc.used.add(j.state); return `out["${st(j.state).id}"] = np.where(mask, ${sc.e(j.value)}, ${st(j.state).id})`; }), ...assign('state'), 'return record'];
     fnDef('incoming(state, coeffs, t_start, weights, received=None)', ['A presynaptic spike of weight weights[i] (SI) arrives at t_start at the neurons where received is True (None: all).',
       `Jump: ${plan.incoming.jumps.map((j) => `${pyStringBody(j.state)} := ${plain(j.value)}`).join(', ')}. Returns a copy of the state just before the jump.`],
-    [...setup(sc, body, 't_start'), ...loads(sc, 'state', true), ...body]);
+    [...setup(sc, body, 't_start'), ...loads(sc, 'state'), ...body]);
   }
   const gradLines = (sc: PyScope, pick: (p: string) => Sym | null | undefined, factor: string, mask?: string): string[] => {
     const out: string[] = [];

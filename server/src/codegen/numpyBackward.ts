@@ -77,7 +77,9 @@ export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
       body.push(`out["lambda_${s.id}"] = np.where(mask, ${sc.e(j)}, lambda_${s.id})`);
       lambdaPass(sc.used, s.name);
     }
-    body.push(...k.assign('adj'), 'return weight_grad, coupling_out');
+    if (body[body.length - 1] === 'out = {}') body.pop();
+    else body.push(...k.assign('adj'));
+    body.push('return weight_grad, coupling_out');
     k.fnDef('backward_incoming(adj, coeffs, t_start, weights, pre, received=None, grads=None)',
       ['Backward incoming jump at t_start where received is True (None: all): adj holds lambda+ and becomes lambda-.',
         ...S.map((s) => `  lambda_${s.name}- = ${k.plain(inc.jump.get(s.name)!)}`),

@@ -51,7 +51,7 @@ export function referenceRun(neuron: ResolvedNeuron, input: DriverInput, params?
       names.forEach((n, i) => { e[n] = x[i]!; });
       return e;
     };
-    const jump = (x: Float64Array, jumps: ReadonlyMap<string, Sym>, e: Record<string, number>): Float64Array => {
+    const jump = (x: Float64Array<ArrayBufferLike>, jumps: ReadonlyMap<string, Sym>, e: Record<string, number>): Float64Array<ArrayBufferLike> => {
       const out = Float64Array.from(x);
       names.forEach((n, i) => { const h = jumps.get(n); if (h) out[i] = evaluate(h, e); });
       return out;
@@ -59,7 +59,7 @@ export function referenceRun(neuron: ResolvedNeuron, input: DriverInput, params?
     if (input.spikes.length && !neuron.incoming) return fail(`${neuron.name} has no incoming block: it takes no spikes`);
     const order = input.spikes.map((s, i) => ({ ...s, i })).sort((a, b) => a.step - b.step || a.i - b.i);
     let next = 0;
-    let x = Float64Array.from(input.initial);
+    let x: Float64Array<ArrayBufferLike> = Float64Array.from(input.initial);
     const rows: ReferenceRow[] = [];
     for (let k = 0; k < input.steps; k++) {
       const t = k * input.dt;

@@ -39,7 +39,7 @@ export function unsafeName(name: string): string | null {
   if (typeof name !== 'string' || name.length === 0) return 'an empty file name';
   if (name.length > 200) return 'a file name longer than 200 characters';
   if (name.includes('/') || name.includes('\\')) return 'a file name with a directory separator';
-  if (name.split('.').some((part, i, all) => part === '' && i > 0 && i < all.length) || name.includes('..')) return 'a file name with ".."';
+  if (name.includes('..')) return 'a file name with ".."';
   if (!SAFE_NAME.test(name)) return 'a file name with characters other than letters, digits and _ . + - (or a leading dot)';
   return null;
 }

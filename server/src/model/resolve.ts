@@ -73,7 +73,8 @@ export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): Reso
 
 function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInfo[]): ResolvedNeuron | undefined {
   if (!decl.name) return undefined;
-  const errorsBefore = countErrors(ctx.diagnostics);
+  // Only this neuron's diagnostics and references are scanned below (linear in the file).
+  const diagnosticsBefore = ctx.diagnostics.length, referencesBefore = ctx.references.length;
   const nName = decl.name.name;
   const symbol: SymbolInfo = { kind: 'neuron', name: nName, nameRange: decl.name.range, declRange: decl.range, ...(decl.doc ? { doc: decl.doc.text } : {}) };
   symbols.push(symbol);
@@ -197,11 +198,11 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
     if (!flowDecls.has(s.name)) ctx.diagnostics.push({ severity: 'info', code: 'state-without-flow', range: s.nameRange,
       message: `'${s.name}' has no d${s.name}/dt equation: it stays constant between events` });
   }
-  const used = new Set(ctx.references.map((r) => r.target));
+  const used = new Set(ctx.references.slice(referencesBefore).map((r) => r.target));
   for (const d of [...params, ...lets]) {
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
-  const wellFormed = countErrors(ctx.diagnostics) === errorsBefore;
+  const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
     ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), wellFormed };
 }
@@ -346,8 +347,9 @@ function resolveIncoming(m: A.IncomingBlock, table: Map<string, { info: SymbolIn
   } else dim = inferWeightDim(m, table, name, info, scopeFor);
   if (dim) info.dim = dim;
   const scope = scopeFor(undefined, new Map([[name, { kind: 'symbol', info, sym: name }]]));
+  const refsBefore = ctx.references.length; // the weight is new: only references added below can name it
   const jumps = resolveJumps(m.jumps, scope, table, neuron, ctx);
-  if (!ctx.references.some((r) => r.target === info)) {
+  if (!ctx.references.slice(refsBefore).some((r) => r.target === info)) {
     ctx.diagnostics.push({ severity: 'warning', code: 'unused-declaration', range: m.weight.range,
       message: `the weight '${name}' is not used: incoming spikes would have no effect` });
   }

@@ -14,13 +14,15 @@ import type { NeuronDerivation } from '../adjoint/derive';
 import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../adjoint/names';
 import { type IntegrateOptions, Stepper, integrate } from './dopri';
 import { type InputTrain, type Loss, type Network, stateScales } from './network';
-import { type Instance, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';
+import { type Instance, type Interval, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';
 
 export interface BackwardOptions {
   loss?: Loss;
   /** The derivation used for each model (e.g. adjoint/cache.ts `derivationFor`). */
   derivation: (model: ResolvedNeuron) => NeuronDerivation;
   rtol?: number;
+  /** Keep the costate's dense output (Gradients.costate), e.g. to plot lambda(t). */
+  keepCostate?: boolean;
 }
 
 export interface Gradients {
@@ -33,6 +35,9 @@ export interface Gradients {
   params: Record<string, number>[];
   /** dL/dx(0): the costate at t = 0, in the network layout. */
   initial: Float64Array;
+  /** With keepCostate: per forward interval (same index), the backward dense output of
+   *  [lambdas (network layout), parameter accumulators]; segments run from t1 down to t0. */
+  costate?: Interval[];
 }
 
 /** A derivation compiled over [states, lambdas, params, weight?, t, phi, coupling, dlp_dt, lV_pre, lV_post, dlV_dX...]. */
@@ -163,11 +168,21 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     return it.a.weightGradient!(b);
   };
 
+  // Events whose spike carries the per-spike loss (all spikes, or each neuron's first one).
+  const seen = new Set<number>();
+  const scored = traj.events.map((e) => {
+    if (e.kind !== 'spike') return false;
+    const first = !seen.has(e.neuron);
+    seen.add(e.neuron);
+    return first || !ai[e.neuron]!.fwd.loss.firstOnly;
+  });
+  if (options.keepCostate) result.costate = traj.intervals.map((v) => ({ t0: v.t0, t1: v.t1, segments: [] }));
   for (let k = traj.intervals.length - 1; k >= 0; k--) {
     iv = traj.intervals[k]!;
     hint.seg = iv.segments.length - 1;
     if (iv.t1 > iv.t0 && iv.segments.length > 0) {
-      const res = integrate(st, iv.t1, z, iv.t0, opts, undefined, () => {});
+      const keep: Interval | undefined = result.costate?.[k];
+      const res = integrate(st, iv.t1, z, iv.t0, opts, undefined, keep ? (s) => keep.segments.push(s) : () => {});
       if (res.error) { errors.push(`backward integration failed: ${res.error}`); return result; }
       z = res.y;
     }
@@ -190,7 +205,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       const it = ai[n]!;
       const b = fill(n, e.pre, zPlus, e.time);
       const v = load(it.fwd, e.pre, e.time);
-      b[sp.dlp] = it.fwd.loss.perSpikeRate ? it.fwd.loss.perSpikeRate(v) : 0;
+      b[sp.dlp] = it.fwd.loss.perSpikeRate && scored[k - 1] ? it.fwd.loss.perSpikeRate(v) : 0;
       b[sp.pre] = lossAt(e.pre, e.time);
       b[sp.post] = lossAt(e.post, e.time);
       b[sp.coupling] = coupling;

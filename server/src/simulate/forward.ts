@@ -121,6 +121,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   let t = 0, next = 0;
   let y: Float64Array = y0;
   const maxSpikes = options.maxSpikes ?? 10_000;
+  const fired = new Set<number>();
   const event = (e: Omit<NetEvent, 'pre' | 'post'>, apply: (post: Float64Array) => void): void => {
     cur.t1 = t;
     traj.intervals.push(cur);
@@ -152,7 +153,8 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         const v = load(it, pre, t);
         it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
         for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, post, pre);
-        if (it.loss.perSpike) traj.lossSpikes += it.loss.perSpike(v);
+        if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) traj.lossSpikes += it.loss.perSpike(v);
+        fired.add(sender);
       });
       traj.spikes.push({ neuron: sender, time: t });
       if (traj.spikes.length > maxSpikes) { errors.push(`more than ${maxSpikes} spikes: stopped`); break; }

@@ -33,6 +33,8 @@ export interface LossTerm {
   integrand?: Sym;
   /** Per-spike loss in t (the spike time) and the neuron's parameter names. */
   perSpike?: Sym;
+  /** Count perSpike at the neuron's first spike only (a first-spike-time loss). */
+  firstSpikeOnly?: boolean;
 }
 export interface Loss { terms: readonly LossTerm[] }
 
@@ -57,6 +59,8 @@ export interface CompiledLoss {
   gradient?: Compiled[];
   perSpikeRate?: Compiled;
   perSpike?: Compiled;
+  /** perSpike applies to the first spike of the instance only. */
+  firstOnly: boolean;
 }
 
 export function layoutOf(net: Network): Layout {
@@ -120,7 +124,7 @@ export function compileModel(m: ResolvedNeuron): CompiledModel {
 /** Loss pieces of one instance over its model's names; undefined-free symbols are reported. */
 export function compileLoss(m: ResolvedNeuron, term: LossTerm | undefined, errors: string[]): CompiledLoss {
   const names = modelNames(m);
-  const out: CompiledLoss = {};
+  const out: CompiledLoss = { firstOnly: term?.firstSpikeOnly === true };
   const check = (s: Sym, what: string): boolean => {
     const bad = [...freeSymbols(s)].filter((n) => !names.includes(n));
     if (bad.length) errors.push(`loss ${what} of ${m.name} uses unknown names: ${bad.join(', ')}`);

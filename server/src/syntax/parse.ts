@@ -24,6 +24,9 @@ export function parse(text: string): ParseOutput {
       const ch = text.slice(e.offset, e.offset + Math.max(1, e.length));
       errors.push({ message: `unexpected character${ch.length > 1 ? 's' : ''} '${ch.length > 12 ? ch.slice(0, 12) + '…' : ch}'`, range: clamp({ start: e.offset, end: e.offset + Math.max(1, e.length) }) });
     }
+    // The lexer tracks start offsets only; give each token its end so that chevrotain's node
+    // locations carry an end offset too (build.ts then needs no walk of the subtree per node).
+    for (const t of lexed.tokens) t.endOffset = t.startOffset + t.image.length - 1;
     parserInstance.input = lexed.tokens;
     const cst = parserInstance.file();
     for (const e of parserInstance.errors) {
