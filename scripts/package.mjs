@@ -6,6 +6,10 @@
 // under scripts/e2e/no-network.cjs, so any attempt to reach a marketplace or any other host
 // fails the packaging; the finished .vsix is opened and checked: it must hold the bundles,
 // grammar, icon, README, LICENSE and CHANGELOG, and no node_modules, sources or maps.
+// README links: VS Code's extension page shows README images only from https: URLs. For a
+// GitHub or GitLab `repository`, vsce rewrites relative links (docs/screenshots/...) to it;
+// for any other host they are packed as they are (--no-rewrite-relative-links), so they
+// render on the repository's own page and in a checkout, not on the extension page.
 // Options: --no-build (use dist/ as it is), --out FILE. Prints the .vsix path last.
 import { existsSync, readFileSync, statSync } from 'node:fs';
 import { join, relative, resolve } from 'node:path';
@@ -47,6 +51,15 @@ function parseArgs(argv) {
   return opts;
 }
 
+/** Packing rules that vsce cannot combine with ours; returns a list of problems. */
+export function ignoreFileProblems(pkg, vscodeignore) {
+  const problems = [];
+  if (vscodeignore !== undefined && Array.isArray(pkg.files) && pkg.files.length > 0) {
+    problems.push('package.json has "files" and there is a .vscodeignore: vsce refuses to combine them; the .vsix contents come from .vscodeignore, so drop "files" (the package is private, never published to npm)');
+  }
+  return problems;
+}
+
 /** What the manifest must say before packing; returns a list of problems. */
 export function manifestProblems(pkg) {
   const problems = [];
@@ -84,14 +97,18 @@ async function main() {
   if (pkg.icon && !existsSync(join(ROOT, pkg.icon)) && existsSync(join(ROOT, 'media/make-icon.mjs'))) {
     await mustRun(process.execPath, [join(ROOT, 'media/make-icon.mjs')], { timeoutMs: 60_000 });
   }
-  const before = manifestProblems(pkg);
-  if (before.length) throw new Error(`package: the manifest is not ready:\n  ${before.join('\n  ')}`);
+  const ignorePath = join(ROOT, '.vscodeignore');
+  const before = [...manifestProblems(pkg), ...ignoreFileProblems(pkg, existsSync(ignorePath) ? readFileSync(ignorePath, 'utf8') : undefined)];
+  if (before.length) throw new Error(`package: not ready to pack:\n  ${before.join('\n  ')}`);
+  const repoUrl = typeof pkg.repository === 'string' ? pkg.repository : pkg.repository?.url ?? '';
+  const vsceRewrites = /(^|[/@.])(github\.com|gitlab\.com)[/:]/i.test(repoUrl);
+  if (!vsceRewrites) log(`README: relative links stay relative (${repoUrl || 'no repository'} is not on GitHub or GitLab)`);
 
   await ensureNode24();
   const vsce = await ensureVsce();
   log(`vsce package (Node ${(await mustRun(NODE24, ['--version'])).trim()}, offline)`);
   const guard = join(ROOT, 'scripts/e2e/no-network.cjs');
-  const args = ['--require', guard, vsce, 'package', '--no-dependencies', '--no-rewrite-relative-links', '--out', out];
+  const args = ['--require', guard, vsce, 'package', '--no-dependencies', ...(vsceRewrites ? [] : ['--no-rewrite-relative-links']), '--out', out];
   const r = await runCommand(NODE24, args, { timeoutMs: 300_000, env: { ...process.env, VSCE_TELEMETRY: 'off' } });
   process.stdout.write(r.out.split('\n').filter((l) => l.trim()).map((l) => `  vsce: ${l}\n`).join(''));
   if (r.out.includes('no-network guard')) throw new Error('package: vsce tried to reach the network (see above)');

@@ -28,8 +28,13 @@ function taylorExpm(a: Mat): Mat {
 
 const relDiff = (a: Mat, b: Mat): number => frobenius(sub(a, b)) / frobenius(b);
 
-const square = (maxN: number, range: number) => fc.integer({ min: 1, max: maxN }).chain((n) =>
-  fc.array(fc.array(fc.double({ min: -range, max: range, noNaN: true }), { minLength: n, maxLength: n }), { minLength: n, maxLength: n }));
+// Entries below 1e-6 in magnitude become 0: ml-matrix's EigenvalueDecomposition has no
+// iteration limit and was seen to loop forever on matrices with subnormal entries (one
+// reason the step analysis uses its own bounded iteration, eigen.ts). Our own functions
+// are run on the raw subnormal-laden samples in a separate property below.
+const tidy = (v: number): number => (Math.abs(v) < 1e-6 ? 0 : v);
+const square = (maxN: number, range: number, clean = true) => fc.integer({ min: 1, max: maxN }).chain((n) =>
+  fc.array(fc.array(fc.double({ min: -range, max: range, noNaN: true }).map(clean ? tidy : (v) => v), { minLength: n, maxLength: n }), { minLength: n, maxLength: n }));
 
 describe('expm (Pade 13) against mathjs expm and an ml-matrix Taylor series', () => {
   test('random matrices up to 6 x 6 with entries in [-3, 3] agree to machine precision', () => {
@@ -85,19 +90,21 @@ describe('eigenvalues (bounded Hessenberg QR) against ml-matrix and mathjs', () 
       const ref = e.realEigenvalues.map((re, i) => ({ re, im: e.imaginaryEigenvalues[i]! }));
       const scale = Math.max(1, frobenius(a));
       // every eigenvalue of ours has a partner in ref and vice versa. The tolerance allows for
-      // defective matrices (fast-check likes zeros): a Jordan block of size k moves its
-      // eigenvalue by about eps^(1/k) under rounding, 1e-4 for k = 4.
+      // defective matrices (fast-check likes zeros, e.g. nilpotent chains): a Jordan block of
+      // size k moves its eigenvalue by about eps^(1/k) under rounding, so 10 eps^(1/n);
+      // the generic test below checks 1e-10.
+      const tol = 10 * 2.2e-16 ** (1 / a.length) * scale;
       const trace = a.reduce((t, row, i) => t + row[i]!, 0);
       expect(Math.abs(ours!.reduce((t, z) => t + z.re, 0) - trace)).toBeLessThan(1e-12 * scale * a.length);
       expect(Math.abs(ours!.reduce((t, z) => t + z.im, 0))).toBeLessThan(1e-12 * scale * a.length);
       for (const [xs, ys] of [[ours!, ref], [ref, ours!]] as const) {
         for (const z of xs) {
           const best = Math.min(...ys.map((w) => Math.hypot(z.re - w.re, z.im - w.im)));
-          expect(best).toBeLessThan(1e-4 * scale);
+          expect(best).toBeLessThan(tol);
         }
       }
-      expect(Math.abs(spectralRadius(a) - Math.max(...ref.map((z) => Math.hypot(z.re, z.im))))).toBeLessThan(1e-4 * scale);
-    }), { numRuns: 300 });
+      expect(Math.abs(spectralRadius(a) - Math.max(...ref.map((z) => Math.hypot(z.re, z.im))))).toBeLessThan(tol);
+    }), { numRuns: 300, seed: 20240611 }); // fixed seed: ml-matrix must not meet a matrix it loops on
   });
 
   test('generic random matrices (entries uniform, no special values): agreement to 1e-10', () => {
@@ -111,6 +118,17 @@ describe('eigenvalues (bounded Hessenberg QR) against ml-matrix and mathjs', () 
       const ref = e.realEigenvalues.map((re, i) => ({ re, im: e.imaginaryEigenvalues[i]! }));
       for (const z of ours) expect(Math.min(...ref.map((w) => Math.hypot(z.re - w.re, z.im - w.im)))).toBeLessThan(1e-10);
     }
+  });
+
+  test('raw fast-check doubles (subnormals, -0): our eigenvalues and expm finish, and the spectrum sums to the trace', () => {
+    fc.assert(fc.property(square(7, 10, false), (a) => {
+      const ev = eigenvalues(a);
+      if (ev) {
+        const trace = a.reduce((t, row, i) => t + row[i]!, 0);
+        expect(Math.abs(ev.reduce((t, z) => t + z.re, 0) - trace)).toBeLessThan(1e-10 * Math.max(1, frobenius(a)));
+      }
+      expect(expm(a).flat().every((v) => Number.isFinite(v))).toBe(true);
+    }), { numRuns: 2000 });
   });
 
   test('symmetric case agrees with mathjs eigs', () => {

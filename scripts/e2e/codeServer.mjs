@@ -31,6 +31,9 @@ const USER_SETTINGS = {
   'editor.lightbulb.enabled': 'on',
   'files.autoSave': 'off',
   'window.restoreWindows': 'none',
+  // the extension's own setting: LSP messages go to the "Saltus" output channel, whose log
+  // file is printed when a check fails
+  'saltus.trace.server': 'messages',
 };
 
 function freePort() {

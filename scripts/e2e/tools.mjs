@@ -29,13 +29,20 @@ export function log(msg) {
   process.stdout.write(`[${(performance.now() / 1000).toFixed(1).padStart(6)} s] ${msg}\n`);
 }
 
+/** Process groups started by runCommand that are still running; killed if this process exits early. */
+const liveGroups = new Set();
+process.on('exit', () => {
+  for (const pid of liveGroups) { try { process.kill(-pid, 'SIGKILL'); } catch { /* gone */ } }
+});
+
 /**
- * Runs a command; resolves { code, out } (stdout+stderr, last 200 kB) or rejects on timeout.
+ * Runs a command in its own process group; resolves { code, out } (stdout+stderr, last 200 kB) or rejects on timeout.
  * `quiet: false` also streams its output.
  */
 export function runCommand(cmd, args, { cwd = ROOT, env = process.env, timeoutMs = 120_000, quiet = true, input } = {}) {
   return new Promise((resolvePromise, reject) => {
     const child = spawn(cmd, args, { cwd, env, stdio: [input === undefined ? 'ignore' : 'pipe', 'pipe', 'pipe'], detached: true });
+    if (child.pid) liveGroups.add(child.pid);
     let out = '';
     const take = (b) => {
       out += b.toString();
@@ -49,8 +56,13 @@ export function runCommand(cmd, args, { cwd = ROOT, env = process.env, timeoutMs
       try { process.kill(-child.pid, 'SIGKILL'); } catch { /* already gone */ }
       reject(new Error(`${cmd} ${args.join(' ')}: timed out after ${timeoutMs / 1000} s\n${out.slice(-4000)}`));
     }, timeoutMs);
-    child.on('error', (e) => { clearTimeout(timer); reject(e); });
-    child.on('close', (code, signal) => { clearTimeout(timer); resolvePromise({ code: code ?? (signal ? 128 : 1), out }); });
+    child.on('error', (e) => { clearTimeout(timer); liveGroups.delete(child.pid); reject(e); });
+    child.on('close', (code, signal) => {
+      clearTimeout(timer);
+      liveGroups.delete(child.pid);
+      try { process.kill(-child.pid, 'SIGKILL'); } catch { /* the group is gone, as it should be */ }
+      resolvePromise({ code: code ?? (signal ? 128 : 1), out });
+    });
   });
 }
 

@@ -6,10 +6,12 @@
 // `analyse` never throws, whatever the text.
 import { parse, type ParseOutput } from './syntax/parse';
 import { resolveFile } from './model/resolve';
-import type { ResolvedFile } from './model/types';
+import type { ResolvedFile, ResolvedNeuron } from './model/types';
 import type { Diagnostic } from './outputs/diagnostic';
 import { LineIndex } from './outputs/lineIndex';
 import { adjointDiagnostics, derivationFor, type NeuronDerivation } from './adjoint/index';
+import { stepDiagnostics, type StepReport } from './step/index';
+import { stepReportFor } from './step/cache';
 
 export interface Analysis {
   text: string;
@@ -20,9 +22,13 @@ export interface Analysis {
   lines: LineIndex;
 }
 
+/** Longest text (UTF-16 code units, 4 MiB of ASCII) that is parsed and checked; longer files get one diagnostic. */
+export const MAX_TEXT_LENGTH = 4 * 1024 * 1024;
+
 export function analyse(text: string): Analysis {
+  if (text.length > MAX_TEXT_LENGTH) return tooLarge(text);
   const parsed = parse(text);
-  const diagnostics: Diagnostic[] = parsed.errors.map((e) => ({ severity: 'error', code: 'syntax-error', message: e.message, range: e.range }));
+  const diagnostics: Diagnostic[] = parsed.errors.map((e): Diagnostic => ({ severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range }));
   let model: ResolvedFile;
   try {
     model = resolveFile(parsed.file, parsed.strayJumps);
@@ -31,9 +37,36 @@ export function analyse(text: string): Analysis {
     diagnostics.push({ severity: 'error', code: 'syntax-error', range: { start: 0, end: Math.min(1, text.length) },
       message: `internal error while resolving the model: ${(err as Error).message}` });
   }
+  markIncomplete(model, parsed.errors);
   diagnostics.push(...model.diagnostics);
   diagnostics.sort((a, b) => a.range.start - b.range.start || a.range.end - b.range.end);
   return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines: new LineIndex(text) };
+}
+
+/**
+ * A neuron with a syntax error inside its text is not well-formed: error recovery may have
+ * dropped part of it (a flow, a jump), and the analyses must not run on what is left.
+ */
+function markIncomplete(model: ResolvedFile, errors: readonly { range: { start: number } }[]): void {
+  if (errors.length === 0) return;
+  const starts = errors.map((e) => e.range.start).sort((x, y) => x - y);
+  for (const n of model.neurons) {
+    if (!n.wellFormed) continue;
+    const { start, end } = n.decl.range;
+    let lo = 0, hi = starts.length; // first error starting at or after the neuron's start
+    while (lo < hi) { const mid = (lo + hi) >> 1; if (starts[mid]! < start) lo = mid + 1; else hi = mid; }
+    if (lo < starts.length && starts[lo]! < end) n.wellFormed = false;
+  }
+}
+
+/** A text over MAX_TEXT_LENGTH: not parsed (that would take seconds per edit), one 'too-complex' error. */
+function tooLarge(text: string): Analysis {
+  const parsed: ParseOutput = { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors: [], strayJumps: [], tokens: [] };
+  const model: ResolvedFile = { neurons: [], connections: [], symbols: [], references: [], unitsUsed: [], diagnostics: [], exprDims: new Map() };
+  const mib = (n: number): string => (n / (1024 * 1024)).toFixed(1);
+  const diagnostics: Diagnostic[] = [{ severity: 'error', code: 'too-complex', range: { start: 0, end: Math.min(1, text.length) },
+    message: `the file is too large to check (${mib(text.length)} MiB; Saltus checks files up to ${mib(MAX_TEXT_LENGTH)} MiB): split it into several files` }];
+  return { text, parse: parsed, model, diagnostics, lines: new LineIndex(text) };
 }
 
 /** Every range lies inside the document, whatever a stage produced. */
@@ -48,6 +81,11 @@ export function clampAll(ds: Diagnostic[], length: number): Diagnostic[] {
 export interface DerivedOptions {
   /** Overrides the file's `timestep` for the step analysis (seconds). */
   timestepSI?: number;
+  /**
+   * Work-time budget (ms) for the whole call; neurons not reached when it runs out get one
+   * 'time-budget' diagnostic instead of their checks. Default: no budget (the CLI checks all).
+   */
+  budgetMs?: number;
 }
 
 /** The adjoint derivation of every well-formed neuron (cached by model content in adjoint/). */
@@ -55,23 +93,64 @@ export function derivations(a: Analysis): NeuronDerivation[] {
   return a.model.neurons.filter((n) => n.wellFormed).map((n) => derivationFor(n));
 }
 
+/** The slow checks of one well-formed neuron; never throws (a failure becomes a diagnostic). */
+export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron, opts: DerivedOptions = {}): Diagnostic[] {
+  const out: Diagnostic[] = [];
+  try {
+    out.push(...adjointDiagnostics(derivationFor(n), n));
+  } catch (err) {
+    out.push({ severity: 'warning', code: 'derivation-budget', range: n.symbol.nameRange,
+      message: `the adjoint of ${n.name} could not be derived: ${(err as Error).message}` });
+  }
+  const dt = effectiveTimestep(a, opts);
+  if (dt !== undefined) {
+    try {
+      const decl = a.model.timestepDecl;
+      out.push(...stepDiagnostics(stepReportFor(n, dt), n, decl?.value?.range ?? decl?.keywordRange));
+    } catch (err) {
+      out.push({ severity: 'warning', code: 'step-inaccurate', range: n.symbol.nameRange,
+        message: `the step analysis of ${n.name} failed: ${(err as Error).message}` });
+    }
+  }
+  return clampAll(out, a.text.length);
+}
+
+/** The dt of the step analysis: the override (setting or --timestep), else the file's `timestep`. */
+export function effectiveTimestep(a: Analysis, opts: DerivedOptions = {}): number | undefined {
+  return opts.timestepSI ?? a.model.timestepSI;
+}
+
+/** The step analysis of every well-formed neuron at the effective dt (none without a dt). */
+export function stepReports(a: Analysis, opts: DerivedOptions = {}): StepReport[] {
+  const dt = effectiveTimestep(a, opts);
+  if (dt === undefined) return [];
+  return a.model.neurons.filter((n) => n.wellFormed).map((n) => stepReportFor(n, dt));
+}
+
+/** The one diagnostic for the neurons a time budget left unchecked (at the first of them). */
+export function timeBudgetDiagnostic(left: readonly ResolvedNeuron[], budgetMs: number): Diagnostic {
+  const names = left.slice(0, 5).map((n) => n.name).join(', ') + (left.length > 5 ? `, … (${left.length} in all)` : '');
+  return { severity: 'info', code: 'time-budget', range: left[0]!.symbol.nameRange,
+    message: `derived checks (adjoint, step analysis) skipped for ${names}: this file used up its time budget of ${budgetMs} ms` };
+}
+
 /**
  * The slow checks: step analysis and adjoint derivation diagnostics (grazing crossings,
  * non-smooth points, unstable steps). Cached per model content inside those stages, so
  * calling it again for an unchanged neuron is cheap. Faces call it after publishing the
- * fast diagnostics, and drop its result when a newer text arrived meanwhile.
+ * fast diagnostics, and drop its result when a newer text arrived meanwhile (the language
+ * server runs neuronDerivedDiagnostics one neuron at a time so that it can stop early).
  */
 export function derivedDiagnostics(a: Analysis, opts: DerivedOptions = {}): Diagnostic[] {
-  void opts;
   const out: Diagnostic[] = [];
-  for (const n of a.model.neurons) {
-    if (!n.wellFormed) continue;
-    try {
-      out.push(...adjointDiagnostics(derivationFor(n), n));
-    } catch (err) {
-      out.push({ severity: 'warning', code: 'derivation-budget', range: n.symbol.nameRange,
-        message: `the adjoint of ${n.name} could not be derived: ${(err as Error).message}` });
+  const todo = a.model.neurons.filter((n) => n.wellFormed);
+  const started = performance.now();
+  for (let i = 0; i < todo.length; i++) {
+    if (opts.budgetMs !== undefined && performance.now() - started > opts.budgetMs) {
+      out.push(timeBudgetDiagnostic(todo.slice(i), opts.budgetMs));
+      break;
     }
+    out.push(...neuronDerivedDiagnostics(a, todo[i]!, opts));
   }
   return clampAll(out, a.text.length);
 }

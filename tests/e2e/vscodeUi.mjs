@@ -3,7 +3,8 @@
 // exact characters, the light bulb, the command palette. The checks in vscode.e2e.mjs use
 // only these helpers, so each check reads as a list of user actions.
 // Invariants: every wait has a timeout; lines and columns are 1-based as VS Code shows
-// them; text read from the editor has Monaco's non-breaking spaces turned back into spaces.
+// them; text read from the editor is the document's: Monaco's non-breaking spaces turned
+// back into spaces, inlay hints (injected text, class dyn-rule-*) left out.
 import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 
@@ -66,7 +67,10 @@ export class VscodeUi {
       const lines = [];
       for (const v of ed.querySelectorAll('.view-lines .view-line')) {
         const top = topOf(v);
-        if (numbers.has(top)) lines.push({ line: numbers.get(top), top, text: v.textContent.replace(/\u00a0/g, ' ') });
+        if (!numbers.has(top)) continue;
+        const copy = v.cloneNode(true);
+        for (const injected of copy.querySelectorAll('[class*="dyn-rule"]')) injected.remove(); // inlay hints
+        lines.push({ line: numbers.get(top), top, text: copy.textContent.replace(/\u00a0/g, ' ') });
       }
       return lines.sort((a, b) => a.line - b.line);
     });
@@ -108,7 +112,11 @@ export class VscodeUi {
       const walker = document.createTreeWalker(view, NodeFilter.SHOW_TEXT);
       let acc = '';
       const nodes = [];
-      for (let n = walker.nextNode(); n; n = walker.nextNode()) { nodes.push({ n, start: acc.length }); acc += n.textContent; }
+      for (let n = walker.nextNode(); n; n = walker.nextNode()) {
+        if (n.parentElement?.closest('[class*="dyn-rule"]')) continue; // an inlay hint, not text
+        nodes.push({ n, start: acc.length });
+        acc += n.textContent;
+      }
       const at = acc.replace(/\u00a0/g, ' ').indexOf(needle);
       if (at < 0) return null;
       const range = document.createRange();
@@ -165,6 +173,14 @@ export class VscodeUi {
     }
     await row.click();
     return true;
+  }
+
+  /** Closes every editor and the panel, for a screenshot of one thing. Dirty files must be reverted first. */
+  async tidy() {
+    await this.runCommand('View: Close All Editors');
+    await this.page.waitForTimeout(300);
+    if (await this.page.locator('.part.panel').isVisible().catch(() => false)) await this.page.keyboard.press('Control+J');
+    await this.page.waitForTimeout(300);
   }
 
   /** What the window shows, in words, for a failure report. */

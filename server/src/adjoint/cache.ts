@@ -28,5 +28,10 @@ export function derivationFor(neuron: ResolvedNeuron, ctx: DeriveContext = {}): 
   return d;
 }
 
+/** The cached derivation of `neuron`, or undefined when it was not derived yet (derives nothing). */
+export function cachedDerivation(neuron: ResolvedNeuron, ctx: DeriveContext = {}): NeuronDerivation | undefined {
+  return cache.get(cacheKey(neuron, ctx));
+}
+
 export function derivationCacheSize(): number { return cache.size; }
 export function clearDerivationCache(): void { cache.clear(); }

@@ -2,7 +2,7 @@
 // content), render, diagnose, hover.
 export { deriveNeuron, modelHash, type NeuronDerivation, type SpikeDerivation, type IncomingDerivation, type ParamGradient,
   type TrajectoryNeeds, type DeriveContext, type DerivationIssue, type Where, type Condition, type SurfaceRule } from './derive';
-export { derivationFor, clearDerivationCache, derivationCacheSize } from './cache';
+export { derivationFor, cachedDerivation, clearDerivationCache, derivationCacheSize } from './cache';
 export { adjointJson, renderText, renderMarkdown, renderLatex, type AdjointJson, type AdjointJsonModel } from './render';
 export { adjointDiagnostics } from './diagnostics';
 export { adjointHoverMarkdown, type AdjointHoverItem } from './hover';

@@ -11,6 +11,8 @@ import { checkCommand } from './commands/check';
 import { lspCommand } from './commands/lsp';
 import { generateCommand } from './commands/generate';
 import { adjointCommand } from './commands/adjoint';
+import { stepCommand } from './commands/step';
+import { gradcheckCommand } from './commands/gradcheck';
 import { SALTUS_VERSION } from './version';
 
 /** The subcommands, in the order `saltus --help` lists them. */
@@ -19,6 +21,8 @@ export const COMMANDS: readonly Command[] = [
   lspCommand,
   generateCommand,
   adjointCommand,
+  stepCommand,
+  gradcheckCommand,
 ];
 
 export function usageText(): string {

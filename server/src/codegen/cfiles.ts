@@ -73,7 +73,7 @@ export function prototypes(plan: ModelPlan, f: CFlavour): { defaults?: string; p
   return { ...(hasParamsStruct(plan, f) ? { defaults: `void ${M}_default_params(${M}_params *par)` } : {}), prepare };
 }
 
-/** Host-and-device helpers; `qualifier` is '' in C and '__host__ __device__' in CUDA. Only used ones are emitted. */
+/** Numeric helpers of the phases; `qualifier` is '' in C and '__device__' in CUDA (kernels only). Only used ones are emitted. */
 export function helpers(plan: ModelPlan, f: CFlavour, qualifier: string, code: string): string[] {
   const { R, lit, fn } = cTypes(f), M = plan.prefix;
   const q = qualifier ? `${qualifier} ` : '';
@@ -96,26 +96,26 @@ export function helpers(plan: ModelPlan, f: CFlavour, qualifier: string, code: s
 /** The matrix exponential used by prepare (LTI flows only). */
 function expmHelper(plan: ModelPlan, f: CFlavour): string[] {
   const { R, lit, fn } = cTypes(f), M = plan.prefix, N = 2 * plan.states.length;
-  const eps = f.float ? lit(1e-9) : lit(1e-18);
   return [
-    `/* e = e^m for the ${N} x ${N} augmented matrix: scaling and squaring of the Taylor series (m is scaled by`,
-    '   2^-s until its 1-norm is at most 1/2, the series summed until its terms vanish, then squared s times). */',
+    `/* e = e^m for the ${N} x ${N} augmented matrix, by scaling and squaring of the Taylor series, carried`,
+    '   as e = I + g so that entries near the identity keep their relative accuracy: m is scaled by 2^-s',
+    '   until its 1-norm is at most 1/2, g = x + x^2/2! + ... + x^24/24! (the remainder is below 1e-30',
+    '   relative), then g <- 2 g + g g (that is, e <- e e) s times. */',
     `static void ${M}_expm(${R} m[${N}][${N}], ${R} e[${N}][${N}])`, '{',
-    `    ${R} x[${N}][${N}], term[${N}][${N}], prod[${N}][${N}], norm = ${lit(0)}, big;`, '    int i, j, k, r, s = 0;',
+    `    ${R} x[${N}][${N}], term[${N}][${N}], g[${N}][${N}], prod[${N}][${N}], norm = ${lit(0)};`, '    int i, j, k, r, s = 0;',
     `    for (j = 0; j < ${N}; j++) {`, `        ${R} col = ${lit(0)};`, `        for (i = 0; i < ${N}; i++) col += ${fn('fabs')}(m[i][j]);`,
     '        if (col > norm) norm = col;', '    }', `    while (norm > ${lit(0.5)} && s < 1000) { norm /= ${lit(2)}; s++; }`,
     `    for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, `        x[i][j] = ${fn('ldexp')}(m[i][j], -s);`,
-    `        e[i][j] = term[i][j] = i == j ? ${lit(1)} : ${lit(0)};`, '    }',
-    '    for (k = 1; k <= 40; k++) {', '        big = ' + lit(0) + ';',
+    '        term[i][j] = g[i][j] = x[i][j];', '    }',
+    '    for (k = 2; k <= 24; k++) {',
     `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, `            ${R} acc = ${lit(0)};`,
     `            for (r = 0; r < ${N}; r++) acc += term[i][r] * x[r][j];`, `            prod[i][j] = acc / (${R})k;`, '        }',
-    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, '            term[i][j] = prod[i][j];', '            e[i][j] += term[i][j];',
-    `            if (${fn('fabs')}(term[i][j]) > big) big = ${fn('fabs')}(term[i][j]);`, '        }',
-    `        if (!(big > ${eps})) break;`, '    }',
+    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, '            term[i][j] = prod[i][j];', '            g[i][j] += term[i][j];', '        }', '    }',
     '    for (k = 0; k < s; k++) {',
-    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, `            ${R} acc = ${lit(0)};`,
-    `            for (r = 0; r < ${N}; r++) acc += e[i][r] * e[r][j];`, '            prod[i][j] = acc;', '        }',
-    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) e[i][j] = prod[i][j];`, '    }', '}', ''];
+    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) {`, `            ${R} acc = ${lit(2)} * g[i][j];`,
+    `            for (r = 0; r < ${N}; r++) acc += g[i][r] * g[r][j];`, '            prod[i][j] = acc;', '        }',
+    `        for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) g[i][j] = prod[i][j];`, '    }',
+    `    for (i = 0; i < ${N}; i++) for (j = 0; j < ${N}; j++) e[i][j] = (i == j ? ${lit(1)} : ${lit(0)}) + g[i][j];`, '}', ''];
 }
 
 export function defaultsAndPrepare(plan: ModelPlan, f: CFlavour): string[] {

@@ -60,9 +60,10 @@ export class CPhases {
     if (body.some((l) => /\bdt\b/.test(l.replace(/\/\*.*?\*\//g, '')))) out.push(`const ${this.R} dt = ${this.co}dt;`);
     return out;
   }
+  /** Copies the state (before any jump of this event) into the optional record. */
   private record(target: string): string[] {
-    if (this.f.cuda) return this.plan.states.map((s) => `if (${target}.${s.id}) ${target}.${s.id}[idx] = ${s.id};`);
-    return [`if (${target}) {`, ...this.plan.states.map((s) => `    ${target}->${s.id}[idx] = ${s.id};`), '}'];
+    if (this.f.cuda) return this.plan.states.map((s) => `if (${target}.${s.id}) ${target}.${s.id}[idx] = state.${s.id}[idx];`);
+    return [`if (${target}) {`, ...this.plan.states.map((s) => `    ${target}->${s.id}[idx] = state.${s.id}[idx];`), '}'];
   }
   private gradsParam(): ParamSpec[] {
     return this.plan.gradParams.length ? [this.p('grads', `${this.M}_grads grads`)] : [];
@@ -141,7 +142,7 @@ export class CPhases {
     const params = [this.common()[0]!, this.p('state', `${this.M}_state state`), ...this.common().slice(1),
       this.p('guard_before', `const ${this.R} *guard_before`), this.p('spiked', 'unsigned char *spiked'),
       this.p('spike_time', `${this.R} *spike_time`), this.optionalState('record')];
-    const all = [...scope.loads(plan.states.map((s) => s.name)), ...body];
+    const all = [...scope.loads(), ...body];
     return { name: 'spike', doc, params, setup: this.setup(scope, all), body: all };
   }
 
@@ -156,7 +157,7 @@ export class CPhases {
       `record (may be NULL, else every array set): receives the state just before the jump, for ${this.M}_backward_incoming.`];
     const params = [this.common()[0]!, this.p('state', `${this.M}_state state`), ...this.common().slice(1),
       this.p('weights', `const ${this.R} *weights`), this.p('received', 'const unsigned char *received'), this.optionalState('record')];
-    const all = ['if (received && !received[idx]) SKIP', ...scope.loads(plan.states.map((s) => s.name)), ...body];
+    const all = ['if (received && !received[idx]) SKIP', ...scope.loads(), ...body];
     return { name: 'incoming', doc, params, setup: this.setup(scope, all), body: all };
   }
 

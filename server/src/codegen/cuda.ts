@@ -53,6 +53,6 @@ export function cudaTarget(plan: ModelPlan, f: CFlavour, base: HeaderBase): Gene
     ? ['/* A state struct with every array NULL: "not requested". */', `static ${M}_state ${M}_null_state(void)`, '{', `    ${M}_state s = {};`, '    return s;', '}', '']
     : [];
   const cu: string[] = [...head(`${M}.cu`), '#include <math.h>', `#include "${M}.cuh"`, '', ...nullState,
-    ...helpers(plan, f, '__host__ __device__', [...prep, code].join('\n')), ...prep, ...kernels];
+    ...helpers(plan, f, '__device__', code), ...prep, ...kernels];
   return [{ name: `${M}.cuh`, content: h.join('\n') }, { name: `${M}.cu`, content: cu.join('\n') }];
 }

@@ -69,9 +69,10 @@ function sanitise(name: string): string {
   return s;
 }
 
-/** The first free name among base_, base2, base3, ..., then xbase2, ... (always terminates). */
-function freeName(base: string, busy: (s: string) => boolean): string {
-  const candidates = [base + '_'];
+/** The first free name among the sanitised spelling (when it differs from the original), base_,
+ *  base2, base3, ..., then xbase1, ... (always terminates). */
+function freeName(base: string, busy: (s: string) => boolean, original: string): string {
+  const candidates = [...(base !== original ? [base] : []), base + '_'];
   for (let k = 2; k < 1000; k++) candidates.push(base + k);
   for (const c of candidates) if (!busy(c)) return c;
   for (let k = 1; ; k++) if (!busy(`x${base}${k}`)) return `x${base}${k}`;
@@ -88,7 +89,7 @@ export function renameAll(names: readonly { name: string; kind: Renaming['kind']
   for (const n of names) {
     if (ids.has(n.name)) continue;
     const reason = reasonFor(n.name, false, prefix)!;
-    const id = freeName(sanitise(n.name), (s) => taken.has(s) || reasonFor(s, false, prefix) !== null);
+    const id = freeName(sanitise(n.name), (s) => taken.has(s) || reasonFor(s, false, prefix) !== null, n.name);
     ids.set(n.name, id);
     taken.add(id);
     renamed.push({ model, kind: n.kind, from: n.name, to: id, reason });
@@ -105,7 +106,7 @@ export function renameModels(models: readonly string[]): { ids: Map<string, stri
     let reason = reasonFor(m, true);
     if (reason === null && lower.has(m.toLowerCase())) reason = 'another model of the file differs from it only in letter case (file names would clash)';
     if (reason === null) { ids.set(m, m); lower.add(m.toLowerCase()); continue; }
-    const id = freeName(sanitise(m), (s) => reasonFor(s, true) !== null || lower.has(s.toLowerCase()));
+    const id = freeName(sanitise(m), (s) => reasonFor(s, true) !== null || lower.has(s.toLowerCase()), m);
     ids.set(m, id);
     lower.add(id.toLowerCase());
     renamed.push({ model: m, kind: 'model', from: m, to: id, reason });

@@ -64,9 +64,10 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
 
   // prepare
   const ps = new PyScope(plan, inline);
+  const noPar = inline || plan.params.length === 0; // as in C: no params argument then
   const prep: string[] = ['dt = np.float64(dt)', 'if not (dt > 0 and np.isfinite(dt)):', '    raise ValueError("dt must be a positive, finite time in s")'];
-  if (!inline) prep.push('par = {name: np.float64(par[name]) for name in PARAMS}');
-  prep.push(`coeffs = {"dt": dt${inline ? '' : ', "par": par'}}`);
+  if (!noPar) prep.push('par = {name: np.float64(par[name]) for name in PARAMS}');
+  prep.push(`coeffs = {"dt": dt${noPar ? '' : ', "par": par'}}`);
   if (plan.forward.kind === 'exact-propagator') {
     const n = S.length, fw = plan.forward;
     prep.push('# linear time-invariant flow f = A x + c: e^[[A dt, I dt], [0, 0]] = [[P, Q], [0, I]]', `aug = np.zeros((${2 * n}, ${2 * n}))`);
@@ -79,8 +80,8 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
       'if not all(np.all(np.isfinite(coeffs[k])) for k in ("P", "Q", "q")):', '    raise ValueError("the step coefficients are not finite for this dt")');
   }
   prep.push('return coeffs');
-  L.push(inline ? 'def prepare(dt):' : 'def prepare(par, dt):',
-    ...ind([...docstring([`Step coefficients for dt (s)${inline ? '' : ' and the parameter dict par'}; ValueError for a bad dt.`]), ...prep]), '', '');
+  L.push(noPar ? 'def prepare(dt):' : 'def prepare(par, dt):',
+    ...ind([...docstring([`Step coefficients for dt (s)${noPar ? '' : ' and the parameter dict par'}; ValueError for a bad dt.`]), ...prep]), '', '');
 
   const setup = (scope: PyScope, body: readonly string[], time: string | null): string[] => {
     const out: string[] = [];

@@ -18,11 +18,11 @@ export function numpyHelpers(code: string): string[] {
       '        theta = np.clip(g_start / np.where(ok, span, 1.0), 0.0, 1.0)', '    return np.where(ok, t_start + theta * dt, t_start + dt)', '', '');
   }
   if (code.includes('_expm(')) {
-    out.push('def _expm(m):', '    """e^m by scaling and squaring of the Taylor series (m scaled by 2^-s to 1-norm <= 1/2, as in the C code)."""',
+    out.push('def _expm(m):', '    """e^m by scaling and squaring of the Taylor series, carried as e = I + g (as in the C code)."""',
       '    m = np.asarray(m, dtype=np.float64)', '    norm = np.abs(m).sum(axis=0).max()', '    s = 0', '    while norm > 0.5 and s < 1000:',
-      '        norm /= 2', '        s += 1', '    x = np.ldexp(m, -s)', '    e = np.eye(len(m))', '    term = np.eye(len(m))',
-      '    for k in range(1, 41):', '        term = term @ x / k', '        e = e + term', '        if not np.abs(term).max() > 1e-18:', '            break',
-      '    for _ in range(s):', '        e = e @ e', '    return e', '', '');
+      '        norm /= 2', '        s += 1', '    x = np.ldexp(m, -s)', '    term = x.copy()', '    g = x.copy()',
+      '    for k in range(2, 25):', '        term = term @ x / k', '        g = g + term',
+      '    for _ in range(s):', '        g = 2 * g + g @ g', '    return np.eye(len(m)) + g', '', '');
   }
   if (code.includes('_value(')) {
     out.push('def _value(arrays, name):', '    """arrays[name] as an array, or 0 where arrays or the entry is None."""',

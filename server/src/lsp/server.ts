@@ -5,12 +5,16 @@
 // changes are queued, only the newest text is analysed (coalesced with setImmediate: a
 // check runs once no newer version arrived during the last event-loop turn). The fast
 // diagnostics are published with the document version; the slow derived checks run on a
-// later turn and are published merged, only if that version is still current.
+// later turn, one neuron after another in slices of the event loop, and are published
+// merged only if that version is still current: a newer version, closing the document or
+// shutdown cancels the rest, and DERIVED_BUDGET_MS bounds the work per version (neurons
+// not reached get one 'time-budget' diagnostic). Only the text the client sent is read:
+// nothing here touches the disk.
 // Invariants: no handler throws to the connection (features.ts wraps each); results for
 // unknown or closed documents are null/empty; diagnostics are cleared on close.
 import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigurationNotification, type Connection, type InitializeResult } from 'vscode-languageserver';
 import { TextDocument } from 'vscode-languageserver-textdocument';
-import { analyse, derivedDiagnostics, type Analysis, type DerivedOptions } from '../pipeline';
+import { analyse, neuronDerivedDiagnostics, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
 import type { Diagnostic } from '../outputs/diagnostic';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
@@ -24,12 +28,23 @@ export interface ServerOptions {
   hoverSections?: readonly HoverSection[];
   /** Replaces feature implementations (tests inject failing ones to check the guards). */
   features?: Partial<Features>;
-  /** The slow checks; defaults to the pipeline's derivedDiagnostics. */
+  /** The slow checks, run in one go; by default the pipeline's, one neuron per step (cancellable). */
   derived?: (a: Analysis, opts: DerivedOptions) => Diagnostic[];
+  /** Work time (ms) the derived checks may spend on one version of a document (default DERIVED_BUDGET_MS). */
+  derivedBudgetMs?: number;
 }
 
+/** Default work-time budget of the derived checks per document version. */
+export const DERIVED_BUDGET_MS = 2000;
+/** Longest stretch of derived work before the server turns to queued messages. */
+const SLICE_MS = 15;
+
 /** The newest analysis of one document version, with its derived diagnostics once computed. */
-export interface CachedAnalysis { uri: string; version: number; analysis: Analysis; derived?: Diagnostic[] }
+export interface CachedAnalysis {
+  uri: string; version: number; analysis: Analysis; derived?: Diagnostic[];
+  /** The derived-checks run in progress for this entry (a newer run supersedes it). */
+  deriving?: object;
+}
 
 export interface DocumentState {
   analysisFor(uri: string): CachedAnalysis | undefined;
@@ -45,7 +60,8 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   let settings: SaltusSettings = DEFAULT_SETTINGS;
   let canReadConfiguration = false;
   let canRegisterConfiguration = false;
-  const derive = options.derived ?? derivedDiagnostics;
+  const budgetMs = options.derivedBudgetMs ?? DERIVED_BUDGET_MS;
+  let shutDown = false;
   const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
 
   const state: DocumentState = {
@@ -82,15 +98,44 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   };
 
   const deriveLater = (uri: string, version: number): void => {
-    try {
-      const c = state.analysisFor(uri);
-      if (!c || c.version !== version || c.derived) return;
-      const opts: DerivedOptions = settings.timestepSI !== undefined ? { timestepSI: settings.timestepSI } : {};
-      c.derived = derive(c.analysis, opts);
-      if (documents.get(uri)?.version === version && c.derived.length > 0) publish(c);
-    } catch (e) {
-      log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`);
+    const c = state.analysisFor(uri);
+    if (!c || c.version !== version || c.derived) return;
+    const opts: DerivedOptions = settings.timestepSI !== undefined ? { timestepSI: settings.timestepSI } : {};
+    const finish = (derived: Diagnostic[]): void => {
+      c.derived = derived;
+      if (documents.get(uri)?.version === version && derived.length > 0) publish(c);
+    };
+    if (options.derived) {
+      try { finish(options.derived(c.analysis, opts)); } catch (e) { log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`); }
+      return;
     }
+    // One neuron after another, a slice of the event loop at a time: a newer version of the
+    // document (or its closing) cancels the rest, and the work time per version is bounded.
+    const todo = c.analysis.model.neurons.filter((n) => n.wellFormed);
+    const run = {};
+    c.deriving = run;
+    const out: Diagnostic[] = [];
+    let next = 0, worked = 0;
+    const slice = (): void => {
+      try {
+        if (documents.get(uri)?.version !== version || cache.get(uri) !== c || c.deriving !== run || shutDown) return; // stale: cancelled
+        const sliceStart = performance.now();
+        while (next < todo.length && performance.now() - sliceStart < SLICE_MS) {
+          if (worked + (performance.now() - sliceStart) > budgetMs) {
+            out.push(timeBudgetDiagnostic(todo.slice(next), budgetMs));
+            next = todo.length;
+            break;
+          }
+          out.push(...neuronDerivedDiagnostics(c.analysis, todo[next++]!, opts));
+        }
+        worked += performance.now() - sliceStart;
+        if (next < todo.length) { setImmediate(slice); return; }
+        finish(out);
+      } catch (e) {
+        log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`);
+      }
+    };
+    slice();
   };
 
   /** Checks `uri` once no newer version arrived during the last turn (coalesces queued edits). */
@@ -164,7 +209,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
     pending.delete(e.document.uri);
     void connection.sendDiagnostics({ uri: e.document.uri, diagnostics: [] });
   });
-  connection.onShutdown(() => { pending.clear(); });
+  connection.onShutdown(() => { shutDown = true; pending.clear(); });
 
   registerFeatures(connection, state, { ...DEFAULT_FEATURES, ...options.features }, options.hoverSections ?? []);
   registerDerivedFeatures(connection, state);

@@ -12,6 +12,7 @@ import { parseUnit } from '../units/unitParse';
 import type { Diagnostic, Fix } from '../outputs/diagnostic';
 import { constantValue, describe, lower, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
 import { resolveConnections } from './connections';
+import { complexityError } from './complexity';
 import { suggestions, unknownName } from './suggest';
 import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SymbolInfo } from './types';
 
@@ -202,9 +203,28 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   for (const d of [...params, ...lets]) {
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
+  checkBounds(lets, flows, flowDecls, fire, incoming, table, ctx);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
     ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), wellFormed };
+}
+
+/** 'too-complex' errors for resolved expressions that later stages could not walk in bounded time and stack. */
+function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<string, A.FlowEq>, fire: FireInfo | undefined,
+  incoming: IncomingInfo | undefined, table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
+  const check = (s: S.Sym, range: A.Range | undefined, what: string): void => {
+    const e = range ? complexityError(s, range, what) : undefined;
+    if (e) ctx.diagnostics.push(e);
+  };
+  for (const l of lets) if (l.value) check(l.value, (table.get(l.name)?.decl as A.LetDecl | undefined)?.value?.range, `the value of '${l.name}'`);
+  for (const [x, f] of flows) check(f, flowDecls.get(x)?.value?.range, `d${x}/dt`);
+  const jumpRange = (jumps: A.Jump[], x: string): A.Range | undefined => jumps.find((j) => j.target.name === x)?.value?.range;
+  if (fire) {
+    const d = fire.decl;
+    check(fire.guard, d.lhs && d.rhs ? { start: d.lhs.range.start, end: d.rhs.range.end } : d.keywordRange, 'the guard');
+    for (const [x, h] of fire.jumps) check(h, jumpRange(d.jumps, x), `the jump of '${x}'`);
+  }
+  if (incoming) for (const [x, r] of incoming.jumps) check(r, jumpRange(incoming.decl.jumps, x), `the incoming jump of '${x}'`);
 }
 
 const countErrors = (ds: Diagnostic[]): number => ds.reduce((n, d) => n + (d.severity === 'error' ? 1 : 0), 0);

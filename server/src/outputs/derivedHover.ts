@@ -4,6 +4,9 @@
 // server passes DERIVED_SECTIONS to `hover`.
 import { adjointHoverMarkdown, derivationFor } from '../adjoint/index';
 import type { HoverSection } from './hover';
+import { effectiveTimestep } from '../pipeline';
+import { stepHoverMarkdown } from '../step/index';
+import { stepReportFor } from '../step/cache';
 
 const adjointSection: HoverSection = ({ target, neuron }) => {
   if (!neuron?.wellFormed) return undefined;
@@ -22,4 +25,19 @@ const adjointSection: HoverSection = ({ target, neuron }) => {
   return undefined;
 };
 
-export const DERIVED_SECTIONS: HoverSection[] = [adjointSection];
+/** The step analysis at the file's timestep: per equation on `dX/dt`, every neuron on `timestep`. */
+const stepSection: HoverSection = ({ analysis, target, neuron }) => {
+  const dt = effectiveTimestep(analysis);
+  if (target.kind === 'keyword' && target.word === 'timestep') {
+    if (dt === undefined) return undefined;
+    const parts = analysis.model.neurons.filter((n) => n.wellFormed).map((n) => `**${n.name}**\n\n${stepHoverMarkdown(stepReportFor(n, dt))}`);
+    return parts.length ? parts.join('\n\n') : undefined;
+  }
+  if (target.kind === 'flow' && neuron?.wellFormed) {
+    if (dt === undefined) return '_Step analysis: declare `timestep QUANTITY` (or set saltus.timestep) to see the step scheme of this equation._';
+    return stepHoverMarkdown(stepReportFor(neuron, dt), target.state);
+  }
+  return undefined;
+};
+
+export const DERIVED_SECTIONS: HoverSection[] = [adjointSection, stepSection];

@@ -30,6 +30,8 @@ export const DiagnosticCodes = [
   'step-unstable',
   'step-inaccurate',
   'step-linearised',
+  'too-complex',
+  'time-budget',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

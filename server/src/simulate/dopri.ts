@@ -8,7 +8,9 @@
 // on a genuine DOPRI5 step of length tau rather than on the interpolant, to full double
 // precision in time (|bracket| <= 4 ulp of t, well below 1e-12 s for model times). The
 // located time is a smooth function of the model's parameters, so finite differences
-// through it are clean.
+// through it are clean. A guard that enters its crossed side and leaves it again within
+// one step (a near-grazing spike) is found in the step's dense output (samples, then a
+// golden-section search near an interior extremum) and confirmed on a genuine step.
 // Invariants: works in either time direction (sign of tEnd - t0); never modifies y0;
 // segments passed to onSegment cover [t0, t_stop] without gaps, in integration order.
 
@@ -168,6 +170,7 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
     steps++;
     o.h = h * Math.min(5, Math.max(0.2, 0.9 * Math.pow(Math.max(err, 1e-10), -0.2)));
     const tNew = last ? tEnd : t + dir * h;
+    const seg = st.dense(t, y, tNew - t);
     if (guards) {
       guards.eval(tNew, st.y1, g1);
       let best: { i: number; tau: number } | undefined;
@@ -176,6 +179,23 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
         const tau = locate(st, guards, i, t, y, dir * h, g0[i]!, g1[i]!);
         if (!best || Math.abs(tau) < Math.abs(best.tau)) best = { i, tau };
       }
+      // A guard that enters and leaves its crossed side inside the step (a near-grazing
+      // spike) has no sign change at the ends: look for it in the dense output, confirm it
+      // on a genuine step, then locate it like any other crossing.
+      const inner = interiorCrossing(seg, guards, g0, g1, best ? Math.abs(best.tau) / h : 1);
+      if (inner) {
+        const k0 = Float64Array.from(st.k[0]!);
+        const tau = dir * inner.theta * h;
+        st.step(t, y, tau);
+        const gv = new Float64Array(guards.count);
+        guards.eval(t + tau, st.y1, gv);
+        st.k[0]!.set(k0);
+        if (crossed(g0[inner.i]!, gv[inner.i]!, guards.direction[inner.i]!)) {
+          const tl = locate(st, guards, inner.i, t, y, tau, g0[inner.i]!, gv[inner.i]!);
+          if (!best || Math.abs(tl) < Math.abs(best.tau)) best = { i: inner.i, tau: tl };
+        }
+        if (!best) st.step(t, y, dir * h); // restore the accepted step's stages (FSAL) and y1
+      }
       if (best) {
         st.rhs(t, y, st.k[0]!);
         st.step(t, y, best.tau);
@@ -183,7 +203,7 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
         return { t: t + best.tau, y: Float64Array.from(st.y1), hit: best.i, steps, rejected };
       }
     }
-    onSegment(st.dense(t, y, tNew - t));
+    onSegment(seg);
     for (let i = 0; i < st.n; i++) {
       y[i] = st.y1[i]!;
       const a = Math.abs(y[i]!);
@@ -194,6 +214,58 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
     st.k[0]!.set(st.k[6]!);
   }
   return { t, y, steps, rejected };
+}
+
+const INTERIOR_SAMPLES = 8;
+
+/**
+ * The earliest guard that reaches its crossed side strictly inside a step although its end
+ * values are on the same side, as a fraction theta of the step (within `limit`), from the
+ * step's dense output: first by samples at j / INTERIOR_SAMPLES, then, around an interior
+ * extremum towards the crossed side, by golden-section search (no right-hand side calls).
+ */
+function interiorCrossing(seg: DenseSegment, guards: GuardSet, g0: Float64Array, g1: Float64Array, limit: number): { i: number; theta: number } | undefined {
+  const m = INTERIOR_SAMPLES, n = guards.count;
+  const x = new Float64Array(seg.n), g = new Float64Array(n);
+  const at = (theta: number, out: Float64Array): Float64Array => {
+    const tt = seg.t0 + theta * seg.h;
+    denseEval(seg, tt, x);
+    guards.eval(tt, x, out);
+    return out;
+  };
+  const samples: Float64Array[] = [Float64Array.from(g0)];
+  for (let j = 1; j < m; j++) samples.push(Float64Array.from(at(j / m, g)));
+  samples.push(Float64Array.from(g1));
+  let best: { i: number; theta: number } | undefined;
+  for (let i = 0; i < n; i++) {
+    const d = guards.direction[i]!, a = g0[i]!;
+    // q >= 0 on the crossed side; only guards that start on the uncrossed side can cross.
+    const side = d > 0 ? -1 : d < 0 ? 1 : Math.sign(a);
+    if (side === 0 || Math.sign(a) !== side || crossed(a, g1[i]!, d)) continue;
+    const q = (v: number): number => -side * v;
+    let theta: number | undefined;
+    const first = samples.findIndex((s, j) => j > 0 && j < m && q(s[i]!) >= 0);
+    if (first > 0) theta = first / m;
+    else {
+      let jm = 0;
+      for (let j = 1; j <= m; j++) if (q(samples[j]![i]!) > q(samples[jm]![i]!)) jm = j;
+      if (jm === 0 || jm === m) continue;
+      // Golden-section search for the maximum of q on [(jm - 1) / m, (jm + 1) / m].
+      const r = (Math.sqrt(5) - 1) / 2;
+      let lo = (jm - 1) / m, hi = (jm + 1) / m;
+      let c = hi - r * (hi - lo), e = lo + r * (hi - lo);
+      let qc = q(at(c, g)[i]!), qe = q(at(e, g)[i]!);
+      for (let it = 0; it < 60 && hi - lo > 1e-9 / m; it++) {
+        if (qc >= 0 || qe >= 0) break;
+        if (qc > qe) { hi = e; e = c; qe = qc; c = hi - r * (hi - lo); qc = q(at(c, g)[i]!); }
+        else { lo = c; c = e; qc = qe; e = lo + r * (hi - lo); qe = q(at(e, g)[i]!); }
+      }
+      if (qc >= 0) theta = c;
+      else if (qe >= 0) theta = e;
+    }
+    if (theta !== undefined && theta < limit && (!best || theta < best.theta)) best = { i, theta };
+  }
+  return best;
 }
 
 /** Signed step tau in (0, h] at which guard i crosses, on the crossed side of the root. */

@@ -73,6 +73,7 @@ export interface SourceFile {
   range: Range;
 }
 
-export interface SyntaxError { message: string; range: Range }
+/** A lexer or parser error; `code` is set where a size or nesting limit (not the grammar) stopped the parser. */
+export interface SyntaxError { message: string; range: Range; code?: 'too-complex' }
 
 export interface ParseResult { file: SourceFile; errors: SyntaxError[] }

@@ -1,6 +1,8 @@
 // Turns chevrotain's concrete syntax tree into the typed AST of ast.ts. Nodes that error
 // recovery left incomplete become `undefined` fields; tokens that recovery inserted
 // (NaN offsets) are treated as absent. Never throws on any CST the parser can produce.
+// An expression deeper than MAX_EXPR_DEPTH is left out (undefined) with a 'too-complex' error,
+// so no later stage walks a tree deeper than that.
 import type { CstElement, CstNode, IToken } from 'chevrotain';
 import type * as A from './ast';
 
@@ -67,6 +69,45 @@ function unitText(n: CstNode | undefined): A.UnitText | undefined {
 }
 
 // ---- expressions ---------------------------------------------------------------------
+
+/**
+ * Longest path from an expression's root to a leaf that the later stages (which walk the
+ * tree recursively) accept. The parser bounds nesting (grammar.ts); this bounds long operator
+ * chains, which the tree stores left-deep: `a + b + c` is `(a + b) + c`.
+ */
+export const MAX_EXPR_DEPTH = 1000;
+
+/** Limit errors of the current buildFile call (reset there; the build is synchronous). */
+let limitErrors: A.SyntaxError[] = [];
+
+/** Depth of an expression tree, without recursion (the tree may be deeper than the stack allows). */
+export function exprDepth(root: A.Expr): number {
+  let deepest = 0;
+  const stack: [A.Expr, number][] = [[root, 1]];
+  while (stack.length) {
+    const [e, d] = stack.pop()!;
+    if (d > deepest) deepest = d;
+    switch (e.kind) {
+      case 'binary': stack.push([e.left, d + 1], [e.right, d + 1]); break;
+      case 'unary': stack.push([e.operand, d + 1]); break;
+      case 'paren': stack.push([e.inner, d + 1]); break;
+      case 'call': for (const a of e.args) stack.push([a, d + 1]); break;
+      default: break;
+    }
+  }
+  return deepest;
+}
+
+/** A whole expression (a declaration's value, a guard side): dropped with a limit error when too deep. */
+function rootExpr(n: CstNode | undefined): A.Expr | undefined {
+  const e = buildExpr(n);
+  if (!e) return undefined;
+  const depth = exprDepth(e);
+  if (depth <= MAX_EXPR_DEPTH) return e;
+  limitErrors.push({ code: 'too-complex', range: e.range,
+    message: `expression too long to analyse (its tree is ${depth} levels deep, at most ${MAX_EXPR_DEPTH}); split it into 'let' declarations of fewer terms` });
+  return undefined;
+}
 
 export function buildExpr(n: CstNode | undefined): A.Expr | undefined {
   if (!n) return undefined;
@@ -148,7 +189,7 @@ function buildJump(n: CstNode): A.Jump | undefined {
   const target = ident(tok(n.children, 'Identifier'));
   const r = rangeOf(n);
   if (!target || !r) return undefined;
-  const value = buildExpr(node(n.children, 'expr'));
+  const value = rootExpr(node(n.children, 'expr'));
   return { kind: 'jump', target, ...(value ? { value } : {}), range: r };
 }
 
@@ -163,7 +204,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
     case 'paramDecl': {
       const name = ident(tok(ch, 'Identifier'));
       if (!name) return undefined;
-      const value = buildExpr(node(ch, 'expr'));
+      const value = rootExpr(node(ch, 'expr'));
       const tr = tok(ch, 'Kw_trainable');
       const doc = docString(tok(ch, 'StringLiteral'));
       return { kind: 'param', name, trainable: !!tr, ...(tr ? { trainableRange: tokRange(tr) } : {}),
@@ -173,7 +214,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const name = ident(tok(ch, 'Identifier'));
       if (!name) return undefined;
       const unit = unitText(node(ch, 'unit'));
-      const initial = buildExpr(node(ch, 'expr'));
+      const initial = rootExpr(node(ch, 'expr'));
       const doc = docString(tok(ch, 'StringLiteral'));
       return { kind: 'state', name, ...(unit ? { unit } : {}), ...(initial ? { initial } : {}), ...(doc ? { doc } : {}),
         range, keywordRange: kwRange('Kw_state') };
@@ -181,7 +222,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
     case 'letDecl': {
       const name = ident(tok(ch, 'Identifier'));
       if (!name) return undefined;
-      const value = buildExpr(node(ch, 'expr'));
+      const value = rootExpr(node(ch, 'expr'));
       const doc = docString(tok(ch, 'StringLiteral'));
       return { kind: 'let', name, ...(value ? { value } : {}), ...(doc ? { doc } : {}), range, keywordRange: kwRange('Kw_let') };
     }
@@ -190,13 +231,13 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       if (!d) return undefined;
       const r = tokRange(d);
       const stateName = d.image.slice(1, -3);
-      const value = buildExpr(node(ch, 'expr'));
+      const value = rootExpr(node(ch, 'expr'));
       return { kind: 'flow', target: { name: stateName, range: { start: r.start + 1, end: r.start + 1 + stateName.length } },
         derivRange: r, ...(value ? { value } : {}), range };
     }
     case 'fireBlock': {
-      const lhs = buildExpr(node(ch, 'lhs'));
-      const rhs = buildExpr(node(ch, 'rhs'));
+      const lhs = rootExpr(node(ch, 'lhs'));
+      const rhs = rootExpr(node(ch, 'rhs'));
       const dirNode = node(ch, 'direction');
       const dirTok = dirNode ? Object.values(dirNode.children)[0]?.[0] : undefined;
       const dt = dirTok && isToken(dirTok) && real(dirTok) ? dirTok : undefined;
@@ -238,7 +279,8 @@ function buildNeuron(n: CstNode): BuiltNeuron | undefined {
   return { neuron, strayJumps };
 }
 
-export function buildFile(cst: CstNode | undefined, textLength: number): { file: A.SourceFile; strayJumps: A.Jump[] } {
+export function buildFile(cst: CstNode | undefined, textLength: number): { file: A.SourceFile; strayJumps: A.Jump[]; limitErrors: A.SyntaxError[] } {
+  limitErrors = [];
   const items: A.TopLevel[] = [];
   const strayJumps: A.Jump[] = [];
   for (const top of cst ? nodes(cst.children, 'topLevel') : []) {
@@ -252,7 +294,7 @@ export function buildFile(cst: CstNode | undefined, textLength: number): { file:
       if (b) { items.push(b.neuron); strayJumps.push(...b.strayJumps); }
     } else if (inner.name === 'timestepDecl') {
       const kw = tok(ch, 'Kw_timestep');
-      const value = buildExpr(node(ch, 'expr'));
+      const value = rootExpr(node(ch, 'expr'));
       items.push({ kind: 'timestep', ...(value ? { value } : {}), range, keywordRange: kw ? tokRange(kw) : range });
     } else if (inner.name === 'connectDecl') {
       const kw = tok(ch, 'Kw_connect');
@@ -260,5 +302,7 @@ export function buildFile(cst: CstNode | undefined, textLength: number): { file:
       items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), range, keywordRange: kw ? tokRange(kw) : range });
     }
   }
-  return { file: { kind: 'file', items, comments: [], range: { start: 0, end: textLength } }, strayJumps };
+  const found = limitErrors;
+  limitErrors = [];
+  return { file: { kind: 'file', items, comments: [], range: { start: 0, end: textLength } }, strayJumps, limitErrors: found };
 }

@@ -48,10 +48,30 @@ const RULE_WHAT: Record<string, string> = {
   unaryExpr: 'a value',
 };
 
+/**
+ * Deepest expression nesting (parentheses, calls, signs, exponents) that is parsed. Deeper
+ * text is cut out before parsing (nesting.ts); the gate below, a few levels further, only
+ * catches what that linear pre-scan under-counts.
+ */
+export const MAX_EXPR_NESTING = 200;
+const GATE_MARGIN = 8;
+
 export class SaltusParser extends CstParser {
+  /** Current expression nesting depth (reset by `reset`, balanced by try/finally). */
+  private nesting = 0;
+  /** The first token where the nesting limit stopped the parser in the current parse, if any. */
+  tooDeep: IToken | undefined;
+
   constructor() {
     super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset' });
     this.performSelfAnalysis();
+  }
+
+  /** Called by chevrotain when a new input is set: a fresh parse starts at nesting 0. */
+  override reset(): void {
+    super.reset();
+    this.nesting = 0;
+    this.tooDeep = undefined;
   }
 
   public file = this.RULE('file', () => {
@@ -192,17 +212,36 @@ export class SaltusParser extends CstParser {
     });
   });
 
+  // Every level of expression nesting (a parenthesis or call, a sign, an exponent) enters
+  // unaryExpr once, so counting here bounds the parser's recursion; past the limit neither
+  // alternative is viable, the parser recovers, and parse.ts reports 'too-complex'.
   private unaryExpr = this.RULE('unaryExpr', () => {
+    this.nesting++;
+    try {
+      this.unaryAlternatives();
+    } finally {
+      this.nesting--;
+    }
+  });
+
+  private unaryAlternatives(): void {
     this.OR([
       {
+        GATE: () => this.withinNesting(),
         ALT: () => {
           this.OR2([{ ALT: () => this.CONSUME(T.Minus, { LABEL: 'sign' }) }, { ALT: () => this.CONSUME(T.Plus, { LABEL: 'sign' }) }]);
           this.SUBRULE(this.unaryExpr, { LABEL: 'operand' });
         },
       },
-      { ALT: () => this.SUBRULE(this.power) },
+      { GATE: () => this.withinNesting(), ALT: () => this.SUBRULE(this.power) },
     ]);
-  });
+  }
+
+  private withinNesting(): boolean {
+    if (this.nesting <= MAX_EXPR_NESTING + GATE_MARGIN) return true;
+    if (!this.tooDeep) this.tooDeep = this.LA(1);
+    return false;
+  }
 
   private power = this.RULE('power', () => {
     this.SUBRULE(this.primary);

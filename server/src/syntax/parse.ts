@@ -1,9 +1,13 @@
 // Entry point of the syntax stage: text -> { file, errors }. Never throws: lexer and
-// parser errors become SyntaxErrors with ranges inside the text.
+// parser errors become SyntaxErrors with ranges inside the text. Size and nesting limits
+// (grammar.ts MAX_EXPR_NESTING, applied by nesting.ts before parsing; build.ts
+// MAX_EXPR_DEPTH) give errors with code 'too-complex'. `tokens` are all lexed tokens, also
+// those of a region cut out for being nested too deeply.
 import type { IToken } from 'chevrotain';
 import type * as A from './ast';
 import { buildFile, tokRange } from './build';
-import { parserInstance } from './grammar';
+import { MAX_EXPR_NESTING, parserInstance } from './grammar';
+import { cutTooDeep } from './nesting';
 import { saltusLexer } from './tokens';
 
 export interface ParseOutput extends A.ParseResult {
@@ -27,9 +31,16 @@ export function parse(text: string): ParseOutput {
     // The lexer tracks start offsets only; give each token its end so that chevrotain's node
     // locations carry an end offset too (build.ts then needs no walk of the subtree per node).
     for (const t of lexed.tokens) t.endOffset = t.startOffset + t.image.length - 1;
-    parserInstance.input = lexed.tokens;
+    const cut = cutTooDeep(lexed.tokens, MAX_EXPR_NESTING);
+    const tooDeepMessage = `expression nested too deeply (more than ${MAX_EXPR_NESTING} levels of parentheses, signs or exponents); this part is not checked: name parts of it with 'let'`;
+    for (const r of cut.regions) errors.push({ code: 'too-complex', range: clamp({ start: r.first.startOffset, end: tokRange(r.last).end }), message: tooDeepMessage });
+    parserInstance.input = cut.tokens;
     const cst = parserInstance.file();
+    const tooDeep = parserInstance.tooDeep;
+    if (tooDeep && Number.isFinite(tooDeep.startOffset)) errors.push({ code: 'too-complex', range: clamp(tokRange(tooDeep)), message: tooDeepMessage });
     for (const e of parserInstance.errors) {
+      // The parser's own complaint at the token where the nesting limit stopped it says nothing useful.
+      if (tooDeep && e.token === tooDeep) continue;
       let r: A.Range;
       if (Number.isFinite(e.token.startOffset) && e.token.tokenType.name !== 'EOF') r = tokRange(e.token);
       else {
@@ -40,7 +51,8 @@ export function parse(text: string): ParseOutput {
       errors.push({ message: e.message, range: clamp(r) });
     }
     const comments: A.Comment[] = (lexed.groups.comments ?? []).map((t) => ({ text: t.image, range: tokRange(t) }));
-    const { file, strayJumps } = buildFile(cst, text.length);
+    const { file, strayJumps, limitErrors } = buildFile(cst, text.length);
+    for (const e of limitErrors) errors.push({ ...e, range: clamp(e.range) });
     file.comments = comments;
     return { file, errors, strayJumps, tokens: lexed.tokens };
   } catch (err) {

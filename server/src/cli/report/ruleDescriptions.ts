@@ -28,4 +28,6 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'step-unstable': 'With this timestep the discrete step of the flow is not stable.',
   'step-inaccurate': 'With this timestep the discrete step departs noticeably from the exact flow.',
   'step-linearised': 'The step analysis of a non-linear flow holds only for its linearisation.',
+  'too-complex': 'An expression is nested too deeply or is too long for the checks to walk; it is not analysed.',
+  'time-budget': 'The slow checks of a file ran out of their time budget; the neurons left are not derived until the next edit.',
 };

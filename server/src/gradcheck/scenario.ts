@@ -1,0 +1,265 @@
+// The gradient-check scenario file (docs/gradcheck.md): its types and its validation
+// against the models of an analysed .saltus file. Every problem becomes a ScenarioError
+// naming the JSON path of the offending field (`projections[1].weights[0]`), so the user
+// can find it; nothing here throws, whatever the input.
+//
+// Invariants of a validated Scenario: every population has a size >= 1; a model
+// population names a well-formed neuron of the file; input spikes lie in [0, duration) and
+// index an existing input neuron; weights[to][from] has exactly size(to) rows of size(from)
+// numbers; every projection's sender fires (or is an input) and its receiver has an
+// incoming block; no ordered pair of populations is projected twice; the diagonal of a
+// population's projection onto itself is 0 (no self-synapses); the loss refers to an
+// existing population (and state, or a firing model for spike times).
+import type { Analysis } from '../pipeline';
+import type { ResolvedNeuron } from '../model/types';
+
+export interface ScenarioError { path: string; message: string }
+
+export interface InputPopulation { kind: 'input'; name: string; size: number; spikes: [number, number][] }
+export interface ModelPopulation {
+  kind: 'model'; name: string; size: number; model: ResolvedNeuron;
+  params: Record<string, number>; initial: Record<string, number>;
+}
+export type Population = InputPopulation | ModelPopulation;
+
+export interface Projection { index: number; from: string; to: string; weights: number[][] }
+
+export type ScenarioLoss =
+  | { kind: 'state-integral'; population: string; state: string; target: number[] }
+  | { kind: 'spike-time'; population: string; targets: number[] };
+
+export interface Scenario {
+  description?: string;
+  duration: number;
+  /** In file order. */
+  populations: Population[];
+  projections: Projection[];
+  loss: ScenarioLoss;
+  /** Non-fatal remarks found while validating (e.g. a projection the file does not `connect`). */
+  remarks: string[];
+}
+
+export type ScenarioResult = { ok: true; scenario: Scenario } | { ok: false; errors: ScenarioError[] };
+
+const NAME = /^[A-Za-z_][A-Za-z0-9_]*$/;
+/** A small network for an accurate check: larger ones belong to a trainer, not here. */
+export const MAX_POPULATION_SIZE = 64;
+
+type Obj = Record<string, unknown>;
+const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v);
+const isNum = (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v);
+const show = (v: unknown): string => {
+  try { const s = JSON.stringify(v); return s === undefined ? String(v) : s.length > 40 ? `${s.slice(0, 37)}...` : s; } catch { return String(v); }
+};
+const key = (base: string, k: string): string => (NAME.test(k) ? (base ? `${base}.${k}` : k) : `${base}[${JSON.stringify(k)}]`);
+
+/** Parses JSON text (or takes an already parsed value) and validates it against the file. */
+export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 'the model file'): ScenarioResult {
+  let value = input;
+  if (typeof input === 'string') {
+    try { value = JSON.parse(input); } catch (e) {
+      return { ok: false, errors: [{ path: '(file)', message: `not valid JSON: ${(e as Error).message}` }] };
+    }
+  }
+  const errors: ScenarioError[] = [];
+  const err = (path: string, message: string): void => { errors.push({ path, message }); };
+  if (!isObj(value)) return { ok: false, errors: [{ path: '(root)', message: `must be a JSON object with duration_s, populations, projections and loss; got ${show(value)}` }] };
+  unknownKeys(value, '', ['description', 'duration_s', 'populations', 'projections', 'loss'], err);
+
+  const description = value.description;
+  if (description !== undefined && typeof description !== 'string') err('description', 'must be a string');
+  const duration = value.duration_s;
+  const durationOk = isNum(duration) && duration > 0;
+  if (duration === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05');
+  else if (!durationOk) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
+
+  const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err);
+  const byName = new Map(populations.map((p) => [p.name, p]));
+  const remarks: string[] = [];
+  const projections = readProjections(value.projections, byName, analysis, remarks, err);
+  const loss = readLoss(value.loss, byName, err);
+  if (errors.length || !loss) return { ok: false, errors };
+  const scenario: Scenario = { duration: duration as number, populations, projections, loss, remarks };
+  if (typeof description === 'string') scenario.description = description;
+  return { ok: true, scenario };
+}
+
+function unknownKeys(o: Obj, base: string, allowed: readonly string[], err: (p: string, m: string) => void): void {
+  for (const k of Object.keys(o)) {
+    if (!allowed.includes(k)) err(key(base, k), `unknown field (expected one of ${allowed.join(', ')})`);
+  }
+}
+
+function readSize(v: unknown, path: string, err: (p: string, m: string) => void): number | undefined {
+  if (v === undefined) { err(path, 'missing: give the number of neurons'); return undefined; }
+  if (!isNum(v) || !Number.isInteger(v) || v < 1) { err(path, `must be a whole number >= 1; got ${show(v)}`); return undefined; }
+  if (v > MAX_POPULATION_SIZE) { err(path, `at most ${MAX_POPULATION_SIZE} neurons per population in a gradient check; got ${v}`); return undefined; }
+  return v;
+}
+
+function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, duration: number, err: (p: string, m: string) => void): Population[] {
+  if (v === undefined) { err('populations', 'missing: give an object of named populations'); return []; }
+  if (!isObj(v)) { err('populations', `must be an object mapping names to populations; got ${show(v)}`); return []; }
+  if (Object.keys(v).length === 0) err('populations', 'is empty: give at least an input and a model population');
+  const out: Population[] = [];
+  for (const [name, p] of Object.entries(v)) {
+    const path = key('populations', name);
+    if (!NAME.test(name)) { err(path, 'a population name must be an identifier (letters, digits, _; not starting with a digit)'); continue; }
+    if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); continue; }
+    if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); continue; }
+    if ('spikes' in p) {
+      unknownKeys(p, path, ['size', 'spikes'], err);
+      const size = readSize(p.size, `${path}.size`, err);
+      const spikes = readSpikes(p.spikes, `${path}.spikes`, size, duration, err);
+      if (size !== undefined) out.push({ kind: 'input', name, size, spikes });
+      continue;
+    }
+    if (!('model' in p)) { err(path, 'give "model" (a neuron of the file) or "spikes" (an input population)'); continue; }
+    unknownKeys(p, path, ['model', 'size', 'params', 'initial'], err);
+    const size = readSize(p.size, `${path}.size`, err);
+    const model = readModel(p.model, `${path}.model`, analysis, fileLabel, err);
+    const params = model ? readValues(p.params, `${path}.params`, model.params.map((x) => x.name), 'parameter', model.name, err) : {};
+    const initial = model ? readValues(p.initial, `${path}.initial`, model.states.map((x) => x.name), 'state', model.name, err) : {};
+    if (model) {
+      for (const q of model.params) {
+        if (params[q.name] === undefined && q.valueSI === undefined) err(`${path}.params`, `${model.name}'s parameter ${q.name} has no constant value in the file: give one here`);
+      }
+    }
+    if (size !== undefined && model) out.push({ kind: 'model', name, size, model, params, initial });
+  }
+  return out;
+}
+
+function readSpikes(v: unknown, path: string, size: number | undefined, duration: number, err: (p: string, m: string) => void): [number, number][] {
+  if (!Array.isArray(v)) { err(path, `must be a list of [time_s, index] pairs; got ${show(v)}`); return []; }
+  const out: [number, number][] = [];
+  v.forEach((s, k) => {
+    const at = `${path}[${k}]`;
+    if (!Array.isArray(s) || s.length !== 2) { err(at, `must be a pair [time_s, index]; got ${show(s)}`); return; }
+    const [t, i] = s as unknown[];
+    let ok = true;
+    if (!isNum(t) || t < 0) { err(`${at}[0]`, `the time must be a number of seconds >= 0; got ${show(t)}`); ok = false; }
+    else if (t >= duration) { err(`${at}[0]`, `the time ${t} s is not before duration_s (${duration} s)`); ok = false; }
+    if (!isNum(i) || !Number.isInteger(i) || i < 0) { err(`${at}[1]`, `the index must be a whole number >= 0; got ${show(i)}`); ok = false; }
+    else if (size !== undefined && i >= size) { err(`${at}[1]`, `index ${i} is out of range: the population has ${size} neuron${size === 1 ? '' : 's'} (0..${size - 1})`); ok = false; }
+    if (ok) out.push([t as number, i as number]);
+  });
+  return out;
+}
+
+function readModel(v: unknown, path: string, analysis: Analysis, fileLabel: string, err: (p: string, m: string) => void): ResolvedNeuron | undefined {
+  if (typeof v !== 'string') { err(path, `must be the name of a neuron in ${fileLabel}; got ${show(v)}`); return undefined; }
+  const n = analysis.model.neurons.find((x) => x.name === v);
+  if (!n) {
+    const names = analysis.model.neurons.map((x) => x.name);
+    err(path, `no neuron named '${v}' in ${fileLabel} (it has: ${names.join(', ') || 'none'})`);
+    return undefined;
+  }
+  if (!n.wellFormed) { err(path, `${v} has errors in ${fileLabel}; fix them first (saltus check shows them)`); return undefined; }
+  return n;
+}
+
+function readValues(v: unknown, path: string, names: string[], what: string, model: string, err: (p: string, m: string) => void): Record<string, number> {
+  const out: Record<string, number> = {};
+  if (v === undefined) return out;
+  if (!isObj(v)) { err(path, `must be an object of ${what} values in SI units; got ${show(v)}`); return out; }
+  for (const [k, x] of Object.entries(v)) {
+    const at = key(path, k);
+    if (!names.includes(k)) { err(at, `${model} has no ${what} '${k}' (it has: ${names.join(', ') || 'none'})`); continue; }
+    if (!isNum(x)) { err(at, `must be a finite number (SI units); got ${show(x)}`); continue; }
+    out[k] = x;
+  }
+  return out;
+}
+
+function readProjections(v: unknown, pops: Map<string, Population>, analysis: Analysis, remarks: string[], err: (p: string, m: string) => void): Projection[] {
+  if (v === undefined) { err('projections', 'missing: give a list of {from, to, weights}'); return []; }
+  if (!Array.isArray(v)) { err('projections', `must be a list of {from, to, weights}; got ${show(v)}`); return []; }
+  if (v.length === 0) err('projections', 'is empty: the check needs at least one projection (its weights are what is checked)');
+  const out: Projection[] = [];
+  const seen = new Map<string, number>();
+  v.forEach((p, k) => {
+    const path = `projections[${k}]`;
+    if (!isObj(p)) { err(path, `must be an object {from, to, weights}; got ${show(p)}`); return; }
+    unknownKeys(p, path, ['from', 'to', 'weights'], err);
+    const from = endpoint(p.from, `${path}.from`, pops, err);
+    const to = endpoint(p.to, `${path}.to`, pops, err);
+    if (from?.kind === 'model' && !from.model.fire) { err(`${path}.from`, `${from.name} (${from.model.name}) has no fire block, so it sends no spikes`); }
+    if (to?.kind === 'input') err(`${path}.to`, `${to.name} is an input population: it receives no projections`);
+    else if (to && !to.model.incoming) err(`${path}.to`, `${to.name} (${to.model.name}) has no incoming block, so it cannot receive spikes`);
+    if (from && to) {
+      const pair = `${from.name} -> ${to.name}`;
+      if (seen.has(pair)) err(path, `${pair} is already given by projections[${seen.get(pair)}]; merge the two`);
+      seen.set(pair, k);
+      if (from.kind === 'model' && to.kind === 'model' && !analysis.model.connections.some((c) => c.from === from.model.name && c.to === to.model.name)) {
+        remarks.push(`${path}: the model file has no 'connect ${from.model.name} -> ${to.model.name}'; the check simulates the projection anyway`);
+      }
+    }
+    const weights = readWeights(p.weights, `${path}.weights`, from, to, err);
+    if (from && to && weights) out.push({ index: k, from: from.name, to: to.name, weights });
+  });
+  return out;
+}
+
+function endpoint(v: unknown, path: string, pops: Map<string, Population>, err: (p: string, m: string) => void): Population | undefined {
+  if (v === undefined) { err(path, 'missing: give a population name'); return undefined; }
+  if (typeof v !== 'string') { err(path, `must be a population name; got ${show(v)}`); return undefined; }
+  const p = pops.get(v);
+  if (!p) err(path, `no population named '${v}' (there are: ${[...pops.keys()].join(', ') || 'none'})`);
+  return p;
+}
+
+function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, err: (p: string, m: string) => void): number[][] | undefined {
+  if (v === undefined) { err(path, 'missing: give weights[to][from], one row per receiving neuron'); return undefined; }
+  if (!Array.isArray(v)) { err(path, `must be a list of rows weights[to][from]; got ${show(v)}`); return undefined; }
+  let ok = true;
+  if (to && v.length !== to.size) { err(path, `expected ${to.size} row${to.size === 1 ? '' : 's'} (one per neuron of ${to.name}), got ${v.length}`); ok = false; }
+  const rows: number[][] = [];
+  v.forEach((row, i) => {
+    const at = `${path}[${i}]`;
+    if (!Array.isArray(row)) { err(at, `must be a list of numbers (one per neuron of ${from?.name ?? 'the sender'}); got ${show(row)}`); ok = false; return; }
+    if (from && row.length !== from.size) { err(at, `expected ${from.size} number${from.size === 1 ? '' : 's'} (one per neuron of ${from.name}), got ${row.length}`); ok = false; }
+    row.forEach((w, j) => {
+      if (!isNum(w)) { err(`${at}[${j}]`, `must be a finite number; got ${show(w)}`); ok = false; }
+      else if (from && to && from === to && i === j && w !== 0) { err(`${at}[${j}]`, 'a neuron cannot project onto itself here (self-synapses are not simulated): set the diagonal to 0'); ok = false; }
+    });
+    rows.push(row as number[]);
+  });
+  return ok ? rows : undefined;
+}
+
+function readLoss(v: unknown, pops: Map<string, Population>, err: (p: string, m: string) => void): ScenarioLoss | undefined {
+  if (v === undefined) { err('loss', 'missing: give {"kind": "state-integral" | "spike-time", ...}'); return undefined; }
+  if (!isObj(v)) { err('loss', `must be an object; got ${show(v)}`); return undefined; }
+  const kind = v.kind;
+  if (kind !== 'state-integral' && kind !== 'spike-time') {
+    err('loss.kind', `must be "state-integral" or "spike-time"; got ${show(kind)}`);
+    return undefined;
+  }
+  unknownKeys(v, 'loss', kind === 'state-integral' ? ['kind', 'population', 'state', 'target'] : ['kind', 'population', 'targets_s'], err);
+  const pop = endpoint(v.population, 'loss.population', pops, err);
+  if (pop?.kind === 'input') { err('loss.population', `${pop.name} is an input population; the loss needs a model population`); return undefined; }
+  if (kind === 'state-integral') {
+    const state = v.state;
+    let stateOk = false;
+    if (typeof state !== 'string') err('loss.state', `must be the name of a state; got ${show(state)}`);
+    else if (pop && !pop.model.states.some((s) => s.name === state)) err('loss.state', `${pop.model.name} has no state '${state}' (it has: ${pop.model.states.map((s) => s.name).join(', ')})`);
+    else stateOk = true;
+    const target = readTargets(v.target, 'loss.target', pop, true, err);
+    return pop && stateOk && target ? { kind, population: pop.name, state: state as string, target } : undefined;
+  }
+  if (pop && !pop.model.fire) err('loss.population', `${pop.name} (${pop.model.name}) has no fire block: a spike-time loss needs a firing model`);
+  const targets = readTargets(v.targets_s, 'loss.targets_s', pop, false, err);
+  return pop && pop.model.fire && targets ? { kind, population: pop.name, targets } : undefined;
+}
+
+function readTargets(v: unknown, path: string, pop: ModelPopulation | undefined, scalarOk: boolean, err: (p: string, m: string) => void): number[] | undefined {
+  const n = pop?.size ?? 0;
+  if (v === undefined) { err(path, scalarOk ? 'missing: give the target value (SI), or one per neuron' : `missing: give one target spike time in seconds per neuron${pop ? ` of ${pop.name} (${n})` : ''}`); return undefined; }
+  if (scalarOk && isNum(v)) return Array.from({ length: n }, () => v);
+  if (!Array.isArray(v)) { err(path, `must be ${scalarOk ? 'a number or ' : ''}a list of numbers, one per neuron; got ${show(v)}`); return undefined; }
+  if (pop && v.length !== n) { err(path, `expected ${n} value${n === 1 ? '' : 's'} (one per neuron of ${pop.name}), got ${v.length}`); return undefined; }
+  let ok = true;
+  v.forEach((x, i) => { if (!isNum(x)) { err(`${path}[${i}]`, `must be a finite number; got ${show(x)}`); ok = false; } });
+  return ok ? (v as number[]) : undefined;
+}

@@ -1,0 +1,158 @@
+// The result of a gradient check: plain JSON data (no typed arrays, maps or classes), so a
+// language server can send it to the editor as it is and the HTML page, the text report and
+// the JSON contract (docs/gradcheck.md) are all drawn from the same object.
+import type { NeuronDerivation } from '../adjoint/derive';
+import type { ResolvedNeuron } from '../model/types';
+import type { ScenarioError } from './scenario';
+
+export type RowStatus = 'ok' | 'above-tolerance' | 'spike-count-changed' | 'simulation-failed';
+
+interface RowCommon {
+  /** The value that was perturbed (SI). */
+  value: number;
+  /** The unit the model file writes it in, and that unit's SI scale (for display only). */
+  unit?: { text: string; scale: number };
+  /** The central-difference half-step used (SI), null when no difference was usable. */
+  step: number | null;
+  adjoint: number;
+  /** Null when the perturbation changed a spike count (the difference is then meaningless). */
+  finiteDifference: number | null;
+  absoluteError: number | null;
+  relativeError: number | null;
+  status: RowStatus;
+  note?: string;
+}
+
+/** A weight: `projection` indexes the scenario's projections, weights[to][from]. */
+export interface GradientRow extends RowCommon {
+  projection: number;
+  fromPopulation: string;
+  toPopulation: string;
+  to: number;
+  from: number;
+}
+
+/** A trainable parameter of a model population (shared by its neurons). */
+export interface ParamRow extends RowCommon { population: string; name: string }
+
+export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'remark';
+
+export interface GradcheckWarning {
+  kind: WarningKind;
+  message: string;
+  population?: string;
+  index?: number;
+  /** Seconds. */
+  time?: number;
+}
+
+export interface TraceChannel {
+  name: string;
+  /** Display unit text ('mV', '1', ...) and its SI scale: shown value = values[k] / scale. */
+  unit: string;
+  scale: number;
+  /** SI values at TraceSet.time. */
+  values: number[];
+}
+
+export interface NeuronTrace {
+  population: string;
+  index: number;
+  model: string;
+  states: TraceChannel[];
+  /** lambda_X = dL/dX(t) for each state, same order. */
+  costates: TraceChannel[];
+  /** Spike times of this neuron (s). */
+  spikes: number[];
+}
+
+export interface TraceSet {
+  /** Sample times (s), non-decreasing; an event time appears twice (just before, just after). */
+  time: number[];
+  neurons: NeuronTrace[];
+  /** Neurons left out of the traces (large populations), per population. */
+  omitted: Record<string, number>;
+}
+
+export interface ModelSummary {
+  name: string;
+  /** Forward values the derivation asks to record at each spike / received spike. */
+  spikeRecord: string[] | null;
+  incomingRecord: string[] | null;
+  /** Whether the backward pass needs nothing between events. */
+  eventBased: boolean;
+}
+
+export interface GradcheckTiming {
+  total_ms: number;
+  forward_ms: number;
+  backward_ms: number;
+  finiteDifferences_ms: number;
+  simulations: number;
+}
+
+export interface GradcheckResult {
+  /** ok: the check ran (see `passed`); invalid: scenario or model errors; failed: a simulation failed; cancelled. */
+  status: 'ok' | 'invalid' | 'failed' | 'cancelled';
+  errors: ScenarioError[];
+  source: string;
+  scenario: string;
+  description?: string;
+  duration: number;
+  lossKind: 'state-integral' | 'spike-time' | null;
+  /** The loss in SI units of `lossUnit`. */
+  loss: number;
+  lossUnit: string;
+  lossText: string;
+  /** What the loss aims at: the state and its targets (state-integral) or the target first-spike times (spike-time). */
+  lossTarget: { population: string; state?: string; values: number[] } | null;
+  populations: { name: string; kind: 'input' | 'model'; model?: string; size: number }[];
+  /** Spikes [time_s, index] of every firing model population. */
+  spikes: Record<string, [number, number][]>;
+  inputSpikes: Record<string, [number, number][]>;
+  /** Spike count per neuron of every model population. */
+  spikeCounts: Record<string, number[]>;
+  gradients: GradientRow[];
+  params: ParamRow[];
+  /** Largest relative error over rows with a usable finite difference (null when none). */
+  maxRelativeError: number | null;
+  worst: { kind: 'weight' | 'param'; index: number; label: string } | null;
+  tolerance: number;
+  /** Every row usable and within tolerance, and at least one row compared. */
+  passed: boolean;
+  warnings: GradcheckWarning[];
+  models: ModelSummary[];
+  settings: { rtol: number; relStep: number };
+  timing: GradcheckTiming;
+  traces?: TraceSet;
+}
+
+export interface GradcheckProgress {
+  done: number;
+  total: number;
+  phase: 'forward' | 'backward' | 'finite-differences' | 'report';
+}
+
+export interface GradcheckOptions {
+  /** Checked between simulations; an AbortSignal or anything with `aborted`. */
+  signal?: { readonly aborted: boolean };
+  onProgress?: (p: GradcheckProgress) => void;
+  /** Names for the report (paths as the user wrote them). */
+  sourceLabel?: string;
+  scenarioLabel?: string;
+  /** Relative tolerance of the integrator, forward and backward (default 1e-10). */
+  rtol?: number;
+  /** Central-difference half-step relative to each value (default 1e-5). */
+  relStep?: number;
+  /** Largest relative error that passes (default 1e-4). */
+  tolerance?: number;
+  /** Sample the state and costate traces for the HTML page (default true). */
+  traces?: boolean;
+  /** The derivation to check (default adjoint/cache.ts `derivationFor`); tests pass a broken one as a negative control. */
+  derivation?: (model: ResolvedNeuron) => NeuronDerivation;
+}
+
+/** A row's label for people: `w[0] in[0] -> hid[1]` or `hid.beta`. */
+export function rowLabel(r: GradientRow | ParamRow): string {
+  return 'projection' in r ? `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]` : `${r.population}.${r.name}`;
+}

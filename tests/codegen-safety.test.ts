@@ -1,0 +1,314 @@
+// Safety of code generation (docs/codegen.md, "Safety"): nothing is written outside the
+// output directory (file names with separators or "..", model names that are not
+// identifiers, --out with ".." segments), a file that changed since Saltus wrote it (or that
+// Saltus did not write, or a symbolic link) is refused unless forced, files are replaced
+// atomically, identifiers that clash with C/CUDA/Python keywords are renamed consistently
+// and reported, and hostile docstrings cannot end a comment or a string. The CLI is tested
+// as users run it: dist/cli.js in a subprocess (rebuilt first when older than the sources).
+import { spawnSync } from 'node:child_process';
+import {
+  closeSync, existsSync, lstatSync, mkdirSync, mkdtempSync, openSync, readFileSync, readSync, readdirSync, rmSync, statSync,
+  symlinkSync, writeFileSync,
+} from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { afterAll, beforeAll, describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { checkHash, generateFiles, referenceRun, writeGenerated } from '../server/src/codegen';
+
+const ROOT = resolve(__dirname, '..');
+const CLI = join(ROOT, 'dist/cli.js');
+const work = mkdtempSync(join(tmpdir(), 'saltus-codegen-safe-'));
+afterAll(() => rmSync(work, { recursive: true, force: true }));
+const sample = (f: string): string => readFileSync(join(ROOT, 'samples', f), 'utf8');
+const GCC = ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic'];
+
+function newest(path: string): number {
+  const st = statSync(path);
+  return st.isDirectory() ? Math.max(0, ...readdirSync(path).map((f) => newest(join(path, f)))) : st.mtimeMs;
+}
+beforeAll(() => {
+  if (!existsSync(CLI) || statSync(CLI).mtimeMs < newest(join(ROOT, 'server/src'))) {
+    const r = spawnSync(process.execPath, [join(ROOT, 'scripts/build.mjs')], { cwd: ROOT, encoding: 'utf8' });
+    if (r.status !== 0) throw new Error(`build failed: ${r.stderr}`);
+  }
+}, 120_000);
+
+const cli = (args: string[], cwd: string) => {
+  const r = spawnSync(process.execPath, [CLI, ...args], { cwd, encoding: 'utf8' });
+  return { code: r.status, out: r.stdout, err: r.stderr };
+};
+const fresh = (name: string): string => { const d = join(work, name); mkdirSync(d, { recursive: true }); return d; };
+/** Every file under dir, relative, sorted. */
+function tree(dir: string, base = ''): string[] {
+  return readdirSync(join(dir, base), { withFileTypes: true }).flatMap((e) =>
+    (e.isDirectory() ? tree(dir, join(base, e.name)) : [join(base, e.name)])).sort();
+}
+const lif = () => generateFiles(analyse(sample('lif_current.saltus')), { target: 'c' }).files;
+
+describe('writeGenerated stays inside its directory', () => {
+  test.each(['../evil.c', 'sub/evil.c', '/tmp/evil.c', '..', '.hidden.c', 'a\\b.c', 'nul\0.c', '', 'x..c'])('refuses the name %j and writes nothing', (name) => {
+    const root = fresh(`names-${Buffer.from(name).toString('hex')}`);
+    const out = join(root, 'out');
+    const r = writeGenerated(out, [{ name: 'ok.c', content: 'int x;\n' }, { name, content: 'bad\n' }]);
+    expect(r.refused.map((x) => x.name)).toEqual([name]);
+    expect(r.written).toEqual([]);
+    expect(tree(root)).toEqual([]); // not even ok.c: a refusal writes nothing
+  });
+
+  test('a model whose name is not an identifier becomes a safe file name inside --out', () => {
+    const a = analyse(sample('readout.saltus'));
+    a.model.neurons[0]!.name = '../../escaped';
+    const g = generateFiles(a, { target: 'numpy' });
+    expect(g.errors).toEqual([]);
+    expect(g.renamed).toContainEqual(expect.objectContaining({ kind: 'model', from: '../../escaped', to: 'm_escaped' }));
+    const root = fresh('model-name');
+    const r = writeGenerated(join(root, 'out'), g.files);
+    expect(r.refused).toEqual([]);
+    expect(tree(root)).toEqual(['out/m_escaped.py']);
+  });
+
+  test('the CLI resolves --out with ".." segments and writes only there', () => {
+    const root = fresh('cli-dotdot');
+    writeFileSync(join(root, 'model.saltus'), sample('readout.saltus'));
+    mkdirSync(join(root, 'a'));
+    const r = cli(['generate', 'model.saltus', '--target', 'c', '--out', 'a/../gen'], root);
+    expect(r.code).toBe(0);
+    expect(tree(root)).toEqual(['gen/Readout.c', 'gen/Readout.h', 'model.saltus']);
+  });
+});
+
+describe('writeGenerated never overwrites a changed file without force', () => {
+  test('an unchanged generated file is replaced; identical content is left alone', () => {
+    const dir = fresh('replace');
+    expect(writeGenerated(dir, lif()).written).toHaveLength(4);
+    const before = statSync(join(dir, 'LifCurrent.c')).mtimeMs;
+    const again = writeGenerated(dir, lif());
+    expect(again.written).toEqual([]);
+    expect(again.unchanged).toHaveLength(4);
+    expect(statSync(join(dir, 'LifCurrent.c')).mtimeMs).toBe(before);
+    const v2 = generateFiles(analyse(sample('lif_current.saltus').replace('20 [ms] trainable', '25 [ms] trainable')), { target: 'c' }).files;
+    const r = writeGenerated(dir, v2);
+    expect(r.refused).toEqual([]);
+    expect(r.written.length).toBeGreaterThan(0);
+    expect(readFileSync(join(dir, 'LifCurrent.c'), 'utf8')).toContain('par->tau_m = 0.025;');
+  });
+
+  test('an edited file is refused with a clear message, nothing is written, --force overwrites', () => {
+    const dir = fresh('edited');
+    writeGenerated(dir, lif());
+    const path = join(dir, 'LifCurrent.c');
+    const edited = readFileSync(path, 'utf8').replace('par->tau_m = 0.02;', 'par->tau_m = 0.03; /* my edit */');
+    writeFileSync(path, edited);
+    expect(checkHash(edited).kind).toBe('modified');
+    const v2 = generateFiles(analyse(sample('lif_current.saltus').replace('5 [ms] trainable', '6 [ms] trainable')), { target: 'c' }).files;
+    const r = writeGenerated(dir, v2);
+    expect(r.refused).toEqual([{ name: 'LifCurrent.c', reason: expect.stringMatching(/changed since Saltus wrote it.*--force/) }]);
+    expect(r.written).toEqual([]);
+    expect(readFileSync(path, 'utf8')).toBe(edited);
+    expect(readFileSync(join(dir, 'LifCurrent.h'), 'utf8')).toBe(lif().find((f) => f.name === 'LifCurrent.h')!.content);
+    const forced = writeGenerated(dir, v2, { force: true });
+    expect(forced.refused).toEqual([]);
+    expect(readFileSync(path, 'utf8')).toBe(v2.find((f) => f.name === 'LifCurrent.c')!.content);
+  });
+
+  test('a file Saltus did not write, and a symbolic link, are refused', () => {
+    const dir = fresh('foreign');
+    writeFileSync(join(dir, 'LifCurrent.h'), '/* my own header */\n');
+    const outside = join(work, 'outside.c');
+    writeFileSync(outside, 'precious\n');
+    symlinkSync(outside, join(dir, 'LifCurrent.c'));
+    const r = writeGenerated(dir, lif());
+    expect(r.refused.map((x) => x.name).sort()).toEqual(['LifCurrent.c', 'LifCurrent.h']);
+    expect(r.refused.find((x) => x.name === 'LifCurrent.h')!.reason).toMatch(/not written by Saltus/);
+    expect(r.refused.find((x) => x.name === 'LifCurrent.c')!.reason).toMatch(/symbolic link/);
+    const forced = writeGenerated(dir, lif(), { force: true });
+    expect(forced.refused).toEqual([]);
+    expect(readFileSync(outside, 'utf8')).toBe('precious\n'); // the link was replaced, not followed
+    expect(lstatSync(join(dir, 'LifCurrent.c')).isSymbolicLink()).toBe(false);
+  });
+
+  test('the CLI refuses an edited file (exit 1, message on stderr) and --force overwrites it', () => {
+    const root = fresh('cli-edit');
+    writeFileSync(join(root, 'm.saltus'), sample('lif_current.saltus'));
+    expect(cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen'], root).code).toBe(0);
+    const py = join(root, 'gen', 'LifCurrent.py');
+    writeFileSync(py, readFileSync(py, 'utf8') + '# my note\n');
+    writeFileSync(join(root, 'm.saltus'), sample('lif_current.saltus').replace('param theta = 1 ', 'param theta = 1.2 '));
+    const refused = cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen'], root);
+    expect(refused.code).toBe(1);
+    expect(refused.err).toMatch(/refused LifCurrent\.py: it was changed since Saltus wrote it/);
+    expect(refused.err).toMatch(/nothing was written/);
+    expect(readFileSync(py, 'utf8')).toMatch(/# my note\n$/);
+    const forced = cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen', '--force'], root);
+    expect(forced.code).toBe(0);
+    expect(readFileSync(py, 'utf8')).toContain('"theta": 1.2');
+  });
+});
+
+test('files are replaced atomically: a reader of the old file keeps the old bytes, no temporary file stays', () => {
+  const dir = fresh('atomic');
+  writeGenerated(dir, lif());
+  const path = join(dir, 'LifCurrent.c');
+  const old = readFileSync(path);
+  const inode = statSync(path).ino;
+  const fd = openSync(path, 'r');
+  const v2 = generateFiles(analyse(sample('lif_current.saltus').replace('20 [ms] trainable', '30 [ms] trainable')), { target: 'c' }).files;
+  expect(writeGenerated(dir, v2).written.length).toBeGreaterThan(0);
+  const buf = Buffer.alloc(old.length);
+  readSync(fd, buf, 0, old.length, 0);
+  closeSync(fd);
+  expect(buf.equals(old)).toBe(true);          // the open file was not truncated or rewritten
+  expect(statSync(path).ino).not.toBe(inode);   // a new file was renamed into place
+  expect(readdirSync(dir).filter((f) => f.endsWith('.tmp') || f.startsWith('.'))).toEqual([]);
+});
+
+describe('CLI usage', () => {
+  const root = join(work, 'usage');
+  beforeAll(() => { mkdirSync(root, { recursive: true }); writeFileSync(join(root, 'm.saltus'), sample('lif_current.saltus')); writeFileSync(join(root, 'bad.saltus'), sample('mistakes.saltus')); });
+  test.each([
+    [['generate', 'm.saltus', '--out', 'g'], 2, /--target is required/],
+    [['generate', 'm.saltus', '--target', 'fortran', '--out', 'g'], 2, /--target must be one of c, cuda, numpy/],
+    [['generate', 'm.saltus', '--target', 'c'], 2, /--out DIR is required/],
+    [['generate', 'm.saltus', '--target', 'numpy', '--out', 'g', '--driver'], 2, /--driver goes with --target c/],
+    [['generate', 'm.saltus', '--target', 'numpy', '--out', 'g', '--float'], 2, /--float goes with/],
+    [['generate', 'm.saltus', '--target', 'c', '--out', 'g', '--model', 'Nope'], 1, /no model named 'Nope'.*LifCurrent, Readout/],
+    [['generate', 'bad.saltus', '--target', 'c', '--out', 'g'], 1, /has 5 errors; fix them first/],
+    [['generate', 'missing.saltus', '--target', 'c', '--out', 'g'], 2, /no such file/],
+  ])('%j exits %i', (args, code, message) => {
+    const r = cli(args as string[], root);
+    expect(r.code).toBe(code);
+    expect(r.err).toMatch(message as RegExp);
+    expect(r.err).not.toMatch(/^\s+at /m);
+    expect(existsSync(join(root, 'g'))).toBe(false);
+  });
+  test('--model picks one model', () => {
+    const r = cli(['generate', 'm.saltus', '--target', 'c', '--out', 'one', '--model', 'Readout'], root);
+    expect(r.code).toBe(0);
+    expect(readdirSync(join(root, 'one')).sort()).toEqual(['Readout.c', 'Readout.h']);
+  });
+});
+
+// Names that are keywords of C (int, restrict), C++/CUDA (class, new), Python (lambda, def),
+// names the generated code uses itself (n_neurons, state) and a model named like a standard
+// header (math): renamed the same way in every target, reported, and the code still works.
+const KEYWORDS = `
+timestep 0.1 [ms]
+neuron math "a model named like <math.h>" {
+  param class = 20 [ms]
+  param restrict = 1
+  param new = 5 [ms]
+  state int = 0
+  state lambda = 0
+  state n_neurons = 0
+  dint/dt = (lambda - int) / class
+  dlambda/dt = -lambda / new
+  dn_neurons/dt = -n_neurons / class
+  fire when int crosses restrict up {
+    int := 0
+    n_neurons := n_neurons + 1
+  }
+  incoming def { lambda := lambda + def }
+}`;
+
+describe('identifiers that clash with keywords are renamed consistently', () => {
+  const a = analyse(KEYWORDS);
+  test('the renamings are reported, the same for every target', () => {
+    expect(a.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
+    const pairs = (t: 'c' | 'cuda' | 'numpy') => generateFiles(a, { target: t }).renamed.map((r) => `${r.kind} ${r.from}->${r.to}`).sort();
+    expect(pairs('c')).toEqual(['model math->math_', 'param class->class_', 'param new->new_', 'param restrict->restrict_',
+      'state int->int_', 'state lambda->lambda_', 'state n_neurons->n_neurons_', 'weight def->def_'].sort());
+    expect(pairs('cuda')).toEqual(pairs('c'));
+    expect(pairs('numpy')).toEqual(pairs('c'));
+    expect(generateFiles(a, { target: 'c' }).files.map((f) => f.name)).toEqual(['math_.h', 'math_.c']);
+  });
+
+  test('C with the renamed names compiles with -Werror and its driver agrees with the reference', () => {
+    const dir = fresh('kw-c');
+    for (const f of generateFiles(a, { target: 'c', driver: true }).files) writeFileSync(join(dir, f.name), f.content);
+    const c = readFileSync(join(dir, 'math_.c'), 'utf8');
+    expect(c).toMatch(/const double int_ = state\.int_\[idx\];/);
+    expect(c).toMatch(/par->class_/);
+    const b = spawnSync('gcc', [...GCC, 'math_.c', 'math__driver.c', '-lm', '-o', 'drv'], { cwd: dir, encoding: 'utf8' });
+    expect(b.stderr).toBe('');
+    const input = '3000 0.0001\n0 0 0\n10 10\n11 10\n900 20\n';
+    const rows = spawnSync(join(dir, 'drv'), { input, encoding: 'utf8' }).stdout.trim().split('\n').map((l) => l.split(' ').map(Number));
+    const n = a.model.neurons[0]!;
+    const ref = referenceRun(n, { steps: 3000, dt: 1e-4, initial: [0, 0, 0], spikes: [{ step: 10, weight: 10 }, { step: 11, weight: 10 }, { step: 900, weight: 20 }] });
+    expect(ref.rows.filter((r) => r.spiked).length).toBeGreaterThan(1);
+    ref.rows.forEach((r, k) => {
+      expect(rows[k]![4] === 1).toBe(r.spiked);
+      r.state.forEach((v, i) => expect(Math.abs(rows[k]![i + 1]! - v)).toBeLessThan(1e-12 * Math.max(1, Math.abs(v))));
+    });
+  });
+
+  test('NumPy with the renamed names imports and runs; CUDA compiles where nvcc is present', () => {
+    const dir = fresh('kw-py');
+    for (const f of generateFiles(a, { target: 'numpy' }).files) writeFileSync(join(dir, f.name), f.content);
+    const py = spawnSync('python3', ['-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import math_ as m, numpy as np
+s = m.new_state(2); c = m.prepare(m.default_params(), 1e-4); g = np.zeros(2)
+m.incoming(s, c, 0.0, np.array([30.0, 0.0]))
+for k in range(400):
+    m.forward_step(s, c, k * 1e-4, g); m.spike(s, c, k * 1e-4, g)
+print(sorted(s), float(s["n_neurons_"][0]) > 0, float(s["n_neurons_"][1]))`], { encoding: 'utf8' });
+    expect(py.stderr).toBe('');
+    expect(py.stdout.trim()).toBe("['int_', 'lambda_', 'n_neurons_'] True 0.0");
+    if (spawnSync('nvcc', ['--version']).status !== 0) { console.log('skipped: nvcc is not on PATH'); return; }
+    const cdir = fresh('kw-cuda');
+    for (const f of generateFiles(a, { target: 'cuda' }).files) writeFileSync(join(cdir, f.name), f.content);
+    const r = spawnSync('nvcc', ['-c', 'math_.cu', '-o', 'math_.o'], { cwd: cdir, encoding: 'utf8' });
+    expect(r.status, r.stderr).toBe(0);
+  }, 60_000);
+});
+
+// Docstrings are free text: they must not end a comment, start a preprocessor line, splice
+// lines (trigraph ??/ or a trailing backslash), close a Python string or reorder text
+// (bidirectional controls). Through the parser, and with raw line breaks set directly.
+const HOSTILE = String.raw`*/ #error injected /* ??/ ??= \" \\ """ ''' \u2028 ` + '\u2028#error sep\u202e\u2066';
+
+describe('hostile docstrings are escaped', () => {
+  const text = sample('lif_current.saltus')
+    .replace('"LIF with exponential current synapse (hidden layer)"', `"${HOSTILE.replace(/\\/g, '\\\\').replace(/"/g, '\\"')}"`)
+    .replace('"membrane time constant"', `"${'*/ int injected = 1; /*'}"`);
+  const a = analyse(text);
+  const n = a.model.neurons[0]!;
+  n.states[0]!.doc = 'one\n#error injected by newline\r\n"""\nraise SystemExit(3)\n"""\n*/ bad /*\\';
+  n.doc = `${n.doc}\n#error second line`;
+
+  test('the docstring reached the model through the parser', () => {
+    expect(analyse(text).model.neurons[0]!.doc).toContain('*/ #error injected /*');
+  });
+
+  test('C compiles with -Werror (no #error, no trigraph, no injected declaration) and C comments stay closed', () => {
+    const dir = fresh('hostile-c');
+    const files = generateFiles(a, { target: 'c', driver: true, model: 'LifCurrent' }).files;
+    for (const f of files) writeFileSync(join(dir, f.name), f.content);
+    const b = spawnSync('gcc', [...GCC, 'LifCurrent.c', 'LifCurrent_driver.c', '-lm', '-o', 'drv'], { cwd: dir, encoding: 'utf8' });
+    expect(b.stderr).toBe('');
+    const nm = spawnSync('nm', [join(dir, 'drv')], { encoding: 'utf8' }).stdout;
+    expect(nm).not.toMatch(/\binjected\b/);
+    for (const f of files) {
+      for (const line of f.content.split('\n')) {
+        expect(line).not.toMatch(/^\s*#error/);
+        expect(line).not.toMatch(/[\u2028\u2029\u202a-\u202e\u2066-\u2069\r]/);
+      }
+    }
+  });
+
+  test('NumPy imports cleanly (no injected statement ran) and keeps the docstring text', () => {
+    const dir = fresh('hostile-py');
+    for (const f of generateFiles(a, { target: 'numpy', model: 'LifCurrent' }).files) writeFileSync(join(dir, f.name), f.content);
+    const r = spawnSync('python3', ['-W', 'error', '-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import LifCurrent as m; print(m.__doc__.splitlines()[0])`], { encoding: 'utf8' });
+    expect(r.stderr).toBe('');
+    expect(r.status).toBe(0);
+    expect(r.stdout).toContain('*/ #error injected /*');
+  });
+
+  test('CUDA compiles where nvcc is present', () => {
+    if (spawnSync('nvcc', ['--version']).status !== 0) { console.log('skipped: nvcc is not on PATH'); return; }
+    const dir = fresh('hostile-cuda');
+    for (const f of generateFiles(a, { target: 'cuda', model: 'LifCurrent' }).files) writeFileSync(join(dir, f.name), f.content);
+    const r = spawnSync('nvcc', ['-c', 'LifCurrent.cu', '-o', 'x.o'], { cwd: dir, encoding: 'utf8' });
+    expect(r.status, r.stderr).toBe(0);
+  }, 60_000);
+});

@@ -1,0 +1,152 @@
+// The faces of the gradient check: `saltus gradcheck` (JSON contract, text, exit codes,
+// usage errors), the standalone HTML page (escaping, no script, one chart per state and
+// costate), the warnings for near-grazing spikes and spike-count changes, and a negative
+// control: a derivation with its phi term removed (the jump multiplier of LANGUAGE.md
+// "Derived results") must fail the check, so the check can fail.
+import { mkdtempSync, readFileSync, writeFileSync, existsSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { derivationFor } from '../server/src/adjoint';
+import { ZERO } from '../server/src/symbolic/sym';
+import { gradcheckHtml, runGradcheckSync } from '../server/src/gradcheck';
+import { root, runCli } from './helpers/cli';
+
+const read = (p: string): string => readFileSync(join(root, p), 'utf8');
+
+describe('saltus gradcheck', () => {
+  test('--format json keeps the contract fields and exits 0 on a passing scenario', () => {
+    const r = runCli(['gradcheck', 'samples/adaptive_lif.saltus', '--scenario', 'samples/scenarios/adaptive_lif.json', '--format', 'json']);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(typeof j.loss).toBe('number');
+    expect(Object.keys(j.spikes).sort()).toEqual(['hid', 'out']);
+    for (const s of j.spikes.hid) { expect(s).toHaveLength(2); expect(Number.isInteger(s[1])).toBe(true); }
+    expect(j.gradients).toHaveLength(6);
+    for (const g of j.gradients) for (const k of ['projection', 'to', 'from', 'adjoint', 'finiteDifference', 'relativeError']) expect(g).toHaveProperty(k);
+    expect(j.gradients[0]).toMatchObject({ projection: 0, to: 0, from: 0 });
+    expect(j.params.map((p: { population: string; name: string }) => `${p.population}.${p.name}`)).toEqual(['hid.beta', 'out.beta']);
+    for (const p of j.params) for (const k of ['name', 'adjoint', 'finiteDifference', 'relativeError']) expect(p).toHaveProperty(k);
+    expect(j.maxRelativeError).toBeLessThan(1e-4);
+    expect(j.passed).toBe(true);
+  });
+
+  test('text output and the --html page', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-gradcheck-'));
+    const out = join(dir, 'sub', 'report.html');
+    const r = runCli(['gradcheck', 'samples/lif_current.saltus', '--scenario', 'samples/scenarios/lif_current.json', '--html', out]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/w0 sensor\[0\] -> hid\[0\]/);
+    expect(r.stdout).toMatch(/hid\.tau_m/);
+    expect(r.stdout).toMatch(/largest relative error .* the adjoint gradient agrees/);
+    const html = readFileSync(out, 'utf8');
+    expect(html).toMatch(/^<!DOCTYPE html>/);
+    expect(html).not.toMatch(/<script/i);
+    expect(html).toMatch(/Content-Security-Policy" content="default-src 'none'/);
+    // 2 hidden LIF x 2 states + 1 readout x 2 states, once for states and once for costates, plus the raster.
+    expect((html.match(/<svg class="chart"/g) ?? []).length).toBe(2 * 6 + 1);
+    expect(html).toMatch(/time \[ms\]/);
+    expect(html).toMatch(/λ_V \[s\]/); // L in s (dimensionless V), per unit of V
+  });
+
+  test('a broken scenario exits 1 with the JSON path on stdout; usage errors exit 2', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-gradcheck-'));
+    const bad = join(dir, 'bad.json');
+    writeFileSync(bad, JSON.stringify({ ...JSON.parse(read('samples/scenarios/readout.json')), projections: [{ from: 'sensor', to: 'score', weights: [[1, 2]] }] }));
+    const r = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad]);
+    expect(r.code).toBe(1);
+    expect(r.stdout).toMatch(/projections\[0\]\.weights: expected 2 rows/);
+    const j = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'json']);
+    expect(JSON.parse(j.stdout).errors[0].path).toBe('projections[0].weights');
+    expect(runCli(['gradcheck', 'samples/readout.saltus']).code).toBe(2);
+    const missing = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', join(dir, 'nope.json')]);
+    expect(missing.code).toBe(2);
+    expect(missing.stderr).toMatch(/nope\.json: no such file/);
+    expect(runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'xml']).code).toBe(2);
+    expect(runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--tolerance', '-1']).code).toBe(2);
+    expect(runCli(['help', 'gradcheck']).stdout).toMatch(/--scenario S\.json/);
+  });
+
+  test('a tolerance below the achievable accuracy fails with exit 1', () => {
+    const r = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', 'samples/scenarios/readout.json', '--tolerance', '1e-15']);
+    expect(r.code).toBe(1);
+    expect(r.stdout).toMatch(/CHECK FAILED/);
+  });
+});
+
+describe('the check can fail, and says why', () => {
+  test('negative control: dropping phi from the spike jump is caught', () => {
+    const a = analyse(read('samples/lif_current.saltus'));
+    const broken = (m: Parameters<typeof derivationFor>[0]) => {
+      const d = derivationFor(m);
+      return d.spike ? { ...d, spike: { ...d.spike, phi: ZERO } } : d;
+    };
+    const r = runGradcheckSync(a, read('samples/scenarios/lif_current.json'), { derivation: broken, traces: false });
+    expect(r.status).toBe('ok');
+    expect(r.passed).toBe(false);
+    expect(r.maxRelativeError!).toBeGreaterThan(1e-2);
+    expect(r.gradients.some((g) => g.status === 'above-tolerance')).toBe(true);
+  });
+
+  const MODEL = analyse(`neuron L {
+    param tau_m = 10 [ms]
+    param tau_s = 5 [ms]
+    param theta = 1
+    state V = 0
+    state I = 0
+    dV/dt = (I - V) / tau_m
+    dI/dt = -I / tau_s
+    fire when V crosses theta up { V := 0 }
+    incoming w { I := I + w }
+  }`);
+  // With tau_m = 2 tau_s one input of weight w raises V to the peak w/4 (Wunderlich & Pehle
+  // Table 1 model, our closed form in gradcheck-eventprop.test.ts): w near 4 theta grazes.
+  const near = (w: number) => ({ duration_s: 0.03, populations: { in: { size: 1, spikes: [[0.002, 0]] }, n: { model: 'L', size: 1 } },
+    projections: [{ from: 'in', to: 'n', weights: [[w]] }], loss: { kind: 'state-integral', population: 'n', state: 'V', target: 0 } });
+
+  test('a near miss: the +h perturbation adds a spike, so no finite difference is reported', () => {
+    const r = runGradcheckSync(MODEL, near(4 * (1 - 1e-7)), { traces: false });
+    expect(r.spikeCounts.n).toEqual([0]);
+    expect(r.gradients[0]!.finiteDifference).toBeNull();
+    expect(r.gradients[0]!.status).toBe('spike-count-changed');
+    expect(r.warnings.map((w) => w.kind)).toEqual(expect.arrayContaining(['near-miss', 'spike-count-changed']));
+    expect(r.warnings.find((w) => w.kind === 'spike-count-changed')!.message).toMatch(/n\[0\] 0 -> 1 at \+h.*meaningless/);
+    expect(r.passed).toBe(false);
+  });
+
+  test('a grazing spike is flagged', () => {
+    const r = runGradcheckSync(MODEL, near(4 * (1 + 1e-6)), { traces: false });
+    expect(r.spikeCounts.n).toEqual([1]);
+    const g = r.warnings.find((w) => w.kind === 'grazing');
+    expect(g?.message).toMatch(/n\[0\] spikes at .* nearly grazing crossing/);
+    // A comfortable crossing is not flagged.
+    expect(runGradcheckSync(MODEL, near(5), { traces: false }).warnings.filter((w) => w.kind === 'grazing' || w.kind === 'near-miss')).toEqual([]);
+  });
+});
+
+describe('the HTML page', () => {
+  test('escapes user text and contains no script', () => {
+    const a = analyse(read('samples/readout.saltus'));
+    const s = JSON.parse(read('samples/scenarios/readout.json'));
+    s.description = '<script>alert("x")</script> & <b>bold</b>';
+    const r = runGradcheckSync(a, s, { sourceLabel: 'a<b>.saltus', scenarioLabel: '"quoted" & <odd>.json' });
+    const html = gradcheckHtml(r, { nonce: 'n0nce' });
+    expect(html).not.toMatch(/<script/i);
+    expect(html).not.toMatch(/<b>/);
+    expect(html).toContain('&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; &lt;b&gt;bold&lt;/b&gt;');
+    expect(html).toContain('a&lt;b&gt;.saltus');
+    expect(html).toContain('<style nonce="n0nce">');
+    const webview = gradcheckHtml(r, { nonce: 'n1', cspSource: 'vscode-resource:' });
+    expect(webview).toMatch(/style-src 'nonce-n1'; img-src vscode-resource: data:/);
+  });
+
+  test('an invalid scenario renders its errors', () => {
+    const r = runGradcheckSync(analyse(read('samples/readout.saltus')), '{"duration_s": 1}');
+    const html = gradcheckHtml(r);
+    expect(html).toMatch(/cannot be checked/);
+    expect(html).toContain('<code>populations</code>');
+    expect(existsSync(join(root, 'samples', 'scenarios', 'readout.json'))).toBe(true);
+  });
+});

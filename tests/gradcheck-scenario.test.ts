@@ -1,0 +1,134 @@
+// Scenario validation (server/src/gradcheck/scenario.ts): every malformed, unknown or
+// inconsistent field gets its own clear message naming its JSON path (table-driven), and
+// no input whatever makes the check throw (fast-check property; Claessen & Hughes 2000's
+// QuickCheck idea as packaged by fast-check).
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import fc from 'fast-check';
+import { describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { parseScenario, runGradcheckSync } from '../server/src/gradcheck';
+
+const lifText = readFileSync(join(__dirname, '..', 'samples', 'lif_current.saltus'), 'utf8');
+// The sample plus a firing neuron without an incoming block.
+const MODELS = analyse(`${lifText}
+neuron Pacer "fires on its own, receives nothing" {
+  param tau = 10 [ms]
+  state V = 0
+  state D = 2
+  dV/dt = (D - V) / tau
+  fire when V crosses 1 up { V := 0 }
+}`);
+const MISTAKES = analyse(readFileSync(join(__dirname, '..', 'samples', 'mistakes.saltus'), 'utf8'));
+
+const good = () => ({
+  duration_s: 0.05,
+  populations: {
+    in: { size: 3, spikes: [[0.0012, 0], [0.0031, 2]] },
+    hid: { model: 'LifCurrent', size: 2 },
+    out: { model: 'Readout', size: 1 },
+  },
+  projections: [
+    { from: 'in', to: 'hid', weights: [[1.2, 0.4, 2.0], [0.8, 1.5, 0.3]] },
+    { from: 'hid', to: 'out', weights: [[0.6, -0.2]] },
+  ],
+  loss: { kind: 'state-integral', population: 'out', state: 'V', target: 0.5 } as Record<string, unknown>,
+});
+type S = ReturnType<typeof good> & Record<string, unknown>;
+const edit = (f: (s: S) => void): S => { const s = good() as S; f(s); return s; };
+const anyOf = (s: S) => s as unknown as Record<string, any>;
+
+/** [what, scenario (object or JSON text), expected path, message fragment]. */
+const CASES: [string, unknown, string, RegExp][] = [
+  ['not JSON', '{"duration_s": 0.05,', '(file)', /not valid JSON/],
+  ['a list at the root', '[1, 2]', '(root)', /must be a JSON object/],
+  ['duration missing', edit((s) => { delete anyOf(s).duration_s; }), 'duration_s', /missing/],
+  ['duration negative', edit((s) => { s.duration_s = -1; }), 'duration_s', /positive number of seconds/],
+  ['unknown top-level field', edit((s) => { s.durations = 1; }), 'durations', /unknown field/],
+  ['populations not an object', edit((s) => { anyOf(s).populations = [1]; }), 'populations', /must be an object/],
+  ['population with model and spikes', edit((s) => { anyOf(s).populations.hid.spikes = []; }), 'populations.hid', /either "spikes".*or "model"/],
+  ['population with neither', edit((s) => { anyOf(s).populations.hid = { size: 2 }; }), 'populations.hid', /give "model"/],
+  ['unknown model name', edit((s) => { anyOf(s).populations.hid.model = 'Lif'; }), 'populations.hid.model', /no neuron named 'Lif' .*LifCurrent, Readout/],
+  ['size 0', edit((s) => { anyOf(s).populations.in.size = 0; }), 'populations.in.size', /whole number >= 1/],
+  ['size not whole', edit((s) => { anyOf(s).populations.hid.size = 2.5; }), 'populations.hid.size', /whole number/],
+  ['size too large', edit((s) => { anyOf(s).populations.hid.size = 1000; }), 'populations.hid.size', /at most 64/],
+  ['unknown population field', edit((s) => { anyOf(s).populations.hid.modle = 'x'; }), 'populations.hid.modle', /unknown field/],
+  ['population name not an identifier', edit((s) => { anyOf(s).populations['two words'] = { size: 1, spikes: [] }; }), 'populations["two words"]', /identifier/],
+  ['spike not a pair', edit((s) => { anyOf(s).populations.in.spikes[1] = [0.003]; }), 'populations.in.spikes[1]', /pair \[time_s, index\]/],
+  ['spike after the end', edit((s) => { anyOf(s).populations.in.spikes[0][0] = 0.07; }), 'populations.in.spikes[0][0]', /not before duration_s/],
+  ['spike index out of range', edit((s) => { anyOf(s).populations.in.spikes[1][1] = 3; }), 'populations.in.spikes[1][1]', /out of range.*3 neurons/],
+  ['unknown parameter', edit((s) => { anyOf(s).populations.hid.params = { tau_x: 1 }; }), 'populations.hid.params.tau_x', /LifCurrent has no parameter 'tau_x'/],
+  ['parameter not a number', edit((s) => { anyOf(s).populations.hid.params = { tau_m: '20 ms' }; }), 'populations.hid.params.tau_m', /finite number \(SI units\)/],
+  ['unknown initial state', edit((s) => { anyOf(s).populations.hid.initial = { U: 1 }; }), 'populations.hid.initial.U', /no state 'U'/],
+  ['projections missing', edit((s) => { delete anyOf(s).projections; }), 'projections', /missing/],
+  ['projections empty', edit((s) => { s.projections = []; }), 'projections', /is empty/],
+  ['projection from an unknown population', edit((s) => { s.projections[0]!.from = 'sensor'; }), 'projections[0].from', /no population named 'sensor'/],
+  ['projection into an input population', edit((s) => { s.projections[0]!.to = 'in'; }), 'projections[0].to', /input population: it receives no projections/],
+  ['projection from a model that never fires', edit((s) => { s.projections.push({ from: 'out', to: 'hid', weights: [[1], [1]] }); }), 'projections[2].from', /Readout.*no fire block/],
+  ['projection into a model without an incoming block', edit((s) => {
+    anyOf(s).populations.pace = { model: 'Pacer', size: 1 };
+    s.projections.push({ from: 'hid', to: 'pace', weights: [[1, 1]] });
+  }), 'projections[2].to', /Pacer\) has no incoming block/],
+  ['wrong number of weight rows', edit((s) => { s.projections[1]!.weights = [[0.6, -0.2], [0.1, 0.1]]; }), 'projections[1].weights', /expected 1 row \(one per neuron of out\), got 2/],
+  ['wrong row length', edit((s) => { s.projections[1]!.weights = [[0.6]]; }), 'projections[1].weights[0]', /expected 2 numbers \(one per neuron of hid\), got 1/],
+  ['weight not a number', edit((s) => { anyOf(s).projections[0].weights[1][2] = null; }), 'projections[0].weights[1][2]', /finite number/],
+  ['self-synapse on the diagonal', edit((s) => { s.projections.push({ from: 'hid', to: 'hid', weights: [[0.5, 1], [1, 0]] }); }), 'projections[2].weights[0][0]', /cannot project onto itself.*diagonal/],
+  ['the same pair twice', edit((s) => { s.projections.push({ from: 'hid', to: 'out', weights: [[1, 1]] }); }), 'projections[2]', /hid -> out is already given by projections\[1\]/],
+  ['unknown projection field', edit((s) => { anyOf(s).projections[0].weight = 1; }), 'projections[0].weight', /unknown field/],
+  ['loss missing', edit((s) => { delete anyOf(s).loss; }), 'loss', /missing/],
+  ['unknown loss kind', edit((s) => { s.loss.kind = 'rate'; }), 'loss.kind', /"state-integral" or "spike-time"/],
+  ['unknown loss state', edit((s) => { s.loss.state = 'W'; }), 'loss.state', /Readout has no state 'W' \(it has: V, I\)/],
+  ['loss on an input population', edit((s) => { s.loss.population = 'in'; }), 'loss.population', /input population/],
+  ['spike-time loss on a model that never fires', edit((s) => { s.loss = { kind: 'spike-time', population: 'out', targets_s: [0.01] }; }), 'loss.population', /no fire block: a spike-time loss needs a firing model/],
+  ['spike-time targets of the wrong length', edit((s) => { s.loss = { kind: 'spike-time', population: 'hid', targets_s: [0.01] }; }), 'loss.targets_s', /expected 2 values \(one per neuron of hid\), got 1/],
+  ['a state-integral field on a spike-time loss', edit((s) => { s.loss = { kind: 'spike-time', population: 'hid', targets_s: [0.01, 0.02], target: 1 }; }), 'loss.target', /unknown field/],
+  ['state-integral target of the wrong length', edit((s) => { s.loss.target = [0.5, 0.5]; }), 'loss.target', /expected 1 value/],
+];
+
+describe('malformed scenario files', () => {
+  test('the well-formed base scenario is accepted', () => {
+    const r = parseScenario(good(), MODELS);
+    expect(r.ok ? [] : r.errors).toEqual([]);
+  });
+
+  test.each(CASES)('%s', (_what, input, path, message) => {
+    const r = parseScenario(input, MODELS, 'lif.saltus');
+    expect(r.ok).toBe(false);
+    if (r.ok) return;
+    const hit = r.errors.find((e) => e.path === path);
+    expect(hit, `errors: ${JSON.stringify(r.errors)}`).toBeDefined();
+    expect(hit!.message).toMatch(message);
+    // The same input through the whole check: reported, not thrown.
+    const g = runGradcheckSync(MODELS, input, { traces: false });
+    expect(g.status).toBe('invalid');
+    expect(g.errors.some((e) => e.path === path)).toBe(true);
+  });
+
+  test('a model with errors in its file is named as such', () => {
+    const s = { ...good(), populations: { in: { size: 3, spikes: [] }, hid: { model: 'Careless', size: 2 }, out: { model: 'Careless', size: 1 } } };
+    const r = parseScenario(s, MISTAKES, 'samples/mistakes.saltus');
+    expect(r.ok).toBe(false);
+    if (!r.ok) expect(r.errors.find((e) => e.path === 'populations.hid.model')!.message).toMatch(/Careless has errors in samples\/mistakes\.saltus/);
+  });
+
+  test('several problems are reported together', () => {
+    const s = edit((x) => { x.duration_s = 0; anyOf(x).populations.hid.size = -1; x.loss.kind = 'nope'; });
+    const r = parseScenario(s, MODELS);
+    expect(r.ok ? [] : r.errors.map((e) => e.path)).toEqual(expect.arrayContaining(['duration_s', 'populations.hid.size', 'loss.kind']));
+  });
+
+  test('no JSON value makes the check throw (fast-check)', () => {
+    fc.assert(fc.property(fc.jsonValue(), (v) => {
+      const r = runGradcheckSync(MODELS, v, { traces: false });
+      return r.status === 'invalid' && r.errors.length > 0;
+    }), { numRuns: 300 });
+    // Mutations of the good scenario: any field replaced by an arbitrary value.
+    const paths = ['duration_s', 'populations', 'projections', 'loss'];
+    fc.assert(fc.property(fc.constantFrom(...paths), fc.jsonValue(), (k, v) => {
+      const s = good() as Record<string, unknown>;
+      s[k] = v;
+      const r = runGradcheckSync(MODELS, s, { traces: false });
+      return r.status === 'invalid' || r.status === 'ok';
+    }), { numRuns: 200 });
+  });
+});
