@@ -3,7 +3,8 @@
 // samples/NAME.saltus), run through the built CLI (dist/cli.js; run `npm run build` first).
 // For each scenario: the check's own wall time (as the command measures it: scenario
 // validation, forward and backward passes, all finite-difference simulations, warnings)
-// and the whole process (Node start-up, parsing and analysing the model file included),
+// with its CPU time (less inflated by a busy machine), and the whole process (Node
+// start-up, parsing and analysing the model file included),
 // the median of --runs N runs (default 3). The load average is printed because the
 // numbers mean little on a busy machine. Exit 1 if a scenario fails its check.
 // Usage: node bench/gradcheck.mjs [--runs N] [--html DIR]   (--html also writes each report)
@@ -24,11 +25,11 @@ if (!existsSync(cli)) { console.error('bench: dist/cli.js is missing; run npm ru
 const median = (xs) => { const s = [...xs].sort((a, b) => a - b); return s[Math.floor((s.length - 1) / 2)]; };
 const scenarios = readdirSync(join(root, 'samples', 'scenarios')).filter((f) => f.endsWith('.json')).sort();
 console.log(`gradcheck benchmark: ${scenarios.length} scenarios, median of ${runs} runs; ${cpus().length} CPUs, load average ${loadavg().map((x) => x.toFixed(2)).join(' ')}`);
-console.log(`${'scenario'.padEnd(18)}${'check [ms]'.padStart(12)}${'process [ms]'.padStart(14)}${'simulations'.padStart(13)}${'max rel. error'.padStart(16)}  result`);
+console.log(`${'scenario'.padEnd(18)}${'check [ms]'.padStart(12)}${'check CPU [ms]'.padStart(16)}${'process [ms]'.padStart(14)}${'simulations'.padStart(13)}${'max rel. error'.padStart(16)}  result`);
 let failed = 0;
 for (const f of scenarios) {
   const name = f.replace(/\.json$/, '');
-  const check = [], proc = [];
+  const check = [], cpu = [], proc = [];
   let last;
   for (let k = 0; k < runs; k++) {
     const extra = htmlDir && k === 0 ? ['--html', join(htmlDir, `${name}.html`)] : [];
@@ -39,10 +40,11 @@ for (const f of scenarios) {
     try { last = JSON.parse(r.stdout); } catch { last = { status: 'unreadable', passed: false, timing: {} }; }
     last.exit = r.status;
     check.push(last.timing?.total_ms ?? NaN);
+    cpu.push(last.timing?.cpu_ms ?? NaN);
   }
   const ok = last.exit === 0 && last.passed;
   if (!ok) failed++;
   const rel = typeof last.maxRelativeError === 'number' ? last.maxRelativeError.toExponential(2) : '—';
-  console.log(`${name.padEnd(18)}${median(check).toFixed(0).padStart(12)}${median(proc).toFixed(0).padStart(14)}${String(last.timing?.simulations ?? '—').padStart(13)}${rel.padStart(16)}  ${ok ? 'pass' : `FAIL (${last.status}, exit ${last.exit})`}`);
+  console.log(`${name.padEnd(18)}${median(check).toFixed(0).padStart(12)}${median(cpu).toFixed(0).padStart(16)}${median(proc).toFixed(0).padStart(14)}${String(last.timing?.simulations ?? '—').padStart(13)}${rel.padStart(16)}  ${ok ? 'pass' : `FAIL (${last.status}, exit ${last.exit})`}`);
 }
 process.exit(failed ? 1 : 0);

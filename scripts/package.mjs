@@ -24,7 +24,6 @@ export const REQUIRED_IN_VSIX = [
   'extension/LICENSE.txt',
   'extension/dist/client.js',
   'extension/dist/server.js',
-  'extension/dist/cli.js',
   'extension/grammar/saltus.tmLanguage.json',
   'extension/grammar/language-configuration.json',
   'extension/grammar/snippets.json',

@@ -54,6 +54,7 @@ const CASES: [string, unknown, string, RegExp][] = [
   ['size too large', edit((s) => { anyOf(s).populations.hid.size = 1000; }), 'populations.hid.size', /at most 64/],
   ['unknown population field', edit((s) => { anyOf(s).populations.hid.modle = 'x'; }), 'populations.hid.modle', /unknown field/],
   ['population name not an identifier', edit((s) => { anyOf(s).populations['two words'] = { size: 1, spikes: [] }; }), 'populations["two words"]', /identifier/],
+  ['a reserved population name', '{"duration_s": 0.05, "populations": {"__proto__": {"size": 1, "spikes": []}}, "projections": [], "loss": {}}', 'populations.__proto__', /reserved/],
   ['spike not a pair', edit((s) => { anyOf(s).populations.in.spikes[1] = [0.003]; }), 'populations.in.spikes[1]', /pair \[time_s, index\]/],
   ['spike after the end', edit((s) => { anyOf(s).populations.in.spikes[0][0] = 0.07; }), 'populations.in.spikes[0][0]', /not before duration_s/],
   ['spike index out of range', edit((s) => { anyOf(s).populations.in.spikes[1][1] = 3; }), 'populations.in.spikes[1][1]', /out of range.*3 neurons/],

@@ -231,7 +231,7 @@ describe('language server over stdio', () => {
     client.open(uri, LIF);
     await client.diagnosticsFor(uri, 1);
     const lenses = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri } }) as { range: unknown; command: { title: string; command: string; arguments: unknown[] } }[];
-    expect(lenses.map((l) => l.command.title)).toEqual(['adjoint: event-based']);
+    expect(lenses.map((l) => l.command.title)).toEqual(['adjoint: event-based', 'generate code…']);
     expect(lenses[0]!.command).toMatchObject({ command: 'saltus.showAdjoint', arguments: [uri, 'Sensor'] });
     // Hover on the state I: its adjoint flow, dlambda_I/dt = lambda_I/tau_s - dlV_dI - lambda_V/tau_m (canonical form, docs/adjoint.md).
     const h = await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, 'state I', 6) }) as Hover;
@@ -250,6 +250,25 @@ describe('language server over stdio', () => {
     await client.diagnosticsFor(broken, 1);
     const l2 = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri: broken } }) as { command: { title: string } }[];
     expect(l2.map((l) => l.command.title)).toEqual(['adjoint: fix the errors first']);
+  });
+
+  it('generates code into a folder, and refuses to overwrite a file edited since unless forced', async () => {
+    const uri = 'file:///inline/generate.saltus';
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    const out = mkdtempSync(join(tmpdir(), 'saltus-gen-'));
+    const first = await client.conn.sendRequest('saltus/generate', { uri, target: 'numpy', dir: out }) as { written: string[]; refused: unknown[]; errors: string[] };
+    expect(first.errors).toEqual([]);
+    expect(first.written.length).toBe(1);
+    const file = join(out, readdirSync(out).find((f) => f.endsWith('.py'))!);
+    writeFileSync(file, readFileSync(file, 'utf8') + '\n# my own edit\n');
+    const second = await client.conn.sendRequest('saltus/generate', { uri, target: 'numpy', dir: out }) as { written: string[]; refused: unknown[] };
+    expect(second.refused.length).toBe(1);
+    expect(readFileSync(file, 'utf8')).toContain('# my own edit');
+    const forced = await client.conn.sendRequest('saltus/generate', { uri, target: 'numpy', dir: out, force: true }) as { written: string[] };
+    expect(forced.written.length).toBe(1);
+    expect(readFileSync(file, 'utf8')).not.toContain('# my own edit');
+    rmSync(out, { recursive: true, force: true });
   });
 
   it('answers null or [] for a never-opened document and survives a malformed request', async () => {

@@ -11,22 +11,13 @@ import { MAX_EXPR_NESTING } from '../server/src/syntax/grammar';
 import { MAX_EXPR_DEPTH } from '../server/src/syntax/build';
 import { MAX_SYM_NODES } from '../server/src/model/complexity';
 import { checkPipeline } from './regressions/pipelineCheck';
+import { generatedFile } from './regressions/bigFiles';
 
 const model = (flow: string, lets = ''): string =>
   `timestep 0.1 [ms]\nneuron N {\n  param tau = 10 [ms]\n  state V = 0.5\n${lets}  dV/dt = ${flow}\n  fire when V crosses 1 up { V := 0 }\n}\n`;
 
 const codes = (text: string): string[] => analyse(text).diagnostics.map((d) => d.code);
 const timed = <T>(f: () => T): { value: T; ms: number } => { const t0 = performance.now(); const value = f(); return { value, ms: performance.now() - t0 }; };
-
-/** A neuron block repeated until the file has `lines` lines (each block 10 lines). */
-export function generatedFile(lines: number): string {
-  const blocks: string[] = ['timestep 0.1 [ms]\n'];
-  for (let i = 0; blocks.length * 10 < lines; i++) {
-    blocks.push(`neuron Cell${i} "generated cell ${i}" {\n  param tau_m = ${10 + (i % 7)} [ms]\n  param tau_s = 5 [ms]\n  state V = 0\n  state I = 0\n`
-      + `  dV/dt = (I - V) / tau_m\n  dI/dt = -I / tau_s\n  fire when V crosses 1 up { V := 0 }\n  incoming w { I := I + w }\n}\n`);
-  }
-  return blocks.join('');
-}
 
 describe('deep and large expressions', () => {
   it('50 nested exp: derived within bounds (simplified, or a derivation-budget note)', () => {

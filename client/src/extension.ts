@@ -9,6 +9,7 @@ import { LanguageClient, State, TransportKind, type LanguageClientOptions, type 
 // The reply type of the server's `saltus/analysisSummary` request (a type only: erased).
 import type { AnalysisSummary } from '../../server/src/outputs/summary';
 import { showAdjoint, watchAdjoint } from './adjointPanel';
+import { generateCode } from './generateCommand';
 
 let client: LanguageClient | undefined;
 
@@ -67,6 +68,7 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
     vscode.commands.registerCommand('saltus.showAdjoint', (uri?: string | vscode.Uri) =>
       showAdjoint(context, lc, typeof uri === 'string' ? vscode.Uri.parse(uri) : uri)),
     watchAdjoint(context, lc),
+    vscode.commands.registerCommand('saltus.generateCode', (uri?: string | vscode.Uri, model?: string) => generateCode(lc, uri, model)),
   );
 
   try {

@@ -77,8 +77,6 @@ async function main() {
       if (!file || !existsSync(file)) throw new Error(`npm run package did not name a .vsix:\n${out.slice(-2000)}`);
       return file;
     });
-  } else if (!wantNeovim && !existsSync(join(ROOT, 'dist', 'cli.js'))) {
-    await step(results, 'setup: build', () => mustRun(process.execPath, [join(ROOT, 'scripts', 'build.mjs')], { timeoutMs: 300_000 }));
   }
   if (wantNeovim) {
     if (!existsSync(join(ROOT, 'dist', 'cli.js'))) await step(results, 'setup: build', () => mustRun(process.execPath, [join(ROOT, 'scripts', 'build.mjs')], { timeoutMs: 300_000 }));

@@ -85,7 +85,7 @@ export async function ensureDebianPackages(wanted) {
   log(`apt-get install ${missing.join(' ')}`);
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
   await mustRun('apt-get', ['update', '-qq'], { env, timeoutMs: 300_000 });
-  await mustRun('apt-get', ['install', '-y', '-qq', '--no-install-recommends', ...missing], { env, timeoutMs: 600_000 });
+  await mustRun('apt-get', ['install', '-y', '-qq', ...missing], { env, timeoutMs: 600_000 });
 }
 
 /** The environment that runs Node 24 (and npm under it) first on PATH. */

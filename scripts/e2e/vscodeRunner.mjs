@@ -45,8 +45,10 @@ export async function runVscodeChecks({ vsix, scratch, tools, chromiumPath, scre
     if (!extDirName) throw new Error(`the .vsix did not install into ${extRoot}`);
     const extensionDir = join(extRoot, extDirName);
     const manifest = JSON.parse(readFileSync(join(extensionDir, 'package.json'), 'utf8'));
+    // the oracle: the CLI of the same build (the packaged one when the .vsix carries it)
+    const cli = [join(extensionDir, 'dist', 'cli.js'), join(ROOT, 'dist', 'cli.js')].find((f) => existsSync(f));
     const cliDiagnostics = (file) => {
-      const r = spawnSync(process.execPath, [join(extensionDir, 'dist', 'cli.js'), 'check', join(workspace, file), '--format', 'json'], { encoding: 'utf8', timeout: 60_000 });
+      const r = spawnSync(process.execPath, [cli, 'check', join(workspace, file), '--format', 'json'], { encoding: 'utf8', timeout: 60_000 });
       if (!r.stdout) throw new Error(`the packaged CLI gave no JSON for ${file} (exit ${r.status}): ${r.stderr}`);
       return JSON.parse(r.stdout).files.flatMap((f) => f.diagnostics);
     };

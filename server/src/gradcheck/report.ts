@@ -37,7 +37,7 @@ export function gradcheckJson(r: GradcheckResult): Record<string, unknown> {
     warnings: r.warnings,
     models: r.models,
     settings: r.settings,
-    timing: r.timing,
+    timing: { ...r.timing, cpu_ms: num(r.timing.cpu_ms) },
   };
 }
 

@@ -105,6 +105,7 @@ function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, dura
   for (const [name, p] of Object.entries(v)) {
     const path = key('populations', name);
     if (!NAME.test(name)) { err(path, 'a population name must be an identifier (letters, digits, _; not starting with a digit)'); continue; }
+    if (name === '__proto__') { err(path, 'this name is reserved; choose another population name'); continue; }
     if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); continue; }
     if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); continue; }
     if ('spikes' in p) {
@@ -160,7 +161,7 @@ function readModel(v: unknown, path: string, analysis: Analysis, fileLabel: stri
 }
 
 function readValues(v: unknown, path: string, names: string[], what: string, model: string, err: (p: string, m: string) => void): Record<string, number> {
-  const out: Record<string, number> = {};
+  const out: Record<string, number> = Object.create(null) as Record<string, number>;
   if (v === undefined) return out;
   if (!isObj(v)) { err(path, `must be an object of ${what} values in SI units; got ${show(v)}`); return out; }
   for (const [k, x] of Object.entries(v)) {

@@ -84,7 +84,10 @@ export interface ModelSummary {
 }
 
 export interface GradcheckTiming {
+  /** Wall time of the whole check (validation to report), ms. */
   total_ms: number;
+  /** CPU time of the process over the same span (NaN outside Node), ms. */
+  cpu_ms: number;
   forward_ms: number;
   backward_ms: number;
   finiteDifferences_ms: number;

@@ -1,6 +1,7 @@
-// LSP handlers for the derived results: a CodeLens above each neuron with the adjoint's
-// verdict (opening the preview), and the `saltus/adjointPreview` request the client's
-// webview renders. Guarded like every other handler (features.ts). Code lenses derive
+// LSP handlers for the derived results: CodeLenses above each neuron (the adjoint's verdict,
+// opening the preview; generate code), the `saltus/adjointPreview` request the client's
+// webview renders, and `saltus/generate`, which writes generated code into a folder the
+// modeller picked. Guarded like every other handler (features.ts). Code lenses derive
 // uncached neurons only within CODELENS_BUDGET_MS.
 import type { CodeLens, Connection } from 'vscode-languageserver';
 import { adjointBadge, adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
@@ -8,9 +9,25 @@ import { cachedDerivation, derivationFor } from '../adjoint/index';
 import { makeGuard } from './features';
 import type { DocumentState } from './server';
 import { toRange } from './convert';
+import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
+import type { Analysis } from '../pipeline';
 
 /** The client command a lens runs (contributed by the VS Code extension). */
 export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
+export const GENERATE_COMMAND = 'saltus.generateCode';
+
+export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean; timestepSI?: number }
+export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
+
+/** Generates code for a document and writes it safely into `dir` (never outside it; refuses edited files unless `force`). */
+function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
+  const source = decodeURIComponent(uri.split('/').pop() ?? 'model.saltus');
+  const g = generateFiles(a, { target: p.target, ...(p.model ? { model: p.model } : {}), ...(p.float ? { float: true } : {}),
+    ...(p.driver ? { driver: true } : {}), ...(p.timestepSI !== undefined ? { timestepSI: p.timestepSI } : {}), source });
+  const renamed = g.renamed.map((r) => `${r.kind} ${r.from} -> ${r.to} (${r.reason})`);
+  if (g.errors.length || g.files.length === 0) return { dir: p.dir, written: [], unchanged: [], refused: [], errors: g.errors.length ? g.errors : ['nothing to generate'], notes: g.notes, renamed };
+  return { ...writeGenerated(p.dir, g.files, { force: p.force === true }), notes: g.notes, renamed };
+}
 /** Time (ms) a code-lens request may spend deriving neurons that are not cached yet. */
 const CODELENS_BUDGET_MS = 300;
 
@@ -20,12 +37,16 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
     // Derived results already cached cost nothing; new ones are derived within a budget so that
     // a file with thousands of neurons does not hold the server (the rest say so; the preview derives them).
     const started = performance.now();
-    return a.model.neurons.map((n): CodeLens => {
+    return a.model.neurons.map((n): CodeLens[] => {
       const d = n.wellFormed ? cachedDerivation(n) ?? (performance.now() - started < CODELENS_BUDGET_MS ? derivationFor(n) : undefined) : undefined;
       const title = !n.wellFormed ? 'adjoint: fix the errors first' : d ? adjointBadge(d) : 'adjoint: not derived yet (open the preview)';
-      return { range: toRange(a, n.symbol.nameRange), command: { title, command: SHOW_ADJOINT_COMMAND, arguments: [uri, n.name] } };
-    });
+      const range = toRange(a, n.symbol.nameRange);
+      return [{ range, command: { title, command: SHOW_ADJOINT_COMMAND, arguments: [uri, n.name] } },
+        ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: GENERATE_COMMAND, arguments: [uri, n.name] } }] : [])];
+    }).flat();
   }));
+  const generate = guarded('generate code', null as GenerateReply | null, (a, uri, p: GenerateParams & { textDocument?: { uri?: string } }) => generateInto(a, uri, p));
+  connection.onRequest('saltus/generate', (p: GenerateParams) => generate({ ...p, textDocument: { uri: p?.uri } }));
   const preview = guarded('adjoint preview', null as AdjointPreview | null, (a, uri) => adjointPreview(a, decodeURIComponent(uri.split('/').pop() ?? uri)));
   connection.onRequest('saltus/adjointPreview', (p: { uri?: string } | undefined) => preview({ textDocument: { uri: p?.uri } }));
 }

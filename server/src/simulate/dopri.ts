@@ -250,6 +250,12 @@ function interiorCrossing(seg: DenseSegment, guards: GuardSet, g0: Float64Array,
       let jm = 0;
       for (let j = 1; j <= m; j++) if (q(samples[j]![i]!) > q(samples[jm]![i]!)) jm = j;
       if (jm === 0 || jm === m) continue;
+      // The parabola through the three samples around the maximum: skip the search when it
+      // peaks no closer than half-way from the best sample to zero (the usual case).
+      const qa = q(samples[jm - 1]![i]!), qb = q(samples[jm]![i]!), qd = q(samples[jm + 1]![i]!);
+      const curv = 2 * qb - qa - qd;
+      const peak = curv > 0 ? qb + ((qd - qa) * (qd - qa)) / (8 * curv) : Infinity;
+      if (peak < 0.5 * qb) continue;
       // Golden-section search for the maximum of q on [(jm - 1) / m, (jm + 1) / m].
       const r = (Math.sqrt(5) - 1) / 2;
       let lo = (jm - 1) / m, hi = (jm + 1) / m;

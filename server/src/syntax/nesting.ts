@@ -53,8 +53,9 @@ export function cutTooDeep(tokens: readonly IToken[], limit: number): DeepCut {
       if (depth > limit) cutFrom = i;
       else out.push(t);
     } else if (depth <= limit) {
-      // The region ends here: a ')' that closed it goes with it; any other token stays.
-      const closes = type === 'RParen';
+      // The region ends here. A ')' goes with it when it closes the '(' that began it; a ')'
+      // that closes an outer group (ending a run of signs or exponents) and any other token stay.
+      const closes = type === 'RParen' && tokens[cutFrom]!.tokenType.name === 'LParen';
       regions.push({ first: tokens[cutFrom]!, last: tokens[closes ? i : i - 1]! });
       if (!closes) out.push(t);
       cutFrom = -1;
