@@ -53,9 +53,47 @@ if (json.status !== 0 && json.status !== 1) {
   if (!report.files.some((f) => f.path === MISTAKES)) failures.push(`${MISTAKES} is missing`);
 }
 
-// --- LEAD: further steps go here --------------------------------------------------------
-// `saltus adjoint`, `saltus step` and the gradient check on the samples, each as a heading,
-// a saltus(...) call, and a push onto `failures` when its result is not what it should be.
+// Everything the demo writes goes to demo-output/ (ignored by git).
+const out = join(root, 'demo-output');
+const good = samples.filter((s) => s !== MISTAKES);
+const expectExit = (what, r, code = 0) => { if (r.status !== code) failures.push(`${what} exited ${r.status}${r.stderr ? ': ' + r.stderr.trim().split('\n')[0] : ''}`); };
+
+// --- Step 2: the derived EventProp adjoint ---------------------------------------------
+heading('saltus adjoint samples/adaptive_lif.saltus   (and a typeset page per sample)');
+expectExit('adjoint', saltus(['adjoint', 'samples/adaptive_lif.saltus'], false));
+for (const s of good) {
+  const name = s.replace(/^samples\//, '').replace(/\.saltus$/, '');
+  expectExit(`adjoint ${s}`, saltus(['adjoint', s, '--format', 'json', '--html', join(out, 'adjoint', `${name}.html`)], true));
+}
+console.log(`typeset adjoint pages: ${join('demo-output', 'adjoint')}/*.html`);
+
+// --- Step 3: the exponential-Euler step at each file's timestep ------------------------
+heading('saltus step samples/adex.saltus');
+expectExit('step', saltus(['step', 'samples/adex.saltus'], false));
+for (const s of good) expectExit(`step ${s}`, saltus(['step', s, '--format', 'json'], true));
+
+// --- Step 4: generated code ------------------------------------------------------------
+heading('saltus generate samples/lif_current.saltus --target c --driver   (C, CUDA and NumPy for every sample)');
+for (const s of good) {
+  const name = s.replace(/^samples\//, '').replace(/\.saltus$/, '');
+  for (const target of ['c', 'cuda', 'numpy']) {
+    const r = saltus(['generate', s, '--target', target, '--out', join(out, 'generated', target, name), '--force', ...(target === 'c' ? ['--driver'] : [])], s === 'samples/lif_current.saltus' && target === 'c' ? false : true);
+    expectExit(`generate ${target} ${s}`, r);
+  }
+}
+console.log(`generated code: ${join('demo-output', 'generated')}/{c,cuda,numpy}/<sample>/`);
+
+// --- Step 5: gradient check against finite differences, one scenario per sample ---------
+const scenarioDir = join(root, 'samples', 'scenarios');
+const scenarios = existsSync(scenarioDir) ? readdirSync(scenarioDir).filter((f) => f.endsWith('.json')).sort() : [];
+heading(`saltus gradcheck: ${scenarios.length} scenario(s) in samples/scenarios/`);
+for (const sc of scenarios) {
+  const sample = `samples/${sc.replace(/\.json$/, '')}.saltus`;
+  if (!existsSync(join(root, sample))) { failures.push(`scenario ${sc} has no sample ${sample}`); continue; }
+  const r = saltus(['gradcheck', sample, '--scenario', `samples/scenarios/${sc}`, '--html', join(out, 'gradcheck', sc.replace(/\.json$/, '.html'))], false);
+  expectExit(`gradcheck ${sc}`, r);
+}
+if (scenarios.length) console.log(`gradient-check reports: ${join('demo-output', 'gradcheck')}/*.html`);
 
 heading('demo result');
 if (failures.length > 0) {

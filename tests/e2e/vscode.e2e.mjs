@@ -38,11 +38,17 @@ async function checkProblems(t) {
 
   await ui.openFile(file);
   await ui.page.locator('.editor-group-container.active .squiggly-error').first().waitFor({ timeout: 30_000 });
-  const rows = await ui.problems();
-  for (const d of cli) {
-    const want = `Error: ${d.message} at line ${d.range.start.line + 1} and character ${d.range.start.character + 1}`;
-    expect(rows.some((r) => r.label.startsWith(want)), `Problems has no entry "${want}"; it shows:\n  ${rows.map((r) => r.label).join('\n  ')}`);
+  // the server may publish in more than one round (basic checks, then derived ones): wait
+  // up to 15 s for the panel to settle on the CLI's list
+  const wants = cli.map((d) => `Error: ${d.message} at line ${d.range.start.line + 1} and character ${d.range.start.character + 1}`);
+  let rows = [], missing = wants;
+  for (const until = Date.now() + 15_000; Date.now() < until;) {
+    rows = await ui.problems();
+    missing = wants.filter((w) => !rows.some((r) => r.label.startsWith(w)));
+    if (missing.length === 0 && rows.filter((r) => r.label.startsWith('Error: ')).length === cli.length) break;
+    await ui.page.waitForTimeout(250);
   }
+  expect(missing.length === 0, `Problems has no entry "${missing[0]}"; it shows:\n  ${rows.map((r) => r.label).join('\n  ')}`);
   const errorRows = rows.filter((r) => r.label.startsWith('Error: '));
   expect(errorRows.length === cli.length, `Problems lists ${errorRows.length} errors, the CLI ${cli.length}`);
 
