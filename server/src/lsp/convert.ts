@@ -5,7 +5,7 @@
 // Invariant: offsets and positions round-trip through the analysis's LineIndex; diagnostic
 // `data` carries the quick fixes with ranges already in LSP positions of the same version.
 import {
-  DiagnosticSeverity, type Diagnostic as LspDiagnostic, type Position, type Range as LspRange, type TextEdit as LspTextEdit,
+  DiagnosticSeverity, DiagnosticTag, type Diagnostic as LspDiagnostic, type Position, type Range as LspRange, type TextEdit as LspTextEdit,
 } from 'vscode-languageserver';
 import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
@@ -39,6 +39,8 @@ export function toLspDiagnostic(a: Analysis, d: Diagnostic, uri: string): LspDia
     code: d.code,
     source: 'saltus',
     message: d.message,
+    // Unused declarations are drawn faded (and listed) by editors that know the tag.
+    ...(d.code === 'unused-declaration' ? { tags: [DiagnosticTag.Unnecessary] } : {}),
     ...(d.related?.length ? { relatedInformation: d.related.map((r) => ({ location: { uri, range: toRange(a, r.range) }, message: r.message })) } : {}),
     ...(fixes.length ? { data: { fixes } satisfies DiagnosticData } : {}),
   };

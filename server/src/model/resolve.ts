@@ -285,7 +285,8 @@ function stateTarget(id: A.Ident, table: Map<string, { info: SymbolInfo }>, neur
 function checkFlowDim(m: A.FlowEq, target: SymbolInfo, rhs: Dim, params: ParamInfo[], ctx: LowerContext): void {
   const want = dimDiv(target.dim!, TIME);
   if (dimEqual(want, rhs)) return;
-  const timeParams = params.filter((p) => p.dim && dimEqual(p.dim, TIME));
+  // Time constants first (by the trade's naming habit, tau...), then other times such as onsets.
+  const timeParams = params.filter((p) => p.dim && dimEqual(p.dim, TIME)).sort((x, y) => Number(!/^tau/i.test(x.name)) - Number(!/^tau/i.test(y.name)));
   const fixes: Fix[] = [];
   const v = m.value!;
   for (const p of timeParams) {

@@ -2,7 +2,6 @@
 // equation as LaTeX (typeset by outputs/preview.ts). Used by the VS Code webview (through
 // the server's `saltus/adjointPreview` request) and by standalone HTML exports.
 import type { NeuronDerivation } from '../adjoint/index';
-import { adjointNames } from '../adjoint/index';
 import type { Sym } from '../symbolic/sym';
 import { latexName, toLatex } from '../symbolic/index';
 import type { Analysis } from '../pipeline';
@@ -10,7 +9,11 @@ import { derivations } from '../pipeline';
 import { renderModelsBody, type PreviewModel, type PreviewRow } from './preview';
 
 const isZero = (s: Sym | null): boolean => s === null || (s.k === 'num' && s.v === 0);
-const L = (s: Sym): string => toLatex(s);
+/** The derivation's own symbols in the usual notation: l_V just after / before the event, the spike-time loss term. */
+const DERIVED_NAMES: Record<string, string> = {
+  lV_post: 'l_V^{+}', lV_pre: 'l_V^{-}', dlp_dt: '\\frac{\\partial l_p}{\\partial t_k}', coupling: '\\mathrm{coupling}',
+};
+const L = (s: Sym): string => toLatex(s, (n) => DERIVED_NAMES[n]);
 const lam = (x: string): string => `\\lambda_{${latexName(x)}}`;
 
 export function adjointBadge(d: NeuronDerivation): string {
@@ -22,14 +25,14 @@ export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
   const sections: PreviewModel['sections'] = [];
   sections.push({
     title: 'Adjoint flow (integrated backwards in time from λ(T) = 0)',
-    rows: [...d.adjointFlow].map(([x, e]) => ({ label: `${adjointNames.lambdaName(x)}`, latex: `\\frac{d${lam(x)}}{dt} = ${L(e)}` })),
+    rows: [...d.adjointFlow].map(([x, e]) => ({ label: `λ_${x}`, latex: `\\frac{d${lam(x)}}{dt} = ${L(e)}` })),
   });
   if (d.spike) {
     const s = d.spike;
     const rows: PreviewRow[] = [
       { label: 'guard slope', latex: `\\dot g = ${L(s.gdot)}` },
       { label: 'φ', latex: `\\phi = ${L(s.phi)}`, note: 'coupling: the sum over outgoing synapses of each target’s coupling term' },
-      ...[...s.jump].map(([x, e]) => ({ label: `${adjointNames.lambdaName(x)} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
+      ...[...s.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
     ];
     sections.push({ title: `At a spike (${s.direction} crossing)`, note: `λ just after the event, states just before. Record at each spike: ${s.record.length ? s.record.join(', ') : 'the spike time only'}.`, rows });
   }
@@ -38,7 +41,7 @@ export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
     sections.push({
       title: `At a received spike (weight ${i.weight})`,
       rows: [
-        ...[...i.jump].map(([x, e]) => ({ label: `${adjointNames.lambdaName(x)} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
+        ...[...i.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
         { label: 'weight gradient', latex: `\\Delta\\frac{\\partial L}{\\partial ${latexName(i.weight)}} = ${L(i.weightGradient)}` },
         { label: 'coupling term', latex: `c = ${L(i.coupling)}`, note: 'added to the sender’s φ numerator, with this neuron’s states and adjoints' },
       ],

@@ -50,11 +50,12 @@ export function renderModelsBody(models: PreviewModel[]): string {
 }
 
 export function renderPage(body: string, o: PageOptions): string {
-  // Inside VS Code: only the webview's own stylesheet and fonts, no script. A standalone page
+  // Inside VS Code: only the webview's own stylesheet and fonts, no script; KaTeX's inline
+  // style attributes (struts, sizes) are allowed, since all text in them is KaTeX's own. A standalone page
   // (opened from disk, where browsers match no CSP source to file: URLs) forbids scripts,
   // plugins and forms, and lets its own folder's stylesheet and fonts load.
   const csp = o.cspSource
-    ? `default-src 'none'; style-src ${o.cspSource} 'nonce-${o.nonce}'; font-src ${o.cspSource}; img-src ${o.cspSource} data:;`
+    ? `default-src 'none'; style-src ${o.cspSource} 'nonce-${o.nonce}'; style-src-attr 'unsafe-inline'; font-src ${o.cspSource}; img-src ${o.cspSource} data:;`
     : `script-src 'none'; object-src 'none'; base-uri 'none'; form-action 'none'; connect-src 'none';`;
   return `<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">

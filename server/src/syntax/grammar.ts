@@ -17,7 +17,7 @@
 //   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
 //   primary   := NUMBER unit? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
 //   unit      := '[' UNITBODY ']'
-import { CstParser, type CstNode, type IParserErrorMessageProvider, type TokenType, type IToken } from 'chevrotain';
+import { CstParser, type CstNode, type IOrAlt, type IParserErrorMessageProvider, type TokenType, type IToken } from 'chevrotain';
 import * as T from './tokens';
 
 const label = (t: TokenType): string => (t as { LABEL?: string }).LABEL ?? t.name;
@@ -61,6 +61,16 @@ export class SaltusParser extends CstParser {
   private nesting = 0;
   /** The first token where the nesting limit stopped the parser in the current parse, if any. */
   tooDeep: IToken | undefined;
+  // The alternatives of each OR, built once (chevrotain's advice: a fresh array of closures
+  // per call is much of the parser's garbage on long files).
+  private alt1?: IOrAlt<unknown>[];
+  private alt2?: IOrAlt<unknown>[];
+  private alt3?: IOrAlt<unknown>[];
+  private alt4?: IOrAlt<unknown>[];
+  private alt5?: IOrAlt<unknown>[];
+  private alt6?: IOrAlt<unknown>[];
+  private alt7?: IOrAlt<unknown>[];
+  private alt8?: IOrAlt<unknown>[];
 
   constructor() {
     super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset' });
@@ -79,7 +89,7 @@ export class SaltusParser extends CstParser {
   });
 
   private topLevel = this.RULE('topLevel', () => {
-    this.OR([
+    this.OR(this.alt1 ??= [
       { ALT: () => this.SUBRULE(this.timestepDecl) },
       { ALT: () => this.SUBRULE(this.neuronDecl) },
       { ALT: () => this.SUBRULE(this.connectDecl) },
@@ -108,7 +118,7 @@ export class SaltusParser extends CstParser {
   });
 
   private member = this.RULE('member', () => {
-    this.OR([
+    this.OR(this.alt2 ??= [
       { ALT: () => this.SUBRULE(this.paramDecl) },
       { ALT: () => this.SUBRULE(this.stateDecl) },
       { ALT: () => this.SUBRULE(this.letDecl) },
@@ -164,7 +174,7 @@ export class SaltusParser extends CstParser {
   });
 
   private direction = this.RULE('direction', () => {
-    this.OR([
+    this.OR(this.alt3 ??= [
       { ALT: () => this.CONSUME(T.Up) },
       { ALT: () => this.CONSUME(T.Down) },
       { ALT: () => this.CONSUME(T.Either) },
@@ -199,7 +209,7 @@ export class SaltusParser extends CstParser {
   public expr = this.RULE('expr', () => {
     this.SUBRULE(this.term, { LABEL: 'operands' });
     this.MANY(() => {
-      this.OR([{ ALT: () => this.CONSUME(T.Plus, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Minus, { LABEL: 'ops' }) }]);
+      this.OR(this.alt4 ??= [{ ALT: () => this.CONSUME(T.Plus, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Minus, { LABEL: 'ops' }) }]);
       this.SUBRULE2(this.term, { LABEL: 'operands' });
     });
   });
@@ -207,7 +217,7 @@ export class SaltusParser extends CstParser {
   private term = this.RULE('term', () => {
     this.SUBRULE(this.unaryExpr, { LABEL: 'operands' });
     this.MANY(() => {
-      this.OR([{ ALT: () => this.CONSUME(T.Star, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Slash, { LABEL: 'ops' }) }]);
+      this.OR(this.alt5 ??= [{ ALT: () => this.CONSUME(T.Star, { LABEL: 'ops' }) }, { ALT: () => this.CONSUME(T.Slash, { LABEL: 'ops' }) }]);
       this.SUBRULE2(this.unaryExpr, { LABEL: 'operands' });
     });
   });
@@ -225,11 +235,11 @@ export class SaltusParser extends CstParser {
   });
 
   private unaryAlternatives(): void {
-    this.OR([
+    this.OR(this.alt6 ??= [
       {
         GATE: () => this.withinNesting(),
         ALT: () => {
-          this.OR2([{ ALT: () => this.CONSUME(T.Minus, { LABEL: 'sign' }) }, { ALT: () => this.CONSUME(T.Plus, { LABEL: 'sign' }) }]);
+          this.OR2(this.alt7 ??= [{ ALT: () => this.CONSUME(T.Minus, { LABEL: 'sign' }) }, { ALT: () => this.CONSUME(T.Plus, { LABEL: 'sign' }) }]);
           this.SUBRULE(this.unaryExpr, { LABEL: 'operand' });
         },
       },
@@ -252,7 +262,7 @@ export class SaltusParser extends CstParser {
   });
 
   private primary = this.RULE('primary', () => {
-    this.OR([
+    this.OR(this.alt8 ??= [
       {
         ALT: () => {
           this.CONSUME(T.NumberLiteral);
