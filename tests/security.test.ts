@@ -51,6 +51,11 @@ describe('user text is never executed (source checks)', () => {
     expect(FILES.length).toBeGreaterThan(50);
   });
 
+  it('nothing in server/src or client/src starts a process', () => {
+    const spawners = FILES.filter((f) => /from\s+['"](node:)?child_process['"]|require\(\s*['"](node:)?child_process['"]\s*\)/.test(code(f)));
+    expect(spawners.map((f) => relative(ROOT, f))).toEqual([]);
+  });
+
   it('the patterns catch what they are meant to (and not a method called eval)', () => {
     const hits = (t: string): string[] => BANNED.filter(([, re]) => re.test(t)).map(([w]) => w);
     for (const t of ['eval("1")', 'x = eval(src);', 'globalThis.eval(s)', 'new Function("a", "return a")', 'Function("return 1")()',

@@ -1,6 +1,7 @@
 // LSP handlers for the derived results: CodeLenses above each neuron (the adjoint's verdict,
 // opening the preview; generate code), the `saltus/adjointPreview` request the client's
-// webview renders, and `saltus/generate`, which writes generated code into a folder the
+// webview renders, `saltus/gradcheck` (the gradient check of a scenario, with progress and
+// cancellation), and `saltus/generate`, which writes generated code into a folder the
 // modeller picked. Guarded like every other handler (features.ts). Code lenses derive
 // uncached neurons only within CODELENS_BUDGET_MS.
 import type { CodeLens, Connection } from 'vscode-languageserver';
@@ -11,11 +12,13 @@ import type { DocumentState } from './server';
 import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';
+import { runGradcheck } from '../gradcheck/index';
 
 /** The client command a lens runs (contributed by the VS Code extension). */
 export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
 export const GENERATE_COMMAND = 'saltus.generateCode';
 
+export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
 export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean; timestepSI?: number }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
@@ -45,6 +48,21 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
         ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: GENERATE_COMMAND, arguments: [uri, n.name] } }] : [])];
     }).flat();
   }));
+  // The gradient check runs asynchronously (it yields between simulations): progress goes out
+  // as `saltus/gradcheckProgress` notifications, and cancelling the request stops it.
+  connection.onRequest('saltus/gradcheck', async (p: GradcheckParams, token) => {
+    try {
+      const c = typeof p?.uri === 'string' ? state.analysisFor(p.uri) : undefined;
+      if (!c) return null;
+      const signal = { get aborted() { return token.isCancellationRequested; } };
+      return await runGradcheck(c.analysis, p.scenario, { signal, sourceLabel: decodeURIComponent(p.uri.split('/').pop() ?? p.uri),
+        ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
+        onProgress: (pr) => { void connection.sendNotification('saltus/gradcheckProgress', { uri: p.uri, ...pr }); } });
+    } catch (e) {
+      state.log(`saltus: gradient check failed: ${(e as Error)?.stack ?? String(e)}`);
+      return null;
+    }
+  });
   const generate = guarded('generate code', null as GenerateReply | null, (a, uri, p: GenerateParams & { textDocument?: { uri?: string } }) => generateInto(a, uri, p));
   connection.onRequest('saltus/generate', (p: GenerateParams) => generate({ ...p, textDocument: { uri: p?.uri } }));
   const preview = guarded('adjoint preview', null as AdjointPreview | null, (a, uri) => adjointPreview(a, decodeURIComponent(uri.split('/').pop() ?? uri)));

@@ -3,7 +3,7 @@
 // the server's `saltus/adjointPreview` request) and by standalone HTML exports.
 import type { NeuronDerivation } from '../adjoint/index';
 import type { Sym } from '../symbolic/sym';
-import { latexName, toLatex } from '../symbolic/index';
+import { latexName, toLatex } from '../symbolic/latex'; // not symbolic/index: that also loads mathjs's parser, a slow start-up
 import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
 import { renderModelsBody, type PreviewModel, type PreviewRow } from './preview';
