@@ -79,6 +79,15 @@ describe('asynchronous runner', () => {
     expect(seen[seen.length - 1]!.done).toBe(seen[seen.length - 1]!.total);
   });
 
+  test('a throwing callback comes back as a failed result, not an exception', async () => {
+    const { analysis, text } = load('readout.json');
+    const boom = () => { throw new Error('callback broke'); };
+    const r = await runGradcheck(analysis, text, { onProgress: boom });
+    expect(r.status).toBe('failed');
+    expect(r.errors[0]!.message).toMatch(/callback broke/);
+    expect(runGradcheckSync(analysis, text, { onProgress: boom }).status).toBe('failed');
+  });
+
   test('stops between simulations when the signal is aborted', async () => {
     const { analysis, text } = load('lif_current.json');
     const ctl = new AbortController();

@@ -8,7 +8,8 @@
 //     (tests/e2e/vscode.e2e.mjs); screenshots of passing checks go to docs/screenshots/.
 // Prints one line per check and, last, exactly `E2E: N passed, M failed`; exits 1 when
 // anything failed (a setup step that fails counts as a failed check).
-// Options: --vsix FILE, --only neovim|vscode, --screenshots DIR (default docs/screenshots).
+// Options: --vsix FILE, --only neovim|vscode, --screenshots DIR (default docs/screenshots),
+// --check TEXT (run only the VS Code checks whose name contains TEXT; for working on one).
 // Invariants: the whole run is bounded (RUN_LIMIT_MS); every process it starts is stopped
 // before it exits; scratch files live under .e2e/run/.
 import { existsSync } from 'node:fs';
@@ -21,13 +22,14 @@ const RUN_LIMIT_MS = 25 * 60_000;
 const CHROMIUM = '/usr/bin/chromium';
 
 function parseArgs(argv) {
-  const o = { vsix: undefined, only: undefined, screenshots: join(ROOT, 'docs', 'screenshots') };
+  const o = { vsix: undefined, only: undefined, check: undefined, screenshots: join(ROOT, 'docs', 'screenshots') };
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i];
     if (a === '--vsix') o.vsix = resolve(argv[++i] ?? '');
     else if (a === '--only') o.only = argv[++i];
     else if (a === '--screenshots') o.screenshots = resolve(argv[++i] ?? '');
-    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR)`);
+    else if (a === '--check') o.check = argv[++i] ?? '';
+    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR, --check TEXT)`);
   }
   if (o.only && !['neovim', 'vscode'].includes(o.only)) throw new Error(`--only takes neovim or vscode, not ${o.only}`);
   return o;
@@ -88,7 +90,7 @@ async function main() {
     const tools = await step(results, 'setup: code-server and playwright-core', () => ensureVscodeTools());
     if (tools) {
       log('real VS Code (code-server) in headless Chromium');
-      results.push(...(await runVscodeChecks({ vsix, scratch: join(E2E_DIR, 'run', 'vscode'), tools, chromiumPath: CHROMIUM, screenshotsDir: opts.screenshots })));
+      results.push(...(await runVscodeChecks({ vsix, scratch: join(E2E_DIR, 'run', 'vscode'), tools, chromiumPath: CHROMIUM, screenshotsDir: opts.screenshots, only: opts.check })));
     }
   }
   const { passed, failed } = report(results);

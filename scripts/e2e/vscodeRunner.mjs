@@ -30,7 +30,7 @@ function slug(name) {
 /**
  * @returns {Promise<{ name: string, status: 'pass'|'fail'|'skip', detail: string, ms: number }[]>}
  */
-export async function runVscodeChecks({ vsix, scratch, tools, chromiumPath, screenshotsDir }) {
+export async function runVscodeChecks({ vsix, scratch, tools, chromiumPath, screenshotsDir, only }) {
   const workspace = join(scratch, 'workspace');
   rmSync(scratch, { recursive: true, force: true });
   mkdirSync(scratch, { recursive: true });
@@ -59,8 +59,11 @@ export async function runVscodeChecks({ vsix, scratch, tools, chromiumPath, scre
     const page = context.pages()[0] ?? (await context.newPage());
     const ui = new VscodeUi(page, { screenshotsDir });
     await withLimit(ui.open(cs.folderUrl), 90_000, 'opening the workbench');
-    const t = { ui, manifest, extensionDir, cliDiagnostics, sample: (f) => readFileSync(join(workspace, f), 'utf8') };
-    for (const check of CHECKS) {
+    const runCli = (args) => spawnSync(process.execPath, [cli, ...args], { cwd: workspace, encoding: 'utf8', timeout: 60_000 });
+    const t = { ui, manifest, extensionDir, workspace, scratch, cliDiagnostics, runCli, sample: (f) => readFileSync(join(workspace, f), 'utf8') };
+    const checks = only === undefined ? CHECKS : CHECKS.filter((c) => c.name.includes(only));
+    if (checks.length === 0) throw new Error(`no VS Code check's name contains "${only}"`);
+    for (const check of checks) {
       const started = performance.now();
       const ms = () => Math.round(performance.now() - started);
       try {

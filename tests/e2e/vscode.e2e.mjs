@@ -9,7 +9,7 @@
 // Invariants: the workspace is a scratch copy of samples/ (a quick fix never edits the
 // repository); each check opens what it needs itself; screenshots of passing checks go to
 // docs/screenshots/NAME.png.
-import { readFileSync } from 'node:fs';
+import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 
 export class Skip extends Error {}
@@ -205,7 +205,41 @@ async function checkExtensionPage(t) {
   return `"${name}" with its 128x128 icon; README "${firstHeading}" with ${rendered.headings} sections and ${rendered.code} code blocks rendered; ${imageNote}`;
 }
 
+
+async function exploreGenerate(t) {
+  const { ui } = t;
+  const dump = async (tag) => {
+    const d = await ui.page.evaluate(() => {
+      const w = document.querySelector('.quick-input-widget');
+      return { visible: !!w && w.style.display !== 'none', value: w?.querySelector('input')?.value, title: w?.querySelector('.quick-input-title')?.innerText,
+        html: w?.outerHTML.slice(0, 6000), rows: [...(w?.querySelectorAll('.monaco-list-row') ?? [])].map((r) => r.getAttribute('aria-label') + ' | ' + r.innerText).slice(0, 20),
+        toasts: [...document.querySelectorAll('.notification-toast')].map((e) => e.innerText) };
+    });
+    writeFileSync(join(t.scratch, `explore-${tag}.json`), JSON.stringify(d, null, 2));
+    await ui.page.screenshot({ path: join(t.scratch, `explore-${tag}.png`) });
+  };
+  await ui.tidy();
+  await ui.openFile('lif_current.saltus');
+  const outDir = join(t.workspace, 'generated-numpy');
+  mkdirSync(outDir);
+  expect(await ui.runCommand('Saltus: Generate code…'), 'no command');
+  await ui.page.waitForTimeout(1000);
+  await dump('1-pick');
+  await ui.page.locator('.quick-input-list .monaco-list-row', { hasText: 'NumPy' }).first().click();
+  await ui.page.waitForTimeout(1500);
+  await dump('2-dialog');
+  const box = ui.page.locator('.quick-input-widget input');
+  await box.fill(outDir + '/');
+  await ui.page.waitForTimeout(1500);
+  await dump('3-typed');
+  await ui.page.keyboard.press('Enter');
+  await ui.page.waitForTimeout(3000);
+  await dump('4-after');
+  return 'explored';
+}
+
 export const CHECKS = [
+  { name: 'vscode: explore generate', run: exploreGenerate },
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },

@@ -49,7 +49,7 @@ function body(r: GradcheckResult): string {
 
 function verdict(r: GradcheckResult): string {
   const ok = r.passed;
-  const counts = Object.entries(r.spikeCounts).map(([p, c]) => `${esc(p)}: ${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`).join('; ');
+  const counts = Object.entries(r.spikeCounts).map(([p, c]) => `${esc(p)}: ${!(p in r.spikes) ? 'does not fire' : `${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`}`).join('; ');
   const worst = r.worst ? ` at <code>${esc(r.worst.label)}</code>` : '';
   const head = ok ? 'The derived adjoint gradient agrees with finite differences'
     : r.maxRelativeError === null ? 'No gradient could be compared' : 'The adjoint gradient and the finite differences disagree';
@@ -96,7 +96,7 @@ function spikes(r: GradcheckResult): string {
   }
   if (rows.length === 0) return '';
   return `<section><h2>Spike raster</h2>
-<p class="legend"><span class="key k-input"></span> input spikes (scenario) <span class="key k-model"></span> simulated spikes (event-located)${spikeTargets ? ' <span class="key k-target"></span> target first-spike time' : ''}</p>
+<p class="legend"><span class="key k-input"></span> input spikes (scenario)${Object.keys(r.spikes).length ? ' <span class="key k-model"></span> simulated spikes (event-located)' : ''}${spikeTargets ? ' <span class="key k-target"></span> target first-spike time' : ''}</p>
 ${raster(rows, [0, ms(r.duration)], 'time [ms]')}</section>`;
 }
 
@@ -118,10 +118,11 @@ function traces(r: GradcheckResult, which: 'states' | 'costates'): string {
     };
     return lineChart(spec);
   }).join('');
+  const spiking = tr.neurons.some((n) => n.spikes.length > 0) ? ' <span class="key k-spike"></span> this neuron\'s spikes' : '';
   const omitted = Object.entries(tr.omitted).map(([p, k]) => `${k} more neuron${k === 1 ? '' : 's'} of ${esc(p)} not drawn`).join('; ');
   const intro = which === 'states'
-    ? `<p class="legend"><span class="key k-state"></span> state (forward, DOPRI5 with event location) <span class="key k-spike"></span> this neuron's spikes${r.lossKind === 'state-integral' ? ' <span class="key k-target"></span> loss target' : ''}. Resets and received spikes show as vertical steps.</p>`
-    : `<p class="legend"><span class="key k-costate"></span> costate λ = ∂L/∂x(t), integrated backwards from λ(T) = 0 with the derived adjoint flow and jumps <span class="key k-spike"></span> this neuron's spikes.</p>`;
+    ? `<p class="legend"><span class="key k-state"></span> state (forward, DOPRI5 with event location)${spiking}${r.lossKind === 'state-integral' ? ' <span class="key k-target"></span> loss target' : ''}. Resets and received spikes show as vertical steps.</p>`
+    : `<p class="legend"><span class="key k-costate"></span> costate λ = ∂L/∂x(t), integrated backwards from λ(T) = 0 with the derived adjoint flow and jumps${spiking}.</p>`;
   return `<section><h2>${which === 'states' ? 'State traces' : 'Adjoint traces'}</h2>${intro}
 ${tr.neurons.map((n) => `<div class="neuron"><div class="charts">${charts(n)}</div></div>`).join('\n')}
 ${omitted ? `<p class="note">${omitted}.</p>` : ''}</section>`;

@@ -2,7 +2,7 @@
 // analysed .saltus file, simulate it accurately, compare the derived adjoint gradient with
 // central finite differences, and render the result as text, JSON or a standalone page.
 export { runGradcheck, runGradcheckSync, DEFAULTS as GRADCHECK_DEFAULTS } from './run';
-export { parseScenario, MAX_POPULATION_SIZE, type Scenario, type ScenarioError, type ScenarioResult, type Population, type Projection, type ScenarioLoss } from './scenario';
+export { parseScenario, MAX_POPULATION_SIZE, MAX_DURATION_S, type Scenario, type ScenarioError, type ScenarioResult, type Population, type Projection, type ScenarioLoss } from './scenario';
 export { gradcheckHtml, type GradcheckPageOptions } from './html';
 export { gradcheckJson, gradcheckText } from './report';
 export { GRAZING_RATIO, NEAR_MISS_FRACTION } from './warnings';

@@ -49,7 +49,7 @@ export function gradcheckText(r: GradcheckResult): string {
     return out.join('\n') + '\n';
   }
   out.push(`${r.lossText} = ${sci(r.loss, 7)} [${r.lossUnit}] over ${sci(r.duration * 1e3)} ms`);
-  const counts = Object.entries(r.spikeCounts).map(([p, c]) => `${p} ${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`);
+  const counts = Object.entries(r.spikeCounts).map(([p, c]) => (!(p in r.spikes) ? `${p} does not fire` : `${p} ${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`));
   out.push(`spikes: ${counts.join('; ') || 'none'}`);
   out.push('');
   const rows = [...r.gradients, ...r.params];

@@ -29,10 +29,14 @@ type Step = Generator<GradcheckProgress, GradcheckResult, void>;
 /** Runs the check to the end in one go (CLI, tests, benchmarks). */
 export function runGradcheckSync(analysis: Analysis, scenario: unknown, options: GradcheckOptions = {}): GradcheckResult {
   const it = core(analysis, scenario, options);
-  for (;;) {
-    const r = it.next();
-    if (r.done) return r.value;
-    options.onProgress?.(r.value);
+  try {
+    for (;;) {
+      const r = it.next();
+      if (r.done) return r.value;
+      options.onProgress?.(r.value);
+    }
+  } catch (e) {
+    return internalError(e, options);
   }
 }
 
@@ -40,16 +44,25 @@ export function runGradcheckSync(analysis: Analysis, scenario: unknown, options:
 export async function runGradcheck(analysis: Analysis, scenario: unknown, options: GradcheckOptions = {}): Promise<GradcheckResult> {
   if (options.signal?.aborted) return cancelled(options);
   const it = core(analysis, scenario, options);
-  for (;;) {
-    const r = it.next();
-    if (r.done) return r.value;
-    options.onProgress?.(r.value);
-    await new Promise<void>((resolve) => setTimeout(resolve, 0));
-    if (options.signal?.aborted) {
-      it.return(cancelled(options));
-      return cancelled(options);
+  try {
+    for (;;) {
+      const r = it.next();
+      if (r.done) return r.value;
+      options.onProgress?.(r.value);
+      await new Promise<void>((resolve) => setTimeout(resolve, 0));
+      if (options.signal?.aborted) {
+        it.return(cancelled(options));
+        return cancelled(options);
+      }
     }
+  } catch (e) {
+    return internalError(e, options);
   }
+}
+
+/** A bug of ours (or a throwing `derivation`/`onProgress` callback) still comes back as a result. */
+function internalError(e: unknown, options: GradcheckOptions): GradcheckResult {
+  return { ...emptyResult(options), status: 'failed', errors: [{ path: '(internal)', message: `internal error in the gradient check: ${(e as Error)?.message ?? String(e)}` }] };
 }
 
 function emptyResult(options: GradcheckOptions): GradcheckResult {
@@ -104,8 +117,9 @@ function* core(analysis: Analysis, input: unknown, options: GradcheckOptions): S
   const sim = (net: Network, inputs: InputTrain[]): Trajectory => { result.timing.simulations++; return simulate(net, s.duration, inputs, { rtol, loss: b.loss }); };
 
   // Forward and backward.
+  const tfw = now();
   const base = sim(b.net, b.inputs);
-  result.timing.forward_ms = now() - t0;
+  result.timing.forward_ms = now() - tfw;
   if (base.errors.length) return failed(result, base.errors, t0);
   yield { done: ++done, total, phase: 'forward' };
   const tb = now();

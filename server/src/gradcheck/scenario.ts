@@ -3,10 +3,10 @@
 // naming the JSON path of the offending field (`projections[1].weights[0]`), so the user
 // can find it; nothing here throws, whatever the input.
 //
-// Invariants of a validated Scenario: every population has a size >= 1; a model
-// population names a well-formed neuron of the file; input spikes lie in [0, duration) and
-// index an existing input neuron; weights[to][from] has exactly size(to) rows of size(from)
-// numbers; every projection's sender fires (or is an input) and its receiver has an
+// Invariants of a validated Scenario: 0 < duration <= MAX_DURATION_S; every population has
+// a size >= 1; a model population names a well-formed neuron of the file; input spikes lie
+// in [0, duration) and index an existing input neuron; weights[to][from] has exactly
+// size(to) rows of size(from) numbers; every projection's sender fires (or is an input) and its receiver has an
 // incoming block; no ordered pair of populations is projected twice; the diagonal of a
 // population's projection onto itself is 0 (no self-synapses); the loss refers to an
 // existing population (and state, or a firing model for spike times).
@@ -44,6 +44,8 @@ export type ScenarioResult = { ok: true; scenario: Scenario } | { ok: false; err
 const NAME = /^[A-Za-z_][A-Za-z0-9_]*$/;
 /** A small network for an accurate check: larger ones belong to a trainer, not here. */
 export const MAX_POPULATION_SIZE = 64;
+/** Longest simulated time: the explicit integrator's step is bounded by the fastest time constant. */
+export const MAX_DURATION_S = 10;
 
 type Obj = Record<string, unknown>;
 const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v);
@@ -69,9 +71,10 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
   const description = value.description;
   if (description !== undefined && typeof description !== 'string') err('description', 'must be a string');
   const duration = value.duration_s;
-  const durationOk = isNum(duration) && duration > 0;
+  const durationOk = isNum(duration) && duration > 0 && duration <= MAX_DURATION_S;
   if (duration === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05');
-  else if (!durationOk) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
+  else if (!(isNum(duration) && duration > 0)) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
+  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
 
   const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err);
   const byName = new Map(populations.map((p) => [p.name, p]));
