@@ -13,8 +13,8 @@ import { fileURLToPath } from 'node:url';
 
 const ROOT = join(fileURLToPath(new URL('.', import.meta.url)), '..');
 const VITEST = join(ROOT, 'node_modules', 'vitest', 'vitest.mjs');
-/** Cases one worker runs per unit of FUZZ_SCALE (the suites' base run counts: 600 + 700 + 150 + 50), truncations aside. */
-const CASES_PER_SCALE = 1500;
+/** Cases one worker runs per unit of FUZZ_SCALE (the suites' base run counts: 1000 + 1000 + 250 + 83), truncations aside. */
+const CASES_PER_SCALE = 2333;
 
 function option(name, fallback) {
   const i = process.argv.indexOf(`--${name}`);

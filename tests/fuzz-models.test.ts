@@ -30,7 +30,7 @@ function wellFormed(text: string) {
 }
 
 describe('generated well-formed models', () => {
-  const runs = fuzzRuns(150);
+  const runs = fuzzRuns(250);
   it(`check without errors and pass the adjoint self-check (${runs} models)`, () => {
     const result = fc.check(fc.property(generatedModel, fc.nat(), (m, seed) => {
       const { n } = wellFormed(m.text);

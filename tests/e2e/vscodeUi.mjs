@@ -175,6 +175,119 @@ export class VscodeUi {
     return true;
   }
 
+  /**
+   * Waits for a quick pick, then clicks the item whose label is `label`.
+   * @returns {Promise<{ title: string, labels: string[] }>} what the pick offered
+   */
+  async pick(label) {
+    const widget = this.page.locator('.quick-input-widget');
+    const read = () => widget.evaluate((w) => ({
+      title: w.querySelector('.quick-input-title')?.textContent?.trim() ?? '',
+      labels: [...w.querySelectorAll('.quick-input-list .monaco-list-row .label-name')].map((l) => l.textContent.trim()),
+    }));
+    // the command palette that ran the command may still show for a moment: wait for the pick
+    let offered = { title: '', labels: [] };
+    for (const until = Date.now() + WAIT; Date.now() < until; await this.page.waitForTimeout(100)) {
+      offered = (await widget.isVisible()) ? await read() : offered;
+      if (offered.labels.includes(label)) break;
+    }
+    const at = offered.labels.indexOf(label);
+    if (at < 0) throw new Error(`the quick pick "${offered.title}" offers ${JSON.stringify(offered.labels)}, not "${label}"`);
+    await this.page.waitForTimeout(150);
+    await widget.locator('.quick-input-list .monaco-list-row').nth(at).click();
+    return offered;
+  }
+
+  /**
+   * In VS Code's own (simple) file dialog, types the path of an existing folder, waits until
+   * the dialog lists that folder's contents, and presses the dialog's OK button.
+   * @returns {Promise<{ title: string, okLabel: string }>}
+   */
+  async chooseFolder(dir, { empty = false } = {}) {
+    const widget = this.page.locator('.quick-input-widget');
+    const box = widget.locator('input').first();
+    const names = () => widget.locator('.quick-input-list .monaco-list-row .label-name').evaluateAll((r) => r.map((x) => x.textContent.trim()));
+    // the dialog sets the input to its start folder once it has listed it; typing before
+    // that is overwritten, so wait for the list, and type again if the value was replaced
+    await box.waitFor();
+    for (const until = Date.now() + WAIT; !(await box.inputValue()).startsWith('/');) {
+      if (Date.now() > until) throw new Error(`no folder dialog (the input shows "${await box.inputValue()}")`);
+      await this.page.waitForTimeout(100);
+    }
+    await widget.locator('.quick-input-list .monaco-list-row').first().waitFor();
+    const title = ((await widget.locator('.quick-input-title').textContent()) ?? '').trim();
+    const typed = `${dir.replace(/\/+$/, '')}/`;
+    let value = '', listed = [];
+    for (let attempt = 1, ready = false; !ready; attempt++) {
+      if (attempt > 4) throw new Error(`the folder dialog shows "${value}" listing ${JSON.stringify(listed)} after typing ${typed} ${attempt - 1} times`);
+      await box.fill(typed);
+      for (let i = 0, stable = 0; i < 30; i++) {
+        await this.page.waitForTimeout(100);
+        value = await box.inputValue();
+        listed = await names();
+        if (value !== typed) break;
+        // an empty folder lists only ".." once the dialog has read it
+        stable = empty ? (listed.length === 1 && listed[0] === '..' ? 3 : 0) : stable + 1;
+        if (stable >= 3) { ready = true; break; }
+      }
+    }
+    const ok = widget.locator('.quick-input-action .monaco-button, .quick-input-header .monaco-button').first();
+    const okLabel = ((await ok.textContent()) ?? '').trim();
+    await ok.click();
+    await widget.waitFor({ state: 'hidden' });
+    return { title, okLabel };
+  }
+
+  /** Waits for a notification toast whose message matches `pattern` (string: contained, case-insensitive); returns the message. */
+  async notification(pattern, timeout = WAIT) {
+    const toast = this.page.locator('.notifications-toasts .notification-toast', { has: this.page.locator('.notification-list-item-message', { hasText: pattern }) }).first();
+    await toast.waitFor({ timeout });
+    return (await toast.locator('.notification-list-item-message').first().innerText()).replace(/\s+/g, ' ').trim();
+  }
+
+  /** Starts recording every notification toast that appears, including ones shown only briefly (a short progress). */
+  async recordToasts() {
+    await this.page.evaluate(() => {
+      const seen = (window.__e2eToasts = []);
+      const take = () => {
+        for (const t of document.querySelectorAll('.notifications-toasts .notification-toast')) {
+          const message = t.querySelector('.notification-list-item-message')?.textContent?.replace(/\s+/g, ' ').trim() ?? '';
+          const buttons = [...t.querySelectorAll('.notification-list-item-buttons-container .monaco-button')].map((b) => b.textContent.trim()).filter(Boolean);
+          const progress = !!t.querySelector('.monaco-progress-container.active, .monaco-progress-container.infinite, .monaco-progress-container.discrete');
+          if (message && !seen.some((x) => x.message === message && x.buttons.join() === buttons.join())) seen.push({ message, buttons, progress });
+        }
+      };
+      window.__e2eToastObserver?.disconnect();
+      window.__e2eToastObserver = new MutationObserver(take);
+      window.__e2eToastObserver.observe(document.body, { subtree: true, childList: true, characterData: true, attributes: true });
+    });
+  }
+
+  /** The toasts seen since recordToasts(), as { message, buttons, progress } (progress: a progress bar showed). */
+  async recordedToasts() {
+    return this.page.evaluate(() => { window.__e2eToastObserver?.disconnect(); return window.__e2eToasts ?? []; });
+  }
+
+  /** Clicks the CodeLens command `title` shown above editor line `line`; returns all the lens titles on that line. */
+  async clickCodeLens(line, title) {
+    const { top } = (await this.visibleLines()).find((l) => l.line === line) ?? {};
+    if (top === undefined) throw new Error(`line ${line} is not on screen`);
+    await this.editor.locator('.codelens-decoration a').first().waitFor();
+    const lens = await this.editor.evaluate((ed, lineTop) => {
+      const tops = [...ed.querySelectorAll('.codelens-decoration')].map((d) => ({ d, top: parseFloat(d.style.top || d.parentElement?.style.top || 'NaN') }))
+        .filter((x) => x.top < lineTop).sort((a, b) => b.top - a.top);
+      if (!tops.length) return null;
+      const d = tops[0].d;
+      d.setAttribute('data-e2e-lens', 'here');
+      return [...d.querySelectorAll('a')].map((a) => a.textContent.trim());
+    }, top);
+    if (!lens) throw new Error(`no CodeLens above line ${line}`);
+    const at = lens.indexOf(title);
+    if (at < 0) throw new Error(`the CodeLens above line ${line} offers ${JSON.stringify(lens)}, not "${title}"`);
+    await this.editor.locator('.codelens-decoration[data-e2e-lens="here"] a').nth(at).click();
+    return lens;
+  }
+
   /** Closes every editor and the panel, for a screenshot of one thing. Dirty files must be reverted first. */
   async tidy() {
     await this.runCommand('View: Close All Editors');

@@ -167,7 +167,7 @@ table.grads tr.above-tolerance .status, table.grads tr.simulation-failed .status
 table.grads tr.spike-count-changed .status { color: var(--spike); }
 table.grads .status .note { margin: 0; }
 .neuron { margin: 6px 0; } .charts { display: flex; flex-wrap: wrap; gap: 4px 10px; }
-svg.chart { font-family: var(--vscode-font-family, system-ui, sans-serif); overflow: visible; }
+svg.chart { font-family: var(--vscode-font-family, system-ui, sans-serif); overflow: visible; max-width: 100%; height: auto; }
 svg .plot-bg { fill: var(--plot); } svg .frame { fill: none; stroke: var(--muted); stroke-width: .8; }
 svg .grid { stroke: var(--grid); stroke-width: .6; }
 svg .tick { fill: var(--muted); font-size: 10px; } svg .axis-label { fill: var(--muted); font-size: 11px; }
