@@ -1,18 +1,9 @@
 // The forward simulator against closed forms, and its handling of bad input.
 import { describe, expect, test } from 'vitest';
 import { simulate } from '../server/src/simulate';
-import { modelNeuron, sampleNeuron } from './helpers/models';
+import { lifText, modelNeuron, sampleNeuron } from './helpers/models';
 
-const LIF_WP = `neuron L {
-  param tau_m = 10 [ms]
-  param tau_s = 5 [ms]
-  param theta = 1
-  state V = 0
-  state I = 5
-  dV/dt = (I - V) / tau_m
-  dI/dt = -I / tau_s
-  fire when V crosses theta up { V := 0 }
-}`;
+const LIF_WP = lifText({ initialI: 5, incoming: false });
 
 const LIF_CONSTANT = `neuron C {
   param tau = 10 [ms]

@@ -26,18 +26,9 @@
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { runGradcheckSync } from '../server/src/gradcheck';
+import { lifText } from './helpers/models';
 
-const MODEL = `neuron L "W&P 2021 Table 1 LIF" {
-  param tau_m = 10 [ms] trainable
-  param tau_s = 5 [ms]
-  param theta = 1
-  state V = 0
-  state I = 0
-  dV/dt = (I - V) / tau_m
-  dI/dt = -I / tau_s
-  fire when V crosses theta up { V := 0 }
-  incoming w { I := I + w }
-}`;
+const MODEL = lifText({ doc: 'W&P 2021 Table 1 LIF', trainable: true });
 
 const tauM = 10e-3, tauS = 5e-3, theta = 1, t0 = 2e-3;
 

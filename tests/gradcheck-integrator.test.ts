@@ -8,6 +8,7 @@ import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { runGradcheckSync } from '../server/src/gradcheck';
+import { lifText } from './helpers/models';
 
 const LIF = `neuron C "LIF under constant drive RI (scaled, threshold 1)" {
   param tau = 10 [ms]
@@ -18,17 +19,7 @@ const LIF = `neuron C "LIF under constant drive RI (scaled, threshold 1)" {
   fire when V crosses theta up { V := 0 }
   incoming w { RI := RI + w }
 }
-neuron L "LIF with current synapse, Wunderlich & Pehle 2021 Table 1" {
-  param tau_m = 10 [ms]
-  param tau_s = 5 [ms]
-  param theta = 1
-  state V = 0
-  state I = 0
-  dV/dt = (I - V) / tau_m
-  dI/dt = -I / tau_s
-  fire when V crosses theta up { V := 0 }
-  incoming w { I := I + w }
-}`;
+${lifText({ doc: 'LIF with current synapse, Wunderlich & Pehle 2021 Table 1' })}`;
 
 /** One silent input neuron, weight 0: the check's format needs a projection; it changes nothing. */
 const quiet = (model: string, extra: object, duration: number) => ({

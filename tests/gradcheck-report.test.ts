@@ -12,6 +12,7 @@ import { derivationFor } from '../server/src/adjoint';
 import { ZERO } from '../server/src/symbolic/sym';
 import { gradcheckHtml, runGradcheckSync } from '../server/src/gradcheck';
 import { root, runCli } from './helpers/cli';
+import { lifText } from './helpers/models';
 
 const read = (p: string): string => readFileSync(join(root, p), 'utf8');
 
@@ -90,17 +91,7 @@ describe('the check can fail, and says why', () => {
     expect(r.gradients.some((g) => g.status === 'above-tolerance')).toBe(true);
   });
 
-  const MODEL = analyse(`neuron L {
-    param tau_m = 10 [ms]
-    param tau_s = 5 [ms]
-    param theta = 1
-    state V = 0
-    state I = 0
-    dV/dt = (I - V) / tau_m
-    dI/dt = -I / tau_s
-    fire when V crosses theta up { V := 0 }
-    incoming w { I := I + w }
-  }`);
+  const MODEL = analyse(lifText());
   // With tau_m = 2 tau_s one input of weight w raises V to the peak w/4 (Wunderlich & Pehle
   // Table 1 model, our closed form in gradcheck-eventprop.test.ts): w near 4 theta grazes.
   const near = (w: number) => ({ duration_s: 0.03, populations: { in: { size: 1, spikes: [[0.002, 0]] }, n: { model: 'L', size: 1 } },

@@ -29,3 +29,20 @@ export function modelNeuron(text: string, name: string): ResolvedNeuron {
   if (!n) throw new Error(`no neuron ${name} in the text`);
   return n;
 }
+
+/**
+ * The LIF with exponential current synapse of Wunderlich & Pehle 2021, Table 1, in model text:
+ * tau_m 10 ms, tau_s 5 ms, threshold 1, hard reset to 0. Options vary what a test needs.
+ */
+export function lifText(o: { name?: string; doc?: string; trainable?: boolean; initialI?: number; incoming?: boolean } = {}): string {
+  return `neuron ${o.name ?? 'L'}${o.doc ? ` "${o.doc}"` : ''} {
+  param tau_m = 10 [ms]${o.trainable ? ' trainable' : ''}
+  param tau_s = 5 [ms]
+  param theta = 1
+  state V = 0
+  state I = ${o.initialI ?? 0}
+  dV/dt = (I - V) / tau_m
+  dI/dt = -I / tau_s
+  fire when V crosses theta up { V := 0 }${o.incoming === false ? '' : '\n  incoming w { I := I + w }'}
+}`;
+}
