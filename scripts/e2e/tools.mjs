@@ -88,10 +88,15 @@ export async function ensureDebianPackages(wanted) {
   await mustRun('apt-get', ['install', '-y', '-qq', ...missing], { env, timeoutMs: 600_000 });
 }
 
-/** The environment that runs Node 24 (and npm under it) first on PATH. */
+/**
+ * The environment that runs Node 24 (and npm under it) first on PATH. The npm_* variables of
+ * an outer `npm run` are dropped: npm reads them as its own configuration, and
+ * npm_config_user_agent (naming the outer Node 20) is what code-server's postinstall checks.
+ */
 export function node24Env(extra = {}) {
+  const inherited = Object.fromEntries(Object.entries(process.env).filter(([k]) => !/^npm_/i.test(k) && k !== 'NODE' && k !== 'INIT_CWD'));
   return {
-    ...process.env,
+    ...inherited,
     PATH: `${join(NODE24_DIR, 'bin')}${delimiter}${process.env.PATH ?? ''}`,
     npm_config_nodedir: NODE24_DIR, // node-gyp takes headers from here instead of downloading
     npm_config_update_notifier: 'false',
