@@ -11,23 +11,12 @@ import type { NeuronDerivation } from '../../server/src/adjoint/index';
 import { adjointNames } from '../../server/src/adjoint/index';
 import type { Sym } from '../../server/src/symbolic/sym';
 import { evaluate } from '../../server/src/symbolic/evaluate';
+import { rng } from '../../server/src/adjoint/verify';
 import { InvariantError } from './pipelineCheck';
 
 export interface SelfCheckReport { points: number; comparisons: number; skipped: number; worst: number }
 
 type Env = Map<string, number>;
-
-/** mulberry32: reproducible points for a given seed. */
-function rng(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** d e / d name at env: central differences at h and h/2 combined by one Richardson step (error O(h^4)). */
 export function fd(e: (env: Env) => number, env: Env, name: string): number {

@@ -52,15 +52,14 @@ Exit status: 0 derived, 1 the file has errors or NAME has errors, 2 usage error.
     else if (format === 'markdown') io.out(ds.map(renderMarkdown).join('\n\n') + '\n');
     else if (format === 'latex') io.out(ds.map((d) => `% ${d.name}\n${renderLatex(d)}`).join('\n\n') + '\n');
     else io.out(ds.map(renderText).join('\n\n') + '\n');
-    if (values.html !== undefined) writeHtml(resolve(io.cwd, values.html as string), a, source!.path, model);
+    if (values.html !== undefined) writeHtml(resolve(io.cwd, values.html as string), a, source!.path);
     return { exitCode: broken.length > 0 ? 1 : 0 };
   },
 };
 
 /** Writes the preview page and, beside it, the KaTeX stylesheet and fonts it links to. */
-function writeHtml(out: string, a: ReturnType<typeof analyse>, label: string, model: string | undefined): void {
+function writeHtml(out: string, a: ReturnType<typeof analyse>, label: string): void {
   const p = adjointPreview(a, label);
-  void model;
   const dir = dirname(out);
   mkdirSync(dir, { recursive: true });
   const katexDir = findKatex();
