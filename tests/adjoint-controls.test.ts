@@ -5,7 +5,8 @@
 // the jump map's Jacobian matters).
 import { describe, expect, test } from 'vitest';
 import { derivationFor, type NeuronDerivation } from '../server/src/adjoint';
-import { evaluate, fromMathjs, substitute, num, type Sym } from '../server/src/symbolic';
+import { evaluate, substitute, num, type Sym } from '../server/src/symbolic';
+import { fromMathjs } from './helpers/parseMathjs';
 import { simulate, backward } from '../server/src/simulate';
 import { rng } from '../server/src/adjoint/verify';
 import { gradientCheck } from './helpers/gradientCheck';

@@ -8,7 +8,8 @@ import {
   adjointDiagnostics, adjointHoverMarkdown, adjointJson, clearDerivationCache, derivationFor, deriveNeuron, modelHash,
   renderLatex, renderMarkdown, renderText,
 } from '../server/src/adjoint';
-import { evaluate, fromMathjs, FUNCTION_NAMES, type Sym } from '../server/src/symbolic';
+import { evaluate, FUNCTION_NAMES, type Sym } from '../server/src/symbolic';
+import { fromMathjs } from './helpers/parseMathjs';
 import { numericallyEqual } from '../server/src/adjoint/verify';
 import { neuronsOf, sampleNeuron, sampleText } from './helpers/models';
 

@@ -6,7 +6,8 @@
 // on the formulas and numerically, by an independent backward pass written from Table 2.
 import { describe, expect, test } from 'vitest';
 import { derivationFor } from '../server/src/adjoint';
-import { evaluate, fromMathjs } from '../server/src/symbolic';
+import { evaluate } from '../server/src/symbolic';
+import { fromMathjs } from './helpers/parseMathjs';
 import { simulate, backward, stateInInterval } from '../server/src/simulate';
 import { rng } from '../server/src/adjoint/verify';
 import { sampleNeuron } from './helpers/models';

@@ -20,7 +20,7 @@ import { analyse } from '../server/src/pipeline';
 import type { ResolvedNeuron } from '../server/src/model/types';
 import { generateFiles } from '../server/src/codegen';
 import { deriveNeuron } from '../server/src/adjoint';
-import { lambdaName, lossPartialName } from '../server/src/adjoint/names';
+import { lambdaName, lossPartialName } from '../server/src/base/names';
 import { derivative } from '../server/src/symbolic/derivative';
 import { evaluate } from '../server/src/symbolic/evaluate';
 import { substitute, num, type Sym } from '../server/src/symbolic/sym';

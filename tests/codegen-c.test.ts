@@ -16,7 +16,8 @@ import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { parseUnit } from '../server/src/units/unitParse';
 import type { ResolvedNeuron } from '../server/src/model/types';
-import { type GenerateOptions, generateFiles, referenceRun } from '../server/src/codegen';
+import { type GenerateOptions, generateFiles } from '../server/src/codegen';
+import { referenceRun } from './helpers/referenceRun';
 import { buildScheme, closedFormApplies, exactPropagator, ltiStructure } from '../server/src/step';
 
 /** One of the unit the modeller wrote for state i, in SI (1 when none): the floor of "relative". */

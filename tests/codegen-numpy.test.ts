@@ -13,7 +13,8 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { parseUnit } from '../server/src/units/unitParse';
-import { generateFiles, referenceRun } from '../server/src/codegen';
+import { generateFiles } from '../server/src/codegen';
+import { referenceRun } from './helpers/referenceRun';
 
 /** One of the unit the modeller wrote for state i, in SI (1 when none): the floor of "relative". */
 function unitSize(n: { states: { unitText?: string }[] }, i: number): number {

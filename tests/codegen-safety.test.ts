@@ -14,7 +14,8 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { checkHash, generateFiles, referenceRun, writeGenerated } from '../server/src/codegen';
+import { checkHash, generateFiles, writeGenerated } from '../server/src/codegen';
+import { referenceRun } from './helpers/referenceRun';
 
 const ROOT = resolve(__dirname, '..');
 const CLI = join(ROOT, 'dist/cli.js');

@@ -14,7 +14,7 @@ import {
   createProtocolConnection, StreamMessageReader, StreamMessageWriter, type ProtocolConnection,
   type PublishDiagnosticsParams, type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
 } from 'vscode-languageserver-protocol/node';
-import { LineIndex } from '../server/src/outputs/lineIndex';
+import { LineIndex } from '../server/src/base/lineIndex';
 import { parseTimestep, readSettings } from '../server/src/lsp/settings';
 
 const root = join(__dirname, '..');

@@ -13,7 +13,7 @@ import { tmpdir } from 'node:os';
 import { dirname, join, relative, resolve } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { fromMathjs, SymParseError } from '../server/src/symbolic/parseMathjs';
+import { fromMathjs, SymParseError } from './helpers/parseMathjs';
 import { lookupUnitSymbol } from '../server/src/units/unitSymbols';
 import { generateFiles } from '../server/src/codegen/generate';
 import { writeGenerated } from '../server/src/codegen/write';
@@ -63,11 +63,11 @@ describe('user text is never executed (source checks)', () => {
     for (const t of ['guards.eval(t, y, out);', '  eval(t: number, y: Float64Array): void;', 'applyFunction(name, a)', "import('./x')", 'setTimeout(() => f(), 1)']) expect(hits(t), t).toEqual([]);
   });
 
-  it('mathjs is imported only by units/unitSymbols.ts and symbolic/parseMathjs.ts, and used there only as whitelisted', () => {
+  it('mathjs is imported in production only by units/unitSymbols.ts (the test oracle tests/helpers/parseMathjs.ts aside), and used there only as whitelisted', () => {
     const importers = FILES.filter((f) => /from\s+['"]mathjs['"]|require\(\s*['"]mathjs['"]\s*\)/.test(code(f))).map((f) => relative(ROOT, f)).sort();
-    expect(importers).toEqual(['server/src/symbolic/parseMathjs.ts', 'server/src/units/unitSymbols.ts']);
+    expect(importers).toEqual(['server/src/units/unitSymbols.ts']);
     const units = code(join(ROOT, 'server/src/units/unitSymbols.ts'));
-    const parser = code(join(ROOT, 'server/src/symbolic/parseMathjs.ts'));
+    const parser = code(join(ROOT, 'tests/helpers/parseMathjs.ts'));
     for (const text of [units, parser]) expect(text).not.toMatch(/\.(evaluate|compile|simplify|derivative|rationalize|import|toFunction)\s*\(|\bevaluate\s*\(/);
     expect(parser).toMatch(/import\s*\{\s*parse\s*\}\s*from\s*'mathjs'/); // only the parser, whose tree is walked
     expect(units).toMatch(/UNIT_SYMBOL_PATTERN\s*=\s*\/\^\[A-Za-z\]\{1,32\}\$\//);

@@ -17,9 +17,10 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import {
   type Bounded, type FnName, type Sym, UnboundSymbolError, add, collectIn, compile, compileVector, denominators, derivative,
-  equalSym, evaluate, evaluateWithBound, fn, fromMathjs, jacobian, key, latexName, mul, nonSmoothPoints, normalise,
-  num, pow, size, substituteAndNormalise, sym, toC, toLatex, toMathjs, toPython, tryEvaluate, tryFromMathjs,
+  equalSym, evaluate, evaluateWithBound, fn, jacobian, key, latexName, mul, nonSmoothPoints, normalise,
+  num, pow, size, substituteAndNormalise, sym, toC, toLatex, toMathjs, toPython, tryEvaluate,
 } from '../server/src/symbolic';
+import { fromMathjs, tryFromMathjs } from './helpers/parseMathjs';
 
 // predictable: real results only (sqrt(-1) is NaN, not i), as Saltus evaluates.
 const math = create(all, { predictable: true });

@@ -7,8 +7,8 @@
 import { parse, type ParseOutput } from './syntax/parse';
 import { resolveFile } from './model/resolve';
 import type { ResolvedFile, ResolvedNeuron } from './model/types';
-import type { Diagnostic } from './outputs/diagnostic';
-import { LineIndex } from './outputs/lineIndex';
+import { type Diagnostic, internalError } from './base/diagnostic';
+import { LineIndex } from './base/lineIndex';
 import { adjointDiagnostics, derivationFor, type NeuronDerivation } from './adjoint/index';
 import { stepDiagnostics, type StepReport } from './step/index';
 import { stepReportFor } from './step/cache';
@@ -34,8 +34,7 @@ export function analyse(text: string): Analysis {
     model = resolveFile(parsed.file, parsed.strayJumps);
   } catch (err) {
     model = { neurons: [], connections: [], symbols: [], references: [], unitsUsed: [], diagnostics: [], exprDims: new Map() };
-    diagnostics.push({ severity: 'error', code: 'syntax-error', range: { start: 0, end: Math.min(1, text.length) },
-      message: `internal error while resolving the model: ${(err as Error).message}` });
+    diagnostics.push(internalError('resolving the model', err, { start: 0, end: Math.min(1, text.length) }));
   }
   markIncomplete(model, parsed.errors);
   diagnostics.push(...model.diagnostics);
@@ -99,8 +98,7 @@ export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron, opts: D
   try {
     out.push(...adjointDiagnostics(derivationFor(n), n));
   } catch (err) {
-    out.push({ severity: 'warning', code: 'derivation-budget', range: n.symbol.nameRange,
-      message: `the adjoint of ${n.name} could not be derived: ${(err as Error).message}` });
+    out.push(internalError(`deriving the adjoint of ${n.name}`, err, n.symbol.nameRange, 'warning'));
   }
   const dt = effectiveTimestep(a, opts);
   if (dt !== undefined) {
@@ -108,8 +106,7 @@ export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron, opts: D
       const decl = a.model.timestepDecl;
       out.push(...stepDiagnostics(stepReportFor(n, dt), n, decl?.value?.range ?? decl?.keywordRange));
     } catch (err) {
-      out.push({ severity: 'warning', code: 'step-inaccurate', range: n.symbol.nameRange,
-        message: `the step analysis of ${n.name} failed: ${(err as Error).message}` });
+      out.push(internalError(`analysing the step of ${n.name}`, err, n.symbol.nameRange, 'warning'));
     }
   }
   return clampAll(out, a.text.length);

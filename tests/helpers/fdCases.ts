@@ -2,7 +2,7 @@
 // synthetic models that exercise what the samples do not (time in guards and jumps, a
 // non-identity incoming jump, a trainable parameter inside the incoming jump, a down
 // crossing). Scenario numbers are our own (invented pump-vibration spike pattern).
-import { fromMathjs } from '../../server/src/symbolic';
+import { fromMathjs } from './parseMathjs';
 import type { CheckCase } from './gradientCheck';
 import { modelNeuron, sampleNeuron } from './models';
 

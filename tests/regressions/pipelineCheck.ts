@@ -6,7 +6,7 @@
 // file names are bare identifiers, and the whole run stays within a time budget.
 // `checkPipeline` throws an Error naming the broken invariant; it returns counts otherwise.
 import { analyse, derivedDiagnostics, type Analysis } from '../../server/src/pipeline';
-import { DiagnosticCodes, type Diagnostic } from '../../server/src/outputs/diagnostic';
+import { DiagnosticCodes, type Diagnostic } from '../../server/src/base/diagnostic';
 import { hover } from '../../server/src/outputs/hover';
 import { DERIVED_SECTIONS } from '../../server/src/outputs/derivedHover';
 import { complete } from '../../server/src/outputs/completion';

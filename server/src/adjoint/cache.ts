@@ -3,7 +3,8 @@
 // an unchanged neuron costs one hash.
 // Invariant: a cached derivation is never mutated by its users (treat it as read-only).
 import type { ResolvedNeuron } from '../model/types';
-import { type DeriveContext, type NeuronDerivation, deriveNeuron, modelHash } from './derive';
+import { type DeriveContext, type NeuronDerivation, deriveNeuron } from './derive';
+import { modelHash } from '../model/hash';
 
 const LIMIT = 256;
 const cache = new Map<string, NeuronDerivation>();

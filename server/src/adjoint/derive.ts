@@ -11,11 +11,11 @@
 // modelHash prints.
 import { type Sym, ZERO, add, dependsOn, freeSymbols, mul, num, pow, size, substitute, sym } from '../symbolic/sym';
 import { derivative } from '../symbolic/derivative';
-import { key } from '../symbolic/normalise';
+import { modelHash } from '../model/hash';
 import { toMathjs } from '../symbolic/print';
 import type { Direction } from '../syntax/ast';
 import type { ResolvedNeuron } from '../model/types';
-import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from './names';
+import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
 import { type DeriveBudget, DEFAULT_BUDGET, simplifyChecked } from './verify';
 import { type SurfaceRule, guardSurfaceRule, onSurface, vanishingConditions } from './surface';
 import { type DerivationIssue, type Where, conditionText, denominatorIssues, nonSmoothIssues } from './singularities';
@@ -96,31 +96,6 @@ export interface DeriveContext {
   budget?: Partial<DeriveBudget>;
   /** Which parameters get gradients: the trainable ones (default) or all. */
   params?: 'trainable' | 'all';
-}
-
-/** A stable hash of everything the derivation reads (printed Syms, names, flags). */
-export function modelHash(n: ResolvedNeuron): string {
-  const parts: string[] = [n.name, n.wellFormed ? 'ok' : 'bad'];
-  parts.push('S', ...n.states.map((s) => s.name));
-  parts.push('P', ...n.params.map((p) => `${p.name}${p.trainable ? '*' : ''}`));
-  for (const s of n.states) { const f = n.flows.get(s.name); if (f) parts.push(`d${s.name}=${key(f)}`); }
-  if (n.fire) {
-    parts.push('F', key(n.fire.lhs), key(n.fire.rhs), key(n.fire.guard), n.fire.direction);
-    for (const [x, h] of n.fire.jumps) parts.push(`${x}:=${key(h)}`);
-  }
-  if (n.incoming) {
-    parts.push('I', n.incoming.weight);
-    for (const [x, r] of n.incoming.jumps) parts.push(`${x}:=${key(r)}`);
-  }
-  const text = parts.join('\u0001');
-  let h1 = 0x811c9dc5, h2 = 0x01000193 ^ text.length;
-  for (let i = 0; i < text.length; i++) {
-    const c = text.charCodeAt(i);
-    h1 = Math.imul(h1 ^ c, 0x01000193) >>> 0;
-    h2 = Math.imul(h2 ^ c, 0x5bd1e995) >>> 0;
-    h2 ^= h2 >>> 13;
-  }
-  return h1.toString(16).padStart(8, '0') + h2.toString(16).padStart(8, '0');
 }
 
 /** Shared state of one derivation: budget, notes, issues. */

@@ -5,7 +5,7 @@
 // current neuron, so an edit elsewhere in the file moves them correctly.
 // Invariant: never throws; every range lies inside the neuron's declaration.
 import type * as A from '../syntax/ast';
-import type { Diagnostic, Severity } from '../outputs/diagnostic';
+import type { Diagnostic, Severity } from '../base/diagnostic';
 import type { ResolvedNeuron } from '../model/types';
 import { NON_SMOOTH } from '../symbolic/sym';
 import type { DerivationIssue, NeuronDerivation, Where } from './derive';

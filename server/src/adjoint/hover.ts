@@ -5,7 +5,7 @@
 import type { Sym } from '../symbolic/sym';
 import { toMathjs } from '../symbolic/print';
 import type { NeuronDerivation } from './derive';
-import { lambdaName } from './names';
+import { lambdaName } from '../base/names';
 
 export type AdjointHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' };
 

@@ -7,7 +7,7 @@ import type { Sym } from '../symbolic/sym';
 import { toMathjs } from '../symbolic/print';
 import { toLatex } from '../symbolic/latex';
 import type { NeuronDerivation } from './derive';
-import { lambdaName } from './names';
+import { lambdaName } from '../base/names';
 
 export type Expr = string;
 

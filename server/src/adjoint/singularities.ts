@@ -9,7 +9,7 @@ import { denominators, nonSmoothPoints } from '../symbolic/derivative';
 import { key } from '../symbolic/normalise';
 import { toMathjs } from '../symbolic/print';
 import { type Condition, asEquation, vanishingConditions } from './surface';
-import { TIME } from './names';
+import { TIME } from '../base/names';
 
 export type Where = { kind: 'flow'; state: string } | { kind: 'fire' } | { kind: 'incoming' };
 

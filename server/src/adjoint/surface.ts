@@ -8,7 +8,7 @@ import { type Sym, ZERO, add, dependsOn, freeSymbols, mul, neg, num, pow, size, 
 import { collectIn, normalise } from '../symbolic/normalise';
 import { signed } from '../symbolic/printShape';
 import { type DeriveBudget, simplifyChecked } from './verify';
-import { TIME } from './names';
+import { TIME } from '../base/names';
 
 /** On the guard surface, `state` equals `value` (value is free of `state`). */
 export interface SurfaceRule { state: string; value: Sym }

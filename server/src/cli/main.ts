@@ -13,7 +13,7 @@ import { generateCommand } from './commands/generate';
 import { adjointCommand } from './commands/adjoint';
 import { stepCommand } from './commands/step';
 import { gradcheckCommand } from './commands/gradcheck';
-import { SALTUS_VERSION } from './version';
+import { SALTUS_VERSION } from '../base/version';
 
 /** The subcommands, in the order `saltus --help` lists them. */
 export const COMMANDS: readonly Command[] = [

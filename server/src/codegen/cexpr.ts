@@ -12,6 +12,7 @@ import type { Sym } from '../symbolic/sym';
 import { substitute, num } from '../symbolic/sym';
 import { toC } from '../symbolic/print';
 import { type ModelPlan, roleOf } from './plan';
+import { SPIKE_INPUTS, lambdaName, lossPartialName } from '../base/names';
 
 export interface CFlavour {
   cuda: boolean;
@@ -80,17 +81,16 @@ export class CScope {
     const w = this.plan.weight;
     if (w && this.used.has(w.name)) out.push(`const ${R} ${w.id} = weights[idx];`);
     for (const s of this.plan.states) {
-      const lam = `lambda_${s.id}`;
-      if (this.used.has(`lambda_${s.name}`)) out.push(`const ${R} ${lam} = adj.${lam}[idx];`);
+      const lam = lambdaName(s.id);
+      if (this.used.has(lambdaName(s.name))) out.push(`const ${R} ${lam} = adj.${lam}[idx];`);
     }
     for (const s of this.plan.states) {
-      if (!this.used.has(`dlV_d${s.name}`)) continue;
+      if (!this.used.has(lossPartialName(s.name))) continue;
       const src = cuda ? `loss_source.${s.id}` : `loss_source->${s.id}`;
       const guard = cuda ? src : `loss_source && ${src}`;
-      out.push(`const ${R} dlV_d${s.id} = ${guard} ? ${src}[idx] : ${lit(0)};`);
+      out.push(`const ${R} ${lossPartialName(s.id)} = ${guard} ? ${src}[idx] : ${lit(0)};`);
     }
-    const inputs: [string, string][] = [['coupling', 'couplings'], ['dlp_dt', 'dlp_dts'], ['lV_pre', 'lV_pres'], ['lV_post', 'lV_posts']];
-    for (const [name, arr] of inputs) if (this.used.has(name)) out.push(`const ${R} ${name} = ${arr} ? ${arr}[idx] : ${lit(0)};`);
+    for (const [name, arr] of SPIKE_INPUTS) if (this.used.has(name)) out.push(`const ${R} ${name} = ${arr} ? ${arr}[idx] : ${lit(0)};`);
     return out;
   }
 }

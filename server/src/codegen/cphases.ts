@@ -9,7 +9,7 @@
 // into locals before any array element is written).
 import { type Sym, ZERO } from '../symbolic/sym';
 import { toPlain } from '../symbolic/print';
-import { lambdaName } from '../adjoint/names';
+import { lambdaName } from '../base/names';
 import { cComment } from './escape';
 import { type CFlavour, CScope, cTypes } from './cexpr';
 import { propagatorTerms } from './structure';

@@ -3,7 +3,7 @@
 // with every state, parameter and weight in its SI unit, the precision, the forward scheme
 // per state as the step analysis chose it, and any renamed identifiers.
 // Invariant: every line is already safe for the comment style given (model text escaped).
-import { SALTUS_VERSION } from '../cli/version';
+import { SALTUS_VERSION } from '../base/version';
 import { toPlain } from '../symbolic/print';
 import { formatTime } from '../step';
 import { parseUnit } from '../units/unitParse';

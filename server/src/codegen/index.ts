@@ -3,6 +3,5 @@
 // reference loop that generated drivers are tested against, and the hash check.
 export { generateFiles, TARGETS, type Target, type GenerateOptions, type GenerateResult, type GeneratedFile } from './generate';
 export { writeGenerated, unsafeName, type WriteOptions, type WriteResult } from './write';
-export { referenceRun, crossed, type DriverInput, type ReferenceRow, type ReferenceRun } from './reference';
 export { checkHash, type HashCheck } from './hash';
 export type { Renaming } from './names';

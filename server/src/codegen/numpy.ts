@@ -5,32 +5,18 @@
 // Invariants: imports only numpy; every model text is escaped (escape.ts); the arithmetic is
 // the plan's, as in C (numpy.ts and cphases.ts print the same Syms in the same order).
 import type { Sym } from '../symbolic/sym';
-import { num, substitute } from '../symbolic/sym';
 import { toPlain, toPython } from '../symbolic/print';
-import { lambdaName } from '../adjoint/names';
+import { num } from '../symbolic/sym';
+import { SPIKE_INPUTS, lambdaName, lossPartialName } from '../base/names';
 import { pyComment, pyStringBody } from './escape';
 import type { GeneratedFile, HeaderBase } from './c';
 import { headerLines, schemeLines } from './header';
-import { type ModelPlan, roleOf } from './plan';
+import type { ModelPlan } from './plan';
 import { propagatorTerms } from './structure';
 import { numpyHelpers } from './numpyHelpers';
 import { numpyBackward } from './numpyBackward';
+import { PyScope } from './pyScope';
 
-export class PyScope {
-  readonly used = new Set<string>();
-  constructor(readonly plan: ModelPlan, readonly inline: boolean) {}
-  e(s: Sym): string {
-    const body = this.inline ? substitute(s, new Map(this.plan.params.map((p) => [p.name, num(p.valueSI)] as const))) : s;
-    return toPython(body, { name: (n) => {
-      this.used.add(n);
-      const r = roleOf(this.plan, n);
-      if (!r) return n;
-      if (r.kind === 'param') return `par["${r.id}"]`;
-      if (r.kind === 'time') return 't';
-      return r.id;
-    } });
-  }
-}
 
 const isZero = (s: Sym): boolean => s.k === 'num' && s.v === 0;
 const plain = (s: Sym): string => pyStringBody(toPlain(s), 400);
@@ -94,9 +80,9 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
     const out: string[] = [];
     for (const s of S) if (all || scope.used.has(s.name)) out.push(`${s.id} = ${from}["${s.id}"]`);
     if (plan.weight && scope.used.has(plan.weight.name)) out.push(`${plan.weight.id} = np.asarray(weights)`);
-    for (const s of S) if (scope.used.has(lambdaName(s.name))) out.push(`lambda_${s.id} = adj["lambda_${s.id}"]`);
-    for (const s of S) if (scope.used.has(`dlV_d${s.name}`)) out.push(`dlV_d${s.id} = _value(loss_source, "${s.id}")`);
-    for (const [n, arr] of [['coupling', 'couplings'], ['dlp_dt', 'dlp_dts'], ['lV_pre', 'lV_pres'], ['lV_post', 'lV_posts']] as const) {
+    for (const s of S) if (scope.used.has(lambdaName(s.name))) out.push(`${lambdaName(s.id)} = adj["${lambdaName(s.id)}"]`);
+    for (const s of S) if (scope.used.has(lossPartialName(s.name))) out.push(`${lossPartialName(s.id)} = _value(loss_source, "${s.id}")`);
+    for (const [n, arr] of SPIKE_INPUTS) {
       if (scope.used.has(n)) out.push(`${n} = 0.0 if ${arr} is None else np.asarray(${arr})`);
     }
     return out;
@@ -173,16 +159,4 @@ export function numpyTarget(plan: ModelPlan, base: HeaderBase): GeneratedFile {
   numpyBackward(plan, { inline, PyScope, setup, loads, gradLines, fnDef, plain, st, assign });
   L.splice(headLength, 0, ...numpyHelpers(L.slice(headLength).join('\n')));
   return { name, content: L.join('\n').trimEnd() + '\n' };
-}
-
-export interface BackwardKit {
-  inline: boolean;
-  PyScope: typeof PyScope;
-  setup: (scope: PyScope, body: readonly string[], time: string | null) => string[];
-  loads: (scope: PyScope, from: string, all?: boolean) => string[];
-  gradLines: (sc: PyScope, pick: (p: string) => Sym | null | undefined, factor: string, mask?: string) => string[];
-  fnDef: (sig: string, doc: string[], body: string[]) => void;
-  plain: (s: Sym) => string;
-  st: (n: string) => { id: string; name: string };
-  assign: (target: string) => string[];
 }

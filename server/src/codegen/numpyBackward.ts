@@ -5,10 +5,10 @@
 // Invariant: costates are read into locals before any is written (simultaneous update);
 // neurons outside the event mask keep their costates and gradients unchanged.
 import type { Sym } from '../symbolic/sym';
-import { lambdaName } from '../adjoint/names';
+import { lambdaName } from '../base/names';
 import type { ModelPlan } from './plan';
 import { propagatorTerms } from './structure';
-import type { BackwardKit } from './numpy';
+import type { BackwardKit } from './pyScope';
 
 export function numpyBackward(plan: ModelPlan, k: BackwardKit): void {
   const S = plan.states;

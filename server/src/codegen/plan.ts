@@ -19,7 +19,7 @@ import { collectIn, normalise } from '../symbolic/normalise';
 import { formatDim } from '../units/format';
 import { type SchemeKind, type SchemeLabel, type StepReport, analyseStep, buildScheme, closedFormApplies, ltiStructure } from '../step';
 import { type NeuronDerivation, derivationFor } from '../adjoint';
-import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../adjoint/names';
+import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
 import { type Renaming, renameAll } from './names';
 
 export interface PlanQuantity {

@@ -9,7 +9,7 @@ import {
 } from 'vscode-languageserver';
 import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
-import type { Diagnostic, Severity, TextEdit } from '../outputs/diagnostic';
+import type { Diagnostic, Severity, TextEdit } from '../base/diagnostic';
 import { fixesFor } from '../outputs/codeActions';
 
 export const toRange = (a: Analysis, r: A.Range): LspRange => ({ start: a.lines.positionAt(r.start), end: a.lines.positionAt(r.end) });

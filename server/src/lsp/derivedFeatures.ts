@@ -7,8 +7,7 @@
 import type { CodeLens, Connection } from 'vscode-languageserver';
 import { adjointBadge, adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
 import { cachedDerivation, derivationFor } from '../adjoint/index';
-import { makeGuard } from './features';
-import type { DocumentState } from './server';
+import { makeGuard, type DocumentState } from './documentState';
 import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';

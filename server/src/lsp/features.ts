@@ -23,7 +23,7 @@ import { documentSymbols, type OutlineKind, type OutlineSymbol } from '../output
 import { analysisSummary } from '../outputs/summary';
 import type { Analysis } from '../pipeline';
 import { fromRange, isDiagnosticData, toLspDiagnostic, toOffset, toRange, toTextEdit } from './convert';
-import type { DocumentState } from './server';
+import { makeGuard, type DocumentState } from './documentState';
 
 /** The pure providers the handlers call (replaceable for tests). */
 export const DEFAULT_FEATURES = {
@@ -41,24 +41,6 @@ const OUTLINE_KIND: Record<OutlineKind, SymbolKind> = {
   timestep: SymbolKind.Property, neuron: SymbolKind.Class, param: SymbolKind.Constant, state: SymbolKind.Variable, let: SymbolKind.Field,
   equation: SymbolKind.Function, fire: SymbolKind.Event, incoming: SymbolKind.Event, connect: SymbolKind.Interface,
 };
-
-export type Guard = <P extends { textDocument?: { uri?: string } }, R>(name: string, empty: R, fn: (a: Analysis, uri: string, p: P) => R) => (p: P) => R;
-
-/** Wraps a handler: unknown documents give `empty`, an exception is logged and gives `empty`. */
-export function makeGuard(state: DocumentState): Guard {
-  return (name, empty, fn) => (p) => {
-    try {
-      const uri = p?.textDocument?.uri;
-      const c = typeof uri === 'string' ? state.analysisFor(uri) : undefined;
-      if (!c || !uri) return empty;
-      return fn(c.analysis, uri, p);
-    } catch (e) {
-      if (e instanceof ResponseError) throw e;
-      state.log(`saltus: ${name} failed: ${(e as Error)?.stack ?? String(e)}`);
-      return empty;
-    }
-  };
-}
 
 export function registerFeatures(connection: Connection, state: DocumentState, f: Features, sections: readonly HoverSection[]): void {
   const guarded = makeGuard(state);

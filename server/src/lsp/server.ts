@@ -15,13 +15,14 @@
 import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigurationNotification, type Connection, type InitializeResult } from 'vscode-languageserver';
 import { TextDocument } from 'vscode-languageserver-textdocument';
 import { analyse, neuronDerivedDiagnostics, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
-import type { Diagnostic } from '../outputs/diagnostic';
+import { type Diagnostic, setInternalErrorLog } from '../base/diagnostic';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
 import { DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
 import { DEFAULT_FEATURES, registerFeatures, type Features } from './features';
 import { registerDerivedFeatures } from './derivedFeatures';
+import type { CachedAnalysis, DocumentState } from './documentState';
 
 export interface ServerOptions {
   /** Derived hover sections (step analysis, adjoint), appended after the basic hover. */
@@ -40,19 +41,6 @@ export const DERIVED_BUDGET_MS = 2000;
 const SLICE_MS = 15;
 
 /** The newest analysis of one document version, with its derived diagnostics once computed. */
-export interface CachedAnalysis {
-  uri: string; version: number; analysis: Analysis; derived?: Diagnostic[];
-  /** The derived-checks run in progress for this entry (a newer run supersedes it). */
-  deriving?: object;
-}
-
-export interface DocumentState {
-  analysisFor(uri: string): CachedAnalysis | undefined;
-  /** Fast and (when computed) derived diagnostics of the current version. */
-  diagnosticsFor(c: CachedAnalysis): Diagnostic[];
-  log(message: string): void;
-}
-
 export function startServer(connection: Connection, options: ServerOptions = {}): void {
   const documents = new TextDocuments(TextDocument);
   const cache = new Map<string, CachedAnalysis>();
@@ -63,6 +51,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   const budgetMs = options.derivedBudgetMs ?? DERIVED_BUDGET_MS;
   let shutDown = false;
   const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
+  setInternalErrorLog(log);
 
   const state: DocumentState = {
     analysisFor(uri) {

@@ -7,7 +7,7 @@
 // Invariant: never throws; a neuron over a bound gets one 'too-complex' error per expression.
 import type * as A from '../syntax/ast';
 import type { Sym } from '../symbolic/sym';
-import type { Diagnostic } from '../outputs/diagnostic';
+import type { Diagnostic } from '../base/diagnostic';
 
 /** Most nodes of one resolved expression, counted as a tree (lets expanded). */
 export const MAX_SYM_NODES = 20_000;

@@ -11,7 +11,7 @@ import { evaluate } from '../symbolic/evaluate';
 import { parseUnit } from '../units/unitParse';
 import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, dimPow, isDimensionless, type Dim } from '../units/dimension';
 import { formatDim } from '../units/format';
-import type { Diagnostic } from '../outputs/diagnostic';
+import type { Diagnostic } from '../base/diagnostic';
 import type { SymbolInfo } from './types';
 import { suggestions, unknownName } from './suggest';
 

@@ -9,7 +9,8 @@ import type * as A from '../syntax/ast';
 import * as S from '../symbolic/sym';
 import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, isDimensionless, type Dim } from '../units/dimension';
 import { parseUnit } from '../units/unitParse';
-import type { Diagnostic, Fix } from '../outputs/diagnostic';
+import type { Diagnostic, Fix } from '../base/diagnostic';
+import { isDerivedSymbolName } from '../base/names';
 import { constantValue, describe, lower, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
 import { resolveConnections } from './connections';
 import { complexityError } from './complexity';
@@ -18,8 +19,7 @@ import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, Resolved
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
 export function isReservedName(name: string): boolean {
-  return /^(lambda_|dlV_|dlp_)/.test(name) || ['phi', 'coupling', 'gdot', 'lV_pre', 'lV_post', 'dlp_dt'].includes(name)
-    || (S.FUNCTION_NAMES as readonly string[]).includes(name);
+  return isDerivedSymbolName(name) || (S.FUNCTION_NAMES as readonly string[]).includes(name);
 }
 
 export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): ResolvedFile {

@@ -2,7 +2,7 @@
 // when the distance is small relative to the name's length. Ties are all offered (a fix
 // each) rather than one picked by declaration order.
 import type { Range } from '../syntax/ast';
-import type { Diagnostic, Fix } from '../outputs/diagnostic';
+import type { Diagnostic, Fix } from '../base/diagnostic';
 
 export function editDistance(a: string, b: string): number {
   if (a === b) return 0;

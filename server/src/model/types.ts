@@ -8,7 +8,7 @@
 import type * as A from '../syntax/ast';
 import type { Sym } from '../symbolic/sym';
 import type { Dim } from '../units/dimension';
-import type { Diagnostic } from '../outputs/diagnostic';
+import type { Diagnostic } from '../base/diagnostic';
 
 export type SymbolKind = 'param' | 'state' | 'let' | 'weight' | 'neuron';
 

@@ -6,7 +6,7 @@
 // fix's edits (they never overlap) removes the problem its diagnostic reports.
 import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
-import type { Diagnostic, DiagnosticCode, Fix } from './diagnostic';
+import type { Diagnostic, DiagnosticCode, Fix } from '../base/diagnostic';
 import { overlaps } from './locate';
 
 export interface QuickFix { title: string; diagnostic: Diagnostic; fix: Fix; preferred: boolean }

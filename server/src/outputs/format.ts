@@ -20,7 +20,7 @@
 // to the same tokens and comments; formatting the output again changes nothing.
 import type { IToken } from 'chevrotain';
 import { parse } from '../syntax/parse';
-import type { TextEdit } from './diagnostic';
+import type { TextEdit } from '../base/diagnostic';
 
 const INDENT = '  ';
 const CONTINUATION = '    ';

@@ -8,7 +8,7 @@
 // neuron, with another neuron). Never returns two edits for one range.
 import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
-import type { TextEdit } from './diagnostic';
+import type { TextEdit } from '../base/diagnostic';
 import { KEYWORDS } from '../syntax/tokens';
 import { FUNCTION_NAMES } from '../symbolic/sym';
 import { isReservedName } from '../model/resolve';

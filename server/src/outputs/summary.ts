@@ -1,7 +1,7 @@
 // The per-document summary behind the client's language status item: the neurons with
 // their states and whether they are well-formed, and the error and warning counts.
 import type { Analysis } from '../pipeline';
-import type { Diagnostic } from './diagnostic';
+import type { Diagnostic } from '../base/diagnostic';
 
 export interface AnalysisSummary {
   neurons: { name: string; states: string[]; wellFormed: boolean }[];

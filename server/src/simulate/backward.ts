@@ -11,7 +11,7 @@ import type { ResolvedNeuron } from '../model/types';
 import { type Compiled, compile } from '../symbolic/evaluate';
 import { type Sym, ZERO } from '../symbolic/sym';
 import type { NeuronDerivation } from '../adjoint/derive';
-import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../adjoint/names';
+import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
 import { type IntegrateOptions, Stepper, integrate } from './dopri';
 import { type InputTrain, type Loss, type Network, stateScales } from './network';
 import { type Instance, type Interval, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';

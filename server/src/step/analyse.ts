@@ -3,7 +3,7 @@
 // scheme against the exact propagator P = expm(J dt) of the linearised flow, stability
 // (largest stable dt), accuracy (one-step error against a stated bound), the exact
 // propagator of LTI flows, and how a threshold crossing inside a step is located.
-// Faces: report.ts (JSON, text, hover) and diagnostics.ts; re-exported here.
+// Faces: report.ts (JSON, text, hover) and diagnostics.ts.
 //
 // Invariants: pure; never throws (bad input gives NaN figures and `problems`); bounded work
 // (Newton <= maxNewtonIterations, each dt scan <= maxScanPoints + 80 evaluations).
@@ -11,20 +11,28 @@
 // (every coupling of J at unit steady-state gain); Newton's method for the reference state
 // works in the declared units.
 import type { ResolvedNeuron } from '../model/types';
-import { parseUnit } from '../units/unitParse';
-import { formatQuantity, formatNumber } from '../units/format';
-import { type Mat, eigenvalues, expm, frobenius, lin, similarityScale, spectralRadius, sub } from './linalg';
-import { type SchemeKind, type SchemeLabel, type StepScheme, buildScheme, flowJacobian, stepJacobianAt } from './scheme';
-import { type ExactPropagator, exactPropagator, ltiStructure } from './propagator';
-import { type ReferenceState, findReference } from './reference';
-import { type CrossingReport, analyseCrossing } from './crossing';
-import { firstFailure } from './scan';
-import { gainScaling } from './scaling';
-import type { ParamInput } from './vars';
-import { formatTime } from './report';
 
-export { stepReportJson, stepReportText, stepHoverMarkdown, formatTime, type StepJson, type StepJsonModel } from './report';
-export { stepDiagnostics } from './diagnostics';
+import { parseUnit } from '../units/unitParse';
+
+import { formatQuantity, formatNumber } from '../units/format';
+
+import { type Mat, eigenvalues, expm, frobenius, lin, similarityScale, spectralRadius, sub } from './linalg';
+
+import { buildScheme, flowJacobian, stepJacobianAt } from './scheme';
+import { exactPropagator, ltiStructure } from './propagator';
+import { type ReferenceState, findReference } from './reference';
+
+import { analyseCrossing } from './crossing';
+import { firstFailure } from './scan';
+
+import { gainScaling } from './scaling';
+
+import { formatTime } from './report';
+import type { StepScheme, ParamInput, StepStateReport, StepReport } from './types';
+
+
+
+
 
 /** Relative one-step error above which `step-inaccurate` warns (1 %; see the docs). */
 export const DEFAULT_ACCURACY_BOUND = 0.01;
@@ -40,50 +48,7 @@ export interface StepOptions {
   params?: ParamInput;
 }
 
-export interface StepStateReport {
-  name: string;
-  scheme: SchemeLabel;
-  kind: SchemeKind;
-  reason: string;
-  /** Unit written for the state (for display and Newton's coordinates), and its SI size. */
-  unit: string;
-  scale: number;
-}
 
-export interface StepReport {
-  neuron: string;
-  dt_s: number;
-  states: StepStateReport[];
-  /** The states with a flow: the rows and columns of jacobian, stepMatrix, flowPropagator. */
-  order: string[];
-  reference: { kind: 'rest' | 'initial'; values: Record<string, number>; note: string };
-  /** J = df/dx at the reference (SI). */
-  jacobian: Mat;
-  /** M: Jacobian of one exponential-Euler step at the reference (SI). */
-  stepMatrix: Mat;
-  /** P = expm(J dt) (SI). */
-  flowPropagator: Mat;
-  stepRadius: number;
-  exactRadius: number;
-  /** ||M - P||_F / ||P||_F in the coordinates of scaling.ts. */
-  relativeStepError: number;
-  /** The linearised flow has no growing mode that the step does not also have (see docs). */
-  stable: boolean;
-  /** The `step-unstable` condition: the step amplifies a mode that the flow damps, at dt. */
-  unstable: boolean;
-  /** Largest dt up to which the step is stable; null when stable at every dt scanned. */
-  maxStableDt_s: number | null;
-  stabilityNote: string;
-  accuracyBound: number;
-  accurate: boolean;
-  /** Largest dt with relativeStepError <= accuracyBound; null when never exceeded in the scan. */
-  accurateDt_s: number | null;
-  lti: { linear: boolean; reason: string };
-  exactPropagator: ExactPropagator | null;
-  recommended: 'exact-propagator' | SchemeLabel;
-  crossing: CrossingReport | null;
-  problems: string[];
-}
 
 function unitScale(unit: string | undefined): { unit: string; scale: number } {
   if (!unit) return { unit: '', scale: 1 };

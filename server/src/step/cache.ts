@@ -2,8 +2,11 @@
 // hash plus its parameter and initial values (which the numbers depend on) and the dt.
 // Invariant: a cached report is never mutated by its users.
 import type { ResolvedNeuron } from '../model/types';
-import { modelHash } from '../adjoint/index';
-import { analyseStep, type StepReport } from './analyse';
+
+import { modelHash } from '../model/hash';
+
+import { analyseStep } from './analyse';
+import type { StepReport } from './types';
 
 const LIMIT = 256;
 const cache = new Map<string, StepReport>();

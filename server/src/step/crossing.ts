@@ -14,34 +14,18 @@
 // time never leaves the step, so the error is also at most dt.
 // Invariants: never throws; at most 50 one-dimensional Newton steps for the probe.
 import type { ResolvedNeuron } from '../model/types';
-import { type Sym, add, mul } from '../symbolic/sym';
-import { derivative } from '../symbolic/derivative';
-import { normalise } from '../symbolic/normalise';
-import { compile } from '../symbolic/evaluate';
-import type { StepScheme } from './scheme';
-import { type ParamInput, variableVector } from './vars';
 
-export interface CrossingReport {
-  method: string;
-  /** g, dg/dt and d2g/dt2 along the flow. */
-  guard: Sym;
-  rate: Sym;
-  curvature: Sym;
-  direction: 'up' | 'down' | 'either';
-  /** The bound as a formula, in words. */
-  bound: string;
-  /** The probe crossing and the bound there, or null with `probeNote` saying why. */
-  probe: {
-    state: Float64Array; movedState: string; rate: number; curvature: number;
-    /** dt^2 |g''| / (8 |g'|) at the probe. */
-    interpolationBound_s: number;
-    /** min(interpolationBound_s, dt): the located time never leaves the step. */
-    timeError_s: number;
-  } | null;
-  probeNote: string;
-  /** Error bound without interpolation: dt. */
-  gridBound_s: number;
-}
+import { type Sym, add, mul } from '../symbolic/sym';
+
+import { derivative } from '../symbolic/derivative';
+
+import { normalise } from '../symbolic/normalise';
+
+import { compile } from '../symbolic/evaluate';
+
+import { variableVector } from './vars';
+import type { StepScheme, ParamInput, CrossingReport } from './types';
+
 
 const MAX_PROBE_STEPS = 50;
 

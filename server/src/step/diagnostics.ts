@@ -5,10 +5,14 @@
 // Invariants: pure; no diagnostic for a neuron that is not well formed or for a report whose
 // figures are not finite (the report's `problems` say why).
 import type { Range } from '../syntax/ast';
-import type { Diagnostic } from '../outputs/diagnostic';
+
+import type { Diagnostic } from '../base/diagnostic';
+
 import type { ResolvedNeuron } from '../model/types';
-import type { StepReport } from './analyse';
+
 import { formatTime } from './report';
+import type { StepReport } from './types';
+
 
 const num = (v: number, digits = 4): string => (Number.isFinite(v) ? String(Number(v.toPrecision(digits))) : String(v));
 

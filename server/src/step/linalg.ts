@@ -11,6 +11,7 @@
 // (eigenvalues), so that no iteration runs on NaN. Every loop is bounded.
 import { eigenvaluesBounded, type Eigenvalue } from './eigen';
 
+
 export type Mat = number[][];
 
 export const identity = (n: number): Mat => Array.from({ length: n }, (_, i) => Array.from({ length: n }, (_, j) => (i === j ? 1 : 0)));

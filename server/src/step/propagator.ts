@@ -13,34 +13,19 @@
 // Held states (no flow) are rows of zeros in A: they are part of the linear system.
 // Invariants: never throws; `null` when the flow is not LTI or has no states.
 import { type Sym, dependsOn } from '../symbolic/sym';
+
 import { substituteAndNormalise } from '../symbolic/normalise';
+
 import { compile } from '../symbolic/evaluate';
+
 import { type Mat, expm, zeros } from './linalg';
+
 import { phi1 } from './phi';
-import type { StepScheme } from './scheme';
-import { type ParamInput, variableVector } from './vars';
 
-export interface LtiStructure {
-  linear: boolean;
-  /** Why the flow is or is not LTI, in words. */
-  reason: string;
-  /** f = A x + c over all states (rows of held states are 0); present when linear. */
-  A?: Sym[][];
-  c?: Sym[];
-}
+import { variableVector } from './vars';
+import type { StepScheme, ParamInput, LtiStructure, ExactPropagator } from './types';
 
-export interface ExactPropagator {
-  /** All states, in declaration order: the rows and columns of `matrix`. */
-  states: string[];
-  dt: number;
-  A: Mat;
-  c: number[];
-  /** P = e^{A dt} */
-  matrix: Mat;
-  /** q = int_0^dt e^{A s} ds c */
-  offset: number[];
-  method: 'closed-form' | 'pade';
-}
+
 
 export function ltiStructure(scheme: StepScheme): LtiStructure {
   const n = scheme.states.length;

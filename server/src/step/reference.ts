@@ -9,8 +9,9 @@
 // line search. Invariants: at most `maxIterations` Newton steps of at most 40 halvings
 // each; never throws; a non-finite flow or a singular Jacobian ends the search.
 import { eigenvalues, solve } from './linalg';
-import { type StepScheme, flowJacobian, flowValues } from './scheme';
-import type { ParamInput } from './vars';
+
+import { flowJacobian, flowValues } from './scheme';
+import type { StepScheme, ParamInput } from './types';
 
 export interface ReferenceState {
   kind: 'rest' | 'initial';

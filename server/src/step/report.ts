@@ -2,9 +2,9 @@
 // docs/step-analysis.md), the CLI text, and hover markdown.
 // Invariants: pure; JSON has only finite numbers or null (NaN and infinities become null);
 // every time in JSON is in SI seconds.
-import type { StepReport } from './analyse';
 import { formatNumber } from '../units/format';
-import type { SchemeLabel } from './scheme';
+import type { SchemeLabel, StepReport } from './types';
+
 
 export interface StepJsonModel {
   name: string;

@@ -12,6 +12,7 @@
 // Invariants: never throws; d is positive and finite (1 where J says nothing); n <= 64.
 import { solve } from './linalg';
 
+
 export function gainScaling(J: readonly (readonly number[])[], fallbackRate: number): number[] {
   const n = J.length;
   const ones = new Array<number>(n).fill(1);

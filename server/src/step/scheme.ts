@@ -12,64 +12,28 @@
 // listed in `problems`); stepping never throws (a wrong-length state gives NaN); the
 // scheme is immutable once built. Values are SI.
 import type { ResolvedNeuron } from '../model/types';
+
 import { type Sym, ZERO, dependsOn, freeSymbols } from '../symbolic/sym';
+
 import { derivative } from '../symbolic/derivative';
+
 import { collectIn, normalise } from '../symbolic/normalise';
+
 import { compile, type Compiled } from '../symbolic/evaluate';
+
 import { toPlain } from '../symbolic/print';
+
 import { type Mat, identity } from './linalg';
+
 import { dphi1, phi1 } from './phi';
-import { type ParamInput, variableVector } from './vars';
 
-export { phi1, dphi1 } from './phi';
-export { type ParamInput, variableVector } from './vars';
-export { type ExactPropagator, type LtiStructure, exactPropagator, exactStep, ltiStructure, closedFormApplies } from './propagator';
+import { variableVector } from './vars';
+import type { StateScheme, StepScheme, ParamInput } from './types';
 
-export type SchemeLabel = 'exact' | 'exponential-euler' | 'linearised-exponential-euler';
-/** held: no flow; affine: exact split a_i x_i + b_i; linearised: a_i = df_i/dx_i at the state. */
-export type SchemeKind = 'held' | 'affine' | 'linearised';
 
-export interface StateScheme {
-  name: string;
-  kind: SchemeKind;
-  /** The label of the JSON contract: 'exact' when this state's update is its exact flow
-   *  (held, or a_i and b_i constant during a step). */
-  label: SchemeLabel;
-  reason: string;
-  /** f_i, normalised (undefined for a held state). */
-  flow?: Sym;
-  /** a_i: the coefficient of x_i (affine) or df_i/dx_i (linearised); 0 when held. */
-  a: Sym;
-  /** b_i = f_i with x_i = 0 (affine only; linearised b_i = f_i - a_i x_i is numeric). */
-  b?: Sym;
-}
 
-export interface StepScheme {
-  neuron: string;
-  /** All states in declaration order: the layout of every state vector x. */
-  states: string[];
-  /** Parameters in declaration order and their SI values (NaN when a value is missing). */
-  params: string[];
-  paramValues: Float64Array;
-  initial: Float64Array;
-  /** Indices (into `states`) of the states that have a flow: the order of M, J and P. */
-  dynamic: number[];
-  entries: StateScheme[];
-  /** Variable layout of the compiled closures: states, params, 't', then extra symbols (0). */
-  vars: string[];
-  problems: string[];
-  /** @internal compiled pieces, indexed like `dynamic` (rows) and `dynamic` (columns). */
-  compiled: {
-    f: Compiled[];
-    a: Compiled[];
-    b: (Compiled | null)[];
-    J: Compiled[][];
-    /** d a_i / d x_j */
-    H: Compiled[][];
-  };
-  /** Symbolic Jacobian of the dynamic flows with respect to every state (rows: dynamic). */
-  jacobianSym: Sym[][];
-}
+
+
 
 /** Builds the scheme of one neuron. */
 export function buildScheme(neuron: ResolvedNeuron): StepScheme {

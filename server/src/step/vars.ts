@@ -1,10 +1,8 @@
+import type { StepScheme, ParamInput } from './types';
 // The variable vector that the compiled closures of a StepScheme read: the state values,
 // the parameter values (from the caller or the neuron's SI values), the time t, then the
 // extra symbols that have no value (0). Invariant: never throws; null for a wrong length.
-import type { StepScheme } from './scheme';
 
-/** Parameter values: a vector in `scheme.params` order, or by name; omitted ones are the neuron's. */
-export type ParamInput = Float64Array | Readonly<Record<string, number>> | undefined;
 
 /** The variable vector of the compiled closures; null when x has the wrong length. */
 export function variableVector(scheme: StepScheme, x: ArrayLike<number>, params: ParamInput, t: number): Float64Array | null {

@@ -7,4 +7,3 @@ export * from './derivative';
 export * from './evaluate';
 export * from './errorBound';
 export * from './print';
-export * from './parseMathjs';

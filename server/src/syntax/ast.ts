@@ -5,7 +5,8 @@
 // Architecture invariant: nothing here knows about units, dimensions or LSP; a parse of
 // broken text yields a tree with `undefined` holes plus errors, never an exception.
 
-export interface Range { start: number; end: number }
+import type { Range } from '../base/range';
+export type { Range };
 
 export interface Ident { name: string; range: Range }
 

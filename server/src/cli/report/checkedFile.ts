@@ -1,7 +1,7 @@
 // A file after `saltus check`: its text, line index and all its diagnostics (fast and
 // derived), sorted by position. The input of every report format in cli/report/.
-import type { Diagnostic } from '../../outputs/diagnostic';
-import type { LineIndex, Position } from '../../outputs/lineIndex';
+import type { Diagnostic } from '../../base/diagnostic';
+import type { LineIndex, Position } from '../../base/lineIndex';
 
 export interface CheckedFile {
   /** The path as given on the command line (shown in text and JSON reports). */

@@ -5,7 +5,7 @@
 // 'hint' (e.g. an unused declaration) is reported as 'info', so consumers see every finding
 // with a three-level scale. Invariants: one entry per input file, in command-line order, even
 // when it has no diagnostics; no other keys; valid JSON followed by a newline.
-import type { Severity } from '../../outputs/diagnostic';
+import type { Severity } from '../../base/diagnostic';
 import { lineRange, type CheckedFile } from './checkedFile';
 
 export type JsonSeverity = 'error' | 'warning' | 'info';

@@ -1,7 +1,7 @@
 // One sentence per diagnostic code: SARIF's rules[].shortDescription and `saltus help codes`.
 // Typed as a full Record so that adding a code to outputs/diagnostic.ts without describing it
 // here fails the type check. Wording is ours; say what the rule checks, not one instance.
-import type { DiagnosticCode } from '../../outputs/diagnostic';
+import type { DiagnosticCode } from '../../base/diagnostic';
 
 export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'syntax-error': 'The text does not follow the Saltus grammar.',
@@ -30,4 +30,5 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'step-linearised': 'The step analysis of a non-linear flow holds only for its linearisation.',
   'too-complex': 'An expression is nested too deeply or is too long for the checks to walk; it is not analysed.',
   'time-budget': 'The slow checks of a file ran out of their time budget; the neurons left are not derived until the next edit.',
+  'internal-error': 'Saltus itself failed on this text (a bug, not a mistake in the model); the language server log has the details.',
 };

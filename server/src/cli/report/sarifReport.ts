@@ -13,8 +13,8 @@
 // ruleId names a rule in tool.driver.rules; the output is JSON followed by a newline.
 import { relative, sep } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import type { Diagnostic, DiagnosticCode, Severity } from '../../outputs/diagnostic';
-import { SALTUS_INFORMATION_URI, SALTUS_VERSION } from '../version';
+import type { Diagnostic, DiagnosticCode, Severity } from '../../base/diagnostic';
+import { SALTUS_INFORMATION_URI, SALTUS_VERSION } from '../../base/version';
 import { lineRange, type CheckedFile } from './checkedFile';
 import { RULE_DESCRIPTIONS } from './ruleDescriptions';
 

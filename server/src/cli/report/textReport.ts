@@ -5,7 +5,7 @@
 // places and available fixes; then one summary line. ANSI colour only when io.colour says so.
 // Invariants: output ends with a newline; no colour codes when colour is false; an underline
 // is at least one caret and never runs past the end of the shown line.
-import type { Diagnostic, Severity } from '../../outputs/diagnostic';
+import type { Diagnostic, Severity } from '../../base/diagnostic';
 import { countSeverities, lineRange, type CheckedFile } from './checkedFile';
 
 const MAX_SHOWN = 160; // code points of a source line shown before it is cut around the caret

@@ -1,6 +1,7 @@
-// The pipeline's own diagnostic type. Faces (LSP, CLI) translate it; nothing in the
-// pipeline imports LSP types. Ranges are UTF-16 offsets into the document text.
-import type { Range } from '../syntax/ast';
+// The pipeline's own diagnostic type and its stable codes. Faces (LSP, CLI) translate it;
+// nothing in the pipeline imports LSP types. Ranges are UTF-16 offsets into the document text.
+// Part of the bottom layer (base/): every stage may import it; it imports nothing above it.
+import type { Range } from './range';
 
 export type Severity = 'error' | 'warning' | 'info' | 'hint';
 
@@ -32,6 +33,7 @@ export const DiagnosticCodes = [
   'step-linearised',
   'too-complex',
   'time-budget',
+  'internal-error',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 
@@ -46,4 +48,18 @@ export interface Diagnostic {
   fixes?: Fix[];
   /** Extra places worth showing, e.g. the first declaration for a duplicate. */
   related?: { message: string; range: Range }[];
+}
+
+/** Where caught exceptions are logged with their stack (the language server sets its log). */
+let internalLog: (message: string) => void = () => {};
+export function setInternalErrorLog(log: (message: string) => void): void { internalLog = log; }
+
+/**
+ * A caught exception as a diagnostic: code `internal-error`, a message naming what failed
+ * (never a domain code, which users filter by), and the stack in the log only.
+ */
+export function internalError(what: string, err: unknown, range: Range, severity: Severity = 'error'): Diagnostic {
+  const e = err instanceof Error ? err : new Error(String(err));
+  internalLog(`internal error while ${what}: ${e.stack ?? e.message}`);
+  return { severity, code: 'internal-error', range, message: `internal error while ${what}: ${e.message} (please report it; the language server log has the details)` };
 }

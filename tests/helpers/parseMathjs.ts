@@ -5,8 +5,8 @@
 // rejected with SymParseError; nothing is ever evaluated. The result is not normalised.
 
 import { parse } from 'mathjs';
-import { FUNCTION_NAMES, type FnName, type Sym, add, div, fn, mul, neg, num, pow, sub, sym } from './sym';
-import { arityOk } from './evaluate';
+import { FUNCTION_NAMES, type FnName, type Sym, add, div, fn, mul, neg, num, pow, sub, sym } from '../../server/src/symbolic/sym';
+import { arityOk } from '../../server/src/symbolic/evaluate';
 
 /** Text that is not a whitelisted mathjs expression. */
 export class SymParseError extends Error {

@@ -7,10 +7,10 @@
 // declared direction, `interpolateCrossing` for the spike time, the spike jumps.
 // Tests compare generated C, CUDA and NumPy code against this loop.
 // Invariants: never throws (problems come back in `errors` with no rows); values are SI.
-import type { ResolvedNeuron } from '../model/types';
-import { type Sym } from '../symbolic/sym';
-import { evaluate } from '../symbolic/evaluate';
-import { buildScheme, exactPropagator, exactStep, interpolateCrossing, ltiStructure, stepOnce } from '../step';
+import type { ResolvedNeuron } from '../../server/src/model/types';
+import { type Sym } from '../../server/src/symbolic/sym';
+import { evaluate } from '../../server/src/symbolic/evaluate';
+import { buildScheme, exactPropagator, exactStep, interpolateCrossing, ltiStructure, stepOnce } from '../../server/src/step';
 
 export interface DriverInput {
   steps: number;
