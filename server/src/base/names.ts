@@ -18,8 +18,10 @@ export const LV_PRE = 'lV_pre';
 export const LV_POST = 'lV_post';
 /** The guard's slope at a crossing (a display name; reserved). */
 export const GDOT = 'gdot';
-/** The time. */
+/** The time (the start of the step in step maps). */
 export const TIME = 't';
+/** The step length of a step map, x(t + dt) = F(x(t), params, t, dt). */
+export const STEP = 'dt';
 
 /** The per-spike inputs of the backward spike jump: each symbol and the plural a generated
  *  function takes one value per neuron of. */
@@ -32,7 +34,7 @@ const RESERVED_PREFIX = /^(lambda_|dlV_|dlp_)/;
 
 /** Whether a declared name would collide with a derived symbol. */
 export function isDerivedSymbolName(name: string): boolean {
-  return RESERVED_PREFIX.test(name) || [PHI, COUPLING, GDOT, LV_PRE, LV_POST, DLP_DT].includes(name);
+  return RESERVED_PREFIX.test(name) || [PHI, COUPLING, GDOT, LV_PRE, LV_POST, DLP_DT, STEP].includes(name);
 }
 
 /** Every name a derived expression of `states` may contain besides states, params, weight. */

@@ -36,10 +36,10 @@ export interface LowerContext {
   references: { range: A.Range; target: SymbolInfo }[];
 }
 
-const ARITY: Record<S.FnName, [number, number]> = {
+const ARITY: Record<S.UserFnName, [number, number]> = {
   exp: [1, 1], log: [1, 1], sqrt: [1, 1], tanh: [1, 1], sigmoid: [1, 1], abs: [1, 1], min: [2, 8], max: [2, 8], pow: [2, 2],
 };
-const NEEDS_DIMENSIONLESS = new Set<S.FnName>(['exp', 'log', 'tanh', 'sigmoid']);
+const NEEDS_DIMENSIONLESS = new Set<S.UserFnName>(['exp', 'log', 'tanh', 'sigmoid']);
 
 export function describe(dim: Dim | undefined, ctx: LowerContext): string {
   if (!dim) return 'unknown';
@@ -166,7 +166,7 @@ function lowerCall(e: A.CallExpr, scope: Scope, ctx: LowerContext): Lowered {
     for (const a of e.args) lower(a, scope, ctx);
     return {};
   }
-  const fnName = name as S.FnName;
+  const fnName = name as S.UserFnName;
   const args = e.args.map((a) => lower(a, scope, ctx));
   const [lo, hi] = ARITY[fnName];
   if (args.length < lo || args.length > hi) {

@@ -88,7 +88,7 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
     const name = m.name.name;
     if (isReservedName(name)) {
       ctx.diagnostics.push({ severity: 'error', code: 'reserved-name', range: m.name.range,
-        message: `'${name}' is reserved for ${(S.FUNCTION_NAMES as readonly string[]).includes(name) ? 'a built-in function' : 'the derived adjoint equations'}; choose another name` });
+        message: `'${name}' is reserved for ${(S.FUNCTION_NAMES as readonly string[]).includes(name) ? 'a built-in function' : name === 'dt' ? 'the step length of the derived step map' : 'the derived adjoint equations'}; choose another name` });
       continue;
     }
     const prior = table.get(name);

@@ -10,7 +10,7 @@
 import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
 import type { ResolvedNeuron, SymbolInfo, ParamInfo, StateInfo } from '../model/types';
-import { FUNCTION_NAMES, type FnName } from '../symbolic/sym';
+import { FUNCTION_NAMES, type UserFnName } from '../symbolic/sym';
 import { dimDiv, dimEqual, TIME, describeDim, formatDim, formatNumber, formatQuantity, isDimensionless, lookupUnitSymbol, parseUnit, type Dim } from '../units/index';
 import { declarationOf, neuronDeclAt, resolvedNeuron, symbolAt, tokenAt, tokenRange, commentAt } from './locate';
 import { exprText, type Inliner } from './exprText';
@@ -21,7 +21,7 @@ export type HoverTarget =
   | { kind: 'flow'; state: string; equation: A.FlowEq }
   | { kind: 'keyword'; word: string }
   | { kind: 'unit'; text: string }
-  | { kind: 'function'; name: FnName }
+  | { kind: 'function'; name: UserFnName }
   | { kind: 'number'; expr: A.NumberExpr };
 
 export interface HoverContext {
@@ -77,7 +77,7 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
   if (hit) return { target: { kind: 'symbol', symbol: hit.symbol, isDeclaration: hit.isDeclaration }, range: hit.range };
   if (tok && type === 'Identifier' && (FUNCTION_NAMES as readonly string[]).includes(tok.image)) {
     const next = a.parse.tokens[a.parse.tokens.indexOf(tok) + 1];
-    if (next?.tokenType.name === 'LParen') return { target: { kind: 'function', name: tok.image as FnName }, range: tokenRange(tok) };
+    if (next?.tokenType.name === 'LParen') return { target: { kind: 'function', name: tok.image as UserFnName }, range: tokenRange(tok) };
   }
   if (tok && type === 'NumberLiteral') {
     const e = numberAt(a, tok.startOffset);

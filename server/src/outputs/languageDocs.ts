@@ -3,7 +3,7 @@
 //
 // Invariant: every entry of KEYWORDS (syntax/tokens.ts) and of FUNCTION_NAMES
 // (symbolic/sym.ts) has an explanation here (checked by the tests).
-import type { FnName } from '../symbolic/sym';
+import type { UserFnName } from '../symbolic/sym';
 
 export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
   neuron: 'Declares a neuron model: its parameters, states, flow equations, at most one firing transition and what an incoming spike does. `neuron NAME "doc" { ... }`',
@@ -25,7 +25,7 @@ export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
 
 export interface FunctionDoc { signature: string; definition: string; units: string; smooth: boolean }
 
-export const FUNCTION_DOCS: Readonly<Record<FnName, FunctionDoc>> = {
+export const FUNCTION_DOCS: Readonly<Record<UserFnName, FunctionDoc>> = {
   exp: { signature: 'exp(x)', definition: 'exp(x) = e^x', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
   log: { signature: 'log(x)', definition: 'log(x) = ln x, the natural logarithm (x > 0)', units: 'x must be dimensionless; the result is dimensionless.', smooth: true },
   sqrt: { signature: 'sqrt(x)', definition: 'sqrt(x) = x^(1/2) (x ≥ 0)', units: 'The result has half the unit exponents of x.', smooth: true },
@@ -37,7 +37,7 @@ export const FUNCTION_DOCS: Readonly<Record<FnName, FunctionDoc>> = {
   pow: { signature: 'pow(x, y)', definition: 'pow(x, y) = x^y', units: 'y must be dimensionless, and a constant when x has a unit.', smooth: true },
 };
 
-export function functionMarkdown(name: FnName): string {
+export function functionMarkdown(name: UserFnName): string {
   const d = FUNCTION_DOCS[name];
   return ['```saltus', d.signature, '```', `**built-in function** — ${d.definition}`, '', d.units].join('\n');
 }

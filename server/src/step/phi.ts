@@ -1,19 +1,14 @@
 // The phi functions of exponential integrators (Hochbruck & Ostermann 2010, Acta Numerica
 // 19:209; from memory): phi1(z) = (e^z - 1)/z = sum_k z^k/(k+1)!, and its derivative
 // phi1'(z) = (e^z (z - 1) + 1)/z^2 = sum_{k>=1} k z^(k-1)/(k+1)!.
-// Accuracy: phi1 uses expm1 (no cancellation) and a 3-term series for |z| < 1e-5, where the
+// phi1 itself lives with the divided differences of exp (symbolic/expdd.ts), which generated
+// code and the step maps share. Accuracy: phi1 uses expm1 (no cancellation) and a 3-term series for |z| < 1e-5, where the
 // first omitted term z^3/24 is below 5e-17 relative; phi1' uses its power series for
 // |z| < 1 (terms fall below 1e-17 relative within 20 terms) and the closed form elsewhere,
 // where the cancellation in e^z (z - 1) + 1 loses at most one digit.
 // Invariants: total functions of a double (NaN in, NaN out; phi1(-Inf) = 0, phi1(+Inf) = Inf).
 
-export function phi1(z: number): number {
-  if (Number.isNaN(z)) return NaN;
-  if (z === -Infinity) return 0;
-  if (z === Infinity) return Infinity;
-  if (Math.abs(z) < 1e-5) return 1 + z / 2 + (z * z) / 6;
-  return Math.expm1(z) / z;
-}
+export { phi1 } from '../symbolic/expdd';
 
 const SERIES_TERMS = 25;
 

@@ -7,7 +7,7 @@
 //   exp' = exp(u) u', log' = u'/u, sqrt' = u'/(2 sqrt u), tanh' = (1 - tanh^2 u) u',
 //   sigmoid' = s (1 - s) u', abs' = u/|u| u' (undefined at u = 0),
 //   max(u,v)' = (u'+v')/2 + (u-v)(u'-v')/(2|u-v|), min likewise with a minus (undefined at
-//   u = v); n-ary min/max are read as nested binary ones.
+//   u = v); n-ary min/max are read as nested binary ones; expdd(x0..xm)' = sum_k expdd(x0..xm, xk) xk'.
 // The input is normalised first and the result is normalised (canonical, see normalise.ts;
 // a raw derivative over normalise's default budget of 200 000 nodes comes back un-normalised).
 // Invariants: pure; shared sub-trees are differentiated once per call (identity memo).
@@ -79,6 +79,8 @@ function powerRule(t: Sym, a: Sym, b: Sym, d: (t: Sym) => Sym): Sym {
 function functionRule(t: Sym, name: FnName, args: Sym[], d: (t: Sym) => Sym): Sym {
   if (name === 'pow') return args.length === 2 ? powerRule(t, args[0]!, args[1]!, d) : num(NaN);
   if (name === 'min' || name === 'max') return extremumRule(name, args, d);
+  // d e[x0..xm] = sum_k e[x0..xm, xk] d xk: differentiating by a node duplicates it (expdd.ts)
+  if (name === 'expdd') return add(...args.map((x) => mul(fn('expdd', ...args, x), d(x))));
   if (args.length !== 1) return num(NaN);
   const u = args[0]!, du = d(u);
   switch (name) {

@@ -78,6 +78,13 @@ function node(s: Sym, env: Env, c: Arithmetic): Bounded {
         case 'abs': return { value, bound: ba };
         case 'pow': return xs.length === 2 ? power(xs[0]!, xs[1]!, U) : { value, bound: NaN };
         case 'min': case 'max': return { value, bound: Math.max(0, ...xs.map((x) => x.bound)) };
+        case 'expdd': {
+          // first-order propagation: d e[x]/d xk = e[x, xk]; the algorithm's own rounding ~ a few ulps
+          const nodes = xs.map((x) => x.value);
+          let bound = 8 * U * v;
+          xs.forEach((x, k) => { bound += times(Math.abs(applyFunction('expdd', [...nodes, nodes[k]!])), x.bound); });
+          return { value, bound };
+        }
       }
     }
   }

@@ -9,6 +9,9 @@
 // that the environment (or name list) does not bind. `tryEvaluate` never throws.
 
 import type { FnName, Sym } from './sym';
+import { expdd } from './expdd';
+
+const expdd2 = (a: number, b: number): number => expdd([a, b]);
 
 /** Thrown by `evaluate` and `compile` for a symbol without a value; nothing else throws. */
 export class UnboundSymbolError extends Error {
@@ -23,9 +26,9 @@ export class UnboundSymbolError extends Error {
 export type Env = ReadonlyMap<string, number> | Readonly<Record<string, number>>;
 
 const sigmoid = (x: number): number => 1 / (1 + Math.exp(-x));
-const ARITY: Record<FnName, number> = { exp: 1, log: 1, sqrt: 1, tanh: 1, sigmoid: 1, abs: 1, pow: 2, min: -1, max: -1 };
+const ARITY: Record<FnName, number> = { exp: 1, log: 1, sqrt: 1, tanh: 1, sigmoid: 1, abs: 1, pow: 2, min: -1, max: -1, expdd: -1 };
 
-/** Whether a call of `name` with n arguments is well formed (min/max: n >= 1). */
+/** Whether a call of `name` with n arguments is well formed (min, max, expdd: n >= 1). */
 export function arityOk(name: FnName, n: number): boolean {
   const arity = ARITY[name];
   return arity >= 0 ? n === arity : n >= 1;
@@ -44,6 +47,7 @@ export function applyFunction(name: FnName, a: readonly number[]): number {
     case 'pow': return Math.pow(a[0]!, a[1]!);
     case 'min': return Math.min(...a);
     case 'max': return Math.max(...a);
+    case 'expdd': return expdd(a);
   }
 }
 
@@ -148,6 +152,10 @@ function build(s: Sym, index: ReadonlyMap<string, number>): Compiled {
         case 'pow': { const e = args[1]!; return (x) => Math.pow(a(x), e(x)); }
         case 'min': return fold(args, Infinity, Math.min);
         case 'max': return fold(args, -Infinity, Math.max);
+        case 'expdd': {
+          if (args.length === 2) { const b = args[1]!; return (x) => expdd2(a(x), b(x)); }
+          return (x) => expdd(args.map((g) => g(x)));
+        }
       }
     }
   }

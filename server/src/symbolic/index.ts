@@ -7,3 +7,4 @@ export * from './derivative';
 export * from './evaluate';
 export * from './errorBound';
 export * from './print';
+export { expdd, phi1 } from './expdd';

@@ -83,6 +83,12 @@ export function toLatex(s: Sym, names?: (name: string) => string | undefined): s
       case 'abs': return { t: `\\left|${a[0] ?? ''}\\right|`, p: ATOM };
       case 'sigmoid': return { t: `\\operatorname{sigmoid}${paren(a.join(', '))}`, p: ATOM };
       case 'pow': return args.length === 2 ? power(args[0]!, args[1]!) : { t: `\\operatorname{pow}${paren(a.join(', '))}`, p: ATOM };
+      case 'expdd': {
+        // phi1(z) for e[z, 0]; otherwise the divided-difference notation exp[x0, ..., xm]
+        const zero = args.findIndex((x) => x.k === 'num' && x.v === 0);
+        if (args.length === 2 && zero >= 0) return { t: `\\varphi_1${paren(a[1 - zero]!)}`, p: ATOM };
+        return { t: `\\exp[${a.join(', ')}]`, p: ATOM };
+      }
       default: return { t: `\\${name}${paren(a.join(', '))}`, p: ATOM };
     }
   };

@@ -201,6 +201,15 @@ function buildFn(name: FnName, args: Sym[]): Sym {
   if (!arityOk(name, args.length)) return mark({ k: 'fn', name, args });
   if (name === 'pow') return buildPow(args[0]!, args[1]!);
   if (name === 'min' || name === 'max') return buildExtremum(name, args);
+  if (name === 'expdd') {
+    if (args.length === 1) return buildFn('exp', args);
+    if (args.every((x) => x.k === 'num')) {
+      const v = applyFunction(name, args.map((x) => (x as { v: number }).v));
+      if (Number.isFinite(v)) return mkNum(v);
+    }
+    // symmetric: a canonical argument order makes equal calls equal
+    return mark({ k: 'fn', name, args: [...args].sort((x, y) => (key(x) < key(y) ? -1 : key(x) > key(y) ? 1 : 0)) });
+  }
   const a = args[0]!;
   if (a.k === 'num') {
     const v = applyFunction(name, [a.v]);

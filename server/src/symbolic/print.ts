@@ -25,7 +25,7 @@ interface Dialect {
   number(v: number): string;
   symbol(name: string): string;
   power(base: Printed, exp: Printed, rawExp: Sym): Printed;
-  call(name: FnName, args: Printed[]): Printed;
+  call(name: FnName, args: Printed[], raw: readonly Sym[]): Printed;
   /** How a number literal prints where it is a power's base or a divisor that may be 0
    *  (Python needs NumPy floats there: `(-2) ** 0.5` is complex, `1 / 0` raises). */
   operand?(literal: Printed): Printed;
@@ -46,7 +46,7 @@ function printer(d: Dialect): (s: Sym) => string {
       case 'fn':
         if (!arityOk(s.name, s.args.length)) return { t: d.number(NaN), p: ATOM };
         if (s.args.length === 1 && (s.name === 'min' || s.name === 'max')) return p(s.args[0]!);
-        return d.call(s.name, s.args.map(p));
+        return d.call(s.name, s.args.map(p), s.args);
     }
   };
   const operand = (s: Sym): Printed => (s.k === 'num' && d.operand ? d.operand(p(s)) : p(s));
@@ -96,7 +96,7 @@ const mathjsDialect: Dialect = {
   number: plainNumber,
   symbol: (n) => n,
   power: (b, e) => ({ t: `${wrap(b, ATOM)}^${wrap(e, ATOM)}`, p: POWER }),
-  call: (name, args) => callList(name, args),
+  call: (name, args, raw) => (name === 'expdd' ? expddCall({ phi1: 'phi1', expdd: () => 'expdd' }, raw, args) : callList(name, args)),
 };
 
 /** Text that mathjs `parse` reads and evaluates to the same value (provide `sigmoid`). */
@@ -104,9 +104,23 @@ export const toMathjs: (s: Sym) => string = printer(mathjsDialect);
 /** The same as toMathjs: the plain-text form used in messages and the JSON contract. */
 export const toPlain = toMathjs;
 
+/** How a target spells the internal divided difference of exp (symbolic/expdd.ts): phi1(z)
+ *  for e[z, 0], and a helper taking m + 1 nodes otherwise. */
+export interface ExpddNames { phi1: string; expdd: (nodes: number) => string }
+
+const isLiteralZero = (s: Sym | undefined): boolean => s !== undefined && s.k === 'num' && s.v === 0;
+/** expdd(z, 0) prints as phi1(z): the arguments to print, the zero node dropped. */
+function expddCall(names: ExpddNames, raw: readonly Sym[], args: Printed[]): Printed {
+  const zero = raw.findIndex(isLiteralZero);
+  if (raw.length === 2 && zero >= 0) return callList(names.phi1, [args[1 - zero]!]);
+  return callList(names.expdd(raw.length), args);
+}
+
 export interface COptions {
   /** Single precision: float literals (`1.0f`) and the `f` functions (`expf`). */
   float?: boolean;
+  /** Helper names for the divided differences of exp (default saltus_phi1, saltus_expdd<n>). */
+  expdd?: ExpddNames;
   /** How a symbol prints (e.g. `x[3]`); default: the name, with `_` added to C keywords. */
   name?: (name: string) => string;
 }
@@ -134,9 +148,10 @@ export function toC(s: Sym, opts: COptions = {}): string {
       }
       return callList('pow' + f, [b, e]);
     },
-    call: (name, args) => {
+    call: (name, args, raw) => {
       if (name === 'sigmoid') return { t: `(${lit(1)} / (${lit(1)} + exp${f}(${minusArg(args[0]!)})))`, p: ATOM };
       if (name === 'min' || name === 'max') return nested(names[name] + f, args);
+      if (name === 'expdd') return expddCall(opts.expdd ?? { phi1: 'saltus_phi1', expdd: (n) => `saltus_expdd${n}` }, raw, args);
       return callList(names[name] + f, args);
     },
   };
@@ -148,6 +163,8 @@ export interface PythonOptions {
   module?: string;
   /** How a symbol prints (e.g. `x[3]`); default: the name, with `_` added to Python keywords. */
   name?: (name: string) => string;
+  /** Helper names for the divided differences of exp (default _phi1, _expdd). */
+  expdd?: ExpddNames;
 }
 
 const PY_KEYWORDS = new Set(('False None True and as assert async await break class continue def del elif else except ' +
@@ -162,9 +179,10 @@ export function toPython(s: Sym, opts: PythonOptions = {}): string {
     symbol: opts.name ?? ((n) => (PY_KEYWORDS.has(n) ? n + '_' : n)),
     power: (b, e) => ({ t: `${wrap(b, ATOM)} ** ${wrap(e, ATOM)}`, p: POWER }),
     operand: (literal) => ({ t: `${np}.float64(${literal.t})`, p: ATOM }),
-    call: (name, args) => {
+    call: (name, args, raw) => {
       if (name === 'sigmoid') return { t: `(1 / (1 + ${np}.exp(${minusArg(args[0]!)})))`, p: ATOM };
       if (name === 'min' || name === 'max') return nested(`${np}.${names[name]}`, args);
+      if (name === 'expdd') return expddCall(opts.expdd ?? { phi1: '_phi1', expdd: () => '_expdd' }, raw, args);
       return callList(`${np}.${names[name]}`, args);
     },
   };

@@ -8,8 +8,15 @@
 //
 // Architecture invariant: Sym values are never mutated after construction.
 
-export type FnName = 'exp' | 'log' | 'sqrt' | 'tanh' | 'sigmoid' | 'abs' | 'min' | 'max' | 'pow';
-export const FUNCTION_NAMES: readonly FnName[] = ['exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'abs', 'min', 'max', 'pow'];
+/** The functions a model may call (docs/language.md). */
+export type UserFnName = 'exp' | 'log' | 'sqrt' | 'tanh' | 'sigmoid' | 'abs' | 'min' | 'max' | 'pow';
+export const FUNCTION_NAMES: readonly UserFnName[] = ['exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'abs', 'min', 'max', 'pow'];
+/**
+ * Every function of a Sym: the user's, plus the internal `expdd(x0, ..., xm)`, the divided
+ * difference of exp at its arguments (expdd.ts): expdd(z, 0) = phi1(z), and the exact step maps
+ * are written with it. Derived expressions may contain it; model text never does.
+ */
+export type FnName = UserFnName | 'expdd';
 /** Functions whose derivative is undefined somewhere (kinks). */
 export const NON_SMOOTH: readonly FnName[] = ['abs', 'min', 'max'];
 
@@ -32,6 +39,9 @@ export const neg = (a: Sym): Sym => mul(num(-1), a);
 export const sub = (a: Sym, b: Sym): Sym => add(a, neg(b));
 export const div = (a: Sym, b: Sym): Sym => mul(a, pow(b, num(-1)));
 export const fn = (name: FnName, ...args: Sym[]): Sym => ({ k: 'fn', name, args });
+
+/** phi1(z) = (e^z - 1)/z as a Sym: the divided difference e[z, 0]. */
+export const phi1Sym = (z: Sym): Sym => fn('expdd', z, ZERO);
 
 export const isNum = (s: Sym, v?: number): s is { k: 'num'; v: number } => s.k === 'num' && (v === undefined || s.v === v);
 

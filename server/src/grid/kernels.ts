@@ -1,0 +1,62 @@
+// The grid derivation of one model compiled to closures (symbolic/evaluate.ts `compile`,
+// never eval) over one values vector per neuron:
+//   [states..., params..., t, dt, weight]
+// The grid simulator fills the vector and calls the closures; generated code prints the same
+// Syms. Invariant: every closure reads only that layout.
+import { type Compiled, compile } from '../symbolic/evaluate';
+import type { Sym } from '../symbolic/sym';
+import type { GridDerivation } from './derive';
+import type { Direction } from '../syntax/ast';
+
+export interface JumpKernels { J: Compiled[]; Jx: Compiled[][]; Jt: Compiled[]; Jp: Compiled[][]; Jw?: Compiled[] }
+
+export interface Kernels {
+  d: GridDerivation;
+  /** Number of states, of params; slot indices of t, dt and the weight in the values vector. */
+  S: number; P: number; T: number; H: number; W: number;
+  size: number;
+  F: Compiled[]; Fx: Compiled[][]; Fh: Compiled[]; Ft: Compiled[]; Fp: Compiled[][]; flow: Compiled[];
+  guard?: { direction: Direction; g: Compiled; gx: Compiled[]; gt: Compiled; gp: Compiled[] };
+  spike?: JumpKernels;
+  incoming?: JumpKernels;
+  /** Indices (into params) of the parameters with a gradient. */
+  gradIndex: number[];
+}
+
+export function compileKernels(d: GridDerivation): Kernels {
+  const weight = d.incoming[0]?.weight ?? '__no_weight__';
+  const names = [...d.states, ...d.params, 't', 'dt', weight];
+  const c = (s: Sym): Compiled => compile(s, names);
+  const cm = (m: Sym[][]): Compiled[][] => m.map((row) => row.map(c));
+  const S = d.states.length, P = d.params.length;
+  const jump = (j: { J: Sym[]; Jx: Sym[][]; Jt: Sym[]; Jp: Sym[][]; Jw?: Sym[] }): JumpKernels =>
+    ({ J: j.J.map(c), Jx: cm(j.Jx), Jt: j.Jt.map(c), Jp: cm(j.Jp), ...(j.Jw ? { Jw: j.Jw.map(c) } : {}) });
+  return {
+    d, S, P, T: S + P, H: S + P + 1, W: S + P + 2, size: S + P + 3,
+    F: d.map.F.map(c), Fx: cm(d.map.Fx), Fh: d.map.Fh.map(c), Ft: d.map.Ft.map(c), Fp: cm(d.map.Fp), flow: d.map.flow.map(c),
+    ...(d.guard ? { guard: { direction: d.guard.direction, g: c(d.guard.g), gx: d.guard.gx.map(c), gt: c(d.guard.gt), gp: d.guard.gp.map(c) } } : {}),
+    ...(d.spike ? { spike: jump(d.spike) } : {}),
+    ...(d.incoming[0] ? { incoming: jump(d.incoming[0]) } : {}),
+    gradIndex: d.gradParams.map((p) => d.params.indexOf(p)),
+  };
+}
+
+/** A values vector with the parameters filled in. */
+export function valuesFor(k: Kernels, params: Float64Array): Float64Array {
+  const v = new Float64Array(k.size);
+  v.set(params, k.S);
+  return v;
+}
+
+/** Loads a state (from `x` at `off`), the time and dt into a values vector. */
+export function load(k: Kernels, v: Float64Array, x: ArrayLike<number>, off: number, t: number, dt = 0, w = 0): Float64Array {
+  for (let i = 0; i < k.S; i++) v[i] = x[off + i]!;
+  v[k.T] = t; v[k.H] = dt; v[k.W] = w;
+  return v;
+}
+
+/** Crossing test of the grid: up g0 < 0 <= g1, down g0 > 0 >= g1, either one of them. */
+export function crossed(direction: Direction, g0: number, g1: number): boolean {
+  const up = g0 < 0 && g1 >= 0, down = g0 > 0 && g1 <= 0;
+  return direction === 'up' ? up : direction === 'down' ? down : up || down;
+}
