@@ -68,17 +68,17 @@ function backwardTrial(net: Network, tr: TrialRun, b: number, gW: number[][][],
   const dl = (n: number, X: number): number => (loss.kind === 'state-integral' ? X - loss.target[n]! : tr.lossCoef[n]!);
   const l = (n: number, X: number): number => (loss.kind === 'state-integral' ? 0.5 * (X - loss.target[n]!) ** 2 : tr.lossCoef[n]! * X);
 
-  /** dL/d(end time) of segment `seg` given lambda at its end: lambda . F_h plus the loss quadrature's. */
+  /** dL/d(end time) of segment `seg` given lambda at its end: lambda . dG/dh plus the loss quadrature's. */
   const endSensitivity = (B: Back, n: number, seg: Segment, lamEnd: ArrayLike<number>): number => {
-    const k = B.k, v = B.v, h = seg.b - seg.a;
-    load(k, v, seg.xa, 0, seg.a, h);
-    let s = 0;
-    for (let i = 0; i < B.S; i++) s += lamEnd[i]! * k.Fh[i]!(v);
+    const h = seg.b - seg.a, S = B.S;
+    const scratch = new Float64Array(S);
+    let s = B.run.map.vjp(seg.xa, seg.a, h, lamEnd, scratch, null).dh;
     if (integral && B.run.index === lossPopIndex && h > 0) {
+      const y = new Float64Array(S), rate = new Float64Array(S);
       for (let q = 0; q < 3; q++) {
-        load(k, v, seg.xa, 0, seg.a, GAUSS_NODES[q]! * h);
-        const X = k.F[lossState]!(v);
-        s += GAUSS_WEIGHTS[q]! * (l(n, X) + h * GAUSS_NODES[q]! * dl(n, X) * k.Fh[lossState]!(v));
+        B.run.map.applyWithRate(seg.xa, 0, seg.a, GAUSS_NODES[q]! * h, y, rate);
+        const X = y[lossState]!;
+        s += GAUSS_WEIGHTS[q]! * (l(n, X) + h * GAUSS_NODES[q]! * dl(n, X) * rate[lossState]!);
       }
     }
     return s;
@@ -87,30 +87,26 @@ function backwardTrial(net: Network, tr: TrialRun, b: number, gW: number[][][],
   /** Back across neuron n's segment at ptr: lambda(b-) -> lambda(a+), parameter gradients, the start-time term. */
   const segmentBack = (B: Back, n: number): void => {
     const seg = B.run.segments[n]![B.ptr[n]!]!;
-    const k = B.k, v = B.v, S = B.S, o = n * S, h = seg.b - seg.a;
+    const S = B.S, o = n * S, h = seg.b - seg.a, map = B.run.map;
     if (B.argmax && seg.endEvent < 0 && seg.endGrid === B.argmax[n]) B.lam[o + lossState]! += tr.lossCoef[n]!;
     const lamEnd = B.lam.slice(o, o + S);
-    load(k, v, seg.xa, 0, seg.a, h);
-    let startT = 0;
-    for (let j = 0; j < S; j++) {
-      let acc = 0;
-      for (let i = 0; i < S; i++) acc += k.Fx[i]![j]!(v) * lamEnd[i]!;
-      B.lam[o + j] = acc;
-    }
-    for (let q = 0; q < B.grad.length; q++) for (let i = 0; i < S; i++) B.grad[q]! += lamEnd[i]! * k.Fp[i]![q]!(v);
-    for (let i = 0; i < S; i++) startT += lamEnd[i]! * (k.Ft[i]!(v) - k.Fh[i]!(v));
+    const lamStart = new Float64Array(S);
+    const r = map.vjp(seg.xa, seg.a, h, lamEnd, lamStart, B.grad);
+    let startT = r.da - r.dh;
     if (integral && B.run.index === lossPopIndex && h > 0) {
+      const src = new Float64Array(S), back = new Float64Array(S), y = new Float64Array(S);
       for (let qn = 0; qn < 3; qn++) {
         const u = GAUSS_NODES[qn]! * h, w = GAUSS_WEIGHTS[qn]!;
-        load(k, v, seg.xa, 0, seg.a, u);
-        const X = k.F[lossState]!(v);
-        const c = h * w * dl(n, X);
-        for (let j = 0; j < S; j++) B.lam[o + j]! += c * k.Fx[lossState]![j]!(v);
-        for (let q = 0; q < B.grad.length; q++) B.grad[q]! += c * k.Fp[lossState]![q]!(v);
+        const X = map.apply(seg.xa, 0, seg.a, u, y)[lossState]!;
+        src.fill(0);
+        src[lossState] = h * w * dl(n, X);
+        const q = map.vjp(seg.xa, seg.a, u, src, back, B.grad);
+        for (let j = 0; j < S; j++) lamStart[j]! += back[j]!;
         // moving the start with the end held: the nodes move by (1 - c_q) and the length shrinks
-        startT += c * (k.Ft[lossState]!(v) - GAUSS_NODES[qn]! * k.Fh[lossState]!(v)) - w * l(n, X);
+        startT += q.da - GAUSS_NODES[qn]! * q.dh - w * l(n, X);
       }
     }
+    B.lam.set(lamStart, o);
     if (seg.startEvent >= 0) T[seg.startEvent]! += startT;
     B.ptr[n]!--;
   };
@@ -170,9 +166,9 @@ function backwardTrial(net: Network, tr: TrialRun, b: number, gW: number[][][],
       if (opts.spikeTimeGrad) T[e]! += opts.spikeTimeGrad(b, e);
       eventTimes.push({ trial: b, kind: 'spike', time: E.time, pop: B.run.name, index: n, dLdt: T[e]! });
       const D = T[e]! + endSensitivity(B, n, seg, mu);
-      // the slope of the guard along the map at the crossing (g_x . F_h + g_t)
-      load(k, v, seg.xa, 0, seg.a, seg.b - seg.a);
-      const Fh = k.Fh.map((f) => f(v));
+      // the slope of the guard along the map at the crossing (g_x . dG/dh + g_t)
+      const Fh = new Float64Array(S);
+      B.run.map.applyWithRate(seg.xa, 0, seg.a, seg.b - seg.a, new Float64Array(S), Fh);
       load(k, v, E.xPre, 0, E.time);
       const G = k.guard!;
       let gdot = G.gt(v);

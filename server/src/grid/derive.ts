@@ -11,7 +11,9 @@
 // cached by the model's content hash.
 import type { ResolvedNeuron } from '../model/types';
 import { modelHash } from '../model/hash';
-import { type Sym, dependsOn, freeSymbols, sym } from '../symbolic/sym';
+import { type Sym, freeSymbols, sym } from '../symbolic/sym';
+import { type Assignment, dependsThrough } from '../symbolic/program';
+import { mapDerivatives } from '../step/mapDerivatives';
 import { derivative } from '../symbolic/derivative';
 import { normalise } from '../symbolic/normalise';
 import { STEP, TIME } from '../base/names';
@@ -19,6 +21,8 @@ import { stepMapFor } from '../step/map';
 import type { Direction } from '../syntax/ast';
 
 export interface MapPieces {
+  /** Stage and tangent assignments (symbolic/program.ts) the Syms below read, in evaluation order. */
+  assigns: Assignment[];
   /** F_i: x_i at the end of a segment of length dt started at t. */
   F: Sym[];
   /** Fx[i][j] = dF_i/dx_j */
@@ -91,7 +95,7 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
   const states = neuron.states.map((s) => s.name);
   const params = neuron.params.map((p) => p.name);
   const gradParams = neuron.params.filter((p) => p.trainable).map((p) => p.name);
-  const empty: MapPieces = { F: [], Fx: [], Fh: [], Ft: [], Fp: [], flow: [] };
+  const empty: MapPieces = { assigns: [], F: [], Fx: [], Fh: [], Ft: [], Fp: [], flow: [] };
   const base: GridDerivation = { name: neuron.name, hash: modelHash(neuron), states, params, gradParams, exact: false, mapReason: '',
     map: empty, guard: null, spike: null, incoming: [], segmentStates: [], problems: [] };
   if (!neuron.wellFormed) return { ...base, problems: [`${neuron.name} has errors; fix them first (saltus check)`] };
@@ -100,12 +104,9 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
     if (m.problems.length) return { ...base, problems: m.problems };
     const d = (s: Sym, x: string): Sym => derivative(s, x);
     const F = m.next;
+    const md = mapDerivatives(m, gradParams);
     const map: MapPieces = {
-      F,
-      Fx: F.map((f) => states.map((x) => d(f, x))),
-      Fh: F.map((f) => d(f, STEP)),
-      Ft: F.map((f) => d(f, TIME)),
-      Fp: F.map((f) => gradParams.map((p) => d(f, p))),
+      assigns: md.assigns, F, Fx: md.Fx, Fh: md.Fh, Ft: md.Ft, Fp: md.Fp,
       flow: states.map((x) => normalise(neuron.flows.get(x) ?? { k: 'num', v: 0 })),
     };
     const jumpPieces = (jumps: ReadonlyMap<string, Sym>, weight?: string): JumpPieces => {
@@ -129,9 +130,9 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
     // the backward pass evaluates Fx and Fp at each segment's start state, and Fh, Ft there
     // too unless the map is exact (then dF/d dt = f at the recorded event states, dF/dt = 0)
     const needs = [...map.Fx.flat(), ...map.Fp.flat(), ...(m.exact ? [] : [...map.Fh, ...map.Ft])];
-    const segmentStates = states.filter((x) => needs.some((s) => dependsOn(s, x)));
+    const segmentStates = states.filter((x) => needs.some((s) => dependsThrough(map.assigns, s, x)));
     const problems: string[] = [];
-    const known = new Set([...states, ...params, TIME, STEP, ...incoming.map((i) => i.weight)]);
+    const known = new Set([...states, ...params, TIME, STEP, ...incoming.map((i) => i.weight), ...map.assigns.map((a) => a.name)]);
     for (const s of [...F, g0(guard), ...(spike?.J ?? []), ...incoming.flatMap((i) => i.J)]) {
       for (const x of freeSymbols(s)) if (!known.has(x)) problems.push(`'${x}' has no value`);
     }

@@ -14,6 +14,8 @@
 // map is evaluated only through the compiled derivation (kernels.ts).
 import { gridDerivationFor } from './derive';
 import { type Kernels, compileKernels, crossed, load, valuesFor } from './kernels';
+import { SegmentMap } from './segment';
+import { substepsFor } from '../step/substeps';
 import { type ModelPopulation, type Network, initialVector, paramVector, validateNetwork } from './network';
 
 export const GAUSS_NODES = [0.5 - Math.sqrt(15) / 10, 0.5, 0.5 + Math.sqrt(15) / 10] as const;
@@ -44,6 +46,9 @@ export interface PopRun {
   index: number;
   name: string;
   kernels: Kernels;
+  /** Sub-steps of the map per segment (step/substeps.ts) and the segment map built on them. */
+  substeps: number;
+  map: SegmentMap;
   params: Float64Array;
   /** segments[n]: neuron n's segments in time order. */
   segments: Segment[][];
@@ -177,7 +182,8 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const x = new Float64Array(p.size * S);
     const init = initialVector(p);
     for (let n = 0; n < p.size; n++) x.set(init, n * S);
-    const run: PopRun = { index: i, name: p.name, kernels: k, params, segments: Array.from({ length: p.size }, () => []), final: x };
+    const substeps = substepsFor(p.model, dt);
+    const run: PopRun = { index: i, name: p.name, kernels: k, substeps, map: new SegmentMap(k, substeps, params), params, segments: Array.from({ length: p.size }, () => []), final: x };
     if (i === lossPopIndex && loss.kind === 'ce-max') run.gridValues = Array.from({ length: p.size }, () => new Float64Array(steps + 1));
     spikes[p.name] = [];
     const inbound = new Set<number>();
@@ -203,12 +209,11 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   /** Integrate the loss over neuron n's segment [a, a + h] (loss population only). */
   const integrate = (L: Live, n: number, a: number, h: number): void => {
     if (!L.lossPop || h <= 0 || !(loss.kind === 'state-integral' || loss.kind === 'ce-integral')) return;
-    const k = L.k, v = L.v;
     const o = open[L.run.index]![n]!;
+    const y = new Float64Array(L.S);
     let acc = 0;
     for (let q = 0; q < 3; q++) {
-      load(k, v, o.xa, 0, a, GAUSS_NODES[q]! * h);
-      const X = k.F[lossState]!(v);
+      const X = L.run.map.apply(o.xa, 0, a, GAUSS_NODES[q]! * h, y)[lossState]!;
       acc += GAUSS_WEIGHTS[q]! * (loss.kind === 'state-integral' ? 0.5 * (X - loss.target[n]!) ** 2 : X);
     }
     if (loss.kind === 'state-integral') integralLoss += h * acc;
@@ -217,16 +222,11 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
 
   /** Advance neuron n of population i to time `to`, closing its open segment there. */
   const advance = (L: Live, n: number, to: number, endEvent: number, endGrid: number): void => {
-    const i = L.run.index, S = L.S, k = L.k, v = L.v;
+    const i = L.run.index, S = L.S;
     const a = L.tau[n]!;
     const h = to - a;
     const o = open[i]![n]!;
-    if (h > 0) {
-      load(k, v, L.x, n * S, a, h);
-      const y = new Float64Array(S);
-      for (let s = 0; s < S; s++) y[s] = k.F[s]!(v);
-      L.x.set(y, n * S);
-    }
+    if (h > 0) L.x.set(L.run.map.apply(L.x, n * S, a, h, new Float64Array(S)), n * S);
     integrate(L, n, a, Math.max(h, 0));
     L.run.segments[n]!.push({ a: o.a, b: to, xa: o.xa, startEvent: o.startEvent, endEvent, endGrid });
     L.tau[n] = to;
@@ -244,20 +244,28 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const a = L.tau[n]!, h = e - a;
     if (!(h > 0)) return Infinity;
     const g0 = guardNow(L, n);
-    const y = new Float64Array(S), fh = new Float64Array(S), w = new Float64Array(k.size);
-    // the guard along the map's continuous extension x(u) = F(x, u), u in [0, h], and its slope
+    const y = new Float64Array(S), fh = new Float64Array(S), w = v;
+    // the guard along the map's continuous extension x(u) = G(x, a, u), u in [0, h], and its slope
     const at = (u: number): { g: number; dg: number } => {
-      load(k, v, L.x, n * S, a, u);
-      for (let s = 0; s < S; s++) { y[s] = k.F[s]!(v); fh[s] = k.Fh[s]!(v); }
-      w.set(v);
+      L.run.map.applyWithRate(L.x, n * S, a, u, y, fh);
       load(k, w, y, 0, a + u);
       let dg = G.gt(w);
       for (let s = 0; s < S; s++) dg += G.gx[s]!(w) * fh[s]!;
       return { g: G.g(w), dg };
     };
     const g1 = at(h).g;
-    if (!crossed(G.direction, g0, g1)) return Infinity;
-    return a + locate(at, g0, g1, h);
+    if (Number.isFinite(g1)) return crossed(G.direction, g0, g1) ? a + locate(at, g0, g1, h) : Infinity;
+    // the flow blows up before the end of the segment (AdEx, Izhikevich past their threshold):
+    // bisect for a finite point on the fired side, then locate the crossing before it
+    let lo = 0, hi = h;
+    for (let it = 0; it < 80; it++) {
+      const mid = 0.5 * (lo + hi);
+      const gm = at(mid).g;
+      if (!Number.isFinite(gm)) hi = mid;
+      else if (crossed(G.direction, g0, gm)) return a + locate(at, g0, gm, mid);
+      else lo = mid;
+    }
+    return Infinity;
   };
 
   const pops = live.filter((L): L is Live => L !== null);

@@ -5,6 +5,7 @@
 // Syms. Invariant: every closure reads only that layout.
 import { type Compiled, compile } from '../symbolic/evaluate';
 import type { Sym } from '../symbolic/sym';
+import { compileAssigns, needed } from '../symbolic/program';
 import type { GridDerivation } from './derive';
 import type { Direction } from '../syntax/ast';
 
@@ -12,6 +13,10 @@ export interface JumpKernels { J: Compiled[]; Jx: Compiled[][]; Jt: Compiled[]; 
 
 export interface Kernels {
   d: GridDerivation;
+  /** Evaluate the assignments F needs / F and F_h need / every derivative needs into a values vector. */
+  stages: (v: Float64Array) => void;
+  stagesFh: (v: Float64Array) => void;
+  stagesAll: (v: Float64Array) => void;
   /** Number of states, of params; slot indices of t, dt and the weight in the values vector. */
   S: number; P: number; T: number; H: number; W: number;
   size: number;
@@ -25,14 +30,17 @@ export interface Kernels {
 
 export function compileKernels(d: GridDerivation): Kernels {
   const weight = d.incoming[0]?.weight ?? '__no_weight__';
-  const names = [...d.states, ...d.params, 't', 'dt', weight];
+  const names = [...d.states, ...d.params, 't', 'dt', weight, ...d.map.assigns.map((a) => a.name)];
   const c = (s: Sym): Compiled => compile(s, names);
   const cm = (m: Sym[][]): Compiled[][] => m.map((row) => row.map(c));
   const S = d.states.length, P = d.params.length;
   const jump = (j: { J: Sym[]; Jx: Sym[][]; Jt: Sym[]; Jp: Sym[][]; Jw?: Sym[] }): JumpKernels =>
     ({ J: j.J.map(c), Jx: cm(j.Jx), Jt: j.Jt.map(c), Jp: cm(j.Jp), ...(j.Jw ? { Jw: j.Jw.map(c) } : {}) });
+  const A = d.map.assigns;
   return {
-    d, S, P, T: S + P, H: S + P + 1, W: S + P + 2, size: S + P + 3,
+    d, stages: compileAssigns(needed(A, d.map.F), names), stagesFh: compileAssigns(needed(A, [...d.map.F, ...d.map.Fh]), names),
+    stagesAll: compileAssigns(A, names),
+    S, P, T: S + P, H: S + P + 1, W: S + P + 2, size: names.length,
     F: d.map.F.map(c), Fx: cm(d.map.Fx), Fh: d.map.Fh.map(c), Ft: d.map.Ft.map(c), Fp: cm(d.map.Fp), flow: d.map.flow.map(c),
     ...(d.guard ? { guard: { direction: d.guard.direction, g: c(d.guard.g), gx: d.guard.gx.map(c), gt: c(d.guard.gt), gp: d.guard.gp.map(c) } } : {}),
     ...(d.spike ? { spike: jump(d.spike) } : {}),
@@ -48,7 +56,8 @@ export function valuesFor(k: Kernels, params: Float64Array): Float64Array {
   return v;
 }
 
-/** Loads a state (from `x` at `off`), the time and dt into a values vector. */
+/** Loads a state (from `x` at `off`), the time and dt into a values vector (then run a stages
+ *  function before evaluating map pieces). */
 export function load(k: Kernels, v: Float64Array, x: ArrayLike<number>, off: number, t: number, dt = 0, w = 0): Float64Array {
   for (let i = 0; i < k.S; i++) v[i] = x[off + i]!;
   v[k.T] = t; v[k.H] = dt; v[k.W] = w;

@@ -9,10 +9,12 @@
 //
 // Numerics (docs/step-map.md): shifted by the largest node c, e[x] = e^c e[x - c] with all
 // nodes <= 0; one node: exp; two nodes: e^c phi1(lo - c) with phi1 from expm1 (no
-// cancellation, equal nodes included); more nodes: entry (0, m) of exp(B) for the
-// bidiagonal matrix B = diag(y) + superdiagonal 1 (Opitz 1964), by a 24-term Taylor series
-// of B / 2^s with |y|/2^s <= 1/2, squared s times. Generated code implements the same
-// algorithm (codegen helpers), so every target agrees with this one to rounding.
+// cancellation, equal nodes included); more nodes: when they lie within 1 of each other, the
+// Taylor series around their mean (complete homogeneous polynomials, 24 terms); else the
+// defining recursion (e[..without lo] - e[..without hi]) / (hi - lo), whose divisor is then at
+// least 1 (up to 7 nodes), else the entry (0, m) of exp(B) for the bidiagonal matrix
+// B = diag(y) + superdiagonal 1 (Opitz 1964) by Taylor series and squaring. Generated code
+// implements the same algorithm (codegen helpers), so every target agrees with this one.
 // Invariants: symmetric in its arguments; NaN in, NaN out; never throws.
 
 export function phi1(z: number): number {
@@ -43,11 +45,70 @@ export function expdd(x: readonly number[]): number {
   for (const v of y) norm = Math.max(norm, -v);
   // a node at -Infinity: the divided difference has an infinite denominator and a finite numerator
   if (!Number.isFinite(norm)) return 0;
+  return ec * shifted(y, norm);
+}
+
+/** Largest node spread for the Taylor form; beyond it the recursion divides by at least this. */
+const TAYLOR_SPREAD = 1;
+
+/**
+ * e[y0..ym] for nodes y <= 0 with max |y| = norm: the Taylor form around their mean when the
+ * nodes are close (sum over j of h_j(y - mean) / (j + m)!, h_j the complete homogeneous
+ * symmetric polynomials), else the defining recursion on the two farthest nodes (whose
+ * difference is then at least TAYLOR_SPREAD), else for very spread, many nodes, the
+ * matrix form.
+ */
+function shifted(y: number[], norm: number): number {
+  const m = y.length - 1;
+  let lo = Infinity, hi = -Infinity;
+  for (const v of y) { if (v < lo) lo = v; if (v > hi) hi = v; }
+  if (hi - lo <= TAYLOR_SPREAD) {
+    const mean = y.reduce((s, v) => s + v, 0) / y.length;
+    return Math.exp(mean) * taylor(y.map((v) => v - mean));
+  }
+  if (m <= 6) {
+    // (e[y without lo] - e[y without hi]) / (hi - lo), computed on sub-multisets
+    const iLo = y.indexOf(lo), iHi = y.indexOf(hi);
+    const withoutLo = y.filter((_, i) => i !== iLo), withoutHi = y.filter((_, i) => i !== iHi);
+    return (sub(withoutLo) - sub(withoutHi)) / (hi - lo);
+  }
+  return matrixForm(y, norm);
+}
+
+/** e[y] for a sub-multiset of shifted nodes (values <= 0, arbitrary spread). */
+function sub(y: number[]): number {
+  if (y.length === 1) return Math.exp(y[0]!);
+  if (y.length === 2) { const a = Math.max(y[0]!, y[1]!), b = Math.min(y[0]!, y[1]!); return Math.exp(a) * phi1(b - a); }
+  let norm = 0;
+  for (const v of y) norm = Math.max(norm, Math.abs(v));
+  return shifted(y, norm);
+}
+
+/** sum_j h_j(d) / (j + m)! for centred nodes d (|d| <= 1): terms fall like 1/j!. */
+function taylor(d: number[]): number {
+  const m = d.length - 1;
+  // h[j] of the first k nodes, updated node by node: h_j(d0..dk) = h_j(d0..dk-1) + dk h_{j-1}(d0..dk)
+  const J = 24;
+  const h = new Array<number>(J + 1).fill(0);
+  h[0] = 1;
+  for (const v of d) for (let j = 1; j <= J; j++) h[j] = h[j]! + v * h[j - 1]!;
+  let fact = 1;
+  for (let k = 2; k <= m; k++) fact *= k; // m!
+  let sum = 0;
+  for (let j = 0; j <= J; j++) {
+    sum += h[j]! / fact;
+    fact *= j + m + 1;
+  }
+  return sum;
+}
+
+/** Entry (0, m) of exp of the bidiagonal matrix (Opitz 1964), by Taylor and squaring. */
+function matrixForm(y: number[], norm: number): number {
+  const m = y.length - 1;
   let s = 0;
   while (norm / 2 ** s > 0.5 && s < 1100) s++;
   const scale = 2 ** -s;
   const n = m + 1;
-  // T = exp(B scale) by Taylor: upper triangular, stored dense (n is small)
   const B = (i: number, j: number): number => (i === j ? y[i]! * scale : j === i + 1 ? scale : 0);
   let term = identity(n);
   let T = identity(n);
@@ -64,7 +125,7 @@ export function expdd(x: readonly number[]): number {
     for (let i = 0; i < n; i++) for (let j = i; j < n; j++) T[i]![j]! += term[i]![j]!;
   }
   for (let r = 0; r < s; r++) T = square(T);
-  return ec * T[0]![m]!;
+  return T[0]![m]!;
 }
 
 function identity(n: number): number[][] {
