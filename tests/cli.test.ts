@@ -13,7 +13,6 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { parseTimeOption } from '../server/src/cli/timeOption';
 import { excerpt } from '../server/src/cli/report/textReport';
 
 const root = resolve(__dirname, '..');
@@ -260,18 +259,27 @@ describe('text format', () => {
   });
 });
 
-describe('--timestep', () => {
-  it('reads a time with a unit into seconds', () => {
-    expect(parseTimeOption('0.05 [ms]')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('0.05ms')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('50 [us]')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('1e-4 s')).toEqual({ ok: true, seconds: expect.closeTo(1e-4, 15) });
-    for (const bad of ['2 [mV]', '0 ms', '-1ms', 'ms', '0.1', '1 [ms'] ) expect(parseTimeOption(bad).ok, bad).toBe(false);
-  });
-
+describe('--timestep (alias --dt)', () => {
+  // The spellings and messages of the time itself: tests/units-time.test.ts (units/time.ts).
   it('is accepted by check', () => {
     const r = run(['check', '--timestep', '0.05ms', write('good.saltus', GOOD)]);
     expect(r.code).toBe(0);
+  });
+
+  it('is one option in every command that takes a dt, with --dt as its documented alias', () => {
+    for (const command of ['step', 'check', 'generate']) {
+      const help = run(['help', command]).stdout;
+      expect(help, command).toMatch(/^ {2}--timestep TIME {2}\S/m);
+      expect(help, command).toMatch(/^ {2}--dt TIME {8}an alias of --timestep$/m);
+      expect(help.split('Options:')[0], command).toContain('[--timestep TIME]'); // in the usage lines
+    }
+    write('good.saltus', GOOD);
+    const both = run(['check', '--dt', '1ms', '--timestep', '1ms', 'good.saltus']);
+    expect(both.code).toBe(2);
+    expect(both.stderr).toMatch(/give the dt once: --dt is another name for --timestep/);
+    const bad = run(['check', '--dt', '0.1', 'good.saltus']);
+    expect(bad.code).toBe(2);
+    expect(bad.stderr).toMatch(/^saltus check: --dt: '0\.1' has no unit/);
   });
 });
 
