@@ -14,6 +14,7 @@ import { join, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { excerpt } from '../server/src/cli/report/textReport';
+import { DiagnosticCodes } from '../server/src/base/diagnostic';
 
 const root = resolve(__dirname, '..');
 const cli = join(root, 'dist/cli.js');
@@ -43,7 +44,8 @@ function expectNoStack(stderr: string) {
   expect(stderr).not.toMatch(/\b[A-Z][a-zA-Z]*Error:/);
 }
 
-// The first example of LANGUAGE.md (our language contract), verbatim: a valid model.
+// A valid model: the LIF with a current synapse of docs/language.md's first example
+// (Wunderlich & Pehle 2021, Table 1), with a self-projection.
 const GOOD = `# LIF with an exponential current synapse.
 timestep 0.1 [ms]
 
@@ -146,7 +148,7 @@ describe('--format json', () => {
       for (const d of f.diagnostics) {
         expect(Object.keys(d).sort()).toEqual(['code', 'message', 'range', 'severity']);
         expect(['error', 'warning', 'info']).toContain(d.severity);
-        expect(typeof d.code).toBe('string');
+        expect(DiagnosticCodes).toContain(d.code); // one of the stable codes (base/diagnostic.ts)
         expect(d.message.length).toBeGreaterThan(0);
         for (const p of [d.range.start, d.range.end]) {
           expect(Object.keys(p).sort()).toEqual(['character', 'line']);

@@ -147,24 +147,18 @@ describe('language server over stdio', () => {
     const actions = await client.conn.sendRequest('textDocument/codeAction', { textDocument: { uri }, range: err.range, context: { diagnostics: [err] } }) as CodeAction[];
     expect(actions[0]!.title).toBe("Change to 'tau_s'");
     expect(actions[0]!.edit!.changes![uri]).toEqual([{ range: err.range, newText: 'tau_s' }]);
-    const t0 = performance.now();
+    // The edit -> diagnostics latency is measured by `npm run bench` (bench/latency.mjs, P1, goal
+    // p95 < 20 ms); here each round trip has only the 10 s hang guard of diagnosticsFor.
     void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: 2 }, contentChanges: [{ range: err.range, text: 'tau_s' }] });
     const d2 = await client.diagnosticsFor(uri, 2);
-    const latency = performance.now() - t0;
     expect(d2.diagnostics).toEqual([]);
-    // Ten more round trips, alternating broken and fixed text, for a steadier figure.
-    const times: number[] = [];
+    // Ten more round trips, alternating broken and fixed text.
     for (let v = 3; v <= 12; v++) {
       const text = v % 2 ? broken : LIF;
-      const s = performance.now();
       void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: v }, contentChanges: [{ text }] });
       const d = await client.diagnosticsFor(uri, v);
-      times.push(performance.now() - s);
       expect(d.diagnostics.filter((x) => x.severity === 1).length).toBe(v % 2 ? 1 : 0);
     }
-    times.sort((x, y) => x - y);
-    console.log(`edit -> diagnostics round trip: first ${latency.toFixed(1)} ms, median of 10 ${times[5]!.toFixed(1)} ms, max ${times[9]!.toFixed(1)} ms`);
-    expect(latency).toBeLessThan(1000);
   });
 
   it('maps related information (with the uri), the code and the fixes data', async () => {
