@@ -3,7 +3,7 @@
 // bench/*.mjs but this one, each as its own child process, one after another (so they do not
 // compete for the CPUs), prints each one's output, and ends with every figure side by side.
 // A bench reports figures by appending JSON lines { bench, name, value, unit, goal? } to the
-// file named by the BENCH_JSON environment variable (latency, derive and startup do); for a
+// file named by the BENCH_JSON environment variable (latency, derive, hard and startup do); for a
 // bench that does not, its last output lines stand in the summary. A bench that exits
 // non-zero (e.g. a missing compiler: exit 2) is listed with its reason; the others still run.
 // These are measurements, not tests: nothing here fails on a slow figure.

@@ -1,7 +1,7 @@
 // Negative controls (a deliberately wrong derivation must fail the finite-difference check)
 // and the reset-equivalence property: a hard reset V := 0 and a subtractive one
 // V := V - theta agree on the guard surface, so the general formula gives the same
-// gradient for both (REFERENCES.md, "EventProp for LIF", note; only the tangential part of
+// gradient for both (docs/references.md, "EventProp for LIF", note; only the tangential part of
 // the jump map's Jacobian matters).
 import { describe, expect, test } from 'vitest';
 import { derivationFor, type NeuronDerivation } from '../server/src/adjoint';

@@ -172,20 +172,15 @@ describe('hover and renderers', () => {
     expect(l.startsWith('\\begin{aligned}')).toBe(true);
     expect(l).toContain('\\lambda_{V}');
   });
-  test('derivation time per sample (warm) is logged and bounded', () => {
-    const lines: string[] = [];
+  // The derivation time per sample neuron is measured by `npm run bench` (bench/derive.mjs,
+  // P2: warm and cold, with the goal < 200 ms warm); here only a generous hang guard.
+  test('every sample neuron derives again to the same result (hang guard 30 s)', () => {
     for (const file of SAMPLES) {
       for (const n of neuronsOf(sampleText(file)).values()) {
-        deriveNeuron(n);
-        const t0 = performance.now();
-        for (let k = 0; k < 5; k++) deriveNeuron(n);
-        const ms = (performance.now() - t0) / 5;
-        lines.push(`${file} ${n.name}: ${ms.toFixed(2)} ms`);
-        expect(ms).toBeLessThan(200);
+        expect(renderText(deriveNeuron(n)), `${file} ${n.name}`).toBe(renderText(deriveNeuron(n)));
       }
     }
-    console.log(lines.join('\n'));
-  });
+  }, 30_000);
 });
 
 describe('robustness', () => {

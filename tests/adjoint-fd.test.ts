@@ -5,7 +5,7 @@
 // The adjoint flow, the spike jumps with phi and gdot, the coupling terms, the incoming
 // jumps, the weight gradients and the parameter increments all enter these gradients.
 // Method: EventProp (Wunderlich & Pehle 2021, Sci. Rep. 11:12829) in the general hybrid
-// form of LANGUAGE.md "Derived results"; tolerances are ours (FD with relative step 1e-5
+// form of docs/adjoint.md "The formulas"; tolerances are ours (FD with relative step 1e-5
 // on a DOPRI5 simulation with rtol 1e-12 is good to about 1e-7..1e-6 relative).
 import { readdirSync } from 'node:fs';
 import { join } from 'node:path';

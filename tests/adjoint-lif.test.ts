@@ -2,7 +2,7 @@
 // 11:12829 (arXiv 2009.08378), Table 2 (adjoint flow and the jump of lambda_V at a spike)
 // and Eq. 2 (dL/dw_ji = -tau_syn * sum over spikes k of i of lambda_I,j(t_k)), in their
 // convention (' = -d/dt, lambda(T) = 0). Mapping to our canonical costate p = dL/dx(t):
-// p_V = -tau_mem lambda_V, p_I = -tau_syn lambda_I (REFERENCES.md [V]); checked here both
+// p_V = -tau_mem lambda_V, p_I = -tau_syn lambda_I (docs/references.md [V]); checked here both
 // on the formulas and numerically, by an independent backward pass written from Table 2.
 import { describe, expect, test } from 'vitest';
 import { derivationFor } from '../server/src/adjoint';

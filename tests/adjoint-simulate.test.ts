@@ -15,7 +15,7 @@ const LIF_CONSTANT = `neuron C {
 }`;
 
 describe('forward simulation', () => {
-  test('first LIF spike time matches the closed form (REFERENCES.md [V], Wunderlich & Pehle 2021 model)', () => {
+  test('first LIF spike time matches the closed form (docs/references.md [V], Wunderlich & Pehle 2021 model)', () => {
     // V0 = 0, I0 = 5, tau_m = 10 ms = 2 tau_s, theta = 1: t* = -tau_m ln((1 + sqrt(1 - 4 theta/I0))/2).
     const closed = -10e-3 * Math.log((1 + Math.sqrt(1 - 4 / 5)) / 2);
     expect(closed).toBeCloseTo(3.23507131157447e-3, 15);

@@ -13,8 +13,8 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { parseTimeOption } from '../server/src/cli/timeOption';
 import { excerpt } from '../server/src/cli/report/textReport';
+import { DiagnosticCodes } from '../server/src/base/diagnostic';
 
 const root = resolve(__dirname, '..');
 const cli = join(root, 'dist/cli.js');
@@ -44,7 +44,8 @@ function expectNoStack(stderr: string) {
   expect(stderr).not.toMatch(/\b[A-Z][a-zA-Z]*Error:/);
 }
 
-// The first example of LANGUAGE.md (our language contract), verbatim: a valid model.
+// A valid model: the LIF with a current synapse of docs/language.md's first example
+// (Wunderlich & Pehle 2021, Table 1), with a self-projection.
 const GOOD = `# LIF with an exponential current synapse.
 timestep 0.1 [ms]
 
@@ -147,7 +148,7 @@ describe('--format json', () => {
       for (const d of f.diagnostics) {
         expect(Object.keys(d).sort()).toEqual(['code', 'message', 'range', 'severity']);
         expect(['error', 'warning', 'info']).toContain(d.severity);
-        expect(typeof d.code).toBe('string');
+        expect(DiagnosticCodes).toContain(d.code); // one of the stable codes (base/diagnostic.ts)
         expect(d.message.length).toBeGreaterThan(0);
         for (const p of [d.range.start, d.range.end]) {
           expect(Object.keys(p).sort()).toEqual(['character', 'line']);
@@ -260,18 +261,27 @@ describe('text format', () => {
   });
 });
 
-describe('--timestep', () => {
-  it('reads a time with a unit into seconds', () => {
-    expect(parseTimeOption('0.05 [ms]')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('0.05ms')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('50 [us]')).toEqual({ ok: true, seconds: expect.closeTo(5e-5, 15) });
-    expect(parseTimeOption('1e-4 s')).toEqual({ ok: true, seconds: expect.closeTo(1e-4, 15) });
-    for (const bad of ['2 [mV]', '0 ms', '-1ms', 'ms', '0.1', '1 [ms'] ) expect(parseTimeOption(bad).ok, bad).toBe(false);
-  });
-
+describe('--timestep (alias --dt)', () => {
+  // The spellings and messages of the time itself: tests/units-time.test.ts (units/time.ts).
   it('is accepted by check', () => {
     const r = run(['check', '--timestep', '0.05ms', write('good.saltus', GOOD)]);
     expect(r.code).toBe(0);
+  });
+
+  it('is one option in every command that takes a dt, with --dt as its documented alias', () => {
+    for (const command of ['step', 'check', 'generate']) {
+      const help = run(['help', command]).stdout;
+      expect(help, command).toMatch(/^ {2}--timestep TIME {2}\S/m);
+      expect(help, command).toMatch(/^ {2}--dt TIME {8}an alias of --timestep$/m);
+      expect(help.split('Options:')[0], command).toContain('[--timestep TIME]'); // in the usage lines
+    }
+    write('good.saltus', GOOD);
+    const both = run(['check', '--dt', '1ms', '--timestep', '1ms', 'good.saltus']);
+    expect(both.code).toBe(2);
+    expect(both.stderr).toMatch(/give the dt once: --dt is another name for --timestep/);
+    const bad = run(['check', '--dt', '0.1', 'good.saltus']);
+    expect(bad.code).toBe(2);
+    expect(bad.stderr).toMatch(/^saltus check: --dt: '0\.1' has no unit/);
   });
 });
 

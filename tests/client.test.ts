@@ -72,8 +72,11 @@ describe('package.json manifest', () => {
       if (what === 'snippets') {
         for (const [name, s] of Object.entries(doc)) {
           const snip = s as { prefix?: unknown; body?: unknown; description?: unknown };
-          expect(snip.prefix, name).toBeDefined();
-          expect(snip.body, name).toBeDefined();
+          // VS Code snippet format: prefix and body are a string or a list of strings.
+          const texts = (v: unknown): unknown[] => (Array.isArray(v) ? v : [v]);
+          for (const p of texts(snip.prefix)) expect(p, `${name}: prefix`).toMatch(/^\S+$/);
+          expect(texts(snip.body).every((l) => typeof l === 'string'), `${name}: body lines`).toBe(true);
+          expect(texts(snip.body).join('\n'), `${name}: body`).toMatch(/\S/);
         }
       }
     });

@@ -7,7 +7,7 @@
 // unit the modeller wrote for it where that is larger). CUDA output is
 // compiled with `nvcc -c` where nvcc is on PATH (skipped with the reason printed otherwise).
 // Exact integration is checked against Rotter & Diesmann 1999 (Biol. Cybern. 81:381), the
-// check values of ../shared/REFERENCES.md, tagged [V] there.
+// check values of docs/references.md, tagged [V] there.
 import { execFileSync, spawnSync } from 'node:child_process';
 import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';

@@ -5,7 +5,7 @@
 // times and states within 1e-12 relative (to the largest magnitude of the state in the run, or
 // one of its declared unit where larger). The state arrays are views into one shared buffer,
 // as arrays from PyTorch's .numpy() are: the update must be in place.
-// Rotter & Diesmann 1999 (Biol. Cybern. 81:381) check values from ../shared/REFERENCES.md [V].
+// Rotter & Diesmann 1999 (Biol. Cybern. 81:381) check values from docs/references.md [V].
 import { spawnSync } from 'node:child_process';
 import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';

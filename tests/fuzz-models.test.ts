@@ -2,7 +2,7 @@
 // guards, jumps, incoming blocks): every one checks without errors, goes through the whole
 // pipeline (pipelineCheck.ts), and its derivation passes the numeric self-check against
 // finite differences (adjointSelfCheck.ts). Plus the reset-equivalence property of
-// ../shared/REFERENCES.md (Wunderlich & Pehle 2021 setting): a hard reset `V := 0` and a
+// docs/references.md (Wunderlich & Pehle 2021 setting): a hard reset `V := 0` and a
 // subtractive one `V := V - theta` give the same lambda just before a spike on the guard surface.
 // A negative control shows the self-check catches a wrong adjoint.
 // Scale with FUZZ_SCALE (npm run fuzz); counts go to FUZZ_REPORT when set.
@@ -83,7 +83,7 @@ describe('generated well-formed models', () => {
     const bad = { ...good, adjointFlow: new Map(good.adjointFlow) };
     bad.adjointFlow.set('V', add(good.adjointFlow.get('V')!, sym('lambda_I'), num(0)));
     expect(() => adjointSelfCheck(n, bad, 3)).toThrow(/adjoint flow of V/);
-    // And a phi that forgets the lV_post - lV_pre term (2.5 % effect in REFERENCES.md's chain test).
+    // And a phi that forgets the lV_post - lV_pre term (2.5 % effect in the chain test of docs/references.md).
     const badSpike = { ...good, spike: { ...good.spike!, phi: add(good.spike!.phi, sym('lV_pre'), num(0)) } };
     expect(() => adjointSelfCheck(n, badSpike, 3)).toThrow(/phi/);
   });

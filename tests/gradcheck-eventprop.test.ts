@@ -8,7 +8,7 @@
 // with s = t - t0 and tau_m = 2 tau_s, I = w e^{-s/tau_s} and
 //   V(s) = w tau_s / (tau_m - tau_s) (e^{-s/tau_m} - e^{-s/tau_s}) = w (a - a^2),  a = e^{-s/tau_m}.
 // V = theta first at a* = (1 + sqrt(1 - 4 theta / w)) / 2 (w > 4 theta), s* = -tau_m ln a*
-// (REFERENCES.md [V]: 3.23507131157447 ms for w = 5).
+// (docs/references.md [V]: 3.23507131157447 ms for w = 5).
 // Implicit function theorem on V(t*; w) = theta: dt*/dw = -(dV/dw) / Vdot(t*-), with
 //   dV/dw = a - a^2 = theta / w,   Vdot = (I - V) / tau_m = (w a^2 - theta) / tau_m,
 // so dt*/dw = -(theta / w) tau_m / (w a^2 - theta)  (< 0: a stronger input fires earlier),

@@ -30,7 +30,7 @@ const quiet = (model: string, extra: object, duration: number) => ({
 });
 
 describe('forward integration against closed forms', () => {
-  test('LIF period under constant input T = tau ln(RI / (RI - theta)) (Gerstner et al. 2014, Neuronal Dynamics ch. 1, from memory; value [V] REFERENCES.md)', () => {
+  test('LIF period under constant input T = tau ln(RI / (RI - theta)) (Gerstner et al. 2014, Neuronal Dynamics ch. 1, from memory; value [V] docs/references.md)', () => {
     const r = runGradcheckSync(analyse(LIF), quiet('C', {}, 0.1), { traces: false, rtol: 1e-12 });
     expect(r.errors).toEqual([]);
     const T = 10e-3 * Math.log(1.5 / 0.5);
@@ -40,7 +40,7 @@ describe('forward integration against closed forms', () => {
     times.forEach((t, k) => expect(Math.abs(t - (k + 1) * T)).toBeLessThan(1e-10));
   });
 
-  test('first spike of the W&P LIF from V = 0, I = 5: t* = -tau_m ln((1 + sqrt(1 - 4 theta / I0)) / 2) = 3.23507131157447 ms (REFERENCES.md [V])', () => {
+  test('first spike of the W&P LIF from V = 0, I = 5: t* = -tau_m ln((1 + sqrt(1 - 4 theta / I0)) / 2) = 3.23507131157447 ms (docs/references.md [V])', () => {
     const r = runGradcheckSync(analyse(LIF), quiet('L', { initial: { I: 5 } }, 0.005), { traces: false });
     const closed = -10e-3 * Math.log((1 + Math.sqrt(1 - 4 / 5)) / 2);
     expect(closed).toBeCloseTo(3.23507131157447e-3, 15);

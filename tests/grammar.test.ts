@@ -2,7 +2,7 @@
 // - runs the hand-written syntax tests grammar/tests/*.test.saltus through the
 //   vscode-tmgrammar-test CLI (exit code 0 required), with a negative control that must fail;
 // - generates syntax tests that every reserved word and built-in function of the language
-//   (LANGUAGE.md, "Lexical rules" and "Expressions") gets its own scope, and that no sample
+//   (docs/language.md, "Lexical rules" and "Expressions") gets its own scope, and that no sample
 //   line gets an invalid.* scope;
 // - checks language-configuration.json and snippets.json (valid JSON, the pairs, indentation
 //   and word rules behave, snippet bodies expand to text with balanced braces);
@@ -23,10 +23,10 @@ const GRAMMAR = join(ROOT, 'grammar', 'saltus.tmLanguage.json');
 const CLI = join(ROOT, 'node_modules', 'vscode-tmgrammar-test', 'dist', 'unit.js');
 const SAMPLES = join(ROOT, 'samples');
 
-/** Reserved words, in the order of LANGUAGE.md "Lexical rules" (v0 draft). */
+/** Reserved words, in the order of docs/language.md "Lexical rules". */
 const KEYWORDS = ['neuron', 'param', 'state', 'let', 'fire', 'when', 'crosses', 'up', 'down', 'either',
   'incoming', 'connect', 'timestep', 'trainable', 't'];
-/** Built-in functions, LANGUAGE.md "Expressions". */
+/** Built-in functions, docs/language.md "Expressions". */
 const FUNCTIONS = ['exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'abs', 'min', 'max', 'pow'];
 /** The scope each reserved word gets when it stands alone. */
 const KEYWORD_SCOPE: Record<string, string> = {
@@ -69,9 +69,9 @@ function listFromDoc(doc: string, marker: RegExp): string[] | undefined {
   return list ? list[1]!.trim().split(/\s+/) : undefined;
 }
 
-/** The project's living language reference and the shared v0 draft, where present. */
+/** The project's living language reference. */
 function languageDocs(): { path: string; text: string }[] {
-  return [join(ROOT, 'docs', 'language.md'), join(ROOT, '..', 'shared', 'LANGUAGE.md')]
+  return [join(ROOT, 'docs', 'language.md')]
     .filter((p) => existsSync(p))
     .map((p) => ({ path: p, text: readFileSync(p, 'utf8') }));
 }
@@ -125,7 +125,7 @@ describe('TextMate grammar', () => {
     expect(r.output).toContain('missing required scopes');
   });
 
-  it('uses the reserved words of the lexer and of LANGUAGE.md', () => {
+  it('uses the reserved words of the lexer and of docs/language.md', () => {
     expect([...LEXER_KEYWORDS]).toEqual(KEYWORDS);
     expect(Object.keys(KEYWORD_SCOPE).sort()).toEqual([...KEYWORDS].sort());
     const docs = languageDocs();

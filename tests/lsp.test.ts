@@ -15,7 +15,7 @@ import {
   type PublishDiagnosticsParams, type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
 } from 'vscode-languageserver-protocol/node';
 import { LineIndex } from '../server/src/base/lineIndex';
-import { parseTimestep, readSettings } from '../server/src/lsp/settings';
+import { analysisKey, readSettings } from '../server/src/lsp/settings';
 
 const root = join(__dirname, '..');
 const samplesDir = join(root, 'samples');
@@ -147,24 +147,18 @@ describe('language server over stdio', () => {
     const actions = await client.conn.sendRequest('textDocument/codeAction', { textDocument: { uri }, range: err.range, context: { diagnostics: [err] } }) as CodeAction[];
     expect(actions[0]!.title).toBe("Change to 'tau_s'");
     expect(actions[0]!.edit!.changes![uri]).toEqual([{ range: err.range, newText: 'tau_s' }]);
-    const t0 = performance.now();
+    // The edit -> diagnostics latency is measured by `npm run bench` (bench/latency.mjs, P1, goal
+    // p95 < 20 ms); here each round trip has only the 10 s hang guard of diagnosticsFor.
     void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: 2 }, contentChanges: [{ range: err.range, text: 'tau_s' }] });
     const d2 = await client.diagnosticsFor(uri, 2);
-    const latency = performance.now() - t0;
     expect(d2.diagnostics).toEqual([]);
-    // Ten more round trips, alternating broken and fixed text, for a steadier figure.
-    const times: number[] = [];
+    // Ten more round trips, alternating broken and fixed text.
     for (let v = 3; v <= 12; v++) {
       const text = v % 2 ? broken : LIF;
-      const s = performance.now();
       void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: v }, contentChanges: [{ text }] });
       const d = await client.diagnosticsFor(uri, v);
-      times.push(performance.now() - s);
       expect(d.diagnostics.filter((x) => x.severity === 1).length).toBe(v % 2 ? 1 : 0);
     }
-    times.sort((x, y) => x - y);
-    console.log(`edit -> diagnostics round trip: first ${latency.toFixed(1)} ms, median of 10 ${times[5]!.toFixed(1)} ms, max ${times[9]!.toFixed(1)} ms`);
-    expect(latency).toBeLessThan(1000);
   });
 
   it('maps related information (with the uri), the code and the fixes data', async () => {
@@ -271,6 +265,66 @@ describe('language server over stdio', () => {
     rmSync(out, { recursive: true, force: true });
   });
 
+  it('follows the saltus.timestep setting in hovers and generated code, and back when it is cleared', async () => {
+    const uri = 'file:///inline/setting-dt.saltus';
+    client.open(uri, LIF);
+    await client.diagnosticsFor(uri, 1);
+    const hoverAt = async (needle: string, k: number): Promise<string> =>
+      ((await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, needle, k) }) as Hover).contents as MarkupContent).value;
+    const generatedHeader = async (): Promise<string> => {
+      const out = mkdtempSync(join(tmpdir(), 'saltus-gen-dt-'));
+      try {
+        const r = await client.conn.sendRequest('saltus/generate', { uri, target: 'numpy', dir: out }) as { written: string[]; errors: string[] };
+        expect(r.errors).toEqual([]);
+        return readFileSync(join(out, 'Sensor.py'), 'utf8').split('\n').filter((l) => l.startsWith('#')).join('\n');
+      } finally { rmSync(out, { recursive: true, force: true }); }
+    };
+    /** Changes the setting and waits until the server has re-analysed this document under it. */
+    const setTimestep = async (timestep: string): Promise<void> => {
+      const before = client.diagnostics.get(uri)!.length;
+      client.settings = { timestep, diagnostics: { when: 'typing' } };
+      await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
+      await client.until(() => client.diagnostics.get(uri)!.length > before || undefined, 10_000, 'diagnostics re-published under the new setting');
+    };
+    const expectDt = async (shown: string, fromSetting: boolean): Promise<void> => {
+      const onTimestep = await hoverAt('timestep', 2);
+      expect(onTimestep).toContain(`**Step analysis of \`Sensor\`** at dt = ${shown}`);
+      expect(onTimestep).toContain(`dt = ${shown}, from ${fromSetting ? 'the saltus\\.timestep setting' : "the file's timestep"}`);
+      const onEquation = await hoverAt('dV/dt', 1);
+      expect(onEquation).toContain(`dt = ${shown}, from`);
+      expect(onEquation).toContain(`over dt = ${shown} (recommended)`); // the exact propagator of the LIF flow at that dt
+      // The numpy header quotes the dt the forward scheme was analysed at (codegen/header.ts).
+      expect(await generatedHeader()).toMatch(new RegExp(`analysed at dt = ${shown.replace('.', '\\.')}\\)`));
+    };
+    await expectDt('0.1 ms', false);
+    await setTimestep('0.05ms'); // the spelling the setting's description promises
+    await expectDt('0.05 ms', true);
+    expect(await hoverAt('timestep', 2)).toContain("it overrides the file's `timestep 0.1 [ms]`");
+    await setTimestep('');
+    await expectDt('0.1 ms', false);
+  });
+
+  it('puts a step finding about a dt from the setting on the neuron name, saying where the dt came from', async () => {
+    // The damped oscillator of tests/step-cli.test.ts: its exponential-Euler step is unstable above dt = 1 ms.
+    const uri = 'file:///inline/setting-osc.saltus';
+    const text = 'timestep 0.5 [ms]\nneuron Osc { param w2 = 1 [1/ms^2]\n param g = 1 [1/ms]\n state x = 1 [mV]\n state v = 0 [mV/ms]\n dx/dt = v\n dv/dt = -w2 * x - g * v }\n';
+    client.open(uri, text);
+    await client.diagnosticsFor(uri, 1);
+    const latest = () => client.diagnostics.get(uri)!.at(-1)!.diagnostics;
+    expect(latest().filter((d) => d.code === 'step-unstable')).toEqual([]);
+    client.settings = { timestep: '3ms', diagnostics: { when: 'typing' } };
+    await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
+    const unstable = await client.until(() => latest().find((d) => d.code === 'step-unstable'), 10_000, 'step-unstable under the setting');
+    expect(unstable.range).toEqual({ start: pos(text, 'Osc'), end: pos(text, 'Osc', 3) });
+    expect(unstable.message).toContain('unstable at dt = 3 ms');
+    expect(unstable.message).toContain("This dt comes from the saltus.timestep setting ('3ms'), which overrides the file's 'timestep 0.5 [ms]'.");
+    const before = client.diagnostics.get(uri)!.length;
+    client.settings = { timestep: '', diagnostics: { when: 'typing' } };
+    await client.conn.sendNotification('workspace/didChangeConfiguration', { settings: {} });
+    await client.until(() => client.diagnostics.get(uri)!.length > before || undefined, 10_000, 'diagnostics under the cleared setting');
+    expect(latest().filter((d) => d.code === 'step-unstable')).toEqual([]);
+  });
+
   it('answers null or [] for a never-opened document and survives a malformed request', async () => {
     const nowhere = { textDocument: { uri: 'file:///never/opened.saltus' }, position: { line: 0, character: 0 } };
     expect(await client.conn.sendRequest('textDocument/hover', nowhere)).toBeNull();
@@ -321,16 +375,24 @@ describe('handler guard (in-process server with a failing provider)', () => {
 });
 
 describe('settings', () => {
-  it('reads saltus.timestep as a time with its unit, and refuses others', () => {
-    expect(parseTimestep('0.05 [ms]')).toBeCloseTo(5e-5, 15);
-    expect(parseTimestep('50 [us]')).toBeCloseTo(5e-5, 15);
-    expect(parseTimestep('2')).toEqual({ error: expect.stringMatching(/time/) });
-    expect(parseTimestep('1 [mV]')).toEqual({ error: expect.stringMatching(/time/) });
-    expect(parseTimestep('0.1 [ms]\nneuron X {}')).toEqual({ error: expect.any(String) });
+  // Every spelling and message of the time itself: tests/units-time.test.ts (the one parser).
+  it('reads saltus.timestep as a time with its unit (the spellings the docs promise), and refuses others', () => {
+    for (const text of ['0.05 [ms]', '0.05ms', '0.05 ms', '5e-5 s', '50 [us]']) {
+      expect(readSettings({ timestep: text }).timestep, text).toEqual({ seconds: 5e-5, source: 'setting', label: text });
+    }
+    expect(readSettings({ timestep: '2' }).problems).toEqual(["saltus.timestep ignored: '2' has no unit; write the time with one, e.g. 2ms or '2 [ms]'"]);
+    expect(readSettings({ timestep: '1 [mV]' }).problems[0]).toMatch(/^saltus\.timestep ignored: '1 \[mV\]' is not a time/);
+    expect(readSettings({ timestep: '0.1 [ms]\nneuron X {}' }).problems[0]).toMatch(/^saltus\.timestep ignored: .*not closed, or text follows it/s);
+    expect(readSettings({ timestep: 0.05 }).problems).toEqual(['saltus.timestep must be a text such as "0.05 [ms]" or "0.05ms"']);
     expect(readSettings({ timestep: '', diagnostics: { when: 'saving' } })).toEqual({ diagnosticsWhen: 'saving', problems: [] });
     const bad = readSettings({ timestep: 'fast', diagnostics: { when: 'sometimes' } });
-    expect(bad.timestepSI).toBeUndefined();
+    expect(bad.timestep).toBeUndefined();
     expect(bad.diagnosticsWhen).toBe('typing');
     expect(bad.problems).toHaveLength(2);
+  });
+  it('keys the cached analysis by the timestep override', () => {
+    expect(analysisKey(readSettings({ timestep: '' }))).toBe('');
+    expect(analysisKey(readSettings({ timestep: '0.05ms' }))).not.toBe(analysisKey(readSettings({ timestep: '0.1ms' })));
+    expect(analysisKey(readSettings({ timestep: '0.05ms' }))).not.toBe('');
   });
 });

@@ -52,7 +52,7 @@ const samplesDir = join(__dirname, '..', 'samples');
 const SAMPLES: [string, string][] = existsSync(samplesDir)
   ? readdirSync(samplesDir).filter((f) => f.endsWith('.saltus')).map((f) => [f, readFileSync(join(samplesDir, f), 'utf8')])
   : [];
-const MODELS: [string, string][] = [['LANGUAGE.md example', LANGUAGE_EXAMPLE], ...SAMPLES];
+const MODELS: [string, string][] = [['language example', LANGUAGE_EXAMPLE], ...SAMPLES];
 
 /** The token sequence (unit texts trimmed, as the formatter is allowed to) and the comments. */
 function lexed(text: string): { tokens: string[]; comments: string[] } {

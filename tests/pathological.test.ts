@@ -3,8 +3,10 @@
 // binary garbage, CRLF / CR / mixed line endings. Each must finish within its bound and,
 // where a limit stops the work, say so with a diagnostic ('too-complex', 'time-budget',
 // 'derivation-budget') instead of hanging, overflowing the stack or throwing.
-// The time bounds are generous (shared 2-core CI machines): they catch hangs, not slowness;
-// speed is measured by `npm run bench`, not here.
+// The only time limits here are the tests' own timeouts (30-120 s, shared 2-core CI machines):
+// they catch hangs, not slowness. How long each input takes is measured by `npm run bench`
+// (bench/hard.mjs, P6, each figure beside its goal). The one timed check left is functional:
+// the derived checks stop at the time budget they are given.
 import { describe, expect, it } from 'vitest';
 import { analyse, derivedDiagnostics, MAX_TEXT_LENGTH } from '../server/src/pipeline';
 import { MAX_EXPR_NESTING } from '../server/src/syntax/grammar';
@@ -22,19 +24,17 @@ const timed = <T>(f: () => T): { value: T; ms: number } => { const t0 = performa
 describe('deep and large expressions', () => {
   it('50 nested exp: derived within bounds (simplified, or a derivation-budget note)', () => {
     const text = model(`(${'exp('.repeat(50)}-V${')'.repeat(50)} - V) / tau`);
-    const { value, ms } = timed(() => checkPipeline(text, { budgetMs: 30_000, step: true, codegen: ['c'] }));
+    const value = checkPipeline(text, { budgetMs: 30_000, step: true, codegen: ['c'] });
     expect(value.errors).toBe(0);
     expect(value.wellFormed).toBe(1);
-    console.log(`50 nested exp: whole pipeline ${ms.toFixed(0)} ms`);
   }, 60_000);
 
-  it('a 5,000-term sum is refused with too-complex, fast, and the neuron is not analysed', () => {
+  it('a 5,000-term sum is refused with too-complex, and the neuron is not analysed', () => {
     const text = model(`(${Array.from({ length: 5000 }, (_, i) => `${(i % 9) + 1} * V`).join(' + ')}) / tau`);
-    const { value: a, ms } = timed(() => analyse(text));
+    const a = analyse(text);
     const d = a.diagnostics.find((x) => x.code === 'too-complex')!;
     expect(d.message).toMatch(new RegExp(`at most ${MAX_EXPR_DEPTH}`));
     expect(a.model.neurons[0]!.wellFormed).toBe(false);
-    expect(ms).toBeLessThan(15_000);
     checkPipeline(text, { budgetMs: 30_000, step: true, codegen: ['c'] });
   }, 60_000);
 
@@ -51,12 +51,11 @@ describe('deep and large expressions', () => {
     ['a 10,000-long chain of exponents', model(`(V${'^1'.repeat(10_000)}) / tau`)],
     ['10,000 nested calls', model(`${'exp('.repeat(10_000)}V${')'.repeat(10_000)} / tau`)],
   ])('%s: too-complex, no stack overflow', (_name, text) => {
-    const { value: a, ms } = timed(() => analyse(text));
+    const a = analyse(text);
     const d = a.diagnostics.find((x) => x.code === 'too-complex');
     expect(d?.message).toContain(`more than ${MAX_EXPR_NESTING} levels`);
     expect(a.diagnostics.some((x) => x.message.includes('internal'))).toBe(false);
     expect(a.model.neurons[0]?.wellFormed ?? false).toBe(false);
-    expect(ms).toBeLessThan(15_000);
     checkPipeline(text, { budgetMs: 30_000, step: true });
   }, 60_000);
 
@@ -65,15 +64,14 @@ describe('deep and large expressions', () => {
     expect(codes(text).filter((c) => c !== 'unused-declaration')).toEqual([]);
   });
 
-  it('lets that double the expression 40 times are refused by size, in linear time', () => {
+  it('lets that double the expression 40 times are refused by size', () => {
     const lets = Array.from({ length: 40 }, (_, i) => `  let a${i + 1} = ${i ? `a${i} * a${i}` : 'V'}\n`).join('');
-    const { value: a, ms } = timed(() => analyse(model('-a40 / tau', lets)));
+    const a = analyse(model('-a40 / tau', lets));
     const d = a.diagnostics.find((x) => x.code === 'too-complex' && x.message.startsWith('dV/dt'))!;
     expect(d.message).toContain(`at most ${MAX_SYM_NODES}`);
     expect(a.model.neurons[0]!.wellFormed).toBe(false);
-    expect(ms).toBeLessThan(5_000);
     checkPipeline(model('-a40 / tau', lets), { budgetMs: 30_000, step: true, codegen: ['c'] });
-  });
+  }, 30_000);
 
   it('a chain of lets deeper than the resolved-depth limit is refused', () => {
     const lets = Array.from({ length: 30 }, (_, i) => `  let a${i + 1} = ${i ? `a${i}` : 'V'} + ${Array.from({ length: 40 }, () => 'V').join(' + ')}\n`).join('');
@@ -87,7 +85,7 @@ describe('large files', () => {
   it('a 20,000-line file: all ranges inside, derived checks stop at their time budget with a diagnostic', () => {
     const text = generatedFile(20_000);
     expect(text.split('\n').length).toBeGreaterThanOrEqual(20_000);
-    const { value: a, ms } = timed(() => analyse(text));
+    const a = analyse(text);
     expect(a.model.neurons.length).toBeGreaterThan(1900);
     expect(a.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
     const budgetMs = 500;
@@ -97,8 +95,6 @@ describe('large files', () => {
     if (stop) expect(stop.message).toMatch(/in all\)/);
     expect(dms).toBeLessThan(budgetMs + 5_000); // one neuron past the budget at most
     for (const d of derived) expect(d.range.end).toBeLessThanOrEqual(text.length);
-    console.log(`20,000 lines (${(text.length / 1024).toFixed(0)} KiB): analyse ${ms.toFixed(0)} ms, derived ${dms.toFixed(0)} ms (budget ${budgetMs} ms, ${stop ? 'stopped' : 'completed'})`);
-    expect(ms).toBeLessThan(30_000);
   }, 120_000);
 
   it('a 1 MB single line is analysed within bounds (the sum in it is too-complex)', () => {
@@ -106,19 +102,17 @@ describe('large files', () => {
     const text = body + '#'.repeat(Math.max(0, 1_048_576 - body.length));
     expect(text.length).toBeGreaterThanOrEqual(1_048_576);
     expect(text.includes('\n')).toBe(false);
-    const { value: r, ms } = timed(() => checkPipeline(text, { budgetMs: 60_000, probes: 3 }));
+    checkPipeline(text, { budgetMs: 60_000, probes: 3 });
     expect(codes(text)).toContain('too-complex');
-    console.log(`1 MB line: whole pipeline ${ms.toFixed(0)} ms, ${r.errors} error(s)`);
   }, 120_000);
 
   it(`a text over ${MAX_TEXT_LENGTH / 1024 / 1024} MiB is not parsed: one too-complex error`, () => {
     const text = 'neuron A { state V = 0 dV/dt = 0 }\n' + ' '.repeat(MAX_TEXT_LENGTH);
-    const { value: a, ms } = timed(() => analyse(text));
+    const a = analyse(text);
     expect(a.diagnostics.map((d) => d.code)).toEqual(['too-complex']);
     expect(a.diagnostics[0]!.message).toMatch(/too large to check/);
-    expect(ms).toBeLessThan(5_000);
     checkPipeline(text, { budgetMs: 30_000, probes: 2 });
-  });
+  }, 30_000);
 });
 
 describe('bytes and line endings', () => {

@@ -14,6 +14,7 @@ import { dirname, join, relative, resolve } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { fromMathjs, SymParseError } from './helpers/parseMathjs';
+import { evaluate } from '../server/src/symbolic';
 import { lookupUnitSymbol } from '../server/src/units/unitSymbols';
 import { generateFiles } from '../server/src/codegen/generate';
 import { writeGenerated } from '../server/src/codegen/write';
@@ -78,7 +79,8 @@ describe('user text is never executed (source checks)', () => {
       'a ? b : c', 'x!', 'a == b', 'simplify("x")', 'parse("x")', 'cube(2)', '{a: 1}', 'x[1]', '1:3', 'a and b']) {
       expect(() => fromMathjs(t), t).toThrow(SymParseError);
     }
-    expect(fromMathjs('exp(-V / tau) + max(a, b) ^ 2')).toBeDefined();
+    // ...and reads arithmetic with the whitelisted functions: exp(-1/2) + max(3, -1)^2.
+    expect(evaluate(fromMathjs('exp(-V / tau) + max(a, b) ^ 2'), { V: 1, tau: 2, a: 3, b: -1 })).toBeCloseTo(Math.exp(-0.5) + 9, 14);
   });
 
   it('unit lookup asks mathjs only about one plain symbol', () => {

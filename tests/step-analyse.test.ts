@@ -1,6 +1,6 @@
 // The step analysis on text (analyse() -> analyseStep) and on the project's samples:
 // Izhikevich 2003 and AdEx (Brette & Gerstner 2005) get the linearised scheme; reference
-// states against the values in /work/shared/REFERENCES.md; the accuracy figure of the LIF
+// states against the values in docs/references.md; the accuracy figure of the LIF
 // against its closed form (Rotter & Diesmann 1999); the spike-time bound against the LIF
 // first-passage time under constant drive (Gerstner et al. 2014, ch. 1); the JSON contract.
 import { describe, expect, test } from 'vitest';
@@ -34,7 +34,7 @@ describe('Izhikevich 2003 RS sample (samples/izhikevich.saltus)', () => {
     expect(ds[0]!.range).toEqual(n.flowDecls.get('v')!.range);
   });
 
-  test('reference is the RS resting point v = -70 mV, u = -14 mV (REFERENCES.md [V]); stable at 0.1 ms', () => {
+  test('reference is the RS resting point v = -70 mV, u = -14 mV (docs/references.md [V]); stable at 0.1 ms', () => {
     expect(r.reference.kind).toBe('rest');
     expect(r.reference.values.v).toBeCloseTo(-0.070, 12);
     expect(r.reference.values.u).toBeCloseTo(-0.014, 12);
@@ -81,11 +81,11 @@ describe('AdEx sample (samples/adex.saltus, Brette & Gerstner 2005 set)', () => 
   const n = a.model.neurons[0]!;
   const r = analyseStep(n, a.model.timestepSI!);
 
-  test('V linearised (through exp), w exponential Euler, I exact; rest -70.59992 mV (REFERENCES.md [V])', () => {
+  test('V linearised (through exp), w exponential Euler, I exact; rest -70.59992 mV (docs/references.md [V])', () => {
     expect(r.states.map((s) => s.scheme)).toEqual(['linearised-exponential-euler', 'exponential-euler', 'exact']);
     expect(r.states[0]!.reason).toContain('exp(');
     expect(r.reference.kind).toBe('rest');
-    // REFERENCES.md gives -70.59992 (truncated); by hand (g_L + a) dV = g_L Delta_T e^{(E_L + dV - V_T)/Delta_T}, dV = 7.246e-5 mV
+    // docs/references.md gives -70.59992 (truncated); by hand (g_L + a) dV = g_L Delta_T e^{(E_L + dV - V_T)/Delta_T}, dV = 7.246e-5 mV
     expect(r.reference.values.V! * 1e3).toBeCloseTo(-70.59992, 4);
     expect(r.reference.values.V! * 1e3).toBeCloseTo(-70.6 + 7.246e-5, 7);
     expect(r.stable).toBe(true);
@@ -212,7 +212,7 @@ neuron Resonator {
         const r = analyseStep(n, a.model.timestepSI ?? 1e-4);
         if (n.wellFormed) expect(Number.isFinite(r.stepRadius)).toBe(true);
         expect(stepDiagnostics(r, n).some((d) => d.severity === 'error')).toBe(false);
-        expect(typeof stepReportText([r])).toBe('string');
+        expect(stepReportText([r])).toContain(`${n.name}  (dt = 0.1 ms)`); // every sample declares timestep 0.1 [ms]
       }
     }
   });

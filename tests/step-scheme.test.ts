@@ -1,6 +1,6 @@
 // The exponential-Euler scheme and the exact propagator (server/src/step/scheme.ts,
 // propagator.ts) against published closed forms and hand derivations. Each check names its
-// source; values tagged [V] in /work/shared/REFERENCES.md were checked numerically there,
+// source; values tagged [V] in docs/references.md were checked numerically there,
 // [M] ones are from memory of the cited source.
 import { describe, expect, test } from 'vitest';
 import { expm as mathjsExpm, matrix as mathjsMatrix } from 'mathjs';
@@ -22,7 +22,7 @@ function neuronFrom(text: string, name?: string): ResolvedNeuron {
 }
 
 // Rotter & Diesmann 1999 (Biol. Cybern. 81:381) LIF with exponential current:
-// dV/dt = -V/tau_m + I/C, dI/dt = -I/tau_s; units ms, 1/C = 0.1 per ms (REFERENCES.md).
+// dV/dt = -V/tau_m + I/C, dI/dt = -I/tau_s; units ms, 1/C = 0.1 per ms (docs/references.md).
 const rdModel = (tauM: string, tauS: string): string => `
 neuron RD {
   param tau_m = ${tauM} [ms]
@@ -106,7 +106,7 @@ neuron Decay {
     const scan = firstFailure((h) => spectralRadius(lin([[1, identity(1)], [h, J]])) <= 1, 1e-6, 10);
     expect(scan.kind).toBe('found');
     if (scan.kind === 'found') expect(Math.abs(scan.dt / 20e-3 - 1)).toBeLessThan(1e-10);
-    // measured in REFERENCES.md [V]: |x_50| at h/tau = 2.1 is 117
+    // measured in docs/references.md [V]: |x_50| at h/tau = 2.1 is 117
     let x = 1;
     for (let k = 0; k < 50; k++) x *= 1 + 2.1 * J[0]![0]! * 10e-3;
     expect(Math.round(Math.abs(x))).toBe(117);
@@ -257,6 +257,8 @@ neuron Slow {
   });
 });
 
+// Hang guard only (a generous budget per flow); the time each takes is measured by
+// `npm run bench` (bench/hard.mjs, P6, with its goal).
 describe('robustness: awkward flows never throw and stay bounded', () => {
   const flows = [
     'dV/dt = -abs(V) / tau',                 // kink at the reference V = 0: derivative undefined
@@ -273,18 +275,20 @@ describe('robustness: awkward flows never throw and stay bounded', () => {
   for (const f of flows) {
     test(f, async () => {
       const { stepReportJson: json, stepReportText: text, stepHoverMarkdown: hover } = await import('../server/src/step');
-      const a = analyse(`timestep 0.1 [ms]\nneuron N {\n param tau = 10 [ms]\n state V = 0\n ${f}\n fire when V crosses 1 up { V := 0 }\n}`);
+      const src = `timestep 0.1 [ms]\nneuron N {\n param tau = 10 [ms]\n state V = 0\n ${f}\n fire when V crosses 1 up { V := 0 }\n}`;
+      const a = analyse(src);
       const n = a.model.neurons[0]!;
-      const started = performance.now();
       const r = analyseStep(n, 1e-4);
-      expect(performance.now() - started).toBeLessThan(2000);
       const j = json([r]);
       expect(JSON.parse(JSON.stringify(j))).toEqual(j);
-      expect(typeof text([r])).toBe('string');
-      expect(typeof hover(r, 'V')).toBe('string');
-      expect(Array.isArray(stepDiagnostics(r, n))).toBe(true);
+      expect(text([r])).toContain('N  (dt = 0.1 ms)');
+      expect(hover(r, 'V')).toMatch(/^\*\*Step of `V`\*\* in `N`: `/);
+      for (const d of stepDiagnostics(r, n)) {
+        expect(['step-unstable', 'step-inaccurate', 'step-linearised']).toContain(d.code);
+        expect(d.range.start >= 0 && d.range.end <= src.length && d.range.start <= d.range.end).toBe(true);
+      }
       const s = buildScheme(n);
       expect(stepOnce(s, [0.3], undefined, 1e-4)).toHaveLength(1);
-    });
+    }, 30_000);
   }
 });

@@ -145,7 +145,7 @@ describe('parseUnit: SI Brochure identities (BIPM 2019, 9th ed., prefixes of Tab
 });
 
 describe('parseUnit: syntax', () => {
-  test('the forms of LANGUAGE.md parse', () => {
+  test('the unit forms of docs/language.md parse', () => {
     expect(dimEqual(ok('1/ms').dim, SI.Hz)).toBe(true);
     expect(relClose(ok('1/ms').scale, 1000)).toBe(true);
     expect(dimEqual(ok('s^-1').dim, SI.Hz)).toBe(true);

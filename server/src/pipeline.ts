@@ -1,6 +1,10 @@
 // The one pipeline every face calls: text -> syntax tree -> resolved model -> checks.
 // Fast checks (syntax, names, units) run on every call; the slow analyses (step analysis,
 // adjoint derivation) are computed on demand and cached by model content in their stages.
+// `analyse` also settles the effective dt once (`Analysis.timestep`: the file's `timestep`,
+// or the override a face passes from the `saltus.timestep` setting or the `--timestep`
+// option); every consumer of dt (step diagnostics, hovers, `saltus step`, code generation)
+// reads that one value.
 //
 // Architecture invariant: nothing reachable from here imports `vscode` or LSP types, and
 // `analyse` never throws, whatever the text.
@@ -9,9 +13,33 @@ import { resolveFile } from './model/resolve';
 import type { ResolvedFile, ResolvedNeuron } from './model/types';
 import { type Diagnostic, internalError } from './base/diagnostic';
 import { LineIndex } from './base/lineIndex';
+import type { Range } from './base/range';
 import { adjointDiagnostics, derivationFor, type NeuronDerivation } from './adjoint/index';
 import { stepDiagnostics, type StepReport } from './step/index';
 import { stepReportFor } from './step/cache';
+
+/** A dt given outside the file: the editor's `saltus.timestep` setting or the CLI's `--timestep`. */
+export interface TimestepOverride {
+  seconds: number;
+  source: 'setting' | 'option';
+  /** What the modeller wrote, e.g. `0.05ms`, quoted in messages. */
+  label: string;
+}
+
+/** The dt every dt-dependent result uses, and where it came from. */
+export interface EffectiveTimestep {
+  seconds: number;
+  source: 'file' | 'setting' | 'option';
+  /** The file's timestep value (`0.1 [ms]`) when source is 'file'. */
+  range?: Range;
+  /** The text it was written as: the file's value, the setting's or the option's text. */
+  label: string;
+}
+
+export interface AnalyseOptions {
+  /** Overrides the file's `timestep`; ignored unless `seconds` is a positive finite number. */
+  timestep?: TimestepOverride;
+}
 
 export interface Analysis {
   text: string;
@@ -20,13 +48,15 @@ export interface Analysis {
   /** Syntax, name and unit diagnostics, sorted by position. */
   diagnostics: Diagnostic[];
   lines: LineIndex;
+  /** The effective dt: the override passed to `analyse`, else the file's `timestep`; undefined without either. */
+  timestep: EffectiveTimestep | undefined;
 }
 
 /** Longest text (UTF-16 code units, 4 MiB of ASCII) that is parsed and checked; longer files get one diagnostic. */
 export const MAX_TEXT_LENGTH = 4 * 1024 * 1024;
 
-export function analyse(text: string): Analysis {
-  if (text.length > MAX_TEXT_LENGTH) return tooLarge(text);
+export function analyse(text: string, options: AnalyseOptions = {}): Analysis {
+  if (text.length > MAX_TEXT_LENGTH) return tooLarge(text, options);
   const parsed = parse(text);
   const diagnostics: Diagnostic[] = parsed.errors.map((e): Diagnostic => ({ severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range }));
   let model: ResolvedFile;
@@ -39,7 +69,26 @@ export function analyse(text: string): Analysis {
   markIncomplete(model, parsed.errors);
   diagnostics.push(...model.diagnostics);
   diagnostics.sort((a, b) => a.range.start - b.range.start || a.range.end - b.range.end);
-  return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines: new LineIndex(text) };
+  return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines: new LineIndex(text), timestep: settleTimestep(text, model, options) };
+}
+
+/** The override when it is a usable dt, else the file's `timestep` (with the range of its value). */
+function settleTimestep(text: string, model: ResolvedFile, options: AnalyseOptions): EffectiveTimestep | undefined {
+  const o = options.timestep;
+  if (o && typeof o.seconds === 'number' && Number.isFinite(o.seconds) && o.seconds > 0 && (o.source === 'setting' || o.source === 'option')) {
+    return { seconds: o.seconds, source: o.source, label: String(o.label ?? '') };
+  }
+  const value = model.timestepDecl?.value;
+  if (model.timestepSI === undefined || !value) return undefined;
+  const range = { start: Math.max(0, Math.min(value.range.start, text.length)), end: Math.max(0, Math.min(value.range.end, text.length)) };
+  return { seconds: model.timestepSI, source: 'file', range, label: text.slice(range.start, range.end) };
+}
+
+/** Where the dt came from, in words: "the saltus.timestep setting ('0.05ms')", "the file's timestep (0.1 [ms])". */
+export function timestepOrigin(t: EffectiveTimestep): string {
+  if (t.source === 'setting') return `the saltus.timestep setting ('${t.label}')`;
+  if (t.source === 'option') return `the --timestep option ('${t.label}')`;
+  return `the file's timestep (${t.label})`;
 }
 
 /**
@@ -59,13 +108,13 @@ function markIncomplete(model: ResolvedFile, errors: readonly { range: { start: 
 }
 
 /** A text over MAX_TEXT_LENGTH: not parsed (that would take seconds per edit), one 'too-complex' error. */
-function tooLarge(text: string): Analysis {
+function tooLarge(text: string, options: AnalyseOptions): Analysis {
   const parsed: ParseOutput = { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors: [], strayJumps: [], tokens: [] };
   const model: ResolvedFile = { neurons: [], connections: [], symbols: [], references: [], unitsUsed: [], diagnostics: [], exprDims: new Map() };
   const mib = (n: number): string => (n / (1024 * 1024)).toFixed(1);
   const diagnostics: Diagnostic[] = [{ severity: 'error', code: 'too-complex', range: { start: 0, end: Math.min(1, text.length) },
     message: `the file is too large to check (${mib(text.length)} MiB; Saltus checks files up to ${mib(MAX_TEXT_LENGTH)} MiB): split it into several files` }];
-  return { text, parse: parsed, model, diagnostics, lines: new LineIndex(text) };
+  return { text, parse: parsed, model, diagnostics, lines: new LineIndex(text), timestep: settleTimestep(text, model, options) };
 }
 
 /** Every range lies inside the document, whatever a stage produced. */
@@ -78,8 +127,6 @@ export function clampAll(ds: Diagnostic[], length: number): Diagnostic[] {
 }
 
 export interface DerivedOptions {
-  /** Overrides the file's `timestep` for the step analysis (seconds). */
-  timestepSI?: number;
   /**
    * Work-time budget (ms) for the whole call; neurons not reached when it runs out get one
    * 'time-budget' diagnostic instead of their checks. Default: no budget (the CLI checks all).
@@ -92,19 +139,18 @@ export function derivations(a: Analysis): NeuronDerivation[] {
   return a.model.neurons.filter((n) => n.wellFormed).map((n) => derivationFor(n));
 }
 
-/** The slow checks of one well-formed neuron; never throws (a failure becomes a diagnostic). */
-export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron, opts: DerivedOptions = {}): Diagnostic[] {
+/** The slow checks of one well-formed neuron at the analysis's dt; never throws (a failure becomes a diagnostic). */
+export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron): Diagnostic[] {
   const out: Diagnostic[] = [];
   try {
     out.push(...adjointDiagnostics(derivationFor(n), n));
   } catch (err) {
     out.push(internalError(`deriving the adjoint of ${n.name}`, err, n.symbol.nameRange, 'warning'));
   }
-  const dt = effectiveTimestep(a, opts);
-  if (dt !== undefined) {
+  const ts = a.timestep;
+  if (ts) {
     try {
-      const decl = a.model.timestepDecl;
-      out.push(...stepDiagnostics(stepReportFor(n, dt), n, decl?.value?.range ?? decl?.keywordRange));
+      out.push(...placeStepDiagnostics(a, ts, stepDiagnostics(stepReportFor(n, ts.seconds), n, ts.source === 'file' ? ts.range : n.symbol.nameRange)));
     } catch (err) {
       out.push(internalError(`analysing the step of ${n.name}`, err, n.symbol.nameRange, 'warning'));
     }
@@ -112,16 +158,28 @@ export function neuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron, opts: D
   return clampAll(out, a.text.length);
 }
 
-/** The dt of the step analysis: the override (setting or --timestep), else the file's `timestep`. */
-export function effectiveTimestep(a: Analysis, opts: DerivedOptions = {}): number | undefined {
-  return opts.timestepSI ?? a.model.timestepSI;
+/**
+ * The findings about the dt itself (step-unstable, step-inaccurate) sit where the dt came
+ * from: on the file's timestep value, or, for a dt from the setting or the option, on the
+ * neuron's name (the range the caller passes to stepDiagnostics) with a sentence that says
+ * where the dt came from.
+ */
+function placeStepDiagnostics(a: Analysis, ts: EffectiveTimestep, ds: Diagnostic[]): Diagnostic[] {
+  if (ts.source === 'file') return ds;
+  const file = a.model.timestepDecl?.value;
+  const overrides = file ? `, which overrides the file's 'timestep ${a.text.slice(file.range.start, file.range.end)}'` : '';
+  for (const d of ds) {
+    if (d.code !== 'step-unstable' && d.code !== 'step-inaccurate') continue;
+    d.message += ` This dt comes from ${timestepOrigin(ts)}${overrides}.`;
+  }
+  return ds;
 }
 
 /** The step analysis of every well-formed neuron at the effective dt (none without a dt). */
-export function stepReports(a: Analysis, opts: DerivedOptions = {}): StepReport[] {
-  const dt = effectiveTimestep(a, opts);
-  if (dt === undefined) return [];
-  return a.model.neurons.filter((n) => n.wellFormed).map((n) => stepReportFor(n, dt));
+export function stepReports(a: Analysis): StepReport[] {
+  const ts = a.timestep;
+  if (!ts) return [];
+  return a.model.neurons.filter((n) => n.wellFormed).map((n) => stepReportFor(n, ts.seconds));
 }
 
 /** The one diagnostic for the neurons a time budget left unchecked (at the first of them). */
@@ -147,7 +205,7 @@ export function derivedDiagnostics(a: Analysis, opts: DerivedOptions = {}): Diag
       out.push(timeBudgetDiagnostic(todo.slice(i), opts.budgetMs));
       break;
     }
-    out.push(...neuronDerivedDiagnostics(a, todo[i]!, opts));
+    out.push(...neuronDerivedDiagnostics(a, todo[i]!));
   }
   return clampAll(out, a.text.length);
 }

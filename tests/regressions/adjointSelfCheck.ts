@@ -1,6 +1,6 @@
 // Numeric self-check of a derived adjoint system against finite differences of the model's own
-// flow, guard and jump maps (LANGUAGE.md "Derived results", the general form of Wunderlich &
-// Pehle 2021 Table 2 and Galán, Feehery & Barton 1999; ../shared/REFERENCES.md). Nothing here
+// flow, guard and jump maps (docs/adjoint.md "The formulas", the general form of Wunderlich &
+// Pehle 2021 Table 2 and Galán, Feehery & Barton 1999; docs/references.md). Nothing here
 // uses the symbolic derivative: every Jacobian is a central difference (with one Richardson
 // step) of the resolved expressions, evaluated by the whitelisted evaluator, at random points.
 // Checked: adjoint flow = -J^T lambda - dlV/dx; guard slope; phi; lambda just before a spike;

@@ -85,7 +85,7 @@ export function checkPipeline(text: string, opts: CheckOptions = {}): CheckOutco
     if (d.notes.some((x) => x.startsWith('internal error'))) fail('derivation without internal error', d.notes.join('; '));
     derivedCount++;
     if (opts.step) {
-      const r = analyseStep(neuron, a.model.timestepSI ?? 1e-4);
+      const r = analyseStep(neuron, a.timestep?.seconds ?? 1e-4);
       if (!r || typeof r.dt_s !== 'number') fail('step report', `no report for ${neuron.name}`);
     }
   }

@@ -1,6 +1,6 @@
 // Symbolic derivation of the EventProp adjoint system of one neuron model, in general: any
 // flow f, guard g = LHS - RHS, spike jump h and incoming jump r the language can express
-// (LANGUAGE.md "Derived results"; docs/adjoint.md has every formula). Canonical costate
+// (docs/adjoint.md "The formulas" has every one). Canonical costate
 // lambda = dL/dx(t); jump formulas give lambda just BEFORE the event in terms of lambda_X
 // (just AFTER it), the pre-event state names and the symbols of names.ts.
 //

@@ -1,5 +1,6 @@
 // What a `saltus` subcommand is, and the helpers every command shares: the I/O it may use,
-// the usage error it throws for bad arguments, and option parsing on node:util parseArgs.
+// the usage error it throws for bad arguments, option parsing on node:util parseArgs, and
+// the one dt option (`--timestep TIME`, alias `--dt`) of every command that uses a dt.
 //
 // Adding a subcommand = one file in cli/commands/ exporting a `Command`, plus one line in the
 // COMMANDS table of cli/main.ts. Invariants: a command writes only through `io` (so `lsp
@@ -7,6 +8,8 @@
 // turns it into exit code 2 and one line on stderr, never a stack trace), and returns its exit
 // code rather than calling process.exit, so buffered output is flushed.
 import { parseArgs, type ParseArgsConfig } from 'node:util';
+import type { TimestepOverride } from '../pipeline';
+import { parseTime } from '../units/index';
 
 export interface CliIO {
   out(text: string): void;
@@ -69,4 +72,29 @@ export function oneOf<T extends string>(command: string, option: string, value: 
   if (value === undefined) return fallback;
   if ((allowed as readonly string[]).includes(value)) return value as T;
   throw new UsageError(`--${option} must be one of ${allowed.join(', ')}; got '${value}'`, command);
+}
+
+/** The parseArgs options of the dt: `--timestep TIME`, and `--dt TIME`, its alias. */
+export const TIMESTEP_OPTIONS = { timestep: { type: 'string' }, dt: { type: 'string' } } as const;
+
+/** The help lines of the dt option, for a command's Options list (`what`: one line, what it does). */
+export function timestepHelp(what: string): string {
+  return `  --timestep TIME  ${what}
+                   (a time with its unit: 0.05ms, '0.05 ms', '0.05 [ms]', 5e-5s)
+  --dt TIME        an alias of --timestep`;
+}
+
+/**
+ * The dt given with --timestep (or its alias --dt) as the override `analyse` takes; undefined
+ * when neither is given. A bad time, or both spellings at once, is a UsageError.
+ */
+export function timestepArg(command: string, values: { timestep?: unknown; dt?: unknown }): TimestepOverride | undefined {
+  const given = (['timestep', 'dt'] as const).filter((k) => values[k] !== undefined);
+  if (given.length === 0) return undefined;
+  if (given.length > 1) throw new UsageError('give the dt once: --dt is another name for --timestep', command);
+  const name = given[0]!;
+  const text = String(values[name]);
+  const t = parseTime(text);
+  if (!t.ok) throw new UsageError(`--${name}: ${t.message}`, command);
+  return { seconds: t.seconds, source: 'option', label: text.trim() };
 }

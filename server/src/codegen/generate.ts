@@ -27,8 +27,6 @@ export interface GenerateOptions {
   driver?: boolean;
   /** Print the parameter values into the code instead of passing a params struct. */
   inlineParams?: boolean;
-  /** The dt of the step analysis (s); default the file's timestep, else 0.1 ms. */
-  timestepSI?: number;
   /** The source file's name for the header (a base name; no directories are printed). */
   source?: string;
 }
@@ -71,7 +69,7 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
     const errors: string[] = [];
     const plans: ModelPlan[] = [];
     for (const n of chosen) {
-      const r = planModel(n, models.ids.get(n.name)!, options.timestepSI ?? analysis.model.timestepSI);
+      const r = planModel(n, models.ids.get(n.name)!, analysis.timestep?.seconds); // the effective dt (pipeline.ts)
       renamed.push(...r.renamed);
       errors.push(...r.errors);
       if (r.plan) { plans.push(r.plan); notes.push(...r.plan.notes); }

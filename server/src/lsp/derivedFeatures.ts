@@ -18,14 +18,15 @@ export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
 export const GENERATE_COMMAND = 'saltus.generateCode';
 
 export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
-export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean; timestepSI?: number }
+/** The dt of the generated code is the analysis's (the file's timestep or the saltus.timestep setting). */
+export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
 /** Generates code for a document and writes it safely into `dir` (never outside it; refuses edited files unless `force`). */
 function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
   const source = decodeURIComponent(uri.split('/').pop() ?? 'model.saltus');
   const g = generateFiles(a, { target: p.target, ...(p.model ? { model: p.model } : {}), ...(p.float ? { float: true } : {}),
-    ...(p.driver ? { driver: true } : {}), ...(p.timestepSI !== undefined ? { timestepSI: p.timestepSI } : {}), source });
+    ...(p.driver ? { driver: true } : {}), source });
   const renamed = g.renamed.map((r) => `${r.kind} ${r.from} -> ${r.to} (${r.reason})`);
   if (g.errors.length || g.files.length === 0) return { dir: p.dir, written: [], unchanged: [], refused: [], errors: g.errors.length ? g.errors : ['nothing to generate'], notes: g.notes, renamed };
   return { ...writeGenerated(p.dir, g.files, { force: p.force === true }), notes: g.notes, renamed };

@@ -1,5 +1,5 @@
 // What the language server's handlers share about open documents: the cached analysis of
-// the current version of each, its diagnostics, the log, and the guard that wraps every
+// the current version of each under the current settings, its diagnostics, the log, and the guard that wraps every
 // handler (unknown documents and exceptions give an empty answer, never a crash). The
 // server (server.ts) implements DocumentState; the feature modules only read it.
 import { ResponseError } from 'vscode-languageserver';
@@ -8,6 +8,8 @@ import type { Diagnostic } from '../base/diagnostic';
 
 export interface CachedAnalysis {
   uri: string; version: number; analysis: Analysis; derived?: Diagnostic[];
+  /** The settings the analysis was made under (settings.ts analysisKey): a change re-analyses. */
+  settingsKey: string;
   /** The derived-checks run in progress for this entry (a newer run supersedes it). */
   deriving?: object;
 }

@@ -1,6 +1,9 @@
 // The Saltus language server: document sync, diagnostics, settings, and the wiring of the
 // feature handlers (features.ts). `startServer(connection)` sets everything up and listens.
 //
+// One analysis per document version and settings: the `saltus.timestep` setting is passed to
+// `analyse` (the effective dt lives in the analysis, read by every feature), and a settings
+// change re-analyses the open documents.
 // Diagnostics: every open/change is analysed without an artificial delay; when several
 // changes are queued, only the newest text is analysed (coalesced with setImmediate: a
 // check runs once no newer version arrived during the last event-loop turn). The fast
@@ -19,7 +22,7 @@ import { type Diagnostic, setInternalErrorLog } from '../base/diagnostic';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
-import { DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
+import { analysisKey, DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
 import { DEFAULT_FEATURES, registerFeatures, type Features } from './features';
 import { registerDerivedFeatures } from './derivedFeatures';
 import type { CachedAnalysis, DocumentState } from './documentState';
@@ -58,8 +61,10 @@ export function startServer(connection: Connection, options: ServerOptions = {})
       const doc = typeof uri === 'string' ? documents.get(uri) : undefined;
       if (!doc) return undefined;
       const hit = cache.get(uri);
-      if (hit && hit.version === doc.version) return hit;
-      const fresh: CachedAnalysis = { uri, version: doc.version, analysis: analyse(doc.getText()) };
+      const settingsKey = analysisKey(settings);
+      if (hit && hit.version === doc.version && hit.settingsKey === settingsKey) return hit;
+      const fresh: CachedAnalysis = { uri, version: doc.version, settingsKey,
+        analysis: analyse(doc.getText(), settings.timestep ? { timestep: settings.timestep } : {}) };
       cache.set(uri, fresh);
       return fresh;
     },
@@ -89,13 +94,12 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   const deriveLater = (uri: string, version: number): void => {
     const c = state.analysisFor(uri);
     if (!c || c.version !== version || c.derived) return;
-    const opts: DerivedOptions = settings.timestepSI !== undefined ? { timestepSI: settings.timestepSI } : {};
     const finish = (derived: Diagnostic[]): void => {
       c.derived = derived;
       if (documents.get(uri)?.version === version && derived.length > 0) publish(c);
     };
     if (options.derived) {
-      try { finish(options.derived(c.analysis, opts)); } catch (e) { log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`); }
+      try { finish(options.derived(c.analysis, {})); } catch (e) { log(`saltus: derived checks of ${uri} failed: ${(e as Error)?.stack ?? String(e)}`); }
       return;
     }
     // One neuron after another, a slice of the event loop at a time: a newer version of the
@@ -115,7 +119,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
             next = todo.length;
             break;
           }
-          out.push(...neuronDerivedDiagnostics(c.analysis, todo[next++]!, opts));
+          out.push(...neuronDerivedDiagnostics(c.analysis, todo[next++]!));
         }
         worked += performance.now() - sliceStart;
         if (next < todo.length) { setImmediate(slice); return; }

@@ -1,14 +1,16 @@
 // The `saltus.*` settings the server honours, read from the client's configuration:
-//   saltus.timestep           "0.05 [ms]" overrides the file's timestep; "" keeps the file's
+//   saltus.timestep           a time such as "0.05 [ms]" or "0.05ms" (units/time.ts) overrides
+//                             the file's timestep; "" keeps the file's
 //   saltus.diagnostics.when   "typing" (default) or "saving"
 //   saltus.trace.server       handled by the client; ignored here
 // Invariant: readSettings never throws; an invalid timestep is reported in `problems` and
 // ignored (the file's own timestep is used).
-import { analyse } from '../pipeline';
+import type { TimestepOverride } from '../pipeline';
+import { parseTime } from '../units/index';
 
 export interface SaltusSettings {
-  /** Timestep override in seconds, when the setting holds a valid time. */
-  timestepSI?: number;
+  /** The timestep override, when the setting holds a valid time; analyse() takes it as is. */
+  timestep?: TimestepOverride;
   diagnosticsWhen: 'typing' | 'saving';
   /** Why a setting was ignored, for the log. */
   problems: string[];
@@ -26,19 +28,14 @@ export function readSettings(raw: unknown): SaltusSettings {
   else if (when !== undefined) out.problems.push(`saltus.diagnostics.when must be "typing" or "saving", not ${JSON.stringify(when)}`);
   const ts = section.timestep;
   if (typeof ts === 'string' && ts.trim() !== '') {
-    const parsed = parseTimestep(ts);
-    if (typeof parsed === 'number') out.timestepSI = parsed;
-    else out.problems.push(`saltus.timestep ignored: ${parsed.error}`);
-  } else if (ts !== undefined && typeof ts !== 'string') out.problems.push('saltus.timestep must be a text such as "0.05 [ms]"');
+    const parsed = parseTime(ts);
+    if (parsed.ok) out.timestep = { seconds: parsed.seconds, source: 'setting', label: ts.trim() };
+    else out.problems.push(`saltus.timestep ignored: ${parsed.message}`);
+  } else if (ts !== undefined && typeof ts !== 'string') out.problems.push('saltus.timestep must be a text such as "0.05 [ms]" or "0.05ms"');
   return out;
 }
 
-/** A time quantity such as "0.05 [ms]", read with the language's own parser and unit checks. */
-export function parseTimestep(text: string): number | { error: string } {
-  if (/[\r\n#{}"]/.test(text)) return { error: `'${text}' is not a quantity such as 0.05 [ms]` };
-  const a = analyse(`timestep ${text}`);
-  const problem = a.diagnostics.find((d) => d.severity === 'error');
-  if (problem) return { error: problem.message };
-  if (a.model.timestepSI === undefined) return { error: `'${text}' is not a positive time such as 0.05 [ms]` };
-  return a.model.timestepSI;
+/** The part of the settings an analysis depends on, as a cache key ('' when nothing overrides). */
+export function analysisKey(s: SaltusSettings): string {
+  return s.timestep ? `${s.timestep.seconds}|${s.timestep.label}` : '';
 }

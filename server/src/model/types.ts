@@ -94,7 +94,7 @@ export interface ResolvedFile {
   /** The file's timestep in seconds, when declared and valid. */
   timestepSI?: number;
   timestepDecl?: A.TimestepDecl;
-  /** Declared projections, or the implicit self-projections (LANGUAGE.md) when none is declared. */
+  /** Declared projections, or the implicit self-projections (docs/language.md) when none is declared. */
   connections: Connection[];
   /** Every symbol declared in the file and every use of one. */
   symbols: SymbolInfo[];

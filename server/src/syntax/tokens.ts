@@ -29,7 +29,7 @@ export const Timestep = keyword('timestep');
 export const Trainable = keyword('trainable');
 export const Time = keyword('t');
 
-/** Every reserved word, in the order LANGUAGE.md lists them. */
+/** Every reserved word, in the order docs/language.md ("Lexical rules") lists them. */
 export const KEYWORDS = ['neuron', 'param', 'state', 'let', 'fire', 'when', 'crosses', 'up', 'down', 'either',
   'incoming', 'connect', 'timestep', 'trainable', 't'] as const;
 

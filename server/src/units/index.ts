@@ -25,3 +25,4 @@ export {
 export { type UnitParseOk, type UnitParseError, type UnitParseResult, parseUnit } from './unitParse';
 export { type SymbolLookup, UNIT_SYMBOL_PATTERN, lookupUnitSymbol } from './unitSymbols';
 export { type UnitExpression, formatDim, formatQuantity, formatNumber, describeDim, unitExpressionFor } from './format';
+export { type TimeParse, parseTime } from './time';

@@ -1,21 +1,20 @@
-// `saltus check FILE... [--format text|json|sarif] [--timestep TIME]`: runs the pipeline's
+// `saltus check FILE... [--format text|json|sarif] [--timestep TIME]` (alias --dt): runs the pipeline's
 // fast checks (syntax, names, units) and its derived checks (step analysis, adjoint
 // derivation) on each file and prints one report. Exit 0: no error-severity diagnostic;
 // 1: at least one; 2: usage error or an unreadable file (then nothing is printed on stdout).
-import { analyse, derivedDiagnostics } from '../../pipeline';
-import { oneOf, parseCommandArgs, UsageError, type Command } from '../command';
+import { analyse, derivedDiagnostics, type TimestepOverride } from '../../pipeline';
+import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, type Command } from '../command';
 import type { CheckedFile } from '../report/checkedFile';
 import { jsonReport } from '../report/jsonReport';
 import { sarifReport } from '../report/sarifReport';
 import { textReport } from '../report/textReport';
 import { readSourceFiles, type SourceFile } from '../sourceFiles';
-import { parseTimeOption } from '../timeOption';
 
 const FORMATS = ['text', 'json', 'sarif'] as const;
 
-export function checkFile(source: SourceFile, timestepSI: number | undefined): CheckedFile {
-  const analysis = analyse(source.text);
-  const derived = derivedDiagnostics(analysis, timestepSI !== undefined ? { timestepSI } : {});
+export function checkFile(source: SourceFile, timestep: TimestepOverride | undefined): CheckedFile {
+  const analysis = analyse(source.text, timestep ? { timestep } : {});
+  const derived = derivedDiagnostics(analysis);
   const diagnostics = [...analysis.diagnostics, ...derived]
     .sort((a, b) => a.range.start - b.range.start || a.range.end - b.range.end);
   return { path: source.path, absolute: source.absolute, text: source.text, lines: analysis.lines, diagnostics };
@@ -36,8 +35,7 @@ Options:
                    with 0-based lines and characters; severity is error, warning or
                    info (hints, such as an unused declaration, are reported as info)
   --format sarif   a SARIF 2.1.0 log for code-scanning tools (hints and info are 'note')
-  --timestep TIME  use this timestep for the step analysis instead of each file's own
-                   'timestep', e.g. 0.05ms or '0.05 [ms]'
+${timestepHelp("the dt of the step analysis instead of each file's 'timestep'")}
   -h, --help       show this help
 
 Columns count UTF-16 code units in every format; text and SARIF count from 1.
@@ -48,21 +46,16 @@ Exit status: 0 no errors (warnings allowed), 1 at least one error,
   async run(argv, io) {
     const { values, positionals } = parseCommandArgs('check', argv, {
       format: { type: 'string' },
-      timestep: { type: 'string' },
+      ...TIMESTEP_OPTIONS,
     });
     if (values.help) {
       io.out(checkCommand.help + '\n');
       return { exitCode: 0 };
     }
     const format = oneOf('check', 'format', values.format as string | undefined, FORMATS, 'text');
-    let timestepSI: number | undefined;
-    if (values.timestep !== undefined) {
-      const t = parseTimeOption(values.timestep as string);
-      if (!t.ok) throw new UsageError(`--timestep: ${t.message}`, 'check');
-      timestepSI = t.seconds;
-    }
+    const timestep = timestepArg('check', values);
     const sources = readSourceFiles('check', positionals, io.cwd);
-    const files = sources.map((s) => checkFile(s, timestepSI));
+    const files = sources.map((s) => checkFile(s, timestep));
     if (format === 'json') io.out(jsonReport(files));
     else if (format === 'sarif') io.out(sarifReport(files, io.cwd));
     else io.out(textReport(files, io.colour));

@@ -1,13 +1,13 @@
 // `saltus generate FILE --target c|cuda|numpy [--model NAME] --out DIR [--float] [--driver]
-// [--inline-params] [--force] [--timestep TIME]`: writes the update code of each model
+// [--inline-params] [--force] [--timestep TIME]` (alias --dt; the dt quoted in the headers and
+// used to choose the forward scheme, through the analysis): writes the update code of each model
 // (or of NAME) into DIR (codegen/generate.ts), safely (codegen/write.ts): nothing outside
 // DIR, no file that changed since Saltus wrote it (unless --force), each file atomically.
 // Exit 0: written; 1: the model has errors, or a file was refused; 2: usage error.
 import { analyse } from '../../pipeline';
 import { generateFiles, TARGETS, type Target, writeGenerated } from '../../codegen';
-import { oneOf, parseCommandArgs, UsageError, type Command } from '../command';
+import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, UsageError, type Command } from '../command';
 import { readSourceFiles } from '../sourceFiles';
-import { parseTimeOption } from '../timeOption';
 
 export const generateCommand: Command = {
   name: 'generate',
@@ -30,7 +30,7 @@ Options:
   --driver         also <model>_driver.c: runs one neuron from stdin (c only; see docs/codegen.md)
   --inline-params  print the parameter values into the code instead of a params struct
   --force          overwrite files that changed since Saltus wrote them, or not written by it
-  --timestep TIME  the dt of the step analysis quoted in the headers (default: the file's)
+${timestepHelp("the dt quoted in the headers instead of the file's 'timestep'")}
   -h, --help       show this help
 
 Exit status: 0 files written (or already up to date), 1 the model has errors or a file was
@@ -39,7 +39,7 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
   async run(argv, io) {
     const { values, positionals } = parseCommandArgs('generate', argv, {
       target: { type: 'string' }, model: { type: 'string' }, out: { type: 'string' }, float: { type: 'boolean' },
-      driver: { type: 'boolean' }, 'inline-params': { type: 'boolean' }, force: { type: 'boolean' }, timestep: { type: 'string' },
+      driver: { type: 'boolean' }, 'inline-params': { type: 'boolean' }, force: { type: 'boolean' }, ...TIMESTEP_OPTIONS,
     });
     if (values.help) { io.out(generateCommand.help + '\n'); return { exitCode: 0 }; }
     if (values.target === undefined) throw new UsageError(`--target is required: one of ${TARGETS.join(', ')}`, 'generate');
@@ -49,17 +49,12 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
     if (positionals.length !== 1) throw new UsageError('give exactly one .saltus file', 'generate');
     if (values.driver && target !== 'c') throw new UsageError('--driver goes with --target c', 'generate');
     if (values.float && target === 'numpy') throw new UsageError('--float goes with --target c or cuda (NumPy follows the arrays\' dtype)', 'generate');
-    let timestepSI: number | undefined;
-    if (values.timestep !== undefined) {
-      const t = parseTimeOption(values.timestep as string);
-      if (!t.ok) throw new UsageError(`--timestep: ${t.message}`, 'generate');
-      timestepSI = t.seconds;
-    }
+    const timestep = timestepArg('generate', values);
     const [source] = readSourceFiles('generate', positionals, io.cwd);
-    const analysis = analyse(source!.text);
+    const analysis = analyse(source!.text, timestep ? { timestep } : {});
     const result = generateFiles(analysis, {
       target, source: source!.path, float: !!values.float, driver: !!values.driver, inlineParams: !!values['inline-params'],
-      ...(values.model !== undefined ? { model: values.model as string } : {}), ...(timestepSI !== undefined ? { timestepSI } : {}),
+      ...(values.model !== undefined ? { model: values.model as string } : {}),
     });
     if (result.errors.length) {
       for (const e of result.errors) io.err(`saltus generate: ${source!.path}: ${e}\n`);

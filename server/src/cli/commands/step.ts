@@ -1,19 +1,19 @@
-// `saltus step FILE [--dt TIME] [--format text|json]`: the exponential-Euler step analysis
-// of every well-formed neuron at the file's timestep (or --dt): scheme per state, reference
+// `saltus step FILE [--timestep TIME] [--format text|json]`: the exponential-Euler step
+// analysis of every well-formed neuron at the file's timestep (or --timestep, alias --dt),
+// the analysis's one effective dt: scheme per state, reference
 // state, spectral radii, one-step error, largest stable dt, exact propagator
 // (docs/step-analysis.md). Exit 1 when the step is unstable or the file has errors.
 import { analyse, stepReports } from '../../pipeline';
 import { stepReportJson, stepReportText } from '../../step/index';
-import { oneOf, parseCommandArgs, UsageError, type Command } from '../command';
+import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, UsageError, type Command } from '../command';
 import { readSourceFiles } from '../sourceFiles';
-import { parseTimeOption } from '../timeOption';
 
 const FORMATS = ['text', 'json'] as const;
 
 export const stepCommand: Command = {
   name: 'step',
   summary: 'analyse the exponential-Euler step at dt: scheme, stability, accuracy, exact propagator',
-  help: `Usage: saltus step FILE [--dt TIME] [--format text|json]
+  help: `Usage: saltus step FILE [--timestep TIME] [--format text|json]
 
 For each neuron of FILE without errors: which update each state gets (exact,
 exponential Euler, or linearised exponential Euler) and why; the reference state
@@ -22,29 +22,24 @@ exact propagator; the relative one-step error; the largest stable dt; and the ex
 propagator matrix when the flow is linear between events.
 
 Options:
-  --dt TIME       analyse at this dt instead of the file's 'timestep', e.g. 0.05ms
-  --format json   the contract of docs/step-analysis.md (SI seconds)
-  -h, --help      show this help
+${timestepHelp("analyse at this dt instead of the file's 'timestep'")}
+  --format json    the contract of docs/step-analysis.md (SI seconds)
+  -h, --help       show this help
 
 Exit status: 0 stable, 1 unstable at dt or the file has errors, 2 usage error.`,
 
   async run(argv, io) {
-    const { values, positionals } = parseCommandArgs('step', argv, { dt: { type: 'string' }, format: { type: 'string' } });
+    const { values, positionals } = parseCommandArgs('step', argv, { ...TIMESTEP_OPTIONS, format: { type: 'string' } });
     if (values.help) { io.out(stepCommand.help + '\n'); return { exitCode: 0 }; }
     const format = oneOf('step', 'format', values.format as string | undefined, FORMATS, 'text');
     if (positionals.length !== 1) throw new UsageError('give exactly one FILE', 'step');
-    let dt: number | undefined;
-    if (values.dt !== undefined) {
-      const t = parseTimeOption(values.dt as string);
-      if (!t.ok) throw new UsageError(`--dt: ${t.message}`, 'step');
-      dt = t.seconds;
-    }
+    const timestep = timestepArg('step', values);
     const [source] = readSourceFiles('step', positionals, io.cwd);
-    const a = analyse(source!.text);
-    if (dt === undefined && a.model.timestepSI === undefined) {
-      throw new UsageError(`${source!.path} declares no 'timestep': add one (e.g. timestep 0.1 [ms]) or pass --dt`, 'step', false);
+    const a = analyse(source!.text, timestep ? { timestep } : {});
+    if (!a.timestep) {
+      throw new UsageError(`${source!.path} declares no 'timestep': add one (e.g. timestep 0.1 [ms]) or pass --timestep`, 'step', false);
     }
-    const reports = stepReports(a, dt !== undefined ? { timestepSI: dt } : {});
+    const reports = stepReports(a);
     for (const n of a.model.neurons.filter((x) => !x.wellFormed)) io.err(`saltus step: ${n.name} has errors and is not analysed (run 'saltus check ${source!.path}')\n`);
     io.out(format === 'json' ? JSON.stringify(stepReportJson(reports), null, 2) + '\n' : stepReportText(reports) + '\n');
     const unstable = reports.some((r) => r.unstable);
