@@ -11,10 +11,10 @@
 // nodes <= 0; one node: exp; two nodes: e^c phi1(lo - c) with phi1 from expm1 (no
 // cancellation, equal nodes included); more nodes: when they lie within 1 of each other, the
 // Taylor series around their mean (complete homogeneous polynomials, 24 terms); else the
-// defining recursion (e[..without lo] - e[..without hi]) / (hi - lo), whose divisor is then at
-// least 1 (up to 7 nodes), else the entry (0, m) of exp(B) for the bidiagonal matrix
-// B = diag(y) + superdiagonal 1 (Opitz 1964) by Taylor series and squaring. Generated code
-// implements the same algorithm (codegen helpers), so every target agrees with this one.
+// entry (0, m) of exp(B) for the bidiagonal matrix B = diag(y) + superdiagonal 1 (Opitz
+// 1964) by a 24-term Taylor series of B / 2^s, |y| / 2^s <= 1/2, squared s times (relative
+// rounding about 2^s ulps). Generated code implements the same algorithm, so every target
+// agrees with this one to rounding.
 // Invariants: symmetric in its arguments; NaN in, NaN out; never throws.
 
 export function phi1(z: number): number {
@@ -48,40 +48,22 @@ export function expdd(x: readonly number[]): number {
   return ec * shifted(y, norm);
 }
 
-/** Largest node spread for the Taylor form; beyond it the recursion divides by at least this. */
+/** Largest node spread for the Taylor form around the mean; wider sets take the matrix form. */
 const TAYLOR_SPREAD = 1;
 
 /**
  * e[y0..ym] for nodes y <= 0 with max |y| = norm: the Taylor form around their mean when the
- * nodes are close (sum over j of h_j(y - mean) / (j + m)!, h_j the complete homogeneous
- * symmetric polynomials), else the defining recursion on the two farthest nodes (whose
- * difference is then at least TAYLOR_SPREAD), else for very spread, many nodes, the
- * matrix form.
+ * nodes lie within TAYLOR_SPREAD (sum over j of h_j(y - mean) / (j + m)!, h_j the complete
+ * homogeneous symmetric polynomials), else the matrix form (scaling and squaring).
  */
 function shifted(y: number[], norm: number): number {
-  const m = y.length - 1;
   let lo = Infinity, hi = -Infinity;
   for (const v of y) { if (v < lo) lo = v; if (v > hi) hi = v; }
   if (hi - lo <= TAYLOR_SPREAD) {
     const mean = y.reduce((s, v) => s + v, 0) / y.length;
     return Math.exp(mean) * taylor(y.map((v) => v - mean));
   }
-  if (m <= 6) {
-    // (e[y without lo] - e[y without hi]) / (hi - lo), computed on sub-multisets
-    const iLo = y.indexOf(lo), iHi = y.indexOf(hi);
-    const withoutLo = y.filter((_, i) => i !== iLo), withoutHi = y.filter((_, i) => i !== iHi);
-    return (sub(withoutLo) - sub(withoutHi)) / (hi - lo);
-  }
   return matrixForm(y, norm);
-}
-
-/** e[y] for a sub-multiset of shifted nodes (values <= 0, arbitrary spread). */
-function sub(y: number[]): number {
-  if (y.length === 1) return Math.exp(y[0]!);
-  if (y.length === 2) { const a = Math.max(y[0]!, y[1]!), b = Math.min(y[0]!, y[1]!); return Math.exp(a) * phi1(b - a); }
-  let norm = 0;
-  for (const v of y) norm = Math.max(norm, Math.abs(v));
-  return shifted(y, norm);
 }
 
 /** sum_j h_j(d) / (j + m)! for centred nodes d (|d| <= 1): terms fall like 1/j!. */

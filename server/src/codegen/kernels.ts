@@ -1,0 +1,99 @@
+// The per-model kernels every target prints (docs/codegen.md, "Kernels"), target-neutral:
+// each kernel is a list of local assignments (the step map's stages and tangents it needs)
+// and named outputs, all Syms over the kernel's arguments. The grid runtime of each target
+// (the event loop: sub-steps, crossing location, events, backward pass) calls only these.
+//
+// Arguments are spelled by role: states `x.<i>`, parameters `p.<k>`, `t`, `dt`, the weight
+// `w`, a costate or tangent vector `lam.<i>` / `dx.<i>`; locals are the stage and tangent
+// names of symbolic/program.ts. Outputs of vector kernels are named `<out>.<i>`.
+// Invariants: every Sym's free symbols are arguments or earlier locals; a kernel exists only
+// where the model has the piece (no guard: no guard kernels).
+import { type Sym, add, mul, sym, substitute } from '../symbolic/sym';
+import { normalise } from '../symbolic/normalise';
+import { type Assignment, needed } from '../symbolic/program';
+import { STEP, TIME } from '../base/names';
+import type { GridDerivation, JumpPieces } from '../grid/derive';
+
+export type KernelArg = 'x' | 'p' | 't' | 'dt' | 'w' | 'lam' | 'dx';
+
+export interface Kernel {
+  name: string;
+  /** What it computes, one line per sentence (printed as its doc comment). */
+  doc: string[];
+  args: KernelArg[];
+  locals: Assignment[];
+  /** Named outputs; vector outputs are `name.i`. */
+  outputs: { name: string; expr: Sym }[];
+}
+
+export const argName = {
+  x: (i: number): string => `x.${i}`,
+  p: (k: number): string => `p.${k}`,
+  lam: (i: number): string => `lam.${i}`,
+  dx: (i: number): string => `dx.${i}`,
+};
+
+/** Renames a derivation's state and parameter symbols to argument roles. */
+function roles(d: GridDerivation, weight?: string): Map<string, Sym> {
+  const m = new Map<string, Sym>();
+  d.states.forEach((s, i) => m.set(s, sym(argName.x(i))));
+  d.params.forEach((p, k) => m.set(p, sym(argName.p(k))));
+  if (weight) m.set(weight, sym('w'));
+  m.set(TIME, sym('t'));
+  m.set(STEP, sym('dt'));
+  return m;
+}
+
+const dot = (ws: readonly Sym[], vs: readonly Sym[]): Sym => normalise(add(...ws.map((w, i) => mul(w, vs[i]!))));
+
+export function modelKernels(d: GridDerivation): Kernel[] {
+  const S = d.states.length;
+  const G = d.gradParams.length;
+  const r = roles(d);
+  const ren = (s: Sym): Sym => substitute(s, r);
+  const renA = (as: readonly Assignment[]): Assignment[] => as.map((a) => ({ name: a.name, expr: ren(a.expr) }));
+  const lam = Array.from({ length: S }, (_, i) => sym(argName.lam(i)));
+  const dx = Array.from({ length: S }, (_, i) => sym(argName.dx(i)));
+  const vec = (name: string, exprs: readonly Sym[]) => exprs.map((expr, i) => ({ name: `${name}.${i}`, expr }));
+  const kernel = (name: string, doc: string[], args: KernelArg[], outputs: { name: string; expr: Sym }[], pool: readonly Assignment[] = [],
+    rename: (s: Sym) => Sym = ren): Kernel => {
+    const outs = outputs.map((o) => ({ name: o.name, expr: rename(o.expr) }));
+    const locals = renA(needed(pool, outputs.map((o) => o.expr)));
+    return { name, doc, args, locals, outputs: outs };
+  };
+  const A = d.map.assigns;
+  const m = d.map;
+  const col = (j: number): Sym[] => m.Fx.map((row) => row[j]!);
+  const out: Kernel[] = [
+    kernel('map_step', ['One step of the step map: x(t + dt) = F(x(t), p, t, dt).'], ['x', 'p', 't', 'dt'], vec('out', m.F), A),
+    kernel('map_jvp', ['The step map, its directional derivative dF/dx . dx, and dF/d dt, dF/dt (for locating crossings inside sub-stepped segments).'],
+      ['x', 'p', 't', 'dt', 'dx'], [...vec('out', m.F), ...vec('dir', m.F.map((_, i) => dot(m.Fx[i]!, dx))), ...vec('fh', m.Fh), ...vec('ft', m.Ft)], A),
+    kernel('map_vjp', ['The step map\'s vector-Jacobian product for lam at the end: (dF/dx)^T lam, lam . dF/d dt, lam . dF/dt, lam . dF/dp for each gradient parameter.'],
+      ['x', 'p', 't', 'dt', 'lam'], [...vec('lx', Array.from({ length: S }, (_, j) => dot(col(j), lam))),
+        { name: 'lh', expr: dot(m.Fh, lam) }, { name: 'lt', expr: dot(m.Ft, lam) },
+        ...vec('lp', Array.from({ length: G }, (_, q) => dot(m.Fp.map((row) => row[q]!), lam)))], A),
+    kernel('flow', ['The flow f(x, p, t) (dF/d dt = f(F) for an exact map).'], ['x', 'p', 't'], vec('out', m.flow)),
+  ];
+  if (d.guard) {
+    const g = d.guard;
+    out.push(kernel('guard', ['The guard g(x, p, t); a spike where it crosses 0 in the declared direction.'], ['x', 'p', 't'], [{ name: 'g', expr: g.g }]));
+    out.push(kernel('guard_grad', ['The guard\'s partial derivatives dg/dx, dg/dt, dg/dp.'], ['x', 'p', 't'],
+      [...vec('gx', g.gx), { name: 'gt', expr: g.gt }, ...vec('gp', g.gp)]));
+  }
+  const jump = (name: string, what: string, j: JumpPieces, args: KernelArg[], rename: (s: Sym) => Sym): void => {
+    out.push(kernel(`${name}_jump`, [`The ${what}: the state just after from the state just before.`], args, vec('out', j.J), [], rename));
+    const Jw = j.Jw;
+    out.push(kernel(`${name}_vjp`, [`The ${what}'s vector-Jacobian product for lam just after: (dJ/dx)^T lam, lam . dJ/dt, lam . dJ/dp${Jw ? ', lam . dJ/dw' : ''}.`],
+      [...args, 'lam'], [...vec('lx', Array.from({ length: S }, (_, k) => dot(j.Jx.map((row) => row[k]!), lam))), { name: 'lt', expr: dot(j.Jt, lam) },
+        ...vec('lp', Array.from({ length: G }, (_, q) => dot(j.Jp.map((row) => row[q]!), lam))), ...(Jw ? [{ name: 'lw', expr: dot(Jw, lam) }] : [])], [], rename));
+  };
+  if (d.spike) jump('spike', 'spike jump', d.spike, ['x', 'p', 't'], ren);
+  const inc = d.incoming[0];
+  if (inc) {
+    const wr = roles(d, inc.weight);
+    const jw = (s: Sym): Sym => substitute(s, wr);
+    jump('incoming', 'incoming jump', inc, ['x', 'p', 't', 'w'], jw);
+  }
+  return out.map((k) => ({ ...k, outputs: k.outputs.map((o) => ({ name: o.name, expr: normalise(o.expr) })) }));
+}
+

@@ -1,0 +1,701 @@
+# The grid runtime of generated Python code: a batch of trials simulated on a time grid with
+# events inside steps, and the exact gradient of that simulation (docs/network-step.md).
+# It is the same algorithm as Saltus's own grid simulator (server/src/grid/), vectorised over
+# trials and neurons: arrays are shaped (trials, neurons). Model kernels (map_step, map_jvp,
+# map_vjp, flow, guard, guard_grad, spike_jump, spike_vjp, incoming_jump, incoming_vjp) come
+# from the generated model modules; this file knows no model.
+#
+# Array operations go through the `X` dialect object defined above this text by the
+# generator (NumPy, or PyTorch tensors on any device and dtype), so one runtime serves both.
+# Nothing here allocates per neuron; loops run over steps, events and sub-steps.
+
+GAUSS_NODES = (0.5 - 15 ** 0.5 / 10, 0.5, 0.5 + 15 ** 0.5 / 10)
+GAUSS_WEIGHTS = (5 / 18, 8 / 18, 5 / 18)
+SUBSTEP_RATE_BOUND = 0.2
+MAX_SUBSTEPS = 64
+
+
+class GridError(Exception):
+    """A simulation that cannot go on (a diverging state, a reset on the fired side, too many spikes)."""
+
+
+def substeps(model, dt):
+    """Sub-steps of the step map per grid step (step/substeps.ts): 1 for an exact map, else the fewest
+    power of two m <= 64 with RATE * dt / m <= 0.2."""
+    if model.EXACT:
+        return 1
+    m = 1
+    while m < MAX_SUBSTEPS and model.RATE * dt / m > SUBSTEP_RATE_BOUND:
+        m *= 2
+    return m
+
+
+def _crossed(direction, g0, g1):
+    up = (g0 < 0) & (g1 >= 0)
+    down = (g0 > 0) & (g1 <= 0)
+    if direction == "up":
+        return up
+    if direction == "down":
+        return down
+    return up | down
+
+
+def _fired_side(direction, g):
+    if direction == "up":
+        return g > 0
+    if direction == "down":
+        return g < 0
+    return X.zeros_bool(g.shape)
+
+
+class Population:
+    """One model population: its kernels, parameter values and initial state."""
+
+    def __init__(self, name, size, model, params=None, initial=None):
+        self.name = name
+        self.size = int(size)
+        self.model = model
+        values = dict(model.DEFAULT_PARAMS)
+        values.update(params or {})
+        self.params = [X.scalar(values[p]) for p in model.PARAMS]
+        init = dict(model.INITIAL)
+        init.update(initial or {})
+        self.initial = [float(init[s]) for s in model.STATES]
+
+
+class Network:
+    """Populations (inputs: a size; models: Population), dense projections weights[to][from],
+    trials ({"inputs": {population: [(t, i), ...]}, "label": k}) and a loss (docs/codegen.md)."""
+
+    def __init__(self, duration, inputs, populations, projections, trials, loss):
+        self.duration = float(duration)
+        self.inputs = dict(inputs)
+        self.populations = list(populations)
+        self.projections = [dict(p, weights=X.array(p["weights"])) for p in projections]
+        self.trials = list(trials)
+        self.loss = dict(loss)
+
+
+class _Live:
+    def __init__(self, index, pop, B, dt, lossing, integral):
+        self.index = index
+        self.pop = pop
+        self.model = pop.model
+        self.S = len(pop.model.STATES)
+        self.n = pop.size
+        self.m = substeps(pop.model, dt)
+        self.x = [X.full((B, self.n), v) for v in pop.initial]
+        self.tau = X.full((B, self.n), 0.0)
+        self.start = X.full_int((B, self.n), -1)
+        self.fired = X.zeros_bool((B, self.n))
+        self.loss_pop = lossing
+        self.needs_starts = (not pop.model.EXACT) or pop.model.STATE_DEPENDENT_DERIVATIVES or (lossing and integral)
+        self.checkpoints = []
+        self.grid_values = None
+        self.inbound = []
+        self.outbound = []
+
+    # the step map in m sub-steps over [a, a + h], per element
+    def apply(self, x, a, h):
+        sub = h / self.m
+        for s in range(self.m):
+            x = list(self.model.map_step(x, self.pop.params, a + s * sub, sub))
+        return x
+
+    def apply_rate(self, x, a, u):
+        sub = u / self.m
+        rate = [X.zeros_like(u) for _ in range(self.S)]
+        for s in range(self.m):
+            out = self.model.map_jvp(x, self.pop.params, a + s * sub, sub, rate)
+            S = self.S
+            x = list(out[:S])
+            rate = [out[S + i] + out[2 * S + i] / self.m + out[3 * S + i] * (s / self.m) for i in range(S)]
+        return x, rate
+
+    def vjp(self, xa, a, h, lam, grads):
+        """(dG/dx)^T lam, lam . dG/dh, lam . dG/da; grads[q] += lam . dG/dp_q (per element, summed by the caller)."""
+        sub = h / self.m
+        starts = [xa]
+        y = xa
+        for s in range(self.m - 1):
+            y = list(self.model.map_step(y, self.pop.params, a + s * sub, sub))
+            starts.append(y)
+        S = self.S
+        G = len(self.model.GRAD_PARAMS)
+        dh = 0.0
+        da = 0.0
+        for s in range(self.m - 1, -1, -1):
+            out = self.model.map_vjp(starts[s], self.pop.params, a + s * sub, sub, lam)
+            fh, ft = out[S], out[S + 1]
+            dh = dh + fh / self.m + ft * (s / self.m)
+            da = da + ft
+            if grads is not None:
+                for q in range(G):
+                    grads[q] = grads[q] + out[S + 2 + q]
+            lam = list(out[:S])
+        return lam, dh, da
+
+
+def _take(arrs, rows, cols=None):
+    return [a[rows] if cols is None else a[rows, cols] for a in arrs]
+
+
+def _put(arrs, rows, values, cols=None):
+    for a, v in zip(arrs, values):
+        if cols is None:
+            a[rows] = v
+        else:
+            a[rows, cols] = v
+
+
+def _locate(live, x, a, h, g0, g1):
+    """Roots u in (0, h] of the guard along the segment, vectorised (as grid/forward.ts `locate`)."""
+    G = live.model
+    lo = X.zeros_like(h)
+    hi = X.copy(h)
+    glo = X.copy(g0)
+    u = h * g0 / (g0 - g1)
+    bad = ~((u > lo) & (u < hi))
+    u = X.where(bad, 0.5 * h, u)
+    done = g1 == 0
+    root = X.where(done, h, u)
+    for _ in range(100):
+        if bool(X.all(done)):
+            break
+        y, rate = live.apply_rate(x, a, u)
+        t = a + u
+        g = G.guard(y, live.pop.params, t)[0]
+        gx_gt_gp = G.guard_grad(y, live.pop.params, t)
+        S = live.S
+        dg = gx_gt_gp[S]
+        for i in range(S):
+            dg = dg + gx_gt_gp[i] * rate[i]
+        hit = (g == 0) & ~done
+        root = X.where(hit, u, root)
+        done = done | hit
+        same = (g < 0) == (glo < 0)
+        lo = X.where(same, u, lo)
+        glo = X.where(same, g, glo)
+        hi = X.where(same, hi, u)
+        nxt = u - g / dg
+        out_of = ~((nxt > lo) & (nxt < hi)) | ~X.isfinite(nxt)
+        nxt = X.where(out_of, 0.5 * (lo + hi), nxt)
+        conv = (X.abs(nxt - u) <= 4e-16 * X.maximum(X.abs(u), h * 1e-3)) | (hi - lo <= 4e-16 * h)
+        newly = conv & ~done
+        root = X.where(newly, nxt, root)
+        done = done | newly
+        u = X.where(done, u, nxt)
+    return X.where(done, root, u)
+
+
+def _crossing_times(live, e):
+    """Per (trial, neuron): the crossing time in (tau, e] or inf (as grid/forward.ts `crossing`)."""
+    G = live.model
+    a = live.tau
+    h = e[:, None] - a
+    positive = h > 0
+    g0 = G.guard(live.x, live.pop.params, a)[0]
+    hh = X.where(positive, h, X.zeros_like(h))
+    y = live.apply(live.x, a, hh)
+    g1 = G.guard(y, live.pop.params, a + hh)[0]
+    finite = X.isfinite(g1)
+    cross = positive & finite & _crossed(G.DIRECTION, g0, g1)
+    out = X.full(h.shape, float("inf"))
+    # a flow that blows up before the segment's end: bisect for a finite point on the fired side
+    blow = positive & ~finite
+    if bool(X.any(blow)):
+        lo = X.zeros_like(h)
+        hi = X.copy(hh)
+        found = X.zeros_bool(h.shape)
+        end = X.copy(hh)
+        gend = X.copy(g1)
+        for _ in range(80):
+            mid = 0.5 * (lo + hi)
+            ym = live.apply(live.x, a, mid)
+            gm = G.guard(ym, live.pop.params, a + mid)[0]
+            todo = blow & ~found
+            nonfin = todo & ~X.isfinite(gm)
+            hit = todo & X.isfinite(gm) & _crossed(G.DIRECTION, g0, gm)
+            hi = X.where(nonfin, mid, hi)
+            lo = X.where(todo & ~nonfin & ~hit, mid, lo)
+            end = X.where(hit, mid, end)
+            gend = X.where(hit, gm, gend)
+            found = found | hit
+        cross = cross | found
+        hh = X.where(found, end, hh)
+        g1 = X.where(found, gend, g1)
+    if bool(X.any(cross)):
+        rows, cols = X.nonzero(cross)
+        xs = _take(live.x, rows, cols)
+        root = _locate(live, xs, a[rows, cols], hh[rows, cols], g0[rows, cols], g1[rows, cols])
+        out[rows, cols] = a[rows, cols] + root
+    return out
+
+
+class Record:
+    """One logged event for a set of trials (the rows of its arrays)."""
+
+    def __init__(self, kind, step, trials, time, pop, **kw):
+        self.kind = kind
+        self.step = step
+        self.trials = trials
+        self.time = time
+        self.pop = pop
+        self.__dict__.update(kw)
+
+
+class Run:
+    pass
+
+
+def forward(net, dt, max_spikes=100000):
+    """Runs every trial of `net` on the grid of step dt; returns a Run for `backward`."""
+    B = len(net.trials)
+    dt = float(dt)
+    T = net.duration
+    steps = max(1, int(-(-(T / dt - 1e-9) // 1)))
+    names = [p.name for p in net.populations]
+    loss = net.loss
+    lp = names.index(loss["population"])
+    integral = loss["kind"] in ("state-integral", "ce-integral")
+    lives = [_Live(i, p, B, dt, i == lp, integral) for i, p in enumerate(net.populations)]
+    L0 = lives[lp]
+    ls = L0.model.STATES.index(loss["state"]) if "state" in loss else -1
+    for j, pr in enumerate(net.projections):
+        if pr["to"] in names:
+            lives[names.index(pr["to"])].inbound.append(j)
+        if pr["from"] in names:
+            lives[names.index(pr["from"])].outbound.append(j)
+    if loss["kind"] == "ce-max":
+        L0.grid_values = X.full((steps + 1, B, L0.n), 0.0)
+    firing = [L for L in lives if L.model.HAS_GUARD]
+
+    # input arrivals per target population: sorted (time, projection, order), padded with inf
+    pending = {}
+    for L in lives:
+        rows = []
+        for b, trial in enumerate(net.trials):
+            items = []
+            seq = 0
+            for j, pr in enumerate(net.projections):
+                if pr["from"] in net.inputs:
+                    for (t, i) in trial["inputs"].get(pr["from"], []):
+                        if pr["to"] == L.pop.name:
+                            items.append((float(t), seq, j, int(i)))
+                        seq += 1
+            items.sort()
+            rows.append(items)
+        K = max([len(r) for r in rows] + [1])
+        tim = X.full((B, K), float("inf"))
+        proj = X.full_int((B, K), -1)
+        src = X.full_int((B, K), -1)
+        for b, r in enumerate(rows):
+            for k, (t, _, j, i) in enumerate(r):
+                tim[b, k] = t
+                proj[b, k] = j
+                src[b, k] = i
+        pending[L.index] = (tim, proj, src, X.full_int((B,), 0))
+
+    def next_input(L):
+        tim, _, _, ptr = pending[L.index]
+        K = tim.shape[1]
+        return X.where(ptr < K, X.gather_rows(tim, X.clamp_int(ptr, K - 1)), X.full((B,), float("inf")))
+
+    run = Run()
+    run.net, run.dt, run.steps, run.lives, run.records = net, dt, steps, lives, []
+    run.spikes = [{L.pop.name: [] for L in lives} for _ in range(B)]
+    run.loss_integral = X.full((B,), 0.0)
+    values = X.full((B, L0.n), float("nan") if loss["kind"] in ("spike-time", "ce-first-spike") else 0.0)
+    spike_count = X.full_int((B,), 0)
+    records = run.records
+    all_rows = X.arange(B)
+
+    def advance(L, rows, cols, to):
+        """Neurons (rows, cols) of L to time `to` (per row), integrating the loss on the way."""
+        a = L.tau[rows, cols] if cols is not None else L.tau[rows]
+        tt = to if cols is not None else to[:, None]
+        h = tt - a
+        h = X.where(h > 0, h, X.zeros_like(h))
+        xs = _take(L.x, rows, cols)
+        if L.loss_pop and integral:
+            acc = X.zeros_like(h)
+            for q in range(3):
+                X_ = L.apply(xs, a, GAUSS_NODES[q] * h)[ls]
+                if loss["kind"] == "state-integral":
+                    target = X.array(loss["target"])
+                    tgt = target[cols] if cols is not None else target[None, :]
+                    acc = acc + GAUSS_WEIGHTS[q] * 0.5 * (X_ - tgt) ** 2
+                else:
+                    acc = acc + GAUSS_WEIGHTS[q] * X_
+            if loss["kind"] == "state-integral":
+                part = h * acc
+                run.loss_integral[rows] = run.loss_integral[rows] + (part if cols is not None else X.sum_last(part))
+            elif cols is not None:
+                values[rows, cols] = values[rows, cols] + h * acc
+            else:
+                values[rows] = values[rows] + h * acc
+        _put(L.x, rows, L.apply(xs, a, h), cols)
+        if cols is not None:
+            L.tau[rows, cols] = a + h
+        else:
+            L.tau[rows] = X.maximum(L.tau[rows], tt + X.zeros_like(a))
+
+    for step in range(steps):
+        t_end = T if step == steps - 1 else (step + 1) * dt
+        for L in lives:
+            L.start[:] = -1
+            if L.needs_starts:
+                L.checkpoints.append([X.copy(v) for v in L.x])
+        if L0.grid_values is not None and step == 0:
+            L0.grid_values[0] = L0.x[ls]
+        active = X.ones_bool((B,))
+        while bool(X.any(active)):
+            nxt = {L.index: next_input(L) for L in lives}
+            tin = X.full((B,), float("inf"))
+            for v in nxt.values():
+                tin = X.minimum(tin, v)
+            tin = X.where(tin < t_end, tin, X.full((B,), float("inf")))
+            best = X.full((B,), float("inf"))
+            best_pop = X.full_int((B,), -1)
+            best_n = X.full_int((B,), -1)
+            for L in firing:
+                e = X.minimum(nxt[L.index], X.full((B,), t_end))
+                s = _crossing_times(L, e)
+                s = X.where(active[:, None], s, X.full(s.shape, float("inf")))
+                m, idx = X.min_last(s)
+                better = m < best
+                best = X.where(better, m, best)
+                best_pop = X.where(better, X.full_int((B,), L.index), best_pop)
+                best_n = X.where(better, idx, best_n)
+            spiking = active & (best <= tin) & X.isfinite(best)
+            arriving = active & ~spiking & X.isfinite(tin)
+            active = spiking | arriving
+            for L in firing:
+                rows = X.nonzero1(spiking & (best_pop == L.index))
+                if len(rows) == 0:
+                    continue
+                n = best_n[rows]
+                s = best[rows]
+                advance(L, rows, n, s)
+                x_pre = _take(L.x, rows, n)
+                first = ~L.fired[rows, n]
+                L.fired[rows, n] = True
+                r = len(records)
+                records.append(Record("spike", step, rows, s, L.index, neuron=n, x_pre=x_pre, first=first, start=L.start[rows, n]))
+                _put(L.x, rows, L.model.spike_jump(x_pre, L.pop.params, s), n)
+                L.start[rows, n] = r
+                after = L.model.guard(_take(L.x, rows, n), L.pop.params, s)[0]
+                if bool(X.any(~X.isfinite(after) | _fired_side(L.model.DIRECTION, after))):
+                    raise GridError("%s: a neuron is on the fired side of its threshold right after its own spike; its spike jump must leave it below the threshold" % L.pop.name)
+                for b, t, i in zip(X.tolist(rows), X.tolist(s), X.tolist(n)):
+                    run.spikes[b][L.pop.name].append((t, i))
+                if L.loss_pop and loss["kind"] in ("spike-time", "ce-first-spike"):
+                    values[rows, n] = X.where(first, s, values[rows, n])
+                spike_count[rows] = spike_count[rows] + 1
+                if bool(X.any(spike_count > max_spikes)):
+                    raise GridError("more than %d spikes in a trial: stopped (check the weights' units)" % max_spikes)
+                for j in L.outbound:
+                    _deliver(run, lives, names, net, j, rows, n, s, r, step, advance)
+            for L in lives:
+                tim, proj, src, ptr = pending[L.index]
+                rows = X.nonzero1(arriving & (tin == nxt[L.index]))
+                if len(rows) == 0:
+                    continue
+                # this population's input arrival is the trial's next event (the first in queue order on ties)
+                arriving[rows] = False
+                K = tim.shape[1]
+                p = ptr[rows]
+                j = X.gather_rows(proj[rows], p)
+                i = X.gather_rows(src[rows], p)
+                t = X.gather_rows(tim[rows], p)
+                ptr[rows] = X.clamp_int(p + 1, K)
+                for jj in sorted(set(X.tolist(j))):
+                    sel = j == jj
+                    _arrive(run, lives, names, net, jj, rows[sel], i[sel], t[sel], -1, step, advance)
+        for L in lives:
+            advance(L, all_rows, None, X.full((B,), t_end))
+            L.tau[:] = t_end
+            if L.grid_values is not None:
+                L.grid_values[step + 1] = L.x[ls]
+            for v in L.x:
+                if not bool(X.all(X.isfinite(v))):
+                    raise GridError("%s: a state is not finite at t = %g s" % (L.pop.name, t_end))
+
+    # the loss per trial
+    coef = X.full((B, L0.n), 0.0)
+    kind = loss["kind"]
+    if kind == "state-integral":
+        per_trial = run.loss_integral
+    elif kind == "spike-time":
+        target = X.array(loss["targets_s"])[None, :]
+        fired = X.isfinite(values)
+        per_trial = X.sum_last(X.where(fired, 0.5 * (values - target) ** 2, X.zeros_like(values)))
+    else:
+        if kind == "ce-max":
+            values = X.max_first(L0.grid_values)
+            run.argmax = X.argmax_first(L0.grid_values)
+        if kind == "ce-first-spike":
+            z = -X.where(X.isfinite(values), values, X.full(values.shape, T)) / loss["tau_s"]
+        else:
+            z = values
+        labels = X.array_int([tr.get("label", 0) for tr in net.trials])
+        zmax = X.max_last(z)
+        ez = X.exp(z - zmax[:, None])
+        total = X.sum_last(ez)
+        per_trial = X.log(total) + zmax - X.gather_rows(z, labels)
+        p = ez / total[:, None]
+        onehot = X.onehot(labels, L0.n)
+        c = p - onehot
+        if kind == "ce-first-spike":
+            c = X.where(X.isfinite(values), -c / loss["tau_s"], X.zeros_like(c))
+        coef = c
+    run.values = values
+    run.coef = coef
+    run.per_trial = per_trial
+    run.loss = float(X.sum(per_trial))
+    return run
+
+
+def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
+    """An arrival on projection j from sender `src` (per row) at time t (per row)."""
+    pr = net.projections[j]
+    L = lives[names.index(pr["to"])]
+    advance(L, rows, None, t)
+    x_pre = _take(L.x, rows)
+    r = len(run.records)
+    run.records.append(Record("arrival", step, rows, t, L.index, projection=j, source=src, cause=cause, x_pre=x_pre,
+                              starts=X.copy(L.start[rows]) if L.needs_starts else None))
+    w = X.transpose(pr["weights"][:, src])  # (rows, n): weight from each row's sender into every neuron
+    post = list(L.model.incoming_jump(x_pre, L.pop.params, t[:, None], w))
+    if pr["from"] == pr["to"]:
+        selfmask = X.arange(L.n)[None, :] == src[:, None]
+        post = [X.where(selfmask, a, b) for a, b in zip(x_pre, post)]
+    _put(L.x, rows, post)
+    L.start[rows] = r
+
+
+def _deliver(run, lives, names, net, j, rows, n, s, cause, step, advance):
+    _arrive(run, lives, names, net, j, rows, n, s, cause, step, advance)
+
+
+def backward(run, spike_time_grad=None):
+    """The exact gradient of `run`'s loss: {"loss", "weights": [dL/dW per projection], "params":
+    {population: {name: dL/dp}}, "event_times": per record (dL/dt of each spike and arrival)}."""
+    net = run.net
+    lives = run.lives
+    names = [L.pop.name for L in lives]
+    loss = net.loss
+    B = len(net.trials)
+    lp = names.index(loss["population"])
+    L0 = lives[lp]
+    ls = L0.model.STATES.index(loss["state"]) if "state" in loss else -1
+    integral = loss["kind"] in ("state-integral", "ce-integral")
+    dt = run.dt
+    records = run.records
+    Tsens = [X.zeros_like(rec.time) for rec in records]
+    gW = [X.zeros_like(pr["weights"]) for pr in net.projections]
+    lam = {L.index: [X.full((B, L.n), 0.0) for _ in range(L.S)] for L in lives}
+    cur = {L.index: X.full((B, L.n), 0.0) for L in lives}
+    grads = {L.index: [X.full((B, L.n), 0.0) for _ in L.model.GRAD_PARAMS] for L in lives}
+    coef = run.coef
+    if loss["kind"] == "state-integral":
+        target = X.array(loss["target"])
+
+    def dl(cols, X_):
+        if loss["kind"] == "state-integral":
+            return X_ - (target[cols] if cols is not None else target[None, :])
+        return coef[cols] if cols is not None else coef
+
+    def lval(cols, X_):
+        if loss["kind"] == "state-integral":
+            return 0.5 * (X_ - (target[cols] if cols is not None else target[None, :])) ** 2
+        return (coef[cols] if cols is not None else coef) * X_
+
+    def post_state(L, ref, rows, cols):
+        """State right after record `ref` for (rows, cols) of L; ref is per element (an int array)."""
+        out = [X.full(rows.shape, 0.0) for _ in range(L.S)]
+        for r in sorted(set(X.tolist(ref))):
+            sel = ref == r
+            rec = records[r]
+            rr, cc = rows[sel], cols[sel]
+            slot = X.search(rec.trials, rr)
+            if rec.kind == "spike":
+                xp = [v[slot] for v in rec.x_pre]
+                vals = L.model.spike_jump(xp, L.pop.params, rec.time[slot])
+            else:
+                pr = net.projections[rec.projection]
+                xp = [v[slot, cc] for v in rec.x_pre]
+                w = pr["weights"][cc, rec.source[slot]]
+                vals = list(L.model.incoming_jump(xp, L.pop.params, rec.time[slot], w))
+                if pr["from"] == pr["to"]:
+                    same = cc == rec.source[slot]
+                    vals = [X.where(same, a, b) for a, b in zip(xp, vals)]
+            for i in range(L.S):
+                out[i][sel] = vals[i]
+        return out
+
+    def start_of(L, ref, rows, cols, step):
+        """(a, x_a) of segments started at `ref` (-1: the grid point of `step`)."""
+        a = X.full(rows.shape, step * dt)
+        xa = [v[rows, cols] for v in L.checkpoints[step]] if L.needs_starts else None
+        has = ref >= 0
+        if bool(X.any(has)):
+            r_idx = X.nonzero1(has)
+            px = post_state(L, ref[r_idx], rows[r_idx], cols[r_idx])
+            for i in range(L.S):
+                xa[i][r_idx] = px[i]
+            for r in sorted(set(X.tolist(ref[r_idx]))):
+                sel = r_idx[ref[r_idx] == r]
+                rec = records[r]
+                a[sel] = rec.time[X.search(rec.trials, rows[sel])]
+        return a, xa
+
+    def flow_dot(L, x, t, lam_):
+        f = L.model.flow(x, L.pop.params, t)
+        s = 0.0
+        for i in range(L.S):
+            s = s + lam_[i] * f[i]
+        return s
+
+    def add_T(ref, rows, value):
+        """T[ref] += value for the elements whose ref >= 0 (ref, rows, value aligned)."""
+        for r in sorted(set(X.tolist(ref))):
+            if r < 0:
+                continue
+            sel = ref == r
+            rec = records[r]
+            slot = X.search(rec.trials, rows[sel])
+            Tsens[r] = X.index_add(Tsens[r], slot, value[sel])
+
+    def segment_back(L, rows, cols, a, ref, step):
+        """lambda(b-) -> lambda(a+) across segments [a, cur] of (rows, cols) started at ref."""
+        h = cur[L.index][rows, cols] - a
+        lam_end = [v[rows, cols] for v in lam[L.index]]
+        g = [X.zeros_like(h) for _ in L.model.GRAD_PARAMS]
+        if L.needs_starts:
+            _, xa = start_of(L, ref, rows, cols, step)
+            lam_start, dh, da = L.vjp(xa, a, h, lam_end, g)
+            start_t = da - dh
+            if L.loss_pop and integral:
+                for q in range(3):
+                    u = GAUSS_NODES[q] * h
+                    w = GAUSS_WEIGHTS[q]
+                    X_ = L.apply(xa, a, u)[ls]
+                    src = [X.zeros_like(h) for _ in range(L.S)]
+                    src[ls] = h * w * dl(cols, X_)
+                    back, qh, qa = L.vjp(xa, a, u, src, g)
+                    lam_start = [p + b2 for p, b2 in zip(lam_start, back)]
+                    start_t = start_t + qa - GAUSS_NODES[q] * qh - w * lval(cols, X_)
+        else:
+            zero = [X.zeros_like(h) for _ in range(L.S)]
+            lam_start, _, _ = L.vjp(zero, a, h, lam_end, g)
+            start_t = X.zeros_like(h)
+            has = ref >= 0
+            if bool(X.any(has)):
+                idx = X.nonzero1(has)
+                xp = post_state(L, ref[idx], rows[idx], cols[idx])
+                start_t[idx] = -flow_dot(L, xp, a[idx], [v[idx] for v in lam_start])
+        for q in range(len(g)):
+            grads[L.index][q][rows, cols] = grads[L.index][q][rows, cols] + g[q]
+        add_T(ref, rows, start_t)
+        _put(lam[L.index], rows, lam_start, cols)
+        cur[L.index][rows, cols] = a
+
+    def end_term(L, rows, cols, rec_time, x_pre, ref, step, lam_end, want_rate):
+        """dL/d(end time) of segments ending at an event (time per element) for lambda(e-); and dG/dh there."""
+        if not L.needs_starts:
+            rate = list(L.model.flow(x_pre, L.pop.params, rec_time)) if want_rate else None
+            return flow_dot(L, x_pre, rec_time, lam_end), rate
+        a, xa = start_of(L, ref, rows, cols, step)
+        h = rec_time - a
+        _, s, _ = L.vjp(xa, a, h, lam_end, None)
+        rate = L.apply_rate(xa, a, h)[1] if want_rate else None
+        if L.loss_pop and integral:
+            for q in range(3):
+                y, r = L.apply_rate(xa, a, GAUSS_NODES[q] * h)
+                X_ = y[ls]
+                s = s + GAUSS_WEIGHTS[q] * (lval(cols, X_) + h * GAUSS_NODES[q] * dl(cols, X_) * r[ls])
+        return s, rate
+
+    event_times = []
+    e = len(records) - 1
+    allrows = X.arange(B)
+    for step in range(run.steps - 1, -1, -1):
+        t_end = net.duration if step == run.steps - 1 else (step + 1) * dt
+        for L in lives:
+            cur[L.index][:] = t_end
+        if loss["kind"] == "ce-max":
+            hit = run.argmax == step + 1
+            lam[lp][ls] = lam[lp][ls] + X.where(hit, coef, X.zeros_like(coef))
+        while e >= 0 and records[e].step == step:
+            rec = records[e]
+            L = lives[rec.pop]
+            rows = rec.trials
+            if rec.kind == "arrival":
+                pr = net.projections[rec.projection]
+                nrow = len(rows)
+                R = X.repeat_rows(rows, L.n)
+                C = X.tile_cols(L.n, nrow)
+                segment_back(L, R, C, X.repeat_rows(rec.time, L.n), X.full_int(R.shape, e), step)
+                lam_post = [v[rows] for v in lam[L.index]]
+                w = X.transpose(pr["weights"][:, rec.source])
+                out = L.model.incoming_vjp(rec.x_pre, L.pop.params, rec.time[:, None], w, lam_post)
+                S = L.S
+                keep = X.ones_bool((nrow, L.n))
+                if pr["from"] == pr["to"]:
+                    keep = X.arange(L.n)[None, :] != rec.source[:, None]
+                lx = [X.where(keep, out[i], lam_post[i]) for i in range(S)]
+                lt = X.where(keep, out[S], X.zeros_like(out[S]))
+                G = len(L.model.GRAD_PARAMS)
+                for q in range(G):
+                    grads[L.index][q][rows] = grads[L.index][q][rows] + X.where(keep, out[S + 1 + q], X.zeros_like(lt))
+                lw = X.where(keep, out[S + 1 + G], X.zeros_like(lt))
+                gW[rec.projection] = X.scatter_cols(gW[rec.projection], rec.source, lw)
+                _put(lam[L.index], rows, lx)
+                starts = rec.starts if rec.starts is not None else X.full_int((nrow, L.n), -1)
+                et, _ = end_term(L, R, C, X.repeat_rows(rec.time, L.n), [X.flatten(v) for v in rec.x_pre], X.flatten(starts), step,
+                                 [X.flatten(v) for v in lx], False)
+                Tsens[e] = Tsens[e] + X.sum_last(lt) + X.sum_last(X.reshape(et, (nrow, L.n)))
+                if rec.cause >= 0:
+                    slot = X.search(records[rec.cause].trials, rows)
+                    Tsens[rec.cause] = X.index_add(Tsens[rec.cause], slot, Tsens[e])
+                event_times.append(("arrival", e, Tsens[e]))
+            else:
+                n = rec.neuron
+                segment_back(L, rows, n, rec.time, X.full_int(rows.shape, e), step)
+                lam_post = [v[rows, n] for v in lam[L.index]]
+                out = L.model.spike_vjp(rec.x_pre, L.pop.params, rec.time, lam_post)
+                S = L.S
+                mu = list(out[:S])
+                Tsens[e] = Tsens[e] + out[S]
+                G = len(L.model.GRAD_PARAMS)
+                for q in range(G):
+                    grads[L.index][q][rows, n] = grads[L.index][q][rows, n] + out[S + 1 + q]
+                if rec.pop == lp:
+                    if loss["kind"] == "spike-time":
+                        tgt = X.array(loss["targets_s"])[n]
+                        Tsens[e] = Tsens[e] + X.where(rec.first, rec.time - tgt, X.zeros_like(rec.time))
+                    if loss["kind"] == "ce-first-spike":
+                        Tsens[e] = Tsens[e] + X.where(rec.first, coef[rows, n], X.zeros_like(rec.time))
+                if spike_time_grad is not None:
+                    Tsens[e] = Tsens[e] + spike_time_grad(e, rec)
+                event_times.append(("spike", e, X.copy(Tsens[e])))
+                et, rate = end_term(L, rows, n, rec.time, rec.x_pre, rec.start, step, mu, True)
+                D = Tsens[e] + et
+                gg = L.model.guard_grad(rec.x_pre, L.pop.params, rec.time)
+                gdot = gg[S]
+                for i in range(S):
+                    gdot = gdot + gg[i] * rate[i]
+                phi = -D / gdot
+                _put(lam[L.index], rows, [mu[i] + phi * gg[i] for i in range(S)], n)
+                for q in range(G):
+                    grads[L.index][q][rows, n] = grads[L.index][q][rows, n] + phi * gg[S + 1 + q]
+            e -= 1
+        for L in lives:
+            R = X.repeat_rows(allrows, L.n)
+            C = X.tile_cols(L.n, B)
+            segment_back(L, R, C, X.full(R.shape, step * dt), X.full_int(R.shape, -1), step)
+    params = {}
+    for L in lives:
+        params[L.pop.name] = {p: float(X.sum(grads[L.index][q])) for q, p in enumerate(L.model.GRAD_PARAMS)}
+    return {"loss": run.loss, "weights": gW, "params": params, "event_times": event_times, "records": records}
