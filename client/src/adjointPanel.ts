@@ -13,6 +13,8 @@ import { renderPage } from '../../server/src/outputs/preview';
 /** The panel's view type (package.json activationEvents has onWebviewPanel for it). */
 export const ADJOINT_VIEW_TYPE = 'saltus.adjoint';
 const SHOWN_KEY = 'saltus.adjointPreview.uri';
+/** How often a restored panel asks again while the language server does not have the document yet (every 250 ms). */
+const RESTORE_TRIES = 40;
 
 let panel: vscode.WebviewPanel | undefined;
 let shown: vscode.Uri | undefined;
@@ -56,9 +58,12 @@ export function restoreAdjoint(context: vscode.ExtensionContext, client: Languag
       if (!saved || panel) { p.dispose(); return; }
       const uri = vscode.Uri.parse(saved);
       adopt(context, p, uri);
-      // the language server knows only open documents: open it (in the background)
+      // the language server knows only open documents: open it (in the background); the
+      // client sends it to the server as it starts, so ask again for a few seconds
       try { await vscode.workspace.openTextDocument(uri); } catch { /* gone: refresh says so */ }
-      await refresh(context, client);
+      for (let i = 0; i < RESTORE_TRIES && (await refresh(context, client)) === 'not open' && panel === p; i++) {
+        await new Promise((r) => setTimeout(r, 250));
+      }
     },
   });
 }
@@ -72,20 +77,23 @@ export function watchAdjoint(context: vscode.ExtensionContext, client: LanguageC
   });
 }
 
-async function refresh(context: vscode.ExtensionContext, client: LanguageClient): Promise<void> {
+/** Renders the preview of the shown document; says whether the server had it. */
+async function refresh(context: vscode.ExtensionContext, client: LanguageClient): Promise<'shown' | 'not open' | 'failed' | 'stale'> {
   const p = panel, uri = shown;
-  if (!p || !uri) return;
+  if (!p || !uri) return 'stale';
   const name = uri.path.split('/').pop() ?? uri.toString();
   p.title = `Adjoint · ${name}`;
   const css = p.webview.asWebviewUri(vscode.Uri.joinPath(context.extensionUri, 'dist', 'katex', 'katex.min.css'));
   const nonce = randomBytes(16).toString('base64');
   try {
     const r = await client.sendRequest<AdjointPreview | null>('saltus/adjointPreview', { uri: uri.toString() });
-    if (p !== panel || uri !== shown) return;
+    if (p !== panel || uri !== shown) return 'stale';
     const body = r ? r.body : '<p class="empty">This document is not open in the editor.</p>';
     p.webview.html = renderPage(body, { title: r?.title ?? 'Derived adjoint', subtitle: r?.subtitle ?? name, katexCssHref: css.toString(), cspSource: p.webview.cspSource, nonce });
+    return r ? 'shown' : 'not open';
   } catch (e) {
     p.webview.html = renderPage(`<p class="empty">The language server could not derive the adjoint: ${String((e as Error).message).replace(/[<>&]/g, '')}</p>`,
       { title: 'Derived adjoint', katexCssHref: css.toString(), cspSource: p.webview.cspSource, nonce });
+    return 'failed';
   }
 }

@@ -87,10 +87,11 @@ export function registerCrossCheckTests(client: LanguageClient): vscode.Disposab
       return;
     }
     const rows: (GradientRow | ParamRow)[] = [...result.gradients, ...result.params];
-    const children = rows.map((r) => {
+    const children = rows.map((r, k) => {
       const id = `${item.id}#${rowLabel(r)}`;
       const child = item.children.get(id) ?? controller.createTestItem(id, rowLabel(r), scenarioUri);
       child.description = `adjoint ${fmt(r.adjoint)}`;
+      child.sortText = String(k).padStart(5, '0'); // the report's order: weights by projection, then parameters
       return { child, row: r };
     });
     item.children.replace(children.map((c) => c.child));
