@@ -16,7 +16,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { expect, lineOf, Skip } from './checkKit.mjs';
 import { checkGenerateCode, checkGenerateCodeLens, checkGradients } from './vscodeDerived.e2e.mjs';
-import { checkCheckTask, checkRestoredPreview, checkTestExplorer, checkWalkthrough } from './vscodeConventions.e2e.mjs';
+import { checkCheckTask, checkFixAll, checkRestoredPreview, checkTestExplorer, checkWalkthrough } from './vscodeConventions.e2e.mjs';
 
 export { Skip };
 
@@ -205,6 +205,7 @@ export const CHECKS = [
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },
+  { name: 'vscode: "Fix All" applies every fix that needs no choice (source.fixAll.saltus)', run: checkFixAll },
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
   { name: 'vscode: "Generate code…" from the palette writes the NumPy files the CLI writes', run: checkGenerateCode },
   { name: 'vscode: the "generate code…" CodeLens writes one model\'s C99 files', run: checkGenerateCodeLens },

@@ -1,7 +1,7 @@
 // End-to-end checks of the editor conventions in real VS Code (listed in CHECKS of
-// vscode.e2e.mjs): the getting-started walkthrough, the adjoint preview restored after a
-// window reload, the scenarios as tests in the test explorer, and the `saltus: check` task
-// whose problem matcher fills the Problems panel.
+// vscode.e2e.mjs): "Fix All" (source.fixAll.saltus), the getting-started walkthrough, the
+// adjoint preview restored after a window reload, the scenarios as tests in the test
+// explorer, and the `saltus: check` task whose problem matcher fills the Problems panel.
 // Oracles, independent of the UI under test: the installed extension's package.json (the
 // walkthrough's steps), the packaged CLI of the same build (`saltus check --format json` for
 // the task's problems, `saltus gradcheck --format json` for the rows and verdict of each
@@ -10,9 +10,41 @@
 // screenshots go to the run's screenshot folder like every other check's.
 import { existsSync, readdirSync } from 'node:fs';
 import { join } from 'node:path';
-import { expect, Skip } from './checkKit.mjs';
+import { expect, lineOf, Skip } from './checkKit.mjs';
 
 const frameOf = (t) => `iframe.webview.ready[src*="extensionId=${t.manifest.publisher}.${t.manifest.name}"]`;
+
+/** "Fix All" on the mistakes sample applies each fix that needs no choice; the error without a fix stays. */
+export async function checkFixAll(t) {
+  const { ui } = t;
+  const file = 'mistakes.saltus';
+  const text = t.sample(file);
+  const cli = t.cliDiagnostics(file).filter((d) => d.severity === 'error');
+  const unfixable = cli.filter((d) => d.code === 'dimensioned-argument');
+  expect(unfixable.length === 1, `the CLI reports ${unfixable.length} dimensioned-argument errors in ${file}`);
+  await ui.tidy();
+  await ui.openFile(file);
+  await ui.page.locator('.editor-group-container.active .squiggly-error').first().waitFor({ timeout: 30_000 });
+  const flow = lineOf(text, 'dV/dt = I - V'), typo = lineOf(text, 'tau_sn'), jump = lineOf(text, 'v := 0');
+  await ui.goTo(flow, 1);
+  expect(await ui.runCommand('Fix All'), 'the palette has no "Fix All"');
+  // the duplicate's line goes away, so look the lines up by their new text
+  let shown = [];
+  for (const until = Date.now() + 15_000; Date.now() < until; await ui.page.waitForTimeout(200)) {
+    shown = (await ui.visibleLines()).map((l) => l.text.trim());
+    if (shown.includes('dI/dt = -I / tau_s')) break;
+  }
+  for (const want of ['dV/dt = (I - V) / tau_m', 'dI/dt = -I / tau_s', 'V := 0']) expect(shown.includes(want), `after Fix All no line reads "${want}":\n${shown.join('\n')}`);
+  expect(!shown.some((l) => l.startsWith('param tau_m = 10')), 'the second declaration of tau_m is still there');
+  let errors = [];
+  for (const until = Date.now() + 15_000; Date.now() < until; await ui.page.waitForTimeout(250)) {
+    errors = (await ui.problems()).filter((r) => r.label.startsWith('Error: '));
+    if (errors.length === 1) break;
+  }
+  expect(errors.length === 1 && errors[0].label.includes(unfixable[0].message), `after Fix All Problems lists ${JSON.stringify(errors.map((e) => e.label))}; only the exp error (no fix) should remain`);
+  await ui.runCommand('File: Revert File');
+  return `Fix All changed lines ${flow}, ${typo}, ${jump} and removed the duplicate; 1 error left ("${unfixable[0].message.slice(0, 60)}…"), as the CLI has no fix for it`;
+}
 
 /** Waits for a quick pick row that contains `text`, clicks it, and returns the row's text. */
 async function pickRow(ui, text) {
