@@ -25,7 +25,7 @@ export async function checkFixAll(t) {
   await ui.tidy();
   await ui.openFile(file);
   await ui.page.locator('.editor-group-container.active .squiggly-error').first().waitFor({ timeout: 30_000 });
-  const flow = lineOf(text, 'dV/dt = I - V'), typo = lineOf(text, 'tau_sn'), jump = lineOf(text, 'v := 0');
+  const flow = lineOf(text, 'dV/dt = I - V'), typo = lineOf(text, 'dI/dt = -I / tau_sn'), jump = lineOf(text, 'v := 0');
   await ui.goTo(flow, 1);
   expect(await ui.runCommand('Fix All'), 'the palette has no "Fix All"');
   // the duplicate's line goes away, so look the lines up by their new text
