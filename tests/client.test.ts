@@ -1,12 +1,20 @@
 // Consistency of the VS Code extension's manifest (package.json) with the files and code it
 // points at: contributed paths exist (skipped with a note while another part is unwritten),
 // grammar scope names agree, every command has a title and category and is registered by
-// client/src/extension.ts (and nothing else is), configuration keys are documented, and
-// .vscodeignore keeps every file the manifest needs. Rules from VS Code's extension manifest
-// reference (contributes.*, capabilities.*), from memory.
+// client/src/extension.ts (and nothing else is), configuration keys are documented, the
+// walkthrough's media exist and its links name contributed commands, the `$saltus` problem
+// matcher reads the real CLI's output line for line (checked against the CLI's own JSON),
+// and .vscodeignore keeps every file the manifest needs. Rules from VS Code's extension
+// manifest reference (contributes.*, capabilities.*), from memory.
+import { spawnSync } from 'node:child_process';
 import { existsSync, readFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { NEW_MODEL_TEXT } from '../client/src/newModelText';
+import { checkFile } from '../server/src/cli/commands/check';
+import { textReport } from '../server/src/cli/report/textReport';
+import { readSourceFiles } from '../server/src/cli/sourceFiles';
 
 const root = resolve(__dirname, '..');
 const pkg = JSON.parse(readFileSync(join(root, 'package.json'), 'utf8'));
@@ -45,10 +53,16 @@ const contributedFiles: [string, string][] = [
 ];
 
 describe('package.json manifest', () => {
-  it('points main at the bundled client, bin at the CLI, and lets VS Code infer activation', () => {
+  it('points main at the bundled client, bin at the CLI, and lists only the activation VS Code cannot infer', async () => {
+    const { ALLOWED_ACTIVATION } = await import(join(root, 'scripts/package.mjs')) as { ALLOWED_ACTIVATION: string[] };
     expect(pkg.main).toBe('./dist/client.js');
     expect(pkg.bin).toEqual({ saltus: './dist/cli.js' });
-    expect(pkg.activationEvents).toBeUndefined();
+    expect(pkg.activationEvents).toEqual(ALLOWED_ACTIVATION);
+    // the restored preview: the serializer's view type is the one the activation event names
+    const panel = readFileSync(join(root, 'client/src/adjointPanel.ts'), 'utf8');
+    const viewType = /ADJOINT_VIEW_TYPE = '([^']+)'/.exec(panel)?.[1];
+    expect(pkg.activationEvents).toContain(`onWebviewPanel:${viewType}`);
+    expect(panel).toContain('registerWebviewPanelSerializer(ADJOINT_VIEW_TYPE');
     const build = readFileSync(join(root, 'scripts/build.mjs'), 'utf8');
     for (const out of ['dist/client.js', 'dist/cli.js', 'dist/server.js']) expect(build).toContain(`'${out}'`);
     expect(extensionSource).toContain("path.join('dist', 'server.js')");
@@ -126,8 +140,90 @@ describe('package.json manifest', () => {
     const lines = readFileSync(join(root, '.vscodeignore'), 'utf8').split('\n').map((l) => l.trim());
     expect(lines).toContain('**');
     const kept = new Set(lines.filter((l) => l.startsWith('!')).map((l) => l.slice(1)));
-    const needed = [pkg.main, ...contributedFiles.map(([, p]) => p), './dist/server.js', './package.json'];
+    const needed = [pkg.main, ...contributedFiles.map(([, p]) => p), './dist/server.js', './dist/cli.js', './package.json'];
     for (const p of needed) expect(kept.has(p.replace(/^\.\//, '')), `${p} must be kept by a ! line`).toBe(true);
     expect(kept.has('dist/katex/**')).toBe(true);
+    expect(kept.has('media/walkthrough/**')).toBe(true);
+  });
+});
+
+describe('walkthrough', () => {
+  const walkthroughs = contributes.walkthroughs as { id: string; title: string; steps: { id: string; title: string; description: string; media: Record<string, string>; completionEvents?: string[] }[] }[];
+  const commandIds = new Set(contributes.commands.map((c: { command: string }) => c.command));
+
+  it('has steps whose media exist under media/walkthrough/ and whose links run contributed or built-in commands', () => {
+    expect(walkthroughs).toHaveLength(1);
+    const steps = walkthroughs[0]!.steps;
+    expect(steps.length).toBeGreaterThanOrEqual(5);
+    expect(new Set(steps.map((x) => x.id)).size).toBe(steps.length);
+    for (const step of steps) {
+      const files = Object.entries(step.media).filter(([k]) => k !== 'altText').map(([, v]) => v);
+      expect(files.length, step.id).toBe(1);
+      for (const f of files) {
+        expect(f.startsWith('media/walkthrough/'), f).toBe(true);
+        expect(existsSync(join(root, f)), f).toBe(true);
+        if (f.endsWith('.svg')) {
+          expect(step.media.altText?.length ?? 0, `${step.id}: an svg needs altText`).toBeGreaterThan(20);
+          expect(readFileSync(join(root, f), 'utf8')).not.toMatch(/<script|on\w+=|href="http/i);
+        }
+      }
+      const linked = [...step.description.matchAll(/\(command:([\w.]+)/g)].map((m) => m[1]!);
+      expect(linked.length, `${step.id} links no command`).toBeGreaterThan(0);
+      for (const c of linked) expect(c.startsWith('saltus.') ? commandIds.has(c) : /^workbench\./.test(c), `${step.id}: ${c}`).toBe(true);
+      for (const e of step.completionEvents ?? []) {
+        const cmd = /^onCommand:(.+)$/.exec(e)?.[1];
+        if (cmd?.startsWith('saltus.')) expect(commandIds.has(cmd), `${step.id}: ${e}`).toBe(true);
+      }
+    }
+  });
+
+  it('starts from a new model file that checks without a problem', () => {
+    const a = analyse(NEW_MODEL_TEXT);
+    expect(a.diagnostics.filter((d) => d.severity === 'error' || d.severity === 'warning')).toEqual([]);
+    expect(a.model.neurons.map((n) => n.name)).toEqual(['Cell']);
+  });
+});
+
+describe('the saltus check task and its problem matcher', () => {
+  const matcher = contributes.problemMatchers.find((m: { name: string }) => m.name === 'saltus');
+  const pattern = matcher.pattern as { regexp: string; file: number; line: number; column: number; severity: number; code: number; message: number };
+
+  it('is contributed as $saltus with a task type the client provides', () => {
+    expect(contributes.taskDefinitions.map((t: { type: string }) => t.type)).toEqual(['saltus']);
+    const task = readFileSync(join(root, 'client/src/checkTask.ts'), 'utf8');
+    expect(task).toContain("TASK_TYPE = 'saltus'");
+    expect(task).toContain("PROBLEM_MATCHER = '$saltus'");
+    expect(extensionSource).toContain('registerCheckTask(context)');
+  });
+
+  it('matches each diagnostic line of the real CLI output exactly once, and no other line', () => {
+    // the bundled CLI, as the task runs it; NO_COLOR as the task sets it
+    const files = ['samples/mistakes.saltus', 'samples/adex.saltus', 'samples/lif_current.saltus'];
+    const text = spawnSync(process.execPath, [join(root, 'dist/cli.js'), 'check', ...files], { cwd: root, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1' } });
+    const json = spawnSync(process.execPath, [join(root, 'dist/cli.js'), 'check', ...files, '--format', 'json'], { cwd: root, encoding: 'utf8' });
+    const report = JSON.parse(json.stdout) as { files: { path: string; diagnostics: { severity: string; code: string; message: string; range: { start: { line: number; character: number } } }[] }[] };
+    const re = new RegExp(pattern.regexp);
+    const matched = text.stdout.split('\n').map((l) => re.exec(l)).filter((m): m is RegExpExecArray => m !== null).map((m) => ({
+      file: m[pattern.file]!, line: Number(m[pattern.line]), column: Number(m[pattern.column]), severity: m[pattern.severity]!, code: m[pattern.code]!, message: m[pattern.message]!,
+    }));
+    const want = report.files.flatMap((f) => f.diagnostics.map((d) => ({ file: f.path, line: d.range.start.line + 1, column: d.range.start.character + 1, code: d.code, message: d.message, severity: d.severity })));
+    expect(want.length).toBeGreaterThan(5);
+    // JSON reports hints as info; the text line says hint
+    expect(matched.map((m) => ({ ...m, severity: m.severity === 'hint' ? 'info' : m.severity }))).toEqual(want);
+    expect(matched.some((m) => m.severity === 'error') && matched.some((m) => m.severity === 'warning') && matched.some((m) => m.severity === 'hint')).toBe(true);
+    // with colour on (a `saltus check` a user runs in a terminal task), the same lines once
+    // the terminal's escape codes are stripped, as VS Code does before matching
+    const coloured = textReport(files.map((f) => checkFile(readSourceFiles('check', [f], root)[0]!, undefined)), true);
+    expect(coloured).toMatch(/\u001b\[/);
+    const stripped = coloured.replace(/\u001b\[[0-9;]*m/g, '');
+    expect(stripped.split('\n').filter((l) => re.test(l)).length).toBe(want.length);
+  });
+
+  it('locates files from the workspace folder and never matches the caret, note or summary lines', () => {
+    expect(matcher.fileLocation).toEqual(['autoDetect', '${workspaceFolder}']);
+    const re = new RegExp(pattern.regexp);
+    for (const line of ['      dV/dt = I - V', '              ^^^^^', '  see samples/mistakes.saltus:12:9: first declared here', '  fix Divide the right side by \'tau_m\'', '1 file checked: 5 errors, 0 warnings, 2 hints']) {
+      expect(re.test(line), line).toBe(false);
+    }
   });
 });

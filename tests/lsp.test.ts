@@ -3,21 +3,19 @@
 // client (vscode-languageserver-protocol over vscode-jsonrpc streams). Also an in-process
 // server with an injected failing provider, to check that a handler exception is logged and
 // answered with an empty result.
-import { spawn, type ChildProcess } from 'node:child_process';
+import type { ChildProcess } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { PassThrough } from 'node:stream';
-import { build } from 'esbuild';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
-  createProtocolConnection, StreamMessageReader, StreamMessageWriter, type ProtocolConnection,
-  type PublishDiagnosticsParams, type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
+  createProtocolConnection, StreamMessageReader, StreamMessageWriter,
+  type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
 } from 'vscode-languageserver-protocol/node';
-import { LineIndex } from '../server/src/base/lineIndex';
 import { analysisKey, readSettings } from '../server/src/lsp/settings';
+import { Client, pos, root, startStdioServer, type StdioServer } from './helpers/lspClient';
 
-const root = join(__dirname, '..');
 const samplesDir = join(root, 'samples');
 const SAMPLES = existsSync(samplesDir) ? readdirSync(samplesDir).filter((f) => f.endsWith('.saltus')) : [];
 
@@ -36,63 +34,14 @@ neuron Sensor "τ-scaled LIF 🎯" {
 }
 `;
 
-class Client {
-  readonly diagnostics = new Map<string, PublishDiagnosticsParams[]>();
-  readonly logs: string[] = [];
-  private waiters: (() => void)[] = [];
-  settings: Record<string, unknown> = { timestep: '', diagnostics: { when: 'typing' } };
-  constructor(readonly conn: ProtocolConnection) {
-    conn.onNotification('textDocument/publishDiagnostics', (p: PublishDiagnosticsParams) => {
-      const list = this.diagnostics.get(p.uri) ?? [];
-      list.push(p);
-      this.diagnostics.set(p.uri, list);
-      this.wake();
-    });
-    conn.onNotification('window/logMessage', (p: { message: string }) => { this.logs.push(p.message); this.wake(); });
-    conn.onRequest('workspace/configuration', (p: { items: unknown[] }) => p.items.map(() => this.settings));
-    conn.onRequest('client/registerCapability', () => null);
-    conn.listen();
-  }
-  private wake(): void { const w = this.waiters; this.waiters = []; for (const f of w) f(); }
-  /** Resolves when `cond` holds (checked on each notification), rejects after `ms`. */
-  until<T>(cond: () => T | undefined, ms = 10_000, what = 'condition'): Promise<T> {
-    return new Promise((resolve, reject) => {
-      const timer = setTimeout(() => reject(new Error(`timed out waiting for ${what}`)), ms);
-      const check = (): void => {
-        const v = cond();
-        if (v !== undefined && v !== false) { clearTimeout(timer); resolve(v); } else this.waiters.push(check);
-      };
-      check();
-    });
-  }
-  diagnosticsFor(uri: string, version: number): Promise<PublishDiagnosticsParams> {
-    return this.until(() => this.diagnostics.get(uri)?.find((p) => p.version === version), 10_000, `diagnostics of ${uri} v${version}`);
-  }
-  open(uri: string, text: string, version = 1): void {
-    void this.conn.sendNotification('textDocument/didOpen', { textDocument: { uri, languageId: 'saltus', version, text } });
-  }
-}
-
-const pos = (text: string, needle: string, k = 0): { line: number; character: number } => {
-  const i = text.indexOf(needle);
-  if (i < 0) throw new Error(needle);
-  return new LineIndex(text).positionAt(i + k);
-};
-
 describe('language server over stdio', () => {
-  let dir = '';
+  let server: StdioServer;
   let proc: ChildProcess;
   let client: Client;
-  let stderr = '';
 
   beforeAll(async () => {
-    dir = mkdtempSync(join(tmpdir(), 'saltus-lsp-test-'));
-    const entry = join(dir, 'entry.ts');
-    writeFileSync(entry, `import { runLanguageServer } from ${JSON.stringify(join(root, 'server/src/lsp/main'))};\nrunLanguageServer();\n`);
-    await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: join(dir, 'server.js'), logLevel: 'silent' });
-    proc = spawn(process.execPath, [join(dir, 'server.js'), '--stdio'], { stdio: ['pipe', 'pipe', 'pipe'] });
-    proc.stderr!.on('data', (d) => { stderr += String(d); });
-    client = new Client(createProtocolConnection(new StreamMessageReader(proc.stdout!), new StreamMessageWriter(proc.stdin!)));
+    server = await startStdioServer();
+    ({ proc, client } = server);
     const init = await client.conn.sendRequest('initialize', {
       processId: process.pid, rootUri: null, workspaceFolders: null,
       capabilities: { workspace: { configuration: true, didChangeConfiguration: { dynamicRegistration: true } }, textDocument: { publishDiagnostics: { versionSupport: true } } },
@@ -101,10 +50,7 @@ describe('language server over stdio', () => {
     await client.conn.sendNotification('initialized', {});
   }, 60_000);
 
-  afterAll(() => {
-    if (proc.exitCode === null) proc.kill();
-    rmSync(dir, { recursive: true, force: true });
-  });
+  afterAll(() => server.dispose());
 
   it('publishes versioned diagnostics for every sample (or the inline model)', async () => {
     const docs: [string, string][] = SAMPLES.length ? SAMPLES.map((f) => [`file:///samples/${f}`, readFileSync(join(samplesDir, f), 'utf8')]) : [['file:///inline/lif.saltus', LIF]];
@@ -226,7 +172,8 @@ describe('language server over stdio', () => {
     await client.diagnosticsFor(uri, 1);
     const lenses = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri } }) as { range: unknown; command: { title: string; command: string; arguments: unknown[] } }[];
     expect(lenses.map((l) => l.command.title)).toEqual(['adjoint: event-based', 'generate code…']);
-    expect(lenses[0]!.command).toMatchObject({ command: 'saltus.showAdjoint', arguments: [uri, 'Sensor'] });
+    // no clientCommands announced: the lens runs the server's own command (workspace/executeCommand)
+    expect(lenses[0]!.command).toMatchObject({ command: 'saltus.server.showAdjoint', arguments: [uri, 'Sensor'] });
     // Hover on the state I: its adjoint flow, dlambda_I/dt = lambda_I/tau_s - dlV_dI - lambda_V/tau_m (canonical form, docs/adjoint.md).
     const h = await client.conn.sendRequest('textDocument/hover', { textDocument: { uri }, position: pos(LIF, 'state I', 6) }) as Hover;
     const md = (h.contents as MarkupContent).value;
@@ -349,7 +296,7 @@ describe('language server over stdio', () => {
     await client.conn.sendRequest('shutdown');
     void client.conn.sendNotification('exit');
     expect(await exited).toBe(0);
-    expect(stderr).toBe('');
+    expect(server.stderr()).toBe('');
   });
 });
 

@@ -80,15 +80,17 @@ describe('inlay hints', () => {
     const a = analyse(text);
     expect(a.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
     const hints = inlayHints(a).map((h) => [text.slice(h.offset - 10, h.offset), h.label]);
-    expect(hints).toEqual([['g * (E - V)'.slice(-10), ': A'], ['= leak / C', ': mV/ms'], ['= -s / tau', ': 1/ms']]);
+    expect(hints).toEqual([['g * (E - V)'.slice(-10), '⇒ [A]'], ['= leak / C', '⇒ [mV/ms]'], ['= -s / tau', '⇒ [1/ms]']]);
   });
 
   it('shows 1 for a dimensionless let, and only hints inside the requested range', () => {
     const text = 'neuron N {\n  param a = 2\n  let b = a * a\n  state V = 0\n  dV/dt = -V / (1 [ms])\n}';
     const a = analyse(text);
-    expect(inlayHints(a).map((h) => h.label)).toEqual([': 1', ': 1/ms']);
+    expect(inlayHints(a).map((h) => h.label)).toEqual(['⇒ [1]', '⇒ [1/ms]']);
     const lineOfLet = { start: text.indexOf('let'), end: text.indexOf('state') };
-    expect(inlayHints(a, lineOfLet).map((h) => h.label)).toEqual([': 1']);
+    expect(inlayHints(a, lineOfLet).map((h) => h.label)).toEqual(['⇒ [1]']);
+    // never the `: unit` annotation style
+    for (const h of inlayHints(a)) expect(h.label).not.toMatch(/^\s*:/);
   });
 });
 

@@ -2,7 +2,8 @@
 // no eval / new Function / vm / string timers in server/src or client/src; mathjs imported
 // only by the two whitelisted modules and used there only for parsing (walked against a
 // whitelist) and single-symbol unit lookup; the language server's import graph reaches no
-// module that touches the disk, processes or the network. Behaviour: hostile expressions are
+// module that touches the disk, processes or the network (but the code writer and the
+// read-only workspace reader of workspace symbols). Behaviour: hostile expressions are
 // rejected by the whitelist walkers; hostile names and docstrings stay inside comments and
 // string literals of generated C and Python (checked by small lexers here, and by gcc and
 // python3 when present); file names that would leave the output folder are refused. Also the
@@ -115,17 +116,29 @@ describe('the language server touches neither disk, processes nor network', () =
     visit(entry);
     return [...seen];
   }
-  // The one exception: `saltus/generate` writes generated code, on the modeller's request, into
-  // the folder they picked, through codegen/write.ts (which refuses any name that would leave it).
-  // No module reads a model from disk: the server works on the text the editor sends.
-  const ALLOWED: Record<string, string[]> = { 'server/src/lsp/main.ts': ['server/src/codegen/write.ts'], 'server/src/pipeline.ts': [] };
-  it.each(Object.keys(ALLOWED))('nothing reachable from %s imports fs, child_process, net, http or worker_threads (but the code writer)', (entry) => {
+  // Two exceptions: `saltus/generate` (and the generate lens) writes generated code, on the
+  // modeller's request, into the folder they picked, through codegen/write.ts (which refuses any
+  // name that would leave it); and workspace symbols read the .saltus files inside the
+  // workspace folders the client announced, through lsp/workspaceFiles.ts (read-only, below).
+  // Diagnostics and every other feature work on the text the editor sends.
+  const ALLOWED: Record<string, string[]> = { 'server/src/lsp/main.ts': ['server/src/codegen/write.ts', 'server/src/lsp/workspaceFiles.ts'], 'server/src/pipeline.ts': [] };
+  it.each(Object.keys(ALLOWED))('nothing reachable from %s imports fs, child_process, net, http or worker_threads (but the code writer and the workspace reader)', (entry) => {
     const mods = graph(join(ROOT, entry));
     expect(mods.length).toBeGreaterThan(20);
     const io = /from\s+['"](node:)?(fs|fs\/promises|child_process|net|http|https|worker_threads|dgram|cluster)['"]/;
-    expect(mods.filter((m) => io.test(code(m))).map((m) => relative(ROOT, m))).toEqual(ALLOWED[entry]);
+    expect(mods.filter((m) => io.test(code(m))).map((m) => relative(ROOT, m)).sort()).toEqual(ALLOWED[entry]);
     const writer = join(ROOT, 'server/src/codegen/write.ts');
     if (mods.includes(writer)) expect(code(writer)).not.toMatch(/child_process|\.saltus/);
+  });
+
+  it('the workspace reader only reads: .saltus files, no links followed, a size limit, no writing', () => {
+    const reader = code(join(ROOT, 'server/src/lsp/workspaceFiles.ts'));
+    const imported = [...reader.matchAll(/import\s+(?:type\s+)?\{([^}]*)\}\s+from\s+['"](node:)?fs(\/promises)?['"]/g)].flatMap((m) => m[1]!.split(',').map((x) => x.trim()).filter(Boolean));
+    expect(imported.sort()).toEqual(['Dirent', 'lstat', 'readFile', 'readdir']);
+    expect(reader).not.toMatch(/\b(writeFile|appendFile|unlink|rm|rmdir|mkdir|rename|copyFile|open|createWriteStream|symlink|chmod)\s*\(/);
+    expect(reader).toMatch(/isSymbolicLink\(\)\) continue/);
+    expect(reader).toMatch(/endsWith\('\.saltus'\)/);
+    expect(reader).toMatch(/st\.size > MAX_FILE_BYTES/);
   });
 });
 
@@ -209,13 +222,25 @@ describe('workspace trust', () => {
   it('the manifest says untrusted workspaces are supported, and nothing contributed is an executable or a path to run', () => {
     const pkg = JSON.parse(readFileSync(join(ROOT, 'package.json'), 'utf8')) as {
       capabilities: { untrustedWorkspaces: { supported: boolean | string; description?: string } };
-      contributes: { configuration: { properties: Record<string, { type: string }> }; taskDefinitions?: unknown; debuggers?: unknown };
+      contributes: { configuration: { properties: Record<string, { type: string }> }; taskDefinitions?: { type: string; properties: Record<string, { type: string; enum?: string[] }> }[]; debuggers?: unknown };
     };
     expect(pkg.capabilities.untrustedWorkspaces.supported).toBe(true);
-    expect(pkg.contributes.taskDefinitions).toBeUndefined();
     expect(pkg.contributes.debuggers).toBeUndefined();
     for (const name of Object.keys(pkg.contributes.configuration.properties)) expect(name).not.toMatch(/path|command|executable|compiler|binary|python|gcc|nvcc/i);
-    const client = FILES.filter((f) => f.includes('/client/src/')).map(code).join('\n');
-    expect(client).not.toMatch(/from\s+['"](node:)?child_process['"]|\bvscode\.tasks\b|createTerminal|ShellExecution|ProcessExecution/);
+    // the one task type runs the extension's own CLI; a tasks.json entry picks only the
+    // subcommand (one fixed value) and the files to check, never a program
+    expect(pkg.contributes.taskDefinitions?.map((t) => t.type)).toEqual(['saltus']);
+    const props = pkg.contributes.taskDefinitions![0]!.properties;
+    expect(Object.keys(props).sort()).toEqual(['command', 'files']);
+    expect(props.command!.enum).toEqual(['check']);
+    const clientFiles = FILES.filter((f) => f.includes('/client/src/'));
+    const client = clientFiles.map(code).join('\n');
+    expect(client).not.toMatch(/from\s+['"](node:)?child_process['"]|createTerminal|ShellExecution|CustomExecution/);
+    const runners = clientFiles.filter((f) => /\bvscode\.tasks\b|ProcessExecution/.test(code(f))).map((f) => relative(ROOT, f));
+    expect(runners).toEqual(['client/src/checkTask.ts']);
+    const task = code(join(ROOT, 'client/src/checkTask.ts'));
+    expect(task.match(/new vscode\.ProcessExecution\(/g)).toHaveLength(1);
+    expect(task).toMatch(/const cli = context\.asAbsolutePath\('dist\/cli\.js'\);/);
+    expect(task).toMatch(/new vscode\.ProcessExecution\(process\.execPath, \[cli, 'check', \.\.\.files\]/);
   });
 });

@@ -1,16 +1,26 @@
 // The VS Code side of Saltus (dist/client.js): starts the language server (dist/server.js)
 // over node IPC, shows a language status item for .saltus files, and registers the
-// commands that exist. Everything about the language itself lives in the server.
+// commands that exist, the adjoint preview's restoring after a reload, the scenarios in the
+// test explorer and the `saltus: check` task. Everything about the language itself lives in
+// the server.
 // Invariants: only commands listed in package.json `contributes.commands` are registered
-// (tests/client.test.ts checks both directions); stale status replies are dropped.
+// (tests/client.test.ts checks both directions); stale status replies are dropped; the
+// server is told which lens commands this client runs itself (initializationOptions), so
+// its lenses use this UI here and the server's own commands elsewhere.
 import * as path from 'node:path';
 import * as vscode from 'vscode';
 import { LanguageClient, State, TransportKind, type LanguageClientOptions, type ServerOptions } from 'vscode-languageclient/node';
 // The reply type of the server's `saltus/analysisSummary` request (a type only: erased).
 import type { AnalysisSummary } from '../../server/src/outputs/summary';
-import { showAdjoint, watchAdjoint } from './adjointPanel';
+import { restoreAdjoint, showAdjoint, watchAdjoint } from './adjointPanel';
+import { registerCheckTask } from './checkTask';
+import { registerCrossCheckTests } from './crosscheckTests';
 import { generateCode } from './generateCommand';
 import { checkGradients } from './gradcheckCommand';
+import { newModel } from './newModel';
+
+/** The CodeLens commands this client runs with its own UI (webview, folder dialog); see server/src/lsp/lensCommands.ts. */
+const CLIENT_LENS_COMMANDS = ['saltus.showAdjoint', 'saltus.generateCode'];
 
 let client: LanguageClient | undefined;
 
@@ -23,6 +33,7 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
   const clientOptions: LanguageClientOptions = {
     documentSelector: [{ language: 'saltus' }],
     synchronize: { configurationSection: 'saltus' },
+    initializationOptions: { clientCommands: CLIENT_LENS_COMMANDS },
   };
   const lc = new LanguageClient('saltus', 'Saltus', serverOptions, clientOptions);
   client = lc;
@@ -69,8 +80,12 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
     vscode.commands.registerCommand('saltus.showAdjoint', (uri?: string | vscode.Uri) =>
       showAdjoint(context, lc, typeof uri === 'string' ? vscode.Uri.parse(uri) : uri)),
     watchAdjoint(context, lc),
+    restoreAdjoint(context, lc),
     vscode.commands.registerCommand('saltus.checkGradients', (uri?: string | vscode.Uri) => checkGradients(lc, uri)),
     vscode.commands.registerCommand('saltus.generateCode', (uri?: string | vscode.Uri, model?: string) => generateCode(lc, uri, model)),
+    vscode.commands.registerCommand('saltus.newModel', () => newModel()),
+    registerCheckTask(context),
+    ...registerCrossCheckTests(lc),
   );
 
   try {

@@ -4,8 +4,8 @@
 import { randomBytes } from 'node:crypto';
 import * as vscode from 'vscode';
 import type { LanguageClient } from 'vscode-languageclient/node';
-import type { GradcheckProgress, GradcheckResult } from '../../server/src/gradcheck/types';
 import { gradcheckHtml } from '../../server/src/gradcheck/html';
+import { requestCrossCheck } from './crosscheckRequest';
 
 async function pickScenario(doc: vscode.Uri): Promise<vscode.Uri | undefined> {
   const base = doc.path.split('/').pop()!.replace(/\.saltus$/, '');
@@ -32,19 +32,15 @@ export async function checkGradients(client: LanguageClient, uriArg?: string | v
   const result = await vscode.window.withProgress({ location: vscode.ProgressLocation.Notification, title: `Checking gradients (${label})`, cancellable: true },
     async (progress, token) => {
       let last = 0;
-      const sub = client.onNotification('saltus/gradcheckProgress', (p: GradcheckProgress & { uri: string }) => {
-        if (p.uri !== uri.toString() || p.total <= 0) return;
-        const now = (100 * p.done) / p.total;
-        progress.report({ increment: now - last, message: `${p.phase} ${p.done}/${p.total}` });
-        last = now;
-      });
       try {
-        return await client.sendRequest<GradcheckResult | null>('saltus/gradcheck', { uri: uri.toString(), scenario, scenarioLabel: label }, token);
+        return await requestCrossCheck(client, { uri: uri.toString(), scenario, scenarioLabel: label }, { token, onProgress: (p) => {
+          if (p.percentage === undefined) return;
+          progress.report({ increment: p.percentage - last, ...(p.message ? { message: p.message } : {}) });
+          last = p.percentage;
+        } });
       } catch (e) {
         if (!token.isCancellationRequested) void vscode.window.showErrorMessage(`Saltus: the gradient check failed: ${(e as Error).message}`);
         return undefined;
-      } finally {
-        sub.dispose();
       }
     });
   if (!result) return;

@@ -5,13 +5,16 @@
 //  3. Neovim 0.7.2's built-in LSP client against `node dist/cli.js lsp --stdio`
 //     (tests/e2e/neovim.e2e.mjs);
 //  4. real VS Code (code-server in headless Chromium) with the .vsix installed
-//     (tests/e2e/vscode.e2e.mjs); screenshots of passing checks go to docs/screenshots/.
+//     (tests/e2e/vscode.e2e.mjs); screenshots of passing checks go to .e2e/out/screenshots/.
 // Prints one line per check and, last, exactly `E2E: N passed, M failed`; exits 1 when
 // anything failed (a setup step that fails counts as a failed check).
-// Options: --vsix FILE, --only neovim|vscode, --screenshots DIR (default docs/screenshots),
-// --check REGEX (run only the VS Code checks whose name matches; for working on some).
+// Options: --vsix FILE, --only neovim|vscode, --check REGEX (run only the VS Code checks
+// whose name matches; for working on some), --screenshots DIR (where screenshots go),
+// --update-screenshots (write them over the committed ones in docs/screenshots/; the same
+// as SALTUS_E2E_UPDATE_SCREENSHOTS=1): only on purpose, after looking at them.
 // Invariants: the whole run is bounded (RUN_LIMIT_MS); every process it starts is stopped
-// before it exits; scratch files live under .e2e/run/.
+// before it exits; scratch files live under .e2e/run/ and outputs under .e2e/out/ (both
+// ignored by git), so a run leaves the work tree as it was unless --update-screenshots.
 import { existsSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 import { runNeovimChecks } from '../../tests/e2e/neovim.e2e.mjs';
@@ -21,15 +24,22 @@ import { runVscodeChecks } from './vscodeRunner.mjs';
 const RUN_LIMIT_MS = 25 * 60_000;
 const CHROMIUM = '/usr/bin/chromium';
 
-function parseArgs(argv) {
-  const o = { vsix: undefined, only: undefined, check: undefined, screenshots: join(ROOT, 'docs', 'screenshots') };
+/** The committed screenshots (docs/screenshots/), written only with --update-screenshots. */
+export const COMMITTED_SCREENSHOTS = join(ROOT, 'docs', 'screenshots');
+/** Where a run's screenshots go by default (ignored by git). */
+export const RUN_SCREENSHOTS = join(E2E_DIR, 'out', 'screenshots');
+
+export function parseArgs(argv, env = process.env) {
+  const o = { vsix: undefined, only: undefined, check: undefined, screenshots: RUN_SCREENSHOTS };
+  if (env.SALTUS_E2E_UPDATE_SCREENSHOTS === '1') o.screenshots = COMMITTED_SCREENSHOTS;
   for (let i = 0; i < argv.length; i++) {
     const a = argv[i];
     if (a === '--vsix') o.vsix = resolve(argv[++i] ?? '');
     else if (a === '--only') o.only = argv[++i];
     else if (a === '--screenshots') o.screenshots = resolve(argv[++i] ?? '');
+    else if (a === '--update-screenshots') o.screenshots = COMMITTED_SCREENSHOTS;
     else if (a === '--check') o.check = argv[++i] ?? '';
-    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR, --check REGEX)`);
+    else throw new Error(`unknown option ${a} (known: --vsix FILE, --only neovim|vscode, --screenshots DIR, --update-screenshots, --check REGEX)`);
   }
   if (o.only && !['neovim', 'vscode'].includes(o.only)) throw new Error(`--only takes neovim or vscode, not ${o.only}`);
   return o;
@@ -94,20 +104,21 @@ async function main() {
     }
   }
   const { passed, failed } = report(results);
-  log(`done; scratch files in ${join(E2E_DIR, 'run')}`);
+  log(`done; scratch files in ${join(E2E_DIR, 'run')}; screenshots in ${opts.screenshots}${opts.screenshots === COMMITTED_SCREENSHOTS ? ' (the committed ones: review the diff)' : ''}`);
   console.log(`E2E: ${passed} passed, ${failed} failed`);
   return failed === 0 && passed > 0 ? 0 : 1;
 }
 
-const limit = setTimeout(() => {
-  console.log(`e2e: the whole run took longer than ${RUN_LIMIT_MS / 60_000} min; stopping`);
-  console.log('E2E: 0 passed, 1 failed');
-  process.exit(1); // the 'exit' handlers kill code-server's group; children of runCommand are detached groups killed on timeout
-}, RUN_LIMIT_MS);
-limit.unref();
-
-main().then((code) => { process.exitCode = code; }, (e) => {
-  console.error(e instanceof Error ? e.stack : String(e));
-  console.log('E2E: 0 passed, 1 failed');
-  process.exitCode = 1;
-});
+if (process.argv[1] && resolve(process.argv[1]) === resolve(import.meta.filename ?? '')) {
+  const limit = setTimeout(() => {
+    console.log(`e2e: the whole run took longer than ${RUN_LIMIT_MS / 60_000} min; stopping`);
+    console.log('E2E: 0 passed, 1 failed');
+    process.exit(1); // the 'exit' handlers kill code-server's group; children of runCommand are detached groups killed on timeout
+  }, RUN_LIMIT_MS);
+  limit.unref();
+  main().then((code) => { process.exitCode = code; }, (e) => {
+    console.error(e instanceof Error ? e.stack : String(e));
+    console.log('E2E: 0 passed, 1 failed');
+    process.exitCode = 1;
+  });
+}

@@ -2,12 +2,14 @@
 // LSP client (Debian package neovim): tests/e2e/neovim/probe.lua does what a user's
 // editor does and records what the client received; this file judges that record.
 // Oracles, independent of the client under test: the packaged CLI's JSON diagnostics
-// (same analysis, other path: ranges and messages must agree exactly), and the sample's
-// own text (which names it declares, where `tau_m` is, which line the edit fixes).
+// (same analysis, other path: ranges and messages must agree exactly; `saltus adjoint` for
+// the adjoint the CodeLens shows), the sample's own text (which names it declares, where
+// `tau_m` is, which line the edit fixes), and the files in the workspace folder (the
+// neurons workspace symbols must list, what code generation wrote).
 // Invariants: nvim runs with --clean -u NONE, XDG folders in a scratch directory, stdin
 // from /dev/null and a hard time limit; one run of the probe serves all checks.
 import { spawnSync } from 'node:child_process';
-import { cpSync, existsSync, mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { cpSync, existsSync, mkdirSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { runCommand } from '../../scripts/e2e/tools.mjs';
@@ -43,6 +45,8 @@ export async function runNeovimChecks({ scratch }) {
   const mistakes = join(ws, 'mistakes.saltus'), clean = join(ws, 'lif_current.saltus');
   const mistakesText = readFileSync(mistakes, 'utf8'), cleanText = readFileSync(clean, 'utf8');
   const typo = positionOf(mistakesText, 'dI/dt = -I / tau_sn', 'dI/dt');
+  const firstNeuron = /^neuron\s+(\w+)/m.exec(cleanText)?.[1];
+  const lensLine = positionOf(cleanText, `neuron ${firstNeuron}`, firstNeuron).line;
   const input = {
     cmd: [process.execPath, join(ROOT, 'dist/cli.js'), 'lsp', '--stdio'],
     root: ws,
@@ -51,6 +55,8 @@ export async function runNeovimChecks({ scratch }) {
     hover: positionOf(cleanText, 'dV/dt = (I - V) / tau_m', 'tau_m'),
     completion: positionOf(cleanText, 'dV/dt = (I - V) / tau_m', 'tau_m'),
     edit: { line: typo.line, text: mistakesText.split('\n')[typo.line].replace('tau_sn', 'tau_s') },
+    lens_run: { line: lensLine, target: 'NumPy', generated: join(ws, 'generated'),
+      adjoint_command: 'saltus.server.showAdjoint', generate_command: 'saltus.server.generateCode' },
   };
   const inFile = join(scratch, 'probe-in.json'), outFile = join(scratch, 'probe-out.json');
   writeFileSync(inFile, JSON.stringify(input));
@@ -104,6 +110,34 @@ export async function runNeovimChecks({ scratch }) {
       const missing = [...new Set(declared)].filter((n) => !labels.includes(n));
       expect(declared.length > 0 && missing.length === 0, `completion lacks ${missing.join(', ')} (got ${labels.slice(0, 30).join(', ')})`);
       return `${labels.length} items, including every declared name (${[...new Set(declared)].join(', ')})`;
+    }],
+    ['neovim: CodeLenses run through workspace/executeCommand (the adjoint as a message, code generation after a question)', () => {
+      const lr = rec.lens_run;
+      expect(JSON.stringify(rec.capabilities.executeCommands) === JSON.stringify([input.lens_run.adjoint_command, input.lens_run.generate_command]),
+        `the server announces executeCommandProvider ${JSON.stringify(rec.capabilities.executeCommands)}`);
+      expect(rec.lenses_arrived && rec.lenses.length > 0, 'no CodeLenses within 20 s');
+      const onLine = rec.lenses.filter((l) => l.line === input.lens_run.line);
+      expect(onLine.some((l) => l.command === input.lens_run.adjoint_command) && onLine.some((l) => l.command === input.lens_run.generate_command),
+        `the lenses on line ${input.lens_run.line + 1} run ${JSON.stringify(onLine)}`);
+      expect(lr.adjoint_shown, `no window/showMessage after running the adjoint lens (Neovim offered ${JSON.stringify(lr.picked_from)})`);
+      const adjointText = lr.messages[0];
+      const adjointCli = spawnSync(process.execPath, [join(ROOT, 'dist/cli.js'), 'adjoint', clean, '--model', firstNeuron], { encoding: 'utf8', timeout: 60_000 });
+      const flowLine = adjointText.split('\n').find((l) => /dlambda_V\/dt/.test(l));
+      expect(flowLine && adjointCli.stdout.includes(flowLine.trim()), `the adjoint message's flow line "${flowLine}" is not the CLI's (saltus adjoint):\n${adjointCli.stdout.slice(0, 600)}`);
+      expect(lr.asked.length === 1 && JSON.stringify(lr.asked[0].actions) === JSON.stringify(['C99', 'CUDA', 'NumPy']), `the server asked ${JSON.stringify(lr.asked)}`);
+      expect(lr.generated, `no message after the generate lens: ${JSON.stringify(lr.messages)}`);
+      const py = lr.files.filter((f) => f.endsWith('.py'));
+      expect(py.length === 1 && py[0].endsWith(`${firstNeuron}.py`), `generated/ holds ${JSON.stringify(lr.files)}`);
+      const wrote = lr.messages.find((m) => m.startsWith('Saltus wrote'));
+      expect(wrote && wrote.includes(input.lens_run.generated), `the report reads ${JSON.stringify(lr.messages.slice(1))}`);
+      return `lenses [${onLine.map((l) => l.title).join(' | ')}] on line ${input.lens_run.line + 1}; adjoint shown (${adjointText.split('\n').length} lines, flow line as the CLI's); asked [${lr.asked[0].actions.join(', ')}] -> NumPy; "${wrote}"`;
+    }],
+    ['neovim: workspace symbols list the neurons of the folder\'s .saltus files', () => {
+      expect(rec.capabilities.workspaceSymbol, 'the server does not announce workspaceSymbolProvider');
+      const want = readdirSync(ws).filter((f) => f.endsWith('.saltus')).flatMap((f) => [...readFileSync(join(ws, f), 'utf8').matchAll(/^neuron\s+(\w+)/gm)].map((m) => `${m[1]}@${f}`)).sort();
+      const got = rec.workspace_symbols.map((s) => `${s.name}@${s.uri.split('/').pop()}`).sort();
+      expect(JSON.stringify(got) === JSON.stringify(want), `workspace/symbol gave ${JSON.stringify(got)}; the folder declares ${JSON.stringify(want)}`);
+      return `${got.length} neurons from ${new Set(got.map((g) => g.split('@')[1])).size} files (open and not open)`;
     }],
     ['neovim: an edit clears its diagnostic', () => {
       expect(rec.edit.line_now === input.edit.text, `the buffer line is "${rec.edit.line_now}"`);

@@ -8,12 +8,15 @@
 // and the installed extension's package.json (which commands are contributed).
 // Invariants: the workspace is a scratch copy of samples/ (a quick fix never edits the
 // repository); each check opens what it needs itself; screenshots of passing checks go to
-// docs/screenshots/NAME.png. The checks of the commands that derive results (generated code,
-// gradient check) are in vscodeDerived.e2e.mjs.
+// the run's screenshot folder (.e2e/out/screenshots/NAME.png; docs/screenshots/ only with
+// --update-screenshots). The checks of the commands that derive results (generated code,
+// gradient check) are in vscodeDerived.e2e.mjs, those of the editor conventions (walkthrough,
+// restored preview, test explorer, check task) in vscodeConventions.e2e.mjs.
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { expect, lineOf, Skip } from './checkKit.mjs';
 import { checkGenerateCode, checkGenerateCodeLens, checkGradients } from './vscodeDerived.e2e.mjs';
+import { checkCheckTask, checkFixAll, checkRestoredPreview, checkTestExplorer, checkWalkthrough } from './vscodeConventions.e2e.mjs';
 
 export { Skip };
 
@@ -202,10 +205,15 @@ export const CHECKS = [
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },
+  { name: 'vscode: "Fix All" applies every fix that needs no choice (source.fixAll.saltus)', run: checkFixAll },
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
   { name: 'vscode: "Generate code…" from the palette writes the NumPy files the CLI writes', run: checkGenerateCode },
   { name: 'vscode: the "generate code…" CodeLens writes one model\'s C99 files', run: checkGenerateCodeLens },
   { name: 'vscode: "Check gradients" shows the report webview and the verdict', run: checkGradients },
+  { name: 'vscode: the adjoint preview is restored after a window reload', run: checkRestoredPreview },
+  { name: 'vscode: scenarios are tests in the test explorer, each gradient row a child', run: checkTestExplorer },
+  { name: 'vscode: the saltus: check task fills Problems through the $saltus problem matcher', run: checkCheckTask },
+  { name: 'vscode: the getting-started walkthrough shows its steps and pages', run: checkWalkthrough },
   // last: it leaves the Extensions view in the side bar, where the others use the Explorer
   { name: 'vscode: extension page shows the icon and README', run: checkExtensionPage },
 ];

@@ -9,7 +9,7 @@
 // saltus-hash line (the SHA-256 of the file without that line, recomputed here).
 // Invariants: output folders are fresh folders inside the scratch workspace, made before
 // the dialog (an open-folder dialog picks existing folders only); the CLI writes into
-// scratch folders outside the workspace; screenshots go to docs/screenshots/NAME.png.
+// scratch folders outside the workspace; screenshots go to the run's screenshot folder.
 import { createHash } from 'node:crypto';
 import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';

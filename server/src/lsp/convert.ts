@@ -3,7 +3,8 @@
 // place besides server.ts that knows LSP types.
 //
 // Invariant: offsets and positions round-trip through the analysis's LineIndex; diagnostic
-// `data` carries the quick fixes with ranges already in LSP positions of the same version.
+// `data` carries the quick fixes with ranges already in LSP positions of the same version;
+// every diagnostic links to its code's documentation (`codeDescription`, base/docs.ts).
 import {
   DiagnosticSeverity, DiagnosticTag, type Diagnostic as LspDiagnostic, type Position, type Range as LspRange, type TextEdit as LspTextEdit,
 } from 'vscode-languageserver';
@@ -11,6 +12,7 @@ import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
 import type { Diagnostic, Severity, TextEdit } from '../base/diagnostic';
 import { fixesFor } from '../outputs/codeActions';
+import { diagnosticDocsUrl } from '../base/docs';
 
 export const toRange = (a: Analysis, r: A.Range): LspRange => ({ start: a.lines.positionAt(r.start), end: a.lines.positionAt(r.end) });
 export const toOffset = (a: Analysis, p: Position): number => a.lines.offsetAt(p);
@@ -37,6 +39,7 @@ export function toLspDiagnostic(a: Analysis, d: Diagnostic, uri: string): LspDia
     range: toRange(a, d.range),
     severity: SEVERITY[d.severity],
     code: d.code,
+    codeDescription: { href: diagnosticDocsUrl(d.code) },
     source: 'saltus',
     message: d.message,
     // Unused declarations are drawn faded (and listed) by editors that know the tag.

@@ -1,10 +1,11 @@
 // LSP handlers for the derived results: CodeLenses above each neuron (the adjoint's verdict,
-// opening the preview; generate code), the `saltus/adjointPreview` request the client's
-// webview renders, `saltus/gradcheck` (the gradient check of a scenario, with progress and
+// opening the preview; generate code; their commands: lensCommands.ts), the
+// `saltus/adjointPreview` request the client's webview renders, `saltus/gradcheck` (the
+// gradient cross-check of a scenario, with the protocol's work-done progress and
 // cancellation), and `saltus/generate`, which writes generated code into a folder the
 // modeller picked. Guarded like every other handler (features.ts). Code lenses derive
 // uncached neurons only within CODELENS_BUDGET_MS.
-import type { CodeLens, Connection } from 'vscode-languageserver';
+import type { CodeLens, Connection, ProgressToken, WorkDoneProgressReporter } from 'vscode-languageserver';
 import { adjointBadge, adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
 import { cachedDerivation, derivationFor } from '../adjoint/index';
 import { makeGuard, type DocumentState } from './documentState';
@@ -12,18 +13,15 @@ import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';
 import { runGradcheck } from '../gradcheck/index';
+import { lensCommand } from './lensCommands';
 
-/** The client command a lens runs (contributed by the VS Code extension). */
-export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
-export const GENERATE_COMMAND = 'saltus.generateCode';
-
-export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
+export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string; workDoneToken?: ProgressToken }
 /** The dt of the generated code is the analysis's (the file's timestep or the saltus.timestep setting). */
 export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
 /** Generates code for a document and writes it safely into `dir` (never outside it; refuses edited files unless `force`). */
-function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
+export function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
   const source = decodeURIComponent(uri.split('/').pop() ?? 'model.saltus');
   const g = generateFiles(a, { target: p.target, ...(p.model ? { model: p.model } : {}), ...(p.float ? { float: true } : {}),
     ...(p.driver ? { driver: true } : {}), source });
@@ -44,23 +42,38 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
       const d = n.wellFormed ? cachedDerivation(n) ?? (performance.now() - started < CODELENS_BUDGET_MS ? derivationFor(n) : undefined) : undefined;
       const title = !n.wellFormed ? 'adjoint: fix the errors first' : d ? adjointBadge(d) : 'adjoint: not derived yet (open the preview)';
       const range = toRange(a, n.symbol.nameRange);
-      return [{ range, command: { title, command: SHOW_ADJOINT_COMMAND, arguments: [uri, n.name] } },
-        ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: GENERATE_COMMAND, arguments: [uri, n.name] } }] : [])];
+      const client = state.client();
+      return [{ range, command: { title, command: lensCommand('showAdjoint', client), arguments: [uri, n.name] } },
+        ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: lensCommand('generateCode', client), arguments: [uri, n.name] } }] : [])];
     }).flat();
   }));
-  // The gradient check runs asynchronously (it yields between simulations): progress goes out
-  // as `saltus/gradcheckProgress` notifications, and cancelling the request stops it.
+  // The cross-check runs asynchronously (it yields between simulations). Progress is the
+  // protocol's work-done progress: on the token the client sent with the request
+  // (`workDoneToken`), else on one the server creates when the client supports that
+  // (`window/workDoneProgress/create`). Cancelling the request, or that progress, stops it.
   connection.onRequest('saltus/gradcheck', async (p: GradcheckParams, token) => {
+    let progress: WorkDoneProgressReporter | undefined;
     try {
       const c = typeof p?.uri === 'string' ? state.analysisFor(p.uri) : undefined;
       if (!c) return null;
-      const signal = { get aborted() { return token.isCancellationRequested; } };
-      return await runGradcheck(c.analysis, p.scenario, { signal, sourceLabel: decodeURIComponent(p.uri.split('/').pop() ?? p.uri),
+      const label = decodeURIComponent(p.uri.split('/').pop() ?? p.uri);
+      let progressCancelled = (): boolean => false;
+      if (p.workDoneToken !== undefined) progress = connection.window.attachWorkDoneProgress(p.workDoneToken);
+      else if (state.client().workDoneProgress) {
+        const created = await connection.window.createWorkDoneProgress();
+        progressCancelled = () => created.token.isCancellationRequested;
+        progress = created;
+      }
+      progress?.begin(`Cross-checking gradients (${p.scenarioLabel ?? label})`, 0, undefined, true);
+      const signal = { get aborted() { return token.isCancellationRequested || progressCancelled(); } };
+      return await runGradcheck(c.analysis, p.scenario, { signal, sourceLabel: label,
         ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
-        onProgress: (pr) => { void connection.sendNotification('saltus/gradcheckProgress', { uri: p.uri, ...pr }); } });
+        onProgress: (pr) => { if (pr.total > 0) progress?.report(Math.round((100 * pr.done) / pr.total), `${pr.phase} ${pr.done}/${pr.total}`); } });
     } catch (e) {
       state.log(`saltus: gradient check failed: ${(e as Error)?.stack ?? String(e)}`);
       return null;
+    } finally {
+      progress?.done();
     }
   });
   const generate = guarded('generate code', null as GenerateReply | null, (a, uri, p: GenerateParams & { textDocument?: { uri?: string } }) => generateInto(a, uri, p));

@@ -5,15 +5,22 @@
 // with the feature's empty result (null or []), never a crash; a ResponseError (a refusal
 // meant for the user, e.g. an invalid new name) passes through. Unknown or closed
 // documents give the empty result.
+import { basename } from 'node:path';
 import {
   CodeActionKind, CompletionItemKind, DocumentHighlightKind, ErrorCodes, InlayHintKind, InsertTextFormat, ResponseError, SymbolKind,
   type CodeAction, type CompletionItem, type Connection, type DocumentSymbol, type Diagnostic as LspDiagnostic,
-  type DocumentHighlight, type FoldingRange, type InlayHint, type Location, type TextEdit,
+  type DocumentHighlight, type FoldingRange, type InlayHint, type Location, type SelectionRange, type SignatureHelp,
+  type SymbolInformation, type TextEdit,
 } from 'vscode-languageserver';
 import { complete, type CompletionKind } from '../outputs/completion';
 import { quickFixes } from '../outputs/codeActions';
+import { fixAll } from '../outputs/fixAll';
 import { foldingRanges } from '../outputs/folding';
 import { formatEdits } from '../outputs/format';
+import { formatRangeEdits } from '../outputs/formatRange';
+import { selectionRanges } from '../outputs/selectionRange';
+import { signatureHelp } from '../outputs/signatureHelp';
+import { matchesQuery, neuronSymbols } from '../outputs/workspaceSymbols';
 import { hover, type HoverSection } from '../outputs/hover';
 import { inlayHints } from '../outputs/inlayHints';
 import { definition, highlights, references } from '../outputs/navigation';
@@ -24,11 +31,18 @@ import { analysisSummary } from '../outputs/summary';
 import type { Analysis } from '../pipeline';
 import { fromRange, isDiagnosticData, toLspDiagnostic, toOffset, toRange, toTextEdit } from './convert';
 import { makeGuard, type DocumentState } from './documentState';
+import { pathOfUri, type WorkspaceFiles } from './workspaceFiles';
+
+/** The code action kind of "fix all" (VS Code's `source.fixAll`, for Saltus). */
+export const FIX_ALL_KIND = `${CodeActionKind.SourceFixAll}.saltus`;
+/** Workspace symbols answered at most. */
+const MAX_WORKSPACE_SYMBOLS = 1000;
 
 /** The pure providers the handlers call (replaceable for tests). */
 export const DEFAULT_FEATURES = {
   hover, complete, documentSymbols, definition, references, highlights, prepareRename, rename,
   semanticTokens, foldingRanges, formatEdits, quickFixes, inlayHints, analysisSummary,
+  signatureHelp, selectionRanges, formatRangeEdits, fixAll,
 };
 export type Features = typeof DEFAULT_FEATURES;
 
@@ -42,7 +56,7 @@ const OUTLINE_KIND: Record<OutlineKind, SymbolKind> = {
   equation: SymbolKind.Function, fire: SymbolKind.Event, incoming: SymbolKind.Event, connect: SymbolKind.Interface,
 };
 
-export function registerFeatures(connection: Connection, state: DocumentState, f: Features, sections: readonly HoverSection[]): void {
+export function registerFeatures(connection: Connection, state: DocumentState, f: Features, sections: readonly HoverSection[], workspace: WorkspaceFiles): void {
   const guarded = makeGuard(state);
 
   connection.onHover(guarded('hover', null, (a, _uri, p) => {
@@ -98,9 +112,25 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     if (!edits) { state.log('saltus: not formatted: the file has syntax errors (fix them first)'); return []; }
     return edits.map((e) => toTextEdit(a, e));
   }));
+  connection.onDocumentRangeFormatting(guarded('range formatting', [] as TextEdit[], (a, _uri, p) => {
+    const edits = f.formatRangeEdits(a.text, fromRange(a, p.range));
+    if (!edits) { state.log('saltus: not formatted: the file has syntax errors (fix them first)'); return []; }
+    return edits.map((e) => toTextEdit(a, e));
+  }));
 
   connection.onCodeAction(guarded('code actions', [] as CodeAction[], (a, uri, p) => {
     const actions: CodeAction[] = [];
+    // `only` filters by kind, a kind matching its refinements (source matches source.fixAll.saltus)
+    const only = p.context?.only;
+    const wants = (kind: string): boolean => (only ? only.some((o) => kind === o || kind.startsWith(`${o}.`)) : kind === CodeActionKind.QuickFix);
+    if (wants(FIX_ALL_KIND)) {
+      const all = f.fixAll(a, state.diagnosticsFor(state.analysisFor(uri)!));
+      if (all.edits.length > 0) {
+        actions.push({ title: `Fix all: ${all.applied.length} Saltus problem${all.applied.length === 1 ? '' : 's'} with one unambiguous fix`, kind: FIX_ALL_KIND,
+          edit: { changes: { [uri]: all.edits.map((e) => toTextEdit(a, e)) } } });
+      }
+    }
+    if (!wants(CodeActionKind.QuickFix)) return actions;
     const given = (p.context?.diagnostics ?? []).filter((d) => d.source === 'saltus' && isDiagnosticData(d.data));
     if (given.length > 0) {
       for (const d of given) {
@@ -120,6 +150,53 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     f.inlayHints(a, p.range ? fromRange(a, p.range) : undefined).map((h) => ({
       position: a.lines.positionAt(h.offset), label: h.label, kind: InlayHintKind.Type, paddingLeft: true, tooltip: h.tooltip,
     }))));
+
+  connection.onSignatureHelp(guarded('signature help', null as SignatureHelp | null, (a, _uri, p) => {
+    const h = f.signatureHelp(a, toOffset(a, p.position));
+    if (!h) return null;
+    const offsets = state.client().signatureLabelOffsets;
+    return {
+      signatures: [{ label: h.label, documentation: { kind: 'markdown' as const, value: h.documentation },
+        parameters: h.parameters.map((q) => ({ label: offsets ? q.range : h.label.slice(q.range[0], q.range[1]), documentation: q.documentation })) }],
+      activeSignature: 0,
+      activeParameter: h.activeParameter,
+    };
+  }));
+
+  connection.onSelectionRanges(guarded('selection ranges', [] as SelectionRange[], (a, _uri, p) => p.positions.map((pos) => {
+    let out: SelectionRange | undefined;
+    for (const r of [...f.selectionRanges(a, toOffset(a, pos))].reverse()) out = { range: toRange(a, r), ...(out ? { parent: out } : {}) };
+    return out ?? { range: { start: pos, end: pos } };
+  })));
+
+  // Neurons of the open documents (their current text) and of the other .saltus files in the
+  // workspace folders (read from disk by WorkspaceFiles), matching the query.
+  connection.onWorkspaceSymbol(async (p, token) => {
+    const out: SymbolInformation[] = [];
+    try {
+      const query = typeof p?.query === 'string' ? p.query : '';
+      const open = new Set<string>();
+      for (const uri of state.openUris()) {
+        const c = state.analysisFor(uri);
+        if (!c) continue;
+        const path = pathOfUri(uri);
+        if (path) open.add(path);
+        const file = decodeURIComponent(uri.split('/').pop() ?? uri);
+        for (const n of neuronSymbols(c.analysis.parse.file)) {
+          if (matchesQuery(n.name, query)) out.push({ name: n.name, kind: SymbolKind.Class, location: { uri, range: toRange(c.analysis, n.range) }, containerName: file });
+        }
+      }
+      for (const fileNeurons of await workspace.neurons(open, () => token.isCancellationRequested)) {
+        const file = basename(fileNeurons.path);
+        for (const n of fileNeurons.neurons) {
+          if (matchesQuery(n.name, query)) out.push({ name: n.name, kind: SymbolKind.Class, location: { uri: fileNeurons.uri, range: n.range }, containerName: file });
+        }
+      }
+    } catch (e) {
+      state.log(`saltus: workspace symbols failed: ${(e as Error)?.stack ?? String(e)}`);
+    }
+    return out.slice(0, MAX_WORKSPACE_SYMBOLS);
+  });
 
   // { uri } -> AnalysisSummary, or null for a document that is not open.
   const summary = guarded('analysis summary', null, (a, uri) => f.analysisSummary(a, state.diagnosticsFor(state.analysisFor(uri)!)));

@@ -11,8 +11,9 @@
 // later turn, one neuron after another in slices of the event loop, and are published
 // merged only if that version is still current: a newer version, closing the document or
 // shutdown cancels the rest, and DERIVED_BUDGET_MS bounds the work per version (neurons
-// not reached get one 'time-budget' diagnostic). Only the text the client sent is read:
-// nothing here touches the disk.
+// not reached get one 'time-budget' diagnostic). Only the text the client sent is analysed;
+// the disk is read only for workspace symbols (workspaceFiles.ts: .saltus files inside the
+// workspace folders the client announced) and written only by code generation (on request).
 // Invariants: no handler throws to the connection (features.ts wraps each); results for
 // unknown or closed documents are null/empty; diagnostics are cleared on close.
 import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigurationNotification, type Connection, type InitializeResult } from 'vscode-languageserver';
@@ -23,9 +24,11 @@ import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
 import { analysisKey, DEFAULT_SETTINGS, readSettings, type SaltusSettings } from './settings';
-import { DEFAULT_FEATURES, registerFeatures, type Features } from './features';
+import { DEFAULT_FEATURES, FIX_ALL_KIND, registerFeatures, type Features } from './features';
 import { registerDerivedFeatures } from './derivedFeatures';
-import type { CachedAnalysis, DocumentState } from './documentState';
+import { EXECUTE_COMMANDS, registerCommands } from './executeCommands';
+import { NO_CLIENT_FACTS, type CachedAnalysis, type ClientFacts, type DocumentState } from './documentState';
+import { WorkspaceFiles } from './workspaceFiles';
 
 export interface ServerOptions {
   /** Derived hover sections (step analysis, adjoint), appended after the basic hover. */
@@ -51,10 +54,13 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   let settings: SaltusSettings = DEFAULT_SETTINGS;
   let canReadConfiguration = false;
   let canRegisterConfiguration = false;
+  let canWatchFolders = false;
   const budgetMs = options.derivedBudgetMs ?? DERIVED_BUDGET_MS;
   let shutDown = false;
   const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
   setInternalErrorLog(log);
+  let client: ClientFacts = NO_CLIENT_FACTS;
+  const workspace = new WorkspaceFiles(log);
 
   const state: DocumentState = {
     analysisFor(uri) {
@@ -72,6 +78,9 @@ export function startServer(connection: Connection, options: ServerOptions = {})
       if (!c.derived?.length) return c.analysis.diagnostics;
       return [...c.analysis.diagnostics, ...c.derived].sort((x, y) => x.range.start - y.range.start || x.range.end - y.range.end);
     },
+    openUris: () => documents.all().map((d) => d.uri),
+    client: () => client,
+    workspaceFolders: () => workspace.folderPaths,
     log,
   };
 
@@ -167,6 +176,15 @@ export function startServer(connection: Connection, options: ServerOptions = {})
     const caps = params.capabilities;
     canReadConfiguration = caps.workspace?.configuration === true;
     canRegisterConfiguration = caps.workspace?.didChangeConfiguration?.dynamicRegistration === true;
+    const announced = (params.initializationOptions as { clientCommands?: unknown } | null | undefined)?.clientCommands;
+    client = {
+      commands: new Set(Array.isArray(announced) ? announced.filter((c): c is string => typeof c === 'string') : []),
+      workDoneProgress: caps.window?.workDoneProgress === true,
+      showDocument: caps.window?.showDocument?.support === true,
+      signatureLabelOffsets: caps.textDocument?.signatureHelp?.signatureInformation?.parameterInformation?.labelOffsetSupport === true,
+    };
+    workspace.setFolders(params.workspaceFolders ? params.workspaceFolders.map((f) => f.uri) : params.rootUri ? [params.rootUri] : []);
+    canWatchFolders = caps.workspace?.workspaceFolders === true;
     return {
       capabilities: {
         textDocumentSync: { openClose: true, change: TextDocumentSyncKind.Incremental, save: { includeText: false } },
@@ -180,9 +198,15 @@ export function startServer(connection: Connection, options: ServerOptions = {})
         semanticTokensProvider: { legend: { tokenTypes: [...SEMANTIC_TOKEN_TYPES], tokenModifiers: [...SEMANTIC_TOKEN_MODIFIERS] }, full: true, range: false },
         foldingRangeProvider: true,
         documentFormattingProvider: true,
-        codeActionProvider: { codeActionKinds: [CodeActionKind.QuickFix] },
+        documentRangeFormattingProvider: true,
+        codeActionProvider: { codeActionKinds: [CodeActionKind.QuickFix, FIX_ALL_KIND] },
         inlayHintProvider: true,
         codeLensProvider: { resolveProvider: false },
+        signatureHelpProvider: { triggerCharacters: ['(', ','], retriggerCharacters: [','] },
+        selectionRangeProvider: true,
+        workspaceSymbolProvider: true,
+        executeCommandProvider: { commands: [...EXECUTE_COMMANDS] },
+        workspace: { workspaceFolders: { supported: true, changeNotifications: true } },
       },
       serverInfo: { name: 'saltus' },
     };
@@ -190,6 +214,12 @@ export function startServer(connection: Connection, options: ServerOptions = {})
 
   connection.onInitialized(() => {
     if (canRegisterConfiguration) void connection.client.register(DidChangeConfigurationNotification.type, { section: 'saltus' }).catch(() => undefined);
+    if (canWatchFolders) {
+      connection.workspace.onDidChangeWorkspaceFolders((e) => {
+        workspace.removeFolders(e.removed.map((f) => f.uri));
+        workspace.addFolders(e.added.map((f) => f.uri));
+      });
+    }
     if (canReadConfiguration) void loadSettings();
   });
   connection.onDidChangeConfiguration((p) => { void loadSettings(p.settings); });
@@ -204,8 +234,9 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   });
   connection.onShutdown(() => { shutDown = true; pending.clear(); });
 
-  registerFeatures(connection, state, { ...DEFAULT_FEATURES, ...options.features }, options.hoverSections ?? []);
+  registerFeatures(connection, state, { ...DEFAULT_FEATURES, ...options.features }, options.hoverSections ?? [], workspace);
   registerDerivedFeatures(connection, state);
+  registerCommands(connection, state);
   documents.listen(connection);
   connection.listen();
 }

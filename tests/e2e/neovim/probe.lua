@@ -1,6 +1,8 @@
 -- Drives Neovim 0.7.2's built-in LSP client against the Saltus language server and records
 -- what the client received, as JSON, for tests/e2e/neovim.e2e.mjs to judge. It asserts
--- nothing itself: it opens the files, waits for the server, asks, edits and shuts down.
+-- nothing itself: it opens the files, waits for the server, asks, runs two CodeLenses
+-- (Neovim's own vim.lsp.codelens.run, which sends workspace/executeCommand), edits and shuts
+-- down. The user's choices (which lens, which language) are answered from the input.
 -- Run: nvim --headless --clean -u NONE -c "luafile probe.lua" -c 'cquit 2' </dev/null
 -- with SALTUS_PROBE_IN (a JSON file: server command, files, positions, the edit) and
 -- SALTUS_PROBE_OUT (where the JSON record goes) in the environment.
@@ -54,6 +56,8 @@ local function main()
   local client = vim.lsp.get_client_by_id(client_id)
   local caps = client and client.server_capabilities or {}
   record.capabilities = {
+    executeCommands = caps.executeCommandProvider and caps.executeCommandProvider.commands or {},
+    workspaceSymbol = caps.workspaceSymbolProvider and true or false,
     hover = caps.hoverProvider and true or false,
     completion = caps.completionProvider ~= nil,
     codeAction = caps.codeActionProvider and true or false,
@@ -84,6 +88,62 @@ local function main()
     for _, it in ipairs(items) do table.insert(record.completion, { label = it.label, kind = it.kind }) end
   end
   step('completion')
+
+  -- CodeLens through workspace/executeCommand, as a user runs it (vim.lsp.codelens.run on
+  -- the neuron's line): the user's choices in vim.ui.select (which lens) and in the
+  -- server's window/showMessageRequest (which language) are answered as input.lens_run says
+  local shown_messages = {}
+  vim.lsp.handlers['window/showMessage'] = function(_, result) table.insert(shown_messages, result.message) end
+  local asked = {}
+  vim.lsp.handlers['window/showMessageRequest'] = function(_, result)
+    table.insert(asked, { message = result.message, actions = vim.tbl_map(function(a) return a.title end, result.actions or {}) })
+    for _, a in ipairs(result.actions or {}) do
+      if a.title == input.lens_run.target then return a end
+    end
+    return vim.NIL
+  end
+  local picked_from = {}
+  local want_lens = nil
+  vim.ui.select = function(items, opts, on_choice)
+    local titles = {}
+    for _, it in ipairs(items) do
+      local title = opts.format_item and opts.format_item(it) or tostring(it)
+      table.insert(titles, title)
+    end
+    table.insert(picked_from, titles)
+    for i, it in ipairs(items) do
+      if type(it) == 'table' and it.lens and it.lens.command and it.lens.command.command == want_lens then return on_choice(it, i) end
+    end
+    return on_choice(nil, nil)
+  end
+  vim.api.nvim_set_current_buf(clean)
+  vim.lsp.codelens.refresh()
+  local got_lenses = vim.wait(20000, function() return #(vim.lsp.codelens.get(clean) or {}) > 0 end, 10)
+  record.lenses = {}
+  for _, l in ipairs(vim.lsp.codelens.get(clean) or {}) do
+    table.insert(record.lenses, { line = l.range.start.line, title = l.command and l.command.title or vim.NIL, command = l.command and l.command.command or vim.NIL })
+  end
+  record.lenses_arrived = got_lenses
+  vim.api.nvim_win_set_cursor(0, { input.lens_run.line + 1, 0 })
+  -- the adjoint lens: its text arrives as window/showMessage
+  want_lens = input.lens_run.adjoint_command
+  vim.lsp.codelens.run()
+  local adjoint_shown = vim.wait(20000, function() return #shown_messages > 0 end, 10)
+  -- the generate lens: the server asks for the language, then writes into generated/
+  want_lens = input.lens_run.generate_command
+  local before_messages = #shown_messages
+  vim.lsp.codelens.run()
+  local generated = vim.wait(20000, function() return #shown_messages > before_messages end, 10)
+  record.lens_run = { adjoint_shown = adjoint_shown, generated = generated, messages = shown_messages, asked = asked, picked_from = picked_from,
+    files = vim.fn.glob(input.lens_run.generated .. '/*', false, true) }
+  step('codelens')
+
+  -- workspace symbols: the neurons of the folder's .saltus files, open or not
+  local symbols = vim.lsp.buf_request_sync(clean, 'workspace/symbol', { query = '' }, 10000)
+  local s = symbols and symbols[client_id] or {}
+  record.workspace_symbols = {}
+  for _, sym in ipairs(s.result or {}) do table.insert(record.workspace_symbols, { name = sym.name, uri = sym.location.uri }) end
+  step('workspace symbols')
 
   -- the edit: replace one line of the mistakes file as a user would (nvim_buf_set_lines)
   local published_before = #record.published
