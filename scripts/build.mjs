@@ -11,6 +11,7 @@
 // by `prepare`, so `npm ci` leaves a working build.
 import { build } from 'esbuild';
 import { chmodSync, copyFileSync, existsSync, mkdirSync, readdirSync, rmSync, statSync } from 'node:fs';
+import { rawTextPlugin } from './esbuild-plugins.mjs';
 import { dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
@@ -49,7 +50,7 @@ const common = {
   minify: false,
   logLevel: 'warning',
   absWorkingDir: root,
-  plugins: [missingLanguageServer],
+  plugins: [missingLanguageServer, rawTextPlugin],
 };
 
 const bundles = [

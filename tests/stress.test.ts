@@ -11,6 +11,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { build } from 'esbuild';
+import { rawTextPlugin } from '../scripts/esbuild-plugins.mjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createProtocolConnection, StreamMessageReader, StreamMessageWriter, type ProtocolConnection, type PublishDiagnosticsParams } from 'vscode-languageserver-protocol/node';
 import { analyse, derivedDiagnostics } from '../server/src/pipeline';
@@ -71,7 +72,7 @@ beforeAll(async () => {
   const entry = join(dir, 'entry.ts');
   writeFileSync(entry, `import { runLanguageServer } from ${JSON.stringify(join(root, 'server/src/lsp/main'))};\nrunLanguageServer();\n`);
   bundle = join(dir, 'server.js');
-  await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: bundle, logLevel: 'silent' });
+  await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: bundle, logLevel: 'silent', plugins: [rawTextPlugin] });
 }, 60_000);
 afterAll(() => { rmSync(dir, { recursive: true, force: true }); });
 

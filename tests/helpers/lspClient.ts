@@ -8,6 +8,7 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { build } from 'esbuild';
+import { rawTextPlugin } from '../../scripts/esbuild-plugins.mjs';
 import {
   createProtocolConnection, StreamMessageReader, StreamMessageWriter, type ProtocolConnection, type PublishDiagnosticsParams,
 } from 'vscode-languageserver-protocol/node';
@@ -86,7 +87,7 @@ export async function startStdioServer(): Promise<StdioServer> {
   const dir = mkdtempSync(join(tmpdir(), 'saltus-lsp-test-'));
   const entry = join(dir, 'entry.ts');
   writeFileSync(entry, `import { runLanguageServer } from ${JSON.stringify(join(root, 'server/src/lsp/main'))};\nrunLanguageServer();\n`);
-  await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: join(dir, 'server.js'), logLevel: 'silent' });
+  await build({ entryPoints: [entry], bundle: true, platform: 'node', format: 'cjs', target: 'node20', outfile: join(dir, 'server.js'), logLevel: 'silent', plugins: [rawTextPlugin] });
   const proc = spawn(process.execPath, [join(dir, 'server.js'), '--stdio'], { stdio: ['pipe', 'pipe', 'pipe'] });
   let stderr = '';
   proc.stderr!.on('data', (d) => { stderr += String(d); });

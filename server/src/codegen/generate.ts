@@ -8,14 +8,15 @@
 import type { Analysis } from '../pipeline';
 import { type Renaming, renameModels } from './names';
 import { type ModelPlan, planModel } from './plan';
+import { type KernelPlan, planKernels } from './kernelPlan';
 import { stampHash } from './hash';
-import { type GeneratedFile, cTarget } from './c';
-import { cudaTarget } from './cuda';
-import { numpyTarget } from './numpy';
-import { driverFile } from './driver';
+import type { GeneratedFile, TargetContext } from './target';
+import { CODE_TARGETS, codeTarget } from './targets/index';
+import { readNetworkSpec } from './network';
 
-export type Target = 'c' | 'cuda' | 'numpy';
-export const TARGETS: readonly Target[] = ['c', 'cuda', 'numpy'];
+/** A registered target's id (targets/index.ts). */
+export type Target = string;
+export const TARGETS: readonly Target[] = CODE_TARGETS.map((t) => t.id);
 
 export interface GenerateOptions {
   target: Target;
@@ -29,6 +30,8 @@ export interface GenerateOptions {
   inlineParams?: boolean;
   /** The source file's name for the header (a base name; no directories are printed). */
   source?: string;
+  /** A network description (parsed JSON) for a target that generates a network runner. */
+  network?: unknown;
 }
 
 export interface GenerateResult {
@@ -39,7 +42,7 @@ export interface GenerateResult {
   errors: string[];
 }
 
-export type { GeneratedFile } from './c';
+export type { GeneratedFile } from './target';
 
 function baseName(path: string | undefined): string | undefined {
   if (!path) return undefined;
@@ -50,9 +53,12 @@ function baseName(path: string | undefined): string | undefined {
 export function generateFiles(analysis: Analysis, options: GenerateOptions): GenerateResult {
   const fail = (...errors: string[]): GenerateResult => ({ files: [], renamed: [], notes: [], errors });
   try {
-    if (!TARGETS.includes(options.target)) return fail(`unknown target '${String(options.target)}'; use one of ${TARGETS.join(', ')}`);
-    if (options.driver && options.target !== 'c') return fail('a driver is generated for the C target only (--target c --driver)');
-    if (options.float && options.target === 'numpy') return fail('--float applies to the C and CUDA targets; NumPy code follows the dtype of the arrays passed in');
+    const target = codeTarget(options.target);
+    if (!target) return fail(`unknown target '${String(options.target)}'; use one of ${TARGETS.join(', ')}`);
+    if (options.driver && !target.accepts.driver) return fail(`a driver is generated for the ${CODE_TARGETS.filter((t) => t.accepts.driver).map((t) => t.label).join(', ')} target only`);
+    if (options.float && !target.accepts.float) return fail(`--float does not apply to the ${target.label} target (its code follows the dtype of the arrays passed in)`);
+    if (options.inlineParams && !target.accepts.inlineParams) return fail(`--inline-params does not apply to the ${target.label} target`);
+    if (options.network !== undefined && !target.accepts.network) return fail(`the ${target.label} target does not generate a network runner yet; use ${CODE_TARGETS.filter((t) => t.accepts.network).map((t) => t.id).join(', ')}`);
     const errs = analysis.diagnostics.filter((d) => d.severity === 'error');
     if (errs.length) {
       return fail(`the model file has ${errs.length} error${errs.length === 1 ? '' : 's'}; fix them first (saltus check shows them): `
@@ -67,28 +73,33 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
     const renamed: Renaming[] = models.renamed.filter((r) => chosen.some((n) => n.name === r.model));
     const notes: string[] = [];
     const errors: string[] = [];
-    const plans: ModelPlan[] = [];
-    for (const n of chosen) {
-      const r = planModel(n, models.ids.get(n.name)!, analysis.timestep?.seconds); // the effective dt (pipeline.ts)
-      renamed.push(...r.renamed);
-      errors.push(...r.errors);
-      if (r.plan) { plans.push(r.plan); notes.push(...r.plan.notes); }
+    let network;
+    if (options.network !== undefined) {
+      const r = readNetworkSpec(options.network, all.map((n) => n.name));
+      if (r.errors.length) return fail(...r.errors.map((e) => `network description: ${e}`));
+      network = r.spec!;
     }
-    if (errors.length) return { files: [], renamed, notes, errors };
-
-    const files: GeneratedFile[] = [];
-    const base = { ...(baseName(options.source) ? { source: baseName(options.source)! } : {}), inlineParams: !!options.inlineParams, renamed };
-    const flavour = { cuda: options.target === 'cuda', float: !!options.float, inline: !!options.inlineParams };
-    for (const plan of plans) {
-      if (options.target === 'c') {
-        files.push(...cTarget(plan, flavour, base));
-        if (options.driver) files.push(driverFile(plan, flavour, base));
-      } else if (options.target === 'cuda') {
-        files.push(...cudaTarget(plan, flavour, base));
-      } else {
-        files.push(numpyTarget(plan, base));
+    const wanted = network ? all.filter((n) => network!.models.includes(n.name) || chosen.includes(n)) : chosen;
+    const dt = analysis.timestep?.seconds; // the effective dt (pipeline.ts)
+    let kernelPlans: KernelPlan[] | undefined, modelPlans: ModelPlan[] | undefined;
+    const collect = <P extends { notes: string[] }>(make: (n: typeof all[number], id: string) => { plan?: P; errors: string[]; renamed: Renaming[] }): P[] => {
+      const out: P[] = [];
+      for (const n of wanted) {
+        const r = make(n, models.ids.get(n.name)!);
+        renamed.push(...r.renamed);
+        errors.push(...r.errors);
+        if (r.plan) { out.push(r.plan); notes.push(...r.plan.notes); }
       }
-    }
+      return out;
+    };
+    const ctx: TargetContext = {
+      models: wanted, options: { ...(options.float ? { float: true } : {}), ...(options.driver ? { driver: true } : {}), ...(options.inlineParams ? { inlineParams: true } : {}) },
+      kernelPlans: () => (kernelPlans ??= collect((n, id) => planKernels(n, id, dt))),
+      modelPlans: () => (modelPlans ??= collect((n, id) => planModel(n, id, dt))),
+      ...(network ? { network } : {}), ...(baseName(options.source) ? { source: baseName(options.source)! } : {}), renamed,
+    };
+    const files: GeneratedFile[] = target.generate(ctx);
+    if (errors.length) return { files: [], renamed, notes, errors };
     for (const r of renamed) notes.push(`${r.model}: ${r.kind} '${r.from}' is written '${r.to}' in generated code (${r.reason})`);
     return { files: files.map((f) => ({ name: f.name, content: stampHash(f.content) })), renamed, notes, errors: [] };
   } catch (e) {

@@ -26,7 +26,7 @@ free main exit EXIT_SUCCESS EXIT_FAILURE size_t np numpy math abs float int rang
 /** Names the generated functions use for their own parameters and temporaries. */
 export const INTERNAL_NAMES = `n_neurons idx state coeffs par t t_start dt guard_before spiked spike_time pre weights received adj
 fwd loss_source grads weight_grad coupling_out couplings dlp_dts lV_pres lV_posts g_start g_end crossed spikes step_a step_b
-step_z count phi coupling dlp_dt lV_pre lV_post gdot P Q q M E out record aug expo value name mask`;
+step_z count phi coupling dlp_dt lV_pre lV_post gdot P Q q M E out record aug expo value name mask x p lam dx weight X`;
 
 const words = (s: string): string[] => s.split(/\s+/).filter(Boolean);
 export const RESERVED: ReadonlySet<string> = new Set([...words(C_KEYWORDS), ...words(CXX_CUDA), ...words(PY_KEYWORDS),

@@ -18,10 +18,20 @@ import { stepMapFor } from './map';
 export const SUBSTEP_RATE_BOUND = 0.2;
 export const MAX_SUBSTEPS = 64;
 
+/** Sub-steps of the map over a grid step of dt (1 for an exact map). */
 export function substepsFor(neuron: ResolvedNeuron, dt: number): number {
+  const rate = substepRate(neuron);
+  let n = 1;
+  if (!(dt > 0)) return n;
+  while (n < MAX_SUBSTEPS && rate * dt / n > SUBSTEP_RATE_BOUND) n *= 2;
+  return n;
+}
+
+/** The fastest frozen rate |a_i| (1/s) the rule above divides by; 0 for an exact map. */
+export function substepRate(neuron: ResolvedNeuron): number {
   try {
     const m = stepMapFor(neuron);
-    if (m.exact || m.problems.length || !(dt > 0)) return 1;
+    if (m.exact || m.problems.length) return 0;
     const scheme = buildScheme(neuron);
     const env: Record<string, number> = { [TIME]: 0 };
     neuron.params.forEach((p) => { env[p.name] = p.valueSI ?? NaN; });
@@ -42,10 +52,8 @@ export function substepsFor(neuron: ResolvedNeuron, dt: number): number {
         try { const a = Math.abs(evaluate(entry.a, e)); if (Number.isFinite(a)) rate = Math.max(rate, a); } catch { /* unbound: skip */ }
       }
     }
-    let n = 1;
-    while (n < MAX_SUBSTEPS && rate * dt / n > SUBSTEP_RATE_BOUND) n *= 2;
-    return n;
+    return rate;
   } catch {
-    return 1;
+    return 0;
   }
 }

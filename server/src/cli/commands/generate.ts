@@ -1,29 +1,29 @@
-// `saltus generate FILE --target c|cuda|numpy [--model NAME] --out DIR [--float] [--driver]
-// [--inline-params] [--force] [--timestep TIME]` (alias --dt; the dt quoted in the headers and
+// `saltus generate FILE --target TARGET [--network NET.json] [--model NAME] --out DIR [--float]
+// [--driver] [--inline-params] [--force] [--timestep TIME]` (targets: codegen/targets/index.ts) (alias --dt; the dt quoted in the headers and
 // used to choose the forward scheme, through the analysis): writes the update code of each model
 // (or of NAME) into DIR (codegen/generate.ts), safely (codegen/write.ts): nothing outside
 // DIR, no file that changed since Saltus wrote it (unless --force), each file atomically.
 // Exit 0: written; 1: the model has errors, or a file was refused; 2: usage error.
 import { analyse } from '../../pipeline';
 import { generateFiles, TARGETS, type Target, writeGenerated } from '../../codegen';
+import { CODE_TARGETS, codeTarget } from '../../codegen/targets/index';
 import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, UsageError, type Command } from '../command';
 import { readSourceFiles } from '../sourceFiles';
 
 export const generateCommand: Command = {
   name: 'generate',
-  summary: 'write C, CUDA or NumPy update code (forward, threshold, jumps, adjoint) for a model',
-  help: `Usage: saltus generate FILE --target c|cuda|numpy --out DIR [--model NAME]
-                       [--float] [--driver] [--inline-params] [--force] [--timestep TIME]
+  summary: `write simulation and gradient code for a model (${CODE_TARGETS.map((t) => t.id).join(', ')})`,
+  help: `Usage: saltus generate FILE --target ${CODE_TARGETS.map((t) => t.id).join('|')} --out DIR [--network NET.json]
+                       [--model NAME] [--float] [--driver] [--inline-params] [--force] [--timestep TIME]
 
-Writes the update code of each model in FILE (or of NAME) into DIR: the forward step (the
-scheme the step analysis chose per state), the threshold test and spike jumps, the incoming
-jump, the backward (adjoint) step, the backward spike and incoming jumps with the gradients.
+Writes the code of each model in FILE (or of NAME) into DIR: the step map between events,
+the threshold and jumps, and the exact gradient of the simulation on a time grid. With
+--network, also a runner for the network that NET.json describes (docs/codegen.md).
 All values are in SI units; each file's header lists them.
 
 Options:
-  --target c       <model>.h and <model>.c (C99, struct of arrays over n neurons)
-  --target cuda    <model>.cuh and <model>.cu (one thread per neuron, host launchers)
-  --target numpy   <model>.py (vectorised functions over arrays)
+${CODE_TARGETS.map((t) => `  --target ${t.id.padEnd(7)} ${t.description}`).join('\n')}
+  --network FILE   a network description (the cross-check scenario format): adds its runner
   --out DIR        the output directory (created when missing); nothing is written elsewhere
   --model NAME     only this model of the file
   --float          single precision (c and cuda)
@@ -39,7 +39,7 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
   async run(argv, io) {
     const { values, positionals } = parseCommandArgs('generate', argv, {
       target: { type: 'string' }, model: { type: 'string' }, out: { type: 'string' }, float: { type: 'boolean' },
-      driver: { type: 'boolean' }, 'inline-params': { type: 'boolean' }, force: { type: 'boolean' }, ...TIMESTEP_OPTIONS,
+      driver: { type: 'boolean' }, 'inline-params': { type: 'boolean' }, force: { type: 'boolean' }, network: { type: 'string' }, ...TIMESTEP_OPTIONS,
     });
     if (values.help) { io.out(generateCommand.help + '\n'); return { exitCode: 0 }; }
     if (values.target === undefined) throw new UsageError(`--target is required: one of ${TARGETS.join(', ')}`, 'generate');
@@ -47,14 +47,20 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
     const out = values.out as string | undefined;
     if (!out) throw new UsageError('--out DIR is required: the directory to write into', 'generate');
     if (positionals.length !== 1) throw new UsageError('give exactly one .saltus file', 'generate');
-    if (values.driver && target !== 'c') throw new UsageError('--driver goes with --target c', 'generate');
-    if (values.float && target === 'numpy') throw new UsageError('--float goes with --target c or cuda (NumPy follows the arrays\' dtype)', 'generate');
+    const t = codeTarget(target)!;
+    if (values.driver && !t.accepts.driver) throw new UsageError(`--driver goes with --target ${CODE_TARGETS.filter((x) => x.accepts.driver).map((x) => x.id).join(' or ')}`, 'generate');
+    if (values.float && !t.accepts.float) throw new UsageError(`--float goes with --target ${CODE_TARGETS.filter((x) => x.accepts.float).map((x) => x.id).join(' or ')} (${t.label} follows the arrays' dtype)`, 'generate');
+    let network: unknown;
+    if (values.network !== undefined) {
+      const [net] = readSourceFiles('generate', [values.network as string], io.cwd);
+      try { network = JSON.parse(net!.text); } catch (e) { throw new UsageError(`--network ${String(values.network)}: not valid JSON: ${(e as Error).message}`, 'generate'); }
+    }
     const timestep = timestepArg('generate', values);
     const [source] = readSourceFiles('generate', positionals, io.cwd);
     const analysis = analyse(source!.text, timestep ? { timestep } : {});
     const result = generateFiles(analysis, {
       target, source: source!.path, float: !!values.float, driver: !!values.driver, inlineParams: !!values['inline-params'],
-      ...(values.model !== undefined ? { model: values.model as string } : {}),
+      ...(values.model !== undefined ? { model: values.model as string } : {}), ...(network !== undefined ? { network } : {}),
     });
     if (result.errors.length) {
       for (const e of result.errors) io.err(`saltus generate: ${source!.path}: ${e}\n`);

@@ -699,3 +699,44 @@ def backward(run, spike_time_grad=None):
     for L in lives:
         params[L.pop.name] = {p: float(X.sum(grads[L.index][q])) for q, p in enumerate(L.model.GRAD_PARAMS)}
     return {"loss": run.loss, "weights": gW, "params": params, "event_times": event_times, "records": records}
+
+
+def load_network(obj, models):
+    """A Network from a network description (the cross-check scenario format, docs/codegen.md):
+    {"duration_s", "populations": {name: {"size", "spikes"} | {"model", "size", "params", "initial"}},
+    "projections": [{"from", "to", "weights"}], "loss": {...}, "trials": [{"inputs": {...}, "label"}]?}.
+    `models` maps model names to generated model modules. Values are SI numbers."""
+    pops = obj["populations"]
+    inputs = {}
+    populations = []
+    single = {}
+    for name, p in pops.items():
+        if "model" in p:
+            if p["model"] not in models:
+                raise ValueError("populations.%s.model: no generated model named %s (have: %s)" % (name, p["model"], ", ".join(sorted(models))))
+            populations.append(Population(name, p["size"], models[p["model"]], p.get("params"), p.get("initial")))
+        else:
+            inputs[name] = int(p["size"])
+            single[name] = [(float(t), int(i)) for t, i in p.get("spikes", [])]
+    trials = obj.get("trials")
+    if trials is None:
+        trials = [{"inputs": single}]
+    trials = [{"inputs": {k: [(float(t), int(i)) for t, i in v] for k, v in tr.get("inputs", {}).items()}, "label": tr.get("label", 0)} for tr in trials]
+    loss = dict(obj["loss"])
+    if loss["kind"] == "state-integral":
+        size = pops[loss["population"]]["size"]
+        tgt = loss["target"]
+        loss["target"] = [float(tgt)] * size if not isinstance(tgt, list) else [float(v) for v in tgt]
+    projections = [{"from": p["from"], "to": p["to"], "weights": p["weights"]} for p in obj["projections"]]
+    return Network(obj["duration_s"], inputs, populations, projections, trials, loss)
+
+
+def report(run, grad):
+    """The runner contract (docs/codegen.md): loss, spikes of trial 0, dL/dW per projection, dL/dp."""
+    out = {"loss": run.loss, "spikes": {k: [[t, i] for t, i in v] for k, v in run.spikes[0].items()},
+           "weights": [X.tolist(w) for w in grad["weights"]],
+           "params": {"%s.%s" % (pop, name): v for pop, ps in grad["params"].items() for name, v in ps.items()}}
+    if len(run.spikes) > 1:
+        out["trials"] = len(run.spikes)
+        out["spikes_per_trial"] = [{k: [[t, i] for t, i in v] for k, v in s.items()} for s in run.spikes]
+    return out

@@ -1,0 +1,11 @@
+// The registry of code targets: a new target is one module here (docs/codegen.md, "Targets").
+import type { CodeTarget } from '../target';
+import { C_TARGET } from './c';
+import { CUDA_TARGET } from './cuda';
+import { NUMPY_TARGET } from './numpy';
+
+export const CODE_TARGETS: readonly CodeTarget[] = [C_TARGET, CUDA_TARGET, NUMPY_TARGET];
+
+export function codeTarget(id: string): CodeTarget | undefined {
+  return CODE_TARGETS.find((t) => t.id === id);
+}
