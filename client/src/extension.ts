@@ -10,7 +10,7 @@ import { LanguageClient, State, TransportKind, type LanguageClientOptions, type 
 import type { AnalysisSummary } from '../../server/src/outputs/summary';
 import { showAdjoint, watchAdjoint } from './adjointPanel';
 import { generateCode } from './generateCommand';
-import { checkGradients } from './gradcheckCommand';
+import { crossCheck } from './crossCheckCommand';
 
 let client: LanguageClient | undefined;
 
@@ -69,7 +69,7 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
     vscode.commands.registerCommand('saltus.showAdjoint', (uri?: string | vscode.Uri) =>
       showAdjoint(context, lc, typeof uri === 'string' ? vscode.Uri.parse(uri) : uri)),
     watchAdjoint(context, lc),
-    vscode.commands.registerCommand('saltus.checkGradients', (uri?: string | vscode.Uri) => checkGradients(lc, uri)),
+    vscode.commands.registerCommand('saltus.crossCheck', (uri?: string | vscode.Uri) => crossCheck(lc, uri)),
     vscode.commands.registerCommand('saltus.generateCode', (uri?: string | vscode.Uri, model?: string) => generateCode(lc, uri, model)),
   );
 

@@ -9,11 +9,11 @@
 // Invariants: the workspace is a scratch copy of samples/ (a quick fix never edits the
 // repository); each check opens what it needs itself; screenshots of passing checks go to
 // docs/screenshots/NAME.png. The checks of the commands that derive results (generated code,
-// gradient check) are in vscodeDerived.e2e.mjs.
+// gradient cross-check) are in vscodeDerived.e2e.mjs.
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { expect, lineOf, Skip } from './checkKit.mjs';
-import { checkGenerateCode, checkGenerateCodeLens, checkGradients } from './vscodeDerived.e2e.mjs';
+import { checkGenerateCode, checkGenerateCodeLens, crossCheck } from './vscodeDerived.e2e.mjs';
 
 export { Skip };
 
@@ -205,7 +205,7 @@ export const CHECKS = [
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
   { name: 'vscode: "Generate code…" from the palette writes the NumPy files the CLI writes', run: checkGenerateCode },
   { name: 'vscode: the "generate code…" CodeLens writes one model\'s C99 files', run: checkGenerateCodeLens },
-  { name: 'vscode: "Check gradients" shows the report webview and the verdict', run: checkGradients },
+  { name: 'vscode: "Cross-check gradients" shows the report webview and the verdict', run: crossCheck },
   // last: it leaves the Extensions view in the side bar, where the others use the Explorer
   { name: 'vscode: extension page shows the icon and README', run: checkExtensionPage },
 ];

@@ -1,6 +1,6 @@
 // LSP handlers for the derived results: CodeLenses above each neuron (the adjoint's verdict,
 // opening the preview; generate code), the `saltus/adjointPreview` request the client's
-// webview renders, `saltus/gradcheck` (the gradient check of a scenario, with progress and
+// webview renders, `saltus/crosscheck` (the gradient cross-check of a scenario, with progress and
 // cancellation), and `saltus/generate`, which writes generated code into a folder the
 // modeller picked. Guarded like every other handler (features.ts). Code lenses derive
 // uncached neurons only within CODELENS_BUDGET_MS.
@@ -11,13 +11,13 @@ import { makeGuard, type DocumentState } from './documentState';
 import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';
-import { runGradcheck } from '../gradcheck/index';
+import { runCrossCheck } from '../crosscheck/index';
 
 /** The client command a lens runs (contributed by the VS Code extension). */
 export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
 export const GENERATE_COMMAND = 'saltus.generateCode';
 
-export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
+export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
 export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean; timestepSI?: number }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
@@ -47,18 +47,18 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
         ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: GENERATE_COMMAND, arguments: [uri, n.name] } }] : [])];
     }).flat();
   }));
-  // The gradient check runs asynchronously (it yields between simulations): progress goes out
-  // as `saltus/gradcheckProgress` notifications, and cancelling the request stops it.
-  connection.onRequest('saltus/gradcheck', async (p: GradcheckParams, token) => {
+  // The gradient cross-check runs asynchronously (it yields between simulations): progress goes out
+  // as `saltus/crosscheckProgress` notifications, and cancelling the request stops it.
+  connection.onRequest('saltus/crosscheck', async (p: CrossCheckParams, token) => {
     try {
       const c = typeof p?.uri === 'string' ? state.analysisFor(p.uri) : undefined;
       if (!c) return null;
       const signal = { get aborted() { return token.isCancellationRequested; } };
-      return await runGradcheck(c.analysis, p.scenario, { signal, sourceLabel: decodeURIComponent(p.uri.split('/').pop() ?? p.uri),
+      return await runCrossCheck(c.analysis, p.scenario, { signal, sourceLabel: decodeURIComponent(p.uri.split('/').pop() ?? p.uri),
         ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
-        onProgress: (pr) => { void connection.sendNotification('saltus/gradcheckProgress', { uri: p.uri, ...pr }); } });
+        onProgress: (pr) => { void connection.sendNotification('saltus/crosscheckProgress', { uri: p.uri, ...pr }); } });
     } catch (e) {
-      state.log(`saltus: gradient check failed: ${(e as Error)?.stack ?? String(e)}`);
+      state.log(`saltus: gradient cross-check failed: ${(e as Error)?.stack ?? String(e)}`);
       return null;
     }
   });

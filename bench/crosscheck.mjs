@@ -1,5 +1,5 @@
 #!/usr/bin/env node
-// Wall time of `saltus gradcheck` on every demo scenario (samples/scenarios/NAME.json with
+// Wall time of `saltus crosscheck` on every demo scenario (samples/scenarios/NAME.json with
 // samples/NAME.saltus), run through the built CLI (dist/cli.js; run `npm run build` first).
 // For each scenario: the check's own wall time (as the command measures it: scenario
 // validation, forward and backward passes, all finite-difference simulations, warnings)
@@ -7,7 +7,7 @@
 // start-up, parsing and analysing the model file included),
 // the median of --runs N runs (default 3). The load average is printed because the
 // numbers mean little on a busy machine. Exit 1 if a scenario fails its check.
-// Usage: node bench/gradcheck.mjs [--runs N] [--html DIR]   (--html also writes each report)
+// Usage: node bench/crosscheck.mjs [--runs N] [--html DIR]   (--html also writes each report)
 import { spawnSync } from 'node:child_process';
 import { existsSync, readdirSync } from 'node:fs';
 import { cpus, loadavg } from 'node:os';
@@ -24,7 +24,7 @@ if (!existsSync(cli)) { console.error('bench: dist/cli.js is missing; run npm ru
 
 const median = (xs) => { const s = [...xs].sort((a, b) => a - b); return s[Math.floor((s.length - 1) / 2)]; };
 const scenarios = readdirSync(join(root, 'samples', 'scenarios')).filter((f) => f.endsWith('.json')).sort();
-console.log(`gradcheck benchmark: ${scenarios.length} scenarios, median of ${runs} runs; ${cpus().length} CPUs, load average ${loadavg().map((x) => x.toFixed(2)).join(' ')}`);
+console.log(`crosscheck benchmark: ${scenarios.length} scenarios, median of ${runs} runs; ${cpus().length} CPUs, load average ${loadavg().map((x) => x.toFixed(2)).join(' ')}`);
 console.log(`${'scenario'.padEnd(18)}${'check [ms]'.padStart(12)}${'check CPU [ms]'.padStart(16)}${'process [ms]'.padStart(14)}${'simulations'.padStart(13)}${'max rel. error'.padStart(16)}  result`);
 let failed = 0;
 for (const f of scenarios) {
@@ -34,7 +34,7 @@ for (const f of scenarios) {
   for (let k = 0; k < runs; k++) {
     const extra = htmlDir && k === 0 ? ['--html', join(htmlDir, `${name}.html`)] : [];
     const t0 = performance.now();
-    const r = spawnSync(process.execPath, [cli, 'gradcheck', `samples/${name}.saltus`, '--scenario', `samples/scenarios/${f}`, '--format', 'json', ...extra],
+    const r = spawnSync(process.execPath, [cli, 'crosscheck', `samples/${name}.saltus`, '--scenario', `samples/scenarios/${f}`, '--format', 'json', ...extra],
       { cwd: root, encoding: 'utf8', maxBuffer: 64 << 20 });
     proc.push(performance.now() - t0);
     try { last = JSON.parse(r.stdout); } catch { last = { status: 'unreadable', passed: false, timing: {} }; }

@@ -1,4 +1,4 @@
-// The faces of the gradient check: `saltus gradcheck` (JSON contract, text, exit codes,
+// The faces of the gradient cross-check: `saltus crosscheck` (JSON contract, text, exit codes,
 // usage errors), the standalone HTML page (escaping, no script, one chart per state and
 // costate), the warnings for near-grazing spikes and spike-count changes, and a negative
 // control: a derivation with its phi term removed (the jump multiplier of LANGUAGE.md
@@ -10,15 +10,15 @@ import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { derivationFor } from '../server/src/adjoint';
 import { ZERO } from '../server/src/symbolic/sym';
-import { gradcheckHtml, runGradcheckSync } from '../server/src/gradcheck';
+import { crossCheckHtml, runCrossCheckSync } from '../server/src/crosscheck';
 import { root, runCli } from './helpers/cli';
 import { lifText } from './helpers/models';
 
 const read = (p: string): string => readFileSync(join(root, p), 'utf8');
 
-describe('saltus gradcheck', () => {
+describe('saltus crosscheck', () => {
   test('--format json keeps the contract fields and exits 0 on a passing scenario', () => {
-    const r = runCli(['gradcheck', 'samples/adaptive_lif.saltus', '--scenario', 'samples/scenarios/adaptive_lif.json', '--format', 'json']);
+    const r = runCli(['crosscheck', 'samples/adaptive_lif.saltus', '--scenario', 'samples/scenarios/adaptive_lif.json', '--format', 'json']);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
@@ -35,9 +35,9 @@ describe('saltus gradcheck', () => {
   });
 
   test('text output and the --html page', () => {
-    const dir = mkdtempSync(join(tmpdir(), 'saltus-gradcheck-'));
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-crosscheck-'));
     const out = join(dir, 'sub', 'report.html');
-    const r = runCli(['gradcheck', 'samples/lif_current.saltus', '--scenario', 'samples/scenarios/lif_current.json', '--html', out]);
+    const r = runCli(['crosscheck', 'samples/lif_current.saltus', '--scenario', 'samples/scenarios/lif_current.json', '--html', out]);
     expect(r.code).toBe(0);
     expect(r.stdout).toMatch(/w0 sensor\[0\] -> hid\[0\]/);
     expect(r.stdout).toMatch(/hid\.tau_m/);
@@ -53,25 +53,41 @@ describe('saltus gradcheck', () => {
   });
 
   test('a broken scenario exits 1 with the JSON path on stdout; usage errors exit 2', () => {
-    const dir = mkdtempSync(join(tmpdir(), 'saltus-gradcheck-'));
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-crosscheck-'));
     const bad = join(dir, 'bad.json');
     writeFileSync(bad, JSON.stringify({ ...JSON.parse(read('samples/scenarios/readout.json')), projections: [{ from: 'sensor', to: 'score', weights: [[1, 2]] }] }));
-    const r = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad]);
+    const r = runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad]);
     expect(r.code).toBe(1);
     expect(r.stdout).toMatch(/projections\[0\]\.weights: expected 2 rows/);
-    const j = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'json']);
+    const j = runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'json']);
     expect(JSON.parse(j.stdout).errors[0].path).toBe('projections[0].weights');
-    expect(runCli(['gradcheck', 'samples/readout.saltus']).code).toBe(2);
-    const missing = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', join(dir, 'nope.json')]);
+    expect(runCli(['crosscheck', 'samples/readout.saltus']).code).toBe(2);
+    const missing = runCli(['crosscheck', 'samples/readout.saltus', '--scenario', join(dir, 'nope.json')]);
     expect(missing.code).toBe(2);
     expect(missing.stderr).toMatch(/nope\.json: no such file/);
-    expect(runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'xml']).code).toBe(2);
-    expect(runCli(['gradcheck', 'samples/readout.saltus', '--scenario', bad, '--tolerance', '-1']).code).toBe(2);
-    expect(runCli(['help', 'gradcheck']).stdout).toMatch(/--scenario S\.json/);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'xml']).code).toBe(2);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--tolerance', '-1']).code).toBe(2);
+    expect(runCli(['help', 'crosscheck']).stdout).toMatch(/--scenario S\.json/);
+  });
+
+  test('the scenario may be the second argument; the old name gradcheck still runs, hidden, with a notice', () => {
+    const pos = runCli(['crosscheck', 'samples/readout.saltus', 'samples/scenarios/readout.json', '--format', 'json']);
+    expect(pos.code).toBe(0);
+    expect(JSON.parse(pos.stdout).passed).toBe(true);
+    const old = runCli(['gradcheck', 'samples/readout.saltus', 'samples/scenarios/readout.json', '--format', 'json']);
+    expect(old.code).toBe(0);
+    expect(JSON.parse(old.stdout)).toMatchObject({ passed: true, loss: JSON.parse(pos.stdout).loss });
+    expect(old.stderr.trim().split('\n')).toEqual([expect.stringMatching(/'gradcheck' was renamed 'crosscheck'/)]);
+    const help = runCli(['--help']).stdout;
+    expect(help).toMatch(/^ {2}crosscheck /m);
+    expect(help).not.toMatch(/gradcheck/);
+    expect(runCli(['gradchek']).stderr).toMatch(/did you mean 'crosscheck'/);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', 'a.json', 'b.json']).code).toBe(2);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', 'a.json', '--scenario', 'b.json']).code).toBe(2);
   });
 
   test('a tolerance below the achievable accuracy fails with exit 1', () => {
-    const r = runCli(['gradcheck', 'samples/readout.saltus', '--scenario', 'samples/scenarios/readout.json', '--tolerance', '1e-15']);
+    const r = runCli(['crosscheck', 'samples/readout.saltus', '--scenario', 'samples/scenarios/readout.json', '--tolerance', '1e-15']);
     expect(r.code).toBe(1);
     expect(r.stdout).toMatch(/CHECK FAILED/);
   });
@@ -84,7 +100,7 @@ describe('the check can fail, and says why', () => {
       const d = derivationFor(m);
       return d.spike ? { ...d, spike: { ...d.spike, phi: ZERO } } : d;
     };
-    const r = runGradcheckSync(a, read('samples/scenarios/lif_current.json'), { derivation: broken, traces: false });
+    const r = runCrossCheckSync(a, read('samples/scenarios/lif_current.json'), { derivation: broken, traces: false });
     expect(r.status).toBe('ok');
     expect(r.passed).toBe(false);
     expect(r.maxRelativeError!).toBeGreaterThan(1e-2);
@@ -93,12 +109,12 @@ describe('the check can fail, and says why', () => {
 
   const MODEL = analyse(lifText());
   // With tau_m = 2 tau_s one input of weight w raises V to the peak w/4 (Wunderlich & Pehle
-  // Table 1 model, our closed form in gradcheck-eventprop.test.ts): w near 4 theta grazes.
+  // Table 1 model, our closed form in crosscheck-eventprop.test.ts): w near 4 theta grazes.
   const near = (w: number) => ({ duration_s: 0.03, populations: { in: { size: 1, spikes: [[0.002, 0]] }, n: { model: 'L', size: 1 } },
     projections: [{ from: 'in', to: 'n', weights: [[w]] }], loss: { kind: 'state-integral', population: 'n', state: 'V', target: 0 } });
 
   test('a near miss: the +h perturbation adds a spike, so no finite difference is reported', () => {
-    const r = runGradcheckSync(MODEL, near(4 * (1 - 1e-7)), { traces: false });
+    const r = runCrossCheckSync(MODEL, near(4 * (1 - 1e-7)), { traces: false });
     expect(r.spikeCounts.n).toEqual([0]);
     expect(r.gradients[0]!.finiteDifference).toBeNull();
     expect(r.gradients[0]!.status).toBe('spike-count-changed');
@@ -108,12 +124,12 @@ describe('the check can fail, and says why', () => {
   });
 
   test('a grazing spike is flagged', () => {
-    const r = runGradcheckSync(MODEL, near(4 * (1 + 1e-6)), { traces: false });
+    const r = runCrossCheckSync(MODEL, near(4 * (1 + 1e-6)), { traces: false });
     expect(r.spikeCounts.n).toEqual([1]);
     const g = r.warnings.find((w) => w.kind === 'grazing');
     expect(g?.message).toMatch(/n\[0\] spikes at .* nearly grazing crossing/);
     // A comfortable crossing is not flagged.
-    expect(runGradcheckSync(MODEL, near(5), { traces: false }).warnings.filter((w) => w.kind === 'grazing' || w.kind === 'near-miss')).toEqual([]);
+    expect(runCrossCheckSync(MODEL, near(5), { traces: false }).warnings.filter((w) => w.kind === 'grazing' || w.kind === 'near-miss')).toEqual([]);
   });
 });
 
@@ -122,20 +138,20 @@ describe('the HTML page', () => {
     const a = analyse(read('samples/readout.saltus'));
     const s = JSON.parse(read('samples/scenarios/readout.json'));
     s.description = '<script>alert("x")</script> & <b>bold</b>';
-    const r = runGradcheckSync(a, s, { sourceLabel: 'a<b>.saltus', scenarioLabel: '"quoted" & <odd>.json' });
-    const html = gradcheckHtml(r, { nonce: 'n0nce' });
+    const r = runCrossCheckSync(a, s, { sourceLabel: 'a<b>.saltus', scenarioLabel: '"quoted" & <odd>.json' });
+    const html = crossCheckHtml(r, { nonce: 'n0nce' });
     expect(html).not.toMatch(/<script/i);
     expect(html).not.toMatch(/<b>/);
     expect(html).toContain('&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; &lt;b&gt;bold&lt;/b&gt;');
     expect(html).toContain('a&lt;b&gt;.saltus');
     expect(html).toContain('<style nonce="n0nce">');
-    const webview = gradcheckHtml(r, { nonce: 'n1', cspSource: 'vscode-resource:' });
+    const webview = crossCheckHtml(r, { nonce: 'n1', cspSource: 'vscode-resource:' });
     expect(webview).toMatch(/style-src 'nonce-n1'; img-src vscode-resource: data:/);
   });
 
   test('an invalid scenario renders its errors', () => {
-    const r = runGradcheckSync(analyse(read('samples/readout.saltus')), '{"duration_s": 1}');
-    const html = gradcheckHtml(r);
+    const r = runCrossCheckSync(analyse(read('samples/readout.saltus')), '{"duration_s": 1}');
+    const html = crossCheckHtml(r);
     expect(html).toMatch(/cannot be checked/);
     expect(html).toContain('<code>populations</code>');
     expect(existsSync(join(root, 'samples', 'scenarios', 'readout.json'))).toBe(true);

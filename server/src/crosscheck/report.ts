@@ -1,14 +1,14 @@
-// The text and JSON faces of a gradient-check result. The JSON keeps the contract of
-// docs/gradcheck.md (loss, spikes, gradients, params, maxRelativeError) and adds status,
+// The text and JSON faces of a cross-check result. The JSON keeps the contract of
+// docs/crosscheck.md (loss, spikes, gradients, params, maxRelativeError) and adds status,
 // spike counts, warnings and the rest; traces stay out of it (they are for the page).
 // Invariant: JSON numbers are finite or null (JSON has no NaN or Infinity).
-import type { GradcheckResult } from './types';
+import type { CrossCheckResult } from './types';
 import { rowLabel } from './types';
 import { sci } from './svg';
 
 const num = (v: number | null | undefined): number | null => (v === null || v === undefined || !Number.isFinite(v) ? null : v);
 
-export function gradcheckJson(r: GradcheckResult): Record<string, unknown> {
+export function crossCheckJson(r: CrossCheckResult): Record<string, unknown> {
   const row = <T extends { adjoint: number; finiteDifference: number | null; relativeError: number | null; absoluteError: number | null; value: number; step: number | null }>(x: T) =>
     ({ ...x, adjoint: num(x.adjoint), finiteDifference: num(x.finiteDifference), relativeError: num(x.relativeError), absoluteError: num(x.absoluteError), value: num(x.value), step: num(x.step) });
   return {
@@ -41,8 +41,8 @@ export function gradcheckJson(r: GradcheckResult): Record<string, unknown> {
   };
 }
 
-export function gradcheckText(r: GradcheckResult): string {
-  const out: string[] = [`Gradient check: ${r.source} with ${r.scenario}`];
+export function crossCheckText(r: CrossCheckResult): string {
+  const out: string[] = [`Gradient cross-check: ${r.source} with ${r.scenario}`];
   if (r.status !== 'ok') {
     out.push(r.status === 'cancelled' ? 'cancelled' : r.status === 'failed' ? 'a simulation failed:' : 'the scenario cannot be checked:');
     for (const e of r.errors) out.push(`  ${e.path}: ${e.message}`);

@@ -6,7 +6,7 @@
 //   perturbation could add a spike;
 // - silent: a firing population, or a neuron under a spike-time loss, that never fired.
 // Thresholds are our own rules of thumb (GRAZING_RATIO, NEAR_MISS_FRACTION), documented in
-// docs/gradcheck.md. Invariant: never throws; a value that cannot be evaluated gives no warning.
+// docs/crosscheck.md. Invariant: never throws; a value that cannot be evaluated gives no warning.
 import type { NeuronDerivation } from '../adjoint/derive';
 import { compile } from '../symbolic/evaluate';
 import type { Trajectory } from '../simulate';
@@ -14,7 +14,7 @@ import { modelNames, paramValues } from '../simulate/network';
 import type { BuiltScenario } from './build';
 import type { Scenario } from './scenario';
 import type { Grid } from './traces';
-import type { GradcheckWarning } from './types';
+import type { CrossCheckWarning } from './types';
 
 /** A spike whose |gdot| is below this fraction of the neuron's RMS guard slope is flagged. */
 export const GRAZING_RATIO = 0.02;
@@ -25,8 +25,8 @@ const ms = (t: number): string => `${(t * 1e3).toFixed(3)} ms`;
 const pct = (x: number): string => `${(100 * x).toPrecision(2)} %`;
 
 export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid, states: readonly Float64Array[],
-  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): GradcheckWarning[] {
-  const out: GradcheckWarning[] = [];
+  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): CrossCheckWarning[] {
+  const out: CrossCheckWarning[] = [];
   b.net.neurons.forEach((nn, i) => {
     const m = nn.model;
     if (!m.fire) return;
@@ -84,8 +84,8 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
   return out;
 }
 
-export function silentWarnings(s: Scenario, b: BuiltScenario, traj: Trajectory): GradcheckWarning[] {
-  const out: GradcheckWarning[] = [];
+export function silentWarnings(s: Scenario, b: BuiltScenario, traj: Trajectory): CrossCheckWarning[] {
+  const out: CrossCheckWarning[] = [];
   const count = new Map<number, number>();
   for (const sp of traj.spikes) count.set(sp.neuron, (count.get(sp.neuron) ?? 0) + 1);
   for (const p of s.populations) {

@@ -1,4 +1,4 @@
-// Scenario validation (server/src/gradcheck/scenario.ts): every malformed, unknown or
+// Scenario validation (server/src/crosscheck/scenario.ts): every malformed, unknown or
 // inconsistent field gets its own clear message naming its JSON path (table-driven), and
 // no input whatever makes the check throw (fast-check property; Claessen & Hughes 2000's
 // QuickCheck idea as packaged by fast-check).
@@ -7,7 +7,7 @@ import { join } from 'node:path';
 import fc from 'fast-check';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { parseScenario, runGradcheckSync } from '../server/src/gradcheck';
+import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 
 const lifText = readFileSync(join(__dirname, '..', 'samples', 'lif_current.saltus'), 'utf8');
 // The sample plus a firing neuron without an incoming block.
@@ -101,7 +101,7 @@ describe('malformed scenario files', () => {
     expect(hit, `errors: ${JSON.stringify(r.errors)}`).toBeDefined();
     expect(hit!.message).toMatch(message);
     // The same input through the whole check: reported, not thrown.
-    const g = runGradcheckSync(MODELS, input, { traces: false });
+    const g = runCrossCheckSync(MODELS, input, { traces: false });
     expect(g.status).toBe('invalid');
     expect(g.errors.some((e) => e.path === path)).toBe(true);
   });
@@ -121,7 +121,7 @@ describe('malformed scenario files', () => {
 
   test('no JSON value makes the check throw (fast-check)', () => {
     fc.assert(fc.property(fc.jsonValue(), (v) => {
-      const r = runGradcheckSync(MODELS, v, { traces: false });
+      const r = runCrossCheckSync(MODELS, v, { traces: false });
       return r.status === 'invalid' && r.errors.length > 0;
     }), { numRuns: 300 });
     // Mutations of the good scenario: any field replaced by an arbitrary value.
@@ -131,7 +131,7 @@ describe('malformed scenario files', () => {
       fc.pre(!(k === 'duration_s' && typeof v === 'number'));
       const s = good() as Record<string, unknown>;
       s[k] = v;
-      const r = runGradcheckSync(MODELS, s, { traces: false });
+      const r = runCrossCheckSync(MODELS, s, { traces: false });
       return r.status === 'invalid' || r.status === 'ok';
     }), { numRuns: 200 });
   });

@@ -1,4 +1,4 @@
-// The gradient-check report as one standalone HTML page (also the body of the editor's
+// The cross-check report as one standalone HTML page (also the body of the editor's
 // webview): verdict, warnings, the error table, the spike raster, and per-neuron state and
 // adjoint traces drawn as inline SVG (svg.ts). No script, no external resource.
 //
@@ -6,10 +6,10 @@
 // description, labels, warnings) is HTML-escaped; the page's CSP forbids scripts; colours
 // are our own, themed by VS Code's CSS variables when shown in a webview.
 import { type RasterRow, errorBar, esc, lineChart, raster, sci } from './svg';
-import type { GradcheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
+import type { CrossCheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
 import { rowLabel } from './types';
 
-export interface GradcheckPageOptions {
+export interface CrossCheckPageOptions {
   /** Webview CSP source (`webview.cspSource`); omit for a standalone file. */
   cspSource?: string;
   /** Nonce of the inline stylesheet (give a fresh random one in a webview). */
@@ -19,12 +19,12 @@ export interface GradcheckPageOptions {
 
 const ms = (s: number): number => s * 1e3;
 
-export function gradcheckHtml(r: GradcheckResult, o: GradcheckPageOptions = {}): string {
-  const nonce = o.nonce ?? 'saltus-gradcheck';
+export function crossCheckHtml(r: CrossCheckResult, o: CrossCheckPageOptions = {}): string {
+  const nonce = o.nonce ?? 'saltus-crosscheck';
   const csp = o.cspSource
     ? `default-src 'none'; style-src 'nonce-${esc(nonce)}'; img-src ${esc(o.cspSource)} data:;`
     : `default-src 'none'; style-src 'nonce-${esc(nonce)}'; img-src data:;`;
-  const title = o.title ?? 'Gradient check';
+  const title = o.title ?? 'Gradient cross-check';
   return `<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta http-equiv="Content-Security-Policy" content="${csp}">
@@ -38,16 +38,16 @@ ${r.description ? `<p class="desc">${esc(r.description)}</p>` : ''}</header>
 </body></html>`;
 }
 
-function problems(r: GradcheckResult): string {
+function problems(r: CrossCheckResult): string {
   const what = r.status === 'cancelled' ? 'The check was cancelled.' : r.status === 'failed' ? 'A simulation failed.' : 'The scenario cannot be checked:';
   return `<section class="verdict bad"><strong>${esc(what)}</strong><ul class="errors">${r.errors.map((e) => `<li><code>${esc(e.path)}</code> ${esc(e.message)}</li>`).join('')}</ul></section>`;
 }
 
-function body(r: GradcheckResult): string {
+function body(r: CrossCheckResult): string {
   return [verdict(r), warnings(r), table(r), spikes(r), traces(r, 'states'), traces(r, 'costates'), footer(r)].join('\n');
 }
 
-function verdict(r: GradcheckResult): string {
+function verdict(r: CrossCheckResult): string {
   const ok = r.passed;
   const counts = Object.entries(r.spikeCounts).map(([p, c]) => `${esc(p)}: ${!(p in r.spikes) ? 'does not fire' : `${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`}`).join('; ');
   const worst = r.worst ? ` at <code>${esc(r.worst.label)}</code>` : '';
@@ -63,17 +63,17 @@ function verdict(r: GradcheckResult): string {
 </dl></section>`;
 }
 
-function warnings(r: GradcheckResult): string {
+function warnings(r: CrossCheckResult): string {
   if (r.warnings.length === 0) return '';
   return `<section><h2>Warnings</h2><ul class="warnings">${r.warnings.map((w) => `<li><span class="tag">${esc(w.kind)}</span> ${esc(w.message)}</li>`).join('')}</ul></section>`;
 }
 
-function row(x: GradientRow | ParamRow, r: GradcheckResult, worst: boolean): string {
+function row(x: GradientRow | ParamRow, r: CrossCheckResult, worst: boolean): string {
   const status = x.status === 'ok' ? 'agrees' : x.status === 'above-tolerance' ? 'disagrees' : x.status === 'spike-count-changed' ? 'no finite difference' : 'simulation failed';
   return `<tr class="${x.status}${worst ? ' worst' : ''}"><th>${esc(rowLabel(x))}</th><td class="num">${esc(x.unit ? `${sci(x.value / x.unit.scale)} ${x.unit.text}` : sci(x.value))}</td><td class="num">${esc(sci(x.adjoint, 7))}</td><td class="num">${esc(sci(x.finiteDifference, 7))}</td><td class="num">${esc(sci(x.relativeError, 2))}</td><td>${errorBar(x.relativeError, r.tolerance)}</td><td class="status">${esc(status)}${x.note ? `<div class="note">${esc(x.note)}</div>` : ''}</td></tr>`;
 }
 
-function table(r: GradcheckResult): string {
+function table(r: CrossCheckResult): string {
   const head = `<tr><th>weight or parameter</th><th class="num">value</th><th class="num">dL/d(value), SI: adjoint</th><th class="num">finite difference</th><th class="num">relative error</th><th>error, log scale 10⁻¹²…1 (bar: tolerance)</th><th>status</th></tr>`;
   const weights = r.gradients.map((x, k) => row(x, r, r.worst?.kind === 'weight' && r.worst.index === k)).join('');
   const params = r.params.map((x, k) => row(x, r, r.worst?.kind === 'param' && r.worst.index === k)).join('');
@@ -82,7 +82,7 @@ function table(r: GradcheckResult): string {
 <table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="7">trainable parameters</th></tr>${params}` : ''}</tbody></table></section>`;
 }
 
-function spikes(r: GradcheckResult): string {
+function spikes(r: CrossCheckResult): string {
   const rows: RasterRow[] = [];
   const spikeTargets = r.lossKind === 'spike-time' ? r.lossTarget : null;
   for (const p of r.populations) {
@@ -100,7 +100,7 @@ function spikes(r: GradcheckResult): string {
 ${raster(rows, [0, ms(r.duration)], 'time [ms]')}</section>`;
 }
 
-function traces(r: GradcheckResult, which: 'states' | 'costates'): string {
+function traces(r: CrossCheckResult, which: 'states' | 'costates'): string {
   const tr = r.traces;
   if (!tr || tr.neurons.length === 0) return '';
   const t = tr.time.map(ms);
@@ -128,7 +128,7 @@ ${tr.neurons.map((n) => `<div class="neuron"><div class="charts">${charts(n)}</d
 ${omitted ? `<p class="note">${omitted}.</p>` : ''}</section>`;
 }
 
-function footer(r: GradcheckResult): string {
+function footer(r: CrossCheckResult): string {
   const models = r.models.map((m) => `<li><code>${esc(m.name)}</code>: recorded at each spike: ${esc((m.spikeRecord ?? []).join(', ') || (m.spikeRecord ? 'nothing' : '(does not fire)'))}; at each received spike: ${esc((m.incomingRecord ?? []).join(', ') || (m.incomingRecord ? 'nothing' : '(no incoming block)'))}; backward pass ${m.eventBased ? 'purely event-based' : 'needs the forward trajectory between events'}</li>`).join('');
   return `<section><h2>What the derivation asked for</h2><ul class="note">${models}</ul></section>`;
 }

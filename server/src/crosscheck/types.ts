@@ -1,6 +1,6 @@
-// The result of a gradient check: plain JSON data (no typed arrays, maps or classes), so a
+// The result of a gradient cross-check: plain JSON data (no typed arrays, maps or classes), so a
 // language server can send it to the editor as it is and the HTML page, the text report and
-// the JSON contract (docs/gradcheck.md) are all drawn from the same object.
+// the JSON contract (docs/crosscheck.md) are all drawn from the same object.
 import type { NeuronDerivation } from '../adjoint/derive';
 import type { ResolvedNeuron } from '../model/types';
 import type { ScenarioError } from './scenario';
@@ -37,7 +37,7 @@ export interface ParamRow extends RowCommon { population: string; name: string }
 
 export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'remark';
 
-export interface GradcheckWarning {
+export interface CrossCheckWarning {
   kind: WarningKind;
   message: string;
   population?: string;
@@ -83,7 +83,7 @@ export interface ModelSummary {
   eventBased: boolean;
 }
 
-export interface GradcheckTiming {
+export interface CrossCheckTiming {
   /** Wall time of the whole check (validation to report), ms. */
   total_ms: number;
   /** CPU time of the process over the same span (NaN outside Node), ms. */
@@ -94,7 +94,7 @@ export interface GradcheckTiming {
   simulations: number;
 }
 
-export interface GradcheckResult {
+export interface CrossCheckResult {
   /** ok: the check ran (see `passed`); invalid: scenario or model errors; failed: a simulation failed; cancelled. */
   status: 'ok' | 'invalid' | 'failed' | 'cancelled';
   errors: ScenarioError[];
@@ -123,23 +123,23 @@ export interface GradcheckResult {
   tolerance: number;
   /** Every row usable and within tolerance, and at least one row compared. */
   passed: boolean;
-  warnings: GradcheckWarning[];
+  warnings: CrossCheckWarning[];
   models: ModelSummary[];
   settings: { rtol: number; relStep: number };
-  timing: GradcheckTiming;
+  timing: CrossCheckTiming;
   traces?: TraceSet;
 }
 
-export interface GradcheckProgress {
+export interface CrossCheckProgress {
   done: number;
   total: number;
   phase: 'forward' | 'backward' | 'finite-differences' | 'report';
 }
 
-export interface GradcheckOptions {
+export interface CrossCheckOptions {
   /** Checked between simulations; an AbortSignal or anything with `aborted`. */
   signal?: { readonly aborted: boolean };
-  onProgress?: (p: GradcheckProgress) => void;
+  onProgress?: (p: CrossCheckProgress) => void;
   /** Names for the report (paths as the user wrote them). */
   sourceLabel?: string;
   scenarioLabel?: string;

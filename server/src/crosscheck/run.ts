@@ -1,4 +1,4 @@
-// "Is my gradient right?": the gradient check of one scenario against the models of one
+// "Is my gradient right?": the gradient cross-check of one scenario against the models of one
 // analysed .saltus file. Forward: the hybrid DOPRI5 simulation with event location
 // (simulate/forward.ts). Backward: the DERIVED adjoint (adjoint/derive.ts through
 // simulate/backward.ts; no formula is written here). Finite differences: central, with a
@@ -19,15 +19,15 @@ import { parseUnit } from '../units';
 import { fragilityWarnings, silentWarnings } from './warnings';
 import { sampleCostates, sampleGrid, sampleStates } from './traces';
 import { buildTraces, lossUnit, spikeRecords } from './summary';
-import type { GradcheckOptions, GradcheckProgress, GradcheckResult, GradcheckWarning, GradientRow, ParamRow, RowStatus } from './types';
+import type { CrossCheckOptions, CrossCheckProgress, CrossCheckResult, CrossCheckWarning, GradientRow, ParamRow, RowStatus } from './types';
 import { rowLabel } from './types';
 
 export const DEFAULTS = { rtol: 1e-10, relStep: 1e-5, tolerance: 1e-4 };
 
-type Step = Generator<GradcheckProgress, GradcheckResult, void>;
+type Step = Generator<CrossCheckProgress, CrossCheckResult, void>;
 
 /** Runs the check to the end in one go (CLI, tests, benchmarks). */
-export function runGradcheckSync(analysis: Analysis, scenario: unknown, options: GradcheckOptions = {}): GradcheckResult {
+export function runCrossCheckSync(analysis: Analysis, scenario: unknown, options: CrossCheckOptions = {}): CrossCheckResult {
   const it = core(analysis, scenario, options);
   try {
     for (;;) {
@@ -41,7 +41,7 @@ export function runGradcheckSync(analysis: Analysis, scenario: unknown, options:
 }
 
 /** The same, yielding to the event loop between simulations: progress and cancellation work. */
-export async function runGradcheck(analysis: Analysis, scenario: unknown, options: GradcheckOptions = {}): Promise<GradcheckResult> {
+export async function runCrossCheck(analysis: Analysis, scenario: unknown, options: CrossCheckOptions = {}): Promise<CrossCheckResult> {
   if (options.signal?.aborted) return cancelled(options);
   const it = core(analysis, scenario, options);
   try {
@@ -61,11 +61,11 @@ export async function runGradcheck(analysis: Analysis, scenario: unknown, option
 }
 
 /** A bug of ours (or a throwing `derivation`/`onProgress` callback) still comes back as a result. */
-function internalError(e: unknown, options: GradcheckOptions): GradcheckResult {
-  return { ...emptyResult(options), status: 'failed', errors: [{ path: '(internal)', message: `internal error in the gradient check: ${(e as Error)?.message ?? String(e)}` }] };
+function internalError(e: unknown, options: CrossCheckOptions): CrossCheckResult {
+  return { ...emptyResult(options), status: 'failed', errors: [{ path: '(internal)', message: `internal error in the gradient cross-check: ${(e as Error)?.message ?? String(e)}` }] };
 }
 
-function emptyResult(options: GradcheckOptions): GradcheckResult {
+function emptyResult(options: CrossCheckOptions): CrossCheckResult {
   return { status: 'invalid', errors: [], source: options.sourceLabel ?? 'the model file', scenario: options.scenarioLabel ?? 'the scenario',
     duration: 0, lossKind: null, loss: NaN, lossUnit: '1', lossText: '', lossTarget: null, populations: [], spikes: {}, inputSpikes: {}, spikeCounts: {}, gradients: [], params: [],
     maxRelativeError: null, worst: null, tolerance: options.tolerance ?? DEFAULTS.tolerance, passed: false, warnings: [], models: [],
@@ -73,8 +73,8 @@ function emptyResult(options: GradcheckOptions): GradcheckResult {
     timing: { total_ms: 0, cpu_ms: 0, forward_ms: 0, backward_ms: 0, finiteDifferences_ms: 0, simulations: 0 } };
 }
 
-function cancelled(options: GradcheckOptions): GradcheckResult {
-  return { ...emptyResult(options), status: 'cancelled', errors: [{ path: '(run)', message: 'the gradient check was cancelled' }] };
+function cancelled(options: CrossCheckOptions): CrossCheckResult {
+  return { ...emptyResult(options), status: 'cancelled', errors: [{ path: '(run)', message: 'the gradient cross-check was cancelled' }] };
 }
 
 const now = (): number => performance.now();
@@ -86,7 +86,7 @@ const cpuNow = (): number => {
   return (u.user + u.system) / 1000;
 };
 
-function* core(analysis: Analysis, input: unknown, options: GradcheckOptions): Step {
+function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): Step {
   const t0 = now(), c0 = cpuNow();
   const result = emptyResult(options);
   const parsed = parseScenario(input, analysis, options.sourceLabel ?? 'the model file');
@@ -139,9 +139,9 @@ function* core(analysis: Analysis, input: unknown, options: GradcheckOptions): S
 
   // Central differences, one value at a time.
   const tf = now();
-  const warnings: GradcheckWarning[] = [];
+  const warnings: CrossCheckWarning[] = [];
   function* central(value: number, scale: number, make: (v: number) => { net: Network; inputs: InputTrain[] }, label: string):
-    Generator<GradcheckProgress, { fd: number | null; step: number | null; note?: string; failed?: boolean }, void> {
+    Generator<CrossCheckProgress, { fd: number | null; step: number | null; note?: string; failed?: boolean }, void> {
     const h0 = rel * (value !== 0 ? Math.abs(value) : scale);
     let changed = '';
     for (const h of [h0, h0 / 10]) {
@@ -183,7 +183,7 @@ function* core(analysis: Analysis, input: unknown, options: GradcheckOptions): S
   const grid = sampleGrid(base);
   const states = sampleStates(base, grid);
   result.warnings = [
-    ...s.remarks.map((message): GradcheckWarning => ({ kind: 'remark', message })),
+    ...s.remarks.map((message): CrossCheckWarning => ({ kind: 'remark', message })),
     ...silentWarnings(s, b, base),
     ...fragilityWarnings(b, base, grid, states, derivation),
     ...warnings,
@@ -223,10 +223,10 @@ function fill<R extends GradientRow | ParamRow>(row: R, r: { fd: number | null; 
  * |fd| of the report (so a gradient that is zero up to integrator noise does not count as
  * a 100 % error); 0 when both are exactly zero.
  */
-function scoreRows(result: GradcheckResult, gradients: GradientRow[], params: ParamRow[]): void {
+function scoreRows(result: CrossCheckResult, gradients: GradientRow[], params: ParamRow[]): void {
   const rows: (GradientRow | ParamRow)[] = [...gradients, ...params];
   const floor = 1e-6 * Math.max(0, ...rows.map((r) => Math.abs(r.finiteDifference ?? 0)));
-  let worst: GradcheckResult['worst'] = null, max: number | null = null;
+  let worst: CrossCheckResult['worst'] = null, max: number | null = null;
   rows.forEach((r, k) => {
     if (r.finiteDifference === null || r.absoluteError === null) return;
     const den = Math.max(Math.abs(r.adjoint), Math.abs(r.finiteDifference), floor);
@@ -245,7 +245,7 @@ function scoreRows(result: GradcheckResult, gradients: GradientRow[], params: Pa
   result.passed = max !== null && rows.every((r) => r.status === 'ok');
 }
 
-function failed(result: GradcheckResult, errors: string[], t0: number): GradcheckResult {
+function failed(result: CrossCheckResult, errors: string[], t0: number): CrossCheckResult {
   result.status = 'failed';
   result.errors = errors.map((message) => ({ path: '(simulation)', message }));
   result.timing.total_ms = now() - t0;

@@ -1,4 +1,4 @@
-// The gradient-check scenario file (docs/gradcheck.md): its types and its validation
+// The cross-check scenario file (docs/crosscheck.md): its types and its validation
 // against the models of an analysed .saltus file. Every problem becomes a ScenarioError
 // naming the JSON path of the offending field (`projections[1].weights[0]`), so the user
 // can find it; nothing here throws, whatever the input.
@@ -74,7 +74,7 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
   const durationOk = isNum(duration) && duration > 0 && duration <= MAX_DURATION_S;
   if (duration === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05');
   else if (!(isNum(duration) && duration > 0)) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
-  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
+  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient cross-check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
 
   const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err);
   const byName = new Map(populations.map((p) => [p.name, p]));
@@ -96,7 +96,7 @@ function unknownKeys(o: Obj, base: string, allowed: readonly string[], err: (p: 
 function readSize(v: unknown, path: string, err: (p: string, m: string) => void): number | undefined {
   if (v === undefined) { err(path, 'missing: give the number of neurons'); return undefined; }
   if (!isNum(v) || !Number.isInteger(v) || v < 1) { err(path, `must be a whole number >= 1; got ${show(v)}`); return undefined; }
-  if (v > MAX_POPULATION_SIZE) { err(path, `at most ${MAX_POPULATION_SIZE} neurons per population in a gradient check; got ${v}`); return undefined; }
+  if (v > MAX_POPULATION_SIZE) { err(path, `at most ${MAX_POPULATION_SIZE} neurons per population in a gradient cross-check; got ${v}`); return undefined; }
   return v;
 }
 
