@@ -55,6 +55,29 @@ async function checkProblems(t) {
   return `${cli.length} errors in Problems match the CLI; squiggles on lines ${squiggled.join(', ')}; flow error at line ${flowLine}: "${flow.message}"`;
 }
 
+/** A plain LIF file: Problems shows no warning and no error, only the grazing set as information. */
+async function checkPlainLif(t) {
+  const { ui } = t;
+  const file = 'lif_current.saltus';
+  const cli = t.cliDiagnostics(file);
+  expect(!cli.some((d) => d.severity === 'error' || d.severity === 'warning'), `the CLI reports a warning or error for ${file}: ${JSON.stringify(cli.map((d) => d.message))}`);
+  await ui.tidy();
+  await ui.openFile(file);
+  // the derived checks arrive after the basic ones: wait for the grazing-set information
+  let rows = [];
+  for (const until = Date.now() + 30_000; Date.now() < until;) {
+    rows = await ui.problems().catch(() => []);
+    if (rows.some((r) => r.label.startsWith('Info: ') && r.label.includes('not transversal'))) break;
+    await ui.page.waitForTimeout(250);
+  }
+  const info = rows.filter((r) => r.label.startsWith('Info: '));
+  expect(info.some((r) => r.label.includes('not transversal')), `Problems shows no grazing-set information for ${file}; rows:\n  ${rows.map((r) => r.label).join('\n  ')}`);
+  const loud = rows.filter((r) => /^(Warning|Error): /.test(r.label));
+  expect(loud.length === 0, `Problems shows ${loud.length} warning(s) or error(s) for a plain LIF file:\n  ${loud.map((r) => r.label).join('\n  ')}`);
+  await ui.runCommand('View: Close All Editors');
+  return `${file}: no warning or error in Problems; ${info.length} information entr${info.length === 1 ? 'y' : 'ies'} (the grazing set)`;
+}
+
 /** Hover on a parameter's use shows its unit and docstring, as declared in the file. */
 async function checkHover(t) {
   const { ui } = t;
@@ -200,6 +223,7 @@ async function checkExtensionPage(t) {
 
 export const CHECKS = [
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
+  { name: 'vscode: a plain LIF file shows no warning in Problems', run: checkPlainLif },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
