@@ -12,6 +12,7 @@ import { derivationFor } from '../server/src/adjoint';
 import { ZERO } from '../server/src/symbolic/sym';
 import { crossCheckHtml, runCrossCheckSync } from '../server/src/crosscheck';
 import { root, runCli } from './helpers/cli';
+import { progressReporter } from '../server/src/cli/progress';
 import { lifText } from './helpers/models';
 
 const read = (p: string): string => readFileSync(join(root, p), 'utf8');
@@ -66,7 +67,13 @@ describe('saltus crosscheck', () => {
     expect(missing.code).toBe(2);
     expect(missing.stderr).toMatch(/nope\.json: no such file/);
     expect(runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--format', 'xml']).code).toBe(2);
-    expect(runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--tolerance', '-1']).code).toBe(2);
+    // A negative number after an option is its value, so the message is about the number (before: "ambiguous").
+    const negative = runCli(['crosscheck', 'samples/readout.saltus', '--scenario', bad, '--tolerance', '-1']);
+    expect(negative.code).toBe(2);
+    expect(negative.stderr).toMatch(/^saltus crosscheck: --tolerance must be a positive number; got '-1'$/m);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', bad, '--sample', '0']).stderr).toMatch(/--sample must be a whole number >= 1; got '0'/);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', bad, '--sample', '2', '--seed', '-3']).stderr).toMatch(/--seed must be a whole number >= 0; got '-3'/);
+    expect(runCli(['crosscheck', 'samples/readout.saltus', bad, '--seed', '3']).stderr).toMatch(/--seed S goes with --sample N/);
     expect(runCli(['help', 'crosscheck']).stdout).toMatch(/--scenario S\.json/);
   });
 
@@ -84,6 +91,21 @@ describe('saltus crosscheck', () => {
     expect(runCli(['gradchek']).stderr).toMatch(/did you mean 'crosscheck'/);
     expect(runCli(['crosscheck', 'samples/readout.saltus', 'a.json', 'b.json']).code).toBe(2);
     expect(runCli(['crosscheck', 'samples/readout.saltus', 'a.json', '--scenario', 'b.json']).code).toBe(2);
+  });
+
+  test('--sample N --seed S: the report states the sample in text, JSON and HTML', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-crosscheck-'));
+    const out = join(dir, 'r.html');
+    const args = ['crosscheck', 'samples/lif_current.saltus', 'samples/scenarios/lif_current.json', '--sample', '4', '--seed', '9'];
+    const text = runCli([...args, '--html', out]);
+    expect(text.code).toBe(0);
+    expect(text.stdout).toMatch(/sampled check: 4 of 12 rows \(weights and parameters\), seed 9/);
+    expect(readFileSync(out, 'utf8')).toMatch(/sampled check<\/dt><dd>4 of 12 rows \(weights and parameters\), seed 9/);
+    const j = JSON.parse(runCli([...args, '--format', 'json']).stdout);
+    expect(j.sample).toEqual({ rows: 4, of: 12, seed: 9 });
+    expect(j.gradients.length + j.params.length).toBe(4);
+    expect(j).toHaveProperty('closestToGrazing');
+    expect(j.noiseLimited).toBe(0);
   });
 
   test('a tolerance below the achievable accuracy fails with exit 1', () => {
@@ -155,5 +177,44 @@ describe('the HTML page', () => {
     expect(html).toMatch(/cannot be checked/);
     expect(html).toContain('<code>populations</code>');
     expect(existsSync(join(root, 'samples', 'scenarios', 'readout.json'))).toBe(true);
+  });
+});
+
+describe('progress of a long check on stderr (cli/progress.ts)', () => {
+  const run = (tty: boolean, estimate: number, steps: number, stepMs: number) => {
+    let clock = 0;
+    const written: string[] = [];
+    const rep = progressReporter({ write: (t) => written.push(t), tty, now: () => clock });
+    const total = 2 + 2 * steps;
+    clock += estimate / total;
+    rep.update({ done: 1, total, phase: 'forward', firstSimulation_ms: estimate / total, estimate_ms: estimate });
+    for (let d = 2; d <= total; d += 2) { clock += stepMs; rep.update({ done: d, total, phase: 'finite-differences', estimate_ms: estimate }); }
+    rep.end();
+    return written;
+  };
+
+  test('a short check writes nothing', () => {
+    expect(run(true, 1500, 10, 10)).toEqual([]);
+    expect(run(false, 9000, 10, 100)).toEqual([]);
+  });
+
+  test('on a terminal: the estimate, one line updated in place, then done', () => {
+    const w = run(true, 60_000, 100, 600);
+    expect(w[0]).toBe('saltus crosscheck: 202 simulations planned; the first took 297 ms, so this takes about 1 min; --sample N checks N of the rows (seeded, --seed S)\n');
+    const updates = w.filter((x) => x.startsWith('\r\x1b[K'));
+    expect(updates.length).toBeGreaterThan(50);
+    expect(updates.every((x) => !x.includes('\n'))).toBe(true);
+    expect(updates.at(-2)).toMatch(/^\r\x1b\[Ksaltus crosscheck: 2\d\d\/202 simulations \(finite-differences\), 1 min \d+ s so far, about \d+ (ms|s) left$/);
+    expect(w.at(-2)).toBe('\r\x1b[K');
+    expect(w.at(-1)).toMatch(/^saltus crosscheck: done in 1 min \d+ s\n$/);
+  });
+
+  test('to a file or pipe: the estimate, then a line every 10 s', () => {
+    const w = run(false, 60_000, 100, 600);
+    expect(w[0]).toMatch(/^saltus crosscheck: 202 simulations planned/);
+    const lines = w.slice(1, -1);
+    expect(lines.length).toBeGreaterThanOrEqual(5);
+    expect(lines.length).toBeLessThanOrEqual(7); // about 61 s of work, one line per 10 s
+    expect(lines.every((x) => x.endsWith('\n') && !x.includes('\r'))).toBe(true);
   });
 });

@@ -1,11 +1,19 @@
 // "Saltus: Cross-check gradients": runs the gradient cross-check of the active .saltus file on a scenario
 // (samples/scenarios/NAME.json beside it by convention, else one the modeller picks), with a
-// cancellable progress notification, and shows the report (traces, raster, error table).
+// cancellable progress notification that gives the cost estimate and the time left, and shows
+// the report (traces, raster, error table). The scenario goes to the server as its text, so a
+// number JSON cannot hold (1e999) reaches the validator as written.
 import { randomBytes } from 'node:crypto';
 import * as vscode from 'vscode';
 import type { LanguageClient } from 'vscode-languageclient/node';
 import type { CrossCheckProgress, CrossCheckResult } from '../../server/src/crosscheck/types';
 import { crossCheckHtml } from '../../server/src/crosscheck/html';
+
+/** '40 s', '12 min'. */
+function minutes(ms: number): string {
+  const s = Math.round(ms / 1000);
+  return s < 60 ? `${Math.max(1, s)} s` : s < 3600 ? `${Math.round(s / 60)} min` : `${(s / 3600).toFixed(1)} h`;
+}
 
 async function pickScenario(doc: vscode.Uri): Promise<vscode.Uri | undefined> {
   const base = doc.path.split('/').pop()!.replace(/\.saltus$/, '');
@@ -21,9 +29,10 @@ export async function crossCheck(client: LanguageClient, uriArg?: string | vscod
   if (!uri) { void vscode.window.showInformationMessage('Open a .saltus file to check its gradients.'); return; }
   const scenarioUri = await pickScenario(uri);
   if (!scenarioUri) return;
-  let scenario: unknown;
+  let scenario: string;
   try {
-    scenario = JSON.parse(new TextDecoder().decode(await vscode.workspace.fs.readFile(scenarioUri)));
+    scenario = new TextDecoder().decode(await vscode.workspace.fs.readFile(scenarioUri));
+    JSON.parse(scenario);
   } catch (e) {
     void vscode.window.showErrorMessage(`Saltus: ${vscode.workspace.asRelativePath(scenarioUri)} is not readable JSON: ${(e as Error).message}`);
     return;
@@ -32,10 +41,14 @@ export async function crossCheck(client: LanguageClient, uriArg?: string | vscod
   const result = await vscode.window.withProgress({ location: vscode.ProgressLocation.Notification, title: `Cross-checking gradients (${label})`, cancellable: true },
     async (progress, token) => {
       let last = 0;
+      const started = Date.now();
       const sub = client.onNotification('saltus/crosscheckProgress', (p: CrossCheckProgress & { uri: string }) => {
         if (p.uri !== uri.toString() || p.total <= 0) return;
         const now = (100 * p.done) / p.total;
-        progress.report({ increment: now - last, message: `${p.phase} ${p.done}/${p.total}` });
+        const elapsed = Date.now() - started;
+        const left = p.done > 0 && p.done < p.total ? `, about ${minutes((elapsed / p.done) * (p.total - p.done))} left` : '';
+        const estimate = p.done <= 2 && p.estimate_ms !== undefined ? ` (estimate ${minutes(p.estimate_ms)}${p.sample ? `, a sample of ${p.sample.rows} of ${p.sample.of} rows` : '; a "sample" in the scenario checks part of the rows'})` : '';
+        progress.report({ increment: now - last, message: `${p.done}/${p.total} simulations${left}${estimate}` });
         last = now;
       });
       try {
@@ -51,7 +64,9 @@ export async function crossCheck(client: LanguageClient, uriArg?: string | vscod
   const panel = vscode.window.createWebviewPanel('saltus.crossCheck', `Gradients · ${label}`, { viewColumn: vscode.ViewColumn.Beside, preserveFocus: true },
     { enableScripts: false, localResourceRoots: [] });
   panel.webview.html = crossCheckHtml(result, { cspSource: panel.webview.cspSource, nonce: randomBytes(16).toString('base64'), title: `Gradient cross-check · ${label}` });
-  const worst = result.maxRelativeError === null ? 'no gradient could be compared' : `largest relative error ${result.maxRelativeError.toExponential(2)}`;
-  if (result.passed) void vscode.window.showInformationMessage(`Saltus: the adjoint gradient agrees with finite differences (${worst}).`);
-  else void vscode.window.showWarningMessage(`Saltus: gradient cross-check did not pass (${worst}${result.errors.length ? `; ${result.errors[0]!.message}` : ''}).`);
+  const worst = result.maxRelativeError !== null ? `largest relative error ${result.maxRelativeError.toExponential(2)}`
+    : result.noiseLimited ? 'every gradient is zero within the finite differences\' own noise' : 'no gradient could be compared';
+  const sampled = result.sample ? `; a sample of ${result.sample.rows} of ${result.sample.of} rows, seed ${result.sample.seed}` : '';
+  if (result.passed) void vscode.window.showInformationMessage(`Saltus: the adjoint gradient agrees with finite differences (${worst}${sampled}).`);
+  else void vscode.window.showWarningMessage(`Saltus: gradient cross-check did not pass (${worst}${sampled}${result.errors.length ? `; ${result.errors[0]!.message}` : ''}).`);
 }

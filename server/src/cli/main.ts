@@ -131,6 +131,7 @@ function processIO(): CliIO {
     out: (t) => void process.stdout.write(t),
     err: (t) => void process.stderr.write(t),
     colour: Boolean(process.stdout.isTTY) && !noColour,
+    errTTY: Boolean(process.stderr.isTTY),
     cwd: process.cwd(),
     env: process.env,
   };

@@ -17,7 +17,9 @@ import { runCrossCheck } from '../crosscheck/index';
 export const SHOW_ADJOINT_COMMAND = 'saltus.showAdjoint';
 export const GENERATE_COMMAND = 'saltus.generateCode';
 
-export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
+/** `scenario`: the JSON text (preferred: numbers JSON cannot hold reach the validator as written) or the parsed value. */
+export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string; sample?: number; seed?: number }
+const wholeAtLeast = (v: unknown, min: number): v is number => typeof v === 'number' && Number.isInteger(v) && v >= min;
 export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean; timestepSI?: number }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
@@ -56,6 +58,7 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
       const signal = { get aborted() { return token.isCancellationRequested; } };
       return await runCrossCheck(c.analysis, p.scenario, { signal, sourceLabel: decodeURIComponent(p.uri.split('/').pop() ?? p.uri),
         ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
+        ...(wholeAtLeast(p.sample, 1) ? { sample: p.sample } : {}), ...(wholeAtLeast(p.seed, 0) ? { seed: p.seed } : {}),
         onProgress: (pr) => { void connection.sendNotification('saltus/crosscheckProgress', { uri: p.uri, ...pr }); } });
     } catch (e) {
       state.log(`saltus: gradient cross-check failed: ${(e as Error)?.stack ?? String(e)}`);
