@@ -200,7 +200,7 @@ describe('progress of a long check on stderr (cli/progress.ts)', () => {
 
   test('on a terminal: the estimate, one line updated in place, then done', () => {
     const w = run(true, 60_000, 100, 600);
-    expect(w[0]).toBe('saltus crosscheck: 202 simulations planned; the first took 297 ms, so this takes about 1 min; --sample N checks N of the rows (seeded, --seed S)\n');
+    expect(w[0]).toBe('saltus crosscheck: 202 simulations planned; the first (the whole network) took 297 ms, so this takes about 1 min; --sample N checks N of the rows (seeded, --seed S)\n');
     const updates = w.filter((x) => x.startsWith('\r\x1b[K'));
     expect(updates.length).toBeGreaterThan(50);
     expect(updates.every((x) => !x.includes('\n'))).toBe(true);

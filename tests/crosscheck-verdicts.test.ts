@@ -191,7 +191,9 @@ describe('large scenarios: cost up front, progress, and a seeded sample', () => 
     const first = seen.find((p) => p.estimate_ms !== undefined)!;
     expect(first.phase).toBe('forward');
     expect(first.total).toBeGreaterThanOrEqual(2 + 2 * 8);
-    expect(first.estimate_ms).toBeCloseTo(first.firstSimulation_ms! * first.total, 6);
+    // The estimate counts each planned run by the share of the network it simulates again.
+    expect(first.estimate_ms!).toBeGreaterThan(2 * first.firstSimulation_ms!);
+    expect(first.estimate_ms!).toBeLessThanOrEqual(first.firstSimulation_ms! * first.total);
     expect(first.sample).toEqual({ rows: 8, of: 8194 });
     expect(seen.at(-1)!.done).toBe(seen.at(-1)!.total);
     // Without a sample the same scenario plans 2 + 2 x 8194 simulations: the estimate says so up front.

@@ -47,7 +47,7 @@ export function progressReporter(sink: ProgressSink): { update(p: CrossCheckProg
         active = p.estimate_ms >= (sink.tty ? QUIET_BELOW_MS : LINE_INTERVAL_MS);
         if (active) {
           const hint = p.sample ? ` (a sample of ${count(p.sample.rows)} of ${count(p.sample.of)} rows)` : '; --sample N checks N of the rows (seeded, --seed S)';
-          sink.write(`saltus crosscheck: ${count(p.total)} simulations planned; the first took ${duration(p.firstSimulation_ms ?? 0)}, so this takes about ${duration(p.estimate_ms)}${hint}\n`);
+          sink.write(`saltus crosscheck: ${count(p.total)} simulations planned; the first (the whole network) took ${duration(p.firstSimulation_ms ?? 0)}, so this takes about ${duration(p.estimate_ms)}${hint}\n`);
         }
         last = sink.now();
         return;

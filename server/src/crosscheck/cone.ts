@@ -23,8 +23,8 @@ export interface Cone {
   slot(w: WeightRef): { kind: 'synapse' | 'input'; index: number } | undefined;
 }
 
-/** The downstream cone of `roots` (full-network neuron indices), upstream spikes taken from `base`. */
-export function coneOf(b: BuiltScenario, base: Trajectory, roots: readonly number[]): Cone {
+/** Which neurons are downstream of `roots` (themselves included), as a 0/1 mask. */
+function closure(b: BuiltScenario, roots: readonly number[]): Uint8Array {
   const n = b.net.neurons.length;
   const inCone = new Uint8Array(n);
   const out: number[][] = Array.from({ length: n }, () => []);
@@ -34,6 +34,18 @@ export function coneOf(b: BuiltScenario, base: Trajectory, roots: readonly numbe
   while (stack.length) {
     for (const t of out[stack.pop()!]!) if (!inCone[t]) { inCone[t] = 1; stack.push(t); }
   }
+  return inCone;
+}
+
+/** The number of neurons in the cone of `roots` (for the cost estimate; no simulation needed). */
+export function coneSize(b: BuiltScenario, roots: readonly number[]): number {
+  return closure(b, roots).reduce((a, x) => a + x, 0);
+}
+
+/** The downstream cone of `roots` (full-network neuron indices), upstream spikes taken from `base`. */
+export function coneOf(b: BuiltScenario, base: Trajectory, roots: readonly number[]): Cone {
+  const n = b.net.neurons.length;
+  const inCone = closure(b, roots);
   const keep: number[] = [];
   const index = new Int32Array(n).fill(-1);
   for (let i = 0; i < n; i++) if (inCone[i]) { index[i] = keep.length; keep.push(i); }

@@ -14,7 +14,7 @@ import { derivationFor, type NeuronDerivation } from '../adjoint/index';
 import type { ResolvedNeuron } from '../model/types';
 import { type InputTrain, type Loss, type Network, type Trajectory, backward, simulate } from '../simulate';
 import { type BuiltScenario, buildScenario, paramRefs } from './build';
-import { type Cone, coneOf, coneWithParam, coneWithWeight } from './cone';
+import { type Cone, coneOf, coneSize, coneWithParam, coneWithWeight } from './cone';
 import { type Scenario, parseScenario } from './scenario';
 import { parseUnit } from '../units';
 import { fragilityWarnings, silentWarnings } from './warnings';
@@ -128,8 +128,18 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   let total = 2 + 2 * picked.length;
   let done = 0;
   let firstMs: number | undefined;
+  // The cost in whole-network runs: forward, backward, and each row's two runs of its cone
+  // (weighted by the share of the network it holds; a first-order estimate).
+  const size = new Map<string, number>();
+  const share = (roots: number[]): number => {
+    const k = roots.join(',');
+    if (!size.has(k)) size.set(k, coneSize(b, roots));
+    return size.get(k)! / Math.max(1, b.net.neurons.length);
+  };
+  const work = 2 + picked.reduce((acc, k) => acc + 2 * share(k < b.weights.length
+    ? [b.firstNeuron.get(b.weights[k]!.toPopulation)! + b.weights[k]!.to] : params[k - b.weights.length]!.neurons), 0);
   const progress = (phase: CrossCheckProgress['phase']): CrossCheckProgress => ({ done, total, phase,
-    ...(firstMs !== undefined ? { firstSimulation_ms: firstMs, estimate_ms: firstMs * total } : {}),
+    ...(firstMs !== undefined ? { firstSimulation_ms: firstMs, estimate_ms: firstMs * work } : {}),
     ...(result.sample ? { sample: { rows: result.sample.rows, of: result.sample.of } } : {}) });
   const sim = (net: Network, inputs: InputTrain[], loss: Loss = b.loss): Trajectory => {
     result.timing.simulations++;

@@ -161,7 +161,8 @@ export interface CrossCheckProgress {
   phase: 'forward' | 'backward' | 'finite-differences' | 'noise' | 'report';
   /** Wall time of the first (unperturbed) simulation, ms, once known. */
   firstSimulation_ms?: number;
-  /** The cost estimate: total x the first simulation's time, ms, once known. */
+  /** The cost estimate, once known: the first (whole-network) simulation's time x the planned
+   *  simulations, each weighted by the share of the network it simulates again (cone.ts), ms. */
   estimate_ms?: number;
   /** Present in a sampled check. */
   sample?: { rows: number; of: number };
