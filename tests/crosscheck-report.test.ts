@@ -145,13 +145,18 @@ describe('the check can fail, and says why', () => {
     expect(r.passed).toBe(false);
   });
 
-  test('a grazing spike is flagged', () => {
+  test('a grazing spike is flagged; every spike says how close it came', () => {
     const r = runCrossCheckSync(MODEL, near(4 * (1 + 1e-6)), { traces: false });
     expect(r.spikeCounts.n).toEqual([1]);
     const g = r.warnings.find((w) => w.kind === 'grazing');
     expect(g?.message).toMatch(/n\[0\] spikes at .* nearly grazing crossing/);
-    // A comfortable crossing is not flagged.
-    expect(runCrossCheckSync(MODEL, near(5), { traces: false }).warnings.filter((w) => w.kind === 'grazing' || w.kind === 'near-miss')).toEqual([]);
+    expect(r.spikeSlopeRatios.n).toHaveLength(1);
+    expect(r.spikeSlopeRatios.n![0]!).toBeLessThan(0.02);
+    expect(r.closestToGrazing).toEqual([expect.objectContaining({ population: 'n', index: 0, spikes: 1, time: r.spikes.n![0]![0], ratio: r.spikeSlopeRatios.n![0] })]);
+    // A comfortable crossing is not flagged, and its ratio says so.
+    const ok = runCrossCheckSync(MODEL, near(5), { traces: false });
+    expect(ok.warnings.filter((w) => w.kind === 'grazing' || w.kind === 'near-miss')).toEqual([]);
+    expect(ok.spikeSlopeRatios.n![0]!).toBeGreaterThan(0.02);
   });
 });
 

@@ -40,6 +40,7 @@ export function crossCheckJson(r: CrossCheckResult): Record<string, unknown> {
     tolerance: r.tolerance,
     ...(r.sample ? { sample: r.sample } : {}),
     closestToGrazing: r.closestToGrazing,
+    spikeSlopeRatios: r.spikeSlopeRatios,
     warnings: r.warnings,
     models: r.models,
     settings: r.settings,

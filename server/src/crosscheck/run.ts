@@ -71,7 +71,7 @@ function internalError(e: unknown, options: CrossCheckOptions): CrossCheckResult
 function emptyResult(options: CrossCheckOptions): CrossCheckResult {
   return { status: 'invalid', errors: [], source: options.sourceLabel ?? 'the model file', scenario: options.scenarioLabel ?? 'the scenario',
     duration: 0, lossKind: null, loss: NaN, lossUnit: '1', lossText: '', lossTarget: null, populations: [], spikes: {}, inputSpikes: {}, spikeCounts: {}, gradients: [], params: [],
-    maxRelativeError: null, noiseLimited: 0, closestToGrazing: [], worst: null, tolerance: options.tolerance ?? DEFAULTS.tolerance, passed: false, warnings: [], models: [],
+    maxRelativeError: null, noiseLimited: 0, closestToGrazing: [], spikeSlopeRatios: {}, worst: null, tolerance: options.tolerance ?? DEFAULTS.tolerance, passed: false, warnings: [], models: [],
     settings: { rtol: options.rtol ?? DEFAULTS.rtol, relStep: options.relStep ?? DEFAULTS.relStep },
     timing: { total_ms: 0, cpu_ms: 0, forward_ms: 0, backward_ms: 0, finiteDifferences_ms: 0, simulations: 0 } };
 }
@@ -238,6 +238,12 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   const states = sampleStates(base, grid);
   const fragility = fragilityWarnings(b, base, grid, states, derivation);
   result.closestToGrazing = fragility.closest;
+  for (const p of s.populations) {
+    const list = result.spikes[p.name];
+    if (!list) continue;
+    const first = b.firstNeuron.get(p.name)!;
+    result.spikeSlopeRatios[p.name] = list.map(([t, i]) => fragility.ratio.get(`${first + i}:${t}`) ?? null);
+  }
   result.warnings = [
     ...s.remarks.map((message): CrossCheckWarning => ({ kind: 'remark', message })),
     ...silentWarnings(s, b, base),

@@ -143,6 +143,8 @@ export interface CrossCheckResult {
   sample?: { rows: number; of: number; seed: number };
   /** Per firing neuron that fired: its spike closest to grazing. */
   closestToGrazing: SpikeSlope[];
+  /** Per located spike (aligned with `spikes`): its |gdot| over the neuron's RMS guard slope (null where it cannot be evaluated). */
+  spikeSlopeRatios: Record<string, (number | null)[]>;
   worst: { kind: 'weight' | 'param'; index: number; label: string } | null;
   tolerance: number;
   /** Every row usable and within tolerance, and at least one row compared. */

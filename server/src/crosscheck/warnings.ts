@@ -28,9 +28,11 @@ const ms = (t: number): string => `${(t * 1e3).toFixed(3)} ms`;
 const pct = (x: number): string => `${(100 * x).toPrecision(2)} %`;
 
 export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid, states: readonly Float64Array[],
-  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): { warnings: CrossCheckWarning[]; closest: SpikeSlope[] } {
+  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): { warnings: CrossCheckWarning[]; closest: SpikeSlope[]; ratio: Map<string, number> } {
   const out: CrossCheckWarning[] = [];
   const closest: SpikeSlope[] = [];
+  /** |gdot| / RMS slope of every located spike, keyed `neuron:time`. */
+  const ratio = new Map<string, number>();
   b.net.neurons.forEach((nn, i) => {
     const m = nn.model;
     if (!m.fire) return;
@@ -66,11 +68,12 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
       spikes++;
       const slope = gdotAtSpike(load(e.pre, e.time));
       if (!Number.isFinite(slope) || !(rms > 0)) continue;
-      const ratio = Math.abs(slope) / rms;
-      if (!near || ratio < near.ratio) near = { population, index, spikes: 0, time: e.time, slope, ratio };
-      if (ratio < GRAZING_RATIO) {
+      const r = Math.abs(slope) / rms;
+      ratio.set(`${i}:${e.time}`, r);
+      if (!near || r < near.ratio) near = { population, index, spikes: 0, time: e.time, slope, ratio: r };
+      if (r < GRAZING_RATIO) {
         out.push({ kind: 'grazing', population, index, time: e.time,
-          message: `${who} spikes at ${ms(e.time)} with a nearly grazing crossing: gdot = ${slope.toPrecision(3)} is ${pct(ratio)} of its typical guard slope; the spike time's derivative (1/gdot) is large and the finite differences around it are fragile` });
+          message: `${who} spikes at ${ms(e.time)} with a nearly grazing crossing: gdot = ${slope.toPrecision(3)} is ${pct(r)} of its typical guard slope; the spike time's derivative (1/gdot) is large and the finite differences around it are fragile` });
       }
     }
     if (near) closest.push({ ...near, spikes });
@@ -90,7 +93,7 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
       }
     }
   });
-  return { warnings: out, closest };
+  return { warnings: out, closest, ratio };
 }
 
 export function silentWarnings(s: Scenario, b: BuiltScenario, traj: Trajectory): CrossCheckWarning[] {
