@@ -86,6 +86,21 @@ describe('non-finite values fail their row and say where they appeared', () => {
     expect(r.errors).toEqual([{ path: 'populations.out.params.tau_m', message: expect.stringMatching(/the time constant 'tau_m' is 0 \(it divides dV\/dt\)/) }]);
   });
 
+  test('a finite difference whose perturbed run is not finite fails its row and says where', () => {
+    // log(q - c) with q - c = 1e-12: the step q -/+ 1e-11 reaches log of a negative number at
+    // -h (NaN), while the adjoint, 0.01 / (q - c) per unit of lambda, is finite.
+    const text = `neuron Edge { param q = 1e-6 trainable\n param c = 0.999999e-6\n param tau = 10 [ms]\n state V = 0\n state I = 0\n dV/dt = (0.01 * log(q - c) + I - V) / tau\n dI/dt = -I / tau\n incoming w { I := I + w } }`;
+    const s = { duration_s: 0.01, populations: { in: { size: 1, spikes: [[0.002, 0]] }, out: { model: 'Edge', size: 1 } },
+      projections: [{ from: 'in', to: 'out', weights: [[1]] }], loss: { kind: 'state-integral', population: 'out', state: 'V', target: 0 } };
+    const r = runCrossCheckSync(analyse(text), s, { traces: false });
+    const q = r.params.find((p) => p.name === 'q')!;
+    expect(Number.isFinite(q.adjoint)).toBe(true);
+    expect(q.status).toBe('non-finite');
+    expect(q.finiteDifference).toBeNull();
+    expect(q.note).toMatch(/^the loss of the run at value - h is NaN: out\[0\]\.V first became non-finite at t = 0\.000000 ms \(integrating the flow\)/);
+    expect(r.passed).toBe(false);
+  });
+
   test('a non-finite loss fails the check and says which state became non-finite first', () => {
     // log(V) of a membrane that starts at 0: -Inf at t = 0 (the model allows it; the run does not).
     const text = `neuron Logger { param tau = 10 [ms] trainable\n state V = 0\n state I = 0\n dV/dt = (I - V) / tau\n dI/dt = -I / tau + log(V) / tau\n incoming w { I := I + w } }`;

@@ -145,7 +145,7 @@ export function judge<R extends GradientRow | ParamRow>(row: R, r: FdOutcome, no
   if (r.note) row.note = r.note;
   if (!Number.isFinite(row.adjoint)) {
     row.status = 'non-finite';
-    row.note = `the adjoint gradient is ${kind(row.adjoint)}: ${adjointWhere}`;
+    row.note = `the adjoint gradient is ${kind(row.adjoint)}: ${adjointWhere}${r.status === 'non-finite' && r.note ? `; and ${r.note}` : ''}`;
     return row;
   }
   if (r.fd === null) { row.status = r.status ?? 'simulation-failed'; return row; }
