@@ -47,7 +47,8 @@ export async function crossCheck(client: LanguageClient, uriArg?: string | vscod
         const now = (100 * p.done) / p.total;
         const elapsed = Date.now() - started;
         const left = p.done > 0 && p.done < p.total ? `, about ${minutes((elapsed / p.done) * (p.total - p.done))} left` : '';
-        const estimate = p.done <= 2 && p.estimate_ms !== undefined ? ` (estimate ${minutes(p.estimate_ms)}${p.sample ? `, a sample of ${p.sample.rows} of ${p.sample.of} rows` : '; a "sample" in the scenario checks part of the rows'})` : '';
+        const hint = p.sample ? `, a sample of ${p.sample.rows} of ${p.sample.of} rows` : (p.estimate_ms ?? 0) >= 60_000 ? '; a "sample" in the scenario checks part of the rows' : '';
+        const estimate = p.done <= 2 && p.estimate_ms !== undefined ? ` (estimate ${minutes(p.estimate_ms)}${hint})` : '';
         progress.report({ increment: now - last, message: `${p.done}/${p.total} simulations${left}${estimate}` });
         last = now;
       });

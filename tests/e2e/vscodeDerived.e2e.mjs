@@ -146,7 +146,7 @@ export async function crossCheck(t) {
   const progress = seen.filter((x) => x.message.startsWith(`Cross-checking gradients (${scenario})`));
   expect(progress.length > 0, `no progress notification "Cross-checking gradients (${scenario})" appeared; toasts seen: ${JSON.stringify(seen)}`);
   expect(progress.some((x) => x.buttons.includes('Cancel')), `the progress notification has no Cancel button: ${JSON.stringify(progress)}`);
-  const steps = progress.map((x) => x.message.replace(/^.*\): /, '')).filter((m) => /\d+\/\d+$/.test(m));
+  const steps = progress.map((x) => x.message.replace(/^.*\): /, '')).filter((m) => /^\d+\/\d+ simulations/.test(m));
 
   const tabTitle = `Gradients · ${scenario}`;
   await ui.page.locator('.tabs-container .tab', { hasText: tabTitle }).first().waitFor();
