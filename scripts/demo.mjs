@@ -83,17 +83,17 @@ for (const s of good) {
 }
 console.log(`generated code: ${join('demo-output', 'generated')}/{c,cuda,numpy}/<sample>/`);
 
-// --- Step 5: gradient check against finite differences, one scenario per sample ---------
+// --- Step 5: gradient cross-check against finite differences, one scenario per sample ---------
 const scenarioDir = join(root, 'samples', 'scenarios');
 const scenarios = existsSync(scenarioDir) ? readdirSync(scenarioDir).filter((f) => f.endsWith('.json')).sort() : [];
-heading(`saltus gradcheck: ${scenarios.length} scenario(s) in samples/scenarios/`);
+heading(`saltus crosscheck: ${scenarios.length} scenario(s) in samples/scenarios/`);
 for (const sc of scenarios) {
   const sample = `samples/${sc.replace(/\.json$/, '')}.saltus`;
   if (!existsSync(join(root, sample))) { failures.push(`scenario ${sc} has no sample ${sample}`); continue; }
-  const r = saltus(['gradcheck', sample, '--scenario', `samples/scenarios/${sc}`, '--html', join(out, 'gradcheck', sc.replace(/\.json$/, '.html'))], false);
-  expectExit(`gradcheck ${sc}`, r);
+  const r = saltus(['crosscheck', sample, '--scenario', `samples/scenarios/${sc}`, '--html', join(out, 'crosscheck', sc.replace(/\.json$/, '.html'))], false);
+  expectExit(`crosscheck ${sc}`, r);
 }
-if (scenarios.length) console.log(`gradient-check reports: ${join('demo-output', 'gradcheck')}/*.html`);
+if (scenarios.length) console.log(`cross-check reports: ${join('demo-output', 'crosscheck')}/*.html`);
 
 heading('demo result');
 if (failures.length > 0) {

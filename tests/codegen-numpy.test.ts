@@ -10,7 +10,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { generateFiles, writeGenerated } from '../server/src/codegen';
-import { parseScenario } from '../server/src/gradcheck';
+import { parseScenario } from '../server/src/crosscheck';
 import { gridBackward, gridForward, networkFromScenario, type Network } from '../server/src/grid';
 import { numpyPython, runPython } from './helpers/python';
 

@@ -14,7 +14,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { parseScenario, runGradcheckSync } from '../server/src/gradcheck';
+import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 import { gridBackward, gridForward, networkFromScenario, type Network } from '../server/src/grid';
 import { gridForward as oracleForward } from './helpers/gridOracle/forward';
 import { gridBackward as oracleBackward } from './helpers/gridOracle/backward';
@@ -118,7 +118,7 @@ describe('accuracy against the exact gradient of the accurate simulator at dt = 
   for (const [name, bound] of [['lif_current', 1e-6], ['adaptive_lif', 1e-6], ['readout', 1e-6], ['adex', 1e-3], ['izhikevich', 1e-3]] as const) {
     test(`${name}: every row within ${bound}`, () => {
       const { net, analysis, text } = sample(name);
-      const exact = runGradcheckSync(analysis, text, { traces: false });
+      const exact = runCrossCheckSync(analysis, text, { traces: false });
       const run = gridForward(net, { dt: 1e-4 });
       const g = gridBackward(run);
       const errs = [

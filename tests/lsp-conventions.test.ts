@@ -201,7 +201,7 @@ describe('editor conventions over stdio', () => {
     client.open(uri, readFileSync(join(root, 'samples', 'lif_current.saltus'), 'utf8'));
     await client.diagnosticsFor(uri, 1);
     const scenario = JSON.parse(readFileSync(join(root, 'samples', 'scenarios', 'lif_current.json'), 'utf8'));
-    const r = await client.conn.sendRequest('saltus/gradcheck', { uri, scenario, scenarioLabel: 'lif_current.json', workDoneToken: 'mine-1' }) as { passed: boolean };
+    const r = await client.conn.sendRequest('saltus/crosscheck', { uri, scenario, scenarioLabel: 'lif_current.json', workDoneToken: 'mine-1' }) as { passed: boolean };
     expect(r.passed).toBe(true);
     const mine = client.progress.filter((p) => p.token === 'mine-1').map((p) => p.value);
     expect(mine[0]).toMatchObject({ kind: 'begin', cancellable: true });
@@ -211,11 +211,11 @@ describe('editor conventions over stdio', () => {
     expect(mine.at(-1)).toEqual({ kind: 'end' });
     // without a token: the server creates one (window/workDoneProgress/create)
     const before = client.createdProgress.length;
-    await client.conn.sendRequest('saltus/gradcheck', { uri, scenario });
+    await client.conn.sendRequest('saltus/crosscheck', { uri, scenario });
     expect(client.createdProgress.length).toBe(before + 1);
     const created = client.createdProgress.at(-1)!;
     expect(client.progress.filter((p) => p.token === created).map((p) => p.value.kind)).toEqual(expect.arrayContaining(['begin', 'report', 'end']));
-    expect(client.notifications).not.toContain('saltus/gradcheckProgress');
+    expect(client.notifications).not.toContain('saltus/crosscheckProgress');
   });
 
   it('runs the CodeLens commands itself: the adjoint as a message, code generation with a question and a default folder', async () => {

@@ -282,8 +282,24 @@ describe('language server over stdio', () => {
     expect(await client.conn.sendRequest('textDocument/hover', { textDocument: { uri: 'file:///inline/sensor.saltus' } })).toBeNull();
     await client.until(() => client.logs.find((l) => l.includes('hover failed')), 5000, 'the logged failure');
     const summary = await client.conn.sendRequest('saltus/analysisSummary', { uri: 'file:///inline/sensor.saltus' });
-    // The one warning is the grazing condition of the LIF crossing (I = theta), from the derived checks.
-    expect(summary).toEqual({ neurons: [{ name: 'Sensor', states: ['V', 'I'], wellFormed: true }], errors: 0, warnings: 1 });
+    // No warning: the grazing condition of the LIF crossing (I = theta) is information.
+    expect(summary).toEqual({ neurons: [{ name: 'Sensor', states: ['V', 'I'], wellFormed: true }], errors: 0, warnings: 0 });
+  });
+
+  it('a plain LIF file shows no warning, only the grazing set as information; a zero guard slope is an error and derives nothing', async () => {
+    const uri = 'file:///samples/lif_current-again.saltus';
+    client.open(uri, readFileSync(join(samplesDir, 'lif_current.saltus'), 'utf8'));
+    // The derived checks are published after the fast ones, for the same version.
+    const derived = await client.until(() => client.diagnostics.get(uri)?.find((p) => p.version === 1 && p.diagnostics.some((d) => d.code === 'grazing-crossing')),
+      20_000, 'the derived diagnostics of lif_current');
+    expect(derived.diagnostics.filter((d) => d.severity === 1 || d.severity === 2)).toEqual([]);
+    expect(derived.diagnostics.find((d) => d.code === 'grazing-crossing')!.severity).toBe(3);
+    const flat = 'file:///inline/asymptotic.saltus';
+    client.open(flat, LIF.replace('(I - V) / tau_m', '(theta - V) / tau_m'));
+    const zero = await client.until(() => client.diagnostics.get(flat)?.find((p) => p.diagnostics.some((d) => d.code === 'zero-guard-slope')), 20_000, 'the zero-slope error');
+    expect(zero.diagnostics.find((d) => d.code === 'zero-guard-slope')).toMatchObject({ severity: 1, message: expect.stringContaining('gdot = (theta - V) / tau_m') });
+    const lenses = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri: flat } }) as { command: { title: string } }[];
+    expect(lenses[0]!.command.title).toBe('adjoint: not derived (the guard slope is identically 0)');
   });
 
   it('clears diagnostics on close, then shuts down and exits with code 0', async () => {

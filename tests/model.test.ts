@@ -49,6 +49,16 @@ const cases: [string, string, Want[]][] = [
   ['jump outside a block', `neuron N { state V\n dV/dt = 0\n V := 0 }`, [{ code: 'misplaced-jump', at: 'V := 0' }]],
   ['duplicate jump target', `neuron N { state V\n dV/dt = 0\n fire when V crosses 1 up { V := 0 V := 1 } }`, [{ code: 'duplicate-declaration', at: 'V' }]],
   ['weight clashing with a param', `neuron N { param w = 1\n state V\n dV/dt = 0 * w\n incoming w { V := V + w } }`, [{ code: 'duplicate-declaration', at: 'w' }]],
+  // Time constants and capacitances (model/constants.ts): 0 where it divides is refused, a negative one warned about.
+  ['zero time constant', `neuron N { param tau = 0 [ms]\n state V = 1\n dV/dt = -V / tau }`,
+    [{ code: 'non-positive-constant', at: '0 [ms]', message: /the time constant 'tau' is 0 \(it divides dV\/dt\)/ }]],
+  ['negative time constant', `neuron N { param tau = -20 [ms]\n state V = 1\n dV/dt = -V / tau }`,
+    [{ code: 'non-positive-constant', at: '-20 [ms]', message: /the time constant 'tau' is negative \(-20 ms\).*becomes a growth/ }]],
+  ['negative capacitance', `neuron N { param C = -200 [pF]\n param g = 10 [nS]\n state V = 0 [mV]\n dV/dt = -g * V / C }`,
+    [{ code: 'non-positive-constant', at: '-200 [pF]', message: /the capacitance 'C' is negative \(-200 pF\)/ }]],
+  ['zero divisor of another kind', `neuron N { param s = 0 [mV]\n state V = 0 [mV]\n dV/dt = exp(V / s) * 1 [mV/ms] }`,
+    [{ code: 'non-positive-constant', at: '0 [mV]', message: /'s' is 0 \(it divides dV\/dt\)/ }]],
+  ['a negative time that does not divide is fine', `neuron N { param t_on = -5 [ms]\n param tau = 10 [ms]\n state V = 0\n dV/dt = (t - t_on) / tau / tau }`, []],
 ];
 
 describe('diagnostics', () => {

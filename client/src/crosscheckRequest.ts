@@ -6,17 +6,18 @@
 import { randomUUID } from 'node:crypto';
 import type * as vscode from 'vscode';
 import { WorkDoneProgress, type LanguageClient, type WorkDoneProgressBegin, type WorkDoneProgressReport } from 'vscode-languageclient/node';
-import type { GradcheckResult } from '../../server/src/gradcheck/types';
+import type { CrossCheckResult } from '../../server/src/crosscheck/types';
 
 /** The server's request (server/src/lsp/derivedFeatures.ts). */
-export const CROSSCHECK_REQUEST = 'saltus/gradcheck';
+export const CROSSCHECK_REQUEST = 'saltus/crosscheck';
 
-export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string }
+/** `scenario`: the JSON text (numbers JSON cannot hold reach the validator as written) or a parsed value. */
+export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string; sample?: number; seed?: number }
 export interface CrossCheckProgress { percentage?: number; message?: string }
 
 /** Runs the cross-check of an open document on a scenario; null when the server does not have the document. */
 export async function requestCrossCheck(client: LanguageClient, params: CrossCheckParams,
-  options: { token?: vscode.CancellationToken; onProgress?: (p: CrossCheckProgress) => void } = {}): Promise<GradcheckResult | null> {
+  options: { token?: vscode.CancellationToken; onProgress?: (p: CrossCheckProgress) => void } = {}): Promise<CrossCheckResult | null> {
   const workDoneToken = randomUUID();
   const sub = client.onProgress(WorkDoneProgress.type, workDoneToken, (v) => {
     if (v.kind === 'begin' || v.kind === 'report') {
@@ -25,7 +26,7 @@ export async function requestCrossCheck(client: LanguageClient, params: CrossChe
     }
   });
   try {
-    return await client.sendRequest<GradcheckResult | null>(CROSSCHECK_REQUEST, { ...params, workDoneToken }, options.token);
+    return await client.sendRequest<CrossCheckResult | null>(CROSSCHECK_REQUEST, { ...params, workDoneToken }, options.token);
   } finally {
     sub.dispose();
   }

@@ -9,7 +9,7 @@
 // never passed; items follow scenario and model files as they are created and deleted.
 import * as vscode from 'vscode';
 import type { LanguageClient } from 'vscode-languageclient/node';
-import { rowLabel, type GradcheckResult, type GradientRow, type ParamRow } from '../../server/src/gradcheck/types';
+import { rowLabel, type CrossCheckResult, type GradientRow, type ParamRow } from '../../server/src/crosscheck/types';
 import { requestCrossCheck } from './crosscheckRequest';
 
 export const CONTROLLER_ID = 'saltus.crosschecks';
@@ -70,7 +70,7 @@ export function registerCrossCheckTests(client: LanguageClient): vscode.Disposab
       run.errored(item, new vscode.TestMessage(`cannot open ${vscode.workspace.asRelativePath(model)}: ${(e as Error).message}`));
       return;
     }
-    let result: GradcheckResult | null = null;
+    let result: CrossCheckResult | null = null;
     try {
       result = await requestCrossCheck(client, { uri: model.toString(), scenario, scenarioLabel: label }, {
         token, onProgress: (p) => { if (p.message) run.appendOutput(`${label}: ${p.message}\r\n`, undefined, item); },

@@ -16,7 +16,7 @@ import { restoreAdjoint, showAdjoint, watchAdjoint } from './adjointPanel';
 import { registerCheckTask } from './checkTask';
 import { registerCrossCheckTests } from './crosscheckTests';
 import { generateCode } from './generateCommand';
-import { checkGradients } from './gradcheckCommand';
+import { crossCheck } from './crossCheckCommand';
 import { newModel } from './newModel';
 
 /** The CodeLens commands this client runs with its own UI (webview, folder dialog); see server/src/lsp/lensCommands.ts. */
@@ -81,7 +81,7 @@ export async function activate(context: vscode.ExtensionContext): Promise<void> 
       showAdjoint(context, lc, typeof uri === 'string' ? vscode.Uri.parse(uri) : uri)),
     watchAdjoint(context, lc),
     restoreAdjoint(context, lc),
-    vscode.commands.registerCommand('saltus.checkGradients', (uri?: string | vscode.Uri) => checkGradients(lc, uri)),
+    vscode.commands.registerCommand('saltus.crossCheck', (uri?: string | vscode.Uri) => crossCheck(lc, uri)),
     vscode.commands.registerCommand('saltus.generateCode', (uri?: string | vscode.Uri, model?: string) => generateCode(lc, uri, model)),
     vscode.commands.registerCommand('saltus.newModel', () => newModel()),
     registerCheckTask(context),

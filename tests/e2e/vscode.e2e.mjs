@@ -10,12 +10,12 @@
 // repository); each check opens what it needs itself; screenshots of passing checks go to
 // the run's screenshot folder (.e2e/out/screenshots/NAME.png; docs/screenshots/ only with
 // --update-screenshots). The checks of the commands that derive results (generated code,
-// gradient check) are in vscodeDerived.e2e.mjs, those of the editor conventions (walkthrough,
+// gradient cross-check) are in vscodeDerived.e2e.mjs, those of the editor conventions (walkthrough,
 // restored preview, test explorer, check task) in vscodeConventions.e2e.mjs.
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { expect, lineOf, Skip } from './checkKit.mjs';
-import { checkGenerateCode, checkGenerateCodeLens, checkGradients } from './vscodeDerived.e2e.mjs';
+import { checkGenerateCode, checkGenerateCodeLens, crossCheck } from './vscodeDerived.e2e.mjs';
 import { checkCheckTask, checkFixAll, checkRestoredPreview, checkTestExplorer, checkWalkthrough } from './vscodeConventions.e2e.mjs';
 
 export { Skip };
@@ -56,6 +56,29 @@ async function checkProblems(t) {
   await ui.page.mouse.move(5, 400);
   await ui.screenshot('problems');
   return `${cli.length} errors in Problems match the CLI; squiggles on lines ${squiggled.join(', ')}; flow error at line ${flowLine}: "${flow.message}"`;
+}
+
+/** A plain LIF file: Problems shows no warning and no error, only the grazing set as information. */
+async function checkPlainLif(t) {
+  const { ui } = t;
+  const file = 'lif_current.saltus';
+  const cli = t.cliDiagnostics(file);
+  expect(!cli.some((d) => d.severity === 'error' || d.severity === 'warning'), `the CLI reports a warning or error for ${file}: ${JSON.stringify(cli.map((d) => d.message))}`);
+  await ui.tidy();
+  await ui.openFile(file);
+  // the derived checks arrive after the basic ones: wait for the grazing-set information
+  let rows = [];
+  for (const until = Date.now() + 30_000; Date.now() < until;) {
+    rows = await ui.problems().catch(() => []);
+    if (rows.some((r) => r.label.startsWith('Info: ') && r.label.includes('not transversal'))) break;
+    await ui.page.waitForTimeout(250);
+  }
+  const info = rows.filter((r) => r.label.startsWith('Info: '));
+  expect(info.some((r) => r.label.includes('not transversal')), `Problems shows no grazing-set information for ${file}; rows:\n  ${rows.map((r) => r.label).join('\n  ')}`);
+  const loud = rows.filter((r) => /^(Warning|Error): /.test(r.label));
+  expect(loud.length === 0, `Problems shows ${loud.length} warning(s) or error(s) for a plain LIF file:\n  ${loud.map((r) => r.label).join('\n  ')}`);
+  await ui.runCommand('View: Close All Editors');
+  return `${file}: no warning or error in Problems; ${info.length} information entr${info.length === 1 ? 'y' : 'ies'} (the grazing set)`;
 }
 
 /** Hover on a parameter's use shows its unit and docstring, as declared in the file. */
@@ -203,13 +226,14 @@ async function checkExtensionPage(t) {
 
 export const CHECKS = [
   { name: 'vscode: error squiggles and Problems entries for the mistakes sample', run: checkProblems },
+  { name: 'vscode: a plain LIF file shows no warning in Problems', run: checkPlainLif },
   { name: 'vscode: hover on a parameter shows its unit', run: checkHover },
   { name: 'vscode: quick fix from the light bulb divides by tau_m', run: checkQuickFix },
   { name: 'vscode: "Fix All" applies every fix that needs no choice (source.fixAll.saltus)', run: checkFixAll },
   { name: 'vscode: derived-adjoint preview shows typeset equations', run: checkAdjointPreview },
   { name: 'vscode: "Generate code…" from the palette writes the NumPy files the CLI writes', run: checkGenerateCode },
   { name: 'vscode: the "generate code…" CodeLens writes one model\'s C99 files', run: checkGenerateCodeLens },
-  { name: 'vscode: "Check gradients" shows the report webview and the verdict', run: checkGradients },
+  { name: 'vscode: "Cross-check gradients" shows the report webview and the verdict', run: crossCheck },
   { name: 'vscode: the adjoint preview is restored after a window reload', run: checkRestoredPreview },
   { name: 'vscode: scenarios are tests in the test explorer, each gradient row a child', run: checkTestExplorer },
   { name: 'vscode: the saltus: check task fills Problems through the $saltus problem matcher', run: checkCheckTask },

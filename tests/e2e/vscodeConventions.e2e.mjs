@@ -4,7 +4,7 @@
 // explorer, and the `saltus: check` task whose problem matcher fills the Problems panel.
 // Oracles, independent of the UI under test: the installed extension's package.json (the
 // walkthrough's steps), the packaged CLI of the same build (`saltus check --format json` for
-// the task's problems, `saltus gradcheck --format json` for the rows and verdict of each
+// the task's problems, `saltus crosscheck --format json` for the rows and verdict of each
 // scenario), and the workspace's own files (which scenarios have a model beside them).
 // Invariants: each check opens what it needs itself and leaves the editors closed; the
 // screenshots go to the run's screenshot folder like every other check's.
@@ -163,7 +163,7 @@ export async function checkTestExplorer(t) {
   const scenarios = readdirSync(scenariosDir).filter((f) => f.endsWith('.json') && existsSync(join(t.workspace, f.replace(/\.json$/, '.saltus')))).sort();
   expect(scenarios.length > 0, 'the workspace has no scenario beside a model');
   const pick = 'lif_current.json';
-  const cli = t.runCli(['gradcheck', 'lif_current.saltus', '--scenario', `scenarios/${pick}`, '--format', 'json']);
+  const cli = t.runCli(['crosscheck', 'lif_current.saltus', '--scenario', `scenarios/${pick}`, '--format', 'json']);
   const want = JSON.parse(cli.stdout);
   const wantRows = want.gradients.length + want.params.length;
 

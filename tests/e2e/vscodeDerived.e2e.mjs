@@ -1,10 +1,10 @@
 // End-to-end checks of the two commands that act on derived results, in real VS Code
 // (listed in CHECKS of vscode.e2e.mjs): "Saltus: Generate code…" from the palette and from
 // its CodeLens (quick pick of the target, VS Code's own folder dialog, the files on disk,
-// the notification), and "Saltus: Check gradients" (progress notification, report webview
+// the notification), and "Saltus: Cross-check gradients" (progress notification, report webview
 // with SVG plots and the error table, the verdict message).
 // Oracles, independent of the UI under test: the packaged CLI of the same build run on the
-// same sample (`saltus generate` must write byte-identical files; `saltus gradcheck
+// same sample (`saltus generate` must write byte-identical files; `saltus crosscheck
 // --format json` gives the gradients the table must show), and each generated file's own
 // saltus-hash line (the SHA-256 of the file without that line, recomputed here).
 // Invariants: output folders are fresh folders inside the scratch workspace, made before
@@ -123,14 +123,14 @@ export async function checkGenerateCodeLens(t) {
   return `lens [${lens.join(' | ')}] above line ${line}; pick "${offered.title}"; ${names.join(', ')} identical to the CLI's --model ${model}`;
 }
 
-/** "Saltus: Check gradients" on the sample with scenarios/NAME.json beside it. */
-export async function checkGradients(t) {
+/** "Saltus: Cross-check gradients" on the sample with scenarios/NAME.json beside it. */
+export async function crossCheck(t) {
   const { ui } = t;
-  const cmd = contributed(t, 'saltus.checkGradients');
+  const cmd = contributed(t, 'saltus.crossCheck');
   const scenario = `scenarios/${SAMPLE.replace(/\.saltus$/, '')}.json`;
   expect(existsSync(join(t.workspace, scenario)), `the workspace has no ${scenario} beside ${SAMPLE}`);
-  const r = t.runCli(['gradcheck', SAMPLE, '--scenario', scenario, '--format', 'json']);
-  expect(r.status === 0 && r.stdout, `saltus gradcheck exited ${r.status} (0 = the gradients agree): ${r.stderr}${r.stdout.slice(0, 500)}`);
+  const r = t.runCli(['crosscheck', SAMPLE, '--scenario', scenario, '--format', 'json']);
+  expect(r.status === 0 && r.stdout, `saltus crosscheck exited ${r.status} (0 = the gradients agree): ${r.stderr}${r.stdout.slice(0, 500)}`);
   const want = JSON.parse(r.stdout);
   const wantRows = [...want.gradients.map((g) => ({ adjoint: g.adjoint, label: null })), ...want.params.map((p) => ({ adjoint: p.adjoint, label: `${p.population}.${p.name}` }))];
 
@@ -143,10 +143,10 @@ export async function checkGradients(t) {
   expect(/the adjoint gradient agrees with finite differences/.test(verdict), `the verdict reads "${verdict}"`);
   const worst = want.maxRelativeError.toExponential(2);
   expect(verdict.includes(`largest relative error ${worst}`), `the verdict does not quote the CLI's largest relative error ${worst}: "${verdict}"`);
-  const progress = seen.filter((x) => x.message.startsWith(`Checking gradients (${scenario})`));
-  expect(progress.length > 0, `no progress notification "Checking gradients (${scenario})" appeared; toasts seen: ${JSON.stringify(seen)}`);
+  const progress = seen.filter((x) => x.message.startsWith(`Cross-checking gradients (${scenario})`));
+  expect(progress.length > 0, `no progress notification "Cross-checking gradients (${scenario})" appeared; toasts seen: ${JSON.stringify(seen)}`);
   expect(progress.some((x) => x.buttons.includes('Cancel')), `the progress notification has no Cancel button: ${JSON.stringify(progress)}`);
-  const steps = progress.map((x) => x.message.replace(/^.*\): /, '')).filter((m) => /\d+\/\d+$/.test(m));
+  const steps = progress.map((x) => x.message.replace(/^.*\): /, '')).filter((m) => /^\d+\/\d+ simulations/.test(m));
 
   const tabTitle = `Gradients · ${scenario}`;
   await ui.page.locator('.tabs-container .tab', { hasText: tabTitle }).first().waitFor();
@@ -192,7 +192,7 @@ export async function checkGradients(t) {
   await inner.locator('h2', { hasText: 'Gradients' }).first().evaluate((h) => h.scrollIntoView({ block: 'start' }));
   await ui.page.mouse.move(700, 450);
   await ui.page.waitForTimeout(400);
-  await ui.screenshot('gradient-check');
+  await ui.screenshot('cross-check');
   if (maximized) await ui.runCommand('View: Toggle Maximize Editor Group');
   await ui.runCommand('Notifications: Clear All Notifications');
   return `progress "${progress[0].message}" with Cancel (${steps.length} steps seen${steps.length ? `, last ${steps.at(-1)}` : ''}); "${verdict}"; ${page.rows.length} rows match the CLI (worst ${worstRow.label}); ${page.charts.length} SVG plots, ${page.lines} trace lines${page.widest > page.view + 1 ? ` (note: the widest plot ends at ${Math.round(page.widest)} px in a ${page.view} px wide view)` : ''}`;

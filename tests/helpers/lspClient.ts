@@ -40,7 +40,7 @@ export class Client {
     conn.onNotification('window/showMessage', (p: { type: number; message: string }) => { this.messages.push(p); this.wake(); });
     conn.onNotification('$/progress', (p: Client['progress'][number]) => { this.progress.push(p); this.wake(); });
     // the custom progress notification the server once sent (now the protocol's $/progress)
-    conn.onNotification('saltus/gradcheckProgress', () => { this.notifications.push('saltus/gradcheckProgress'); });
+    conn.onNotification('saltus/crosscheckProgress', () => { this.notifications.push('saltus/crosscheckProgress'); });
     conn.onRequest('workspace/configuration', (p: { items: unknown[] }) => p.items.map(() => this.settings));
     conn.onRequest('client/registerCapability', () => null);
     conn.onRequest('window/workDoneProgress/create', (p: { token: string | number }) => { this.createdProgress.push(p.token); return null; });

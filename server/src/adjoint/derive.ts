@@ -36,6 +36,11 @@ export interface SpikeDerivation {
   jump: Map<string, Sym>;
   /** The substitution LHS = RHS used on the guard surface, when one was found. */
   surface?: SurfaceRule;
+  /** The guard slope on the guard surface (always with the substitution, when there is one):
+   *  the fact the "can the flow cross?" check evaluates with the parameter values. */
+  surfaceSlope: Sym;
+  /** The guard just after the spike jump, g(h(x-)), on the guard surface: where a reset leaves the neuron. */
+  postGuard: Sym;
   /** Forward state values the backward pass needs at each spike of this neuron. */
   record: string[];
   eventBased: boolean;
@@ -76,7 +81,10 @@ export interface TrajectoryNeeds {
 export interface NeuronDerivation {
   name: string;
   hash: string;
+  /** False when the model has errors, or when nothing could be derived (see notDerived). */
   wellFormed: boolean;
+  /** Why a well-formed model got no derivation (e.g. a guard slope that is identically 0). */
+  notDerived?: string;
   states: string[];
   /** Parameters whose gradients were derived (trainable ones, or all with params: 'all'). */
   gradientParams: string[];
@@ -135,6 +143,15 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   }
   try {
     const work = new Work({ ...DEFAULT_BUDGET, ...ctx.budget }, { kind: 'flow', state: states[0] ?? '' });
+    const zero = zeroSlope(neuron, states, work);
+    if (zero) {
+      base.wellFormed = false;
+      base.notDerived = 'the guard slope is identically 0';
+      base.issues = [zero];
+      base.notes.push(`${zero.message}.`);
+      base.millis = performance.now() - start;
+      return base;
+    }
     const out = derive(neuron, states, gradientParams, work);
     return { ...base, ...out, issues: work.issues, notes: work.notes, millis: performance.now() - start };
   } catch (err) {
@@ -249,16 +266,17 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const grazing = vanishingConditions(gdot, states);
   if (grazing.length > 0) {
     work.issues.push({ code: 'grazing-crossing', where, conditions: grazing,
-      message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: the spike time has no derivative there (guard slope ${slopeText(gdot)})` });
+      message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: a spike there has no time derivative (guard slope ${slopeText(gdot)}); `
+        + 'a threshold model has such a set, so this is information: the cross-check warns where a run comes near it' });
   }
   const jumpExprs = [...h, ...hx.flat(), g, ...gx];
   work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
-  if (!dependsOnState(gdot, states) && gdot.k === 'num' && gdot.v === 0) {
-    work.notes.push('the guard slope is identically zero: the guard is never crossed transversally');
-  }
 
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
-  return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}), record, eventBased: true };
+  const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;
+  const postGuard = rule ? onSurfaceAlways(substitute(g, post), rule, work) : work.simp(substitute(g, post), 'guard after the jump', where);
+  return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}),
+    surfaceSlope, postGuard, record, eventBased: true };
 }
 
 function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
@@ -281,8 +299,48 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   return { weight: w, jump, weightGradient, coupling, record };
 }
 
-function dependsOnState(s: Sym, states: readonly string[]): boolean {
-  return states.some((x) => dependsOn(s, x)) || dependsOn(s, TIME);
+/** s on the guard surface (the substitution made even where it reads longer), simplified. */
+function onSurfaceAlways(s: Sym, rule: SurfaceRule, work: Work): Sym {
+  if (!dependsOn(s, rule.state)) return work.simp(s, 'guard-surface fact', { kind: 'fire' });
+  return work.simp(substitute(s, new Map([[rule.state, rule.value]])), 'guard-surface fact', { kind: 'fire' });
+}
+
+const isZero = (s: Sym): boolean => s.k === 'num' && s.v === 0;
+
+/**
+ * A guard whose slope is identically 0 on the guard surface: its states have no flow (they
+ * change only by jumps), it holds no state at all, or the flow only approaches the threshold
+ * (dV/dt = (theta - V)/tau on V = theta). Then no spike time has a derivative and phi would
+ * divide by 0: an error, and nothing is derived. Undefined when the slope is not identically 0.
+ */
+function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): DerivationIssue | undefined {
+  const fire = neuron.fire;
+  if (!fire) return undefined;
+  const g = fire.guard;
+  const f = states.map((x) => neuron.flows.get(x) ?? ZERO);
+  const raw = work.simp(add(dot(states.map((x, j) => [derivative(g, x), f[j]!])), derivative(g, TIME)), 'guard slope', { kind: 'fire' });
+  const inGuard = states.filter((x) => dependsOn(g, x));
+  const formula = `gdot ${slopeText(raw)}`;
+  const end = 'no spike time has a derivative, so nothing is derived';
+  if (inGuard.length === 0 && !dependsOn(g, TIME)) {
+    return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
+      message: `the guard ${toMathjs(g)} = 0 holds no state and no t: it never changes, so the flow never crosses it (guard slope ${formula}); ${end}` };
+  }
+  if (isZero(raw) && inGuard.every((x) => !neuron.flows.has(x)) && !dependsOn(g, TIME)) {
+    return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
+      message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; spikes fired by jumps are not in the language yet); ${end}` };
+  }
+  if (isZero(raw)) {
+    return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
+      message: `the guard slope is identically 0 (${formula}): the flow never crosses the guard; ${end}` };
+  }
+  const preferred = [fire.lhs, fire.rhs].flatMap((s) => (s.k === 'sym' && states.includes(s.name) ? [s.name] : []));
+  const rule = guardSurfaceRule(g, states, preferred);
+  if (!rule) return undefined;
+  const onIt = onSurfaceAlways(raw, rule, work);
+  if (!isZero(onIt)) return undefined;
+  return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
+    message: `on the threshold, where ${rule.state} = ${toMathjs(rule.value)}, the guard slope ${formula} is identically 0: the flow only approaches the threshold and never crosses it; ${end}` };
 }
 
 function slopeText(s: Sym): string {

@@ -1,17 +1,22 @@
-// Diagnostics from a derivation: grazing crossings (warning), kinks of abs/min/max
-// (warning), vanishing denominators (info) and budget fallbacks (info), each placed on the
-// text of the equation it is about (the abs/min/max call itself where the equation has
-// exactly one). The derivation is range-free (cached by content); ranges come from the
-// current neuron, so an edit elsewhere in the file moves them correctly.
+// Diagnostics from a derivation: a guard slope that is identically 0 (error: nothing is
+// derived), grazing crossings (info: every threshold model has a grazing set; the
+// cross-check warns where a run actually comes near it), kinks of abs/min/max (warning),
+// vanishing denominators (info) and budget fallbacks (info), each placed on the text of the
+// equation it is about (the abs/min/max call itself where the equation has exactly one);
+// then what the parameter values say about the guard (guardFacts.ts). The derivation is
+// range-free (cached by content); ranges come from the current neuron, so an edit
+// elsewhere in the file moves them correctly.
 // Invariant: never throws; every range lies inside the neuron's declaration.
 import type * as A from '../syntax/ast';
 import type { Diagnostic, Severity } from '../base/diagnostic';
 import type { ResolvedNeuron } from '../model/types';
 import { NON_SMOOTH } from '../symbolic/sym';
 import type { DerivationIssue, NeuronDerivation, Where } from './derive';
+import { guardDiagnostics } from './guardFacts';
 
 const SEVERITY: Record<DerivationIssue['code'], Severity> = {
-  'grazing-crossing': 'warning',
+  'zero-guard-slope': 'error',
+  'grazing-crossing': 'info',
   'non-smooth': 'warning',
   'vanishing-denominator': 'info',
   'derivation-budget': 'info',
@@ -71,6 +76,7 @@ export function adjointDiagnostics(derivation: NeuronDerivation, neuron: Resolve
       }
       out.push({ severity: SEVERITY[issue.code], code: issue.code, message: issue.message, range });
     }
+    out.push(...guardDiagnostics(derivation, neuron));
   } catch {
     // A neuron whose declarations changed shape under us: report nothing rather than throw.
   }

@@ -12,7 +12,10 @@ export type AdjointHoverItem = { kind: 'state'; name: string } | { kind: 'fire' 
 const code = (s: Sym): string => '`' + toMathjs(s) + '`';
 
 export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem): string {
-  if (!d.wellFormed) return '_Adjoint: not derived while the model has errors._';
+  if (!d.wellFormed) {
+    const why = d.issues.find((i) => i.code === 'zero-guard-slope');
+    return why ? `_Adjoint: not derived: ${why.message}._` : '_Adjoint: not derived while the model has errors._';
+  }
   const lines: string[] = [];
   if (item.kind === 'state') {
     const x = item.name, flow = d.adjointFlow.get(x);
@@ -31,7 +34,7 @@ export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem
     lines.push('', '`coupling` = sum over outgoing synapses of each target\'s coupling term (in the target\'s names).');
     lines.push('', `record at each spike: ${s.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}; `
       + (s.eventBased ? 'purely event-based.' : `needs the forward trajectory of ${d.trajectory.adjointStates.join(', ')}.`));
-    for (const i of d.issues) if (i.code === 'grazing-crossing') lines.push('', `⚠ ${i.message}`);
+    for (const i of d.issues) if (i.code === 'grazing-crossing') lines.push('', `_Grazing set:_ ${i.message}`);
   } else {
     const inc = d.incoming;
     if (!inc) return `_${d.name} has no incoming block._`;

@@ -34,6 +34,11 @@ export const DiagnosticCodes = [
   'too-complex',
   'time-budget',
   'internal-error',
+  'non-positive-constant',
+  'zero-guard-slope',
+  'fires-only-by-jumps',
+  'never-fires',
+  'reset-on-threshold',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

@@ -16,6 +16,8 @@ export interface CliIO {
   err(text: string): void;
   /** Whether colour may be used on `out`: stdout is a TTY and NO_COLOR is unset or empty. */
   colour: boolean;
+  /** stderr is a terminal (progress may update one line in place). */
+  errTTY?: boolean;
   cwd: string;
   env: Readonly<Record<string, string | undefined>>;
 }
@@ -54,7 +56,7 @@ type Options = NonNullable<ParseArgsConfig['options']>;
 export function parseCommandArgs<O extends Options>(command: string, argv: string[], options: O) {
   try {
     return parseArgs({
-      args: argv,
+      args: joinNegativeValues(argv, options),
       options: { ...options, help: { type: 'boolean', short: 'h' } },
       allowPositionals: true,
       strict: true,
@@ -65,6 +67,24 @@ export function parseCommandArgs<O extends Options>(command: string, argv: strin
     const first = raw.split(/\.\s/)[0]!.replace(/\.$/, '');
     throw new UsageError(first.charAt(0).toLowerCase() + first.slice(1), command);
   }
+}
+
+/**
+ * `--tolerance -1` reads as an option followed by another option to parseArgs ("ambiguous");
+ * a string option followed by a negative number takes it as its value (`--tolerance=-1`), so
+ * the command can say what is wrong with the number itself.
+ */
+function joinNegativeValues(argv: string[], options: Options): string[] {
+  const out: string[] = [];
+  for (let i = 0; i < argv.length; i++) {
+    const a = argv[i]!, next = argv[i + 1];
+    const name = a.startsWith('--') && !a.includes('=') ? a.slice(2) : undefined;
+    if (name && options[name]?.type === 'string' && next !== undefined && /^-(\d|\.\d|inf)/i.test(next)) {
+      out.push(`${a}=${next}`);
+      i++;
+    } else out.push(a);
+  }
+  return out;
 }
 
 /** Reads a one-of option, e.g. --format text|json|sarif. */

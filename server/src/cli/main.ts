@@ -12,7 +12,7 @@ import { lspCommand } from './commands/lsp';
 import { generateCommand } from './commands/generate';
 import { adjointCommand } from './commands/adjoint';
 import { stepCommand } from './commands/step';
-import { gradcheckCommand } from './commands/gradcheck';
+import { crosscheckCommand } from './commands/crosscheck';
 import { SALTUS_VERSION } from '../base/version';
 
 /** The subcommands, in the order `saltus --help` lists them. */
@@ -22,7 +22,7 @@ export const COMMANDS: readonly Command[] = [
   generateCommand,
   adjointCommand,
   stepCommand,
-  gradcheckCommand,
+  crosscheckCommand,
 ];
 
 export function usageText(): string {
@@ -46,8 +46,16 @@ Exit status: 0 success, 1 problems found, 2 usage error or unreadable input,
 `;
 }
 
-function findCommand(name: string): Command | undefined {
-  return COMMANDS.find((c) => c.name === name);
+/**
+ * Old names kept working for one release, hidden from `--help` and from "did you mean":
+ * running one prints a one-line notice on stderr, then runs the new command.
+ */
+const RENAMED: Readonly<Record<string, string>> = { gradcheck: 'crosscheck' };
+
+function findCommand(name: string, io?: CliIO): Command | undefined {
+  const renamed = Object.hasOwn(RENAMED, name) ? RENAMED[name] : undefined;
+  if (renamed !== undefined) io?.err(`saltus: '${name}' was renamed '${renamed}'; the old name goes away in the next release\n`);
+  return COMMANDS.find((c) => c.name === (renamed ?? name));
 }
 
 /** Levenshtein distance, for "did you mean" on a mistyped command. */
@@ -66,7 +74,9 @@ function distance(a: string, b: string): number {
 }
 
 function unknownCommand(name: string): UsageError {
-  const near = [...COMMANDS.map((c) => c.name), 'help'].filter((n) => distance(n, name) <= 2);
+  // A slip on an old name suggests the new one (the old names themselves stay unlisted).
+  const candidates: [string, string][] = [...COMMANDS.map((c): [string, string] => [c.name, c.name]), ['help', 'help'], ...Object.entries(RENAMED)];
+  const near = candidates.filter(([n]) => distance(n, name) <= 2).map(([, to]) => to);
   const hint = near.length > 0 ? `; did you mean '${near[0]}'?` : '; run saltus --help for the list';
   return new UsageError(`unknown command '${name}'${hint}`);
 }
@@ -91,13 +101,13 @@ export async function runCli(argv: string[], io: CliIO): Promise<number | null> 
       if (rest.length === 0) { io.out(usageText()); return 0; }
       if (rest.length > 1) throw new UsageError('give one command name, e.g. saltus help check', 'help');
       if (rest[0] === 'help') { io.out('Usage: saltus help COMMAND\n\nShows the options of COMMAND.\n'); return 0; }
-      const c = findCommand(rest[0]!);
+      const c = findCommand(rest[0]!, io);
       if (!c) throw unknownCommand(rest[0]!);
       io.out(c.help + '\n');
       return 0;
     }
     if (first.startsWith('-')) throw new UsageError(`unknown option '${first}' before the command; run saltus --help`);
-    const command = findCommand(first);
+    const command = findCommand(first, io);
     if (!command) throw unknownCommand(first);
     const result = await command.run(rest, io);
     return 'exitCode' in result ? result.exitCode : null;
@@ -121,6 +131,7 @@ function processIO(): CliIO {
     out: (t) => void process.stdout.write(t),
     err: (t) => void process.stderr.write(t),
     colour: Boolean(process.stdout.isTTY) && !noColour,
+    errTTY: Boolean(process.stderr.isTTY),
     cwd: process.cwd(),
     env: process.env,
   };

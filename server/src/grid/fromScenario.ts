@@ -1,5 +1,5 @@
 // A cross-check scenario (one trial, a state-integral or spike-time loss) as a grid network.
-import type { Scenario } from '../gradcheck/scenario';
+import type { Scenario } from '../crosscheck/scenario';
 import type { Network } from './network';
 
 export function networkFromScenario(s: Scenario): Network {

@@ -1,6 +1,6 @@
 // LSP handlers for the derived results: CodeLenses above each neuron (the adjoint's verdict,
 // opening the preview; generate code; their commands: lensCommands.ts), the
-// `saltus/adjointPreview` request the client's webview renders, `saltus/gradcheck` (the
+// `saltus/adjointPreview` request the client's webview renders, `saltus/crosscheck` (the
 // gradient cross-check of a scenario, with the protocol's work-done progress and
 // cancellation), and `saltus/generate`, which writes generated code into a folder the
 // modeller picked. Guarded like every other handler (features.ts). Code lenses derive
@@ -12,13 +12,30 @@ import { makeGuard, type DocumentState } from './documentState';
 import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';
-import { runGradcheck } from '../gradcheck/index';
+import { runCrossCheck } from '../crosscheck/index';
+import type { CrossCheckProgress } from '../crosscheck/types';
 import { lensCommand } from './lensCommands';
 
-export interface GradcheckParams { uri: string; scenario: unknown; scenarioLabel?: string; workDoneToken?: ProgressToken }
+/** `scenario`: the JSON text (preferred: numbers JSON cannot hold reach the validator as written) or the parsed value. */
+export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string; sample?: number; seed?: number; workDoneToken?: ProgressToken }
+const wholeAtLeast = (v: unknown, min: number): v is number => typeof v === 'number' && Number.isInteger(v) && v >= min;
 /** The dt of the generated code is the analysis's (the file's timestep or the saltus.timestep setting). */
 export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
+
+/** '40 s', '12 min', '1.5 h'. */
+function duration(ms: number): string {
+  const sec = Math.round(ms / 1000);
+  return sec < 60 ? `${Math.max(1, sec)} s` : sec < 3600 ? `${Math.round(sec / 60)} min` : `${(sec / 3600).toFixed(1)} h`;
+}
+
+/** The progress line of a cross-check: simulations done, time left, the estimate at the start, a sample. */
+export function progressMessage(p: CrossCheckProgress, elapsedMs: number): string {
+  const left = p.done > 0 && p.done < p.total ? `, about ${duration((elapsedMs / p.done) * (p.total - p.done))} left` : '';
+  const hint = p.sample ? `, a sample of ${p.sample.rows} of ${p.sample.of} rows` : (p.estimate_ms ?? 0) >= 60_000 ? '; a "sample" in the scenario checks part of the rows' : '';
+  const estimate = p.done <= 2 && p.estimate_ms !== undefined ? ` (estimate ${duration(p.estimate_ms)}${hint})` : '';
+  return `${p.done}/${p.total} simulations${left}${estimate}`;
+}
 
 /** Generates code for a document and writes it safely into `dir` (never outside it; refuses edited files unless `force`). */
 export function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
@@ -50,8 +67,9 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
   // The cross-check runs asynchronously (it yields between simulations). Progress is the
   // protocol's work-done progress: on the token the client sent with the request
   // (`workDoneToken`), else on one the server creates when the client supports that
-  // (`window/workDoneProgress/create`). Cancelling the request, or that progress, stops it.
-  connection.onRequest('saltus/gradcheck', async (p: GradcheckParams, token) => {
+  // (`window/workDoneProgress/create`). Its messages give the cost estimate and the time left.
+  // Cancelling the request, or that progress, stops it.
+  connection.onRequest('saltus/crosscheck', async (p: CrossCheckParams, token) => {
     let progress: WorkDoneProgressReporter | undefined;
     try {
       const c = typeof p?.uri === 'string' ? state.analysisFor(p.uri) : undefined;
@@ -66,11 +84,13 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
       }
       progress?.begin(`Cross-checking gradients (${p.scenarioLabel ?? label})`, 0, undefined, true);
       const signal = { get aborted() { return token.isCancellationRequested || progressCancelled(); } };
-      return await runGradcheck(c.analysis, p.scenario, { signal, sourceLabel: label,
+      const started = Date.now();
+      return await runCrossCheck(c.analysis, p.scenario, { signal, sourceLabel: label,
         ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
-        onProgress: (pr) => { if (pr.total > 0) progress?.report(Math.round((100 * pr.done) / pr.total), `${pr.phase} ${pr.done}/${pr.total}`); } });
+        ...(wholeAtLeast(p.sample, 1) ? { sample: p.sample } : {}), ...(wholeAtLeast(p.seed, 0) ? { seed: p.seed } : {}),
+        onProgress: (pr) => { if (pr.total > 0) progress?.report(Math.round((100 * pr.done) / pr.total), progressMessage(pr, Date.now() - started)); } });
     } catch (e) {
-      state.log(`saltus: gradient check failed: ${(e as Error)?.stack ?? String(e)}`);
+      state.log(`saltus: gradient cross-check failed: ${(e as Error)?.stack ?? String(e)}`);
       return null;
     } finally {
       progress?.done();

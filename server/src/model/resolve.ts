@@ -15,6 +15,8 @@ import { constantValue, describe, lower, type Binding, type LowerContext, type L
 import { resolveConnections } from './connections';
 import { complexityError } from './complexity';
 import { suggestions, unknownName } from './suggest';
+import { constantProblem, constantUses } from './constants';
+import { formatNumber } from '../units/format';
 import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SymbolInfo } from './types';
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
@@ -204,6 +206,8 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
   checkBounds(lets, flows, flowDecls, fire, incoming, table, ctx);
+  // Only on a neuron that is otherwise sound (a too-complex expression is not walked again).
+  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
     ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), wellFormed };
@@ -225,6 +229,22 @@ function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<
     for (const [x, h] of fire.jumps) check(h, jumpRange(d.jumps, x), `the jump of '${x}'`);
   }
   if (incoming) for (const [x, r] of incoming.jumps) check(r, jumpRange(incoming.decl.jumps, x), `the incoming jump of '${x}'`);
+}
+
+/** Zero divisors (error) and negative time constants or capacitances (warning), on the parameter's value. */
+function checkConstants(params: ParamInfo[], flows: Map<string, S.Sym>, fire: FireInfo | undefined, incoming: IncomingInfo | undefined,
+  table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
+  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}) });
+  for (const p of params) {
+    const use = uses.get(p.name);
+    if (!use || p.valueSI === undefined) continue;
+    const u = p.unitText ? parseUnit(p.unitText) : undefined;
+    const shown = u?.ok && u.scale > 0 ? `${formatNumber(p.valueSI / u.scale)} ${p.unitText}` : formatNumber(p.valueSI);
+    const problem = constantProblem(p.name, use, p.valueSI, shown);
+    if (!problem) continue;
+    const range = (table.get(p.name)?.decl as A.ParamDecl | undefined)?.value?.range ?? p.nameRange;
+    ctx.diagnostics.push({ severity: problem.severity, code: 'non-positive-constant', range, message: problem.message });
+  }
 }
 
 const countErrors = (ds: Diagnostic[]): number => ds.reduce((n, d) => n + (d.severity === 'error' ? 1 : 0), 0);

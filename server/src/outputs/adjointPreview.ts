@@ -17,12 +17,13 @@ const L = (s: Sym): string => toLatex(s, (n) => DERIVED_NAMES[n]);
 const lam = (x: string): string => `\\lambda_{${latexName(x)}}`;
 
 export function adjointBadge(d: NeuronDerivation): string {
-  if (!d.wellFormed) return 'not derived';
+  if (!d.wellFormed) return d.notDerived ? `adjoint: not derived (${d.notDerived})` : 'not derived';
   return d.trajectory.eventBased ? 'adjoint: event-based' : `adjoint: needs trajectory of ${d.trajectory.adjointStates.concat(d.trajectory.gradientStates).filter((x, i, all) => all.indexOf(x) === i).join(', ')}`;
 }
 
 export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
   const sections: PreviewModel['sections'] = [];
+  if (!d.wellFormed) return { name: d.name, badge: adjointBadge(d), ...(doc ? { doc } : {}), sections, notes: [...d.notes] };
   sections.push({
     title: 'Adjoint flow (integrated backwards in time from λ(T) = 0)',
     rows: [...d.adjointFlow].map(([x, e]) => ({ label: `λ_${x}`, latex: `\\frac{d${lam(x)}}{dt} = ${L(e)}` })),
@@ -34,7 +35,8 @@ export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
       { label: 'φ', latex: `\\phi = ${L(s.phi)}`, note: 'coupling: the sum over outgoing synapses of each target’s coupling term' },
       ...[...s.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
     ];
-    sections.push({ title: `At a spike (${s.direction} crossing)`, note: `λ just after the event, states just before. Record at each spike: ${s.record.length ? s.record.join(', ') : 'the spike time only'}.`, rows });
+    const grazing = d.issues.filter((i) => i.code === 'grazing-crossing').map((i) => ` Grazing set: ${i.message}.`).join('');
+    sections.push({ title: `At a spike (${s.direction} crossing)`, note: `λ just after the event, states just before. Record at each spike: ${s.record.length ? s.record.join(', ') : 'the spike time only'}.${grazing}`, rows });
   }
   if (d.incoming) {
     const i = d.incoming;

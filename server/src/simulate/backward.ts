@@ -12,9 +12,9 @@ import { type Compiled, compile } from '../symbolic/evaluate';
 import { type Sym, ZERO } from '../symbolic/sym';
 import type { NeuronDerivation } from '../adjoint/derive';
 import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
-import { type IntegrateOptions, Stepper, integrate } from './dopri';
+import { type IntegrateOptions, Stepper, firstNonFinite, integrate } from './dopri';
 import { type InputTrain, type Loss, type Network, stateScales } from './network';
-import { type Instance, type Interval, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';
+import { type Instance, type Interval, type NonFiniteAt, type Trajectory, instancesOf, load, setWeight, stateInInterval } from './forward';
 
 export interface BackwardOptions {
   loss?: Loss;
@@ -38,6 +38,9 @@ export interface Gradients {
   /** With keepCostate: per forward interval (same index), the backward dense output of
    *  [lambdas (network layout), parameter accumulators]; segments run from t1 down to t0. */
   costate?: Interval[];
+  /** Where the backward pass first produced a NaN or infinite costate, accumulator or
+   *  weight-gradient increment (in backward order, i.e. the latest time); it carries on. */
+  nonFinite?: NonFiniteAt;
 }
 
 /** A derivation compiled over [states, lambdas, params, weight?, t, phi, coupling, dlp_dt, lV_pre, lV_post, dlV_dX...]. */
@@ -112,6 +115,20 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   }
   if (errors.length) return result;
   const nZ = ai.length ? ai[ai.length - 1]!.acc + ai[ai.length - 1]!.a.gradientParams.length : layout.total;
+  /** Component k of z: a costate lambda_X of a neuron, or a parameter accumulator dL/dp. */
+  const zComponent = (k: number): { neuron: number; quantity: string } => {
+    for (let i = 0; i < ai.length; i++) {
+      const it = ai[i]!, off = layout.offset[i]!;
+      if (k >= off && k < off + it.nStates) return { neuron: i, quantity: lambdaName(it.fwd.c.states[k - off]!) };
+      if (k >= it.acc && k < it.acc + it.a.gradientParams.length) return { neuron: i, quantity: `dL/d${it.a.gradientParams[k - it.acc]!}` };
+    }
+    return { neuron: -1, quantity: `component ${k}` };
+  };
+  const flagNonFinite = (z: Float64Array, time: number, cause: NonFiniteAt['cause']): void => {
+    if (result.nonFinite) return;
+    const k = firstNonFinite(z);
+    if (k >= 0) result.nonFinite = { time, ...zComponent(k), cause };
+  };
   const slot = (x: AdjointInstance, name: string): number => x.a.names.indexOf(name);
   const special = ai.map((x) => ({ t: slot(x, TIME), phi: slot(x, PHI), coupling: slot(x, COUPLING), dlp: slot(x, DLP_DT),
     pre: slot(x, LV_PRE), post: slot(x, LV_POST), w: x.fwd.c.model.incoming ? slot(x, x.fwd.c.model.incoming.weight) : -1 }));
@@ -183,16 +200,35 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     if (iv.t1 > iv.t0 && iv.segments.length > 0) {
       const keep: Interval | undefined = result.costate?.[k];
       const res = integrate(st, iv.t1, z, iv.t0, opts, undefined, keep ? (s) => keep.segments.push(s) : () => {});
+      if (res.nonFinite && !result.nonFinite) result.nonFinite = { time: res.nonFinite.t, ...zComponent(res.nonFinite.index), cause: 'adjoint flow' };
       if (res.error) { errors.push(`backward integration failed: ${res.error}`); return result; }
       z = res.y;
     }
     if (k === 0) break;
     const e = traj.events[k - 1]!;
-    const zPlus = Float64Array.from(z);
-    const zNew = Float64Array.from(z);
+    const increment = (g: number, target: number): number => {
+      if (!Number.isFinite(g) && !result.nonFinite) {
+        result.nonFinite = { time: e.time, neuron: target, quantity: `dL/d${ai[target]!.fwd.c.model.incoming?.weight ?? 'w'}`, cause: 'received spike' };
+      }
+      return g;
+    };
     if (e.kind === 'input') {
-      result.inputWeights[e.train!]! += receive(e.neuron, inputs[e.train!]!.weight, e, zPlus, zNew);
-    } else {
+      // The arrivals of this instant in reverse order, each from its own pre-state; a jump
+      // changes only its target's lambdas and accumulators, so z is updated in place.
+      const group = e.arrivals ?? [{ train: e.train!, neuron: e.neuron, pre: e.pre.slice(layout.offset[e.neuron]!, layout.offset[e.neuron]! + layout.size[e.neuron]!) }];
+      const x = e.pre.slice();
+      for (let q = group.length - 1; q >= 0; q--) {
+        const a = group[q]!;
+        x.set(a.pre, layout.offset[a.neuron]!);
+        result.inputWeights[a.train]! += increment(receive(a.neuron, inputs[a.train]!.weight, { pre: x, time: e.time }, z, z), a.neuron);
+      }
+      flagNonFinite(z, e.time, 'input spike');
+      continue;
+    }
+    // A spike: the sender's and every target's new lambdas from the same post-event lambdas.
+    const zPlus = z.slice();
+    const zNew = z.slice();
+    {
       const n = e.neuron, sp = special[n]!;
       let coupling = 0;
       net.synapses.forEach((s, si) => {
@@ -200,7 +236,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
         const it = ai[s.to]!, b = fill(s.to, e.pre, zPlus, e.time);
         b[special[s.to]!.w] = s.weight;
         coupling += it.a.coupling!(b);
-        result.weights[si]! += receive(s.to, s.weight, e, zPlus, zNew);
+        result.weights[si]! += increment(receive(s.to, s.weight, e, zPlus, zNew), s.to);
       });
       const it = ai[n]!;
       const b = fill(n, e.pre, zPlus, e.time);
@@ -213,6 +249,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       const off = layout.offset[n]!;
       for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
       it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
+      flagNonFinite(zNew, e.time, 'spike');
     }
     z = zNew;
   }

@@ -48,6 +48,23 @@ export interface IntegrateResult {
   steps: number;
   rejected: number;
   error?: string;
+  /** The first accepted step (its start time t) after which a component `index` of the state
+   *  was NaN or infinite; non-finite components are carried along, not integrated. */
+  nonFinite?: { t: number; index: number };
+}
+
+/** After a step from t: undefined when y1 is finite; else the component whose rate at the
+ *  step's start was already non-finite (the cause), or the first non-finite one of y1. */
+function stepNonFinite(st: Stepper, t: number): { t: number; index: number } | undefined {
+  if (firstNonFinite(st.y1) < 0) return undefined;
+  const cause = firstNonFinite(st.k[0]!);
+  return { t, index: cause >= 0 ? cause : firstNonFinite(st.y1) };
+}
+
+/** Index of the first NaN or infinite entry of y, or -1. */
+export function firstNonFinite(y: ArrayLike<number>, n = y.length): number {
+  for (let i = 0; i < n; i++) if (!Number.isFinite(y[i]!)) return i;
+  return -1;
 }
 
 const C = [0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1, 1];
@@ -148,13 +165,17 @@ const crossed = (g0: number, g1: number, dir: number): boolean =>
 export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: number, o: IntegrateOptions,
   guards: GuardSet | undefined, onSegment: (seg: DenseSegment) => void): IntegrateResult {
   const dir = tEnd >= t0 ? 1 : -1;
-  const y = Float64Array.from(y0);
+  const y = y0.slice();
   let t = t0, steps = 0, rejected = 0;
+  let nonFinite: { t: number; index: number } | undefined;
+  const bad0 = firstNonFinite(y);
+  if (bad0 >= 0) nonFinite = { t, index: bad0 };
+  const withNonFinite = <R extends IntegrateResult>(r: R): R => (nonFinite ? { ...r, nonFinite } : r);
   const g0 = new Float64Array(guards?.count ?? 0), g1 = new Float64Array(guards?.count ?? 0);
   if (guards) guards.eval(t, y, g0);
   st.rhs(t, y, st.k[0]!);
   while (dir * (tEnd - t) > 0) {
-    if (steps + rejected > o.maxSteps) return { t, y, steps, rejected, error: `more than ${o.maxSteps} steps` };
+    if (steps + rejected > o.maxSteps) return withNonFinite({ t, y, steps, rejected, error: `more than ${o.maxSteps} steps` });
     let h = Math.min(o.h, o.maxStep);
     const remaining = Math.abs(tEnd - t);
     const last = h >= remaining * (1 - 1e-12);
@@ -164,7 +185,7 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
     if (!(err <= 1)) {
       rejected++;
       o.h = h * Math.max(0.1, 0.9 * Math.pow(Number.isFinite(err) ? err : 1e10, -0.2));
-      if (o.h < 1e-14 * Math.max(1, Math.abs(t))) return { t, y, steps, rejected, error: `step size underflow at t = ${t}` };
+      if (o.h < 1e-14 * Math.max(1, Math.abs(t))) return withNonFinite({ t, y, steps, rejected, error: `step size underflow at t = ${t}` });
       continue;
     }
     steps++;
@@ -184,7 +205,7 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
       // on a genuine step, then locate it like any other crossing.
       const inner = interiorCrossing(seg, guards, g0, g1, best ? Math.abs(best.tau) / h : 1);
       if (inner) {
-        const k0 = Float64Array.from(st.k[0]!);
+        const k0 = st.k[0]!.slice();
         const tau = dir * inner.theta * h;
         st.step(t, y, tau);
         const gv = new Float64Array(guards.count);
@@ -200,10 +221,12 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
         st.rhs(t, y, st.k[0]!);
         st.step(t, y, best.tau);
         onSegment(st.dense(t, y, best.tau));
-        return { t: t + best.tau, y: Float64Array.from(st.y1), hit: best.i, steps, rejected };
+        if (!nonFinite) nonFinite = stepNonFinite(st, t);
+        return withNonFinite({ t: t + best.tau, y: st.y1.slice(), hit: best.i, steps, rejected });
       }
     }
     onSegment(seg);
+    if (!nonFinite) nonFinite = stepNonFinite(st, t);
     for (let i = 0; i < st.n; i++) {
       y[i] = st.y1[i]!;
       const a = Math.abs(y[i]!);
@@ -213,7 +236,7 @@ export function integrate(st: Stepper, t0: number, y0: Float64Array, tEnd: numbe
     t = tNew;
     st.k[0]!.set(st.k[6]!);
   }
-  return { t, y, steps, rejected };
+  return withNonFinite({ t, y, steps, rejected });
 }
 
 const INTERIOR_SAMPLES = 8;
@@ -233,9 +256,9 @@ function interiorCrossing(seg: DenseSegment, guards: GuardSet, g0: Float64Array,
     guards.eval(tt, x, out);
     return out;
   };
-  const samples: Float64Array[] = [Float64Array.from(g0)];
-  for (let j = 1; j < m; j++) samples.push(Float64Array.from(at(j / m, g)));
-  samples.push(Float64Array.from(g1));
+  const samples: Float64Array[] = [g0.slice()];
+  for (let j = 1; j < m; j++) samples.push(at(j / m, g).slice());
+  samples.push(g1.slice());
   let best: { i: number; theta: number } | undefined;
   for (let i = 0; i < n; i++) {
     const d = guards.direction[i]!, a = g0[i]!;
@@ -276,7 +299,7 @@ function interiorCrossing(seg: DenseSegment, guards: GuardSet, g0: Float64Array,
 
 /** Signed step tau in (0, h] at which guard i crosses, on the crossed side of the root. */
 function locate(st: Stepper, guards: GuardSet, i: number, t: number, y: Float64Array, h: number, ga: number, gb: number): number {
-  const k0 = Float64Array.from(st.k[0]!);
+  const k0 = st.k[0]!.slice();
   const gv = new Float64Array(guards.count);
   const phi = (tau: number): number => {
     st.k[0]!.set(k0);

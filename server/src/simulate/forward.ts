@@ -7,7 +7,7 @@
 // intervals[k] spans from events[k-1] (or 0) to events[k] (or the duration), so the dense
 // output inside an interval is smooth and its ends are the post-/pre-event states; the
 // recorded pre/post states are the exact values the jumps were applied to and produced.
-import { type DenseSegment, type GuardSet, type IntegrateOptions, Stepper, denseEval, integrate } from './dopri';
+import { type DenseSegment, type GuardSet, type IntegrateOptions, Stepper, denseEval, firstNonFinite, integrate } from './dopri';
 import {
   type CompiledLoss, type CompiledModel, type InputTrain, type Layout, type Loss, type Network,
   compileLoss, compileModel, initialValues, layoutOf, paramValues, stateScales, validateNetwork,
@@ -26,10 +26,14 @@ export interface SimOptions {
 export interface NetEvent {
   kind: 'spike' | 'input';
   time: number;
-  /** The sender of a spike, or the target of an input spike. */
+  /** The sender of a spike, or the target of (the first) input spike. */
   neuron: number;
-  /** Index of the input train (inputs only). */
+  /** Index of the (first) input train (inputs only). */
   train?: number;
+  /** Inputs only: every input spike arriving at this instant, applied one after another in
+   *  train order, each with its target's states just before it (one event for all of them,
+   *  so a wide input layer does not store the network state once per synapse). */
+  arrivals?: { train: number; neuron: number; pre: Float64Array }[];
   pre: Float64Array;
   post: Float64Array;
 }
@@ -49,6 +53,27 @@ export interface Trajectory {
   lossSpikes: number;
   steps: number;
   rejected: number;
+  /** Where a NaN or infinite value first appeared (the run carries it on): the time, the
+   *  neuron (-1 for the loss integral) and the quantity, and what produced it. */
+  nonFinite?: NonFiniteAt;
+}
+
+export interface NonFiniteAt {
+  time: number;
+  /** Network neuron, or -1 when it is the loss itself. */
+  neuron: number;
+  /** A state name, `lambda_X`, `dL/dp`, 'loss integrand' or 'spike-time loss'. */
+  quantity: string;
+  cause: 'flow' | 'adjoint flow' | 'spike' | 'input spike' | 'received spike' | 'initial value';
+}
+
+/** The neuron and state of component `index` of the network vector (index = total: the loss integral). */
+export function componentOf(layout: Layout, net: Network, index: number): { neuron: number; quantity: string } {
+  for (let i = 0; i < layout.offset.length; i++) {
+    const k = index - layout.offset[i]!;
+    if (k >= 0 && k < layout.size[i]!) return { neuron: i, quantity: net.neurons[i]!.model.states[k]!.name };
+  }
+  return { neuron: -1, quantity: 'loss integrand' };
 }
 
 /** Everything a pass needs about one instance: compiled model, values buffer, loss pieces. */
@@ -125,9 +150,11 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   const event = (e: Omit<NetEvent, 'pre' | 'post'>, apply: (post: Float64Array) => void): void => {
     cur.t1 = t;
     traj.intervals.push(cur);
-    const post = Float64Array.from(y);
+    const post = y.slice();
     apply(post);
     traj.events.push({ ...e, pre: y.slice(0, n), post: post.slice(0, n) });
+    const bad = traj.nonFinite ? -1 : firstNonFinite(post, n);
+    if (bad >= 0) traj.nonFinite = { time: t, ...componentOf(layout, net, bad), cause: e.kind === 'spike' ? 'spike' : 'input spike' };
     for (let i = 0; i < n; i++) opts.typical[i] = Math.max(opts.typical[i]!, Math.abs(post[i]!));
     y = post;
     cur = { t0: t, t1: t, segments: [] };
@@ -142,18 +169,25 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     const tNext = next < arrivals.length ? arrivals[next]!.time : duration;
     const res = tNext > t ? integrate(st, t, y, tNext, opts, guards, (s) => cur.segments.push(s)) : { t, y, steps: 0, rejected: 0 };
     traj.steps += res.steps; traj.rejected += res.rejected;
+    if ('nonFinite' in res && res.nonFinite && !traj.nonFinite) {
+      traj.nonFinite = { time: res.nonFinite.t, ...componentOf(layout, net, res.nonFinite.index), cause: t === 0 && firstNonFinite(y0) >= 0 ? 'initial value' : 'flow' };
+    }
     if ('error' in res && res.error) { errors.push(`integration failed: ${res.error}`); break; }
     t = res.t; y = res.y;
     const hit = 'hit' in res ? res.hit : undefined;
     if (hit !== undefined) {
       const sender = firing[hit]!;
       event({ kind: 'spike', time: t, neuron: sender }, (post) => {
-        const pre = Float64Array.from(y);
+        const pre = y.slice();
         const it = inst[sender]!;
         const v = load(it, pre, t);
         it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
         for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, post, pre);
-        if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) traj.lossSpikes += it.loss.perSpike(v);
+        if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) {
+          const l = it.loss.perSpike(v);
+          if (!Number.isFinite(l) && !traj.nonFinite) traj.nonFinite = { time: t, neuron: sender, quantity: 'spike-time loss', cause: 'spike' };
+          traj.lossSpikes += l;
+        }
         fired.add(sender);
       });
       traj.spikes.push({ neuron: sender, time: t });
@@ -161,9 +195,15 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       continue;
     }
     if (next >= arrivals.length) break;
-    const a = arrivals[next++]!;
-    event({ kind: 'input', time: t, neuron: inputs[a.train]!.target, train: a.train }, (post) => {
-      receive(inputs[a.train]!.target, inputs[a.train]!.weight, post, Float64Array.from(y));
+    const first = arrivals[next]!;
+    const group: NonNullable<NetEvent['arrivals']> = [];
+    event({ kind: 'input', time: t, neuron: inputs[first.train]!.target, train: first.train, arrivals: group }, (post) => {
+      // Every arrival at this instant, in train order, each on the state the previous ones left.
+      while (next < arrivals.length && arrivals[next]!.time === first.time) {
+        const a = arrivals[next++]!, target = inputs[a.train]!.target, off = layout.offset[target]!;
+        group.push({ train: a.train, neuron: target, pre: post.slice(off, off + layout.size[target]!) });
+        receive(target, inputs[a.train]!.weight, post, post);
+      }
     });
   }
   cur.t1 = t;

@@ -31,4 +31,9 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'too-complex': 'An expression is nested too deeply or is too long for the checks to walk; it is not analysed.',
   'time-budget': 'The slow checks of a file ran out of their time budget; the neurons left are not derived until the next edit.',
   'internal-error': 'Saltus itself failed on this text (a bug, not a mistake in the model); the language server log has the details.',
+  'non-positive-constant': 'A parameter that divides an equation is 0, or a time constant or capacitance is negative.',
+  'zero-guard-slope': 'The guard slope is identically zero on the threshold, so the flow never crosses it and no spike time has a derivative.',
+  'fires-only-by-jumps': 'The flow never crosses the threshold in the declared direction; only a jump could carry the neuron across.',
+  'never-fires': 'Neither the flow nor any jump can carry the neuron across its threshold in the declared direction.',
+  'reset-on-threshold': 'A spike jump leaves the neuron on its threshold or on the side it fires from.',
 };

@@ -1,4 +1,4 @@
-// Scenario validation (server/src/gradcheck/scenario.ts): every malformed, unknown or
+// Scenario validation (server/src/crosscheck/scenario.ts): every malformed, unknown or
 // inconsistent field gets its own clear message naming its JSON path (table-driven), and
 // no input whatever makes the check throw (fast-check property; Claessen & Hughes 2000's
 // QuickCheck idea as packaged by fast-check).
@@ -7,7 +7,7 @@ import { join } from 'node:path';
 import fc from 'fast-check';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { parseScenario, runGradcheckSync } from '../server/src/gradcheck';
+import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 
 const lifText = readFileSync(join(__dirname, '..', 'samples', 'lif_current.saltus'), 'utf8');
 // The sample plus a firing neuron without an incoming block.
@@ -101,7 +101,7 @@ describe('malformed scenario files', () => {
     expect(hit, `errors: ${JSON.stringify(r.errors)}`).toBeDefined();
     expect(hit!.message).toMatch(message);
     // The same input through the whole check: reported, not thrown.
-    const g = runGradcheckSync(MODELS, input, { traces: false });
+    const g = runCrossCheckSync(MODELS, input, { traces: false });
     expect(g.status).toBe('invalid');
     expect(g.errors.some((e) => e.path === path)).toBe(true);
   });
@@ -113,6 +113,40 @@ describe('malformed scenario files', () => {
     if (!r.ok) expect(r.errors.find((e) => e.path === 'populations.hid.model')!.message).toMatch(/Careless has errors in samples\/mistakes\.saltus/);
   });
 
+  test('a number too large for a double is reported as written (before: "got null")', () => {
+    const text = JSON.stringify(good()).replace('"weights":[[1.2', '"weights":[[1e999');
+    const r = parseScenario(text, MODELS);
+    expect(r.ok).toBe(false);
+    if (r.ok) return;
+    expect(r.errors).toEqual([{ path: 'projections[0].weights[0][0]', message: 'must be a finite number; got 1e999 (beyond the largest double, about 1.8e308)' }]);
+    const p = parseScenario(JSON.stringify(good()).replace('"size":2}', '"size":2,"params":{"tau_m":-1e999}}'), MODELS);
+    expect(p.ok ? [] : p.errors.map((e) => e.message)).toEqual(['must be a finite number (SI units); got -1e999 (beyond the largest double, about 1.8e308)']);
+  });
+
+  test('a rejected population is reported once, not again for each projection and the loss that use it', () => {
+    const s = edit((x) => { anyOf(x).populations.out.model = 'Readuot'; anyOf(x).populations.in.size = 0; });
+    const r = parseScenario(s, MODELS);
+    expect(r.ok ? [] : r.errors.map((e) => e.path)).toEqual(['populations.in.size', 'populations.out.model']);
+  });
+
+  test('time constants: 0 is refused with its name, a negative one is run with a remark', () => {
+    const zero = parseScenario(edit((x) => { anyOf(x).populations.hid.params = { tau_s: 0 }; }), MODELS);
+    expect(zero.ok ? [] : zero.errors).toEqual([{ path: 'populations.hid.params.tau_s', message: expect.stringMatching(/^the time constant 'tau_s' is 0 \(it divides dI\/dt\): the equations are undefined there/) }]);
+    const negative = parseScenario(edit((x) => { anyOf(x).populations.hid.params = { tau_s: -0.005 }; }), MODELS);
+    expect(negative.ok).toBe(true);
+    if (negative.ok) expect(negative.scenario.remarks).toEqual([expect.stringMatching(/^populations\.hid\.params\.tau_s: the time constant 'tau_s' is negative \(-0\.005 \(SI\)\).*becomes a growth/)]);
+  });
+
+  test('sample and scales are validated', () => {
+    const bad = parseScenario(edit((x) => { x.sample = { rows: 0, seed: -2, extra: 1 }; anyOf(x).populations.hid.scales = { tau_m: -1, nope: 1 }; }), MODELS);
+    expect(bad.ok ? [] : bad.errors.map((e) => e.path).sort()).toEqual(['populations.hid.scales.nope', 'populations.hid.scales.tau_m', 'sample.extra', 'sample.rows', 'sample.seed']);
+    const ok = parseScenario(edit((x) => { x.sample = { rows: 3 }; anyOf(x).populations.hid.scales = { tau_m: 0.02 }; }), MODELS);
+    expect(ok.ok && ok.scenario.sample).toEqual({ rows: 3 });
+    const r = runCrossCheckSync(MODELS, edit((x) => { x.sample = { rows: 3, seed: 7 }; }), { traces: false });
+    expect(r.sample).toEqual({ rows: 3, of: 10, seed: 7 });
+    expect(r.gradients.length + r.params.length).toBe(3);
+  });
+
   test('several problems are reported together', () => {
     const s = edit((x) => { x.duration_s = 0; anyOf(x).populations.hid.size = -1; x.loss.kind = 'nope'; });
     const r = parseScenario(s, MODELS);
@@ -121,7 +155,7 @@ describe('malformed scenario files', () => {
 
   test('no JSON value makes the check throw (fast-check)', () => {
     fc.assert(fc.property(fc.jsonValue(), (v) => {
-      const r = runGradcheckSync(MODELS, v, { traces: false });
+      const r = runCrossCheckSync(MODELS, v, { traces: false });
       return r.status === 'invalid' && r.errors.length > 0;
     }), { numRuns: 300 });
     // Mutations of the good scenario: any field replaced by an arbitrary value.
@@ -131,7 +165,7 @@ describe('malformed scenario files', () => {
       fc.pre(!(k === 'duration_s' && typeof v === 'number'));
       const s = good() as Record<string, unknown>;
       s[k] = v;
-      const r = runGradcheckSync(MODELS, s, { traces: false });
+      const r = runCrossCheckSync(MODELS, s, { traces: false });
       return r.status === 'invalid' || r.status === 'ok';
     }), { numRuns: 200 });
   });

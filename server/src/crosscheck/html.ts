@@ -1,4 +1,4 @@
-// The gradient-check report as one standalone HTML page (also the body of the editor's
+// The cross-check report as one standalone HTML page (also the body of the editor's
 // webview): verdict, warnings, the error table, the spike raster, and per-neuron state and
 // adjoint traces drawn as inline SVG (svg.ts). No script, no external resource.
 //
@@ -6,10 +6,11 @@
 // description, labels, warnings) is HTML-escaped; the page's CSP forbids scripts; colours
 // are our own, themed by VS Code's CSS variables when shown in a webview.
 import { type RasterRow, errorBar, esc, lineChart, raster, sci } from './svg';
-import type { GradcheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
+import type { CrossCheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
 import { rowLabel } from './types';
+import { pctText } from './report';
 
-export interface GradcheckPageOptions {
+export interface CrossCheckPageOptions {
   /** Webview CSP source (`webview.cspSource`); omit for a standalone file. */
   cspSource?: string;
   /** Nonce of the inline stylesheet (give a fresh random one in a webview). */
@@ -19,12 +20,12 @@ export interface GradcheckPageOptions {
 
 const ms = (s: number): number => s * 1e3;
 
-export function gradcheckHtml(r: GradcheckResult, o: GradcheckPageOptions = {}): string {
-  const nonce = o.nonce ?? 'saltus-gradcheck';
+export function crossCheckHtml(r: CrossCheckResult, o: CrossCheckPageOptions = {}): string {
+  const nonce = o.nonce ?? 'saltus-crosscheck';
   const csp = o.cspSource
     ? `default-src 'none'; style-src 'nonce-${esc(nonce)}'; img-src ${esc(o.cspSource)} data:;`
     : `default-src 'none'; style-src 'nonce-${esc(nonce)}'; img-src data:;`;
-  const title = o.title ?? 'Gradient check';
+  const title = o.title ?? 'Gradient cross-check';
   return `<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <meta http-equiv="Content-Security-Policy" content="${csp}">
@@ -38,51 +39,57 @@ ${r.description ? `<p class="desc">${esc(r.description)}</p>` : ''}</header>
 </body></html>`;
 }
 
-function problems(r: GradcheckResult): string {
+function problems(r: CrossCheckResult): string {
   const what = r.status === 'cancelled' ? 'The check was cancelled.' : r.status === 'failed' ? 'A simulation failed.' : 'The scenario cannot be checked:';
   return `<section class="verdict bad"><strong>${esc(what)}</strong><ul class="errors">${r.errors.map((e) => `<li><code>${esc(e.path)}</code> ${esc(e.message)}</li>`).join('')}</ul></section>`;
 }
 
-function body(r: GradcheckResult): string {
+function body(r: CrossCheckResult): string {
   return [verdict(r), warnings(r), table(r), spikes(r), traces(r, 'states'), traces(r, 'costates'), footer(r)].join('\n');
 }
 
-function verdict(r: GradcheckResult): string {
+function verdict(r: CrossCheckResult): string {
   const ok = r.passed;
   const counts = Object.entries(r.spikeCounts).map(([p, c]) => `${esc(p)}: ${!(p in r.spikes) ? 'does not fire' : `${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`}`).join('; ');
   const worst = r.worst ? ` at <code>${esc(r.worst.label)}</code>` : '';
+  const compared = r.gradients.length + r.params.length > 0;
   const head = ok ? 'The derived adjoint gradient agrees with finite differences'
-    : r.maxRelativeError === null ? 'No gradient could be compared' : 'The adjoint gradient and the finite differences disagree';
+    : !compared ? 'No gradient could be compared' : 'The adjoint gradient and the finite differences disagree';
+  const near = [...r.closestToGrazing].sort((a, b) => a.ratio - b.ratio)[0];
   return `<section class="verdict ${ok ? 'good' : 'bad'}">
 <div class="big">${esc(head)}</div>
 <dl class="facts">
-<dt>largest relative error</dt><dd>${esc(sci(r.maxRelativeError, 3))}${worst} (tolerance ${esc(sci(r.tolerance, 2))})</dd>
+<dt>largest relative error</dt><dd>${esc(sci(r.maxRelativeError, 3))}${worst} (tolerance ${esc(sci(r.tolerance, 2))})${r.noiseLimited ? `; ${r.noiseLimited} row${r.noiseLimited === 1 ? '' : 's'} agree only within the finite differences' own noise` : ''}</dd>
+${r.sample ? `<dt>sampled check</dt><dd>${r.sample.rows} of ${r.sample.of} rows (weights and parameters), seed ${r.sample.seed}; repeat it with the same seed</dd>` : ''}
+${near ? `<dt>closest to grazing</dt><dd><code>${esc(`${near.population}[${near.index}]`)}</code> at ${esc(sci(ms(near.time), 6))} ms: |gdot| ${esc(pctText(near.ratio))} of its typical guard slope</dd>` : ''}
 <dt>loss</dt><dd>${esc(r.lossText)} = ${esc(sci(r.loss, 6))} [${esc(r.lossUnit)}]</dd>
 <dt>spikes</dt><dd>${counts || 'none'}</dd>
 <dt>simulated</dt><dd>${esc(sci(ms(r.duration), 4))} ms; ${r.timing.simulations} simulations in ${esc(r.timing.total_ms.toFixed(0))} ms (integrator rtol ${esc(sci(r.settings.rtol, 2))}, step ${esc(sci(r.settings.relStep, 2))} x value)</dd>
 </dl></section>`;
 }
 
-function warnings(r: GradcheckResult): string {
+function warnings(r: CrossCheckResult): string {
   if (r.warnings.length === 0) return '';
   return `<section><h2>Warnings</h2><ul class="warnings">${r.warnings.map((w) => `<li><span class="tag">${esc(w.kind)}</span> ${esc(w.message)}</li>`).join('')}</ul></section>`;
 }
 
-function row(x: GradientRow | ParamRow, r: GradcheckResult, worst: boolean): string {
-  const status = x.status === 'ok' ? 'agrees' : x.status === 'above-tolerance' ? 'disagrees' : x.status === 'spike-count-changed' ? 'no finite difference' : 'simulation failed';
-  return `<tr class="${x.status}${worst ? ' worst' : ''}"><th>${esc(rowLabel(x))}</th><td class="num">${esc(x.unit ? `${sci(x.value / x.unit.scale)} ${x.unit.text}` : sci(x.value))}</td><td class="num">${esc(sci(x.adjoint, 7))}</td><td class="num">${esc(sci(x.finiteDifference, 7))}</td><td class="num">${esc(sci(x.relativeError, 2))}</td><td>${errorBar(x.relativeError, r.tolerance)}</td><td class="status">${esc(status)}${x.note ? `<div class="note">${esc(x.note)}</div>` : ''}</td></tr>`;
+function row(x: GradientRow | ParamRow, r: CrossCheckResult, worst: boolean): string {
+  const status = x.status === 'ok' ? (x.withinNoise ? 'agrees within FD noise' : 'agrees') : x.status === 'above-tolerance' ? 'disagrees'
+    : x.status === 'spike-count-changed' ? 'no finite difference' : x.status === 'non-finite' ? 'not finite' : 'simulation failed';
+  const notes = [x.note, x.stepBasis ? `value 0: step relative to ${x.stepBasis}` : undefined].filter((n): n is string => Boolean(n));
+  return `<tr class="${x.status}${worst ? ' worst' : ''}"><th>${esc(rowLabel(x))}</th><td class="num">${esc(x.unit ? `${sci(x.value / x.unit.scale)} ${x.unit.text}` : sci(x.value))}</td><td class="num">${esc(sci(x.adjoint, 7))}</td><td class="num">${esc(sci(x.finiteDifference, 7))}</td><td class="num">${esc(sci(x.relativeError, 2))}</td><td>${errorBar(x.relativeError, r.tolerance)}</td><td class="status">${esc(status)}${notes.map((n) => `<div class="note">${esc(n)}</div>`).join('')}</td></tr>`;
 }
 
-function table(r: GradcheckResult): string {
+function table(r: CrossCheckResult): string {
   const head = `<tr><th>weight or parameter</th><th class="num">value</th><th class="num">dL/d(value), SI: adjoint</th><th class="num">finite difference</th><th class="num">relative error</th><th>error, log scale 10⁻¹²…1 (bar: tolerance)</th><th>status</th></tr>`;
   const weights = r.gradients.map((x, k) => row(x, r, r.worst?.kind === 'weight' && r.worst.index === k)).join('');
   const params = r.params.map((x, k) => row(x, r, r.worst?.kind === 'param' && r.worst.index === k)).join('');
   return `<section><h2>Gradients</h2>
-<p class="note">Weights are <code>w&lt;projection&gt; from[j] -&gt; to[i]</code> (weights[to][from] of that projection); parameters are shared by their population. Relative error = |adjoint − FD| / max(|adjoint|, |FD|, 10⁻⁶ × the largest |FD|).</p>
+<p class="note">Weights are <code>w&lt;projection&gt; from[j] -&gt; to[i]</code> (weights[to][from] of that projection); parameters are shared by their population. Relative error = |adjoint − FD| / max(|adjoint|, |FD|), each row on its own; where it exceeds the tolerance the difference is repeated at a quarter of the step, and a row whose |adjoint − FD| lies within that finite difference's own noise agrees (e.g. an exact zero against noise).</p>
 <table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="7">trainable parameters</th></tr>${params}` : ''}</tbody></table></section>`;
 }
 
-function spikes(r: GradcheckResult): string {
+function spikes(r: CrossCheckResult): string {
   const rows: RasterRow[] = [];
   const spikeTargets = r.lossKind === 'spike-time' ? r.lossTarget : null;
   for (const p of r.populations) {
@@ -100,7 +107,7 @@ function spikes(r: GradcheckResult): string {
 ${raster(rows, [0, ms(r.duration)], 'time [ms]')}</section>`;
 }
 
-function traces(r: GradcheckResult, which: 'states' | 'costates'): string {
+function traces(r: CrossCheckResult, which: 'states' | 'costates'): string {
   const tr = r.traces;
   if (!tr || tr.neurons.length === 0) return '';
   const t = tr.time.map(ms);
@@ -128,7 +135,7 @@ ${tr.neurons.map((n) => `<div class="neuron"><div class="charts">${charts(n)}</d
 ${omitted ? `<p class="note">${omitted}.</p>` : ''}</section>`;
 }
 
-function footer(r: GradcheckResult): string {
+function footer(r: CrossCheckResult): string {
   const models = r.models.map((m) => `<li><code>${esc(m.name)}</code>: recorded at each spike: ${esc((m.spikeRecord ?? []).join(', ') || (m.spikeRecord ? 'nothing' : '(does not fire)'))}; at each received spike: ${esc((m.incomingRecord ?? []).join(', ') || (m.incomingRecord ? 'nothing' : '(no incoming block)'))}; backward pass ${m.eventBased ? 'purely event-based' : 'needs the forward trajectory between events'}</li>`).join('');
   return `<section><h2>What the derivation asked for</h2><ul class="note">${models}</ul></section>`;
 }
@@ -163,7 +170,7 @@ table.grads tbody tr + tr > * { border-top: 1px dotted var(--rule); }
 table.grads .num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 table.grads tr.group th { color: var(--muted); padding-top: 8px; }
 table.grads tr.worst th::after { content: "  ← largest"; color: var(--muted); font-family: var(--vscode-font-family, system-ui, sans-serif); }
-table.grads tr.above-tolerance .status, table.grads tr.simulation-failed .status { color: var(--bad); font-weight: 600; }
+table.grads tr.above-tolerance .status, table.grads tr.simulation-failed .status, table.grads tr.non-finite .status { color: var(--bad); font-weight: 600; }
 table.grads tr.spike-count-changed .status { color: var(--spike); }
 table.grads .status .note { margin: 0; }
 .neuron { margin: 6px 0; } .charts { display: flex; flex-wrap: wrap; gap: 4px 10px; }

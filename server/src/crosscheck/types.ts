@@ -1,11 +1,11 @@
-// The result of a gradient check: plain JSON data (no typed arrays, maps or classes), so a
+// The result of a gradient cross-check: plain JSON data (no typed arrays, maps or classes), so a
 // language server can send it to the editor as it is and the HTML page, the text report and
-// the JSON contract (docs/gradcheck.md) are all drawn from the same object.
+// the JSON contract (docs/crosscheck.md) are all drawn from the same object.
 import type { NeuronDerivation } from '../adjoint/derive';
 import type { ResolvedNeuron } from '../model/types';
 import type { ScenarioError } from './scenario';
 
-export type RowStatus = 'ok' | 'above-tolerance' | 'spike-count-changed' | 'simulation-failed';
+export type RowStatus = 'ok' | 'above-tolerance' | 'spike-count-changed' | 'simulation-failed' | 'non-finite';
 
 interface RowCommon {
   /** The value that was perturbed (SI). */
@@ -14,11 +14,18 @@ interface RowCommon {
   unit?: { text: string; scale: number };
   /** The central-difference half-step used (SI), null when no difference was usable. */
   step: number | null;
+  /** For a value of 0: what its step was taken relative to (it has no size of its own). */
+  stepBasis?: string;
   adjoint: number;
   /** Null when the perturbation changed a spike count (the difference is then meaningless). */
   finiteDifference: number | null;
   absoluteError: number | null;
   relativeError: number | null;
+  /** The finite difference's own uncertainty (SI, this row's unit), estimated from a second
+   *  step where the first comparison missed the tolerance. */
+  fdNoise?: number;
+  /** The row agrees only within that noise (e.g. an exact 0 against a difference at noise level). */
+  withinNoise?: boolean;
   status: RowStatus;
   note?: string;
 }
@@ -37,7 +44,7 @@ export interface ParamRow extends RowCommon { population: string; name: string }
 
 export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'remark';
 
-export interface GradcheckWarning {
+export interface CrossCheckWarning {
   kind: WarningKind;
   message: string;
   population?: string;
@@ -83,7 +90,18 @@ export interface ModelSummary {
   eventBased: boolean;
 }
 
-export interface GradcheckTiming {
+/** How close the spikes of one neuron came to grazing: its spike with the smallest guard slope. */
+export interface SpikeSlope {
+  population: string;
+  index: number;
+  spikes: number;
+  /** Time (s) of the spike with the smallest |gdot|, that |gdot| (SI), and its ratio to the neuron's RMS guard slope over the run. */
+  time: number;
+  slope: number;
+  ratio: number;
+}
+
+export interface CrossCheckTiming {
   /** Wall time of the whole check (validation to report), ms. */
   total_ms: number;
   /** CPU time of the process over the same span (NaN outside Node), ms. */
@@ -94,7 +112,7 @@ export interface GradcheckTiming {
   simulations: number;
 }
 
-export interface GradcheckResult {
+export interface CrossCheckResult {
   /** ok: the check ran (see `passed`); invalid: scenario or model errors; failed: a simulation failed; cancelled. */
   status: 'ok' | 'invalid' | 'failed' | 'cancelled';
   errors: ScenarioError[];
@@ -117,29 +135,45 @@ export interface GradcheckResult {
   spikeCounts: Record<string, number[]>;
   gradients: GradientRow[];
   params: ParamRow[];
-  /** Largest relative error over rows with a usable finite difference (null when none). */
+  /** Largest relative error over rows judged by it (not those agreeing only within noise; null when none). */
   maxRelativeError: number | null;
+  /** Rows that agree only within their finite difference's noise. */
+  noiseLimited: number;
+  /** A sampled check: `rows` of the `of` rows, chosen with `seed`. */
+  sample?: { rows: number; of: number; seed: number };
+  /** Per firing neuron that fired: its spike closest to grazing. */
+  closestToGrazing: SpikeSlope[];
+  /** Per located spike (aligned with `spikes`): its |gdot| over the neuron's RMS guard slope (null where it cannot be evaluated). */
+  spikeSlopeRatios: Record<string, (number | null)[]>;
   worst: { kind: 'weight' | 'param'; index: number; label: string } | null;
   tolerance: number;
   /** Every row usable and within tolerance, and at least one row compared. */
   passed: boolean;
-  warnings: GradcheckWarning[];
+  warnings: CrossCheckWarning[];
   models: ModelSummary[];
   settings: { rtol: number; relStep: number };
-  timing: GradcheckTiming;
+  timing: CrossCheckTiming;
   traces?: TraceSet;
 }
 
-export interface GradcheckProgress {
+export interface CrossCheckProgress {
   done: number;
+  /** Simulations planned (it grows when a row needs a second step). */
   total: number;
-  phase: 'forward' | 'backward' | 'finite-differences' | 'report';
+  phase: 'forward' | 'backward' | 'finite-differences' | 'noise' | 'report';
+  /** Wall time of the first (unperturbed) simulation, ms, once known. */
+  firstSimulation_ms?: number;
+  /** The cost estimate, once known: the first (whole-network) simulation's time x the planned
+   *  simulations, each weighted by the share of the network it simulates again (cone.ts), ms. */
+  estimate_ms?: number;
+  /** Present in a sampled check. */
+  sample?: { rows: number; of: number };
 }
 
-export interface GradcheckOptions {
+export interface CrossCheckOptions {
   /** Checked between simulations; an AbortSignal or anything with `aborted`. */
   signal?: { readonly aborted: boolean };
-  onProgress?: (p: GradcheckProgress) => void;
+  onProgress?: (p: CrossCheckProgress) => void;
   /** Names for the report (paths as the user wrote them). */
   sourceLabel?: string;
   scenarioLabel?: string;
@@ -151,6 +185,9 @@ export interface GradcheckOptions {
   tolerance?: number;
   /** Sample the state and costate traces for the HTML page (default true). */
   traces?: boolean;
+  /** Check only this many rows, chosen with `seed` (overrides the scenario's `sample`). */
+  sample?: number;
+  seed?: number;
   /** The derivation to check (default adjoint/cache.ts `derivationFor`); tests pass a broken one as a negative control. */
   derivation?: (model: ResolvedNeuron) => NeuronDerivation;
 }

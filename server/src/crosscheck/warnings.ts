@@ -1,12 +1,15 @@
 // Warnings about where the check itself is fragile, computed from the simulated run:
 // - grazing: a spike whose guard slope gdot (the derivation's own expression, evaluated at
 //   the recorded pre-spike state) is small next to the neuron's typical guard slope, so the
-//   spike time's derivative 1/gdot is large and a perturbation may move it a lot;
+//   spike time's derivative 1/gdot is large and a perturbation may move it a lot. This is
+//   where the file's static `grazing-crossing` information becomes a warning: only where
+//   the run actually came near the grazing set. Every firing neuron's closest spike is
+//   reported too (`closest`), warning or not;
 // - near-miss: the guard came close to zero in its direction without firing, so a small
 //   perturbation could add a spike;
 // - silent: a firing population, or a neuron under a spike-time loss, that never fired.
 // Thresholds are our own rules of thumb (GRAZING_RATIO, NEAR_MISS_FRACTION), documented in
-// docs/gradcheck.md. Invariant: never throws; a value that cannot be evaluated gives no warning.
+// docs/crosscheck.md. Invariant: never throws; a value that cannot be evaluated gives no warning.
 import type { NeuronDerivation } from '../adjoint/derive';
 import { compile } from '../symbolic/evaluate';
 import type { Trajectory } from '../simulate';
@@ -14,7 +17,7 @@ import { modelNames, paramValues } from '../simulate/network';
 import type { BuiltScenario } from './build';
 import type { Scenario } from './scenario';
 import type { Grid } from './traces';
-import type { GradcheckWarning } from './types';
+import type { CrossCheckWarning, SpikeSlope } from './types';
 
 /** A spike whose |gdot| is below this fraction of the neuron's RMS guard slope is flagged. */
 export const GRAZING_RATIO = 0.02;
@@ -25,8 +28,11 @@ const ms = (t: number): string => `${(t * 1e3).toFixed(3)} ms`;
 const pct = (x: number): string => `${(100 * x).toPrecision(2)} %`;
 
 export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid, states: readonly Float64Array[],
-  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): GradcheckWarning[] {
-  const out: GradcheckWarning[] = [];
+  derivation: (m: BuiltScenario['net']['neurons'][number]['model']) => NeuronDerivation): { warnings: CrossCheckWarning[]; closest: SpikeSlope[]; ratio: Map<string, number> } {
+  const out: CrossCheckWarning[] = [];
+  const closest: SpikeSlope[] = [];
+  /** |gdot| / RMS slope of every located spike, keyed `neuron:time`. */
+  const ratio = new Map<string, number>();
   b.net.neurons.forEach((nn, i) => {
     const m = nn.model;
     if (!m.fire) return;
@@ -55,16 +61,22 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
       return gv;
     });
     const rms = count ? Math.sqrt(sq / count) : NaN;
+    let near: SpikeSlope | undefined;
+    let spikes = 0;
     for (const e of traj.events) {
       if (e.kind !== 'spike' || e.neuron !== i) continue;
+      spikes++;
       const slope = gdotAtSpike(load(e.pre, e.time));
       if (!Number.isFinite(slope) || !(rms > 0)) continue;
-      const ratio = Math.abs(slope) / rms;
-      if (ratio < GRAZING_RATIO) {
+      const r = Math.abs(slope) / rms;
+      ratio.set(`${i}:${e.time}`, r);
+      if (!near || r < near.ratio) near = { population, index, spikes: 0, time: e.time, slope, ratio: r };
+      if (r < GRAZING_RATIO) {
         out.push({ kind: 'grazing', population, index, time: e.time,
-          message: `${who} spikes at ${ms(e.time)} with a nearly grazing crossing: gdot = ${slope.toPrecision(3)} is ${pct(ratio)} of its typical guard slope; the spike time's derivative (1/gdot) is large and the finite differences around it are fragile` });
+          message: `${who} spikes at ${ms(e.time)} with a nearly grazing crossing: gdot = ${slope.toPrecision(3)} is ${pct(r)} of its typical guard slope; the spike time's derivative (1/gdot) is large and the finite differences around it are fragile` });
       }
     }
+    if (near) closest.push({ ...near, spikes });
     const dir = m.fire.direction === 'down' ? -1 : m.fire.direction === 'up' ? 1 : 0;
     const range = gMax - gMin;
     if (!(range > 0)) return;
@@ -81,11 +93,11 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
       }
     }
   });
-  return out;
+  return { warnings: out, closest, ratio };
 }
 
-export function silentWarnings(s: Scenario, b: BuiltScenario, traj: Trajectory): GradcheckWarning[] {
-  const out: GradcheckWarning[] = [];
+export function silentWarnings(s: Scenario, b: BuiltScenario, traj: Trajectory): CrossCheckWarning[] {
+  const out: CrossCheckWarning[] = [];
   const count = new Map<number, number>();
   for (const sp of traj.spikes) count.set(sp.neuron, (count.get(sp.neuron) ?? 0) + 1);
   for (const p of s.populations) {

@@ -1,4 +1,4 @@
-// The gradient check's forward integrator (simulate/, DOPRI5 with event location), driven
+// The gradient cross-check's forward integrator (simulate/, DOPRI5 with event location), driven
 // through scenarios, against closed forms and against an independent integrator written
 // here: classical RK4 (Runge-Kutta 1895 / Kutta 1901; Hairer, Norsett & Wanner, Solving
 // ODEs I, Table II.1.1) with a tiny fixed step, events located by bisection on RK4 sub-steps,
@@ -7,7 +7,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { runGradcheckSync } from '../server/src/gradcheck';
+import { runCrossCheckSync } from '../server/src/crosscheck';
 import { lifText } from './helpers/models';
 
 const LIF = `neuron C "LIF under constant drive RI (scaled, threshold 1)" {
@@ -31,7 +31,7 @@ const quiet = (model: string, extra: object, duration: number) => ({
 
 describe('forward integration against closed forms', () => {
   test('LIF period under constant input T = tau ln(RI / (RI - theta)) (Gerstner et al. 2014, Neuronal Dynamics ch. 1, from memory; value [V] docs/references.md)', () => {
-    const r = runGradcheckSync(analyse(LIF), quiet('C', {}, 0.1), { traces: false, rtol: 1e-12 });
+    const r = runCrossCheckSync(analyse(LIF), quiet('C', {}, 0.1), { traces: false, rtol: 1e-12 });
     expect(r.errors).toEqual([]);
     const T = 10e-3 * Math.log(1.5 / 0.5);
     expect(T).toBeCloseTo(10.9861228867e-3, 12);
@@ -41,7 +41,7 @@ describe('forward integration against closed forms', () => {
   });
 
   test('first spike of the W&P LIF from V = 0, I = 5: t* = -tau_m ln((1 + sqrt(1 - 4 theta / I0)) / 2) = 3.23507131157447 ms (docs/references.md [V])', () => {
-    const r = runGradcheckSync(analyse(LIF), quiet('L', { initial: { I: 5 } }, 0.005), { traces: false });
+    const r = runCrossCheckSync(analyse(LIF), quiet('L', { initial: { I: 5 } }, 0.005), { traces: false });
     const closed = -10e-3 * Math.log((1 + Math.sqrt(1 - 4 / 5)) / 2);
     expect(closed).toBeCloseTo(3.23507131157447e-3, 15);
     expect(r.spikes.n).toHaveLength(1);
@@ -52,12 +52,12 @@ describe('forward integration against closed forms', () => {
 describe('near-grazing spikes are not stepped over', () => {
   test('V above threshold for about 20 us inside one integrator step: the spike is found at its closed-form time', () => {
     // One input of weight w at t0 into the W&P LIF with tau_m = 2 tau_s: V(s) = w (a - a^2),
-    // a = e^{-s/tau_m}, peak w/4 (our closed form, see gradcheck-eventprop.test.ts). With
+    // a = e^{-s/tau_m}, peak w/4 (our closed form, see crosscheck-eventprop.test.ts). With
     // w = 4 (1 + 1e-6), V exceeds theta = 1 only while a is within 0.5 +- 5e-4.
     const w = 4 * (1 + 1e-6), t0 = 0.002;
     const s = { duration_s: 0.03, populations: { in: { size: 1, spikes: [[t0, 0]] }, n: { model: 'L', size: 1 } },
       projections: [{ from: 'in', to: 'n', weights: [[w]] }], loss: { kind: 'state-integral', population: 'n', state: 'V', target: 0 } };
-    const r = runGradcheckSync(analyse(LIF), s, { traces: false });
+    const r = runCrossCheckSync(analyse(LIF), s, { traces: false });
     const a = (1 + Math.sqrt(1 - 4 / w)) / 2;
     const closed = t0 - 10e-3 * Math.log(a);
     const above = 10e-3 * (Math.log(a) - Math.log(1 - a));
@@ -131,7 +131,7 @@ describe('forward integration against an independent RK4', () => {
   test("Izhikevich two-layer scenario: spike times (to 1e-10 s) and final state agree with RK4 (h = 0.5 us)", () => {
     const text = readFileSync(join(__dirname, '..', 'samples', 'izhikevich.saltus'), 'utf8');
     const scenario = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'izhikevich.json'), 'utf8'));
-    const r = runGradcheckSync(analyse(text), scenario, { rtol: 1e-12 });
+    const r = runCrossCheckSync(analyse(text), scenario, { rtol: 1e-12 });
     expect(r.errors).toEqual([]);
     const ref = izhRk4({ w_in: scenario.projections[0].weights, w_out: scenario.projections[1].weights,
       input: scenario.populations.sensor.spikes, T: scenario.duration_s }, 5e-7);

@@ -99,22 +99,3 @@ export function paramRefs(s: Scenario, b: BuiltScenario, gradientParams: (p: Mod
   }
   return out;
 }
-
-/** The scenario's network and inputs with one weight set to `value`. */
-export function withWeight(b: BuiltScenario, w: WeightRef, value: number): { net: Network; inputs: InputTrain[] } {
-  if (w.slot.kind === 'input') {
-    const k = w.slot.index;
-    return { net: b.net, inputs: b.inputs.map((x, i) => (i === k ? { ...x, weight: value } : x)) };
-  }
-  const k = w.slot.index;
-  return { net: { ...b.net, synapses: b.net.synapses.map((x, i) => (i === k ? { ...x, weight: value } : x)) }, inputs: b.inputs };
-}
-
-/** The scenario's network with a population's parameter set to `value` in all its neurons. */
-export function withParam(b: BuiltScenario, p: ParamRef, value: number): { net: Network; inputs: InputTrain[] } {
-  const set = new Set(p.neurons);
-  return {
-    net: { ...b.net, neurons: b.net.neurons.map((n, i) => (set.has(i) ? { ...n, params: { ...n.params, [p.name]: value } } : n)) },
-    inputs: b.inputs,
-  };
-}

@@ -1,4 +1,4 @@
-// The gradient-check scenario file (docs/gradcheck.md): its types and its validation
+// The cross-check scenario file (docs/crosscheck.md): its types and its validation
 // against the models of an analysed .saltus file. Every problem becomes a ScenarioError
 // naming the JSON path of the offending field (`projections[1].weights[0]`), so the user
 // can find it; nothing here throws, whatever the input.
@@ -12,6 +12,7 @@
 // existing population (and state, or a firing model for spike times).
 import type { Analysis } from '../pipeline';
 import type { ResolvedNeuron } from '../model/types';
+import { constantProblem, constantUses } from '../model/constants';
 
 export interface ScenarioError { path: string; message: string }
 
@@ -19,6 +20,8 @@ export interface InputPopulation { kind: 'input'; name: string; size: number; sp
 export interface ModelPopulation {
   kind: 'model'; name: string; size: number; model: ResolvedNeuron;
   params: Record<string, number>; initial: Record<string, number>;
+  /** Typical sizes (SI) of parameters, for the finite-difference step of one whose value is 0. */
+  scales: Record<string, number>;
 }
 export type Population = InputPopulation | ModelPopulation;
 
@@ -35,6 +38,8 @@ export interface Scenario {
   populations: Population[];
   projections: Projection[];
   loss: ScenarioLoss;
+  /** Check a seeded sample of this many rows (weights and parameters) instead of all. */
+  sample?: { rows: number; seed?: number };
   /** Non-fatal remarks found while validating (e.g. a projection the file does not `connect`). */
   remarks: string[];
 }
@@ -48,25 +53,47 @@ export const MAX_POPULATION_SIZE = 64;
 export const MAX_DURATION_S = 10;
 
 type Obj = Record<string, unknown>;
-const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v);
+/** A number literal of the JSON text beyond the range of a double (1e999 reads as Infinity): kept with its text. */
+class OutOfRange { constructor(readonly text: string) {} }
+const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v) && !(v instanceof OutOfRange);
 const isNum = (v: unknown): v is number => typeof v === 'number' && Number.isFinite(v);
 const show = (v: unknown): string => {
+  if (v instanceof OutOfRange) return `${v.text} (beyond the largest double, about 1.8e308)`;
+  if (typeof v === 'number' && !Number.isFinite(v)) return String(v);
   try { const s = JSON.stringify(v); return s === undefined ? String(v) : s.length > 40 ? `${s.slice(0, 37)}...` : s; } catch { return String(v); }
 };
+
+/** JSON number literals of `text` (outside strings) whose value is not finite, in text order. */
+function outOfRangeLiterals(text: string): string[] {
+  const out: string[] = [];
+  const re = /"(?:[^"\\]|\\.)*"|-?(?:0|[1-9]\d*)(?:\.\d+)?(?:[eE][+-]?\d+)?/g;
+  for (let m = re.exec(text); m; m = re.exec(text)) {
+    if (m[0].startsWith('"')) continue;
+    if (!Number.isFinite(Number(m[0]))) out.push(m[0]);
+  }
+  return out;
+}
+
+/** JSON.parse that keeps what was written for a number too large for a double. */
+function parseJson(text: string): unknown {
+  const literals = outOfRangeLiterals(text);
+  let k = 0;
+  return JSON.parse(text, (_key, v: unknown) => (typeof v === 'number' && !Number.isFinite(v) ? new OutOfRange(literals[k++] ?? String(v)) : v));
+}
 const key = (base: string, k: string): string => (NAME.test(k) ? (base ? `${base}.${k}` : k) : `${base}[${JSON.stringify(k)}]`);
 
 /** Parses JSON text (or takes an already parsed value) and validates it against the file. */
 export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 'the model file'): ScenarioResult {
   let value = input;
   if (typeof input === 'string') {
-    try { value = JSON.parse(input); } catch (e) {
+    try { value = parseJson(input); } catch (e) {
       return { ok: false, errors: [{ path: '(file)', message: `not valid JSON: ${(e as Error).message}` }] };
     }
   }
   const errors: ScenarioError[] = [];
   const err = (path: string, message: string): void => { errors.push({ path, message }); };
   if (!isObj(value)) return { ok: false, errors: [{ path: '(root)', message: `must be a JSON object with duration_s, populations, projections and loss; got ${show(value)}` }] };
-  unknownKeys(value, '', ['description', 'duration_s', 'populations', 'projections', 'loss'], err);
+  unknownKeys(value, '', ['description', 'duration_s', 'populations', 'projections', 'loss', 'sample'], err);
 
   const description = value.description;
   if (description !== undefined && typeof description !== 'string') err('description', 'must be a string');
@@ -74,16 +101,19 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
   const durationOk = isNum(duration) && duration > 0 && duration <= MAX_DURATION_S;
   if (duration === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05');
   else if (!(isNum(duration) && duration > 0)) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
-  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
+  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient cross-check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
 
-  const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err);
-  const byName = new Map(populations.map((p) => [p.name, p]));
   const remarks: string[] = [];
-  const projections = readProjections(value.projections, byName, analysis, remarks, err);
-  const loss = readLoss(value.loss, byName, err);
+  const rejected = new Set<string>();
+  const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err, remarks, rejected);
+  const byName = new Map(populations.map((p) => [p.name, p]));
+  const projections = readProjections(value.projections, byName, rejected, analysis, remarks, err);
+  const loss = readLoss(value.loss, byName, rejected, err);
+  const sample = readSample(value.sample, err);
   if (errors.length || !loss) return { ok: false, errors };
   const scenario: Scenario = { duration: duration as number, populations, projections, loss, remarks };
   if (typeof description === 'string') scenario.description = description;
+  if (sample) scenario.sample = sample;
   return { ok: true, scenario };
 }
 
@@ -96,40 +126,64 @@ function unknownKeys(o: Obj, base: string, allowed: readonly string[], err: (p: 
 function readSize(v: unknown, path: string, err: (p: string, m: string) => void): number | undefined {
   if (v === undefined) { err(path, 'missing: give the number of neurons'); return undefined; }
   if (!isNum(v) || !Number.isInteger(v) || v < 1) { err(path, `must be a whole number >= 1; got ${show(v)}`); return undefined; }
-  if (v > MAX_POPULATION_SIZE) { err(path, `at most ${MAX_POPULATION_SIZE} neurons per population in a gradient check; got ${v}`); return undefined; }
+  if (v > MAX_POPULATION_SIZE) { err(path, `at most ${MAX_POPULATION_SIZE} neurons per population in a gradient cross-check; got ${v}`); return undefined; }
   return v;
 }
 
-function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, duration: number, err: (p: string, m: string) => void): Population[] {
+/** `sample: {"rows": N, "seed": S}`: a whole number of rows >= 1, an optional whole seed. */
+function readSample(v: unknown, err: (p: string, m: string) => void): Scenario['sample'] | undefined {
+  if (v === undefined) return undefined;
+  if (!isObj(v)) { err('sample', `must be an object {"rows": N, "seed": S}; got ${show(v)}`); return undefined; }
+  unknownKeys(v, 'sample', ['rows', 'seed'], err);
+  let ok = true;
+  if (!isNum(v.rows) || !Number.isInteger(v.rows) || v.rows < 1) { err('sample.rows', `must be a whole number >= 1 (rows to check); got ${show(v.rows)}`); ok = false; }
+  if (v.seed !== undefined && (!isNum(v.seed) || !Number.isInteger(v.seed) || v.seed < 0)) { err('sample.seed', `must be a whole number >= 0; got ${show(v.seed)}`); ok = false; }
+  return ok ? { rows: v.rows as number, ...(v.seed !== undefined ? { seed: v.seed as number } : {}) } : undefined;
+}
+
+function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, duration: number, err: (p: string, m: string) => void,
+  remarks: string[], rejected: Set<string>): Population[] {
   if (v === undefined) { err('populations', 'missing: give an object of named populations'); return []; }
   if (!isObj(v)) { err('populations', `must be an object mapping names to populations; got ${show(v)}`); return []; }
   if (Object.keys(v).length === 0) err('populations', 'is empty: give at least an input and a model population');
   const out: Population[] = [];
   for (const [name, p] of Object.entries(v)) {
     const path = key('populations', name);
-    if (!NAME.test(name)) { err(path, 'a population name must be an identifier (letters, digits, _; not starting with a digit)'); continue; }
+    // A population rejected here is said once: projections and the loss that name it stay quiet.
+    if (!NAME.test(name)) { err(path, 'a population name must be an identifier (letters, digits, _; not starting with a digit)'); rejected.add(name); continue; }
     if (name === '__proto__') { err(path, 'this name is reserved; choose another population name'); continue; }
-    if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); continue; }
-    if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); continue; }
+    if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); rejected.add(name); continue; }
+    if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); rejected.add(name); continue; }
     if ('spikes' in p) {
       unknownKeys(p, path, ['size', 'spikes'], err);
       const size = readSize(p.size, `${path}.size`, err);
       const spikes = readSpikes(p.spikes, `${path}.spikes`, size, duration, err);
       if (size !== undefined) out.push({ kind: 'input', name, size, spikes });
+      else rejected.add(name);
       continue;
     }
-    if (!('model' in p)) { err(path, 'give "model" (a neuron of the file) or "spikes" (an input population)'); continue; }
-    unknownKeys(p, path, ['model', 'size', 'params', 'initial'], err);
+    if (!('model' in p)) { err(path, 'give "model" (a neuron of the file) or "spikes" (an input population)'); rejected.add(name); continue; }
+    unknownKeys(p, path, ['model', 'size', 'params', 'initial', 'scales'], err);
     const size = readSize(p.size, `${path}.size`, err);
     const model = readModel(p.model, `${path}.model`, analysis, fileLabel, err);
     const params = model ? readValues(p.params, `${path}.params`, model.params.map((x) => x.name), 'parameter', model.name, err) : {};
     const initial = model ? readValues(p.initial, `${path}.initial`, model.states.map((x) => x.name), 'state', model.name, err) : {};
+    const scales = model ? readValues(p.scales, `${path}.scales`, model.params.map((x) => x.name), 'parameter', model.name, err) : {};
     if (model) {
       for (const q of model.params) {
         if (params[q.name] === undefined && q.valueSI === undefined) err(`${path}.params`, `${model.name}'s parameter ${q.name} has no constant value in the file: give one here`);
       }
+      for (const [k, x] of Object.entries(scales)) if (!(x > 0)) err(key(`${path}.scales`, k), `a scale must be a positive number (SI); got ${show(x)}`);
+      const uses = constantUses(model);
+      for (const [k, x] of Object.entries(params)) {
+        const use = uses.get(k);
+        const problem = use ? constantProblem(k, use, x, `${x} (SI)`) : undefined;
+        if (problem?.severity === 'error') err(key(`${path}.params`, k), problem.message);
+        else if (problem) remarks.push(`${key(`${path}.params`, k)}: ${problem.message}`);
+      }
     }
-    if (size !== undefined && model) out.push({ kind: 'model', name, size, model, params, initial });
+    if (size !== undefined && model) out.push({ kind: 'model', name, size, model, params, initial, scales });
+    else rejected.add(name);
   }
   return out;
 }
@@ -176,7 +230,7 @@ function readValues(v: unknown, path: string, names: string[], what: string, mod
   return out;
 }
 
-function readProjections(v: unknown, pops: Map<string, Population>, analysis: Analysis, remarks: string[], err: (p: string, m: string) => void): Projection[] {
+function readProjections(v: unknown, pops: Map<string, Population>, rejected: Set<string>, analysis: Analysis, remarks: string[], err: (p: string, m: string) => void): Projection[] {
   if (v === undefined) { err('projections', 'missing: give a list of {from, to, weights}'); return []; }
   if (!Array.isArray(v)) { err('projections', `must be a list of {from, to, weights}; got ${show(v)}`); return []; }
   if (v.length === 0) err('projections', 'is empty: the check needs at least one projection (its weights are what is checked)');
@@ -186,8 +240,8 @@ function readProjections(v: unknown, pops: Map<string, Population>, analysis: An
     const path = `projections[${k}]`;
     if (!isObj(p)) { err(path, `must be an object {from, to, weights}; got ${show(p)}`); return; }
     unknownKeys(p, path, ['from', 'to', 'weights'], err);
-    const from = endpoint(p.from, `${path}.from`, pops, err);
-    const to = endpoint(p.to, `${path}.to`, pops, err);
+    const from = endpoint(p.from, `${path}.from`, pops, rejected, err);
+    const to = endpoint(p.to, `${path}.to`, pops, rejected, err);
     if (from?.kind === 'model' && !from.model.fire) { err(`${path}.from`, `${from.name} (${from.model.name}) has no fire block, so it sends no spikes`); }
     if (to?.kind === 'input') err(`${path}.to`, `${to.name} is an input population: it receives no projections`);
     else if (to && !to.model.incoming) err(`${path}.to`, `${to.name} (${to.model.name}) has no incoming block, so it cannot receive spikes`);
@@ -199,21 +253,25 @@ function readProjections(v: unknown, pops: Map<string, Population>, analysis: An
         remarks.push(`${path}: the model file has no 'connect ${from.model.name} -> ${to.model.name}'; the check simulates the projection anyway`);
       }
     }
-    const weights = readWeights(p.weights, `${path}.weights`, from, to, err);
+    // With an endpoint rejected above, its size is unknown: the weights are not checked against it.
+    const weights = readWeights(p.weights, `${path}.weights`, from, to, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)));
     if (from && to && weights) out.push({ index: k, from: from.name, to: to.name, weights });
   });
   return out;
 }
 
-function endpoint(v: unknown, path: string, pops: Map<string, Population>, err: (p: string, m: string) => void): Population | undefined {
+function endpoint(v: unknown, path: string, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void): Population | undefined {
   if (v === undefined) { err(path, 'missing: give a population name'); return undefined; }
   if (typeof v !== 'string') { err(path, `must be a population name; got ${show(v)}`); return undefined; }
+  if (rejected.has(v)) return undefined;
   const p = pops.get(v);
   if (!p) err(path, `no population named '${v}' (there are: ${[...pops.keys()].join(', ') || 'none'})`);
   return p;
 }
 
-function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, err: (p: string, m: string) => void): number[][] | undefined {
+function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, err: (p: string, m: string) => void,
+  quiet = false): number[][] | undefined {
+  if (quiet) return undefined;
   if (v === undefined) { err(path, 'missing: give weights[to][from], one row per receiving neuron'); return undefined; }
   if (!Array.isArray(v)) { err(path, `must be a list of rows weights[to][from]; got ${show(v)}`); return undefined; }
   let ok = true;
@@ -232,7 +290,7 @@ function readWeights(v: unknown, path: string, from: Population | undefined, to:
   return ok ? rows : undefined;
 }
 
-function readLoss(v: unknown, pops: Map<string, Population>, err: (p: string, m: string) => void): ScenarioLoss | undefined {
+function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void): ScenarioLoss | undefined {
   if (v === undefined) { err('loss', 'missing: give {"kind": "state-integral" | "spike-time", ...}'); return undefined; }
   if (!isObj(v)) { err('loss', `must be an object; got ${show(v)}`); return undefined; }
   const kind = v.kind;
@@ -241,7 +299,8 @@ function readLoss(v: unknown, pops: Map<string, Population>, err: (p: string, m:
     return undefined;
   }
   unknownKeys(v, 'loss', kind === 'state-integral' ? ['kind', 'population', 'state', 'target'] : ['kind', 'population', 'targets_s'], err);
-  const pop = endpoint(v.population, 'loss.population', pops, err);
+  const pop = endpoint(v.population, 'loss.population', pops, rejected, err);
+  if (typeof v.population === 'string' && rejected.has(v.population)) return undefined;
   if (pop?.kind === 'input') { err('loss.population', `${pop.name} is an input population; the loss needs a model population`); return undefined; }
   if (kind === 'state-integral') {
     const state = v.state;

@@ -1,5 +1,5 @@
 // The shipped demo scenarios (samples/scenarios/NAME.json, one per sample NAME.saltus):
-// every one passes the gradient check, i.e. the derived adjoint gradient of every weight
+// every one passes the gradient cross-check, i.e. the derived adjoint gradient of every weight
 // and trainable parameter agrees with central finite differences of the simulated loss to
 // better than 1e-4 relative (the issue's bar; our runs reach about 1e-6 or better).
 // Method: EventProp (Wunderlich & Pehle 2021, Sci. Rep. 11:12829) in the general hybrid
@@ -10,7 +10,7 @@ import { readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { runGradcheck, runGradcheckSync, type GradcheckProgress } from '../server/src/gradcheck';
+import { runCrossCheck, runCrossCheckSync, type CrossCheckProgress } from '../server/src/crosscheck';
 
 const ROOT = join(__dirname, '..');
 const SAMPLES = join(ROOT, 'samples');
@@ -19,7 +19,7 @@ const scenarioFiles = readdirSync(SCENARIOS).filter((f) => f.endsWith('.json')).
 const sampleOf = (f: string): string => f.replace(/\.json$/, '.saltus');
 const load = (f: string) => ({ analysis: analyse(readFileSync(join(SAMPLES, sampleOf(f)), 'utf8')), text: readFileSync(join(SCENARIOS, f), 'utf8') });
 
-describe('demo scenarios pass the gradient check', () => {
+describe('demo scenarios pass the gradient cross-check', () => {
   test('there is one scenario per sample with well-formed neurons', () => {
     const samples = readdirSync(SAMPLES).filter((f) => f.endsWith('.saltus')).sort();
     for (const s of samples) {
@@ -34,7 +34,7 @@ describe('demo scenarios pass the gradient check', () => {
   for (const f of scenarioFiles) {
     test(`${f} against samples/${sampleOf(f)}`, () => {
       const { analysis, text } = load(f);
-      const r = runGradcheckSync(analysis, text, { traces: false });
+      const r = runCrossCheckSync(analysis, text, { traces: false });
       expect(r.errors).toEqual([]);
       expect(r.status).toBe('ok');
       const rows = [...r.gradients, ...r.params];
@@ -69,9 +69,9 @@ describe('demo scenarios pass the gradient check', () => {
 describe('asynchronous runner', () => {
   test('reports progress up to its total and returns the same result as the synchronous one', async () => {
     const { analysis, text } = load('readout.json');
-    const seen: GradcheckProgress[] = [];
-    const r = await runGradcheck(analysis, text, { onProgress: (p) => seen.push(p), traces: false });
-    const s = runGradcheckSync(analysis, text, { traces: false });
+    const seen: CrossCheckProgress[] = [];
+    const r = await runCrossCheck(analysis, text, { onProgress: (p) => seen.push(p), traces: false });
+    const s = runCrossCheckSync(analysis, text, { traces: false });
     expect(r.status).toBe('ok');
     expect(r.gradients.map((x) => x.adjoint)).toEqual(s.gradients.map((x) => x.adjoint));
     expect(seen.length).toBeGreaterThan(3);
@@ -82,17 +82,17 @@ describe('asynchronous runner', () => {
   test('a throwing callback comes back as a failed result, not an exception', async () => {
     const { analysis, text } = load('readout.json');
     const boom = () => { throw new Error('callback broke'); };
-    const r = await runGradcheck(analysis, text, { onProgress: boom });
+    const r = await runCrossCheck(analysis, text, { onProgress: boom });
     expect(r.status).toBe('failed');
     expect(r.errors[0]!.message).toMatch(/callback broke/);
-    expect(runGradcheckSync(analysis, text, { onProgress: boom }).status).toBe('failed');
+    expect(runCrossCheckSync(analysis, text, { onProgress: boom }).status).toBe('failed');
   });
 
   test('stops between simulations when the signal is aborted', async () => {
     const { analysis, text } = load('lif_current.json');
     const ctl = new AbortController();
     let calls = 0;
-    const r = await runGradcheck(analysis, text, { signal: ctl.signal, onProgress: () => { if (++calls === 2) ctl.abort(); } });
+    const r = await runCrossCheck(analysis, text, { signal: ctl.signal, onProgress: () => { if (++calls === 2) ctl.abort(); } });
     expect(r.status).toBe('cancelled');
     expect(calls).toBe(2);
     expect(r.errors[0]!.message).toMatch(/cancelled/);

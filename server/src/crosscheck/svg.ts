@@ -1,4 +1,4 @@
-// Inline SVG charts of our own for the gradient-check page: a line chart (time traces with
+// Inline SVG charts of our own for the cross-check page: a line chart (time traces with
 // event steps, spike markers and an optional target line), a spike raster, and a small
 // logarithmic error bar. No library, no script: plain elements styled by CSS classes the
 // page defines (so a VS Code theme can recolour them), presentation attributes only.

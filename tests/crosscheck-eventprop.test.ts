@@ -1,4 +1,4 @@
-// EventProp on a single-spike LIF, worked out by hand and compared with the gradient check
+// EventProp on a single-spike LIF, worked out by hand and compared with the gradient cross-check
 // (derived adjoint, and its finite differences). Model: Wunderlich & Pehle 2021 (Sci. Rep.
 // 11:12829) Table 1, tau_m dV/dt = -V + I, tau_s dI/dt = -I, spike at V = theta, V := 0;
 // one input spike of weight w at t0 (I := I + w); loss on the first spike time,
@@ -25,7 +25,7 @@
 // the same number, which the test checks too.
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
-import { runGradcheckSync } from '../server/src/gradcheck';
+import { runCrossCheckSync } from '../server/src/crosscheck';
 import { lifText } from './helpers/models';
 
 const MODEL = lifText({ doc: 'W&P 2021 Table 1 LIF', trainable: true });
@@ -78,7 +78,7 @@ describe('EventProp single-spike LIF against the closed form (Wunderlich & Pehle
 
   for (const [w, target] of [[5, 0.004], [5, 0.007], [5.5, 0.003]] as const) {
     test(`w = ${w}, target ${target * 1e3} ms: sign and magnitude of dL/dw and dL/dtau_m`, () => {
-      const r = runGradcheckSync(a, scenario(w, target), { traces: false });
+      const r = runCrossCheckSync(a, scenario(w, target), { traces: false });
       expect(r.errors).toEqual([]);
       expect(r.spikeCounts.out).toEqual([1]);
       const cf = closedForm(w, target);
@@ -96,7 +96,7 @@ describe('EventProp single-spike LIF against the closed form (Wunderlich & Pehle
 
   test('the loss counts the first spike only: a second spike changes neither L nor its gradient form', () => {
     // w = 12: the neuron fires twice; L uses the first spike time, as for one spike.
-    const r = runGradcheckSync(a, scenario(12, 0.003), { traces: false });
+    const r = runCrossCheckSync(a, scenario(12, 0.003), { traces: false });
     expect(r.spikeCounts.out![0]).toBeGreaterThanOrEqual(2);
     const cf = closedForm(12, 0.003);
     expect(Math.abs(r.spikes.out![0]![0] - cf.tStar)).toBeLessThan(1e-12);
