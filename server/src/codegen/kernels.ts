@@ -8,8 +8,8 @@
 // names of symbolic/program.ts. Outputs of vector kernels are named `<out>.<i>`.
 // Invariants: every Sym's free symbols are arguments or earlier locals; a kernel exists only
 // where the model has the piece (no guard: no guard kernels).
-import { type Sym, add, mul, sym, substitute } from '../symbolic/sym';
-import { normalise } from '../symbolic/normalise';
+import { type Sym, add, freeSymbols, mul, size, sym, substitute } from '../symbolic/sym';
+import { key, normalise } from '../symbolic/normalise';
 import { type Assignment, needed } from '../symbolic/program';
 import { STEP, TIME } from '../base/names';
 import type { GridDerivation, JumpPieces } from '../grid/derive';
@@ -94,6 +94,66 @@ export function modelKernels(d: GridDerivation): Kernel[] {
     const jw = (s: Sym): Sym => substitute(s, wr);
     jump('incoming', 'incoming jump', inc, ['x', 'p', 't', 'w'], jw);
   }
-  return out.map((k) => ({ ...k, outputs: k.outputs.map((o) => ({ name: o.name, expr: normalise(o.expr) })) }));
+  return out.map((k) => commonCalls({ ...k, outputs: k.outputs.map((o) => ({ name: o.name, expr: normalise(o.expr) })) }));
+}
+
+/** Function calls worth computing once: every one but the cheap kinks. */
+const HOISTED = new Set(['expdd', 'exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'pow']);
+
+/**
+ * Common function calls of a kernel computed once (the tangents of a multi-stage map repeat the
+ * same divided differences many times): every call that occurs twice or more becomes a local
+ * `call.N`, defined just before its first use, inner calls first.
+ */
+export function commonCalls(k: Kernel): Kernel {
+  const counts = new Map<string, { sym: Sym; n: number; size: number }>();
+  const visit = (s: Sym): void => {
+    if (s.k === 'fn' && HOISTED.has(s.name)) {
+      const id = key(s);
+      const c = counts.get(id);
+      if (c) c.n++; else counts.set(id, { sym: s, n: 1, size: size(s) });
+    }
+    if (s.k === 'add') s.terms.forEach(visit);
+    else if (s.k === 'mul') s.factors.forEach(visit);
+    else if (s.k === 'pow') { visit(s.base); visit(s.exp); }
+    else if (s.k === 'fn') s.args.forEach(visit);
+  };
+  for (const a of k.locals) visit(a.expr);
+  for (const o of k.outputs) visit(o.expr);
+  const shared = [...counts.entries()].filter(([, c]) => c.n >= 2).sort((a, b) => a[1].size - b[1].size);
+  if (shared.length === 0) return k;
+  const names = new Map<string, string>(shared.map(([id], i) => [id, `call.${i}`]));
+  const replace = (s: Sym, self?: string): Sym => {
+    if (s.k === 'fn' && HOISTED.has(s.name)) {
+      const id = key(s);
+      const name = names.get(id);
+      if (name && id !== self) return sym(name);
+      return { k: 'fn', name: s.name, args: s.args.map((x) => replace(x)) };
+    }
+    if (s.k === 'add') return { k: 'add', terms: s.terms.map((x) => replace(x)) };
+    if (s.k === 'mul') return { k: 'mul', factors: s.factors.map((x) => replace(x)) };
+    if (s.k === 'pow') return { k: 'pow', base: replace(s.base), exp: replace(s.exp) };
+    return s;
+  };
+  const defs = new Map<string, Sym>(shared.map(([id, c]) => [names.get(id)!, replace(c.sym, id)]));
+  const emitted = new Set<string>();
+  const locals: Assignment[] = [];
+  const emitFor = (e: Sym): void => {
+    for (const n of freeSymbols(e)) {
+      const d = defs.get(n);
+      if (!d || emitted.has(n)) continue;
+      emitted.add(n);
+      emitFor(d);
+      locals.push({ name: n, expr: d });
+    }
+  };
+  for (const a of k.locals) {
+    const e = replace(a.expr);
+    emitFor(e);
+    locals.push({ name: a.name, expr: e });
+  }
+  const outputs = k.outputs.map((o) => ({ name: o.name, expr: replace(o.expr) }));
+  for (const o of outputs) emitFor(o.expr);
+  return { ...k, locals, outputs };
 }
 

@@ -5,6 +5,7 @@
 // Invariants: every piece of user text (names from the scenario and the model file, the
 // description, labels, warnings) is HTML-escaped; the page's CSP forbids scripts; colours
 // are our own, themed by VS Code's CSS variables when shown in a webview.
+import { gridSection } from './gridHtml';
 import { type RasterRow, errorBar, esc, lineChart, raster, sci } from './svg';
 import type { CrossCheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
 import { rowLabel } from './types';
@@ -45,7 +46,7 @@ function problems(r: CrossCheckResult): string {
 }
 
 function body(r: CrossCheckResult): string {
-  return [verdict(r), warnings(r), table(r), spikes(r), traces(r, 'states'), traces(r, 'costates'), footer(r)].join('\n');
+  return [verdict(r), warnings(r), table(r), ...(r.grid ? [gridSection(r.grid)] : []), spikes(r), traces(r, 'states'), traces(r, 'costates'), footer(r)].join('\n');
 }
 
 function verdict(r: CrossCheckResult): string {
@@ -189,4 +190,8 @@ svg.bar .bar-bg { fill: var(--grid); } svg.bar .bar-ok { fill: var(--good); } sv
 .key { display: inline-block; width: 18px; height: 3px; vertical-align: middle; margin: 0 4px 0 10px; }
 .k-state { background: var(--state); } .k-costate { background: var(--costate); } .k-spike { background: var(--spike); }
 .k-input { background: var(--input); } .k-model { background: var(--spike); } .k-target { background: var(--target); }
+svg.conv polyline { stroke-width: 1.4; } svg.conv .ref { stroke: var(--muted); }
+svg.conv .s0 { stroke: var(--state); } svg.conv .s1 { stroke: var(--costate); } svg.conv .s2 { stroke: var(--spike); }
+svg.conv .s3 { stroke: var(--input); } svg.conv .s4 { stroke: var(--target); } svg.conv .s5 { stroke: var(--bad); }
+p.warn { color: var(--bad); }
 `;

@@ -2,6 +2,7 @@
 // docs/crosscheck.md (loss, spikes, gradients, params, maxRelativeError) and adds status,
 // spike counts, warnings and the rest; traces stay out of it (they are for the page).
 // Invariant: JSON numbers are finite or null (JSON has no NaN or Infinity).
+import type { GridConvergence } from './grid';
 import type { CrossCheckResult } from './types';
 import { rowLabel } from './types';
 import { sci } from './svg';
@@ -45,7 +46,30 @@ export function crossCheckJson(r: CrossCheckResult): Record<string, unknown> {
     models: r.models,
     settings: r.settings,
     timing: { ...r.timing, cpu_ms: num(r.timing.cpu_ms) },
+    ...(r.grid ? { grid: { ...r.grid, worst: num(r.grid.worst), loss: { values: r.grid.loss.values.map(num), errors: r.grid.loss.errors.map(num) },
+      rows: r.grid.rows.map((x) => ({ ...x, exact: num(x.exact), values: x.values.map(num), errors: x.errors.map(num), orders: x.orders.map(num) })) } } : {}),
   };
+}
+
+/** The grid section of the text report: error per row at dt, dt/2, dt/4 and the observed order. */
+export function gridText(g: GridConvergence): string[] {
+  const ms = (dt: number): string => `${Number((dt * 1e3).toPrecision(4))} ms`;
+  const out: string[] = ['', `On the time grid of generated code (docs/network-step.md), against the exact gradient above:`];
+  for (const [pop, m] of Object.entries(g.substeps)) {
+    out.push(`  ${pop}: ${g.exact[pop] ? 'exact map (the exact flow between events at every dt)' : `ETDRK4 map, ${m[0]} sub-step${m[0] === 1 ? '' : 's'} per step at every dt of the study (generated code at ${ms(g.dts[0]!)} takes ${m[0]})`}`);
+  }
+  const w = Math.max(12, ...g.rows.map((x) => x.label.length));
+  out.push(`${'value'.padEnd(w)}  ${g.dts.map((d) => `err @ ${ms(d)}`.padStart(16)).join('')}  ${'order'.padStart(12)}`);
+  const ord = (o: (number | null)[]): string => o.map((x) => (x === null ? '-' : x.toFixed(1))).join(' / ');
+  const line = (label: string, errs: (number | null)[], orders: (number | null)[]): string =>
+    `${label.padEnd(w)}  ${errs.map((e) => sci(e, 2).padStart(16)).join('')}  ${ord(orders).padStart(12)}`;
+  const lossOrders = g.loss.errors.slice(0, -1).map((e, k) => { const b = g.loss.errors[k + 1]; return e !== null && b !== null && e > 1e-11 && b > 1e-11 ? Math.log2(e / b) : null; });
+  out.push(line('loss', g.loss.errors, lossOrders));
+  for (const x of g.rows) out.push(line(x.label, x.errors, x.orders));
+  for (const f of g.failures) out.push(`  at ${ms(f.dt)}: ${f.error}`);
+  out.push(`largest gradient error at ${ms(g.dts[0]!)}: ${sci(g.worst, 3)} (order: log2 of the error's fall per halving of dt; '-' where the error`);
+  out.push(`does not move: it is then the accurate simulation's own error, or rounding)`);
+  return out;
 }
 
 export function crossCheckText(r: CrossCheckResult): string {
@@ -79,6 +103,7 @@ export function crossCheckText(r: CrossCheckResult): string {
     out.push('warnings:');
     for (const x of r.warnings) out.push(`  ${x.kind}: ${x.message}`);
   }
+  if (r.grid) out.push(...gridText(r.grid));
   out.push(`${r.timing.simulations} simulations in ${r.timing.total_ms.toFixed(0)} ms`);
   return out.join('\n') + '\n';
 }

@@ -9,6 +9,7 @@
 // cancelled between simulations (the editor). Invariants: never throws (bad input becomes
 // `errors`, a simulator failure `status: 'failed'`); a row whose perturbed runs change any
 // neuron's spike count gets no finite difference (null) and a warning instead.
+import { gridConvergence } from './grid';
 import type { Analysis } from '../pipeline';
 import { derivationFor, type NeuronDerivation } from '../adjoint/index';
 import type { ResolvedNeuron } from '../model/types';
@@ -253,6 +254,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   if (options.traces !== false && grads.costate) {
     result.traces = buildTraces(s, b, base, grid, states, sampleCostates(grads.costate, grid, base.layout.total));
   }
+  if (options.gridTimestep !== undefined && options.gridTimestep > 0) result.grid = gridConvergence(s, result.gradients, result.params, result.loss, options.gridTimestep);
   done = total;
   yield progress('report');
   result.timing.total_ms = now() - t0;

@@ -1,6 +1,7 @@
 // The result of a gradient cross-check: plain JSON data (no typed arrays, maps or classes), so a
 // language server can send it to the editor as it is and the HTML page, the text report and
 // the JSON contract (docs/crosscheck.md) are all drawn from the same object.
+import type { GridConvergence } from './grid';
 import type { NeuronDerivation } from '../adjoint/derive';
 import type { ResolvedNeuron } from '../model/types';
 import type { ScenarioError } from './scenario';
@@ -154,6 +155,8 @@ export interface CrossCheckResult {
   settings: { rtol: number; relStep: number };
   timing: CrossCheckTiming;
   traces?: TraceSet;
+  /** The same scenario on the time grid of generated code at dt, dt/2, dt/4 (with --timestep). */
+  grid?: GridConvergence;
 }
 
 export interface CrossCheckProgress {
@@ -171,6 +174,8 @@ export interface CrossCheckProgress {
 }
 
 export interface CrossCheckOptions {
+  /** Also run the scenario on the time grid of generated code at this dt, dt/2 and dt/4 (s). */
+  gridTimestep?: number;
   /** Checked between simulations; an AbortSignal or anything with `aborted`. */
   signal?: { readonly aborted: boolean };
   onProgress?: (p: CrossCheckProgress) => void;

@@ -30,6 +30,8 @@ export interface GridOptions {
   dt: number;
   /** Stop with an error after this many spikes per trial (default 100000). */
   maxSpikes?: number;
+  /** Sub-steps per population instead of the rule of step/substeps.ts (a convergence study holds them). */
+  substeps?: Readonly<Record<string, number>>;
 }
 
 /** Where a segment started: -1 the grid point at the step's start, else the index of an event. */
@@ -104,10 +106,10 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   }
   if (errors.length) return out;
   out.steps = stepCount(net.duration, dt);
-  for (const p of net.populations) if (p.kind === 'model') out.substeps[p.name] = substepsFor(p.model, dt);
+  for (const p of net.populations) if (p.kind === 'model') out.substeps[p.name] = opts.substeps?.[p.name] ?? substepsFor(p.model, dt);
   let total = 0;
   for (let b = 0; b < net.trials.length; b++) {
-    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000);
+    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000, out.substeps);
     if ('error' in r) { errors.push(`trial ${b}: ${r.error}`); return out; }
     out.trials.push(r);
     total += r.loss;
@@ -171,7 +173,8 @@ interface Live {
   lossPop: boolean;
 }
 
-function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: number, steps: number, maxSpikes: number): TrialRun | { error: string } {
+function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: number, steps: number, maxSpikes: number,
+  substeps: Readonly<Record<string, number>>): TrialRun | { error: string } {
   const trial = net.trials[b]!;
   const popIndex = new Map(net.populations.map((p, i) => [p.name, i]));
   const log: LogEvent[] = [];
@@ -195,7 +198,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const lossPop = i === lossPopIndex;
     const inbound: number[] = [];
     net.projections.forEach((pr, j) => { if (pr.to === p.name) inbound.push(j); });
-    const run: PopRun = { index: i, name: p.name, size: p.size, kernels: k, map: new SegmentMap(k, substepsFor(p.model, dt), params), params,
+    const run: PopRun = { index: i, name: p.name, size: p.size, kernels: k, map: new SegmentMap(k, substeps[p.name]!, params), params,
       needsStarts: needsStartStates(k, lossPop, integralLoss), checkpoints: [], final: x, inbound };
     if (lossPop && loss.kind === 'ce-max') run.gridValues = Array.from({ length: p.size }, () => new Float64Array(steps + 1));
     spikes[p.name] = [];

@@ -88,6 +88,8 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
       return await runCrossCheck(c.analysis, p.scenario, { signal, sourceLabel: label,
         ...(p.scenarioLabel ? { scenarioLabel: p.scenarioLabel } : {}),
         ...(wholeAtLeast(p.sample, 1) ? { sample: p.sample } : {}), ...(wholeAtLeast(p.seed, 0) ? { seed: p.seed } : {}),
+        // the grid of generated code at the document's dt (its timestep or the saltus.timestep setting)
+        ...(c.analysis.timestep ? { gridTimestep: c.analysis.timestep.seconds } : {}),
         onProgress: (pr) => { if (pr.total > 0) progress?.report(Math.round((100 * pr.done) / pr.total), progressMessage(pr, Date.now() - started)); } });
     } catch (e) {
       state.log(`saltus: gradient cross-check failed: ${(e as Error)?.stack ?? String(e)}`);

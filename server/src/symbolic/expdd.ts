@@ -40,12 +40,38 @@ export function expdd(x: readonly number[]): number {
     const lo = Math.min(x[0]!, x[1]!) - c;
     return ec * phi1(lo);
   }
+  if (x.slice(1).every((v) => v === 0)) return phiK(m, x[0]!);
   const y = x.map((v) => v - c);
   let norm = 0;
   for (const v of y) norm = Math.max(norm, -v);
   // a node at -Infinity: the divided difference has an infinite denominator and a finite numerator
   if (!Number.isFinite(norm)) return 0;
   return ec * shifted(y, norm);
+}
+
+const SERIES_TERMS = 20;
+
+/**
+ * phi_k(z) = e[z, 0, ..., 0] (k zeros, the functions of exponential integrators): Horner's form of
+ * sum_j z^j / (j + k)! where |z| < 1, else phi_0 = e^z and phi_{j+1} = (phi_j - 1/j!) / z.
+ */
+export function phiK(k: number, z: number): number {
+  if (Number.isNaN(z)) return NaN;
+  if (z === -Infinity) return 0;
+  if (Math.abs(z) < 1) {
+    let acc = 0;
+    for (let j = SERIES_TERMS; j >= 0; j--) acc = acc * z + 1 / factorial(j + k);
+    return acc;
+  }
+  let v = Math.exp(z);
+  for (let j = 0; j < k; j++) v = (v - 1 / factorial(j)) / z;
+  return v;
+}
+
+function factorial(n: number): number {
+  let f = 1;
+  for (let i = 2; i <= n; i++) f *= i;
+  return f;
 }
 
 /** Largest node spread for the Taylor form around the mean; wider sets take the matrix form. */
@@ -76,10 +102,14 @@ function taylor(d: number[]): number {
   for (const v of d) for (let j = 1; j <= J; j++) h[j] = h[j]! + v * h[j - 1]!;
   let fact = 1;
   for (let k = 2; k <= m; k++) fact *= k; // m!
-  let sum = 0;
+  let sum = 0, previous = Infinity;
   for (let j = 0; j <= J; j++) {
-    sum += h[j]! / fact;
+    const term = h[j]! / fact;
+    sum += term;
     fact *= j + m + 1;
+    // two negligible terms in a row (one alone may vanish by symmetry of the centred nodes)
+    if (Math.abs(term) <= 1e-17 * Math.abs(sum) && Math.abs(previous) <= 1e-17 * Math.abs(sum)) break;
+    previous = term;
   }
   return sum;
 }

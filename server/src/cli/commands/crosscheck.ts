@@ -8,7 +8,7 @@ import { readFileSync, renameSync, statSync, writeFileSync, mkdirSync } from 'no
 import { dirname, resolve } from 'node:path';
 import { analyse } from '../../pipeline';
 import { crossCheckHtml, crossCheckJson, crossCheckText, runCrossCheckSync } from '../../crosscheck/index';
-import { oneOf, parseCommandArgs, UsageError, type Command } from '../command';
+import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, UsageError, type Command } from '../command';
 import { readSourceFiles } from '../sourceFiles';
 import { progressReporter } from '../progress';
 
@@ -18,7 +18,7 @@ export const crosscheckCommand: Command = {
   name: 'crosscheck',
   summary: 'check the derived adjoint gradient against finite differences in a scenario',
   help: `Usage: saltus crosscheck FILE S.json [--format text|json] [--html OUT.html] [--tolerance X]
-                                [--sample N [--seed S]]
+                                [--sample N [--seed S]] [--timestep DT]
        saltus crosscheck FILE --scenario S.json [...]
 
 Simulates the small network that S.json describes with the models of FILE (an
@@ -41,6 +41,7 @@ Options:
                      "sample")
   --seed S           the seed of that choice (default 1): the same seed, the
                      same rows
+${timestepHelp('also run the scenario on the time grid of generated code at DT, DT/2 and\n                   DT/4 and report each gradient\'s error there and its observed order')}
   -h, --help         show this help
 
 A long check says how long it will take on stderr after its first simulation,
@@ -53,7 +54,7 @@ the scenario or FILE has errors, 2 usage error or unreadable file.`,
   async run(argv, io) {
     const { values, positionals } = parseCommandArgs('crosscheck', argv, {
       scenario: { type: 'string' }, format: { type: 'string' }, html: { type: 'string' }, tolerance: { type: 'string' },
-      sample: { type: 'string' }, seed: { type: 'string' },
+      sample: { type: 'string' }, seed: { type: 'string' }, ...TIMESTEP_OPTIONS,
     });
     if (values.help) { io.out(crosscheckCommand.help + '\n'); return { exitCode: 0 }; }
     const format = oneOf('crosscheck', 'format', values.format as string | undefined, FORMATS, 'text');
@@ -71,6 +72,7 @@ the scenario or FILE has errors, 2 usage error or unreadable file.`,
     }
     const sample = wholeNumber(values.sample as string | undefined, 'sample', 1);
     const seed = wholeNumber(values.seed as string | undefined, 'seed', 0);
+    const grid = timestepArg('crosscheck', values);
     if (seed !== undefined && sample === undefined) throw new UsageError('--seed S goes with --sample N (it chooses the sampled rows)', 'crosscheck');
     const [source] = readSourceFiles('crosscheck', positionals.slice(0, 1), io.cwd);
     const scenarioText = readScenario(scenarioPath, io.cwd);
@@ -79,7 +81,7 @@ the scenario or FILE has errors, 2 usage error or unreadable file.`,
     const result = runCrossCheckSync(analysis, scenarioText, {
       sourceLabel: source!.path, scenarioLabel: scenarioPath, ...(tolerance !== undefined ? { tolerance } : {}),
       traces: values.html !== undefined, onProgress: progress.update,
-      ...(sample !== undefined ? { sample } : {}), ...(seed !== undefined ? { seed } : {}),
+      ...(sample !== undefined ? { sample } : {}), ...(seed !== undefined ? { seed } : {}), ...(grid ? { gridTimestep: grid.seconds } : {}),
     });
     progress.end();
     if (format === 'json') io.out(JSON.stringify(crossCheckJson(result), null, 2) + '\n');

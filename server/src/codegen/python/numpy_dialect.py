@@ -7,6 +7,78 @@ import math
 import numpy as np
 
 _TAYLOR_TERMS = 24
+_SERIES_TERMS = 20
+_SCALAR_LIMIT = 32
+_FACT = [float(math.factorial(n)) for n in range(60)]
+
+
+def _phi1_scalar(z):
+    if z != z:
+        return z
+    if z == -math.inf:
+        return 0.0
+    if z == math.inf:
+        return z
+    if abs(z) < 1e-5:
+        return 1 + z / 2 + z * z / 6
+    return math.expm1(z) / z
+
+
+def _phik_scalar(k, z):
+    if z != z:
+        return z
+    if z == -math.inf:
+        return 0.0
+    if abs(z) < 1:
+        acc = 0.0
+        for j in range(_SERIES_TERMS, -1, -1):
+            acc = acc * z + 1.0 / _FACT[j + k]
+        return acc
+    v = math.exp(z)
+    for j in range(k):
+        v = (v - 1.0 / _FACT[j]) / z
+    return v
+
+
+def _expdd_scalar(x):
+    """e[x0..xm] for floats: the algorithm of server/src/symbolic/expdd.ts, line for line."""
+    m = len(x) - 1
+    if any(v != v for v in x):
+        return math.nan
+    if m == 0:
+        return math.exp(x[0])
+    c = max(x)
+    if c == math.inf:
+        return math.inf
+    if c == -math.inf:
+        return 0.0
+    if m == 1:
+        return math.exp(c) * _phi1_scalar(min(x) - c)
+    if all(v == 0 for v in x[1:]):
+        return _phik_scalar(m, x[0])
+    y = [v - c for v in x]
+    lo = min(y)
+    if lo == -math.inf:
+        return 0.0
+    if -lo <= 1:
+        mean = sum(y) / len(y)
+        d = [v - mean for v in y]
+        h = [1.0] + [0.0] * _TAYLOR_TERMS
+        for v in d:
+            for j in range(1, _TAYLOR_TERMS + 1):
+                h[j] = h[j] + v * h[j - 1]
+        fact = _FACT[m]
+        total = 0.0
+        previous = math.inf
+        for j in range(_TAYLOR_TERMS + 1):
+            term = h[j] / fact
+            total += term
+            fact *= j + m + 1
+            if abs(term) <= 1e-17 * abs(total) and abs(previous) <= 1e-17 * abs(total):
+                break
+            previous = term
+        return math.exp(c) * math.exp(mean) * total
+    return math.exp(c) * float(_Dialect._matrix_form(None, [np.float64(v) for v in y], np.float64(-lo)))
 
 
 class _Dialect:
@@ -136,9 +208,33 @@ class _Dialect:
             value = np.where(small, 1 + z / 2 + z * z / 6, np.expm1(z) / np.where(small, 1.0, z))
             return np.where(np.isposinf(z), z, np.where(np.isneginf(z), 0.0, value))
 
+    def phik(self, k, z):
+        """phi_k(z) = e[z, 0, ..., 0] (k zeros): Horner's form of sum_j z^j / (j + k)! where |z| < 1,
+        else phi_0 = e^z and phi_{j+1} = (phi_j - 1/j!) / z (as symbolic/expdd.ts)."""
+        z = np.asarray(z, dtype=np.float64)
+        with np.errstate(invalid="ignore", over="ignore", under="ignore", divide="ignore"):
+            acc = np.zeros_like(z)
+            for j in range(_SERIES_TERMS, -1, -1):
+                acc = acc * z + 1.0 / math.factorial(j + k)
+            big = np.exp(z)
+            for j in range(k):
+                big = (big - 1.0 / math.factorial(j)) / z
+            out = np.where(np.abs(z) < 1, acc, big)
+            return np.where(np.isneginf(z), 0.0, out)
+
     def expdd(self, *nodes):
         """The divided difference of exp at the nodes (per element)."""
-        x = np.broadcast_arrays(*[np.asarray(v, dtype=np.float64) for v in nodes])
+        arrays = [np.asarray(v, dtype=np.float64) for v in nodes]
+        shape = np.broadcast_shapes(*[a.shape for a in arrays])
+        size = int(np.prod(shape)) if shape else 1
+        if size <= _SCALAR_LIMIT:
+            # few elements: the scalar algorithm element by element costs less than array calls
+            flat = [np.broadcast_to(a, shape).ravel().tolist() for a in arrays]
+            out = [_expdd_scalar([f[i] for f in flat]) for i in range(size)]
+            return np.array(out, dtype=np.float64).reshape(shape) if shape else np.float64(out[0])
+        if len(nodes) > 2 and all(isinstance(v, (int, float)) and v == 0 for v in nodes[1:]):
+            return self.phik(len(nodes) - 1, nodes[0])
+        x = np.broadcast_arrays(*arrays)
         m = len(x) - 1
         if m == 0:
             return np.exp(x[0])
@@ -164,9 +260,16 @@ class _Dialect:
                     h[j] = h[j] + v * h[j - 1]
             fact = float(math.factorial(m))
             taylor = np.zeros_like(mean)
+            previous = None
             for j in range(_TAYLOR_TERMS + 1):
-                taylor = taylor + h[j] / fact
+                term = h[j] / fact
+                taylor = taylor + term
                 fact *= j + m + 1
+                small = np.all(np.abs(term) <= 1e-17 * np.abs(taylor))
+                # two negligible terms in a row (one alone may vanish by symmetry of the centred nodes)
+                if small and previous:
+                    break
+                previous = small
             near = np.exp(mean) * taylor
             if np.all(spread <= 1):
                 return np.where(np.isfinite(c), ec * near, np.where(c > 0, np.inf, 0.0))

@@ -501,15 +501,16 @@ def backward(run, spike_time_grad=None):
     if loss["kind"] == "state-integral":
         target = X.array(loss["target"])
 
-    def dl(cols, X_):
+    def dl(rows, cols, X_):
+        """The loss integrand's partial by the loss state (times the classification weight)."""
         if loss["kind"] == "state-integral":
-            return X_ - (target[cols] if cols is not None else target[None, :])
-        return coef[cols] if cols is not None else coef
+            return X_ - target[cols]
+        return coef[rows, cols]
 
-    def lval(cols, X_):
+    def lval(rows, cols, X_):
         if loss["kind"] == "state-integral":
-            return 0.5 * (X_ - (target[cols] if cols is not None else target[None, :])) ** 2
-        return (coef[cols] if cols is not None else coef) * X_
+            return 0.5 * (X_ - target[cols]) ** 2
+        return coef[rows, cols] * X_
 
     def post_state(L, ref, rows, cols):
         """State right after record `ref` for (rows, cols) of L; ref is per element (an int array)."""
@@ -582,10 +583,10 @@ def backward(run, spike_time_grad=None):
                     w = GAUSS_WEIGHTS[q]
                     X_ = L.apply(xa, a, u)[ls]
                     src = [X.zeros_like(h) for _ in range(L.S)]
-                    src[ls] = h * w * dl(cols, X_)
+                    src[ls] = h * w * dl(rows, cols, X_)
                     back, qh, qa = L.vjp(xa, a, u, src, g)
                     lam_start = [p + b2 for p, b2 in zip(lam_start, back)]
-                    start_t = start_t + qa - GAUSS_NODES[q] * qh - w * lval(cols, X_)
+                    start_t = start_t + qa - GAUSS_NODES[q] * qh - w * lval(rows, cols, X_)
         else:
             zero = [X.zeros_like(h) for _ in range(L.S)]
             lam_start, _, _ = L.vjp(zero, a, h, lam_end, g)
@@ -614,7 +615,7 @@ def backward(run, spike_time_grad=None):
             for q in range(3):
                 y, r = L.apply_rate(xa, a, GAUSS_NODES[q] * h)
                 X_ = y[ls]
-                s = s + GAUSS_WEIGHTS[q] * (lval(cols, X_) + h * GAUSS_NODES[q] * dl(cols, X_) * r[ls])
+                s = s + GAUSS_WEIGHTS[q] * (lval(rows, cols, X_) + h * GAUSS_NODES[q] * dl(rows, cols, X_) * r[ls])
         return s, rate
 
     event_times = []
