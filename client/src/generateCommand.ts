@@ -5,16 +5,15 @@ import * as vscode from 'vscode';
 import type { LanguageClient } from 'vscode-languageclient/node';
 import type { GenerateReply } from '../../server/src/lsp/derivedFeatures';
 
-const TARGETS = [
-  { label: 'C99', description: '<model>.h and <model>.c, struct of arrays, one function per phase', target: 'c' },
-  { label: 'CUDA', description: 'one thread per neuron, with host launchers', target: 'cuda' },
-  { label: 'NumPy', description: '<model>.py, vectorised over arrays', target: 'numpy' },
-] as const;
+/** The server's code targets (its registry, server/src/codegen/targets), asked for once per pick. */
+interface TargetInfo { id: string; label: string; description: string }
 
 export async function generateCode(client: LanguageClient, uriArg?: string | vscode.Uri, model?: string): Promise<void> {
   const uri = typeof uriArg === 'string' ? vscode.Uri.parse(uriArg) : uriArg ?? vscode.window.activeTextEditor?.document.uri;
   if (!uri) { void vscode.window.showInformationMessage('Open a .saltus file to generate code from it.'); return; }
-  const pick = await vscode.window.showQuickPick(TARGETS.map((t) => ({ ...t })), { title: `Generate code${model ? ` for ${model}` : ''}`, placeHolder: 'Target language' });
+  const targets = await client.sendRequest<TargetInfo[]>('saltus/targets');
+  const pick = await vscode.window.showQuickPick(targets.map((t) => ({ label: t.label, description: t.description, target: t.id })),
+    { title: `Generate code${model ? ` for ${model}` : ''}`, placeHolder: 'Target language' });
   if (!pick) return;
   const base = vscode.workspace.getWorkspaceFolder(uri)?.uri ?? vscode.Uri.joinPath(uri, '..');
   const folder = await vscode.window.showOpenDialog({ canSelectFolders: true, canSelectFiles: false, canSelectMany: false,

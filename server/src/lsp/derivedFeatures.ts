@@ -13,6 +13,7 @@ import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
 import type { Analysis } from '../pipeline';
 import { runCrossCheck } from '../crosscheck/index';
+import { CODE_TARGETS } from '../codegen/targets/index';
 import type { CrossCheckProgress } from '../crosscheck/types';
 import { lensCommand } from './lensCommands';
 
@@ -69,6 +70,9 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
   // (`workDoneToken`), else on one the server creates when the client supports that
   // (`window/workDoneProgress/create`). Its messages give the cost estimate and the time left.
   // Cancelling the request, or that progress, stops it.
+  // The code targets the editor offers (the registry, codegen/targets): the client's picker asks for them.
+  connection.onRequest('saltus/targets', () => CODE_TARGETS.map((t) => ({ id: t.id, label: t.label, description: t.description })));
+
   connection.onRequest('saltus/crosscheck', async (p: CrossCheckParams, token) => {
     let progress: WorkDoneProgressReporter | undefined;
     try {

@@ -16,15 +16,14 @@ import { dirname, join, sep } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { MessageType, type Connection, type MessageActionItem } from 'vscode-languageserver';
 import { derivationFor, renderText } from '../adjoint/index';
-import type { Target } from '../codegen/index';
+import { CODE_TARGETS } from '../codegen/targets/index';
 import { generateInto, type GenerateReply } from './derivedFeatures';
 import type { DocumentState } from './documentState';
 import { SERVER_COMMANDS } from './lensCommands';
 import { pathOfUri } from './workspaceFiles';
 
-const TARGETS: { title: string; target: Target }[] = [
-  { title: 'C99', target: 'c' }, { title: 'CUDA', target: 'cuda' }, { title: 'NumPy', target: 'numpy' },
-];
+/** The code targets as the question's answers (the registry, codegen/targets). */
+const TARGETS = CODE_TARGETS.map((t) => ({ title: t.label, target: t.id }));
 const OVERWRITE = 'Overwrite them';
 
 export const EXECUTE_COMMANDS = Object.values(SERVER_COMMANDS);

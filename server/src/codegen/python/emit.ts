@@ -7,7 +7,7 @@
 // model text reaches comments and strings only through escape.ts.
 import type { Sym } from '../../symbolic/sym';
 import { toPlain, toPython } from '../../symbolic/print';
-import { pyComment, pyStringBody } from '../escape';
+import { oneLine, pyComment, pyStringBody } from '../escape';
 import { type KernelPlan, headerLines } from '../kernelPlan';
 import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
@@ -30,8 +30,11 @@ export const NUMPY_DIALECT: PyDialect = { id: 'numpy', label: 'NumPy', precision
 const ind = (lines: readonly string[], n = 1): string[] => lines.map((l) => (l ? '    '.repeat(n) + l : l));
 const repr = (v: number): string => (Number.isNaN(v) ? 'float("nan")' : v === Infinity ? 'float("inf")' : v === -Infinity ? 'float("-inf")' : String(v));
 
+/** Text inside a triple-quoted docstring: one line, backslashes doubled, no closing quotes. */
+const docText = (text: string, max = 400): string => oneLine(text, max).replace(/\\/g, '\\\\').replace(/"""/g, '\\"\\"\\"').replace(/"$/, '\\"');
+
 function headerDocstring(lines: readonly string[]): string[] {
-  return ['"""', ...lines.map((l) => pyStringBody(l, 400)), '"""'];
+  return ['"""', ...lines.map((l) => docText(l)), '"""'];
 }
 
 /** The model module: constants and one function per kernel. */
@@ -91,7 +94,7 @@ function kernelFunction(plan: KernelPlan, k: Kernel): string[] {
   const doc = [...k.doc, `Returns (${k.outputs.map((o) => o.name).join(', ')}).`];
   const formulas = k.outputs.length <= 12 ? k.outputs.map((o) => `${o.name} = ${toPlain(o.expr)}`) : [];
   return [`def ${k.name}(${k.args.map((a) => ARG_NAMES[a]).join(', ')}):`,
-    ...ind(['"""' + pyStringBody(doc.join(' '), 600), ...formulas.map((f) => pyStringBody(f, 300)), '"""']),
+    ...ind(['"""' + docText(doc.join(' '), 600), ...formulas.map((f) => docText(f, 300)), '"""']),
     ...ind(head), ...ind(body),
     ...ind([`return (${outs.join(', ')}${outs.length === 1 ? ',' : ''})`])];
 }
