@@ -6,8 +6,8 @@ import type { LanguageClient } from 'vscode-languageclient/node';
 import type { GenerateReply } from '../../server/src/lsp/derivedFeatures';
 
 const TARGETS = [
-  { label: 'C99', description: '<model>.h and <model>.c, struct of arrays, one function per phase', target: 'c' },
-  { label: 'CUDA', description: 'one thread per neuron, with host launchers', target: 'cuda' },
+  { label: 'C99', description: '<model>.h/.c kernels and the grid runtime with its exact gradient', target: 'c' },
+  { label: 'CUDA', description: 'the same kernels and runtime, one trial per thread, with host launchers', target: 'cuda' },
   { label: 'NumPy', description: '<model>.py, vectorised over arrays', target: 'numpy' },
 ] as const;
 
