@@ -1,17 +1,15 @@
 #!/usr/bin/env node
-// Benchmark: the generated C forward step of the LIF sample (samples/lif_current.saltus,
-// model LifCurrent) against a hand-written C loop doing the same arithmetic, compiled in
-// one program with the same flags (gcc -std=c99 -O2). Both integrate N neurons for STEPS
-// steps of 0.1 ms with the exact propagator (Rotter & Diesmann 1999, closed form in the
-// hand-written loop), with an input spike to every neuron every 50 steps; the threshold test
-// and reset follow each step. Two figures each: the flow update alone, and flow + threshold
-// + input as a simulation loop needs it (the generated code makes separate passes over the
-// arrays for forward_step, spike and incoming; the hand-written loop fuses them).
-// Checksums of the final states must agree (1e-9 relative), so both did the same work.
-// Prints ns per neuron-step and the ratio generated / hand-written (best of 5 repetitions).
+// Benchmark of the generated C code (docs/codegen.md, "C and CUDA"), gcc -std=c99 -O2:
+// 1. the kernel: LifCurrent_map_step of the LIF sample (samples/lif_current.saltus; its exact
+//    map between events) over N neurons for STEPS steps of 0.1 ms, against a hand-written loop
+//    with the closed-form propagator of Rotter & Diesmann 1999 doing the same arithmetic.
+//    Checksums of the final states must agree (1e-9 relative), so both did the same work.
+//    Prints ns per neuron-step and the ratio generated / hand-written (best of 5 repetitions).
+// 2. the network runner saltus_run (forward with events inside steps and the exact backward)
+//    on every sample scenario at dt = 0.1 ms: wall time per run (best of 3).
 // Run after `npm run build`: node bench/codegen.mjs   (needs gcc on PATH)
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { appendFileSync, copyFileSync, existsSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -20,8 +18,10 @@ const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const cli = join(root, 'dist/cli.js');
 if (!existsSync(cli)) { console.error('bench/codegen.mjs: dist/cli.js is missing; run npm run build first'); process.exit(2); }
 if (spawnSync('gcc', ['--version']).status !== 0) { console.error('bench/codegen.mjs: gcc is not on PATH'); process.exit(2); }
+const figure = (name, value, unit) => { if (process.env.BENCH_JSON) appendFileSync(process.env.BENCH_JSON, JSON.stringify({ bench: 'codegen', name, value, unit }) + '\n'); };
 
 const N = 4096, STEPS = 20000, REPS = 5;
+const flags = ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic'];
 const dir = mkdtempSync(join(tmpdir(), 'saltus-bench-codegen-'));
 try {
   const gen = spawnSync(process.execPath, [cli, 'generate', join(root, 'samples/lif_current.saltus'), '--target', 'c', '--model', 'LifCurrent', '--out', dir], { encoding: 'utf8' });
@@ -32,13 +32,12 @@ try {
 #include "LifCurrent.h"
 #define N ${N}
 #define STEPS ${STEPS}
-static double V[N], I[N], g[N], w[N];
-static unsigned char spiked[N];
+static double V[N], I[N];
 
 static void init(void)
 {
     int i;
-    for (i = 0; i < N; i++) { V[i] = 0.0; I[i] = 0.0; w[i] = 0.5 + 1.5 * (double)i / N; }
+    for (i = 0; i < N; i++) { V[i] = 0.0; I[i] = 0.5 + 1.5 * (double)i / N; }
 }
 
 static double checksum(void)
@@ -49,34 +48,33 @@ static double checksum(void)
     return s;
 }
 
-/* generated code: LifCurrent_forward_step (+ LifCurrent_spike, LifCurrent_incoming) */
-static double run_generated(int full, const LifCurrent_coeffs *c)
+/* generated code: the model's step map, one neuron per call */
+static double run_generated(double dt)
 {
-    LifCurrent_state x;
-    int k;
-    x.V = V; x.I = I;
+    const double *p = LifCurrent_model.default_params;
+    double x[2], y[2];
+    int k, i;
     for (k = 0; k < STEPS; k++) {
-        const double t = k * c->dt;
-        if (full && k % 50 == 0) LifCurrent_incoming(N, x, c, t, w, NULL, NULL);
-        LifCurrent_forward_step(N, x, c, t, full ? g : NULL);
-        if (full) LifCurrent_spike(N, x, c, t, g, spiked, NULL, NULL);
+        for (i = 0; i < N; i++) {
+            x[0] = V[i]; x[1] = I[i];
+            LifCurrent_map_step(x, p, k * dt, dt, y);
+            V[i] = y[0]; I[i] = y[1];
+        }
     }
     return checksum();
 }
 
-/* hand-written: the closed-form exact propagator, one fused loop */
-static double run_hand(int full, double tau_m, double tau_s, double theta, double dt)
+/* hand-written: the closed-form exact propagator, one loop */
+static double run_hand(double tau_m, double tau_s, double dt)
 {
     const double pvv = exp(-dt / tau_m), pii = exp(-dt / tau_s);
     const double pvi = (1.0 / tau_m) * tau_s * tau_m / (tau_m - tau_s) * (pvv - pii);
     int k, i;
     for (k = 0; k < STEPS; k++) {
-        if (full && k % 50 == 0) for (i = 0; i < N; i++) I[i] += w[i];
         for (i = 0; i < N; i++) {
             const double v = pvv * V[i] + pvi * I[i];
             I[i] = pii * I[i];
             V[i] = v;
-            if (full && v >= theta) V[i] = 0.0;
         }
     }
     return checksum();
@@ -84,42 +82,54 @@ static double run_hand(int full, double tau_m, double tau_s, double theta, doubl
 
 int main(void)
 {
-    LifCurrent_params par;
-    LifCurrent_coeffs c;
-    int full, r;
-    LifCurrent_default_params(&par);
-    if (LifCurrent_prepare(&par, 1e-4, &c) != 0) return 1;
-    for (full = 0; full <= 1; full++) {
-        double best_gen = 1e300, best_hand = 1e300, sum_gen = 0.0, sum_hand = 0.0;
-        for (r = 0; r < ${REPS}; r++) {
-            clock_t t0;
-            double s;
-            init(); t0 = clock(); sum_gen = run_generated(full, &c);
-            s = (double)(clock() - t0) / CLOCKS_PER_SEC; if (s < best_gen) best_gen = s;
-            init(); t0 = clock(); sum_hand = run_hand(full, par.tau_m, par.tau_s, par.theta, 1e-4);
-            s = (double)(clock() - t0) / CLOCKS_PER_SEC; if (s < best_hand) best_hand = s;
-        }
-        printf("%d %.6e %.6e %.17g %.17g\\n", full, best_gen, best_hand, sum_gen, sum_hand);
+    const double *p = LifCurrent_model.default_params;
+    double best_gen = 1e300, best_hand = 1e300, sum_gen = 0.0, sum_hand = 0.0;
+    int r;
+    for (r = 0; r < ${REPS}; r++) {
+        clock_t t0;
+        double s;
+        init(); t0 = clock(); sum_gen = run_generated(1e-4);
+        s = (double)(clock() - t0) / CLOCKS_PER_SEC; if (s < best_gen) best_gen = s;
+        init(); t0 = clock(); sum_hand = run_hand(p[0], p[1], 1e-4);
+        s = (double)(clock() - t0) / CLOCKS_PER_SEC; if (s < best_hand) best_hand = s;
     }
+    printf("%.6e %.6e %.17g %.17g\\n", best_gen, best_hand, sum_gen, sum_hand);
     return 0;
 }
 `);
-  const flags = ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic'];
-  const cc = spawnSync('gcc', [...flags, 'LifCurrent.c', 'bench.c', '-lm', '-o', 'bench'], { cwd: dir, encoding: 'utf8' });
+  const cc = spawnSync('gcc', [...flags, 'LifCurrent.c', 'saltus_grid.c', 'bench.c', '-lm', '-o', 'bench'], { cwd: dir, encoding: 'utf8' });
   if (cc.status !== 0) throw new Error(`gcc failed: ${cc.stderr}`);
   const run = spawnSync(join(dir, 'bench'), { encoding: 'utf8' });
   if (run.status !== 0) throw new Error(`the benchmark program failed: ${run.stderr}`);
   const perStep = 1e9 / (N * STEPS);
-  console.log(`codegen: LifCurrent, ${N} neurons x ${STEPS} steps, gcc ${flags.join(' ')}, best of ${REPS}`);
-  let ok = true;
-  for (const line of run.stdout.trim().split('\n')) {
-    const [full, gen, hand, sumGen, sumHand] = line.split(' ').map(Number);
-    const label = full ? 'flow + threshold + input' : 'flow update only        ';
-    const agree = Math.abs(sumGen - sumHand) <= 1e-9 * Math.max(1, Math.abs(sumHand));
-    ok &&= agree;
-    console.log(`  ${label}  generated ${(gen * perStep).toFixed(3)} ns/neuron-step, hand-written ${(hand * perStep).toFixed(3)} ns/neuron-step, ratio ${(gen / hand).toFixed(2)}${agree ? '' : `  CHECKSUMS DIFFER (${sumGen} vs ${sumHand})`}`);
+  const [gen1, hand, sumGen, sumHand] = run.stdout.trim().split(' ').map(Number);
+  const agree = Math.abs(sumGen - sumHand) <= 1e-9 * Math.max(1, Math.abs(sumHand));
+  console.log(`codegen: LifCurrent_map_step, ${N} neurons x ${STEPS} steps, gcc ${flags.join(' ')}, best of ${REPS}`);
+  console.log(`  generated ${(gen1 * perStep).toFixed(3)} ns/neuron-step, hand-written ${(hand * perStep).toFixed(3)} ns/neuron-step, ratio ${(gen1 / hand).toFixed(2)}${agree ? '' : `  CHECKSUMS DIFFER (${sumGen} vs ${sumHand})`}`);
+  figure('LIF map_step generated / hand-written', gen1 / hand, 'x');
+  if (!agree) process.exitCode = 1;
+
+  // the network runner on every sample scenario
+  const scenarios = readdirSync(join(root, 'samples', 'scenarios')).filter((f) => f.endsWith('.json')).sort();
+  console.log(`codegen: saltus_run (forward + exact backward) on the sample scenarios at dt = 0.1 ms, best of 3`);
+  for (const sc of scenarios) {
+    const name = sc.replace(/\.json$/, '');
+    const out = join(dir, name);
+    const g = spawnSync(process.execPath, [cli, 'generate', join(root, 'samples', `${name}.saltus`), '--target', 'c', '--network', join(root, 'samples', 'scenarios', sc), '--out', out], { encoding: 'utf8' });
+    if (g.status !== 0) throw new Error(`saltus generate failed: ${g.stderr}`);
+    copyFileSync(join(root, 'samples', 'scenarios', sc), join(out, 'net.json'));
+    const b = spawnSync('gcc', [...flags, ...readdirSync(out).filter((f) => f.endsWith('.c')), '-lm', '-o', 'saltus_run'], { cwd: out, encoding: 'utf8' });
+    if (b.status !== 0) throw new Error(`gcc failed: ${b.stderr}`);
+    let best = Infinity;
+    for (let r = 0; r < 3; r++) {
+      const t0 = performance.now();
+      const x = spawnSync(join(out, 'saltus_run'), ['net.json', '--dt', '0.1ms', '--format', 'json'], { cwd: out, encoding: 'utf8' });
+      if (x.status !== 0) throw new Error(`saltus_run failed on ${sc}: ${x.stderr}`);
+      best = Math.min(best, performance.now() - t0);
+    }
+    console.log(`  ${name.padEnd(14)} ${best.toFixed(1)} ms`);
+    figure(`saltus_run ${name} (0.1 ms)`, best, 'ms');
   }
-  if (!ok) process.exitCode = 1;
 } finally {
   rmSync(dir, { recursive: true, force: true });
 }

@@ -73,11 +73,11 @@ expectExit('step', saltus(['step', 'samples/adex.saltus'], false));
 for (const s of good) expectExit(`step ${s}`, saltus(['step', s, '--format', 'json'], true));
 
 // --- Step 4: generated code ------------------------------------------------------------
-heading('saltus generate samples/lif_current.saltus --target c --driver   (C, CUDA and NumPy for every sample)');
+heading('saltus generate samples/lif_current.saltus --target c   (C, CUDA and NumPy for every sample)');
 for (const s of good) {
   const name = s.replace(/^samples\//, '').replace(/\.saltus$/, '');
   for (const target of ['c', 'cuda', 'numpy']) {
-    const r = saltus(['generate', s, '--target', target, '--out', join(out, 'generated', target, name), '--force', ...(target === 'c' ? ['--driver'] : [])], s === 'samples/lif_current.saltus' && target === 'c' ? false : true);
+    const r = saltus(['generate', s, '--target', target, '--out', join(out, 'generated', target, name), '--force'], s === 'samples/lif_current.saltus' && target === 'c' ? false : true);
     expectExit(`generate ${target} ${s}`, r);
   }
 }

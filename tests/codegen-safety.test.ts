@@ -15,7 +15,9 @@ import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { checkHash, generateFiles, writeGenerated } from '../server/src/codegen';
-import { referenceRun } from './helpers/referenceRun';
+import { parseScenario } from '../server/src/crosscheck';
+import { networkFromScenario } from '../server/src/grid';
+import { type RunnerReport, compareWithGrid } from './helpers/gridCompare';
 
 const ROOT = resolve(__dirname, '..');
 const CLI = join(ROOT, 'dist/cli.js');
@@ -60,13 +62,13 @@ describe('writeGenerated stays inside its directory', () => {
   test('a model whose name is not an identifier becomes a safe file name inside --out', () => {
     const a = analyse(sample('readout.saltus'));
     a.model.neurons[0]!.name = '../../escaped';
-    const g = generateFiles(a, { target: 'numpy' });
+    const g = generateFiles(a, { target: 'c' });
     expect(g.errors).toEqual([]);
     expect(g.renamed).toContainEqual(expect.objectContaining({ kind: 'model', from: '../../escaped', to: 'm_escaped' }));
     const root = fresh('model-name');
     const r = writeGenerated(join(root, 'out'), g.files);
     expect(r.refused).toEqual([]);
-    expect(tree(root)).toEqual(['out/m_escaped.py']);
+    expect(tree(root)).toEqual(['out/m_escaped.c', 'out/m_escaped.h', 'out/saltus_grid.c', 'out/saltus_grid.h']);
   });
 
   test('the CLI resolves --out with ".." segments and writes only there', () => {
@@ -75,31 +77,31 @@ describe('writeGenerated stays inside its directory', () => {
     mkdirSync(join(root, 'a'));
     const r = cli(['generate', 'model.saltus', '--target', 'c', '--out', 'a/../gen'], root);
     expect(r.code).toBe(0);
-    expect(tree(root)).toEqual(['gen/Readout.c', 'gen/Readout.h', 'model.saltus']);
+    expect(tree(root)).toEqual(['gen/Readout.c', 'gen/Readout.h', 'gen/saltus_grid.c', 'gen/saltus_grid.h', 'model.saltus']);
   });
 });
 
 describe('writeGenerated never overwrites a changed file without force', () => {
   test('an unchanged generated file is replaced; identical content is left alone', () => {
     const dir = fresh('replace');
-    expect(writeGenerated(dir, lif()).written).toHaveLength(4);
+    expect(writeGenerated(dir, lif()).written).toHaveLength(6);
     const before = statSync(join(dir, 'LifCurrent.c')).mtimeMs;
     const again = writeGenerated(dir, lif());
     expect(again.written).toEqual([]);
-    expect(again.unchanged).toHaveLength(4);
+    expect(again.unchanged).toHaveLength(6);
     expect(statSync(join(dir, 'LifCurrent.c')).mtimeMs).toBe(before);
     const v2 = generateFiles(analyse(sample('lif_current.saltus').replace('20 [ms] trainable', '25 [ms] trainable')), { target: 'c' }).files;
     const r = writeGenerated(dir, v2);
     expect(r.refused).toEqual([]);
     expect(r.written.length).toBeGreaterThan(0);
-    expect(readFileSync(join(dir, 'LifCurrent.c'), 'utf8')).toContain('par->tau_m = 0.025;');
+    expect(readFileSync(join(dir, 'LifCurrent.c'), 'utf8')).toContain('LifCurrent_default_params[] = {0.025, ');
   });
 
   test('an edited file is refused with a clear message, nothing is written, --force overwrites', () => {
     const dir = fresh('edited');
     writeGenerated(dir, lif());
     const path = join(dir, 'LifCurrent.c');
-    const edited = readFileSync(path, 'utf8').replace('par->tau_m = 0.02;', 'par->tau_m = 0.03; /* my edit */');
+    const edited = readFileSync(path, 'utf8').replace('LifCurrent_default_params[] = {0.02,', 'LifCurrent_default_params[] = {0.03, /* my edit */');
     writeFileSync(path, edited);
     expect(checkHash(edited).kind).toBe('modified');
     const v2 = generateFiles(analyse(sample('lif_current.saltus').replace('5 [ms] trainable', '6 [ms] trainable')), { target: 'c' }).files;
@@ -133,12 +135,12 @@ describe('writeGenerated never overwrites a changed file without force', () => {
     const root = fresh('cli-edit');
     writeFileSync(join(root, 'm.saltus'), sample('lif_current.saltus'));
     expect(cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen'], root).code).toBe(0);
-    const py = join(root, 'gen', 'LifCurrent.py');
+    const py = join(root, 'gen', 'lifcurrent.py');
     writeFileSync(py, readFileSync(py, 'utf8') + '# my note\n');
     writeFileSync(join(root, 'm.saltus'), sample('lif_current.saltus').replace('param theta = 1 ', 'param theta = 1.2 '));
     const refused = cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen'], root);
     expect(refused.code).toBe(1);
-    expect(refused.err).toMatch(/refused LifCurrent\.py: it was changed since Saltus wrote it/);
+    expect(refused.err).toMatch(/refused lifcurrent\.py: it was changed since Saltus wrote it/);
     expect(refused.err).toMatch(/nothing was written/);
     expect(readFileSync(py, 'utf8')).toMatch(/# my note\n$/);
     const forced = cli(['generate', 'm.saltus', '--target', 'numpy', '--out', 'gen', '--force'], root);
@@ -171,7 +173,8 @@ describe('CLI usage', () => {
     [['generate', 'm.saltus', '--out', 'g'], 2, /--target is required/],
     [['generate', 'm.saltus', '--target', 'fortran', '--out', 'g'], 2, /--target must be one of c, cuda, numpy/],
     [['generate', 'm.saltus', '--target', 'c'], 2, /--out DIR is required/],
-    [['generate', 'm.saltus', '--target', 'numpy', '--out', 'g', '--driver'], 2, /--driver goes with --target c/],
+    [['generate', 'm.saltus', '--target', 'c', '--out', 'g', '--driver'], 2, /--driver is gone: the one-neuron driver was replaced by the network runner \(--network NET\.json/],
+    [['generate', 'm.saltus', '--target', 'c', '--out', 'g', '--inline-params'], 2, /--inline-params is gone: parameter values come from the network description/],
     [['generate', 'm.saltus', '--target', 'numpy', '--out', 'g', '--float'], 2, /--float goes with/],
     [['generate', 'm.saltus', '--target', 'c', '--out', 'g', '--model', 'Nope'], 1, /no model named 'Nope'.*LifCurrent, Readout/],
     [['generate', 'bad.saltus', '--target', 'c', '--out', 'g'], 1, /has 5 errors; fix them first/],
@@ -186,7 +189,7 @@ describe('CLI usage', () => {
   test('--model picks one model', () => {
     const r = cli(['generate', 'm.saltus', '--target', 'c', '--out', 'one', '--model', 'Readout'], root);
     expect(r.code).toBe(0);
-    expect(readdirSync(join(root, 'one')).sort()).toEqual(['Readout.c', 'Readout.h']);
+    expect(readdirSync(join(root, 'one')).sort()).toEqual(['Readout.c', 'Readout.h', 'saltus_grid.c', 'saltus_grid.h']);
   });
 });
 
@@ -221,45 +224,48 @@ describe('identifiers that clash with keywords are renamed consistently', () => 
       'state int->int_', 'state lambda->lambda_', 'state n_neurons->n_neurons_', 'weight def->def_'].sort());
     expect(pairs('cuda')).toEqual(pairs('c'));
     expect(pairs('numpy')).toEqual(pairs('c'));
-    expect(generateFiles(a, { target: 'c' }).files.map((f) => f.name)).toEqual(['math_.h', 'math_.c']);
+    expect(generateFiles(a, { target: 'c' }).files.map((f) => f.name)).toEqual(['math_.h', 'math_.c', 'saltus_grid.h', 'saltus_grid.c']);
   });
 
-  test('C with the renamed names compiles with -Werror and its driver agrees with the reference', () => {
+  // A network of the renamed model, described with the names as declared (a parameter override included).
+  const NET = {
+    duration_s: 0.3,
+    populations: { tap: { size: 1, spikes: [[0.001, 0], [0.0011, 0], [0.09, 0]] }, m: { model: 'math', size: 2, params: { restrict: 1.2 } } },
+    projections: [{ from: 'tap', to: 'm', weights: [[10], [20]] }],
+    loss: { kind: 'state-integral', population: 'm', state: 'int', target: 0.3 },
+  };
+
+  test('C with the renamed names compiles with -Werror and its runner agrees with the grid simulator', () => {
     const dir = fresh('kw-c');
-    for (const f of generateFiles(a, { target: 'c', driver: true }).files) writeFileSync(join(dir, f.name), f.content);
+    for (const f of generateFiles(a, { target: 'c', network: NET }).files) writeFileSync(join(dir, f.name), f.content);
     const c = readFileSync(join(dir, 'math_.c'), 'utf8');
-    expect(c).toMatch(/const double int_ = state\.int_\[idx\];/);
-    expect(c).toMatch(/par->class_/);
-    const b = spawnSync('gcc', [...GCC, 'math_.c', 'math__driver.c', '-lm', '-o', 'drv'], { cwd: dir, encoding: 'utf8' });
+    expect(c).toMatch(/const saltus_real int_ = x\[0\];/);
+    expect(c).toMatch(/const saltus_real class_ = p\[0\];/);
+    expect(c).toMatch(/static const char \*const math__param_names\[\] = \{"class", "restrict", "new"\};/);
+    const b = spawnSync('gcc', [...GCC, 'math_.c', 'saltus_grid.c', 'saltus_run.c', '-lm', '-o', 'run'], { cwd: dir, encoding: 'utf8' });
     expect(b.stderr).toBe('');
-    const input = '3000 0.0001\n0 0 0\n10 10\n11 10\n900 20\n';
-    const rows = spawnSync(join(dir, 'drv'), { input, encoding: 'utf8' }).stdout.trim().split('\n').map((l) => l.split(' ').map(Number));
-    const n = a.model.neurons[0]!;
-    const ref = referenceRun(n, { steps: 3000, dt: 1e-4, initial: [0, 0, 0], spikes: [{ step: 10, weight: 10 }, { step: 11, weight: 10 }, { step: 900, weight: 20 }] });
-    expect(ref.rows.filter((r) => r.spiked).length).toBeGreaterThan(1);
-    ref.rows.forEach((r, k) => {
-      expect(rows[k]![4] === 1).toBe(r.spiked);
-      r.state.forEach((v, i) => expect(Math.abs(rows[k]![i + 1]! - v)).toBeLessThan(1e-12 * Math.max(1, Math.abs(v))));
-    });
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(NET));
+    const r = spawnSync(join(dir, 'run'), ['net.json', '--dt', '0.1ms', '--format', 'json'], { cwd: dir, encoding: 'utf8' });
+    expect(r.stderr).toBe('');
+    const sc = parseScenario(NET, a);
+    if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+    const got = compareWithGrid('C runner', 'renamed identifiers', networkFromScenario(sc.scenario), 1e-4, JSON.parse(r.stdout) as RunnerReport);
+    expect(got.spikes).toBeGreaterThan(1);
   });
 
   test('NumPy with the renamed names imports and runs; CUDA compiles where nvcc is present', () => {
     const dir = fresh('kw-py');
     for (const f of generateFiles(a, { target: 'numpy' }).files) writeFileSync(join(dir, f.name), f.content);
-    const py = spawnSync('python3', ['-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import math_ as m, numpy as np
-s = m.new_state(2); c = m.prepare(m.default_params(), 1e-4); g = np.zeros(2)
-m.incoming(s, c, 0.0, np.array([30.0, 0.0]))
-for k in range(400):
-    m.forward_step(s, c, k * 1e-4, g); m.spike(s, c, k * 1e-4, g)
-print(sorted(s), float(s["n_neurons_"][0]) > 0, float(s["n_neurons_"][1]))`], { encoding: 'utf8' });
+    const py = spawnSync('python3', ['-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import math_ as m
+print(list(m.STATES), list(m.PARAMS), m.WEIGHT, [float(v) for v in m.map_step((0.5, 1.0, 0.0), (0.02, 1.0, 0.005), 0.0, 1e-4)][2])`], { encoding: 'utf8' });
     expect(py.stderr).toBe('');
-    expect(py.stdout.trim()).toBe("['int_', 'lambda_', 'n_neurons_'] True 0.0");
+    expect(py.stdout.trim()).toBe("['int_', 'lambda_', 'n_neurons_'] ['class_', 'restrict_', 'new_'] def_ 0.0");
     if (spawnSync('nvcc', ['--version']).status !== 0) { console.log('skipped: nvcc is not on PATH'); return; }
     const cdir = fresh('kw-cuda');
     for (const f of generateFiles(a, { target: 'cuda' }).files) writeFileSync(join(cdir, f.name), f.content);
-    const r = spawnSync('nvcc', ['-c', 'math_.cu', '-o', 'math_.o'], { cwd: cdir, encoding: 'utf8' });
+    const r = spawnSync('nvcc', ['-c', 'saltus_grid.cu', '-o', 'saltus_grid.o'], { cwd: cdir, encoding: 'utf8' });
     expect(r.status, r.stderr).toBe(0);
-  }, 60_000);
+  }, 120_000);
 });
 
 // Docstrings are free text: they must not end a comment, start a preprocessor line, splice
@@ -282,12 +288,16 @@ describe('hostile docstrings are escaped', () => {
 
   test('C compiles with -Werror (no #error, no trigraph, no injected declaration) and C comments stay closed', () => {
     const dir = fresh('hostile-c');
-    const files = generateFiles(a, { target: 'c', driver: true, model: 'LifCurrent' }).files;
+    const net = { duration_s: 0.01, populations: { tap: { size: 1, spikes: [[0.001, 0]] }, hid: { model: 'LifCurrent', size: 1 } },
+      projections: [{ from: 'tap', to: 'hid', weights: [[2]] }], loss: { kind: 'state-integral', population: 'hid', state: 'V', target: 0.5 } };
+    const files = generateFiles(a, { target: 'c', model: 'LifCurrent', network: net }).files;
     for (const f of files) writeFileSync(join(dir, f.name), f.content);
-    const b = spawnSync('gcc', [...GCC, 'LifCurrent.c', 'LifCurrent_driver.c', '-lm', '-o', 'drv'], { cwd: dir, encoding: 'utf8' });
+    const b = spawnSync('gcc', [...GCC, 'LifCurrent.c', 'saltus_grid.c', 'saltus_run.c', '-lm', '-o', 'run'], { cwd: dir, encoding: 'utf8' });
     expect(b.stderr).toBe('');
-    const nm = spawnSync('nm', [join(dir, 'drv')], { encoding: 'utf8' }).stdout;
+    const nm = spawnSync('nm', [join(dir, 'run')], { encoding: 'utf8' }).stdout;
     expect(nm).not.toMatch(/\binjected\b/);
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(net));
+    expect(spawnSync(join(dir, 'run'), ['net.json', '--dt', '0.1ms'], { cwd: dir, encoding: 'utf8' }).status).toBe(0);
     for (const f of files) {
       for (const line of f.content.split('\n')) {
         expect(line).not.toMatch(/^\s*#error/);
@@ -299,7 +309,7 @@ describe('hostile docstrings are escaped', () => {
   test('NumPy imports cleanly (no injected statement ran) and keeps the docstring text', () => {
     const dir = fresh('hostile-py');
     for (const f of generateFiles(a, { target: 'numpy', model: 'LifCurrent' }).files) writeFileSync(join(dir, f.name), f.content);
-    const r = spawnSync('python3', ['-W', 'error', '-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import LifCurrent as m; print(m.__doc__.splitlines()[0])`], { encoding: 'utf8' });
+    const r = spawnSync('python3', ['-W', 'error', '-c', `import sys; sys.path.insert(0, ${JSON.stringify(dir)}); import lifcurrent as m; print(m.__doc__.splitlines()[1])`], { encoding: 'utf8' });
     expect(r.stderr).toBe('');
     expect(r.status).toBe(0);
     expect(r.stdout).toContain('*/ #error injected /*');
@@ -309,7 +319,7 @@ describe('hostile docstrings are escaped', () => {
     if (spawnSync('nvcc', ['--version']).status !== 0) { console.log('skipped: nvcc is not on PATH'); return; }
     const dir = fresh('hostile-cuda');
     for (const f of generateFiles(a, { target: 'cuda', model: 'LifCurrent' }).files) writeFileSync(join(dir, f.name), f.content);
-    const r = spawnSync('nvcc', ['-c', 'LifCurrent.cu', '-o', 'x.o'], { cwd: dir, encoding: 'utf8' });
+    const r = spawnSync('nvcc', ['-c', 'saltus_grid.cu', '-o', 'x.o'], { cwd: dir, encoding: 'utf8' });
     expect(r.status, r.stderr).toBe(0);
-  }, 60_000);
+  }, 120_000);
 });

@@ -123,8 +123,8 @@ describe('one dt: Analysis.timestep, read by every consumer', () => {
     expect(onEquation).toContain('UNSTABLE at dt = 3 ms');
     expect(hover(analyse(text), text.indexOf('dv/dt') + 1, DERIVED_SECTIONS)!.markdown).toContain("dt = 0.5 ms, from the file's timestep \\(0\\.5 \\[ms\\]\\)");
     const header = (x: ReturnType<typeof analyse>) => generateFiles(x, { target: 'c' }).files.find((f) => f.name.endsWith('.h'))!.content;
-    expect(header(a)).toContain('analysed at dt = 3 ms)');
-    expect(header(analyse(text))).toContain('analysed at dt = 0.5 ms)');
+    expect(header(a)).toContain('analysis ran at dt = 3 ms;');
+    expect(header(analyse(text))).toContain('analysis ran at dt = 0.5 ms;');
   });
 
   test('saltus generate and check take the dt the same way (--timestep, or its alias --dt)', () => {
@@ -135,7 +135,7 @@ describe('one dt: Analysis.timestep, read by every consumer', () => {
         const r = runCli(['generate', 'osc.saltus', '--target', 'c', '--out', out, flag, '3 [ms]'], dir);
         expect(r.code, r.stderr).toBe(0);
       }
-      expect(readFileSync(join(dir, 'a', 'Osc.h'), 'utf8')).toContain('analysed at dt = 3 ms)');
+      expect(readFileSync(join(dir, 'a', 'Osc.h'), 'utf8')).toContain('analysis ran at dt = 3 ms;');
       expect(readFileSync(join(dir, 'b', 'Osc.h'), 'utf8')).toBe(readFileSync(join(dir, 'a', 'Osc.h'), 'utf8'));
       const check = runCli(['check', 'osc.saltus', '--dt', '3ms'], dir);
       expect(check.code).toBe(1);

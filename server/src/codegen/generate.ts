@@ -7,7 +7,6 @@
 // every target.
 import type { Analysis } from '../pipeline';
 import { type Renaming, renameModels } from './names';
-import { type ModelPlan, planModel } from './plan';
 import { type KernelPlan, planKernels } from './kernelPlan';
 import { stampHash } from './hash';
 import type { GeneratedFile, TargetContext } from './target';
@@ -24,10 +23,6 @@ export interface GenerateOptions {
   model?: string;
   /** Single precision (C and CUDA). */
   float?: boolean;
-  /** Also write <model>_driver.c (C only). */
-  driver?: boolean;
-  /** Print the parameter values into the code instead of passing a params struct. */
-  inlineParams?: boolean;
   /** The source file's name for the header (a base name; no directories are printed). */
   source?: string;
   /** A network description (parsed JSON) for a target that generates a network runner. */
@@ -55,9 +50,7 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
   try {
     const target = codeTarget(options.target);
     if (!target) return fail(`unknown target '${String(options.target)}'; use one of ${TARGETS.join(', ')}`);
-    if (options.driver && !target.accepts.driver) return fail(`a driver is generated for the ${CODE_TARGETS.filter((t) => t.accepts.driver).map((t) => t.label).join(', ')} target only`);
     if (options.float && !target.accepts.float) return fail(`--float does not apply to the ${target.label} target (its code follows the dtype of the arrays passed in)`);
-    if (options.inlineParams && !target.accepts.inlineParams) return fail(`--inline-params does not apply to the ${target.label} target`);
     if (options.network !== undefined && !target.accepts.network) return fail(`the ${target.label} target does not generate a network runner yet; use ${CODE_TARGETS.filter((t) => t.accepts.network).map((t) => t.id).join(', ')}`);
     const errs = analysis.diagnostics.filter((d) => d.severity === 'error');
     if (errs.length) {
@@ -81,7 +74,7 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
     }
     const wanted = network ? all.filter((n) => network!.models.includes(n.name) || chosen.includes(n)) : chosen;
     const dt = analysis.timestep?.seconds; // the effective dt (pipeline.ts)
-    let kernelPlans: KernelPlan[] | undefined, modelPlans: ModelPlan[] | undefined;
+    let kernelPlans: KernelPlan[] | undefined;
     const collect = <P extends { notes: string[] }>(make: (n: typeof all[number], id: string) => { plan?: P; errors: string[]; renamed: Renaming[] }): P[] => {
       const out: P[] = [];
       for (const n of wanted) {
@@ -93,10 +86,9 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
       return out;
     };
     const ctx: TargetContext = {
-      models: wanted, options: { ...(options.float ? { float: true } : {}), ...(options.driver ? { driver: true } : {}), ...(options.inlineParams ? { inlineParams: true } : {}) },
+      models: wanted, options: { ...(options.float ? { float: true } : {}) },
       kernelPlans: () => (kernelPlans ??= collect((n, id) => planKernels(n, id, dt))),
-      modelPlans: () => (modelPlans ??= collect((n, id) => planModel(n, id, dt))),
-      ...(network ? { network } : {}), ...(baseName(options.source) ? { source: baseName(options.source)! } : {}), renamed,
+      ...(network ? { network } : {}), ...(baseName(options.source) ? { source: baseName(options.source)! } : {}), renamed, errors,
     };
     const files: GeneratedFile[] = target.generate(ctx);
     if (errors.length) return { files: [], renamed, notes, errors };

@@ -3,7 +3,6 @@
 // language server's command enumerate the registry and never list targets themselves.
 import type { ResolvedNeuron } from '../model/types';
 import type { Renaming } from './names';
-import type { ModelPlan } from './plan';
 import type { KernelPlan } from './kernelPlan';
 import type { NetworkSpec } from './network';
 
@@ -12,23 +11,19 @@ export interface GeneratedFile { name: string; content: string }
 export interface TargetOptions {
   /** Single precision. */
   float?: boolean;
-  /** A standalone driver for one neuron. */
-  driver?: boolean;
-  /** Parameter values printed into the code. */
-  inlineParams?: boolean;
 }
 
 export interface TargetContext {
   models: ResolvedNeuron[];
   /** The plans of the chosen models (computed on demand, errors collected). */
   kernelPlans(): KernelPlan[];
-  /** Plans of the per-population phase code (the C family until it moves to kernel plans). */
-  modelPlans(): ModelPlan[];
   options: TargetOptions;
   /** A network description (--network), validated against the file. */
   network?: NetworkSpec;
   source?: string;
   renamed: Renaming[];
+  /** Problems a target finds in a model (the call then writes nothing). */
+  errors: string[];
 }
 
 export interface CodeTarget {
@@ -37,6 +32,6 @@ export interface CodeTarget {
   label: string;
   description: string;
   /** Which options make sense for it (others are refused with a message). */
-  accepts: { float: boolean; driver: boolean; inlineParams: boolean; network: boolean };
+  accepts: { float: boolean; network: boolean };
   generate(ctx: TargetContext): GeneratedFile[];
 }

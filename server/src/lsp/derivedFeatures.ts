@@ -21,7 +21,7 @@ import { lensCommand } from './lensCommands';
 export interface CrossCheckParams { uri: string; scenario: unknown; scenarioLabel?: string; sample?: number; seed?: number; workDoneToken?: ProgressToken }
 const wholeAtLeast = (v: unknown, min: number): v is number => typeof v === 'number' && Number.isInteger(v) && v >= min;
 /** The dt of the generated code is the analysis's (the file's timestep or the saltus.timestep setting). */
-export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean; driver?: boolean }
+export interface GenerateParams { uri?: string; target: Target; model?: string; dir: string; force?: boolean; float?: boolean }
 export interface GenerateReply extends WriteResult { notes: string[]; renamed: string[] }
 
 /** '40 s', '12 min', '1.5 h'. */
@@ -41,8 +41,7 @@ export function progressMessage(p: CrossCheckProgress, elapsedMs: number): strin
 /** Generates code for a document and writes it safely into `dir` (never outside it; refuses edited files unless `force`). */
 export function generateInto(a: Analysis, uri: string, p: GenerateParams): GenerateReply {
   const source = decodeURIComponent(uri.split('/').pop() ?? 'model.saltus');
-  const g = generateFiles(a, { target: p.target, ...(p.model ? { model: p.model } : {}), ...(p.float ? { float: true } : {}),
-    ...(p.driver ? { driver: true } : {}), source });
+  const g = generateFiles(a, { target: p.target, ...(p.model ? { model: p.model } : {}), ...(p.float ? { float: true } : {}), source });
   const renamed = g.renamed.map((r) => `${r.kind} ${r.from} -> ${r.to} (${r.reason})`);
   if (g.errors.length || g.files.length === 0) return { dir: p.dir, written: [], unchanged: [], refused: [], errors: g.errors.length ? g.errors : ['nothing to generate'], notes: g.notes, renamed };
   return { ...writeGenerated(p.dir, g.files, { force: p.force === true }), notes: g.notes, renamed };

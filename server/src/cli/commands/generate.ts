@@ -1,5 +1,5 @@
 // `saltus generate FILE --target TARGET [--network NET.json] [--model NAME] --out DIR [--float]
-// [--driver] [--inline-params] [--force] [--timestep TIME]` (targets: codegen/targets/index.ts) (alias --dt; the dt quoted in the headers and
+// [--force] [--timestep TIME]` (targets: codegen/targets/index.ts) (alias --dt; the dt quoted in the headers and
 // used to choose the forward scheme, through the analysis): writes the update code of each model
 // (or of NAME) into DIR (codegen/generate.ts), safely (codegen/write.ts): nothing outside
 // DIR, no file that changed since Saltus wrote it (unless --force), each file atomically.
@@ -14,7 +14,7 @@ export const generateCommand: Command = {
   name: 'generate',
   summary: `write simulation and gradient code for a model (${CODE_TARGETS.map((t) => t.id).join(', ')})`,
   help: `Usage: saltus generate FILE --target ${CODE_TARGETS.map((t) => t.id).join('|')} --out DIR [--network NET.json]
-                       [--model NAME] [--float] [--driver] [--inline-params] [--force] [--timestep TIME]
+                       [--model NAME] [--float] [--force] [--timestep TIME]
 
 Writes the code of each model in FILE (or of NAME) into DIR: the step map between events,
 the threshold and jumps, and the exact gradient of the simulation on a time grid. With
@@ -24,11 +24,10 @@ All values are in SI units; each file's header lists them.
 Options:
 ${CODE_TARGETS.map((t) => `  --target ${t.id.padEnd(7)} ${t.description}`).join('\n')}
   --network FILE   a network description (the cross-check scenario format): adds its runner
+                   (run.py, saltus_run.c or saltus_run.cu; docs/codegen.md, "Runner")
   --out DIR        the output directory (created when missing); nothing is written elsewhere
   --model NAME     only this model of the file
   --float          single precision (c and cuda)
-  --driver         also <model>_driver.c: runs one neuron from stdin (c only; see docs/codegen.md)
-  --inline-params  print the parameter values into the code instead of a params struct
   --force          overwrite files that changed since Saltus wrote them, or not written by it
 ${timestepHelp("the dt quoted in the headers instead of the file's 'timestep'")}
   -h, --help       show this help
@@ -48,7 +47,8 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
     if (!out) throw new UsageError('--out DIR is required: the directory to write into', 'generate');
     if (positionals.length !== 1) throw new UsageError('give exactly one .saltus file', 'generate');
     const t = codeTarget(target)!;
-    if (values.driver && !t.accepts.driver) throw new UsageError(`--driver goes with --target ${CODE_TARGETS.filter((x) => x.accepts.driver).map((x) => x.id).join(' or ')}`, 'generate');
+    if (values.driver) throw new UsageError('--driver is gone: the one-neuron driver was replaced by the network runner (--network NET.json; docs/codegen.md, "Runner")', 'generate');
+    if (values['inline-params']) throw new UsageError('--inline-params is gone: parameter values come from the network description at run time (docs/codegen.md)', 'generate');
     if (values.float && !t.accepts.float) throw new UsageError(`--float goes with --target ${CODE_TARGETS.filter((x) => x.accepts.float).map((x) => x.id).join(' or ')} (${t.label} follows the arrays' dtype)`, 'generate');
     let network: unknown;
     if (values.network !== undefined) {
@@ -59,7 +59,7 @@ Exit status: 0 files written (or already up to date), 1 the model has errors or 
     const [source] = readSourceFiles('generate', positionals, io.cwd);
     const analysis = analyse(source!.text, timestep ? { timestep } : {});
     const result = generateFiles(analysis, {
-      target, source: source!.path, float: !!values.float, driver: !!values.driver, inlineParams: !!values['inline-params'],
+      target, source: source!.path, float: !!values.float,
       ...(values.model !== undefined ? { model: values.model as string } : {}), ...(network !== undefined ? { network } : {}),
     });
     if (result.errors.length) {

@@ -1,16 +1,13 @@
-// The C99 target: <model>.h and <model>.c with one function per phase, and a one-neuron driver.
+// The C99 target: per model <M>.h/.c with its kernels and saltus_model table, the grid runtime
+// saltus_grid.h/.c (events inside steps, the exact gradient), and with --network the runner
+// saltus_run.c (docs/codegen.md, "C and CUDA").
 import type { CodeTarget } from '../target';
-import { cTarget } from '../c';
-import { driverFile } from '../driver';
+import { cFiles } from '../c/files';
 
 export const C_TARGET: CodeTarget = {
   id: 'c',
   label: 'C',
-  description: 'C99 header and source per model (gcc, clang); --float, --driver, --inline-params',
-  accepts: { float: true, driver: true, inlineParams: true, network: false },
-  generate(ctx) {
-    const base = { ...(ctx.source ? { source: ctx.source } : {}), inlineParams: !!ctx.options.inlineParams, renamed: ctx.renamed };
-    const flavour = { cuda: false, float: !!ctx.options.float, inline: !!ctx.options.inlineParams };
-    return ctx.modelPlans().flatMap((plan) => [...cTarget(plan, flavour, base), ...(ctx.options.driver ? [driverFile(plan, flavour, base)] : [])]);
-  },
+  description: 'C99 kernels per model and the grid runtime with its exact gradient (gcc, clang); --float; --network adds saltus_run.c',
+  accepts: { float: true, network: true },
+  generate: (ctx) => cFiles(ctx, false),
 };

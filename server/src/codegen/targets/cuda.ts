@@ -1,15 +1,13 @@
-// The CUDA target: <model>.cuh and <model>.cu, one kernel per phase and a host launcher each.
+// The CUDA target: per model <M>.cuh with its kernels as __host__ __device__ functions, the grid
+// runtime saltus_grid.cuh/.cu running one trial per thread with host launchers, and with
+// --network the runner saltus_run.cu (docs/codegen.md, "C and CUDA").
 import type { CodeTarget } from '../target';
-import { cudaTarget } from '../cuda';
+import { cFiles } from '../c/files';
 
 export const CUDA_TARGET: CodeTarget = {
   id: 'cuda',
   label: 'CUDA',
-  description: 'CUDA kernels and host launchers per model (nvcc); --float, --inline-params',
-  accepts: { float: true, driver: false, inlineParams: true, network: false },
-  generate(ctx) {
-    const base = { ...(ctx.source ? { source: ctx.source } : {}), inlineParams: !!ctx.options.inlineParams, renamed: ctx.renamed };
-    const flavour = { cuda: true, float: !!ctx.options.float, inline: !!ctx.options.inlineParams };
-    return ctx.modelPlans().flatMap((plan) => cudaTarget(plan, flavour, base));
-  },
+  description: 'CUDA kernels per model and the grid runtime, one trial per thread, with host launchers (nvcc); --float; --network adds saltus_run.cu',
+  accepts: { float: true, network: true },
+  generate: (ctx) => cFiles(ctx, true),
 };

@@ -8,7 +8,7 @@ export const NUMPY_TARGET: CodeTarget = {
   id: 'numpy',
   label: 'NumPy',
   description: 'Python modules on NumPy arrays: model kernels, the grid runtime with its exact gradient; --network adds run.py',
-  accepts: { float: false, driver: false, inlineParams: false, network: true },
+  accepts: { float: false, network: true },
   generate(ctx) {
     const plans = ctx.kernelPlans();
     const files = plans.map((p) => modelModule(p, NUMPY_DIALECT, { ...(ctx.source ? { source: ctx.source } : {}), renamed: ctx.renamed }));
