@@ -21,8 +21,8 @@ const SAMPLES = existsSync(samplesDir) ? readdirSync(samplesDir).filter((f) => f
 
 const LIF = `# vibration sensor: a pump motor's 🐝 hum, Δt = 0.1 ms
 timestep 0.1 [ms]
-neuron Sensor "τ-scaled LIF 🎯" {
-  param tau_m = 20 [ms] "membrane time constant"
+neuron Sensor {  #~ τ-scaled LIF 🎯
+  param tau_m = 20 [ms] #~ membrane time constant
   param tau_s = 5 [ms]
   param theta = 1
   state V = 0
@@ -72,7 +72,7 @@ describe('language server over stdio', () => {
 
     const names = await client.conn.sendRequest('textDocument/completion', { textDocument: { uri }, position: pos(LIF, '(I - V)', 1) }) as CompletionItem[];
     expect(names.map((c) => c.label)).toEqual(expect.arrayContaining(['tau_m', 'tau_s', 'theta', 'V', 'I', 't', 'exp']));
-    const units = await client.conn.sendRequest('textDocument/completion', { textDocument: { uri }, position: pos(LIF, '[ms] "', 1) }) as CompletionItem[];
+    const units = await client.conn.sendRequest('textDocument/completion', { textDocument: { uri }, position: pos(LIF, '[ms] #~', 1) }) as CompletionItem[];
     expect(units.map((c) => c.label)).toEqual(expect.arrayContaining(['mV', 'ms', 'nA', 'pF']));
 
     const edit = await client.conn.sendRequest('textDocument/rename', { textDocument: { uri }, position: pos(LIF, 'state V', 6), newName: 'U' }) as WorkspaceEdit;

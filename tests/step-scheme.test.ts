@@ -148,7 +148,7 @@ neuron Lif {
 describe('damped oscillator: the simultaneous exponential-Euler update turns unstable above h = g/w^2', () => {
   const text = `
 timestep 1 [ms]
-neuron Resonator "vibration-sensor resonator" {
+neuron Resonator {  #~ vibration-sensor resonator
   param omega = 628.3185307179586 [1/s]
   param g = 200 [1/s]
   state x = 0

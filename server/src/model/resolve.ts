@@ -377,7 +377,7 @@ function resolveIncoming(m: A.IncomingBlock, table: Map<string, { info: SymbolIn
       ...(clash ? { related: [{ message: 'declared here', range: clash.info.nameRange }] } : {}) });
     return undefined;
   }
-  const info: SymbolInfo = { kind: 'weight', name, nameRange: m.weight.range, declRange: m.range, neuron, doc: 'synaptic weight (always trainable)' };
+  const info: SymbolInfo = { kind: 'weight', name, nameRange: m.weight.range, declRange: m.range, neuron, doc: m.doc?.text ?? 'synaptic weight (always trainable)' };
   symbols.push(info);
   let dim: Dim | undefined;
   if (m.unit) {
