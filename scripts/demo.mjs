@@ -67,7 +67,7 @@ for (const s of good) {
 }
 console.log(`typeset adjoint pages: ${join('demo-output', 'adjoint')}/*.html`);
 
-// --- Step 3: the exponential-Euler step at each file's timestep ------------------------
+// --- Step 3: the step map at each file's timestep -------------------------------------
 heading('saltus step samples/adex.saltus');
 expectExit('step', saltus(['step', 'samples/adex.saltus'], false));
 for (const s of good) expectExit(`step ${s}`, saltus(['step', s, '--format', 'json'], true));

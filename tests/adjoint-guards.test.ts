@@ -27,7 +27,7 @@ const codes = (text: string) => {
 };
 
 // Three ways for a guard slope to be identically 0.
-const JUMP_ONLY = `neuron Counter "counts input spikes; the guard state has no flow" {
+const JUMP_ONLY = `neuron Counter {  #~ counts input spikes; the guard state has no flow
   param n_max = 3
   state c = 0
   state V = 0
@@ -35,7 +35,7 @@ const JUMP_ONLY = `neuron Counter "counts input spikes; the guard state has no f
   fire when c crosses n_max up { c := 0 }
   incoming w { c := c + w }
 }`;
-const NO_STATE = `neuron Constant "the guard holds parameters only" {
+const NO_STATE = `neuron Constant {  #~ the guard holds parameters only
   param a = 1
   param b = 2
   state V = 0
@@ -43,7 +43,7 @@ const NO_STATE = `neuron Constant "the guard holds parameters only" {
   fire when a crosses b up { V := 0 }
 }`;
 // dV/dt = (theta - V)/tau relaxes to theta exponentially: on V = theta the slope is 0.
-const ASYMPTOTIC = `neuron Relax "the flow only approaches the threshold" {
+const ASYMPTOTIC = `neuron Relax {  #~ the flow only approaches the threshold
   param theta = 1
   param tau = 10 [ms]
   state V = 0

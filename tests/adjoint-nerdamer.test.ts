@@ -20,7 +20,7 @@ const nerdamer = require('nerdamer') as (e: string, subs?: Record<string, string
 require('nerdamer/Calculus');
 const diff = (nerdamer as unknown as { diff(e: string, x: string): { toString(): string } }).diff;
 
-const FUNCS = `neuron Funcs "test-only: smooth functions" {
+const FUNCS = `neuron Funcs {  #~ test-only: smooth functions
   param tau = 10 [ms]
   param c = 2
   state V = 0.5

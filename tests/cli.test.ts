@@ -49,12 +49,12 @@ function expectNoStack(stderr: string) {
 const GOOD = `# LIF with an exponential current synapse.
 timestep 0.1 [ms]
 
-neuron LifCurrent "LIF with exponential current synapse" {
-  param tau_m = 20 [ms]   "membrane time constant"
-  param tau_s = 5 [ms]    "synaptic time constant"
-  param theta = 1         "firing threshold"
-  state V = 0             "membrane potential (scaled)"
-  state I = 0             "synaptic current (scaled)"
+neuron LifCurrent {  #~ LIF with exponential current synapse
+  param tau_m = 20 [ms]   #~ membrane time constant
+  param tau_s = 5 [ms]    #~ synaptic time constant
+  param theta = 1         #~ firing threshold
+  state V = 0             #~ membrane potential (scaled)
+  state I = 0             #~ synaptic current (scaled)
   dV/dt = (I - V) / tau_m
   dI/dt = -I / tau_s
   fire when V crosses theta up {

@@ -10,7 +10,7 @@ import { analyse } from '../server/src/pipeline';
 import { runCrossCheckSync } from '../server/src/crosscheck';
 import { lifText } from './helpers/models';
 
-const LIF = `neuron C "LIF under constant drive RI (scaled, threshold 1)" {
+const LIF = `neuron C {  #~ LIF under constant drive RI (scaled, threshold 1)
   param tau = 10 [ms]
   param theta = 1
   state V = 0

@@ -12,7 +12,7 @@ import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 const lifText = readFileSync(join(__dirname, '..', 'samples', 'lif_current.saltus'), 'utf8');
 // The sample plus a firing neuron without an incoming block.
 const MODELS = analyse(`${lifText}
-neuron Pacer "fires on its own, receives nothing" {
+neuron Pacer {  #~ fires on its own, receives nothing
   param tau = 10 [ms]
   state V = 0
   state D = 2

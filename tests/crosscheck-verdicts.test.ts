@@ -20,7 +20,7 @@ const read = (p: string): string => readFileSync(join(root, p), 'utf8');
 // A readout driven by sqrt(g): d(sqrt g)/dg = 1/(2 sqrt g) is infinite while g = 0 (before
 // the first input), so the derived adjoint flow of lambda_g is -Inf there, and the tau_g
 // integrand lambda_g * g / tau_g^2 is -Inf * 0 = NaN. The finite difference is finite.
-const SQRT = `neuron SqrtReadout "readout driven by the square root of a conductance-like trace" {
+const SQRT = `neuron SqrtReadout {  #~ readout driven by the square root of a conductance-like trace
   param tau_m = 20 [ms] trainable
   param tau_g = 5 [ms] trainable
   state V = 0
@@ -39,7 +39,7 @@ const sqrtScenario = (params: Record<string, number> = {}) => ({
 // A conductance-based LIF in physical units (values common practice, from memory): C 200 pF,
 // g_L 10 nS, E_L -70 mV, threshold -50 mV, reset -65 mV, synaptic conductance in nS decaying
 // with 5 ms, and a tonic conductance g_tonic = 0 nS, trainable.
-const COND = (eSyn = '0 [mV]') => `neuron CondLif "conductance-based LIF in physical units" {
+const COND = (eSyn = '0 [mV]') => `neuron CondLif {  #~ conductance-based LIF in physical units
   param C = 200 [pF]
   param g_L = 10 [nS]
   param E_L = -70 [mV]

@@ -9,7 +9,7 @@ import { cursor } from './helpers/cursor';
 
 const TWO = `timestep 0.1 [ms]
 
-neuron Lif "scaled LIF" {
+neuron Lif {  #~ scaled LIF
   param tau_m = 20 [ms]
   param tau_s = 5 [ms]
   param theta = 1

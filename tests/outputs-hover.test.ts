@@ -14,10 +14,10 @@ import { cursor } from './helpers/cursor';
 const ADEX = `# Adaptive exponential integrate-and-fire (AdEx), standard parameter set.
 timestep 0.1 [ms]
 
-neuron Adex "adaptive exponential LIF" {
-  param C = 281 [pF] "membrane capacitance"
+neuron Adex {  #~ adaptive exponential LIF
+  param C = 281 [pF] #~ membrane capacitance
   param g_L = 30 [nS]
-  param E_L = -70.6 [mV] trainable "leak reversal"
+  param E_L = -70.6 [mV] trainable #~ leak reversal
   param V_T = -50.4 [mV]
   param Delta_T = 2 [mV]
   param tau_w = 144 [ms]
@@ -26,7 +26,7 @@ neuron Adex "adaptive exponential LIF" {
   param V_r = -70.6 [mV]
   param V_peak = 20 [mV]
   param tau_s = 5 [ms]
-  state V [mV] = -70.6 [mV] "membrane potential"
+  state V [mV] = -70.6 [mV] #~ membrane potential
   state w [nA] = 0 [nA]
   state I [nA]
   let leak = -g_L * (V - E_L)

@@ -1,16 +1,58 @@
-// The step analysis on text (analyse() -> analyseStep) and on the project's samples:
-// Izhikevich 2003 and AdEx (Brette & Gerstner 2005) get the linearised scheme; reference
-// states against the values in docs/references.md; the accuracy figure of the LIF
-// against its closed form (Rotter & Diesmann 1999); the spike-time bound against the LIF
-// first-passage time under constant drive (Gerstner et al. 2014, ch. 1); the JSON contract.
+// The step analysis on text (analyse() -> analyseStep) and on the project's samples. It judges
+// the step map generated code runs (server/src/step/map.ts): Izhikevich 2003 and AdEx
+// (Brette & Gerstner 2005) take ETDRK4 in sub-steps, and M equals central differences of that
+// map evaluated independently (Sym trees walked by `evaluate`, not the compiled derivatives);
+// reference states against the values in docs/references.md; the LIF map is exact (Rotter &
+// Diesmann 1999), so never inaccurate or unstable; an undamped oscillator's ETDRK4 is classical
+// RK4 (a = 0), whose stability interval on the imaginary axis ends at 2 sqrt(2) (Hairer &
+// Wanner, Solving ODEs I/II; from memory); the spike-time bound of linear interpolation against
+// the LIF first-passage time under constant drive (Gerstner et al. 2014, ch. 1); the JSON contract.
 import { describe, expect, test } from 'vitest';
 import { readFileSync } from 'node:fs';
 import { analyse } from '../server/src/pipeline';
 import type { ResolvedNeuron } from '../server/src/model/types';
 import {
   analyseStep, buildScheme, exactPropagator, exactStep, interpolateCrossing, stepDiagnostics, stepHoverMarkdown,
-  stepReportJson, stepReportText,
+  stepReportJson, stepReportText, type StepReport,
 } from '../server/src/step';
+import { stepMapFor } from '../server/src/step/map';
+import { substepsFor } from '../server/src/step/substeps';
+import { evaluate } from '../server/src/symbolic/evaluate';
+
+/** One grid step of the map in its sub-steps, by walking the Sym trees (independent of the compiled derivatives). */
+function mapStep(n: ResolvedNeuron, x: number[], dt: number): number[] {
+  const m = stepMapFor(n), k = substepsFor(n, dt), h = dt / k;
+  let y = x.slice();
+  for (let s = 0; s < k; s++) {
+    const env = new Map<string, number>();
+    n.params.forEach((p) => env.set(p.name, p.valueSI!));
+    m.states.forEach((st, i) => env.set(st, y[i]!));
+    env.set('t', s * h); env.set('dt', h);
+    for (const a of m.stages) env.set(a.name, evaluate(a.expr, env));
+    y = m.next.map((e) => evaluate(e, env));
+  }
+  return y;
+}
+
+/** max |M - central differences of mapStep| / max |M| over the dynamic states. */
+function mapJacobianGap(n: ResolvedNeuron, r: StepReport): number {
+  const x = n.states.map((st) => r.reference.values[st.name]!);
+  const idx = r.order.map((name) => n.states.findIndex((st) => st.name === name));
+  let gap = 0, size = 0;
+  idx.forEach((j, col) => {
+    const e = 1e-6 * Math.max(Math.abs(x[j]!), r.states[j]!.scale);
+    const up = x.slice(), dn = x.slice();
+    up[j]! += e; dn[j]! -= e;
+    const fu = mapStep(n, up, r.dt_s), fd = mapStep(n, dn, r.dt_s);
+    idx.forEach((i, row) => {
+      const fdv = (fu[i]! - fd[i]!) / (2 * e), m = r.stepMatrix[row]![col]!;
+      // compare in the states' own units (a column of mV against a row of nA)
+      const w = r.states[j]!.scale / r.states[i]!.scale;
+      gap = Math.max(gap, Math.abs(fdv - m) * w); size = Math.max(size, Math.abs(m) * w);
+    });
+  });
+  return gap / size;
+}
 
 const sample = (file: string) => analyse(readFileSync(new URL(`../samples/${file}`, import.meta.url), 'utf8'));
 function only(text: string): ResolvedNeuron {
@@ -24,10 +66,11 @@ describe('Izhikevich 2003 RS sample (samples/izhikevich.saltus)', () => {
   const n = a.model.neurons[0]!;
   const r = analyseStep(n, a.model.timestepSI!);
 
-  test('v is linearised (quadratic), u exponential Euler, I exact; the info diagnostic sits on dv/dt', () => {
+  test('the map takes ETDRK4 (v split by its derivative, u and I affine); the info diagnostic sits on dv/dt', () => {
     expect(a.model.timestepSI).toBe(1e-4);
-    expect(Object.fromEntries(r.states.map((s) => [s.name, s.scheme]))).toEqual({
-      v: 'linearised-exponential-euler', u: 'exponential-euler', I: 'exact' });
+    expect(Object.fromEntries(r.states.map((s) => [s.name, [s.scheme, s.kind]]))).toEqual({
+      v: ['exponential-rk4', 'linearised'], u: ['exponential-rk4', 'affine'], I: ['exponential-rk4', 'affine'] });
+    expect(r.map).toMatchObject({ scheme: 'exponential-rk4', exact: false, substeps: 4 });
     const ds = stepDiagnostics(r, n, a.model.timestepDecl!.range);
     expect(ds.map((d) => d.code)).toEqual(['step-linearised']);
     expect(ds[0]!.severity).toBe('info');
@@ -50,6 +93,10 @@ describe('Izhikevich 2003 RS sample (samples/izhikevich.saltus)', () => {
     expect(r.exactRadius).toBeCloseTo(Math.exp(0.1 * lam), 12);
     expect(r.relativeStepError).toBeGreaterThan(0);
     expect(r.relativeStepError).toBeLessThan(r.accuracyBound);
+  });
+
+  test('M is the Jacobian of the map generated code runs: central differences of the map (4 sub-steps) agree', () => {
+    expect(mapJacobianGap(n, r)).toBeLessThan(1e-6);
   });
 
   test('probe crossing at v = 30 mV: dt^2 |v\'\'| / (8 |v\'|) with v\' = 340 mV/ms, v\'\' = 7.4 * 340 - 0.02 * 20 by hand', () => {
@@ -81,9 +128,11 @@ describe('AdEx sample (samples/adex.saltus, Brette & Gerstner 2005 set)', () => 
   const n = a.model.neurons[0]!;
   const r = analyseStep(n, a.model.timestepSI!);
 
-  test('V linearised (through exp), w exponential Euler, I exact; rest -70.59992 mV (docs/references.md [V])', () => {
-    expect(r.states.map((s) => s.scheme)).toEqual(['linearised-exponential-euler', 'exponential-euler', 'exact']);
+  test('ETDRK4 in 8 sub-steps, V split through exp; rest -70.59992 mV (docs/references.md [V]); M = d(map)/dx', () => {
+    expect(r.states.map((s) => [s.scheme, s.kind])).toEqual([['exponential-rk4', 'linearised'], ['exponential-rk4', 'affine'], ['exponential-rk4', 'affine']]);
+    expect(r.map.substeps).toBe(8);
     expect(r.states[0]!.reason).toContain('exp(');
+    expect(mapJacobianGap(n, r)).toBeLessThan(1e-6);
     expect(r.reference.kind).toBe('rest');
     // docs/references.md gives -70.59992 (truncated); by hand (g_L + a) dV = g_L Delta_T e^{(E_L + dV - V_T)/Delta_T}, dV = 7.246e-5 mV
     expect(r.reference.values.V! * 1e3).toBeCloseTo(-70.59992, 4);
@@ -112,25 +161,18 @@ describe('LIF samples: exact propagator offered, accuracy figure against the clo
     expect(Math.abs(P[0]![1]! / ((5 / 15) * (Math.exp(-0.1 / 20) - Math.exp(-0.1 / 5))) - 1)).toBeLessThan(1e-13);
   });
 
-  test('relative one-step error = |M_VI - P_VI| / ||P||_F, by hand; step-inaccurate above the 1 % bound (dt = 3 ms)', () => {
-    const rel = (h: number): number => {
-      const em = Math.exp(-h / 20), es = Math.exp(-h / 5);
-      const pvi = (5 / 15) * (em - es), mvi = 1 - em; // exponential Euler holds I: V+ = V e^{-h/tau_m} + I (1 - e^{-h/tau_m})
-      return Math.abs(mvi - pvi) / Math.hypot(em, es, pvi);
-    };
-    const at01 = analyseStep(lif, 1e-4);
-    expect(Math.abs(at01.relativeStepError / rel(0.1) - 1)).toBeLessThan(1e-6);
-    const at3 = analyseStep(lif, 3e-3);
-    expect(Math.abs(at3.relativeStepError / rel(3) - 1)).toBeLessThan(1e-6);
-    expect(at3.accurate).toBe(false);
-    // the largest accurate dt solves rel(h) = 0.01; check it by bisection on the hand formula
-    let lo = 0.1, hi = 3;
-    for (let k = 0; k < 100; k++) { const mid = (lo + hi) / 2; if (rel(mid) <= 0.01) lo = mid; else hi = mid; }
-    expect(Math.abs(at3.accurateDt_s! * 1e3 / lo - 1)).toBeLessThan(1e-5);
-    const ds = stepDiagnostics(at3, lif, a.model.timestepDecl!.range);
-    expect(ds.map((d) => [d.code, d.severity])).toEqual([['step-inaccurate', 'warning']]);
-    expect(ds[0]!.range).toEqual(a.model.timestepDecl!.range);
-    expect(stepDiagnostics(at01, lif)).toEqual([]);
+  test('the map is exact: M = P (Rotter & Diesmann) at every dt, so never inaccurate or unstable, even at 3 and 50 ms', () => {
+    for (const dt of [1e-4, 3e-3, 50e-3]) {
+      const r = analyseStep(lif, dt);
+      expect(r.map).toMatchObject({ scheme: 'exact', exact: true, substeps: 1 });
+      expect(r.states.map((x) => x.scheme)).toEqual(['exact', 'exact']);
+      const em = Math.exp(-dt * 1e3 / 20), es = Math.exp(-dt * 1e3 / 5);
+      const pvi = (5 / 15) * (em - es);
+      expect(Math.abs(r.stepMatrix[0]![1]! / pvi - 1)).toBeLessThan(1e-12);
+      expect(r.relativeStepError).toBeLessThan(1e-13);
+      expect([r.stable, r.unstable, r.accurate, r.maxStableDt_s, r.accurateDt_s]).toEqual([true, false, true, null, null]);
+      expect(stepDiagnostics(r, lif, a.model.timestepDecl!.range)).toEqual([]);
+    }
   });
 
   test('LIF first passage under constant drive: interpolated spike time within the bound dt^2/(8 tau) (Gerstner et al. 2014: T = tau ln(RI/(RI - theta)) = 10.9861228867 ms [V])', () => {
@@ -163,6 +205,38 @@ neuron Driven {
   });
 });
 
+describe('a map that is not exact is judged as it is: the undamped oscillator (RK4)', () => {
+  const text = `timestep 2 [ms]
+neuron Resonator {
+  param omega = 628.3185307179586 [1/s]
+  state x = 0
+  state v = 0 [1/s]
+  dx/dt = v
+  dv/dt = -omega^2 * x
+}`;
+  test('inaccurate at 2 ms (a warning on the timestep), unstable at 5 ms (an error) past 2 sqrt(2)/omega', () => {
+    const a = analyse(text);
+    const n = a.model.neurons[0]!;
+    const r2 = analyseStep(n, 2e-3);
+    expect(r2.map).toMatchObject({ scheme: 'exponential-rk4', exact: false, substeps: 1 });
+    // RK4 on x'' = -w^2 x: M = R(h J), R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24 (the classical tableau)
+    const h = 2e-3, w = 628.3185307179586;
+    const J = [[0, 1], [-w * w, 0]];
+    const mul = (p: number[][], q: number[][]): number[][] => p.map((row) => q[0]!.map((_, j) => row.reduce((acc, v, k) => acc + v * q[k]![j]!, 0)));
+    let term = [[1, 0], [0, 1]], R = [[1, 0], [0, 1]];
+    for (let k = 1; k <= 4; k++) { term = mul(term, J).map((row) => row.map((v) => v * h / k)); R = R.map((row, i) => row.map((v, j) => v + term[i]![j]!)); }
+    r2.stepMatrix.forEach((row, i) => row.forEach((v, j) => expect(Math.abs(v - R[i]![j]!)).toBeLessThan(1e-9 * Math.max(1, Math.abs(R[i]![j]!)))));
+    expect(r2.accurate).toBe(false);
+    const ds = stepDiagnostics(r2, n, a.model.timestepDecl!.range);
+    expect(ds.map((d) => [d.code, d.severity])).toEqual([['step-inaccurate', 'warning']]);
+    expect(ds[0]!.range).toEqual(a.model.timestepDecl!.range);
+    expect(ds[0]!.message).toContain('one step of the map that generated code takes, fourth-order exponential Runge-Kutta (ETDRK4), one step per dt, differs');
+    const r5 = analyseStep(n, 5e-3);
+    expect(r5.unstable).toBe(true);
+    expect(stepDiagnostics(r5, n).map((d) => d.code)).toEqual(['step-unstable']);
+  });
+});
+
 describe('faces: JSON contract, text, hover', () => {
   test('JSON has exactly the contract keys, SI seconds, null where stable at every dt', () => {
     const a = sample('lif_current.saltus');
@@ -170,24 +244,24 @@ describe('faces: JSON contract, text, hover', () => {
     const json = stepReportJson(reps);
     expect(Object.keys(json)).toEqual(['models']);
     const m = json.models[0]!;
-    expect(Object.keys(m)).toEqual(['name', 'dt_s', 'reference', 'states', 'stepRadius', 'exactRadius', 'relativeStepError', 'maxStableDt_s', 'exactPropagator']);
-    expect(m).toMatchObject({ name: 'LifCurrent', dt_s: 1e-4, reference: 'rest', states: { V: { scheme: 'exponential-euler' }, I: { scheme: 'exact' } }, maxStableDt_s: null });
+    expect(Object.keys(m)).toEqual(['name', 'dt_s', 'reference', 'states', 'stepRadius', 'exactRadius', 'relativeStepError', 'maxStableDt_s', 'exactPropagator', 'map', 'substeps']);
+    expect(m).toMatchObject({ name: 'LifCurrent', dt_s: 1e-4, reference: 'rest', states: { V: { scheme: 'exact' }, I: { scheme: 'exact' } }, maxStableDt_s: null, map: 'exact', substeps: 1 });
     expect(m.exactPropagator).toHaveLength(2);
     expect(JSON.parse(JSON.stringify(json))).toEqual(json);
   });
 
-  test('JSON of the unstable oscillator carries maxStableDt_s in seconds; non-finite figures become null', () => {
+  test('JSON of the undamped oscillator (ETDRK4 = RK4 here) carries maxStableDt_s = 2 sqrt(2)/omega in seconds; non-finite figures become null', () => {
     const osc = only(`
 neuron Resonator {
   param omega = 628.3185307179586 [1/s]
-  param g = 200 [1/s]
   state x = 0
   state v = 0 [1/s]
   dx/dt = v
-  dv/dt = -omega^2 * x - g * v
+  dv/dt = -omega^2 * x
 }`);
     const m = stepReportJson([analyseStep(osc, 1e-3)]).models[0]!;
-    expect(m.maxStableDt_s!).toBeCloseTo(200 / 628.3185307179586 ** 2, 12);
+    expect(m).toMatchObject({ map: 'exponential-rk4', substeps: 1 });
+    expect(Math.abs(m.maxStableDt_s! / (2 * Math.SQRT2 / 628.3185307179586) - 1)).toBeLessThan(1e-6);
     const bad = stepReportJson([analyseStep(osc, NaN)]).models[0]!;
     expect(bad.dt_s).toBeNull();
     expect(bad.stepRadius).toBeNull();
@@ -198,11 +272,14 @@ neuron Resonator {
     const r = analyseStep(a.model.neurons[0]!, a.model.timestepSI!);
     const text = stepReportText([r]);
     expect(text).toContain('AdEx  (dt = 0.1 ms)');
-    expect(text).toContain('linearised-exponential-euler');
+    expect(text).toContain('step map (what generated code runs): fourth-order exponential Runge-Kutta (ETDRK4) in 8 sub-steps of 0.0125 ms');
+    expect(text).toContain('exponential-rk4');
+    expect(text).not.toMatch(/exponential.Euler/i);
     expect(text).toMatch(/spectral radius: step M 0\.99\d+/);
     const hoverV = stepHoverMarkdown(r, 'V');
-    expect(hoverV).toContain('`linearised-exponential-euler`');
-    expect(stepHoverMarkdown(r)).toContain('**Step analysis of `AdEx`** at dt = 0.1 ms');
+    expect(hoverV).toContain('`exponential-rk4`');
+    expect(hoverV).not.toMatch(/exponential.Euler/i);
+    expect(stepHoverMarkdown(r)).toContain('**Step analysis of `AdEx`** at dt = 0.1 ms: the step map is fourth-order exponential Runge-Kutta (ETDRK4) in 8 sub-steps');
   });
 
   test('every sample: no throw, finite figures for well-formed neurons, no step error at the sample dt', () => {

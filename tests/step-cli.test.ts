@@ -17,23 +17,25 @@ describe('saltus step', () => {
     const r = runCli(['step', 'samples/adex.saltus', '--format', 'json']);
     expect(r.code).toBe(0);
     const m = JSON.parse(r.stdout).models[0];
-    expect(Object.keys(m).sort()).toEqual(['dt_s', 'exactPropagator', 'exactRadius', 'maxStableDt_s', 'name', 'reference', 'relativeStepError', 'stepRadius', 'states'].sort());
+    expect(Object.keys(m).sort()).toEqual(['dt_s', 'exactPropagator', 'exactRadius', 'map', 'maxStableDt_s', 'name', 'reference', 'relativeStepError', 'stepRadius', 'states', 'substeps'].sort());
     expect(m.dt_s).toBeCloseTo(1e-4, 15);
     expect(m.reference).toBe('rest');
-    expect(m.states.V.scheme).toBe('linearised-exponential-euler');
+    expect(m.states.V.scheme).toBe('exponential-rk4');
+    expect(m.map).toBe('exponential-rk4');
+    expect(m.substeps).toBe(8);
     expect(m.exactPropagator).toBeNull();
   });
-  // A damped oscillator x' = v, v' = -w2 x - g v under the simultaneous exponential-Euler update
-  // (x explicit, v exponential in -g): the step matrix [[1, dt], [-w2 (1 - e^(-g dt))/g, e^(-g dt)]]
-  // has determinant e^(-g dt) + w2 dt (1 - e^(-g dt))/g, which passes 1 at dt = g / w2 (derived by
-  // hand, as in tests/step-analyse.test.ts): with g = 1/ms and w2 = 1/ms^2, unstable above 1 ms.
-  const OSC = (dt: string) => `timestep ${dt}\nneuron Osc { param w2 = 1 [1/ms^2]\n param g = 1 [1/ms]\n state x = 1 [mV]\n state v = 0 [mV/ms]\n dx/dt = v\n dv/dt = -w2 * x - g * v }\n`;
+  // An undamped oscillator x' = v, v' = -w2 x: the couplings form a cycle, so the step map is
+  // ETDRK4 with a = 0, which is the classical RK4; its stability interval on the imaginary axis
+  // ends at 2 sqrt(2) (Hairer & Wanner; from memory), so with w2 = 1/ms^2 it is unstable above
+  // 2 sqrt(2) ms = 2.828 ms (tests/step-analyse.test.ts checks the same bound).
+  const OSC = (dt: string) => `timestep ${dt}\nneuron Osc { param w2 = 1 [1/ms^2]\n state x = 1 [mV]\n state v = 0 [mV/ms]\n dx/dt = v\n dv/dt = -w2 * x }\n`;
   test('an unstable step is an error on the timestep, with the largest stable dt', () => {
     const text = OSC('3 [ms]');
     const unstable = derivedDiagnostics(analyse(text)).find((d) => d.code === 'step-unstable');
     expect(unstable?.severity).toBe('error');
     expect(text.slice(unstable!.range.start, unstable!.range.end)).toBe('3 [ms]');
-    expect(unstable!.message).toMatch(/1 ms/);
+    expect(unstable!.message).toMatch(/stable for dt up to 2\.828 ms/);
     expect(derivedDiagnostics(analyse(OSC('0.5 [ms]'))).some((d) => d.code === 'step-unstable')).toBe(false);
   });
   test('--dt (alias of --timestep) overrides the file, and a file without timestep needs one', () => {
@@ -65,15 +67,16 @@ describe('step analysis in hovers', () => {
     expect(h.markdown).toContain('Izhikevich');
     expect(h.markdown).toMatch(/spectral radius|stable/i);
   });
-  test('on an equation: its scheme', () => {
+  test('on an equation: its scheme in the step map', () => {
     const h = hover(a, text.indexOf('dv/dt') + 1, DERIVED_SECTIONS)!;
-    expect(h.markdown).toMatch(/linearised/);
+    expect(h.markdown).toContain('**Step of `v`** in `Izhikevich`: `exponential-rk4`');
+    expect(h.markdown).toMatch(/linear part a = d f\/d v/);
   });
 });
 
 describe('one dt: Analysis.timestep, read by every consumer', () => {
-  // The damped oscillator above: unstable above dt = 1 ms (derived by hand).
-  const OSC = (dt: string) => `${dt ? `timestep ${dt}\n` : ''}neuron Osc { param w2 = 1 [1/ms^2]\n param g = 1 [1/ms]\n state x = 1 [mV]\n state v = 0 [mV/ms]\n dx/dt = v\n dv/dt = -w2 * x - g * v }\n`;
+  // The undamped oscillator above: its step map (RK4 here) is unstable above dt = 2 sqrt(2) ms.
+  const OSC = (dt: string) => `${dt ? `timestep ${dt}\n` : ''}neuron Osc { param w2 = 1 [1/ms^2]\n state x = 1 [mV]\n state v = 0 [mV/ms]\n dx/dt = v\n dv/dt = -w2 * x }\n`;
   const slice = (text: string, r: { start: number; end: number } | undefined) => (r ? text.slice(r.start, r.end) : undefined);
 
   test('the file\'s timestep, with the range of its value; none without one', () => {
@@ -111,6 +114,21 @@ describe('one dt: Analysis.timestep, read by every consumer', () => {
     expect(slice(bare, option.range)).toBe('Osc');
     expect(option.message).toMatch(/This dt comes from the --timestep option \('3 \[ms\]'\)\.$/);
     expect(derivedDiagnostics(analyse(bare)).some((d) => d.code === 'step-unstable')).toBe(false); // no dt, no step analysis
+  });
+
+  test('step-inaccurate judges the map generated code runs (the exact LIF map at 1 ms: none) and sits where the dt came from', () => {
+    const lif = readFileSync(join(root, 'samples', 'lif_current.saltus'), 'utf8');
+    const opt = { timestep: { seconds: 1e-3, source: 'option' as const, label: '1ms' } };
+    expect(derivedDiagnostics(analyse(lif, opt)).filter((d) => d.code.startsWith('step-'))).toEqual([]);
+    const text = OSC('0.5 [ms]');
+    expect(derivedDiagnostics(analyse(text)).filter((d) => d.code.startsWith('step-'))).toEqual([]);
+    const inexact = derivedDiagnostics(analyse(text, { timestep: { seconds: 2e-3, source: 'option', label: '2ms' } })).find((d) => d.code === 'step-inaccurate')!;
+    expect(slice(text, inexact.range)).toBe('Osc');
+    expect(inexact.message).toMatch(/^Osc: at dt = 2 ms one step of the map that generated code takes, fourth-order exponential Runge-Kutta \(ETDRK4\), one step per dt, differs from the exact linearised flow by/);
+    expect(inexact.message).toMatch(/This dt comes from the --timestep option \('2ms'\), which overrides the file's 'timestep 0\.5 \[ms\]'\.$/);
+    const own = OSC('2 [ms]');
+    const onFile = derivedDiagnostics(analyse(own)).find((d) => d.code === 'step-inaccurate')!;
+    expect(slice(own, onFile.range)).toBe('2 [ms]');
   });
 
   test('the hovers on timestep and on an equation, and generated code, use the override', () => {

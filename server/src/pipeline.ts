@@ -9,6 +9,7 @@
 // Architecture invariant: nothing reachable from here imports `vscode` or LSP types, and
 // `analyse` never throws, whatever the text.
 import { parse, type ParseOutput } from './syntax/parse';
+import { docFormDiagnostics } from './syntax/migrate';
 import { resolveFile } from './model/resolve';
 import type { ResolvedFile, ResolvedNeuron } from './model/types';
 import { type Diagnostic, internalError } from './base/diagnostic';
@@ -58,7 +59,12 @@ export const MAX_TEXT_LENGTH = 4 * 1024 * 1024;
 export function analyse(text: string, options: AnalyseOptions = {}): Analysis {
   if (text.length > MAX_TEXT_LENGTH) return tooLarge(text, options);
   const parsed = parse(text);
-  const diagnostics: Diagnostic[] = parsed.errors.map((e): Diagnostic => ({ severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range }));
+  const diagnostics: Diagnostic[] = parsed.errors.map((e): Diagnostic => ({ severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range, ...(e.fixes ? { fixes: e.fixes } : {}) }));
+  try {
+    diagnostics.push(...docFormDiagnostics(text, parsed));
+  } catch (err) {
+    diagnostics.push(internalError('reading the documentation notes', err, { start: 0, end: Math.min(1, text.length) }, 'hint'));
+  }
   let model: ResolvedFile;
   try {
     model = resolveFile(parsed.file, parsed.strayJumps);
@@ -109,7 +115,7 @@ function markIncomplete(model: ResolvedFile, errors: readonly { range: { start: 
 
 /** A text over MAX_TEXT_LENGTH: not parsed (that would take seconds per edit), one 'too-complex' error. */
 function tooLarge(text: string, options: AnalyseOptions): Analysis {
-  const parsed: ParseOutput = { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors: [], strayJumps: [], tokens: [] };
+  const parsed: ParseOutput = { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors: [], strayJumps: [], tokens: [], strayNotes: [] };
   const model: ResolvedFile = { neurons: [], connections: [], symbols: [], references: [], unitsUsed: [], diagnostics: [], exprDims: new Map() };
   const mib = (n: number): string => (n / (1024 * 1024)).toFixed(1);
   const diagnostics: Diagnostic[] = [{ severity: 'error', code: 'too-complex', range: { start: 0, end: Math.min(1, text.length) },

@@ -10,7 +10,7 @@ import { modelNeuron, sampleNeuron } from './models';
 export const KNOCKS = [0.0012, 0.0031, 0.0049, 0.0093, 0.0131, 0.0162, 0.0221, 0.0265, 0.0302, 0.0371];
 
 export const MIXED = `
-neuron Mixed "test-only: time in guard and jumps, non-identity incoming jump" {
+neuron Mixed {  #~ test-only: time in guard and jumps, non-identity incoming jump
   param tau_m = 10 [ms] trainable
   param tau_s = 4 [ms] trainable
   param tau_r = 30 [ms] trainable
@@ -32,7 +32,7 @@ neuron Mixed "test-only: time in guard and jumps, non-identity incoming jump" {
     V := V + 0.05 * w
   }
 }
-neuron Dipper "test-only: fires on a downward crossing" {
+neuron Dipper {  #~ test-only: fires on a downward crossing
   param tau_m = 10 [ms] trainable
   param tau_s = 5 [ms]
   param theta = 1 trainable

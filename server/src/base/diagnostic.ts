@@ -39,6 +39,8 @@ export const DiagnosticCodes = [
   'fires-only-by-jumps',
   'never-fires',
   'reset-on-threshold',
+  'quoted-docstring',
+  'stray-note',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 
@@ -53,6 +55,8 @@ export interface Diagnostic {
   fixes?: Fix[];
   /** Extra places worth showing, e.g. the first declaration for a duplicate. */
   related?: { message: string; range: Range }[];
+  /** How editors may draw it: 'deprecated' (struck through), 'unnecessary' (faded). */
+  tags?: ('deprecated' | 'unnecessary')[];
 }
 
 /** Where caught exceptions are logged with their stack (the language server sets its log). */

@@ -13,6 +13,7 @@ import { generateCommand } from './commands/generate';
 import { adjointCommand } from './commands/adjoint';
 import { stepCommand } from './commands/step';
 import { crosscheckCommand } from './commands/crosscheck';
+import { migrateCommand } from './commands/migrate';
 import { SALTUS_VERSION } from '../base/version';
 
 /** The subcommands, in the order `saltus --help` lists them. */
@@ -23,6 +24,7 @@ export const COMMANDS: readonly Command[] = [
   adjointCommand,
   stepCommand,
   crosscheckCommand,
+  migrateCommand,
 ];
 
 export function usageText(): string {

@@ -33,6 +33,12 @@ export function isDiagnosticData(x: unknown): x is DiagnosticData {
   return typeof x === 'object' && x !== null && Array.isArray((x as DiagnosticData).fixes);
 }
 
+function lspTags(d: Diagnostic): DiagnosticTag[] {
+  const tags = new Set(d.tags ?? []);
+  if (d.code === 'unused-declaration') tags.add('unnecessary');
+  return [...tags].map((t) => (t === 'deprecated' ? DiagnosticTag.Deprecated : DiagnosticTag.Unnecessary));
+}
+
 export function toLspDiagnostic(a: Analysis, d: Diagnostic, uri: string): LspDiagnostic {
   const fixes = fixesFor(a, d).map((f) => ({ title: f.title, preferred: f.preferred === true, edits: f.edits.map((e) => toTextEdit(a, e)) }));
   return {
@@ -43,7 +49,7 @@ export function toLspDiagnostic(a: Analysis, d: Diagnostic, uri: string): LspDia
     source: 'saltus',
     message: d.message,
     // Unused declarations are drawn faded (and listed) by editors that know the tag.
-    ...(d.code === 'unused-declaration' ? { tags: [DiagnosticTag.Unnecessary] } : {}),
+    ...(lspTags(d).length ? { tags: lspTags(d) } : {}),
     ...(d.related?.length ? { relatedInformation: d.related.map((r) => ({ location: { uri, range: toRange(a, r.range) }, message: r.message })) } : {}),
     ...(fixes.length ? { data: { fixes } satisfies DiagnosticData } : {}),
   };

@@ -10,7 +10,7 @@ import * as S from '../symbolic/sym';
 import { evaluate } from '../symbolic/evaluate';
 import { parseUnit } from '../units/unitParse';
 import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, dimPow, isDimensionless, type Dim } from '../units/dimension';
-import { formatDim } from '../units/format';
+import { formatDim, formatDimInOwnUnits } from '../units/format';
 import type { Diagnostic } from '../base/diagnostic';
 import type { SymbolInfo } from './types';
 import { suggestions, unknownName } from './suggest';
@@ -34,6 +34,17 @@ export interface LowerContext {
   unitsUsed: Set<string>;
   exprDims: Map<A.Expr, Dim>;
   references: { range: A.Range; target: SymbolInfo }[];
+  /**
+   * For each `unit-mismatch` diagnostic: the factor (wanted / found) that would make the
+   * offending side fit, for the unit repairs of unitRepair.ts.
+   */
+  mismatchRatios?: Map<Diagnostic, Dim>;
+}
+
+/** Pushes a `unit-mismatch` diagnostic and remembers what the offending side lacks (wanted / found). */
+export function pushMismatch(ctx: LowerContext, d: Diagnostic, wanted: Dim, found: Dim): void {
+  ctx.diagnostics.push(d);
+  ctx.mismatchRatios?.set(d, dimDiv(wanted, found));
 }
 
 const ARITY: Record<S.UserFnName, [number, number]> = {
@@ -44,6 +55,14 @@ const NEEDS_DIMENSIONLESS = new Set<S.UserFnName>(['exp', 'log', 'tanh', 'sigmoi
 export function describe(dim: Dim | undefined, ctx: LowerContext): string {
   if (!dim) return 'unknown';
   return isDimensionless(dim) ? 'dimensionless' : formatDim(dim, [...ctx.unitsUsed]);
+}
+
+/** Two sides of a mismatch in one unit system: both in the file's own units where both can be, else as describe(). */
+export function describeSides(a: Dim, b: Dim, ctx: LowerContext): [string, string] {
+  const units = [...ctx.unitsUsed];
+  const own = (d: Dim): string | null => (isDimensionless(d) ? 'dimensionless' : formatDimInOwnUnits(d, units));
+  const oa = own(a), ob = own(b);
+  return oa !== null && ob !== null ? [oa, ob] : [describe(a, ctx), describe(b, ctx)];
 }
 
 export function lower(e: A.Expr, scope: Scope, ctx: LowerContext): Lowered {
@@ -115,9 +134,10 @@ function lowerBinary(e: A.BinaryExpr, scope: Scope, ctx: LowerContext): Lowered 
     case '+': case '-': {
       let dim = l.dim ?? r.dim;
       if (l.dim && r.dim && !dimEqual(l.dim, r.dim)) {
-        ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: e.right.range,
-          message: `cannot ${e.op === '+' ? 'add' : 'subtract'} ${describe(r.dim, ctx)} ${e.op === '+' ? 'to' : 'from'} ${describe(l.dim, ctx)}`,
-          related: [{ message: `this side is ${describe(l.dim, ctx)}`, range: e.left.range }] });
+        const [lt, rt] = describeSides(l.dim, r.dim, ctx);
+        pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: e.right.range,
+          message: `cannot ${e.op === '+' ? 'add' : 'subtract'} ${rt} ${e.op === '+' ? 'to' : 'from'} ${lt}`,
+          related: [{ message: `this side is ${lt}`, range: e.left.range }] }, l.dim, r.dim);
         dim = undefined;
       }
       return { ...(both ? { sym: e.op === '+' ? S.add(l.sym!, r.sym!) : S.sub(l.sym!, r.sym!) } : {}), ...(dim ? { dim } : {}) };
@@ -194,8 +214,9 @@ function lowerCall(e: A.CallExpr, scope: Scope, ctx: LowerContext): Lowered {
     for (let i = 1; i < args.length; i++) {
       const d = args[i]!.dim;
       if (dim && d && !dimEqual(dim, d)) {
-        ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: e.args[i]!.range,
-          message: `the arguments of ${name} must share a unit: ${describe(dim, ctx)} and ${describe(d, ctx)}` });
+        const [at, bt] = describeSides(dim, d, ctx);
+        pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: e.args[i]!.range,
+          message: `the arguments of ${name} must share a unit: ${at} and ${bt}` }, dim, d);
         return {};
       }
       dim = dim ?? d;

@@ -11,12 +11,13 @@ import { DIMENSIONLESS, TIME, dimDiv, dimEqual, dimMul, isDimensionless, type Di
 import { parseUnit } from '../units/unitParse';
 import type { Diagnostic, Fix } from '../base/diagnostic';
 import { isDerivedSymbolName } from '../base/names';
-import { constantValue, describe, lower, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
+import { constantValue, describe, describeSides, lower, pushMismatch, type Binding, type LowerContext, type Lowered, type Scope } from './lower';
 import { resolveConnections } from './connections';
 import { complexityError } from './complexity';
 import { suggestions, unknownName } from './suggest';
 import { constantProblem, constantUses } from './constants';
 import { formatNumber } from '../units/format';
+import { repairUnits } from './unitRepair';
 import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SymbolInfo } from './types';
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
@@ -25,7 +26,7 @@ export function isReservedName(name: string): boolean {
 }
 
 export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): ResolvedFile {
-  const ctx: LowerContext = { diagnostics: [], unitsUsed: new Set(), exprDims: new Map(), references: [] };
+  const ctx: LowerContext = { diagnostics: [], unitsUsed: new Set(), exprDims: new Map(), references: [], mismatchRatios: new Map() };
   const symbols: SymbolInfo[] = [];
   const neurons: ResolvedNeuron[] = [];
   const seen = new Map<string, SymbolInfo>();
@@ -74,7 +75,8 @@ export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): Reso
     connections, symbols, references: ctx.references, unitsUsed: [...ctx.unitsUsed], diagnostics: ctx.diagnostics, exprDims: ctx.exprDims };
 }
 
-function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInfo[]): ResolvedNeuron | undefined {
+/** `probe`: a re-resolution for unitRepair.ts (no repairs of its own). */
+function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInfo[], probe = false): ResolvedNeuron | undefined {
   if (!decl.name) return undefined;
   // Only this neuron's diagnostics and references are scanned below (linear in the file).
   const diagnosticsBefore = ctx.diagnostics.length, referencesBefore = ctx.references.length;
@@ -206,6 +208,15 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
   checkBounds(lets, flows, flowDecls, fire, incoming, table, ctx);
+  if (!probe && ctx.mismatchRatios) {
+    repairUnits({ decl, diagnostics: ctx.diagnostics.slice(diagnosticsBefore), ratios: ctx.mismatchRatios,
+      references: ctx.references.slice(referencesBefore), unitsUsed: [...ctx.unitsUsed],
+      probe: (d) => {
+        const c: LowerContext = { diagnostics: [], unitsUsed: new Set(), exprDims: new Map(), references: [] };
+        resolveNeuron(d, c, [], true);
+        return c.diagnostics;
+      } });
+  }
   // Only on a neuron that is otherwise sound (a too-complex expression is not walked again).
   if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
@@ -278,8 +289,8 @@ function resolveState(s: StateInfo, d: A.StateDecl, scope: Scope, params: ParamI
   if (d.initial) {
     const v = lower(d.initial, scope, ctx);
     if (declared && v.dim && !dimEqual(declared, v.dim)) {
-      ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: d.initial.range,
-        message: `the initial value of '${s.name}' must be ${describe(declared, ctx)}; it is ${describe(v.dim, ctx)}` });
+      pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: d.initial.range,
+        message: `the initial value of '${s.name}' must be ${describe(declared, ctx)}; it is ${describe(v.dim, ctx)}` }, declared, v.dim);
     }
     s.dim = declared ?? v.dim ?? DIMENSIONLESS;
     if (!s.unitText) s.unitText = unitTextOf(d.initial, table);
@@ -313,11 +324,11 @@ function checkFlowDim(m: A.FlowEq, target: SymbolInfo, rhs: Dim, params: ParamIn
     if (dimEqual(dimDiv(rhs, p.dim!), want)) fixes.push({ title: `Divide the right side by '${p.name}'`, edits: wrap(v, '/', p.name), preferred: fixes.length === 0 });
     else if (dimEqual(dimMul(rhs, p.dim!), want)) fixes.push({ title: `Multiply the right side by '${p.name}'`, edits: wrap(v, '*', p.name), preferred: fixes.length === 0 });
   }
-  ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: v.range,
+  pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: v.range,
     message: (isDimensionless(target.dim!) ? `d${target.name}/dt must be a rate (${describe(want, ctx)}) because ${target.name} is dimensionless`
       : `d${target.name}/dt must be ${describe(target.dim, ctx)} per time (${describe(want, ctx)})`) + `; the right side is ${describe(rhs, ctx)}`
       + (fixes.length ? ` — did you forget to ${fixes[0]!.title.startsWith('Divide') ? 'divide' : 'multiply'} by ${timeParams.find((p) => fixes[0]!.title.includes(`'${p.name}'`))?.name}?` : ''),
-    ...(fixes.length ? { fixes } : {}) });
+    ...(fixes.length ? { fixes } : {}) }, want, rhs);
 }
 
 function wrap(v: A.Expr, op: '/' | '*', name: string): { range: A.Range; newText: string }[] {
@@ -347,8 +358,8 @@ function resolveJumps(jumps: A.Jump[], scope: Scope, table: Map<string, { info: 
     if (!j.value) continue;
     const v = lower(j.value, scope, ctx);
     if (target && v.dim && target.dim && !dimEqual(v.dim, target.dim)) {
-      ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: j.value.range,
-        message: `the new value of '${target.name}' must be ${describe(target.dim, ctx)}; the right side is ${describe(v.dim, ctx)}` });
+      pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: j.value.range,
+        message: `the new value of '${target.name}' must be ${describe(target.dim, ctx)}; the right side is ${describe(v.dim, ctx)}` }, target.dim, v.dim);
     } else if (target && v.sym) out.set(target.name, v.sym);
   }
   return out;
@@ -358,8 +369,9 @@ function resolveFire(m: A.FireBlock, scope: Scope, table: Map<string, { info: Sy
   const l = m.lhs ? lower(m.lhs, scope, ctx) : {};
   const r = m.rhs ? lower(m.rhs, scope, ctx) : {};
   if (m.rhs && l.dim && r.dim && !dimEqual(l.dim, r.dim)) {
-    ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: m.rhs.range,
-      message: `both sides of 'crosses' must share a unit: ${describe(l.dim, ctx)} and ${describe(r.dim, ctx)}` });
+    const [lt, rt] = describeSides(l.dim, r.dim, ctx);
+    pushMismatch(ctx, { severity: 'error', code: 'unit-mismatch', range: m.rhs.range,
+      message: `both sides of 'crosses' must share a unit: ${lt} and ${rt}` }, l.dim, r.dim);
   }
   const jumps = resolveJumps(m.jumps, scope, table, neuron, ctx);
   if (!l.sym || !r.sym || !m.direction) return undefined;
@@ -377,7 +389,7 @@ function resolveIncoming(m: A.IncomingBlock, table: Map<string, { info: SymbolIn
       ...(clash ? { related: [{ message: 'declared here', range: clash.info.nameRange }] } : {}) });
     return undefined;
   }
-  const info: SymbolInfo = { kind: 'weight', name, nameRange: m.weight.range, declRange: m.range, neuron, doc: 'synaptic weight (always trainable)' };
+  const info: SymbolInfo = { kind: 'weight', name, nameRange: m.weight.range, declRange: m.range, neuron, doc: m.doc?.text ?? 'synaptic weight (always trainable)' };
   symbols.push(info);
   let dim: Dim | undefined;
   if (m.unit) {

@@ -141,8 +141,15 @@ function symbolMarkdown(a: Analysis, s: SymbolInfo): string {
     if (inlined !== exprText(decl.value)) lines.push(`inlined: \`${inlined}\``);
   }
   if (s.kind === 'neuron') lines.push(...neuronFacts(a, s.name));
-  if (s.doc && s.kind !== 'weight') lines.push(escapeMarkdown(s.doc));
+  // a weight's default text repeats its facts above; a note written for it is shown
+  if (s.doc && (s.kind !== 'weight' || s.declRange && weightNote(a, s))) lines.push(escapeMarkdown(s.doc));
   return lines.join('\n\n');
+}
+
+/** Whether the incoming block of a weight carries a note of its own. */
+function weightNote(a: Analysis, s: SymbolInfo): boolean {
+  const n = s.neuron ? resolvedNeuron(a, s.neuron) : undefined;
+  return n?.incoming?.decl.doc !== undefined && n.incoming.weight === s.name;
 }
 
 function headerText(a: Analysis, s: SymbolInfo, decl: A.ParamDecl | A.StateDecl | A.LetDecl | undefined): string {

@@ -6,10 +6,10 @@
 import type { UserFnName } from '../symbolic/sym';
 
 export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
-  neuron: 'Declares a neuron model: its parameters, states, flow equations, at most one firing transition and what an incoming spike does. `neuron NAME "doc" { ... }`',
-  param: 'A constant of the model, with its unit: `param NAME = VALUE trainable? "doc"?`. `trainable` asks for its gradient.',
-  state: 'A state variable: it follows its `dX/dt` equation between events and may jump at events. `state NAME [UNIT]? (= VALUE)? "doc"?`; the initial value is 0 when omitted.',
-  let: 'A named sub-expression, substituted wherever it is used; it holds no state of its own. `let NAME = EXPR "doc"?`',
+  neuron: 'Declares a neuron model: its parameters, states, flow equations, at most one firing transition and what an incoming spike does. `neuron NAME { ... }`; a `#~ note` on the line above documents it.',
+  param: 'A constant of the model, with its unit: `param NAME = VALUE trainable?`, documented by a `#~ note` at the end of the line or above it. `trainable` asks for its gradient.',
+  state: 'A state variable: it follows its `dX/dt` equation between events and may jump at events. `state NAME [UNIT]? (= VALUE)?`; the initial value is 0 when omitted; a `#~ note` documents it.',
+  let: 'A named sub-expression, substituted wherever it is used; it holds no state of its own. `let NAME = EXPR`; a `#~ note` documents it.',
   fire: 'The spike-emitting transition: `fire when LHS crosses RHS up|down|either { jumps }`. The neuron spikes where the guard LHS − RHS reaches 0 in that direction; then the jumps apply.',
   when: 'Part of `fire when LHS crosses RHS ...`: introduces the left side of the guard.',
   crosses: 'Separates the two sides of the guard in `fire when LHS crosses RHS ...`; the guard is LHS − RHS and must be a single unit.',

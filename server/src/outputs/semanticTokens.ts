@@ -1,6 +1,7 @@
 // Semantic highlighting: one classified range per token, using standard LSP token types
 // only (keyword, number, string, comment, operator, function, parameter, variable,
-// property, type) and the standard modifiers `declaration` and `readonly`:
+// property, type) and the standard modifiers `declaration`, `readonly`, `documentation`
+// (a `#~` note) and `deprecated` (a quoted docstring, the old form of documentation):
 //   params -> parameter, states -> variable, lets -> variable+readonly,
 //   the incoming weight -> property, neuron names -> type, built-in calls -> function,
 //   `dX/dt` -> variable (the state it differentiates), `t` -> keyword.
@@ -15,7 +16,7 @@ import { FUNCTION_NAMES } from '../symbolic/sym';
 import { tokenRange } from './locate';
 
 export const SEMANTIC_TOKEN_TYPES = ['keyword', 'number', 'string', 'comment', 'operator', 'function', 'parameter', 'variable', 'property', 'type'] as const;
-export const SEMANTIC_TOKEN_MODIFIERS = ['declaration', 'readonly'] as const;
+export const SEMANTIC_TOKEN_MODIFIERS = ['declaration', 'readonly', 'documentation', 'deprecated'] as const;
 export type SemanticType = (typeof SEMANTIC_TOKEN_TYPES)[number];
 export type SemanticModifier = (typeof SEMANTIC_TOKEN_MODIFIERS)[number];
 
@@ -36,7 +37,7 @@ export function semanticTokens(a: Analysis): SemanticToken[] {
     const range = tokenRange(t);
     if (type.startsWith('Kw_')) out.push({ range, type: 'keyword', modifiers: [] });
     else if (type === 'NumberLiteral') out.push({ range, type: 'number', modifiers: [] });
-    else if (type === 'StringLiteral' || type === 'UnitString') out.push({ range, type: 'string', modifiers: [] });
+    else if (type === 'StringLiteral' || type === 'UnitString') out.push({ range, type: 'string', modifiers: type === 'StringLiteral' ? ['deprecated'] : [] });
     else if (OPERATORS.has(type)) out.push({ range, type: 'operator', modifiers: [] });
     else if (type === 'Derivative') out.push({ range, type: 'variable', modifiers: [] });
     else if (type === 'Identifier') {
@@ -51,7 +52,7 @@ export function semanticTokens(a: Analysis): SemanticToken[] {
       }
     }
   }
-  for (const c of a.parse.file.comments) out.push({ range: c.range, type: 'comment', modifiers: [] });
+  for (const c of a.parse.file.comments) out.push({ range: c.range, type: 'comment', modifiers: c.note ? ['documentation'] : [] });
   return out.sort((x, y) => x.range.start - y.range.start);
 }
 

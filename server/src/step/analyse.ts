@@ -1,8 +1,10 @@
-// Step analysis of one neuron at a fixed dt (docs/step-analysis.md): which scheme each state
-// gets, the reference state, the one-step amplification matrix M of the exponential-Euler
-// scheme against the exact propagator P = expm(J dt) of the linearised flow, stability
-// (largest stable dt), accuracy (one-step error against a stated bound), the exact
-// propagator of LTI flows, and how a threshold crossing inside a step is located.
+// Step analysis of one neuron at a fixed dt (docs/step-analysis.md): the step map that generated
+// code and the grid simulator use (map.ts: the exact solution of an acyclic linear
+// time-invariant flow, else ETDRK4 in sub-steps), the reference state, the amplification
+// matrix M = dG/dx of one grid step of that map (mapJacobian.ts) against the exact propagator
+// P = expm(J dt) of the linearised flow, stability (largest stable dt), accuracy (one-step
+// error against a stated bound), the exact propagator of LTI flows, and how a threshold
+// crossing inside a step is located. An exact map is never unstable or inaccurate.
 // Faces: report.ts (JSON, text, hover) and diagnostics.ts.
 //
 // Invariants: pure; never throws (bad input gives NaN figures and `problems`); bounded work
@@ -18,7 +20,8 @@ import { formatQuantity, formatNumber } from '../units/format';
 
 import { type Mat, eigenvalues, expm, frobenius, lin, similarityScale, spectralRadius, sub } from './linalg';
 
-import { buildScheme, flowJacobian, stepJacobianAt } from './scheme';
+import { buildScheme, flowJacobian } from './scheme';
+import { mapJacobian } from './mapJacobian';
 import { exactPropagator, ltiStructure } from './propagator';
 import { type ReferenceState, findReference } from './reference';
 
@@ -70,17 +73,26 @@ export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOpti
   problems.push(...scheme.problems);
   const units = neuron.states.map((s) => unitScale(s.unitText));
   const scales = units.map((u) => u.scale);
-  const states: StepStateReport[] = scheme.entries.map((e, i) => ({ name: e.name, scheme: e.label, kind: e.kind, reason: e.reason, ...units[i]! }));
-  const order = scheme.dynamic.map((i) => scheme.states[i]!);
-  const n = order.length;
   const params = opts.params;
-  const dt = dtSI;
-  const dtOk = dt > 0 && Number.isFinite(dt);
-  if (!dtOk) problems.push(`the timestep must be a positive, finite time (got ${dt} s)`);
-
+  const paramVector = scheme.params.map((p, k) => params instanceof Float64Array ? params[k] ?? NaN
+    : params && Object.prototype.hasOwnProperty.call(params, p) ? (params as Record<string, number>)[p]! : scheme.paramValues[k]!);
   const reference: ReferenceState = neuron.wellFormed
     ? findReference(scheme, scales, params, { maxIterations: opts.maxNewtonIterations ?? 100 })
     : { kind: 'initial', x: Float64Array.from(scheme.initial), note: 'initial state (the model has errors)', iterations: 0 };
+  const mj = mapJacobian(neuron, paramVector, scheme.dynamic, reference.kind === 'rest');
+  if (neuron.wellFormed) problems.push(...mj.map.problems.filter((p) => !problems.includes(p)));
+  const mapScheme = mj.map.exact ? 'exact' : 'exponential-rk4';
+  const states: StepStateReport[] = scheme.entries.map((e, i) => {
+    const m = mj.map.entries.find((x) => x.state === e.name);
+    return { name: e.name, scheme: m?.label ?? (e.kind === 'held' ? 'exact' : mapScheme), kind: e.kind, reason: m?.reason ?? e.reason, ...units[i]! };
+  });
+  const order = scheme.dynamic.map((i) => scheme.states[i]!);
+  const n = order.length;
+  const dt = dtSI;
+  const dtOk = dt > 0 && Number.isFinite(dt);
+  if (!dtOk) problems.push(`the timestep must be a positive, finite time (got ${dt} s)`);
+  const map = { scheme: mapScheme, exact: mj.map.exact, reason: mj.map.reason, substeps: dtOk ? mj.substeps(dt) : 1 } as const;
+
   const describe = (x: Float64Array): string => neuron.states.map((s, i) => `${s.name} = ${s.dim ? formatQuantity(x[i]!, s.dim, s.unitText) : formatNumber(x[i]!)}`).join(', ');
   const refNote = `${reference.note}${reference.rejected ? ` (that point: ${describe(reference.rejected)})` : ''}: ${describe(reference.x)}`;
   const values: Record<string, number> = {};
@@ -89,10 +101,9 @@ export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOpti
   const lti = ltiStructure(scheme);
   const exact = dtOk && neuron.wellFormed ? exactPropagator(scheme, params, dt, lti) : null;
   const crossing = neuron.wellFormed && dtOk ? analyseCrossing(neuron, scheme, reference.x, scales, params, dt) : null;
-  const anyLinearised = scheme.entries.some((e) => e.kind === 'linearised');
-  const recommended = exact ? 'exact-propagator' : anyLinearised ? 'linearised-exponential-euler' : n > 0 ? 'exponential-euler' : 'exact';
+  const recommended = exact ? 'exact-propagator' : n > 0 ? mapScheme : 'exact';
   const common = { neuron: neuron.name, dt_s: dt, states, order, reference: { kind: reference.kind, values, note: refNote },
-    accuracyBound: bound, lti: { linear: lti.linear, reason: lti.reason }, exactPropagator: exact, recommended, crossing, problems } as const;
+    accuracyBound: bound, lti: { linear: lti.linear, reason: lti.reason }, exactPropagator: exact, map, recommended, crossing, problems } as const;
 
   if (!neuron.wellFormed) {
     return { ...common, lti: { linear: false, reason: 'not assessed: the model has errors' }, jacobian: [], stepMatrix: [], flowPropagator: [],
@@ -108,9 +119,11 @@ export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOpti
   const J = flowJacobian(scheme, reference.x, params);
   const d = gainScaling(J, dtOk ? 1 / dt : 1);
   const Js = similarityScale(J, d);
-  const stepAt = stepJacobianAt(scheme, reference.x, params);
+  // M at dt along the sub-steps' own path; the dt scans take every sub-step's Jacobian at the
+  // reference (the same thing at rest; the linearisation there otherwise)
+  const stepAt = (h: number): Mat => mj.at(reference.x, h, true);
   const flowAt = (h: number): Mat => expm(lin([[h, Js]]));
-  const M = dtOk ? stepAt(dt) : nanMat(n);
+  const M = dtOk ? mj.at(reference.x, dt) : nanMat(n);
   const Ps = dtOk ? flowAt(dt) : nanMat(n);
   const P = similarityScale(Ps, d.map((v) => 1 / v));
   const relError = (m: Mat, ps: Mat): number => {
@@ -132,14 +145,21 @@ export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOpti
   const lamAbs = evJ.map((z) => Math.hypot(z.re, z.im));
   const lamMax = Math.max(...lamAbs);
   const growing = evJ.filter((z) => z.re > 1e-12 * lamMax).length;
-  const stableAt = (h: number): boolean => {
-    const ev = eigenvalues(similarityScale(stepAt(h), d));
+  const stableMat = (m: Mat): boolean => {
+    const ev = eigenvalues(similarityScale(m, d));
     if (!ev) return false;
     return ev.filter((z) => Math.hypot(z.re, z.im) > 1 + AMPLIFICATION_TOLERANCE).length <= growing;
   };
+  const stableAt = (h: number): boolean => stableMat(stepAt(h));
   const accurateAt = (h: number): boolean => relError(stepAt(h), flowAt(h)) <= bound;
-  const stable = dtOk && stableAt(dt);
-  const accurate = dtOk && accurateAt(dt);
+  if (mj.map.exact) {
+    // the map is the exact solution of this linear flow: M equals P up to rounding, at every dt
+    return { ...common, jacobian: J, stepMatrix: M, flowPropagator: P, stepRadius, exactRadius, relativeStepError,
+      stable: dtOk, unstable: false, maxStableDt_s: null, accurate: dtOk, accurateDt_s: null,
+      stabilityNote: 'the step map is the exact solution of this linear time-invariant flow: stable and exact at every dt' };
+  }
+  const stable = dtOk && stableMat(M);
+  const accurate = dtOk && relativeStepError <= bound;
 
   // scan range: from well below the fastest time scale to far beyond the slowest
   const slow = lamAbs.filter((v) => v > 1e-12 * lamMax);
@@ -147,16 +167,19 @@ export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOpti
   const lo = lamMax > 0 ? Math.min(base, 1e-3 / lamMax) : base * 1e-6;
   const hi = slow.length ? Math.max(base * 10, 1e4 / Math.min(...slow)) : base * 1e6;
   const maxPoints = opts.maxScanPoints ?? 400;
-  // stability: fine grid (an unstable window between grid points is missed, see docs);
-  // accuracy: the error grows smoothly with dt, so a coarse grid and 1e-6 bisection suffice
-  const stab = firstFailure(stableAt, lo, Math.min(hi, lo * 1e30), { maxPoints });
-  const acc = firstFailure(accurateAt, lo, Math.min(hi, lo * 1e30), { maxPoints, perOctave: 1, relTol: 1e-6 });
+  // stability: a grid of 2 points per factor 2 of dt (an unstable window between grid points is
+  // missed, see docs), up to 10^4 dt; accuracy: the error grows smoothly with dt, so one point
+  // per factor 2 and 1e-4 bisection suffice. Each point evaluates the map's Jacobian (ETDRK4
+  // through its stages), which is costly, hence the coarse grids.
+  const top = Math.min(hi, lo * 1e30, base * 1e4);
+  const stab = firstFailure(stableAt, lo, top, { maxPoints, perOctave: 2, relTol: 1e-6 });
+  const acc = firstFailure(accurateAt, lo, top, { maxPoints, perOctave: 1, relTol: 1e-4 });
   const maxStableDt = stab.kind === 'none' ? null : stab.kind === 'at-start' ? 0 : stab.dt;
   const accurateDt = acc.kind === 'none' ? null : acc.kind === 'at-start' ? 0 : acc.dt;
 
   const t = (s: number): string => formatTime(s);
   const stabilityNote = stab.kind === 'none'
-    ? `stable at every dt scanned (${t(lo)} to ${t(Math.min(hi, lo * 1e30))})`
+    ? `stable at every dt scanned (${t(lo)} to ${t(top)})`
     : stab.kind === 'at-start' ? `unstable already at the smallest dt scanned (${t(lo)})`
       : `stable for dt up to ${t(stab.dt)} (bisection on the spectral radius of M)`;
   const unstable = dtOk && !stable;

@@ -1,6 +1,7 @@
-// Where a fixed-step simulation puts a threshold crossing (docs/step-analysis.md, "Guard on
-// the grid"). The guard g = LHS - RHS is evaluated at the grid points only; a sign change
-// in the declared direction between t_k and t_k + dt is located by linear interpolation
+// Where a fixed-step simulation puts a threshold crossing (docs/step-analysis.md, "Threshold on
+// the grid"). Generated code and the grid simulator locate a crossing on the step map's own
+// path inside the step (docs/network-step.md), to rounding; for comparison this reports what
+// linear interpolation of the guard between two grid values would give,
 //   t* ~ t_k + dt g_k / (g_k - g_{k+1}).
 // Bound: the linear interpolant p of g on one step satisfies |g - p| <= dt^2 max|g''| / 8
 // (the Lagrange interpolation remainder for n = 1, e.g. Burden & Faires, Numerical Analysis;
@@ -55,8 +56,8 @@ export function analyseCrossing(neuron: ResolvedNeuron, scheme: StepScheme, refe
   const rate = alongFlow(guard, scheme);
   const curvature = alongFlow(rate, scheme);
   const direction = fire.direction;
-  const method = 'the guard is evaluated at the grid points; a sign change in the declared direction within a step is located by linear interpolation of the guard between the two grid values';
-  const bound = "|t_located - t_true| <= dt^2 max|g''| / (8 min|g'|) near the crossing (g' and g'' the time derivatives of the guard along the flow); up to dt without interpolation; a crossing that leaves and re-enters within one step (an excursion smaller than about dt^2 |g''| / 8) is not seen at all";
+  const method = "the guard is tested at both ends of each segment; a sign change in the declared direction is located on the step map's own path inside the step (Newton iterations in a shrinking bracket, to rounding), so the spike time carries only the map's own error";
+  const bound = "for comparison, linear interpolation of the guard between grid values (a simulator without the map's path) is within dt^2 max|g''| / (8 min|g'|) near the crossing (g' and g'' the time derivatives of the guard along the flow), and up to dt without interpolation; with either, a crossing that leaves and re-enters within one step (an excursion smaller than about dt^2 |g''| / 8) is not seen at all";
   const base = { method, guard, rate, curvature, direction, bound, gridBound_s: dt };
 
   const value = (s: Sym, x: Float64Array): number => {

@@ -165,11 +165,18 @@ function rk4Map(scheme: StepScheme, reason: string): StepMap {
       mul(H, add(mul(c0, n('N0')(i)), mul(cab, add(n('NA')(i), n('NB')(i))), mul(cc, n('NC')(i))))));
   });
   const entries = scheme.entries.map((e) => ({ state: e.name, label: (e.kind === 'held' ? 'exact' : 'exponential-rk4') as MapScheme,
-    reason: e.kind === 'held' ? e.reason : `${e.reason.replace(/ \((linearised )?exponential Euler\)$/, '')}; fourth-order exponential Runge-Kutta with a = ${short(e.a)} frozen over the step` }));
+    reason: e.kind === 'held' ? e.reason : `${splitWords(e)}: fourth-order exponential Runge-Kutta with the linear part a = ${e.kind === 'linearised' ? `d f/d ${e.name} = ` : ''}${short(e.a)} frozen over each (sub-)step` }));
   return { neuron: scheme.neuron, states, params: scheme.params, stages, next, exact: false, reason, entries, problems: [] };
 }
 
 const short = (s: Sym): string => { const t = toPlain(s); return t.length > 60 ? `${t.slice(0, 57)}...` : t; };
+
+/** How a state's flow splits, in words: 'affine in I (a = -1 / tau_s, b = 0)', 'not affine in V (... through exp(...))'. */
+function splitWords(e: StepScheme['entries'][number]): string {
+  if (e.kind === 'affine') return `affine in ${e.name} (a = ${short(e.a)}, b = ${e.b ? short(e.b) : '?'})`;
+  const m = /^(not affine in \S+ \(.*\)): linearised/.exec(e.reason);
+  return m ? m[1]! : `not affine in ${e.name}`;
+}
 
 /**
  * e^{A h} x + (int_0^h e^{A s} ds) c for an acyclic coupling graph, as path sums of divided

@@ -3,19 +3,23 @@
 // Invariants: pure; JSON has only finite numbers or null (NaN and infinities become null);
 // every time in JSON is in SI seconds.
 import { formatNumber } from '../units/format';
-import type { SchemeLabel, StepReport } from './types';
+import type { MapSchemeLabel, StepReport } from './types';
 
 
 export interface StepJsonModel {
   name: string;
   dt_s: number | null;
   reference: 'rest' | 'initial';
-  states: Record<string, { scheme: SchemeLabel }>;
+  states: Record<string, { scheme: MapSchemeLabel }>;
   stepRadius: number | null;
   exactRadius: number | null;
   relativeStepError: number | null;
   maxStableDt_s: number | null;
   exactPropagator: (number | null)[][] | null;
+  /** The step map judged: 'exact' (never unstable or inaccurate) or 'exponential-rk4'. */
+  map: MapSchemeLabel;
+  /** Sub-steps of the map per grid step of dt_s (1 for an exact map). */
+  substeps: number;
 }
 export interface StepJson { models: StepJsonModel[] }
 
@@ -24,7 +28,7 @@ const fin = (v: number): number | null => (Number.isFinite(v) ? v : null);
 export function stepReportJson(reports: readonly StepReport[]): StepJson {
   return {
     models: reports.map((r) => {
-      const states: Record<string, { scheme: SchemeLabel }> = {};
+      const states: Record<string, { scheme: MapSchemeLabel }> = {};
       for (const s of r.states) states[s.name] = { scheme: s.scheme };
       return {
         name: r.neuron,
@@ -36,6 +40,8 @@ export function stepReportJson(reports: readonly StepReport[]): StepJson {
         relativeStepError: fin(r.relativeStepError),
         maxStableDt_s: r.maxStableDt_s === null ? null : fin(r.maxStableDt_s),
         exactPropagator: r.exactPropagator ? r.exactPropagator.matrix.map((row) => row.map(fin)) : null,
+        map: r.map.scheme,
+        substeps: r.map.substeps,
       };
     }),
   };
@@ -58,9 +64,17 @@ function stabilityLine(r: StepReport): string {
 }
 
 function accuracyLine(r: StepReport): string {
+  if (r.map.exact) return `relative one-step error ||M - P|| / ||P|| = ${num(r.relativeStepError, 3)} (rounding: the map is exact at every dt)`;
   const within = r.relativeStepError <= r.accuracyBound;
   const limit = r.accurateDt_s === null ? 'within the bound at every dt scanned' : `within the bound for dt up to ${formatTime(r.accurateDt_s)}`;
   return `relative one-step error ||M - P|| / ||P|| = ${num(r.relativeStepError, 3)} (${within ? 'within' : 'ABOVE'} the ${pct(r.accuracyBound)} bound); ${limit}`;
+}
+
+/** 'the exact solution of the flow' or 'ETDRK4 in 4 sub-steps of 0.025 ms'. */
+export function mapWords(r: StepReport): string {
+  if (r.map.exact) return 'the exact solution of the flow over any step';
+  const m = r.map.substeps;
+  return `fourth-order exponential Runge-Kutta (ETDRK4)${m > 1 ? ` in ${m} sub-steps of ${formatTime(r.dt_s / m)}` : ', one step per dt'}`;
 }
 
 /** Plain text for `saltus step FILE`. */
@@ -68,10 +82,11 @@ export function stepReportText(reports: readonly StepReport[]): string {
   const out: string[] = [];
   for (const r of reports) {
     out.push(`${r.neuron}  (dt = ${formatTime(r.dt_s)})`);
+    out.push(`  step map (what generated code runs): ${mapWords(r)}`);
     out.push(`  reference: ${r.reference.kind} - ${r.reference.note}`);
     out.push('  states:');
     const w = Math.max(...r.states.map((s) => s.name.length), 1);
-    for (const s of r.states) out.push(`    ${s.name.padEnd(w)}  ${s.scheme.padEnd(28)}  ${s.reason}`);
+    for (const s of r.states) out.push(`    ${s.name.padEnd(w)}  ${s.scheme.padEnd(16)}  ${s.reason}`);
     if (r.order.length && !Number.isFinite(r.stepRadius)) {
       out.push('  figures: not assessed');
     } else if (r.order.length) {
@@ -80,17 +95,17 @@ export function stepReportText(reports: readonly StepReport[]): string {
     }
     out.push(`  stability: ${stabilityLine(r)}`);
     if (r.exactPropagator) {
-      out.push(`  exact propagator (${r.exactPropagator.method}; recommended for this linear time-invariant flow), x(t + dt) = P x(t) + q:`);
+      out.push(`  exact propagator (${r.exactPropagator.method}; this linear time-invariant flow has one), x(t + dt) = P x(t) + q:`);
       out.push(...matrixLines(r.exactPropagator.matrix, r.exactPropagator.states, '    '));
       if (r.exactPropagator.offset.some((v) => v !== 0)) out.push(`    q = [ ${r.exactPropagator.offset.map((v) => num(v)).join('  ')} ]`);
     } else {
-      out.push(`  exact propagator: none (${r.lti.reason}); recommended scheme: ${r.recommended}`);
+      out.push(`  exact propagator: none (${r.lti.reason})`);
     }
     if (r.crossing) {
       out.push(`  threshold on the grid: ${r.crossing.method}`);
       out.push(`    bound: ${r.crossing.bound}`);
       out.push(r.crossing.probe
-        ? `    ${r.crossing.probeNote}: spike time within about ${formatTime(r.crossing.probe.timeError_s)} (without interpolation: ${formatTime(r.crossing.gridBound_s)})`
+        ? `    ${r.crossing.probeNote}: linear interpolation would place the spike within about ${formatTime(r.crossing.probe.timeError_s)} (without interpolation: ${formatTime(r.crossing.gridBound_s)})`
         : `    ${r.crossing.probeNote}`);
     }
     for (const p of r.problems) out.push(`  note: ${p}`);
@@ -110,10 +125,10 @@ export function stepHoverMarkdown(report: StepReport, stateName?: string): strin
       const i = r.exactPropagator.states.indexOf(st.name);
       const row = r.exactPropagator.matrix[i]!.map((v, j) => `${num(v)}·${r.exactPropagator!.states[j]}`).join(' + ');
       const q = r.exactPropagator.offset[i]!;
-      lines.push(`Exact propagator over dt = ${formatTime(r.dt_s)} (recommended): \`${st.name}(t+dt) = ${row}${q !== 0 ? ` + ${num(q)}` : ''}\``, '');
+      lines.push(`Exact propagator over dt = ${formatTime(r.dt_s)}${r.map.exact ? ' (what the step map computes)' : ''}: \`${st.name}(t+dt) = ${row}${q !== 0 ? ` + ${num(q)}` : ''}\``, '');
     }
   } else {
-    lines.push(`**Step analysis of \`${r.neuron}\`** at dt = ${formatTime(r.dt_s)}`, '');
+    lines.push(`**Step analysis of \`${r.neuron}\`** at dt = ${formatTime(r.dt_s)}: the step map is ${mapWords(r)}`, '');
     for (const s of r.states) lines.push(`- \`${s.name}\`: ${s.scheme}`);
     lines.push('');
   }
@@ -122,11 +137,11 @@ export function stepHoverMarkdown(report: StepReport, stateName?: string): strin
     lines.push(`Spectral radius of the step ${num(r.stepRadius, 4)}, of the exact flow ${num(r.exactRadius, 4)}; ${accuracyLine(r)}.`, '');
   }
   lines.push(`Stability: ${stabilityLine(r)}.`);
-  if (!st && r.exactPropagator) lines.push('', `An exact propagator exists (${r.exactPropagator.method}); it is the recommended scheme for this flow.`);
+  if (!st && r.exactPropagator && !r.map.exact) lines.push('', `An exact propagator exists (${r.exactPropagator.method}), but the states are coupled in a cycle, so the step map takes ETDRK4.`);
   if (!st && r.crossing) {
-    lines.push('', `Threshold: located by linear interpolation of the guard within a step; ${r.crossing.probe
-      ? `spike-time error about ${formatTime(r.crossing.probe.timeError_s)} at the probe crossing`
-      : 'error bound dt^2 max|g\'\'| / (8 |g\'|)'} (up to ${formatTime(r.crossing.gridBound_s)} without interpolation).`);
+    lines.push('', `Threshold: located on the step map's own path inside the step, to rounding; linear interpolation of the guard between grid values would be off by ${r.crossing.probe
+      ? `about ${formatTime(r.crossing.probe.timeError_s)} at the probe crossing`
+      : 'up to dt^2 max|g\'\'| / (8 |g\'|)'} (up to ${formatTime(r.crossing.gridBound_s)} without interpolation).`);
   }
   for (const p of r.problems) lines.push('', `Note: ${p}`);
   return lines.join('\n');

@@ -20,7 +20,11 @@ export const MAX_SUBSTEPS = 64;
 
 /** Sub-steps of the map over a grid step of dt (1 for an exact map). */
 export function substepsFor(neuron: ResolvedNeuron, dt: number): number {
-  const rate = substepRate(neuron);
+  return substepsForRate(substepRate(neuron), dt);
+}
+
+/** The rule above for a known fastest rate (1/s). */
+export function substepsForRate(rate: number, dt: number): number {
   let n = 1;
   if (!(dt > 0)) return n;
   while (n < MAX_SUBSTEPS && rate * dt / n > SUBSTEP_RATE_BOUND) n *= 2;

@@ -5,6 +5,8 @@ import type { Compiled } from '../symbolic/evaluate';
 import type { Mat } from './linalg';
 
 export type SchemeLabel = 'exact' | 'exponential-euler' | 'linearised-exponential-euler';
+/** The scheme of a state's update in the step map that generated code and the grid use (map.ts). */
+export type MapSchemeLabel = 'exact' | 'exponential-rk4';
 
 /** held: no flow; affine: exact split a_i x_i + b_i; linearised: a_i = df_i/dx_i at the state. */
 export type SchemeKind = 'held' | 'affine' | 'linearised';
@@ -78,7 +80,9 @@ export interface ExactPropagator {
 
 export interface StepStateReport {
   name: string;
-  scheme: SchemeLabel;
+  /** The scheme of this state in the step map: its exact flow, or fourth-order exponential Runge-Kutta. */
+  scheme: MapSchemeLabel;
+  /** How the flow splits in this state (held, affine, or linearised for the frozen linear part). */
   kind: SchemeKind;
   reason: string;
   /** Unit written for the state (for display and Newton's coordinates), and its SI size. */
@@ -95,7 +99,7 @@ export interface StepReport {
   reference: { kind: 'rest' | 'initial'; values: Record<string, number>; note: string };
   /** J = df/dx at the reference (SI). */
   jacobian: Mat;
-  /** M: Jacobian of one exponential-Euler step at the reference (SI). */
+  /** M: Jacobian of one grid step of the step map (all its sub-steps) at the reference (SI). */
   stepMatrix: Mat;
   /** P = expm(J dt) (SI). */
   flowPropagator: Mat;
@@ -116,7 +120,9 @@ export interface StepReport {
   accurateDt_s: number | null;
   lti: { linear: boolean; reason: string };
   exactPropagator: ExactPropagator | null;
-  recommended: 'exact-propagator' | SchemeLabel;
+  /** The step map judged here: exact (then never unstable or inaccurate) or ETDRK4 in sub-steps. */
+  map: { scheme: MapSchemeLabel; exact: boolean; reason: string; substeps: number };
+  recommended: 'exact-propagator' | SchemeLabel | MapSchemeLabel;
   crossing: CrossingReport | null;
   problems: string[];
 }

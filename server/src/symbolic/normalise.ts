@@ -11,7 +11,8 @@
 //   integer powers of products distributed, (x^a)^b merged only where that is an identity
 //   wherever the left side is real (b integer, or a not an even integer: (x^2)^0.5 stays,
 //   it is |x|, not x), sqrt(u)^(2k) -> u^k, |u|^(2k) -> u^(2k);
-// - fn: arguments canonical, numeric calls folded when finite, `pow(a,b)` becomes a pow node,
+// - fn: arguments canonical, numeric calls folded when finite (exp, log, sqrt, tanh and sigmoid
+//   only where the value is a simple dyadic number: exp(5) stays), `pow(a,b)` becomes a pow node,
 //   log(exp(u)) -> u, abs(c*X) -> |c|*abs(X), min/max flattened, deduplicated and ordered.
 // Rules may only extend the domain (x*x^-1 -> 1 is also defined at x = 0): where the input
 // is finite the value is unchanged up to rounding (and up to underflow: (x^3)^0.5 is 0 at
@@ -197,6 +198,9 @@ function buildPow(base: Sym, exp: Sym): Sym {
   return mark({ k: 'pow', base, exp });
 }
 
+/** Functions whose value at a number is kept as a call unless it is a simple (dyadic) number. */
+const TRANSCENDENTAL = new Set<string>(['exp', 'log', 'sqrt', 'tanh', 'sigmoid']);
+
 function buildFn(name: FnName, args: Sym[]): Sym {
   if (!arityOk(name, args.length)) return mark({ k: 'fn', name, args });
   if (name === 'pow') return buildPow(args[0]!, args[1]!);
@@ -213,7 +217,9 @@ function buildFn(name: FnName, args: Sym[]): Sym {
   const a = args[0]!;
   if (a.k === 'num') {
     const v = applyFunction(name, [a.v]);
-    if (Number.isFinite(v)) return mkNum(v);
+    // a transcendental constant stays a call (exp(5), not 148.4131591025766), so that printed
+    // formulas keep the expression it came from; exact values (exp(0), sigmoid(0)) are folded
+    if (Number.isFinite(v) && (!TRANSCENDENTAL.has(name) || v * 64 === Math.round(v * 64))) return mkNum(v);
   }
   if (name === 'log' && a.k === 'fn' && a.name === 'exp' && a.args.length === 1) return a.args[0]!;
   if (name === 'abs') {

@@ -6,6 +6,7 @@
 // broken text yields a tree with `undefined` holes plus errors, never an exception.
 
 import type { Range } from '../base/range';
+import type { Fix } from '../base/diagnostic';
 export type { Range };
 
 export interface Ident { name: string; range: Range }
@@ -31,14 +32,21 @@ export interface ParenExpr { kind: 'paren'; inner: Expr; range: Range }
 
 export interface Quantity { expr: Expr; range: Range }
 
-export interface ParamDecl {
+/**
+ * What every documentable declaration carries: `doc`, its documentation as shown (its `#~`
+ * notes and a quoted docstring, merged by syntax/notes.ts), and `quotedDoc`, the deprecated
+ * quoted docstring as written, when there is one.
+ */
+export interface Documented { doc?: DocString; quotedDoc?: DocString }
+
+export interface ParamDecl extends Documented {
   kind: 'param'; name: Ident; value?: Expr; trainable: boolean; trainableRange?: Range;
-  doc?: DocString; range: Range; keywordRange: Range;
+  range: Range; keywordRange: Range;
 }
-export interface StateDecl {
-  kind: 'state'; name: Ident; unit?: UnitText; initial?: Expr; doc?: DocString; range: Range; keywordRange: Range;
+export interface StateDecl extends Documented {
+  kind: 'state'; name: Ident; unit?: UnitText; initial?: Expr; range: Range; keywordRange: Range;
 }
-export interface LetDecl { kind: 'let'; name: Ident; value?: Expr; doc?: DocString; range: Range; keywordRange: Range }
+export interface LetDecl extends Documented { kind: 'let'; name: Ident; value?: Expr; range: Range; keywordRange: Range }
 /** `dX/dt = EXPR`; `target` is X with the range of the X inside the `dX/dt` token. */
 export interface FlowEq { kind: 'flow'; target: Ident; derivRange: Range; value?: Expr; range: Range }
 export interface Jump { kind: 'jump'; target: Ident; value?: Expr; range: Range }
@@ -48,16 +56,20 @@ export interface FireBlock {
   kind: 'fire'; lhs?: Expr; rhs?: Expr; direction?: Direction; directionRange?: Range;
   jumps: Jump[]; range: Range; keywordRange: Range;
 }
-export interface IncomingBlock {
+/** `doc`: the weight's documentation (its `#~` notes; an incoming block has no quoted docstring). */
+export interface IncomingBlock extends Documented {
   kind: 'incoming'; weight?: Ident; unit?: UnitText; jumps: Jump[]; range: Range; keywordRange: Range;
+  /** The offset just after the block's `{`, when present. */
+  openEnd?: number;
 }
 
 export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock;
 
+/** Documentation text; `range` covers what it was read from (the note comments, or the quoted string). */
 export interface DocString { text: string; range: Range }
 
-export interface NeuronDecl {
-  kind: 'neuron'; name?: Ident; doc?: DocString; members: Member[];
+export interface NeuronDecl extends Documented {
+  kind: 'neuron'; name?: Ident; members: Member[];
   range: Range; keywordRange: Range; bodyRange?: Range;
 }
 export interface TimestepDecl { kind: 'timestep'; value?: Expr; range: Range; keywordRange: Range }
@@ -65,7 +77,8 @@ export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; range:
 
 export type TopLevel = NeuronDecl | TimestepDecl | ConnectDecl;
 
-export interface Comment { text: string; range: Range }
+/** A comment; `note` when it is a documentation note (`#~ ...`, syntax/notes.ts). */
+export interface Comment { text: string; range: Range; note?: boolean }
 
 export interface SourceFile {
   kind: 'file';
@@ -75,6 +88,12 @@ export interface SourceFile {
 }
 
 /** A lexer or parser error; `code` is set where a size or nesting limit (not the grammar) stopped the parser. */
-export interface SyntaxError { message: string; range: Range; code?: 'too-complex' }
+export interface SyntaxError {
+  message: string; range: Range;
+  /** 'too-complex': a size or nesting limit; 'unsupported': a construct not in the language yet. */
+  code?: 'too-complex' | 'unsupported';
+  /** Edits that repair the text (a bare unit put in brackets, `>` written as `crosses ... up`). */
+  fixes?: Fix[];
+}
 
 export interface ParseResult { file: SourceFile; errors: SyntaxError[] }

@@ -54,7 +54,11 @@ function unescapeString(raw: string): string {
   return raw.slice(1, -1).replace(/\\(.)/g, '$1');
 }
 function docString(t: IToken | undefined): A.DocString | undefined {
-  return t ? { text: unescapeString(t.image), range: tokRange(t) } : undefined;
+  return t ? { text: unescapeString(t.image).trim(), range: tokRange(t) } : undefined;
+}
+/** A quoted docstring (deprecated form): kept as `quotedDoc`, and the shown `doc` until notes.ts merges the notes in. */
+function quoted(d: A.DocString | undefined): A.Documented {
+  return d ? { doc: d, quotedDoc: d } : {};
 }
 
 function unitText(n: CstNode | undefined): A.UnitText | undefined {
@@ -77,8 +81,10 @@ function unitText(n: CstNode | undefined): A.UnitText | undefined {
  */
 export const MAX_EXPR_DEPTH = 1000;
 
-/** Limit errors of the current buildFile call (reset there; the build is synchronous). */
+/** Limit errors (and the comparison error) of the current buildFile call (reset there; the build is synchronous). */
 let limitErrors: A.SyntaxError[] = [];
+/** The text of the current buildFile call, for the fixes it offers. */
+let source = '';
 
 /** Depth of an expression tree, without recursion (the tree may be deeper than the stack allows). */
 export function exprDepth(root: A.Expr): number {
@@ -150,9 +156,10 @@ export function buildExpr(n: CstNode | undefined): A.Expr | undefined {
 function buildPrimary(ch: Children): A.Expr | undefined {
   const numTok = tok(ch, 'NumberLiteral');
   if (numTok) {
-    const unit = unitText(node(ch, 'unit'));
+    const bare = tok(ch, 'BareUnit'); // `5 ms`: reported by recover.ts; read as the unit it is
+    const unit = bare ? { text: bare.image, range: tokRange(bare) } : unitText(node(ch, 'unit'));
     const unitNode = node(ch, 'unit');
-    const r = unitNode ? span(tokRange(numTok), rangeOf(unitNode)) : tokRange(numTok);
+    const r = unitNode ? span(tokRange(numTok), rangeOf(unitNode)) : bare ? span(tokRange(numTok), tokRange(bare)) : tokRange(numTok);
     const e: A.NumberExpr = { kind: 'number', value: Number(numTok.image), raw: numTok.image, range: r };
     if (unit) e.unit = unit;
     return e;
@@ -208,7 +215,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const tr = tok(ch, 'Kw_trainable');
       const doc = docString(tok(ch, 'StringLiteral'));
       return { kind: 'param', name, trainable: !!tr, ...(tr ? { trainableRange: tokRange(tr) } : {}),
-        ...(value ? { value } : {}), ...(doc ? { doc } : {}), range, keywordRange: kwRange('Kw_param') };
+        ...(value ? { value } : {}), ...quoted(doc), range, keywordRange: kwRange('Kw_param') };
     }
     case 'stateDecl': {
       const name = ident(tok(ch, 'Identifier'));
@@ -216,7 +223,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const unit = unitText(node(ch, 'unit'));
       const initial = rootExpr(node(ch, 'expr'));
       const doc = docString(tok(ch, 'StringLiteral'));
-      return { kind: 'state', name, ...(unit ? { unit } : {}), ...(initial ? { initial } : {}), ...(doc ? { doc } : {}),
+      return { kind: 'state', name, ...(unit ? { unit } : {}), ...(initial ? { initial } : {}), ...quoted(doc),
         range, keywordRange: kwRange('Kw_state') };
     }
     case 'letDecl': {
@@ -224,7 +231,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       if (!name) return undefined;
       const value = rootExpr(node(ch, 'expr'));
       const doc = docString(tok(ch, 'StringLiteral'));
-      return { kind: 'let', name, ...(value ? { value } : {}), ...(doc ? { doc } : {}), range, keywordRange: kwRange('Kw_let') };
+      return { kind: 'let', name, ...(value ? { value } : {}), ...quoted(doc), range, keywordRange: kwRange('Kw_let') };
     }
     case 'flowEq': {
       const d = tok(ch, 'Derivative');
@@ -240,16 +247,31 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const rhs = rootExpr(node(ch, 'rhs'));
       const dirNode = node(ch, 'direction');
       const dirTok = dirNode ? Object.values(dirNode.children)[0]?.[0] : undefined;
-      const dt = dirTok && isToken(dirTok) && real(dirTok) ? dirTok : undefined;
+      let dt = dirTok && isToken(dirTok) && real(dirTok) ? dirTok : undefined;
+      const compare = tok(ch, 'Compare');
+      let direction: A.Direction | undefined = dt ? dt.image as A.Direction : undefined;
+      if (compare) {
+        // `fire when V > V_th`: one error, one fix, and the block read as the crossing it means
+        direction = compare.image.startsWith('>') ? 'up' : 'down';
+        const cr = tokRange(compare);
+        const word = direction === 'up' ? 'rising' : 'falling';
+        const rhsText = rhs ? source.slice(rhs.range.start, rhs.range.end) : undefined;
+        limitErrors.push({ range: rhs ? { start: cr.start, end: rhs.range.end } : cr,
+          message: `a threshold is a crossing, not a comparison: write '${lhs ? source.slice(lhs.range.start, lhs.range.end) : 'V'} crosses ${rhsText ?? 'THRESHOLD'} ${direction}' (the spike fires where the left side reaches the right side while ${word})`,
+          ...(rhs && rhsText !== undefined ? { fixes: [{ title: `Write 'crosses ${rhsText} ${direction}'`, edits: [{ range: { start: cr.start, end: rhs.range.end }, newText: `crosses ${rhsText} ${direction}` }], preferred: true }] } : {}) });
+        dt = undefined;
+      }
       return { kind: 'fire', ...(lhs ? { lhs } : {}), ...(rhs ? { rhs } : {}),
-        ...(dt ? { direction: dt.image as A.Direction, directionRange: tokRange(dt) } : {}),
+        ...(direction ? { direction, directionRange: dt ? tokRange(dt) : tokRange(compare!) } : {}),
         jumps: buildJumps(node(ch, 'jumpBlock')), range, keywordRange: kwRange('Kw_fire') };
     }
     case 'incomingBlock': {
       const weight = ident(tok(ch, 'Identifier'));
       const unit = unitText(node(ch, 'unit'));
+      const block = node(ch, 'jumpBlock');
+      const open = block ? tok(block.children, 'LCurly') : undefined;
       return { kind: 'incoming', ...(weight ? { weight } : {}), ...(unit ? { unit } : {}),
-        jumps: buildJumps(node(ch, 'jumpBlock')), range, keywordRange: kwRange('Kw_incoming') };
+        jumps: buildJumps(block), range, keywordRange: kwRange('Kw_incoming'), ...(open ? { openEnd: tokRange(open).end } : {}) };
     }
     case 'jump': return buildJump(inner);
     default: return undefined;
@@ -274,13 +296,15 @@ function buildNeuron(n: CstNode): BuiltNeuron | undefined {
   const name = ident(tok(ch, 'Identifier'));
   const doc = docString(tok(ch, 'StringLiteral'));
   const lc = tok(ch, 'LCurly'), rc = tok(ch, 'RCurly');
-  const neuron: A.NeuronDecl = { kind: 'neuron', ...(name ? { name } : {}), ...(doc ? { doc } : {}), members, range,
+  const neuron: A.NeuronDecl = { kind: 'neuron', ...(name ? { name } : {}), ...quoted(doc), members, range,
     keywordRange: tokRange(kw), ...(lc ? { bodyRange: { start: lc.startOffset, end: rc ? tokRange(rc).end : range.end } } : {}) };
   return { neuron, strayJumps };
 }
 
-export function buildFile(cst: CstNode | undefined, textLength: number): { file: A.SourceFile; strayJumps: A.Jump[]; limitErrors: A.SyntaxError[] } {
+export function buildFile(cst: CstNode | undefined, text: string): { file: A.SourceFile; strayJumps: A.Jump[]; limitErrors: A.SyntaxError[] } {
   limitErrors = [];
+  source = text;
+  const textLength = text.length;
   const items: A.TopLevel[] = [];
   const strayJumps: A.Jump[] = [];
   for (const top of cst ? nodes(cst.children, 'topLevel') : []) {
@@ -304,5 +328,6 @@ export function buildFile(cst: CstNode | undefined, textLength: number): { file:
   }
   const found = limitErrors;
   limitErrors = [];
+  source = '';
   return { file: { kind: 'file', items, comments: [], range: { start: 0, end: textLength } }, strayJumps, limitErrors: found };
 }

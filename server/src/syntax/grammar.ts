@@ -9,13 +9,15 @@
 //   state     := 'state' NAME unit? ('=' expr)? STRING?
 //   let       := 'let' NAME '=' expr STRING?
 //   flow      := DERIVATIVE '=' expr
-//   fire      := 'fire' 'when' expr 'crosses' expr ('up'|'down'|'either') '{' jump* '}'
+//   fire      := 'fire' 'when' expr ('crosses' expr ('up'|'down'|'either') | COMPARE expr) '{' jump* '}'
+//                (COMPARE, `V > V_th`, is not the language: build.ts reports it with a fix)
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   jump      := NAME ':=' expr
 //   connect   := 'connect' NAME '->' NAME
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
 //   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
-//   primary   := NUMBER unit? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
+//   primary   := NUMBER (unit | BAREUNIT)? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
+//                (BAREUNIT, a unit without brackets, comes from recover.ts with its error)
 //   unit      := '[' UNITBODY ']'
 import { CstParser, type CstNode, type IOrAlt, type IParserErrorMessageProvider, type TokenType, type IToken } from 'chevrotain';
 import * as T from './tokens';
@@ -31,7 +33,10 @@ const messages: IParserErrorMessageProvider = {
     const firsts = new Set<string>();
     for (const alt of expectedPathsPerAlt) for (const path of alt) if (path[0]) firsts.add(label(path[0]));
     const what = RULE_WHAT[ruleName] ?? 'this';
-    return `expected ${what} (${[...firsts].slice(0, 8).join(', ')}) but found ${shown(actual[0]!)}`;
+    const listed = [...firsts].slice(0, 8);
+    // the description may already name every alternative ('up', 'down' or 'either')
+    const list = listed.every((f) => what.includes(f)) ? '' : ` (${listed.join(', ')})`;
+    return `expected ${what}${list} but found ${shown(actual[0]!)}`;
   },
   buildEarlyExitMessage: ({ expectedIterationPaths, actual }) => {
     const firsts = new Set<string>();
@@ -71,6 +76,7 @@ export class SaltusParser extends CstParser {
   private alt6?: IOrAlt<unknown>[];
   private alt7?: IOrAlt<unknown>[];
   private alt8?: IOrAlt<unknown>[];
+  private alt9?: IOrAlt<unknown>[];
 
   constructor() {
     super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset' });
@@ -167,9 +173,21 @@ export class SaltusParser extends CstParser {
     this.CONSUME(T.Fire);
     this.CONSUME(T.When);
     this.SUBRULE1(this.expr, { LABEL: 'lhs' });
-    this.CONSUME(T.Crosses);
-    this.SUBRULE2(this.expr, { LABEL: 'rhs' });
-    this.SUBRULE(this.direction);
+    this.OR(this.alt9 ??= [
+      {
+        ALT: () => {
+          this.CONSUME(T.Crosses);
+          this.SUBRULE2(this.expr, { LABEL: 'rhs' });
+          this.SUBRULE(this.direction);
+        },
+      },
+      {
+        ALT: () => {
+          this.CONSUME(T.Compare);
+          this.SUBRULE3(this.expr, { LABEL: 'rhs' });
+        },
+      },
+    ]);
     this.SUBRULE(this.jumpBlock);
   });
 
@@ -267,6 +285,7 @@ export class SaltusParser extends CstParser {
         ALT: () => {
           this.CONSUME(T.NumberLiteral);
           this.OPTION(() => this.SUBRULE(this.unit));
+          this.OPTION4(() => this.CONSUME(T.BareUnit));
         },
       },
       {

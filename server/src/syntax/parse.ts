@@ -2,18 +2,24 @@
 // parser errors become SyntaxErrors with ranges inside the text. Size and nesting limits
 // (grammar.ts MAX_EXPR_NESTING, applied by nesting.ts before parsing; build.ts
 // MAX_EXPR_DEPTH) give errors with code 'too-complex'. `tokens` are all lexed tokens, also
-// those of a region cut out for being nested too deeply.
+// those of a region cut out for being nested too deeply, or left out by recover.ts (a
+// construct of the next language version). Documentation notes (`#~`) are attached to their
+// declarations here (notes.ts).
 import type { IToken } from 'chevrotain';
 import type * as A from './ast';
 import { buildFile, tokRange } from './build';
 import { MAX_EXPR_NESTING, parserInstance } from './grammar';
 import { cutTooDeep } from './nesting';
 import { saltusLexer } from './tokens';
+import { recoverTokens } from './recover';
+import { attachNotes } from './notes';
 
 export interface ParseOutput extends A.ParseResult {
   /** Jumps written outside a fire/incoming block (reported by the resolver). */
   strayJumps: A.Jump[];
   tokens: IToken[];
+  /** `#~` notes that document no declaration. */
+  strayNotes: A.Comment[];
 }
 
 export function parse(text: string): ParseOutput {
@@ -31,7 +37,9 @@ export function parse(text: string): ParseOutput {
     // The lexer tracks start offsets only; give each token its end so that chevrotain's node
     // locations carry an end offset too (build.ts then needs no walk of the subtree per node).
     for (const t of lexed.tokens) t.endOffset = t.startOffset + t.image.length - 1;
-    const cut = cutTooDeep(lexed.tokens, MAX_EXPR_NESTING);
+    const recovered = recoverTokens(lexed.tokens, text);
+    for (const e of recovered.errors) errors.push({ ...e, range: clamp(e.range) });
+    const cut = cutTooDeep(recovered.tokens, MAX_EXPR_NESTING);
     const tooDeepMessage = `expression nested too deeply (more than ${MAX_EXPR_NESTING} levels of parentheses, signs or exponents); this part is not checked: name parts of it with 'let'`;
     for (const r of cut.regions) errors.push({ code: 'too-complex', range: clamp({ start: r.first.startOffset, end: tokRange(r.last).end }), message: tooDeepMessage });
     parserInstance.input = cut.tokens;
@@ -51,13 +59,14 @@ export function parse(text: string): ParseOutput {
       errors.push({ message: e.message, range: clamp(r) });
     }
     const comments: A.Comment[] = (lexed.groups.comments ?? []).map((t) => ({ text: t.image, range: tokRange(t) }));
-    const { file, strayJumps, limitErrors } = buildFile(cst, text.length);
+    const { file, strayJumps, limitErrors } = buildFile(cst, text);
     for (const e of limitErrors) errors.push({ ...e, range: clamp(e.range) });
     file.comments = comments;
-    return { file, errors, strayJumps, tokens: lexed.tokens };
+    const notes = attachNotes(file, lexed.tokens, text);
+    return { file, errors, strayJumps, tokens: lexed.tokens, strayNotes: notes.stray };
   } catch (err) {
     // A defect in the parser must not take the editor down: report it as a syntax error.
     errors.push({ message: `internal parser error: ${(err as Error).message}`, range: clamp({ start: 0, end: Math.min(1, text.length) }) });
-    return { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors, strayJumps: [], tokens: [] };
+    return { file: { kind: 'file', items: [], comments: [], range: { start: 0, end: text.length } }, errors, strayJumps: [], tokens: [], strayNotes: [] };
   }
 }

@@ -38,6 +38,10 @@ export const StringLiteral = createToken({ name: 'StringLiteral', pattern: /"(?:
 
 export const Assign = createToken({ name: 'Assign', pattern: /:=/, label: "':='" });
 export const Arrow = createToken({ name: 'Arrow', pattern: /->/, label: "'->'" });
+/** `>`, `>=`, `<`, `<=`: not operators of the language; lexed so that `fire when V > V_th` gets one clear error (build.ts). */
+export const Compare = createToken({ name: 'Compare', pattern: /[<>]=?/, label: "a comparison ('>' or '<')" });
+/** A unit written without brackets after a number (`5 ms`); made by recover.ts, never by the lexer. */
+export const BareUnit = createToken({ name: 'BareUnit', pattern: Lexer.NA, label: 'a unit without brackets' });
 export const Equals = createToken({ name: 'Equals', pattern: /=/, label: "'='" });
 export const Plus = createToken({ name: 'Plus', pattern: /\+/, label: "'+'" });
 export const Minus = createToken({ name: 'Minus', pattern: /-/, label: "'-'" });
@@ -69,15 +73,15 @@ const keywords = [Neuron, Param, State, Let, Fire, When, Crosses, Up, Down, Eith
 
 export const ALL_TOKENS: TokenType[] = [
   WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,
-  Assign, Arrow, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket,
-  UnitBody, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString,
+  Assign, Arrow, Compare, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket,
+  UnitBody, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString, BareUnit,
 ];
 
 export const saltusLexer = new Lexer(
   {
     modes: {
       main: [WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,
-        Assign, Arrow, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket],
+        Assign, Arrow, Compare, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket],
       unit: [UnitBody, RBracket, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString],
     },
     defaultMode: 'main',

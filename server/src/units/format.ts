@@ -226,6 +226,22 @@ export function unitExpressionFor(dim: Dim, preferred: readonly string[] = []): 
   }
 }
 
+/**
+ * A dimension written with the preferred units alone (no standard SI unit such as A or S), or
+ * null when they cannot express it. Two sides of a unit mismatch are both written this way
+ * where they can be, so that a message never sets 'A' against 'ms*mV'.
+ */
+export function formatDimInOwnUnits(dim: Dim, preferred: readonly string[]): string | null {
+  try {
+    if (isDimensionless(dim)) return '1';
+    const own = candidatesFor(Array.isArray(preferred) ? preferred : []).filter((c) => !c.standard);
+    if (own.length === 0) return null;
+    return search(dim, own)?.text ?? null;
+  } catch {
+    return null;
+  }
+}
+
 /** A dimension as a short unit expression, in the preferred units when possible ('mV/ms'; '1'). */
 export function formatDim(dim: Dim, preferred?: readonly string[]): string {
   return unitExpressionFor(dim, preferred ?? []).text;

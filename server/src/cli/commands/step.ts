@@ -1,5 +1,5 @@
-// `saltus step FILE [--timestep TIME] [--format text|json]`: the exponential-Euler step
-// analysis of every well-formed neuron at the file's timestep (or --timestep, alias --dt),
+// `saltus step FILE [--timestep TIME] [--format text|json]`: the analysis of the step map
+// that generated code runs (exact, or ETDRK4 in sub-steps), of every well-formed neuron at the file's timestep (or --timestep, alias --dt),
 // the analysis's one effective dt: scheme per state, reference
 // state, spectral radii, one-step error, largest stable dt, exact propagator
 // (docs/step-analysis.md). Exit 1 when the step is unstable or the file has errors.
@@ -12,11 +12,12 @@ const FORMATS = ['text', 'json'] as const;
 
 export const stepCommand: Command = {
   name: 'step',
-  summary: 'analyse the exponential-Euler step at dt: scheme, stability, accuracy, exact propagator',
+  summary: 'analyse the step map generated code runs at dt: scheme, stability, accuracy, exact propagator',
   help: `Usage: saltus step FILE [--timestep TIME] [--format text|json]
 
-For each neuron of FILE without errors: which update each state gets (exact,
-exponential Euler, or linearised exponential Euler) and why; the reference state
+For each neuron of FILE without errors: the step map that generated code runs
+(the exact solution of the flow, or fourth-order exponential Runge-Kutta in
+sub-steps), which update each state gets and why; the reference state
 (rest, or the initial state); the spectral radius of the one-step matrix and of the
 exact propagator; the relative one-step error; the largest stable dt; and the exact
 propagator matrix when the flow is linear between events.

@@ -27,7 +27,7 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'derivation-budget': 'The symbolic derivation stopped because an expression grew beyond its size budget.',
   'step-unstable': 'With this timestep the discrete step of the flow is not stable.',
   'step-inaccurate': 'With this timestep the discrete step departs noticeably from the exact flow.',
-  'step-linearised': 'The step analysis of a non-linear flow holds only for its linearisation.',
+  'step-linearised': 'A flow that is not affine in its own state: the step map freezes its linear part over each step.',
   'too-complex': 'An expression is nested too deeply or is too long for the checks to walk; it is not analysed.',
   'time-budget': 'The slow checks of a file ran out of their time budget; the neurons left are not derived until the next edit.',
   'internal-error': 'Saltus itself failed on this text (a bug, not a mistake in the model); the language server log has the details.',
@@ -36,4 +36,6 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'fires-only-by-jumps': 'The flow never crosses the threshold in the declared direction; only a jump could carry the neuron across.',
   'never-fires': 'Neither the flow nor any jump can carry the neuron across its threshold in the declared direction.',
   'reset-on-threshold': 'A spike jump leaves the neuron on its threshold or on the side it fires from.',
+  'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',
+  'stray-note': 'A #~ note that documents no declaration.',
 };
