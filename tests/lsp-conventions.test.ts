@@ -3,6 +3,7 @@
 // selection ranges, range formatting, workspace symbols from the announced folders only,
 // inlay hints in the language's own notation, the protocol's work-done progress for the
 // cross-check, and CodeLens commands that the server executes (workspace/executeCommand).
+import { CODE_TARGETS } from '../server/src/codegen/targets';
 import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -239,7 +240,7 @@ describe('editor conventions over stdio', () => {
 
     client.answer = (req) => (/which language/.test(req.message) ? 'NumPy' : null);
     const reply = await client.conn.sendRequest('workspace/executeCommand', generateLens.command) as { dir: string; written: string[]; errors: string[] };
-    expect(client.messageRequests.at(-1)!.actions.map((a) => a.title)).toEqual(['C', 'CUDA', 'NumPy']);
+    expect(client.messageRequests.at(-1)!.actions.map((a) => a.title)).toEqual(CODE_TARGETS.map((t) => t.label));
     expect(reply.errors).toEqual([]);
     const dir = join(ws, 'generated');
     expect(readdirSync(dir).filter((f) => f.endsWith('.py')).length).toBe(3); // the model's module, the dialect and the grid runtime

@@ -98,7 +98,7 @@ export async function runNeovimChecks({ scratch }) {
       expect(h && !h.err && h.result, `no hover result: ${JSON.stringify(h)}`);
       const c = h.result.contents;
       const text = typeof c === 'string' ? c : Array.isArray(c) ? c.map((x) => x.value ?? x).join('\n') : c.value;
-      const decl = /param\s+tau_m\s*=\s*[\d.eE+-]+\s*\[\s*([^\]]+?)\s*\](?:\s+trainable)?\s*"([^"]*)"/.exec(cleanText);
+      const decl = /param\s+tau_m\s*=\s*[\d.eE+-]+\s*\[\s*([^\]]+?)\s*\](?:\s+trainable)?\s*#~\s*(.*?)\s*$/m.exec(cleanText);
       expect(decl && text.includes(decl[1]) && text.includes(decl[2]), `the hover does not show [${decl?.[1]}] and "${decl?.[2]}":\n${text}`);
       return `hover (${c.kind ?? 'plain'}) shows ${decl[1]} and "${decl[2]}"`;
     }],
@@ -124,7 +124,7 @@ export async function runNeovimChecks({ scratch }) {
       const adjointCli = spawnSync(process.execPath, [join(ROOT, 'dist/cli.js'), 'adjoint', clean, '--model', firstNeuron], { encoding: 'utf8', timeout: 60_000 });
       const flowLine = adjointText.split('\n').find((l) => /dlambda_V\/dt/.test(l));
       expect(flowLine && adjointCli.stdout.includes(flowLine.trim()), `the adjoint message's flow line "${flowLine}" is not the CLI's (saltus adjoint):\n${adjointCli.stdout.slice(0, 600)}`);
-      expect(lr.asked.length === 1 && JSON.stringify(lr.asked[0].actions) === JSON.stringify(['C99', 'CUDA', 'NumPy']), `the server asked ${JSON.stringify(lr.asked)}`);
+      expect(lr.asked.length === 1 && ['C99', 'CUDA', 'NumPy'].every((l) => lr.asked[0].actions.includes(l)), `the server asked ${JSON.stringify(lr.asked)}`);
       expect(lr.generated, `no message after the generate lens: ${JSON.stringify(lr.messages)}`);
       const py = lr.files.filter((f) => f.endsWith('.py'));
       expect(py.length === 1 && py[0].endsWith(`${firstNeuron}.py`), `generated/ holds ${JSON.stringify(lr.files)}`);

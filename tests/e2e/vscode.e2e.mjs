@@ -86,8 +86,8 @@ async function checkHover(t) {
   const { ui } = t;
   const file = 'lif_current.saltus';
   const text = t.sample(file);
-  const decl = /param\s+tau_m\s*=\s*[\d.eE+-]+\s*\[\s*([^\]]+?)\s*\](?:\s+trainable)?\s*"([^"]*)"/.exec(text);
-  expect(decl, `${file} no longer declares tau_m with a unit and a docstring`);
+  const decl = /param\s+tau_m\s*=\s*[\d.eE+-]+\s*\[\s*([^\]]+?)\s*\](?:\s+trainable)?\s*#~\s*(.*?)\s*$/m.exec(text);
+  expect(decl, `${file} no longer declares tau_m with a unit and a note (#~)`);
   const [, unit, doc] = decl;
   const useLine = lineOf(text, 'dV/dt = (I - V) / tau_m');
 

@@ -17,7 +17,7 @@ export function gridSection(g: GridConvergence): string {
 <p>The same scenario on the grid generated code simulates (docs/network-step.md): at ${esc(ms(g.dts[0]!))} as generated code runs it, then at half and a quarter of it with the same sub-steps, against the exact gradient above. ${pops}. Largest gradient error at ${esc(ms(g.dts[0]!))}: <strong>${esc(sci(g.worst, 3))}</strong>.</p>
 ${g.failures.map((f) => `<p class="warn">At ${esc(ms(f.dt))}: ${esc(f.error)}</p>`).join('')}
 <div class="gridplot">${plot(g)}</div>
-<table class="grads"><thead>${head}</thead><tbody>${loss}${rows}</tbody></table>
+<table class="grads on-grid"><thead>${head}</thead><tbody>${loss}${rows}</tbody></table>
 <p class="note">Order: log2 of the error's fall per halving of dt; – where the error does not move (it is then the accurate simulation's own error, or rounding).</p>
 </section>`;
 }

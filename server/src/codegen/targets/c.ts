@@ -6,7 +6,7 @@ import { cFiles } from '../c/files';
 
 export const C_TARGET: CodeTarget = {
   id: 'c',
-  label: 'C',
+  label: 'C99',
   description: 'C99 kernels per model and the grid runtime with its exact gradient (gcc, clang); --float; --network adds saltus_run.c',
   accepts: { float: true, network: true },
   generate: (ctx) => cFiles(ctx, false),
