@@ -166,7 +166,7 @@ describe('hover and renderers', () => {
   test('text, markdown and LaTeX carry every formula', () => {
     const t = renderText(d);
     expect(t).toContain('dlambda_I/dt = lambda_I / tau_s - dlV_dI - lambda_V / tau_m');
-    expect(t).toContain('phi = tau_m * (coupling - dlp_dt + lV_post - lV_pre + I * lambda_V / tau_m) / (I - theta)');
+    expect(t).toContain('phi = (tau_m * (coupling - dlp_dt + lV_post - lV_pre) + I * lambda_V) / (I - theta)');
     expect(t).toContain('dL/dtau_m = integral of');
     expect(renderMarkdown(d)).toContain('**At a received spike**');
     const l = renderLatex(d);
