@@ -121,7 +121,7 @@ describe('grouped for reading', () => {
     expect(r('3')).toBe('3');
     expect(r('2*x + 2*y')).toBe('2 * x + 2 * y'); // numbers are not factors (readable.ts)
     expect(r('x + y')).toBe('x + y');
-    expect(toMathjs(readable(normalise(fromMathjs('C * (a + b / C)'))))).toBe('C * a + b');
+    expect(toMathjs(readable(normalise(fromMathjs('C * (a + b / C)'))))).toBe('b + C * a');
   });
 });
 
