@@ -17,7 +17,7 @@ import { type InputTrain, type Loss, type Network, type Trajectory, backward, si
 import { type BuiltScenario, buildScenario, paramRefs } from './build';
 import { type Cone, coneOf, coneSize, coneWithParam, coneWithWeight } from './cone';
 import { type Scenario, parseScenario } from './scenario';
-import { parseUnit } from '../units';
+import { type Dim, isDimensionless, parseUnit } from '../units';
 import { fragilityWarnings, silentWarnings } from './warnings';
 import { sampleCostates, sampleGrid, sampleStates } from './traces';
 import { buildTraces, lossUnit, spikeRecords } from './summary';
@@ -198,8 +198,9 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const adjoint = w.slot.kind === 'input' ? grads.inputWeights[w.slot.index]! : grads.weights[w.slot.index]!;
     const row: GradientRow = { projection: w.projection, fromPopulation: w.fromPopulation, toPopulation: w.toPopulation, to: w.to, from: w.from,
       value: w.value, step: null, adjoint, finiteDifference: null, absoluteError: null, relativeError: null, status: 'ok' };
-    const unitText = modelOf(s, w.toPopulation)?.incoming?.weightUnit;
-    const wu = displayUnit(unitText);
+    const inc = modelOf(s, w.toPopulation)?.incoming;
+    const unitText = inc?.weightUnit;
+    const wu = displayUnit(unitText, inc?.weightDim);
     if (wu) row.unit = wu;
     let scale = Math.abs(w.value);
     if (w.value === 0) {
@@ -218,7 +219,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const row: ParamRow = { population: p.population, name: p.name, value: p.value, step: null, adjoint, finiteDifference: null,
       absoluteError: null, relativeError: null, status: 'ok' };
     const info = modelOf(s, p.population)?.params.find((q) => q.name === p.name);
-    const pu = displayUnit(info?.unitText);
+    const pu = displayUnit(info?.unitText, info?.dim);
     if (pu) row.unit = pu;
     let scale = Math.abs(p.value);
     if (p.value === 0) {
@@ -267,9 +268,10 @@ function modelOf(s: Scenario, population: string): ResolvedNeuron | undefined {
   return p?.kind === 'model' ? p.model : undefined;
 }
 
-/** A unit text the file wrote and its SI scale, when it is a real unit. */
-function displayUnit(text: string | undefined): { text: string; scale: number } | undefined {
-  if (!text || text === '1') return undefined;
+/** A unit text the file wrote and its SI scale, when it is a real unit; '1' for a dimensionless value. */
+function displayUnit(text: string | undefined, dim?: Dim): { text: string; scale: number } | undefined {
+  if (text === '1' || (!text && dim && isDimensionless(dim))) return { text: '1', scale: 1 };
+  if (!text) return undefined;
   const u = parseUnit(text);
   return u.ok && u.scale > 0 && Number.isFinite(u.scale) ? { text, scale: u.scale } : undefined;
 }
