@@ -151,16 +151,16 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   const tfw = now();
   const base = sim(b.net, b.inputs);
   result.timing.forward_ms = firstMs = now() - tfw;
-  if (base.errors.length) return failed(result, base.errors, t0);
+  if (base.errors.length) return failed(result, base.errors, t0, s);
   if (!Number.isFinite(base.loss)) {
-    return failed(result, [`the loss is ${Number.isNaN(base.loss) ? 'NaN' : 'infinite'}: ${nonFiniteText(base.nonFinite, b.neurons)}`], t0);
+    return failed(result, [`the loss is ${Number.isNaN(base.loss) ? 'NaN' : 'infinite'}: ${nonFiniteText(base.nonFinite, b.neurons)}`], t0, s);
   }
   done++;
   yield progress('forward');
   const tb = now();
   const grads = backward(b.net, base, b.inputs, { loss: b.loss, derivation, rtol, keepCostate: options.traces !== false });
   result.timing.backward_ms = now() - tb;
-  if (grads.errors.length) return failed(result, grads.errors, t0);
+  if (grads.errors.length) return failed(result, grads.errors, t0, s);
   done++;
   yield progress('backward');
   result.status = 'ok';
@@ -246,9 +246,11 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const first = b.firstNeuron.get(p.name)!;
     result.spikeSlopeRatios[p.name] = list.map(([t, i]) => fragility.ratio.get(`${first + i}:${t}`) ?? null);
   }
+  const silent = silentWarnings(s, b, base);
   result.warnings = [
     ...s.remarks.map((message): CrossCheckWarning => ({ kind: 'remark', message })),
-    ...silentWarnings(s, b, base),
+    ...silent,
+    ...(silent.length ? unitWarnings(s) : []),
     ...fragility.warnings,
     ...warnings,
   ];
@@ -299,9 +301,15 @@ function summarise(result: CrossCheckResult, gradients: GradientRow[], params: P
   result.passed = rows.length > 0 && rows.every((r) => r.status === 'ok');
 }
 
-function failed(result: CrossCheckResult, errors: string[], t0: number): CrossCheckResult {
+/** The scenario's bare numbers that look written in the file's unit (quantity.ts), as warnings. */
+function unitWarnings(s: Scenario): CrossCheckWarning[] {
+  return s.unitSuspects.map((x) => ({ kind: 'unit-prefix' as const, message: `${x.path} looks off by a unit prefix: ${x.message}` }));
+}
+
+function failed(result: CrossCheckResult, errors: string[], t0: number, s?: Scenario): CrossCheckResult {
   result.status = 'failed';
-  result.errors = errors.map((message) => ({ path: '(simulation)', message }));
+  result.errors = [...errors.map((message) => ({ path: '(simulation)', message })),
+    ...(s?.unitSuspects ?? []).map((x) => ({ path: x.path, message: `looks off by a unit prefix, which would explain the failure: ${x.message}` }))];
   result.timing.total_ms = now() - t0;
   return result;
 }

@@ -43,7 +43,7 @@ export interface GradientRow extends RowCommon {
 /** A trainable parameter of a model population (shared by its neurons). */
 export interface ParamRow extends RowCommon { population: string; name: string }
 
-export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'remark';
+export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'unit-prefix' | 'remark';
 
 export interface CrossCheckWarning {
   kind: WarningKind;
