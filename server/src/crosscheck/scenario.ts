@@ -16,6 +16,7 @@ import type { ResolvedNeuron, SymbolInfo } from '../model/types';
 import { constantProblem, constantUses } from '../model/constants';
 import { TIME } from '../units';
 import { type Expected, type UnitSuspect, prefixSuspect, readQuantity, typeMessage } from './quantity';
+import { SCENARIO_FIELDS } from './scenarioSchema';
 
 export interface ScenarioError { path: string; message: string }
 
@@ -110,7 +111,7 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
   const errors: ScenarioError[] = [];
   const err = (path: string, message: string): void => { errors.push({ path, message }); };
   if (!isObj(value)) return { ok: false, errors: [{ path: '(root)', message: `must be a JSON object with duration_s, populations, projections and loss; got ${show(value)}` }] };
-  unknownKeys(value, '', ['description', 'duration_s', 'populations', 'projections', 'loss', 'sample'], err);
+  unknownKeys(value, '', SCENARIO_FIELDS.root, err);
 
   const description = value.description;
   if (description !== undefined && typeof description !== 'string') err('description', 'must be a string');
@@ -139,8 +140,9 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
 }
 
 function unknownKeys(o: Obj, base: string, allowed: readonly string[], err: (p: string, m: string) => void): void {
+  const shown = allowed.filter((k) => k !== '$schema');
   for (const k of Object.keys(o)) {
-    if (!allowed.includes(k)) err(key(base, k), `unknown field (expected one of ${allowed.join(', ')})`);
+    if (!allowed.includes(k)) err(key(base, k), `unknown field (expected one of ${shown.join(', ')})`);
   }
 }
 
@@ -155,7 +157,7 @@ function readSize(v: unknown, path: string, err: (p: string, m: string) => void)
 function readSample(v: unknown, err: (p: string, m: string) => void): Scenario['sample'] | undefined {
   if (v === undefined) return undefined;
   if (!isObj(v)) { err('sample', `must be an object {"rows": N, "seed": S}; got ${show(v)}`); return undefined; }
-  unknownKeys(v, 'sample', ['rows', 'seed'], err);
+  unknownKeys(v, 'sample', SCENARIO_FIELDS.sample, err);
   let ok = true;
   if (!isNum(v.rows) || !Number.isInteger(v.rows) || v.rows < 1) { err('sample.rows', `must be a whole number >= 1 (rows to check); got ${show(v.rows)}`); ok = false; }
   if (v.seed !== undefined && (!isNum(v.seed) || !Number.isInteger(v.seed) || v.seed < 0)) { err('sample.seed', `must be a whole number >= 0; got ${show(v.seed)}`); ok = false; }
@@ -176,7 +178,7 @@ function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, dura
     if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); rejected.add(name); continue; }
     if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); rejected.add(name); continue; }
     if ('spikes' in p) {
-      unknownKeys(p, path, ['size', 'spikes'], err);
+      unknownKeys(p, path, SCENARIO_FIELDS.input, err);
       const size = readSize(p.size, `${path}.size`, err);
       const spikes = readSpikes(p.spikes, `${path}.spikes`, size, duration, err);
       if (size !== undefined) out.push({ kind: 'input', name, size, spikes });
@@ -184,7 +186,7 @@ function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, dura
       continue;
     }
     if (!('model' in p)) { err(path, 'give "model" (a neuron of the file) or "spikes" (an input population)'); rejected.add(name); continue; }
-    unknownKeys(p, path, ['model', 'size', 'params', 'initial', 'scales'], err);
+    unknownKeys(p, path, SCENARIO_FIELDS.model, err);
     const size = readSize(p.size, `${path}.size`, err);
     const model = readModel(p.model, `${path}.model`, analysis, fileLabel, err);
     const params = model ? readValues(p.params, `${path}.params`, model.params, 'parameter', model.name, err, suspects, true) : {};
@@ -283,7 +285,7 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
   v.forEach((p, k) => {
     const path = `projections[${k}]`;
     if (!isObj(p)) { err(path, `must be an object {from, to, weights}; got ${show(p)}`); return; }
-    unknownKeys(p, path, ['from', 'to', 'weights'], err);
+    unknownKeys(p, path, SCENARIO_FIELDS.projection, err);
     const from = endpoint(p.from, `${path}.from`, pops, rejected, err);
     const to = endpoint(p.to, `${path}.to`, pops, rejected, err);
     if (from?.kind === 'model' && !from.model.fire) { err(`${path}.from`, `${from.name} (${from.model.name}) has no fire block, so it sends no spikes`); }
@@ -349,7 +351,7 @@ function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<strin
     err('loss.kind', `must be "state-integral" or "spike-time"; got ${show(kind)}`);
     return undefined;
   }
-  unknownKeys(v, 'loss', kind === 'state-integral' ? ['kind', 'population', 'state', 'target'] : ['kind', 'population', 'targets_s'], err);
+  unknownKeys(v, 'loss', kind === 'state-integral' ? SCENARIO_FIELDS.stateIntegralLoss : SCENARIO_FIELDS.spikeTimeLoss, err);
   const pop = endpoint(v.population, 'loss.population', pops, rejected, err);
   if (typeof v.population === 'string' && rejected.has(v.population)) return undefined;
   if (pop?.kind === 'input') { err('loss.population', `${pop.name} is an input population; the loss needs a model population`); return undefined; }
