@@ -2,15 +2,15 @@
 //   dist/client.js  VS Code extension (client/src/extension.ts), `vscode` left external
 //   dist/cli.js     the `saltus` command (server/src/cli/main.ts), executable, with a shebang;
 //                   `saltus lsp --stdio` makes it a language-server entry as well
-//   dist/server.js  the language server on its own (server/src/cli/serverEntry.ts, which
-//                   calls runLanguageServer() from server/src/lsp/main.ts); the client starts
-//                   it over node IPC
+//   dist/server.js  the language server the client starts over node IPC: a few lines that run
+//                   dist/cli.js as `saltus lsp` (one copy of the server code, not two)
 //   dist/katex/     katex.min.css and its .woff2 fonts, for a webview
-// Invariants: CommonJS, Node 20, linked source maps, no minification; the script exits
+// Invariants: CommonJS, Node 20, linked source maps, minified with names kept (stack traces
+// stay readable through the maps); the script exits
 // non-zero when any bundle fails; it prints every output's size. Run by `npm run build` and
 // by `prepare`, so `npm ci` leaves a working build.
 import { build } from 'esbuild';
-import { chmodSync, copyFileSync, existsSync, mkdirSync, readdirSync, rmSync, statSync } from 'node:fs';
+import { chmodSync, copyFileSync, existsSync, mkdirSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { rawTextPlugin } from './esbuild-plugins.mjs';
 import { dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -47,7 +47,8 @@ const common = {
   target: 'node20',
   format: 'cjs',
   sourcemap: 'linked',
-  minify: false,
+  minify: true,
+  keepNames: true,
   logLevel: 'warning',
   absWorkingDir: root,
   plugins: [missingLanguageServer, rawTextPlugin],
@@ -56,7 +57,6 @@ const common = {
 const bundles = [
   { entryPoints: ['client/src/extension.ts'], outfile: 'dist/client.js', external: ['vscode'] },
   { entryPoints: ['server/src/cli/main.ts'], outfile: 'dist/cli.js', banner: { js: '#!/usr/bin/env node' } },
-  { entryPoints: ['server/src/cli/serverEntry.ts'], outfile: 'dist/server.js' },
 ];
 
 function copyKatex() {
@@ -94,10 +94,18 @@ try {
   process.exit(1);
 }
 chmodSync(join(dist, 'cli.js'), 0o755);
+// vscode-languageserver reads its transport (--node-ipc, --stdio) from process.argv
+writeFileSync(join(dist, 'server.js'), [
+  '// dist/server.js: the Saltus language server, started by the VS Code client over node IPC.',
+  "// It is the CLI's `saltus lsp` (dist/cli.js) with the transport the client passes.",
+  "process.argv.splice(2, 0, 'lsp');",
+  "require('./cli.js');",
+  '',
+].join('\n'));
 const katexFiles = copyKatex();
 const ms = performance.now() - started;
 
-for (const b of bundles) {
+for (const b of [...bundles, { outfile: 'dist/server.js' }]) {
   const file = join(root, b.outfile);
   console.log(`  ${b.outfile.padEnd(18)} ${kib(statSync(file).size).padStart(11)}`);
 }

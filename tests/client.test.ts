@@ -7,7 +7,8 @@
 // and .vscodeignore keeps every file the manifest needs. Rules from VS Code's extension
 // manifest reference (contributes.*, capabilities.*), from memory.
 import { spawnSync } from 'node:child_process';
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { analyse } from '../server/src/pipeline';
@@ -198,7 +199,11 @@ describe('the saltus check task and its problem matcher', () => {
 
   it('matches each diagnostic line of the real CLI output exactly once, and no other line', () => {
     // the bundled CLI, as the task runs it; NO_COLOR as the task sets it
-    const files = ['samples/mistakes.saltus', 'samples/adex.saltus', 'samples/lif_current.saltus'];
+    // the samples hold errors, hints and information; a negative time constant adds a warning
+    const dir = mkdtempSync(join(tmpdir(), 'saltus-matcher-'));
+    const warned = join(dir, 'backwards.saltus');
+    writeFileSync(warned, 'neuron Backwards {\n  param tau = -5 [ms]\n  state V = 0\n  dV/dt = -V / tau\n  fire when V crosses 1 up { V := 0 }\n  incoming w { V := V + w }\n}\n');
+    const files = ['samples/mistakes.saltus', 'samples/adex.saltus', 'samples/lif_current.saltus', warned];
     const text = spawnSync(process.execPath, [join(root, 'dist/cli.js'), 'check', ...files], { cwd: root, encoding: 'utf8', env: { ...process.env, NO_COLOR: '1' } });
     const json = spawnSync(process.execPath, [join(root, 'dist/cli.js'), 'check', ...files, '--format', 'json'], { cwd: root, encoding: 'utf8' });
     const report = JSON.parse(json.stdout) as { files: { path: string; diagnostics: { severity: string; code: string; message: string; range: { start: { line: number; character: number } } }[] }[] };

@@ -275,8 +275,11 @@ const HOSTILE = String.raw`*/ #error injected /* ??/ ??= \" \\ """ ''' \u2028 ` 
 
 describe('hostile docstrings are escaped', () => {
   const text = sample('lif_current.saltus')
-    .replace('"LIF with exponential current synapse (hidden layer)"', `"${HOSTILE.replace(/\\/g, '\\\\').replace(/"/g, '\\"')}"`)
-    .replace('"membrane time constant"', `"${'*/ int injected = 1; /*'}"`);
+    // the neuron's note as a quoted docstring (the older form, still read), whose escapes can
+    // carry every hostile character; a parameter's note in the '#~' form
+    .replace('#~ LIF with exponential current synapse (hidden layer)\nneuron LifCurrent {',
+      `neuron LifCurrent "${HOSTILE.replace(/\\/g, '\\\\').replace(/"/g, '\\"')}" {`)
+    .replace('#~ membrane time constant', '#~ */ int injected = 1; /*');
   const a = analyse(text);
   const n = a.model.neurons[0]!;
   n.states[0]!.doc = 'one\n#error injected by newline\r\n"""\nraise SystemExit(3)\n"""\n*/ bad /*\\';
@@ -284,6 +287,7 @@ describe('hostile docstrings are escaped', () => {
 
   test('the docstring reached the model through the parser', () => {
     expect(analyse(text).model.neurons[0]!.doc).toContain('*/ #error injected /*');
+    expect(analyse(text).model.neurons[0]!.params.find((p) => p.name === 'tau_m')!.doc).toBe('*/ int injected = 1; /*');
   });
 
   test('C compiles with -Werror (no #error, no trigraph, no injected declaration) and C comments stay closed', () => {

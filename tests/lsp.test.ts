@@ -239,7 +239,7 @@ describe('language server over stdio', () => {
       expect(onTimestep).toContain(`dt = ${shown}, from ${fromSetting ? 'the saltus\\.timestep setting' : "the file's timestep"}`);
       const onEquation = await hoverAt('dV/dt', 1);
       expect(onEquation).toContain(`dt = ${shown}, from`);
-      expect(onEquation).toContain(`over dt = ${shown} (recommended)`); // the exact propagator of the LIF flow at that dt
+      expect(onEquation).toContain(`Exact propagator over dt = ${shown} (what the step map computes)`); // the LIF flow at that dt
       // The module's header quotes the dt the model was analysed at (codegen/kernelPlan.ts).
       expect(await generatedHeader()).toMatch(new RegExp(`analysis ran at dt = ${shown.replace('.', '\\.')};`));
     };

@@ -17,6 +17,7 @@ import { SALTUS_VERSION } from '../base/version';
 import { type Kernel, modelKernels } from './kernels';
 import { type Renaming, renameAll } from './names';
 import { HASH_PLACEHOLDER } from './hash';
+import { derivationFor } from '../adjoint/cache';
 
 export interface PlanQuantity {
   name: string;
@@ -71,6 +72,10 @@ export function planKernels(neuron: ResolvedNeuron, prefix: string, dtSI: number
     for (const p of params) if (!Number.isFinite(p.valueSI)) errors.push(`parameter '${p.name}' of ${neuron.name} has no numeric value`);
     const weight = neuron.incoming ? { name: neuron.incoming.weight, id: ids.get(neuron.incoming.weight)!,
       unitSI: unitOf(neuron.incoming.weightDim), ...declared(neuron.incoming.weightUnit) } : undefined;
+    // the grid backward divides by the guard slope like the adjoint does: a model whose adjoint
+    // could not be derived (an identically zero slope) gets the same reason, not a division by 0
+    const adjoint = derivationFor(neuron);
+    if (adjoint.notDerived) errors.push(`the adjoint of ${neuron.name} could not be derived: ${adjoint.notDerived}`);
     const grid = gridDerivationFor(neuron);
     errors.push(...grid.problems.map((p) => `${neuron.name}: ${p}`));
     if (errors.length) return { errors, renamed };

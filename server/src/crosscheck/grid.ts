@@ -10,33 +10,9 @@
 // the validated scenario and the exact rows.
 import { gridBackward, gridForward, networkFromScenario } from '../grid';
 import type { Scenario } from './scenario';
-import type { GradientRow, ParamRow } from './types';
+import type { GradientRow, GridConvergence, GridRowConvergence, ParamRow } from './types';
 
-export interface GridRowConvergence {
-  label: string;
-  exact: number;
-  /** The grid gradient at each dt (null when that run failed). */
-  values: (number | null)[];
-  /** |grid - exact| / |exact| at each dt (null when it failed, or the exact value is 0). */
-  errors: (number | null)[];
-  /** log2(errors[k] / errors[k + 1]); null where it means nothing (rounding level, failed). */
-  orders: (number | null)[];
-}
-
-export interface GridConvergence {
-  dts: number[];
-  /** Sub-steps of the map per model population, at each dt. */
-  substeps: Record<string, number[]>;
-  /** Whether each model population's map is the exact flow. */
-  exact: Record<string, boolean>;
-  loss: { values: (number | null)[]; errors: (number | null)[] };
-  rows: GridRowConvergence[];
-  /** Largest error at the first dt over the rows (null when none). */
-  worst: number | null;
-  /** Why a dt could not be run. */
-  failures: { dt: number; error: string }[];
-  timing_ms: number;
-}
+export type { GridConvergence, GridRowConvergence };
 
 /** Below this relative error the difference is rounding: no order is computed from it. */
 const ROUNDING = 1e-11;

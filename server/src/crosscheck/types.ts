@@ -1,7 +1,6 @@
 // The result of a gradient cross-check: plain JSON data (no typed arrays, maps or classes), so a
 // language server can send it to the editor as it is and the HTML page, the text report and
 // the JSON contract (docs/crosscheck.md) are all drawn from the same object.
-import type { GridConvergence } from './grid';
 import type { NeuronDerivation } from '../adjoint/derive';
 import type { ResolvedNeuron } from '../model/types';
 import type { ScenarioError } from './scenario';
@@ -200,6 +199,33 @@ export interface CrossCheckOptions {
 /** A row's label for people: `w[0] in[0] -> hid[1]` or `hid.beta`. */
 export function rowLabel(r: GradientRow | ParamRow): string {
   return 'projection' in r ? `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]` : `${r.population}.${r.name}`;
+}
+
+/** The grid gradient against the exact one at dt, dt/2 and dt/4 (crosscheck/grid.ts). */
+export interface GridRowConvergence {
+  label: string;
+  exact: number;
+  /** The grid gradient at each dt (null when that run failed). */
+  values: (number | null)[];
+  /** |grid - exact| / |exact| at each dt (null when it failed, or the exact value is 0). */
+  errors: (number | null)[];
+  /** log2(errors[k] / errors[k + 1]); null where it means nothing (rounding level, failed). */
+  orders: (number | null)[];
+}
+
+export interface GridConvergence {
+  dts: number[];
+  /** Sub-steps of the map per model population, at each dt. */
+  substeps: Record<string, number[]>;
+  /** Whether each model population's map is the exact flow. */
+  exact: Record<string, boolean>;
+  loss: { values: (number | null)[]; errors: (number | null)[] };
+  rows: GridRowConvergence[];
+  /** Largest error at the first dt over the rows (null when none). */
+  worst: number | null;
+  /** Why a dt could not be run. */
+  failures: { dt: number; error: string }[];
+  timing_ms: number;
 }
 
 /** A row as the reports show it: the value in the file's unit and dL/d(value) per that same

@@ -11,7 +11,9 @@
 // - Units with an offset (degC, degF) are refused: a scale factor cannot express them.
 // - lookupUnitSymbol never throws.
 
-import { create, all } from 'mathjs';
+// Only the factories units need (the Unit class and createUnit), not the whole library: the
+// bundle and the start-up stay small (docs/performance.md).
+import { create, createUnitDependencies, unitDependencies } from 'mathjs';
 import { BASE_DIMENSION_NAMES, DIM_LENGTH, dimFromArray, type Dim } from './dimension';
 
 export type SymbolLookup =
@@ -43,7 +45,7 @@ let setupError = '';
 function setup(): PrivateUnits | null {
   if (privateUnits !== undefined) return privateUnits;
   try {
-    const math = create(all);
+    const math = create({ createUnitDependencies, unitDependencies });
     math.createUnit('Ohm', { definition: '1 ohm', prefixes: 'short' });
     math.createUnit('M', { definition: '1000 mol/m^3', prefixes: 'short' });
     const UnitCtor = math.Unit as unknown as {
