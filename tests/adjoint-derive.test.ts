@@ -52,7 +52,7 @@ describe('JSON contract', () => {
       });
     });
   }
-  test('the LIF entry reads as in the issue example', () => {
+  test('the LIF entry reads as docs/adjoint.md shows it', () => {
     const m = adjointJson([derivationFor(sampleNeuron('lif_current.saltus', 'LifCurrent'))]).models[0]!;
     expect(m.adjointFlow).toEqual({ V: 'lambda_V / tau_m - dlV_dV', I: 'lambda_I / tau_s - dlV_dI - lambda_V / tau_m' });
     expect(m.spike!.gdot).toBe('(I - theta) / tau_m');

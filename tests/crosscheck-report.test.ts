@@ -1,8 +1,8 @@
 // The faces of the gradient cross-check: `saltus crosscheck` (JSON contract, text, exit codes,
 // usage errors), the standalone HTML page (escaping, no script, one chart per state and
 // costate), the warnings for near-grazing spikes and spike-count changes, and a negative
-// control: a derivation with its phi term removed (the jump multiplier of LANGUAGE.md
-// "Derived results") must fail the check, so the check can fail.
+// control: a derivation with its phi term removed (phi, the jump multiplier
+// of docs/adjoint.md) must fail the check, so the check can fail.
 import { mkdtempSync, readFileSync, writeFileSync, existsSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
