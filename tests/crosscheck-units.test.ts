@@ -98,3 +98,15 @@ describe('values that look off by a unit prefix', () => {
     expect(r.warnings.filter((w) => w.kind === 'unit-prefix')).toEqual([]);
   });
 });
+
+describe('generated runners read SI numbers only', () => {
+  test('a network description with quantities is refused with the SI number to write', async () => {
+    const { readNetworkSpec } = await import('../server/src/codegen/network');
+    const s = scenario();
+    expect(readNetworkSpec(s, ['AdEx']).errors).toEqual([]);
+    s.projections[0].weights[0][0] = '1.6 [nA]';
+    const e = readNetworkSpec(s, ['AdEx']).errors;
+    expect(e).toHaveLength(1);
+    expect(e[0]).toMatch(/^projections\[0\]\.weights\[0\]\[0\]: the generated runner reads SI numbers only; write 1\.6e-9 instead of "1\.6 \[nA\]"/);
+  });
+});
