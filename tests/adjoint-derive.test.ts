@@ -52,7 +52,7 @@ describe('JSON contract', () => {
       });
     });
   }
-  test('the LIF entry reads as in the issue example', () => {
+  test('the LIF entry reads as docs/adjoint.md shows it', () => {
     const m = adjointJson([derivationFor(sampleNeuron('lif_current.saltus', 'LifCurrent'))]).models[0]!;
     expect(m.adjointFlow).toEqual({ V: 'lambda_V / tau_m - dlV_dV', I: 'lambda_I / tau_s - dlV_dI - lambda_V / tau_m' });
     expect(m.spike!.gdot).toBe('(I - theta) / tau_m');
@@ -166,7 +166,7 @@ describe('hover and renderers', () => {
   test('text, markdown and LaTeX carry every formula', () => {
     const t = renderText(d);
     expect(t).toContain('dlambda_I/dt = lambda_I / tau_s - dlV_dI - lambda_V / tau_m');
-    expect(t).toContain('phi = tau_m * (coupling - dlp_dt + lV_post - lV_pre + I * lambda_V / tau_m) / (I - theta)');
+    expect(t).toContain('phi = (tau_m * (coupling - dlp_dt + lV_post - lV_pre) + I * lambda_V) / (I - theta)');
     expect(t).toContain('dL/dtau_m = integral of');
     expect(renderMarkdown(d)).toContain('**At a received spike**');
     const l = renderLatex(d);

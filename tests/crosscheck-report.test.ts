@@ -1,8 +1,8 @@
 // The faces of the gradient cross-check: `saltus crosscheck` (JSON contract, text, exit codes,
 // usage errors), the standalone HTML page (escaping, no script, one chart per state and
 // costate), the warnings for near-grazing spikes and spike-count changes, and a negative
-// control: a derivation with its phi term removed (the jump multiplier of LANGUAGE.md
-// "Derived results") must fail the check, so the check can fail.
+// control: a derivation with its phi term removed (phi, the jump multiplier
+// of docs/adjoint.md) must fail the check, so the check can fail.
 import { mkdtempSync, readFileSync, writeFileSync, existsSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -43,7 +43,18 @@ describe('saltus crosscheck', () => {
     expect(r.stdout).toMatch(/w0 sensor\[0\] -> hid\[0\]/);
     expect(r.stdout).toMatch(/hid\.tau_m/);
     expect(r.stdout).toMatch(/largest relative error .* the adjoint gradient agrees/);
+    // value and dL/d(value) in the same unit system, labelled: tau_m = 20 [ms] in the file, so
+    // the gradient is per ms, 1e-3 times the SI gradient (per s) of the JSON report.
+    const line = r.stdout.split('\n').find((l) => l.startsWith('hid.tau_m'))!;
+    expect(line).toMatch(/^hid\.tau_m\s+20 ms\s+(\S+)\s+(\S+)\s+\[s\/ms\]/);
+    const json = JSON.parse(runCli(['crosscheck', 'samples/lif_current.saltus', 'samples/scenarios/lif_current.json', '--format', 'json']).stdout);
+    const si = json.params.find((p: { name: string; population: string }) => p.population === 'hid' && p.name === 'tau_m').adjoint;
+    const shown = Number(/^hid\.tau_m\s+20 ms\s+(\S+)/.exec(line)![1]);
+    expect(Math.abs(shown - si * 1e-3)).toBeLessThan(1e-7 * Math.abs(si * 1e-3)); // 8 significant digits printed
+    expect(r.stdout).toMatch(/w0 sensor\[0\] -> hid\[0\]\s+4\.2\s+\S+\s+\S+\s+\[s\]/); // a dimensionless weight: L's unit per 1
     const html = readFileSync(out, 'utf8');
+    expect(html).toContain('<th class="num">value (file\'s unit)</th><th class="num">dL/d(value): adjoint</th>');
+    expect(html).toMatch(/<td class="num">20 ms<\/td>.*?<td class="unit">s\/ms<\/td>/);
     expect(html).toMatch(/^<!DOCTYPE html>/);
     expect(html).not.toMatch(/<script/i);
     expect(html).toMatch(/Content-Security-Policy" content="default-src 'none'/);

@@ -1,7 +1,7 @@
 // The shipped demo scenarios (samples/scenarios/NAME.json, one per sample NAME.saltus):
 // every one passes the gradient cross-check, i.e. the derived adjoint gradient of every weight
 // and trainable parameter agrees with central finite differences of the simulated loss to
-// better than 1e-4 relative (the bar; our runs reach about 1e-6 or better).
+// better than 1e-4 relative (the check's default tolerance; our runs reach about 1e-6 or better).
 // Method: EventProp (Wunderlich & Pehle 2021, Sci. Rep. 11:12829) in the general hybrid
 // form of docs/adjoint.md, checked by finite differences as docs/adjoint.md asks.
 // Also: every well-formed neuron of every sample is in a two-layer scenario, and the async

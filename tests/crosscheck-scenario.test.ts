@@ -60,7 +60,8 @@ const CASES: [string, unknown, string, RegExp][] = [
   ['spike after the end', edit((s) => { anyOf(s).populations.in.spikes[0][0] = 0.07; }), 'populations.in.spikes[0][0]', /not before duration_s/],
   ['spike index out of range', edit((s) => { anyOf(s).populations.in.spikes[1][1] = 3; }), 'populations.in.spikes[1][1]', /out of range.*3 neurons/],
   ['unknown parameter', edit((s) => { anyOf(s).populations.hid.params = { tau_x: 1 }; }), 'populations.hid.params.tau_x', /LifCurrent has no parameter 'tau_x'/],
-  ['parameter not a number', edit((s) => { anyOf(s).populations.hid.params = { tau_m: '20 ms' }; }), 'populations.hid.params.tau_m', /finite number \(SI units\)/],
+  ['parameter not a number', edit((s) => { anyOf(s).populations.hid.params = { tau_m: true }; }), 'populations.hid.params.tau_m', /finite number \(SI\) or a quantity such as "2 \[ms\]"; got true/],
+  ['parameter with its unit not in brackets', edit((s) => { anyOf(s).populations.hid.params = { tau_m: '20 ms' }; }), 'populations.hid.params.tau_m', /write the unit in brackets, as in a model file: "20 \[ms\]"/],
   ['unknown initial state', edit((s) => { anyOf(s).populations.hid.initial = { U: 1 }; }), 'populations.hid.initial.U', /no state 'U'/],
   ['projections missing', edit((s) => { delete anyOf(s).projections; }), 'projections', /missing/],
   ['projections empty', edit((s) => { s.projections = []; }), 'projections', /is empty/],
@@ -120,7 +121,7 @@ describe('malformed scenario files', () => {
     if (r.ok) return;
     expect(r.errors).toEqual([{ path: 'projections[0].weights[0][0]', message: 'must be a finite number; got 1e999 (beyond the largest double, about 1.8e308)' }]);
     const p = parseScenario(JSON.stringify(good()).replace('"size":2}', '"size":2,"params":{"tau_m":-1e999}}'), MODELS);
-    expect(p.ok ? [] : p.errors.map((e) => e.message)).toEqual(['must be a finite number (SI units); got -1e999 (beyond the largest double, about 1.8e308)']);
+    expect(p.ok ? [] : p.errors.map((e) => e.message)).toEqual(['must be a finite number (SI) or a quantity such as "2 [ms]"; got -1e999 (beyond the largest double, about 1.8e308)']);
   });
 
   test('a rejected population is reported once, not again for each projection and the loss that use it', () => {

@@ -1,5 +1,6 @@
 // "Saltus: Cross-check gradients": runs the gradient cross-check of the active .saltus file on a scenario
-// (samples/scenarios/NAME.json beside it by convention, else one the modeller picks), with a
+// (scenarios/NAME.json in the model's folder by convention, else one the modeller picks in a file
+// picker opened in that scenarios/ folder when there is one; docs/editors.md), with a
 // cancellable progress (the protocol's work-done progress; the server's messages give the cost
 // estimate and the time left), and shows
 // the report (traces, raster, error table). The scenario goes to the server as its text, so a
@@ -14,8 +15,11 @@ async function pickScenario(doc: vscode.Uri): Promise<vscode.Uri | undefined> {
   const base = doc.path.split('/').pop()!.replace(/\.saltus$/, '');
   const beside = vscode.Uri.joinPath(doc, '..', 'scenarios', `${base}.json`);
   try { await vscode.workspace.fs.stat(beside); return beside; } catch { /* none beside it */ }
+  const folder = vscode.Uri.joinPath(doc, '..', 'scenarios');
+  let start = vscode.Uri.joinPath(doc, '..');
+  try { if ((await vscode.workspace.fs.stat(folder)).type & vscode.FileType.Directory) start = folder; } catch { /* no scenarios/ folder */ }
   const picked = await vscode.window.showOpenDialog({ canSelectMany: false, filters: { 'Saltus scenario': ['json'] },
-    defaultUri: vscode.Uri.joinPath(doc, '..'), openLabel: 'Use this scenario', title: `Scenario for ${base}.saltus` });
+    defaultUri: start, openLabel: 'Use this scenario', title: `No scenarios/${base}.json: pick a scenario for ${base}.saltus` });
   return picked?.[0];
 }
 

@@ -13,6 +13,7 @@ import { type Sym, ZERO, add, dependsOn, freeSymbols, mul, num, pow, size, subst
 import { derivative } from '../symbolic/derivative';
 import { modelHash } from '../model/hash';
 import { toMathjs } from '../symbolic/print';
+import { readableText } from '../symbolic/readable';
 import type { Direction } from '../syntax/ast';
 import type { ResolvedNeuron } from '../model/types';
 import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
@@ -344,5 +345,5 @@ function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): Deriva
 }
 
 function slopeText(s: Sym): string {
-  return size(s) > 60 ? '(long)' : `= ${toMathjs(s)}`;
+  return size(s) > 60 ? '(long)' : `= ${readableText(s)}`;
 }

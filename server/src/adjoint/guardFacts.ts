@@ -16,7 +16,7 @@ import type { Diagnostic, Fix } from '../base/diagnostic';
 import type { ResolvedNeuron } from '../model/types';
 import { type Sym, dependsOn, freeSymbols, num, substitute } from '../symbolic/sym';
 import { evaluate } from '../symbolic/evaluate';
-import { toMathjs } from '../symbolic/print';
+import { readableText as toMathjs } from '../symbolic/readable';
 import { TIME as TIME_DIM, dimDiv, dimEqual, formatNumber, formatQuantity, parseUnit } from '../units';
 import { TIME } from '../base/names';
 import type { NeuronDerivation } from './derive';

@@ -3,13 +3,13 @@
 // (target jump, weight gradient, coupling term). Markdown; formulas as mathjs-syntax code.
 // Invariant: pure and total (an unknown state or a missing block gives a one-line note).
 import type { Sym } from '../symbolic/sym';
-import { toMathjs } from '../symbolic/print';
+import { readableText } from '../symbolic/readable';
 import type { NeuronDerivation } from './derive';
 import { lambdaName } from '../base/names';
 
 export type AdjointHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' };
 
-const code = (s: Sym): string => '`' + toMathjs(s) + '`';
+const code = (s: Sym): string => '`' + readableText(s) + '`';
 
 export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem): string {
   if (!d.wellFormed) {
@@ -41,7 +41,8 @@ export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem
     lines.push(`**Adjoint at a received spike** (weight \`${inc.weight}\`)`, '');
     for (const [x, e] of inc.jump) lines.push(`- \`${lambdaName(x)}\` before = ${code(e)}`);
     lines.push('', `\`dL/d${inc.weight}\` += ${code(inc.weightGradient)} per received spike`, '',
-      `coupling term added to the sender's \`phi\` numerator: ${code(inc.coupling)}`);
+      `coupling term added to the sender's \`phi\` numerator: ${code(inc.coupling)}`, '',
+      `record at each received spike: ${inc.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
   }
   return lines.join('\n');
 }

@@ -1,11 +1,14 @@
-// Renderers of a NeuronDerivation: plain text (CLI, logs), Markdown (hover, preview), LaTeX
-// (preview, papers) and the JSON contract of docs/adjoint.md (`adjointJson`).
+// Renderers of a NeuronDerivation: plain text (CLI, logs, with a legend of the derived
+// symbols it uses), Markdown (hover, preview), LaTeX (preview, papers) and the JSON contract
+// of docs/adjoint.md (`adjointJson`). Text, Markdown and LaTeX show each formula grouped for
+// reading (symbolic/readable.ts); the JSON keeps the canonical form.
 // Invariants: every EXPR in the JSON is `toMathjs` text (mathjs `parse` reads it; `^` for
 // powers; SI numbers, no units; parameters by name); renderers never throw and never change
 // a derivation.
 import type { Sym } from '../symbolic/sym';
 import { toMathjs } from '../symbolic/print';
 import { toLatex } from '../symbolic/latex';
+import { readable, readableText } from '../symbolic/readable';
 import type { NeuronDerivation } from './derive';
 import { lambdaName } from '../base/names';
 
@@ -45,37 +48,55 @@ export function adjointJson(derivations: readonly NeuronDerivation[]): AdjointJs
   };
 }
 
-/** Plain-text lines of one derivation (mathjs syntax). */
+/** What each derived symbol of the text means (docs/adjoint.md "Symbols"), for the legend. */
+const LEGEND: [RegExp, string][] = [
+  [/\blambda_\w+/, 'lambda_X      the costate of state X, dL/dX(t) (just after the event in jump formulas)'],
+  [/\bdlV_d\w+/, 'dlV_dX        the partial derivative of the loss integrand l_V by state X'],
+  [/\bdlp_dt\b/, 'dlp_dt        the partial derivative of the spike-time loss l_p by this spike\'s time'],
+  [/\blV_(pre|post)\b/, 'lV_pre/post   the loss integrand l_V just before / just after the event'],
+  [/\bcoupling\b/, 'coupling      the sum over this neuron\'s outgoing synapses of each target\'s coupling term'],
+  [/\bphi\b/, 'phi           the jump multiplier of a spike (how far the costates jump along the guard\'s gradient)'],
+  [/\bgdot\b/, 'gdot          the guard\'s slope along the flow at the spike (it divides phi)'],
+];
+
+const recordText = (xs: readonly string[], none: string): string => (xs.length ? xs.join(', ') : none);
+
+/** Plain-text lines of one derivation (mathjs syntax, grouped for reading), with a legend of its symbols. */
 export function renderText(d: NeuronDerivation): string {
   const out: string[] = [`Adjoint system of ${d.name} (canonical costate lambda = dL/dx; lambda(T) = 0, integrated backwards)`];
   if (!d.wellFormed) return [...out, ...d.notes].join('\n');
-  for (const [x, e] of d.adjointFlow) out.push(`  d${lambdaName(x)}/dt = ${toMathjs(e)}`);
+  const t = readableText;
+  for (const [x, e] of d.adjointFlow) out.push(`  d${lambdaName(x)}/dt = ${t(e)}`);
   if (d.spike) {
     const s = d.spike;
     out.push(`At a spike (lambda_X: just after; states: just before):`);
-    out.push(`  gdot = ${toMathjs(s.gdot)}`, `  phi = ${toMathjs(s.phi)}`);
-    for (const [x, e] of s.jump) out.push(`  ${lambdaName(x)}- = ${toMathjs(e)}`);
-    out.push(`  record at each spike: ${s.record.length ? s.record.join(', ') : '(nothing but the time)'}`);
+    out.push(`  gdot = ${t(s.gdot)}`, `  phi = ${t(s.phi)}`);
+    for (const [x, e] of s.jump) out.push(`  ${lambdaName(x)}- = ${t(e)}`);
+    out.push(`  record at each spike: ${recordText(s.record, '(nothing but the time)')}`);
   }
   if (d.incoming) {
     const i = d.incoming;
     out.push(`At a received spike (weight ${i.weight}):`);
-    for (const [x, e] of i.jump) out.push(`  ${lambdaName(x)}- = ${toMathjs(e)}`);
-    out.push(`  dL/d${i.weight} += ${toMathjs(i.weightGradient)}`, `  coupling term (summed into the sender's coupling) = ${toMathjs(i.coupling)}`);
+    for (const [x, e] of i.jump) out.push(`  ${lambdaName(x)}- = ${t(e)}`);
+    out.push(`  dL/d${i.weight} += ${t(i.weightGradient)}`, `  coupling term (summed into the sender's coupling) = ${t(i.coupling)}`);
+    out.push(`  record at each received spike: ${recordText(i.record, '(nothing but the time)')}`);
   }
   for (const [p, g] of d.paramGradients) {
-    const parts = [nonZero(g.flow) ? `integral of ${toMathjs(g.flow)} dt` : '',
-      nonZero(g.spike) ? `sum over spikes of ${toMathjs(g.spike!)}` : '',
-      nonZero(g.incoming) ? `sum over received spikes of ${toMathjs(g.incoming!)}` : ''].filter((x) => x);
+    const parts = [nonZero(g.flow) ? `integral of ${t(g.flow)} dt` : '',
+      nonZero(g.spike) ? `sum over spikes of ${t(g.spike!)}` : '',
+      nonZero(g.incoming) ? `sum over received spikes of ${t(g.incoming!)}` : ''].filter((x) => x);
     out.push(`dL/d${p} = ${parts.length ? parts.join(' + ') : '0'}`);
   }
+  const body = out.join('\n');
+  const legend = LEGEND.filter(([re]) => re.test(body)).map(([, line]) => `  ${line}`);
+  if (legend.length) out.push('Symbols:', ...legend);
   out.push(...d.notes.map((n) => `note: ${n}`));
   return out.join('\n');
 }
 
 /** LaTeX (an `aligned` block per section) of one derivation. */
 export function renderLatex(d: NeuronDerivation): string {
-  const L = (s: Sym): string => toLatex(s);
+  const L = (s: Sym): string => toLatex(readable(s));
   const lam = (x: string): string => `\\lambda_{${x}}`;
   const rows: string[] = [];
   for (const [x, e] of d.adjointFlow) rows.push(`\\frac{d${lam(x)}}{dt} &= ${L(e)}`);
@@ -98,7 +119,7 @@ export function renderLatex(d: NeuronDerivation): string {
 
 /** Markdown for the preview: every formula as inline code, with the notes. */
 export function renderMarkdown(d: NeuronDerivation): string {
-  const c = (s: Sym): string => '`' + toMathjs(s) + '`';
+  const c = (s: Sym): string => '`' + readableText(s) + '`';
   const out: string[] = [`### Adjoint system of ${d.name}`, '', 'Canonical costate `lambda = dL/dx(t)`, `lambda(T) = 0`, integrated backwards in time.', ''];
   if (!d.wellFormed) return [...out, ...d.notes].join('\n');
   out.push('**Adjoint flow**', '');
@@ -112,6 +133,7 @@ export function renderMarkdown(d: NeuronDerivation): string {
     out.push('', `**At a received spike** (weight \`${d.incoming.weight}\`)`, '');
     for (const [x, e] of d.incoming.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
     out.push(`- weight gradient increment = ${c(d.incoming.weightGradient)}`, `- coupling term in the sender's \`phi\` = ${c(d.incoming.coupling)}`);
+    out.push(`- record at each received spike: ${d.incoming.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
   }
   if (d.paramGradients.size) {
     out.push('', '**Parameter gradients**', '');

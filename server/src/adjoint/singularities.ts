@@ -7,7 +7,7 @@
 import { type Sym, freeSymbols } from '../symbolic/sym';
 import { denominators, nonSmoothPoints } from '../symbolic/derivative';
 import { key } from '../symbolic/normalise';
-import { toMathjs } from '../symbolic/print';
+import { readableText as toMathjs } from '../symbolic/readable';
 import { type Condition, asEquation, vanishingConditions } from './surface';
 import { TIME } from '../base/names';
 

@@ -1,7 +1,10 @@
 // A network description for generated code (--network NET.json): the cross-check scenario
 // format (docs/crosscheck.md), read for its structure: which model each population uses. The
 // generated runner reads the file again at run time for weights, inputs and the loss.
+// The runner reads SI numbers only: a quantity with a unit ("2 [nS]"), which the cross-check
+// accepts, is refused here with its path and the SI number to write.
 // Invariant: `readNetworkSpec` never throws; problems name the JSON field.
+import { readQuantity } from '../crosscheck/quantity';
 
 export interface NetworkSpec {
   /** Model names the populations use, in file order. */
@@ -29,5 +32,21 @@ export function readNetworkSpec(json: unknown, modelNames: readonly string[]): {
   if (!Array.isArray(json.projections)) errors.push('projections: must be a list');
   if (!isObj(json.loss)) errors.push('loss: must be an object');
   if (models.length === 0 && errors.length === 0) errors.push('populations: no population uses a model of the file');
+  errors.push(...quantityStrings(json).slice(0, 5));
   return errors.length ? { errors } : { spec: { models, json }, errors };
+}
+
+/** Fields whose string values are names or text, not values. */
+const TEXT_FIELDS = new Set(['$schema', 'description', 'model', 'from', 'to', 'kind', 'population', 'state']);
+
+/** Values written as quantities ("2 [nS]"): the generated runner reads SI numbers only. */
+function quantityStrings(v: unknown, path = '', out: string[] = []): string[] {
+  if (typeof v === 'string') {
+    const r = readQuantity(v, { what: path });
+    out.push(`${path}: the generated runner reads SI numbers only; write ${r?.ok ? `${Number(r.si.toPrecision(12))} instead of "${v}"` : `an SI number instead of "${v}"`}`);
+  } else if (Array.isArray(v)) v.forEach((x, k) => quantityStrings(x, `${path}[${k}]`, out));
+  else if (isObj(v)) {
+    for (const [k, x] of Object.entries(v)) if (!TEXT_FIELDS.has(k)) quantityStrings(x, path ? `${path}.${k}` : k, out);
+  }
+  return out;
 }

@@ -8,7 +8,7 @@
 import { gridSection } from './gridHtml';
 import { type RasterRow, errorBar, esc, lineChart, raster, sci } from './svg';
 import type { CrossCheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
-import { rowLabel } from './types';
+import { rowDisplay, rowLabel } from './types';
 import { pctText } from './report';
 
 export interface CrossCheckPageOptions {
@@ -77,17 +77,18 @@ function warnings(r: CrossCheckResult): string {
 function row(x: GradientRow | ParamRow, r: CrossCheckResult, worst: boolean): string {
   const status = x.status === 'ok' ? (x.withinNoise ? 'agrees within FD noise' : 'agrees') : x.status === 'above-tolerance' ? 'disagrees'
     : x.status === 'spike-count-changed' ? 'no finite difference' : x.status === 'non-finite' ? 'not finite' : 'simulation failed';
+  const d = rowDisplay(x, r.lossUnit);
   const notes = [x.note, x.stepBasis ? `value 0: step relative to ${x.stepBasis}` : undefined].filter((n): n is string => Boolean(n));
-  return `<tr class="${x.status}${worst ? ' worst' : ''}"><th>${esc(rowLabel(x))}</th><td class="num">${esc(x.unit ? `${sci(x.value / x.unit.scale)} ${x.unit.text}` : sci(x.value))}</td><td class="num">${esc(sci(x.adjoint, 7))}</td><td class="num">${esc(sci(x.finiteDifference, 7))}</td><td class="num">${esc(sci(x.relativeError, 2))}</td><td>${errorBar(x.relativeError, r.tolerance)}</td><td class="status">${esc(status)}${notes.map((n) => `<div class="note">${esc(n)}</div>`).join('')}</td></tr>`;
+  return `<tr class="${x.status}${worst ? ' worst' : ''}"><th>${esc(rowLabel(x))}</th><td class="num">${esc(`${sci(d.value)} ${d.valueUnit}`.trimEnd())}</td><td class="num">${esc(sci(d.adjoint, 7))}</td><td class="num">${esc(sci(d.finiteDifference, 7))}</td><td class="unit">${esc(d.gradientUnit)}</td><td class="num">${esc(sci(x.relativeError, 2))}</td><td>${errorBar(x.relativeError, r.tolerance)}</td><td class="status">${esc(status)}${notes.map((n) => `<div class="note">${esc(n)}</div>`).join('')}</td></tr>`;
 }
 
 function table(r: CrossCheckResult): string {
-  const head = `<tr><th>weight or parameter</th><th class="num">value</th><th class="num">dL/d(value), SI: adjoint</th><th class="num">finite difference</th><th class="num">relative error</th><th>error, log scale 10⁻¹²…1 (bar: tolerance)</th><th>status</th></tr>`;
+  const head = `<tr><th>weight or parameter</th><th class="num">value (file's unit)</th><th class="num">dL/d(value): adjoint</th><th class="num">finite difference</th><th>unit of dL/d(value)</th><th class="num">relative error</th><th>error, log scale 10⁻¹²…1 (bar: tolerance)</th><th>status</th></tr>`;
   const weights = r.gradients.map((x, k) => row(x, r, r.worst?.kind === 'weight' && r.worst.index === k)).join('');
   const params = r.params.map((x, k) => row(x, r, r.worst?.kind === 'param' && r.worst.index === k)).join('');
   return `<section><h2>Gradients</h2>
-<p class="note">Weights are <code>w&lt;projection&gt; from[j] -&gt; to[i]</code> (weights[to][from] of that projection); parameters are shared by their population. Relative error = |adjoint − FD| / max(|adjoint|, |FD|), each row on its own; where it exceeds the tolerance the difference is repeated at a quarter of the step, and a row whose |adjoint − FD| lies within that finite difference's own noise agrees (e.g. an exact zero against noise).</p>
-<table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="7">trainable parameters</th></tr>${params}` : ''}</tbody></table></section>`;
+<p class="note">Weights are <code>w&lt;projection&gt; from[j] -&gt; to[i]</code> (weights[to][from] of that projection); parameters are shared by their population. Each value is shown in the unit the model file writes it in, and dL/d(value) per that same unit (the JSON report keeps SI). Relative error = |adjoint − FD| / max(|adjoint|, |FD|), each row on its own; where it exceeds the tolerance the difference is repeated at a quarter of the step, and a row whose |adjoint − FD| lies within that finite difference's own noise agrees (e.g. an exact zero against noise).</p>
+<table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="8">trainable parameters</th></tr>${params}` : ''}</tbody></table></section>`;
 }
 
 function spikes(r: CrossCheckResult): string {

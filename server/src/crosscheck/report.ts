@@ -4,7 +4,7 @@
 // Invariant: JSON numbers are finite or null (JSON has no NaN or Infinity).
 import type { GridConvergence } from './grid';
 import type { CrossCheckResult } from './types';
-import { rowLabel } from './types';
+import { rowDisplay, rowLabel } from './types';
 import { sci } from './svg';
 
 const num = (v: number | null | undefined): number | null => (v === null || v === undefined || !Number.isFinite(v) ? null : v);
@@ -86,12 +86,18 @@ export function crossCheckText(r: CrossCheckResult): string {
   out.push('');
   const rows = [...r.gradients, ...r.params];
   const w = Math.max(12, ...rows.map((x) => rowLabel(x).length));
-  out.push(`${'value'.padEnd(w)}  ${'adjoint'.padStart(15)}  ${'finite diff.'.padStart(15)}  ${'rel. error'.padStart(10)}`);
-  for (const x of rows) {
-    const flag = x.status === 'ok' ? (x.withinNoise ? `  (zero within FD noise ±${sci(x.fdNoise ?? null, 2)})` : '')
-      : x.status === 'above-tolerance' ? `  <- above tolerance${x.fdNoise !== undefined ? ` (FD noise ±${sci(x.fdNoise, 2)})` : ''}` : `  (${x.note ?? x.status})`;
-    out.push(`${rowLabel(x).padEnd(w)}  ${sci(x.adjoint, 8).padStart(15)}  ${sci(x.finiteDifference, 8).padStart(15)}  ${sci(x.relativeError, 2).padStart(10)}${flag}`);
-  }
+  const shown = rows.map((x) => rowDisplay(x, r.lossUnit));
+  const vals = shown.map((d) => `${sci(d.value, 6)} ${d.valueUnit}`.trimEnd());
+  const units = shown.map((d) => `[${d.gradientUnit}]`);
+  const vw = Math.max(5, ...vals.map((v) => v.length)), uw = Math.max(4, ...units.map((v) => v.length));
+  out.push(`each gradient is dL/d(value) per the unit the value is shown in (the file's unit; the JSON report is SI)`);
+  out.push(`${'weight or parameter'.padEnd(w)}  ${'value'.padStart(vw)}  ${'adjoint'.padStart(15)}  ${'finite diff.'.padStart(15)}  ${'unit'.padEnd(uw)}  ${'rel. error'.padStart(10)}`);
+  rows.forEach((x, k) => {
+    const d = shown[k]!;
+    const flag = x.status === 'ok' ? (x.withinNoise ? `  (zero within FD noise ±${sci(d.fdNoise ?? null, 2)})` : '')
+      : x.status === 'above-tolerance' ? `  <- above tolerance${d.fdNoise !== undefined ? ` (FD noise ±${sci(d.fdNoise, 2)})` : ''}` : `  (${x.note ?? x.status})`;
+    out.push(`${rowLabel(x).padEnd(w)}  ${vals[k]!.padStart(vw)}  ${sci(d.adjoint, 8).padStart(15)}  ${sci(d.finiteDifference, 8).padStart(15)}  ${units[k]!.padEnd(uw)}  ${sci(x.relativeError, 2).padStart(10)}${flag}`);
+  });
   out.push('');
   for (const x of rows) if (x.stepBasis) out.push(`${rowLabel(x)} is 0: its step is relative to ${x.stepBasis}`);
   const worst = r.worst ? ` (${r.worst.label})` : '';

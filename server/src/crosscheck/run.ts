@@ -17,7 +17,7 @@ import { type InputTrain, type Loss, type Network, type Trajectory, backward, si
 import { type BuiltScenario, buildScenario, paramRefs } from './build';
 import { type Cone, coneOf, coneSize, coneWithParam, coneWithWeight } from './cone';
 import { type Scenario, parseScenario } from './scenario';
-import { parseUnit } from '../units';
+import { type Dim, isDimensionless, parseUnit } from '../units';
 import { fragilityWarnings, silentWarnings } from './warnings';
 import { sampleCostates, sampleGrid, sampleStates } from './traces';
 import { buildTraces, lossUnit, spikeRecords } from './summary';
@@ -151,16 +151,16 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   const tfw = now();
   const base = sim(b.net, b.inputs);
   result.timing.forward_ms = firstMs = now() - tfw;
-  if (base.errors.length) return failed(result, base.errors, t0);
+  if (base.errors.length) return failed(result, base.errors, t0, s);
   if (!Number.isFinite(base.loss)) {
-    return failed(result, [`the loss is ${Number.isNaN(base.loss) ? 'NaN' : 'infinite'}: ${nonFiniteText(base.nonFinite, b.neurons)}`], t0);
+    return failed(result, [`the loss is ${Number.isNaN(base.loss) ? 'NaN' : 'infinite'}: ${nonFiniteText(base.nonFinite, b.neurons)}`], t0, s);
   }
   done++;
   yield progress('forward');
   const tb = now();
   const grads = backward(b.net, base, b.inputs, { loss: b.loss, derivation, rtol, keepCostate: options.traces !== false });
   result.timing.backward_ms = now() - tb;
-  if (grads.errors.length) return failed(result, grads.errors, t0);
+  if (grads.errors.length) return failed(result, grads.errors, t0, s);
   done++;
   yield progress('backward');
   result.status = 'ok';
@@ -198,8 +198,9 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const adjoint = w.slot.kind === 'input' ? grads.inputWeights[w.slot.index]! : grads.weights[w.slot.index]!;
     const row: GradientRow = { projection: w.projection, fromPopulation: w.fromPopulation, toPopulation: w.toPopulation, to: w.to, from: w.from,
       value: w.value, step: null, adjoint, finiteDifference: null, absoluteError: null, relativeError: null, status: 'ok' };
-    const unitText = modelOf(s, w.toPopulation)?.incoming?.weightUnit;
-    const wu = displayUnit(unitText);
+    const inc = modelOf(s, w.toPopulation)?.incoming;
+    const unitText = inc?.weightUnit;
+    const wu = displayUnit(unitText, inc?.weightDim);
     if (wu) row.unit = wu;
     let scale = Math.abs(w.value);
     if (w.value === 0) {
@@ -218,7 +219,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const row: ParamRow = { population: p.population, name: p.name, value: p.value, step: null, adjoint, finiteDifference: null,
       absoluteError: null, relativeError: null, status: 'ok' };
     const info = modelOf(s, p.population)?.params.find((q) => q.name === p.name);
-    const pu = displayUnit(info?.unitText);
+    const pu = displayUnit(info?.unitText, info?.dim);
     if (pu) row.unit = pu;
     let scale = Math.abs(p.value);
     if (p.value === 0) {
@@ -245,9 +246,11 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const first = b.firstNeuron.get(p.name)!;
     result.spikeSlopeRatios[p.name] = list.map(([t, i]) => fragility.ratio.get(`${first + i}:${t}`) ?? null);
   }
+  const silent = silentWarnings(s, b, base);
   result.warnings = [
     ...s.remarks.map((message): CrossCheckWarning => ({ kind: 'remark', message })),
-    ...silentWarnings(s, b, base),
+    ...silent,
+    ...(silent.length ? unitWarnings(s) : []),
     ...fragility.warnings,
     ...warnings,
   ];
@@ -267,9 +270,10 @@ function modelOf(s: Scenario, population: string): ResolvedNeuron | undefined {
   return p?.kind === 'model' ? p.model : undefined;
 }
 
-/** A unit text the file wrote and its SI scale, when it is a real unit. */
-function displayUnit(text: string | undefined): { text: string; scale: number } | undefined {
-  if (!text || text === '1') return undefined;
+/** A unit text the file wrote and its SI scale, when it is a real unit; '1' for a dimensionless value. */
+function displayUnit(text: string | undefined, dim?: Dim): { text: string; scale: number } | undefined {
+  if (text === '1' || (!text && dim && isDimensionless(dim))) return { text: '1', scale: 1 };
+  if (!text) return undefined;
   const u = parseUnit(text);
   return u.ok && u.scale > 0 && Number.isFinite(u.scale) ? { text, scale: u.scale } : undefined;
 }
@@ -297,9 +301,15 @@ function summarise(result: CrossCheckResult, gradients: GradientRow[], params: P
   result.passed = rows.length > 0 && rows.every((r) => r.status === 'ok');
 }
 
-function failed(result: CrossCheckResult, errors: string[], t0: number): CrossCheckResult {
+/** The scenario's bare numbers that look written in the file's unit (quantity.ts), as warnings. */
+function unitWarnings(s: Scenario): CrossCheckWarning[] {
+  return s.unitSuspects.map((x) => ({ kind: 'unit-prefix' as const, message: `${x.path} looks off by a unit prefix: ${x.message}` }));
+}
+
+function failed(result: CrossCheckResult, errors: string[], t0: number, s?: Scenario): CrossCheckResult {
   result.status = 'failed';
-  result.errors = errors.map((message) => ({ path: '(simulation)', message }));
+  result.errors = [...errors.map((message) => ({ path: '(simulation)', message })),
+    ...(s?.unitSuspects ?? []).map((x) => ({ path: x.path, message: `looks off by a unit prefix, which would explain the failure: ${x.message}` }))];
   result.timing.total_ms = now() - t0;
   return result;
 }

@@ -1,5 +1,6 @@
-// The cross-check scenario file (docs/crosscheck.md): its types and its validation
-// against the models of an analysed .saltus file. Every problem becomes a ScenarioError
+// The cross-check scenario file (docs/crosscheck.md, schema in schemas/scenario.schema.json):
+// its types and its validation against the models of an analysed .saltus file. Values are SI
+// numbers or quantities with a unit in brackets ("2 [nS]", quantity.ts), read into SI here. Every problem becomes a ScenarioError
 // naming the JSON path of the offending field (`projections[1].weights[0]`), so the user
 // can find it; nothing here throws, whatever the input.
 //
@@ -11,8 +12,11 @@
 // population's projection onto itself is 0 (no self-synapses); the loss refers to an
 // existing population (and state, or a firing model for spike times).
 import type { Analysis } from '../pipeline';
-import type { ResolvedNeuron } from '../model/types';
+import type { ResolvedNeuron, SymbolInfo } from '../model/types';
 import { constantProblem, constantUses } from '../model/constants';
+import { TIME } from '../units';
+import { type Expected, type UnitSuspect, prefixSuspect, readQuantity, typeMessage } from './quantity';
+import { SCENARIO_FIELDS } from './scenarioSchema';
 
 export interface ScenarioError { path: string; message: string }
 
@@ -42,6 +46,9 @@ export interface Scenario {
   sample?: { rows: number; seed?: number };
   /** Non-fatal remarks found while validating (e.g. a projection the file does not `connect`). */
   remarks: string[];
+  /** Bare numbers that look written in the file's unit rather than SI (quantity.ts): named
+   *  when a run explodes or stays silent. */
+  unitSuspects: UnitSuspect[];
 }
 
 export type ScenarioResult = { ok: true; scenario: Scenario } | { ok: false; errors: ScenarioError[] };
@@ -82,6 +89,17 @@ function parseJson(text: string): unknown {
 }
 const key = (base: string, k: string): string => (NAME.test(k) ? (base ? `${base}.${k}` : k) : `${base}[${JSON.stringify(k)}]`);
 
+type Err = (p: string, m: string) => void;
+const TIME_EXPECTED = (what: string): Expected => ({ dim: TIME, what, unitText: 'ms' });
+
+/** A number (SI) or a quantity string at `path`, in SI; undefined (with the error said) otherwise. */
+function quantity(v: unknown, path: string, e: Expected, err: Err, wrongType: string): { si: number; bare: boolean } | undefined {
+  const r = readQuantity(v instanceof OutOfRange ? undefined : v, e);
+  if (r === undefined) { err(path, wrongType); return undefined; }
+  if (!r.ok) { err(path, r.message); return undefined; }
+  return r;
+}
+
 /** Parses JSON text (or takes an already parsed value) and validates it against the file. */
 export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 'the model file'): ScenarioResult {
   let value = input;
@@ -93,33 +111,38 @@ export function parseScenario(input: unknown, analysis: Analysis, fileLabel = 't
   const errors: ScenarioError[] = [];
   const err = (path: string, message: string): void => { errors.push({ path, message }); };
   if (!isObj(value)) return { ok: false, errors: [{ path: '(root)', message: `must be a JSON object with duration_s, populations, projections and loss; got ${show(value)}` }] };
-  unknownKeys(value, '', ['description', 'duration_s', 'populations', 'projections', 'loss', 'sample'], err);
+  unknownKeys(value, '', SCENARIO_FIELDS.root, err);
 
   const description = value.description;
   if (description !== undefined && typeof description !== 'string') err('description', 'must be a string');
-  const duration = value.duration_s;
-  const durationOk = isNum(duration) && duration > 0 && duration <= MAX_DURATION_S;
-  if (duration === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05');
-  else if (!(isNum(duration) && duration > 0)) err('duration_s', `must be a positive number of seconds; got ${show(duration)}`);
-  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient cross-check simulates a short run accurately (every finite difference repeats it); got ${duration} s`);
+  const durationRead = value.duration_s === undefined ? undefined
+    : quantity(value.duration_s, 'duration_s', TIME_EXPECTED('duration_s'), err, `must be a positive number of seconds (or a time such as "50 [ms]"); got ${show(value.duration_s)}`);
+  const duration = durationRead?.si;
+  const durationOk = duration !== undefined && duration > 0 && duration <= MAX_DURATION_S;
+  if (value.duration_s === undefined) err('duration_s', 'missing: give the simulated time in seconds, e.g. 0.05, or as "50 [ms]"');
+  else if (duration === undefined) { /* said by quantity() */ }
+  else if (!(duration > 0)) err('duration_s', `must be a positive number of seconds; got ${show(value.duration_s)}`);
+  else if (duration > MAX_DURATION_S) err('duration_s', `at most ${MAX_DURATION_S} s: a gradient cross-check simulates a short run accurately (every finite difference repeats it); got ${formatSeconds(duration)}${durationRead?.bare && duration * 1e-3 <= MAX_DURATION_S ? ` (a number is SI: if you meant ms, write "${value.duration_s} [ms]")` : ''}`);
 
+  const suspects: UnitSuspect[] = [];
   const remarks: string[] = [];
   const rejected = new Set<string>();
-  const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err, remarks, rejected);
+  const populations = readPopulations(value.populations, analysis, fileLabel, durationOk ? (duration as number) : Infinity, err, remarks, rejected, suspects);
   const byName = new Map(populations.map((p) => [p.name, p]));
-  const projections = readProjections(value.projections, byName, rejected, analysis, remarks, err);
-  const loss = readLoss(value.loss, byName, rejected, err);
+  const projections = readProjections(value.projections, byName, rejected, analysis, remarks, err, suspects);
+  const loss = readLoss(value.loss, byName, rejected, err, suspects);
   const sample = readSample(value.sample, err);
   if (errors.length || !loss) return { ok: false, errors };
-  const scenario: Scenario = { duration: duration as number, populations, projections, loss, remarks };
+  const scenario: Scenario = { duration: duration as number, populations, projections, loss, remarks, unitSuspects: suspects };
   if (typeof description === 'string') scenario.description = description;
   if (sample) scenario.sample = sample;
   return { ok: true, scenario };
 }
 
 function unknownKeys(o: Obj, base: string, allowed: readonly string[], err: (p: string, m: string) => void): void {
+  const shown = allowed.filter((k) => k !== '$schema');
   for (const k of Object.keys(o)) {
-    if (!allowed.includes(k)) err(key(base, k), `unknown field (expected one of ${allowed.join(', ')})`);
+    if (!allowed.includes(k)) err(key(base, k), `unknown field (expected one of ${shown.join(', ')})`);
   }
 }
 
@@ -134,7 +157,7 @@ function readSize(v: unknown, path: string, err: (p: string, m: string) => void)
 function readSample(v: unknown, err: (p: string, m: string) => void): Scenario['sample'] | undefined {
   if (v === undefined) return undefined;
   if (!isObj(v)) { err('sample', `must be an object {"rows": N, "seed": S}; got ${show(v)}`); return undefined; }
-  unknownKeys(v, 'sample', ['rows', 'seed'], err);
+  unknownKeys(v, 'sample', SCENARIO_FIELDS.sample, err);
   let ok = true;
   if (!isNum(v.rows) || !Number.isInteger(v.rows) || v.rows < 1) { err('sample.rows', `must be a whole number >= 1 (rows to check); got ${show(v.rows)}`); ok = false; }
   if (v.seed !== undefined && (!isNum(v.seed) || !Number.isInteger(v.seed) || v.seed < 0)) { err('sample.seed', `must be a whole number >= 0; got ${show(v.seed)}`); ok = false; }
@@ -142,7 +165,7 @@ function readSample(v: unknown, err: (p: string, m: string) => void): Scenario['
 }
 
 function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, duration: number, err: (p: string, m: string) => void,
-  remarks: string[], rejected: Set<string>): Population[] {
+  remarks: string[], rejected: Set<string>, suspects: UnitSuspect[]): Population[] {
   if (v === undefined) { err('populations', 'missing: give an object of named populations'); return []; }
   if (!isObj(v)) { err('populations', `must be an object mapping names to populations; got ${show(v)}`); return []; }
   if (Object.keys(v).length === 0) err('populations', 'is empty: give at least an input and a model population');
@@ -155,7 +178,7 @@ function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, dura
     if (!isObj(p)) { err(path, `must be an object; got ${show(p)}`); rejected.add(name); continue; }
     if ('spikes' in p && 'model' in p) { err(path, 'give either "spikes" (an input population) or "model" (a neuron of the file), not both'); rejected.add(name); continue; }
     if ('spikes' in p) {
-      unknownKeys(p, path, ['size', 'spikes'], err);
+      unknownKeys(p, path, SCENARIO_FIELDS.input, err);
       const size = readSize(p.size, `${path}.size`, err);
       const spikes = readSpikes(p.spikes, `${path}.spikes`, size, duration, err);
       if (size !== undefined) out.push({ kind: 'input', name, size, spikes });
@@ -163,12 +186,12 @@ function readPopulations(v: unknown, analysis: Analysis, fileLabel: string, dura
       continue;
     }
     if (!('model' in p)) { err(path, 'give "model" (a neuron of the file) or "spikes" (an input population)'); rejected.add(name); continue; }
-    unknownKeys(p, path, ['model', 'size', 'params', 'initial', 'scales'], err);
+    unknownKeys(p, path, SCENARIO_FIELDS.model, err);
     const size = readSize(p.size, `${path}.size`, err);
     const model = readModel(p.model, `${path}.model`, analysis, fileLabel, err);
-    const params = model ? readValues(p.params, `${path}.params`, model.params.map((x) => x.name), 'parameter', model.name, err) : {};
-    const initial = model ? readValues(p.initial, `${path}.initial`, model.states.map((x) => x.name), 'state', model.name, err) : {};
-    const scales = model ? readValues(p.scales, `${path}.scales`, model.params.map((x) => x.name), 'parameter', model.name, err) : {};
+    const params = model ? readValues(p.params, `${path}.params`, model.params, 'parameter', model.name, err, suspects, true) : {};
+    const initial = model ? readValues(p.initial, `${path}.initial`, model.states, 'state', model.name, err, suspects, false) : {};
+    const scales = model ? readValues(p.scales, `${path}.scales`, model.params, 'parameter', model.name, err) : {};
     if (model) {
       for (const q of model.params) {
         if (params[q.name] === undefined && q.valueSI === undefined) err(`${path}.params`, `${model.name}'s parameter ${q.name} has no constant value in the file: give one here`);
@@ -194,10 +217,16 @@ function readSpikes(v: unknown, path: string, size: number | undefined, duration
   v.forEach((s, k) => {
     const at = `${path}[${k}]`;
     if (!Array.isArray(s) || s.length !== 2) { err(at, `must be a pair [time_s, index]; got ${show(s)}`); return; }
-    const [t, i] = s as unknown[];
+    const [tv, i] = s as unknown[];
     let ok = true;
-    if (!isNum(t) || t < 0) { err(`${at}[0]`, `the time must be a number of seconds >= 0; got ${show(t)}`); ok = false; }
-    else if (t >= duration) { err(`${at}[0]`, `the time ${t} s is not before duration_s (${duration} s)`); ok = false; }
+    const tr = quantity(tv, `${at}[0]`, TIME_EXPECTED('a spike time'), err, `the time must be a number of seconds >= 0 (or a time such as "1.5 [ms]"); got ${show(tv)}`);
+    const t = tr?.si;
+    if (t === undefined) ok = false;
+    else if (t < 0) { err(`${at}[0]`, `the time must be >= 0; got ${show(tv)}`); ok = false; }
+    else if (t >= duration) {
+      const hint = tr!.bare && t * 1e-3 < duration ? `; a number is SI: if you meant ms, write "${formatNumberText(t)} [ms]"` : '';
+      err(`${at}[0]`, `the time ${formatSeconds(t)} is not before duration_s (${formatSeconds(duration)})${hint}`); ok = false;
+    }
     if (!isNum(i) || !Number.isInteger(i) || i < 0) { err(`${at}[1]`, `the index must be a whole number >= 0; got ${show(i)}`); ok = false; }
     else if (size !== undefined && i >= size) { err(`${at}[1]`, `index ${i} is out of range: the population has ${size} neuron${size === 1 ? '' : 's'} (0..${size - 1})`); ok = false; }
     if (ok) out.push([t as number, i as number]);
@@ -217,20 +246,37 @@ function readModel(v: unknown, path: string, analysis: Analysis, fileLabel: stri
   return n;
 }
 
-function readValues(v: unknown, path: string, names: string[], what: string, model: string, err: (p: string, m: string) => void): Record<string, number> {
+function readValues(v: unknown, path: string, decls: readonly (SymbolInfo & { valueSI?: number })[], what: string, model: string, err: (p: string, m: string) => void,
+  suspects?: UnitSuspect[], withReference = false): Record<string, number> {
   const out: Record<string, number> = Object.create(null) as Record<string, number>;
   if (v === undefined) return out;
-  if (!isObj(v)) { err(path, `must be an object of ${what} values in SI units; got ${show(v)}`); return out; }
+  const names = decls.map((d) => d.name);
+  if (!isObj(v)) { err(path, `must be an object of ${what} values (SI numbers, or quantities such as "2 [nS]"); got ${show(v)}`); return out; }
   for (const [k, x] of Object.entries(v)) {
     const at = key(path, k);
-    if (!names.includes(k)) { err(at, `${model} has no ${what} '${k}' (it has: ${names.join(', ') || 'none'})`); continue; }
-    if (!isNum(x)) { err(at, `must be a finite number (SI units); got ${show(x)}`); continue; }
-    out[k] = x;
+    const decl = decls.find((d) => d.name === k);
+    if (!decl) { err(at, `${model} has no ${what} '${k}' (it has: ${names.join(', ') || 'none'})`); continue; }
+    const e = expectedOf(decl, `${model}'s ${what} ${k}`);
+    const r = quantity(x, at, e, err, typeMessage(e, show(x)));
+    if (!r) continue;
+    out[k] = r.si;
+    const suspect = r.bare && suspects ? prefixSuspect(at, r.si, e, withReference ? decl.valueSI : undefined) : undefined;
+    if (suspect) suspects!.push(suspect);
   }
   return out;
 }
 
-function readProjections(v: unknown, pops: Map<string, Population>, rejected: Set<string>, analysis: Analysis, remarks: string[], err: (p: string, m: string) => void): Projection[] {
+function expectedOf(d: SymbolInfo, what: string): Expected {
+  return { what, ...(d.dim ? { dim: d.dim } : {}), ...(d.unitText ? { unitText: d.unitText } : {}) };
+}
+
+function formatSeconds(t: number): string {
+  return t !== 0 && Math.abs(t) < 1 ? `${formatNumberText(t)} s (${formatNumberText(t * 1e3)} ms)` : `${formatNumberText(t)} s`;
+}
+const formatNumberText = (x: number): string => String(Number(x.toPrecision(12)));
+
+function readProjections(v: unknown, pops: Map<string, Population>, rejected: Set<string>, analysis: Analysis, remarks: string[], err: (p: string, m: string) => void,
+  suspects: UnitSuspect[]): Projection[] {
   if (v === undefined) { err('projections', 'missing: give a list of {from, to, weights}'); return []; }
   if (!Array.isArray(v)) { err('projections', `must be a list of {from, to, weights}; got ${show(v)}`); return []; }
   if (v.length === 0) err('projections', 'is empty: the check needs at least one projection (its weights are what is checked)');
@@ -239,7 +285,7 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
   v.forEach((p, k) => {
     const path = `projections[${k}]`;
     if (!isObj(p)) { err(path, `must be an object {from, to, weights}; got ${show(p)}`); return; }
-    unknownKeys(p, path, ['from', 'to', 'weights'], err);
+    unknownKeys(p, path, SCENARIO_FIELDS.projection, err);
     const from = endpoint(p.from, `${path}.from`, pops, rejected, err);
     const to = endpoint(p.to, `${path}.to`, pops, rejected, err);
     if (from?.kind === 'model' && !from.model.fire) { err(`${path}.from`, `${from.name} (${from.model.name}) has no fire block, so it sends no spikes`); }
@@ -254,7 +300,7 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
       }
     }
     // With an endpoint rejected above, its size is unknown: the weights are not checked against it.
-    const weights = readWeights(p.weights, `${path}.weights`, from, to, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)));
+    const weights = readWeights(p.weights, `${path}.weights`, from, to, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)), suspects);
     if (from && to && weights) out.push({ index: k, from: from.name, to: to.name, weights });
   });
   return out;
@@ -270,27 +316,34 @@ function endpoint(v: unknown, path: string, pops: Map<string, Population>, rejec
 }
 
 function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, err: (p: string, m: string) => void,
-  quiet = false): number[][] | undefined {
+  quiet: boolean, suspects: UnitSuspect[]): number[][] | undefined {
   if (quiet) return undefined;
   if (v === undefined) { err(path, 'missing: give weights[to][from], one row per receiving neuron'); return undefined; }
   if (!Array.isArray(v)) { err(path, `must be a list of rows weights[to][from]; got ${show(v)}`); return undefined; }
   let ok = true;
   if (to && v.length !== to.size) { err(path, `expected ${to.size} row${to.size === 1 ? '' : 's'} (one per neuron of ${to.name}), got ${v.length}`); ok = false; }
   const rows: number[][] = [];
+  const inc = to?.kind === 'model' ? to.model.incoming : undefined;
+  const e: Expected = { what: `a weight of ${to?.name ?? 'the receiver'}${inc ? ` (${inc.weight})` : ''}`, ...(inc?.weightDim ? { dim: inc.weightDim } : {}), ...(inc?.weightUnit ? { unitText: inc.weightUnit } : {}) };
   v.forEach((row, i) => {
     const at = `${path}[${i}]`;
     if (!Array.isArray(row)) { err(at, `must be a list of numbers (one per neuron of ${from?.name ?? 'the sender'}); got ${show(row)}`); ok = false; return; }
     if (from && row.length !== from.size) { err(at, `expected ${from.size} number${from.size === 1 ? '' : 's'} (one per neuron of ${from.name}), got ${row.length}`); ok = false; }
+    const out: number[] = [];
     row.forEach((w, j) => {
-      if (!isNum(w)) { err(`${at}[${j}]`, `must be a finite number; got ${show(w)}`); ok = false; }
-      else if (from && to && from === to && i === j && w !== 0) { err(`${at}[${j}]`, 'a neuron cannot project onto itself here (self-synapses are not simulated): set the diagonal to 0'); ok = false; }
+      const r = quantity(w, `${at}[${j}]`, e, err, typeMessage(e, show(w)));
+      if (!r) { ok = false; return; }
+      out.push(r.si);
+      if (from && to && from === to && i === j && r.si !== 0) { err(`${at}[${j}]`, 'a neuron cannot project onto itself here (self-synapses are not simulated): set the diagonal to 0'); ok = false; }
+      const suspect = r.bare ? prefixSuspect(`${at}[${j}]`, r.si, e) : undefined;
+      if (suspect) suspects.push(suspect);
     });
-    rows.push(row as number[]);
+    rows.push(out);
   });
   return ok ? rows : undefined;
 }
 
-function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void): ScenarioLoss | undefined {
+function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void, suspects: UnitSuspect[]): ScenarioLoss | undefined {
   if (v === undefined) { err('loss', 'missing: give {"kind": "state-integral" | "spike-time", ...}'); return undefined; }
   if (!isObj(v)) { err('loss', `must be an object; got ${show(v)}`); return undefined; }
   const kind = v.kind;
@@ -298,7 +351,7 @@ function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<strin
     err('loss.kind', `must be "state-integral" or "spike-time"; got ${show(kind)}`);
     return undefined;
   }
-  unknownKeys(v, 'loss', kind === 'state-integral' ? ['kind', 'population', 'state', 'target'] : ['kind', 'population', 'targets_s'], err);
+  unknownKeys(v, 'loss', kind === 'state-integral' ? SCENARIO_FIELDS.stateIntegralLoss : SCENARIO_FIELDS.spikeTimeLoss, err);
   const pop = endpoint(v.population, 'loss.population', pops, rejected, err);
   if (typeof v.population === 'string' && rejected.has(v.population)) return undefined;
   if (pop?.kind === 'input') { err('loss.population', `${pop.name} is an input population; the loss needs a model population`); return undefined; }
@@ -308,21 +361,32 @@ function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<strin
     if (typeof state !== 'string') err('loss.state', `must be the name of a state; got ${show(state)}`);
     else if (pop && !pop.model.states.some((s) => s.name === state)) err('loss.state', `${pop.model.name} has no state '${state}' (it has: ${pop.model.states.map((s) => s.name).join(', ')})`);
     else stateOk = true;
-    const target = readTargets(v.target, 'loss.target', pop, true, err);
+    const decl = pop && stateOk ? pop.model.states.find((x) => x.name === state) : undefined;
+    const target = readTargets(v.target, 'loss.target', pop, true, err, decl ? expectedOf(decl, `the target of ${pop!.name}.${state as string}`) : { what: 'the target' }, suspects);
     return pop && stateOk && target ? { kind, population: pop.name, state: state as string, target } : undefined;
   }
   if (pop && !pop.model.fire) err('loss.population', `${pop.name} (${pop.model.name}) has no fire block: a spike-time loss needs a firing model`);
-  const targets = readTargets(v.targets_s, 'loss.targets_s', pop, false, err);
+  const targets = readTargets(v.targets_s, 'loss.targets_s', pop, false, err, TIME_EXPECTED('a target spike time'));
   return pop && pop.model.fire && targets ? { kind, population: pop.name, targets } : undefined;
 }
 
-function readTargets(v: unknown, path: string, pop: ModelPopulation | undefined, scalarOk: boolean, err: (p: string, m: string) => void): number[] | undefined {
+function readTargets(v: unknown, path: string, pop: ModelPopulation | undefined, scalarOk: boolean, err: (p: string, m: string) => void,
+  e: Expected, suspects?: UnitSuspect[]): number[] | undefined {
   const n = pop?.size ?? 0;
-  if (v === undefined) { err(path, scalarOk ? 'missing: give the target value (SI), or one per neuron' : `missing: give one target spike time in seconds per neuron${pop ? ` of ${pop.name} (${n})` : ''}`); return undefined; }
-  if (scalarOk && isNum(v)) return Array.from({ length: n }, () => v);
-  if (!Array.isArray(v)) { err(path, `must be ${scalarOk ? 'a number or ' : ''}a list of numbers, one per neuron; got ${show(v)}`); return undefined; }
+  if (v === undefined) { err(path, scalarOk ? 'missing: give the target value (SI, or a quantity such as "-60 [mV]"), or one per neuron' : `missing: give one target spike time in seconds per neuron${pop ? ` of ${pop.name} (${n})` : ''}`); return undefined; }
+  const one = (x: unknown, at: string): number | undefined => {
+    const r = quantity(x, at, e, err, typeMessage(e, show(x)));
+    if (r?.bare && suspects) { const s = prefixSuspect(at, r.si, e); if (s) suspects.push(s); }
+    return r?.si;
+  };
+  if (scalarOk && !Array.isArray(v)) {
+    const x = one(v, path);
+    return x === undefined ? undefined : Array.from({ length: n }, () => x);
+  }
+  if (!Array.isArray(v)) { err(path, `must be a list of numbers, one per neuron; got ${show(v)}`); return undefined; }
   if (pop && v.length !== n) { err(path, `expected ${n} value${n === 1 ? '' : 's'} (one per neuron of ${pop.name}), got ${v.length}`); return undefined; }
+  const out: number[] = [];
   let ok = true;
-  v.forEach((x, i) => { if (!isNum(x)) { err(`${path}[${i}]`, `must be a finite number; got ${show(x)}`); ok = false; } });
-  return ok ? (v as number[]) : undefined;
+  v.forEach((x, i) => { const si = one(x, `${path}[${i}]`); if (si === undefined) ok = false; else out.push(si); });
+  return ok ? out : undefined;
 }

@@ -42,7 +42,7 @@ export interface GradientRow extends RowCommon {
 /** A trainable parameter of a model population (shared by its neurons). */
 export interface ParamRow extends RowCommon { population: string; name: string }
 
-export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'remark';
+export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'unit-prefix' | 'remark';
 
 export interface CrossCheckWarning {
   kind: WarningKind;
@@ -226,4 +226,21 @@ export interface GridConvergence {
   /** Why a dt could not be run. */
   failures: { dt: number; error: string }[];
   timing_ms: number;
+}
+
+/** A row as the reports show it: the value in the file's unit and dL/d(value) per that same
+ *  unit (SI gradient times the unit's SI scale), with the gradient's unit spelled out; rows
+ *  whose value has no unit in the file stay SI and say so. The JSON keeps SI. */
+export interface RowDisplay { value: number; valueUnit: string; adjoint: number; finiteDifference: number | null; fdNoise?: number; gradientUnit: string }
+
+export function rowDisplay(r: GradientRow | ParamRow, lossUnit: string): RowDisplay {
+  const scale = r.unit?.scale ?? 1;
+  const u = r.unit?.text;
+  const wrap = (s: string): string => (/[*/ ]/.test(s) ? `(${s})` : s);
+  const gradientUnit = u === undefined ? `${lossUnit} per SI unit` : u === '1' ? lossUnit : `${lossUnit}/${wrap(u)}`;
+  return {
+    value: r.value / scale, valueUnit: u === '1' ? '' : u ?? 'SI', adjoint: r.adjoint * scale,
+    finiteDifference: r.finiteDifference === null ? null : r.finiteDifference * scale,
+    ...(r.fdNoise !== undefined ? { fdNoise: r.fdNoise * scale } : {}), gradientUnit,
+  };
 }

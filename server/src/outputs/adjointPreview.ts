@@ -4,6 +4,7 @@
 import type { NeuronDerivation } from '../adjoint/index';
 import type { Sym } from '../symbolic/sym';
 import { latexName, toLatex } from '../symbolic/latex'; // not symbolic/index: that also loads mathjs's parser, a slow start-up
+import { readable } from '../symbolic/readable';
 import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
 import { renderModelsBody, type PreviewModel, type PreviewRow } from './preview';
@@ -13,7 +14,7 @@ const isZero = (s: Sym | null): boolean => s === null || (s.k === 'num' && s.v =
 const DERIVED_NAMES: Record<string, string> = {
   lV_post: 'l_V^{+}', lV_pre: 'l_V^{-}', dlp_dt: '\\frac{\\partial l_p}{\\partial t_k}', coupling: '\\mathrm{coupling}',
 };
-const L = (s: Sym): string => toLatex(s, (n) => DERIVED_NAMES[n]);
+const L = (s: Sym): string => toLatex(readable(s), (n) => DERIVED_NAMES[n]);
 const lam = (x: string): string => `\\lambda_{${latexName(x)}}`;
 
 export function adjointBadge(d: NeuronDerivation): string {
@@ -42,6 +43,7 @@ export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
     const i = d.incoming;
     sections.push({
       title: `At a received spike (weight ${i.weight})`,
+      note: `λ just after the arrival, states just before. Record at each received spike: ${i.record.length ? i.record.join(', ') : 'the arrival time only'}.`,
       rows: [
         ...[...i.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
         { label: 'weight gradient', latex: `\\Delta\\frac{\\partial L}{\\partial ${latexName(i.weight)}} = ${L(i.weightGradient)}` },

@@ -35,7 +35,7 @@ import { modelHash } from '../model/hash';
 import { type Sym, ZERO, add, fn, freeSymbols, mul, num, pow, substitute, sym } from '../symbolic/sym';
 import type { Assignment } from '../symbolic/program';
 import { normalise } from '../symbolic/normalise';
-import { toPlain } from '../symbolic/print';
+import { readableText as toPlain } from '../symbolic/readable';
 import { STEP, TIME } from '../base/names';
 import { buildScheme } from './scheme';
 import { ltiStructure } from './propagator';

@@ -22,6 +22,7 @@ import { collectIn, normalise } from '../symbolic/normalise';
 import { compile, type Compiled } from '../symbolic/evaluate';
 
 import { toPlain } from '../symbolic/print';
+import { readableText } from '../symbolic/readable';
 
 import { type Mat, identity } from './linalg';
 
@@ -119,7 +120,7 @@ function culprit(s: Sym, x: string): string {
 }
 
 function short(s: Sym): string {
-  const t = toPlain(s);
+  const t = readableText(s);
   return t.length > 60 ? `${t.slice(0, 57)}...` : t;
 }
 

@@ -1,7 +1,7 @@
 // Symbolic expressions used by every analysis and derivation. Plain immutable data:
 // n-ary sums and products make collecting terms and folding constants cheap, so we never
 // need mathjs `simplify` on the keystroke path (it costs 27-128 ms per adjoint-sized
-// expression on these machines, see ../shared/REFERENCES.md).
+// expression on these machines, see docs/references.md).
 //
 // Numbers are plain doubles in SI units (the model stage converts every literal and
 // parameter to SI); symbols are state, parameter and derived names (`lambda_V`, `phi`...).
