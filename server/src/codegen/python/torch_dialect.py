@@ -5,8 +5,8 @@
 # no_grad on detached tensors: nothing here records an autograd graph, and the only in-place
 # writes are into the runtime's own work tensors. phi1, phik and expdd are the divided
 # differences of exp of Saltus's step maps, the same algorithm as server/src/symbolic/expdd.ts
-# (its Taylor series around the mean written as a product of geometric series, one matrix
-# product per node). Works with torch 1.13 and later (no newer API is used).
+# (its Taylor series around the mean, with as many terms as the nodes' spread needs for a
+# relative error below 1e-17). Works with torch 1.13 and later (no newer API is used).
 import contextlib
 import math
 
@@ -21,7 +21,6 @@ class _Dialect:
     def __init__(self):
         self.dtype = torch.float64
         self.device = torch.device("cpu")
-        self._toeplitz = {}
 
     # --- context ---------------------------------------------------------------------------
     def use(self, dtype=None, device=None):
@@ -232,18 +231,16 @@ class _Dialect:
         out = torch.where(torch.abs(z) < 1, acc, big)
         return torch.where(torch.isneginf(z), torch.zeros_like(z), out)
 
-    def _geometric(self, v, h):
-        """h * 1/(1 - v z) as power series in z (terms 0.._TAYLOR_TERMS): h'_j = sum_{i<=j} v^(j-i) h_i."""
-        n = _TAYLOR_TERMS + 1
-        key = (v.device, v.dtype)
-        if key not in self._toeplitz:
-            j = torch.arange(n, device=v.device)
-            diff = j[:, None] - j[None, :]
-            self._toeplitz[key] = (torch.clamp(diff, min=0), diff >= 0)
-        idx, mask = self._toeplitz[key]
-        powers = torch.cumprod(torch.cat([torch.ones_like(v)[None], v[None].expand(n - 1, *v.shape)]), dim=0)
-        T = powers[idx] * mask.reshape(n, n, *([1] * v.dim())).to(v.dtype)
-        return torch.einsum("ji...,i...->j...", T, h)
+    def _terms(self, dmax):
+        """Taylor terms needed for a relative error below 1e-17 when every centred node is at most
+        dmax in size: term j is at most dmax^j / (j! m!) (|h_j(d)| <= C(j + m, m) dmax^j), against a
+        sum of at least e^(-dmax) / m!."""
+        bound = 1.0
+        for j in range(1, _TAYLOR_TERMS + 1):
+            bound = bound * dmax / j
+            if bound <= 1e-18:
+                return j
+        return _TAYLOR_TERMS
 
     def expdd(self, *nodes):
         """The divided difference of exp at the nodes (per element)."""
@@ -265,20 +262,25 @@ class _Dialect:
         for v in y[1:]:
             lo = torch.minimum(lo, v)
         spread = -lo
+        smax = float(torch.max(spread)) if spread.numel() else 0.0
         mean = sum(y) / len(y)
         # Taylor series around the mean: sum_j h_j(d) / (j + m)!, h_j the complete homogeneous
-        # symmetric polynomials of the centred nodes d (the product of their geometric series)
-        d = [torch.nan_to_num(v - mean) for v in y]
-        h = torch.zeros((_TAYLOR_TERMS + 1,) + tuple(mean.shape), dtype=mean.dtype, device=mean.device)
-        h[0] = 1.0
-        for v in d:
-            h = self._geometric(v, h)
-        fact = torch.tensor([_FACT[j + m] if j + m < 60 else math.factorial(j + m) for j in range(_TAYLOR_TERMS + 1)],
-                            dtype=mean.dtype, device=mean.device).reshape((-1,) + (1,) * mean.dim())
-        near = torch.exp(mean) * torch.sum(h / fact, dim=0)
-        finite = torch.isfinite(c)
-        if bool(torch.all(spread <= 1)):
-            return torch.where(finite, ec * near, torch.where(c > 0, torch.full_like(c, math.inf), torch.zeros_like(c)))
+        # symmetric polynomials of the centred nodes d (|d| <= spread), built node by node
+        J = self._terms(min(smax, 1.0))
+        d0 = y[0] - mean
+        h = [torch.ones_like(mean), d0]
+        for j in range(2, J + 1):
+            h.append(h[-1] * d0)
+        for v in y[1:]:
+            dv = v - mean
+            for j in range(1, J + 1):
+                h[j] = torch.addcmul(h[j], dv, h[j - 1])
+        taylor = h[J] / _FACT[J + m]
+        for j in range(J - 1, -1, -1):
+            taylor = torch.add(taylor, h[j], alpha=1.0 / _FACT[j + m])
+        near = torch.exp(mean) * taylor
+        if smax <= 1:
+            return torch.where(torch.isfinite(c), ec * near, torch.where(c > 0, torch.full_like(c, math.inf), torch.zeros_like(c)))
         wide = self._matrix_form(y, spread)
         out = torch.where(spread <= 1, near, wide)
         return torch.where(torch.isfinite(spread), ec * out, torch.zeros_like(out))

@@ -111,6 +111,25 @@ def pad_events(rows: Sequence[Sequence[Tuple[float, int]]], dtype=torch.float64,
     return times, index
 
 
+class FrozenModel:
+    """A generated model with every parameter held fixed: no parameter gradients, and for an exact
+    map no state at grid points kept for the backward pass (there only dF/dp reads the
+    segment-start state: docs/network-step.md, "What is kept"). Other names pass through."""
+
+    def __init__(self, model):
+        self._model = model
+        self.GRAD_PARAMS = ()
+        self.STATE_DEPENDENT_DERIVATIVES = bool(model.STATE_DEPENDENT_DERIVATIVES) and not model.EXACT
+
+    def __getattr__(self, name):
+        return getattr(self._model, name)
+
+    def incoming_vjp(self, x, p, t, weight, lam):
+        out = self._model.incoming_vjp(x, p, t, weight, lam)
+        S, G = len(self._model.STATES), len(self._model.GRAD_PARAMS)
+        return tuple(out[:S + 1]) + tuple(out[S + 1 + G:])
+
+
 class LayerSpec:
     """What a layer's Function needs besides tensors: the model module, the grid and the readout."""
 
@@ -248,6 +267,7 @@ class SpikingLayer(torch.nn.Module):
         Parameter values (SI) overriding the model's defaults.
     trainable : sequence of str, optional
         Which of the model's trainable parameters become nn.Parameters (default: all of them).
+        With none (``trainable=()``) and an exact step map, the backward pass keeps the events only.
     readout : (str, str), optional
         ("max", STATE) or ("integral", STATE): also output, per neuron, the largest grid value or
         the time integral of STATE (for a loss on a non-spiking layer).
@@ -285,7 +305,7 @@ class SpikingLayer(torch.nn.Module):
         self.weight = torch.nn.Parameter(w)
         self.model_params = torch.nn.ParameterDict({k: torch.nn.Parameter(torch.tensor(values[k], dtype=dtype, device=device)) for k in names})
         fixed = {k: v for k, v in values.items() if k not in names}
-        self.spec = LayerSpec(model, dt, duration, names, fixed, readout, max_spikes)
+        self.spec = LayerSpec(model if names else FrozenModel(model), dt, duration, names, fixed, readout, max_spikes)
 
     @property
     def last_kept_bytes(self) -> int:
