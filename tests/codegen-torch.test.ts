@@ -107,7 +107,7 @@ function layerCase(name: string, until: number, dt: number): Record<string, unkn
   return {
     model: dst.model, n_in: src.size, n_out: dst.size, dt, duration: until, weights: pr.weights, params: dst.params ?? {},
     trials: [spikes, spikes.map(([t, i]) => [t + 0.0007, i]).filter(([t]) => t! < until)],
-    readout: model.guard ? null : ['max', model.states[0]!.name],
+    readout: model.fire ? null : ['max', model.states[0]!.name],
   };
 }
 

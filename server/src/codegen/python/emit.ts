@@ -31,14 +31,14 @@ export interface PyDialect {
 export const NUMPY_DIALECT: PyDialect = { id: 'numpy', label: 'NumPy', precision: 'float64 (NumPy arrays)', dialectText: numpyDialectText, package: false };
 export const TORCH_DIALECT: PyDialect = { id: 'torch', label: 'PyTorch', precision: 'the dtype of the tensors passed in (float64 or float32), on their device', dialectText: torchDialectText, package: true };
 
-/** `from saltus_dialect import X` (and for a package, the relative import first). */
-export function importLines(d: PyDialect, what: readonly [module: string, names: string][]): string[] {
-  const plain = what.map(([m, n]) => (n ? `from ${m} import ${n}` : `import ${m}`));
+/** `from saltus_dialect import X` (and for a package, the relative import first); [module, '', alias] imports a module under an alias. */
+export function importLines(d: PyDialect, what: readonly (readonly [module: string, names: string, alias?: string])[]): string[] {
+  const as = (alias?: string): string => (alias ? ` as ${alias}` : '');
+  const plain = what.map(([m, n, a]) => (n ? `from ${m} import ${n}` : `import ${m}${as(a)}`));
   if (!d.package) return plain;
-  const rel = what.map(([m, n]) => (n ? `from .${m} import ${n}` : `from . import ${m}`));
+  const rel = what.map(([m, n, a]) => (n ? `from .${m} import ${n}` : `from . import ${m}${as(a)}`));
   return ['try:  # inside the generated package', ...ind(rel), 'except ImportError:  # run as a script next to the files', ...ind(plain)];
 }
-
 const ind = (lines: readonly string[], n = 1): string[] => lines.map((l) => (l ? '    '.repeat(n) + l : l));
 const repr = (v: number): string => (Number.isNaN(v) ? 'float("nan")' : v === Infinity ? 'float("inf")' : v === -Infinity ? 'float("-inf")' : String(v));
 
