@@ -69,7 +69,7 @@ def svg_curve(history, path):
     ya = lambda v: T + (H - T - B) * (1 - v)
     out = ['<svg xmlns="http://www.w3.org/2000/svg" width="%d" height="%d" viewBox="0 0 %d %d" font-family="sans-serif" font-size="12">' % (W, H, W, H),
            '<rect width="100%" height="100%" fill="white"/>',
-           '<text x="%d" y="22" font-size="14">Fan-bearing sensor task: two LifCurrent layers trained with the exact event-based gradient</text>' % L,
+           '<text x="%d" y="22" font-size="14">Invented fan-bearing sensor task: 8 inputs, 20 LifCurrent, 3 Readout; exact event-based gradient</text>' % 20,
            '<line x1="%d" y1="%d" x2="%d" y2="%d" stroke="black"/>' % (L, H - B, W - R, H - B),
            '<line x1="%d" y1="%d" x2="%d" y2="%d" stroke="black"/>' % (L, T, L, H - B),
            '<line x1="%d" y1="%d" x2="%d" y2="%d" stroke="black"/>' % (W - R, T, W - R, H - B)]
@@ -86,8 +86,8 @@ def svg_curve(history, path):
     out.append('<text x="%d" y="%.1f" fill="#1f618d">chance</text>' % (W - R - 50, chance - 4))
     out.append('<polyline fill="none" stroke="#b03a2e" stroke-width="2" points="%s"/>' % " ".join("%.1f,%.1f" % (x(i), yl(v)) for i, v in enumerate(losses)))
     out.append('<polyline fill="none" stroke="#1f618d" stroke-width="2" points="%s"/>' % " ".join("%.1f,%.1f" % (x(i), ya(v)) for i, v in enumerate(accs)))
-    out.append('<text x="%d" y="%d" fill="#b03a2e">training loss (cross-entropy)</text>' % (L + 10, T + 14))
-    out.append('<text x="%d" y="%d" fill="#1f618d">test accuracy</text>' % (L + 10, T + 30))
+    out.append('<text x="%d" y="%d" fill="#b03a2e">training loss (cross-entropy; epoch 0: before training, test set)</text>' % (L + 10, H - B - 30))
+    out.append('<text x="%d" y="%d" fill="#1f618d">test accuracy (60 held-out trials)</text>' % (L + 10, H - B - 14))
     out.append('</svg>')
     with open(path, "w", encoding="utf-8") as f:
         f.write("\n".join(out) + "\n")

@@ -60,9 +60,19 @@ def check_gradcheck(pkg, a):
 
     o = fn.apply(layer.spec, times.detach(), index, w.detach(), *[p.detach() for p in ps])
     spikes = int((o[1] >= 0).sum())
-    ok = torch.autograd.gradcheck(f, (times, w, *ps), eps=1e-7, atol=1e-6, rtol=1e-5, raise_exception=False)
-    # the largest relative deviation of the analytic from the numerical Jacobian, as a figure
-    return {"ok": bool(ok), "spikes": spikes, "params": names, "inputs": int(times.numel() + w.numel() + len(ps))}
+    # inputs in their own scale (weights and parameters relative to their values, times in s), so
+    # that one eps suits AdEx's nanoampere weights and a LIF's dimensionless ones alike
+    w_scale = float(w.detach().abs().max())
+    p_scale = [abs(float(p)) or 1.0 for p in ps]
+    ws = (w.detach() / w_scale).requires_grad_(True)
+    pss = [(p.detach() / k).requires_grad_(True) for p, k in zip(ps, p_scale)]
+
+    def g(t, w_, *p):
+        return f(t, w_ * w_scale, *[q * k for q, k in zip(p, p_scale)])
+
+    ok = torch.autograd.gradcheck(g, (times, ws, *pss), eps=1e-7, atol=1e-6, rtol=1e-5, raise_exception=False,
+                                  fast_mode=bool(a.get("fast")))
+    return {"ok": bool(ok), "spikes": spikes, "params": names, "inputs": int(times.numel() + w.numel() + len(ps)), "fast": bool(a.get("fast"))}
 
 
 def two_layers(pkg, a, dtype=torch.float64):
