@@ -265,7 +265,7 @@ def check_memory(pkg, a):
     out = []
     for steps in a["steps"]:
         duration = steps * a["dt"]
-        layer = pkg.LifCurrentLayer(a["n_in"], a["n_out"], a["dt"], duration, trainable=a["trainable"])
+        layer = pkg.LifCurrentLayer(a["n_in"], a["n_out"], a["dt"], duration, trainable=a["trainable"], params=a.get("params") or {})
         with torch.no_grad():
             layer.weight.copy_(torch.tensor(a["weights"], dtype=torch.float64))
         times, index = pkg.pad_events(a["trials"])
