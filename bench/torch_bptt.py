@@ -3,8 +3,8 @@ grid steps of 0.1 ms, one LifCurrent layer (samples/lif_current.saltus, fixed ti
 8 inputs -> 32 neurons, 16 trials, Poisson-like input spikes at a fixed rate, so spikes grow with
 T) forward and backward, against plain-PyTorch backpropagation through time of the same discrete
 model: the same exact propagators per step, input spikes binned to steps, the spike a Heaviside
-step with the fast-sigmoid surrogate derivative 1 / (1 + 10 |V - theta|)^2 (SuperSpike, Zenke &
-Ganguli 2018), reset by V := V (1 - s). Kept memory: the generated layer's recorded events and
+step with the fast-sigmoid surrogate derivative 1 / (1 + 10 |V - theta|)^2 (common practice in
+surrogate-gradient training), reset by V := V (1 - s). Kept memory: the generated layer's recorded events and
 checkpoints (saltus_torch.kept_bytes); for BPTT the tensors autograd saves for backward, counted
 with torch.autograd.graph.saved_tensors_hooks (distinct storages). Time: forward + backward,
 best of REPS. Prints one JSON line per T.
@@ -90,7 +90,7 @@ def main(pkg_dir):
     w0 = (torch.randn(N, N_IN, generator=g, dtype=torch.float64) * 1.5 + 2.0)
     for steps in (100, 1000, 10000):
         times, index = inputs(steps)
-        reps = 3 if steps <= 1000 else 1
+        reps = 2 if steps <= 100 else 1
         best_l, best_b = math.inf, math.inf
         for _ in range(reps):
             layer = pkg.LifCurrentLayer(N_IN, N, DT, steps * DT, trainable=())
