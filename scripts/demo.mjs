@@ -1,7 +1,10 @@
 // `npm run demo`: a tour of the CLI on the project's samples/. Builds dist/ first when it is
 // missing. Step 1 checks every samples/*.saltus file and shows the report; the demo passes
 // when the only error diagnostics are in samples/mistakes.saltus (which exists to show them)
-// and that file does have errors. Exit 0 on success, 1 otherwise.
+// and that file does have errors. The last step trains a two-layer network of the generated
+// PyTorch layers on an invented sensor task (scripts/train_demo.py: the loss must fall and the
+// test accuracy rise well above chance); without a python3 that imports torch it prints a SKIP
+// line saying so. Exit 0 on success, 1 otherwise.
 import { spawnSync } from 'node:child_process';
 import { existsSync, readdirSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
@@ -73,15 +76,15 @@ expectExit('step', saltus(['step', 'samples/adex.saltus'], false));
 for (const s of good) expectExit(`step ${s}`, saltus(['step', s, '--format', 'json'], true));
 
 // --- Step 4: generated code ------------------------------------------------------------
-heading('saltus generate samples/lif_current.saltus --target c   (C, CUDA and NumPy for every sample)');
+heading('saltus generate samples/lif_current.saltus --target c   (C, CUDA, NumPy and PyTorch for every sample)');
 for (const s of good) {
   const name = s.replace(/^samples\//, '').replace(/\.saltus$/, '');
-  for (const target of ['c', 'cuda', 'numpy']) {
+  for (const target of ['c', 'cuda', 'numpy', 'torch']) {
     const r = saltus(['generate', s, '--target', target, '--out', join(out, 'generated', target, name), '--force'], s === 'samples/lif_current.saltus' && target === 'c' ? false : true);
     expectExit(`generate ${target} ${s}`, r);
   }
 }
-console.log(`generated code: ${join('demo-output', 'generated')}/{c,cuda,numpy}/<sample>/`);
+console.log(`generated code: ${join('demo-output', 'generated')}/{c,cuda,numpy,torch}/<sample>/`);
 
 // --- Step 5: gradient cross-check against finite differences, one scenario per sample ---------
 const scenarioDir = join(root, 'samples', 'scenarios');
@@ -145,6 +148,18 @@ else {
       else compareRunner('C', r.stdout);
     }
   }
+}
+
+// --- Step 7: train a network of generated PyTorch layers ----------------------------------
+heading('PyTorch: two generated layers trained with Adam on an invented fan-bearing sensor task');
+const torchPython = ['python3', '/usr/bin/python3'].find((py) => spawnSync(py, ['-c', 'import torch'], { encoding: 'utf8' }).status === 0);
+if (!torchPython) {
+  console.log('SKIP PyTorch training demo: neither python3 on PATH nor /usr/bin/python3 imports torch (Debian: apt-get install python3-torch)');
+} else {
+  const pkg = join(out, 'generated', 'torch', 'lif_current');
+  const r = spawnSync(torchPython, [join(root, 'scripts', 'train_demo.py'), pkg, join(out, 'training')], { cwd: root, stdio: 'inherit' });
+  expectExit('PyTorch training demo (scripts/train_demo.py)', r);
+  if (r.status === 0) console.log(`learning curve: ${join('demo-output', 'training', 'learning-curve.svg')}`);
 }
 
 heading('demo result');

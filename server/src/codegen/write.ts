@@ -32,7 +32,7 @@ export interface WriteResult {
   errors: string[];
 }
 
-const SAFE_NAME = /^[A-Za-z0-9][A-Za-z0-9_.+-]*$/;
+const SAFE_NAME = /^[A-Za-z0-9_][A-Za-z0-9_.+-]*$/; // a leading underscore: Python's __init__.py
 
 /** Why `name` is not a plain file name, or null when it is. */
 export function unsafeName(name: string): string | null {

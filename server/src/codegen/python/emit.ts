@@ -13,20 +13,32 @@ import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
 import runtimeText from './runtime.py?raw';
 import numpyDialectText from './numpy_dialect.py?raw';
+import torchDialectText from './torch_dialect.py?raw';
 
 export interface GeneratedFile { name: string; content: string }
 
 export interface PyDialect {
-  id: 'numpy';
+  id: 'numpy' | 'torch';
   /** Words for headers. */
   label: string;
   precision: string;
   /** The dialect module's text. */
   dialectText: string;
+  /** The files form a package (relative imports, with a fallback for scripts run in the folder). */
+  package: boolean;
 }
 
-export const NUMPY_DIALECT: PyDialect = { id: 'numpy', label: 'NumPy', precision: 'float64 (NumPy arrays)', dialectText: numpyDialectText };
+export const NUMPY_DIALECT: PyDialect = { id: 'numpy', label: 'NumPy', precision: 'float64 (NumPy arrays)', dialectText: numpyDialectText, package: false };
+export const TORCH_DIALECT: PyDialect = { id: 'torch', label: 'PyTorch', precision: 'the dtype of the tensors passed in (float64 or float32), on their device', dialectText: torchDialectText, package: true };
 
+/** `from saltus_dialect import X` (and for a package, the relative import first); [module, '', alias] imports a module under an alias. */
+export function importLines(d: PyDialect, what: readonly (readonly [module: string, names: string, alias?: string])[]): string[] {
+  const as = (alias?: string): string => (alias ? ` as ${alias}` : '');
+  const plain = what.map(([m, n, a]) => (n ? `from ${m} import ${n}` : `import ${m}${as(a)}`));
+  if (!d.package) return plain;
+  const rel = what.map(([m, n, a]) => (n ? `from .${m} import ${n}` : `from . import ${m}${as(a)}`));
+  return ['try:  # inside the generated package', ...ind(rel), 'except ImportError:  # run as a script next to the files', ...ind(plain)];
+}
 const ind = (lines: readonly string[], n = 1): string[] => lines.map((l) => (l ? '    '.repeat(n) + l : l));
 const repr = (v: number): string => (Number.isNaN(v) ? 'float("nan")' : v === Infinity ? 'float("inf")' : v === -Infinity ? 'float("-inf")' : String(v));
 
@@ -42,7 +54,7 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
   const name = `${plan.prefix.toLowerCase()}.py`;
   const L: string[] = [...headerDocstring(headerLines(plan, { file: name, ...(ctx.source ? { source: ctx.source } : {}), target: d.label,
     precision: d.precision, renamed: ctx.renamed, esc: (s) => s }))];
-  L.push('from saltus_dialect import X', '');
+  L.push(...importLines(d, [['saltus_dialect', 'X']]), '');
   const S = plan.states, P = plan.params;
   const grad = plan.params.filter((p) => plan.grid.gradParams.includes(p.name));
   L.push(`NAME = "${pyStringBody(plan.neuron.name)}"`);
@@ -108,25 +120,27 @@ export function runtimeFiles(d: PyDialect): GeneratedFile[] {
   return [
     { name: 'saltus_dialect.py', content: [...stamp('saltus_dialect.py', `the ${d.label} array dialect`), d.dialectText].join('\n') },
     { name: 'saltus_grid.py', content: [...stamp('saltus_grid.py', 'the grid runtime (events inside steps, exact gradient)'),
-      'from saltus_dialect import X', '', runtimeText].join('\n') },
+      ...importLines(d, [['saltus_dialect', 'X']]), '', runtimeText].join('\n') },
   ];
 }
 
 /** run.py: `python3 run.py NET.json --dt 0.1ms --format json` (the runner contract of docs/codegen.md). */
-export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
+export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_DIALECT): GeneratedFile {
+  const torch = d.id === 'torch';
   const imports = models.map((m) => `import ${m.prefix.toLowerCase()}`);
   const table = models.map((m) => `    "${pyStringBody(m.neuron.name)}": ${m.prefix.toLowerCase()},`);
   const L = [
     '# ' + pyComment('run.py: runs a network description on the generated grid step and prints its loss, spikes and exact gradient.'),
     '# saltus-hash: sha256:@@SALTUS_HASH@@ (of this file without this line). Saltus will not overwrite this file once it has been changed, unless forced.',
     '# Generated: do not edit.',
-    '"""Usage: python3 run.py NET.json --dt 0.1ms [--format json|text]',
+    `"""Usage: python3 run.py NET.json --dt 0.1ms [--format json|text]${torch ? ' [--device cpu|cuda]' : ''}`,
     '',
     'Prints {"loss": L, "spikes": {POP: [[t, i], ...]}, "weights": [dL/dW per projection, weights[to][from]],',
     '"params": {"POP.NAME": dL/dp}} in SI units (docs/codegen.md, "Runner")."""',
     'import json', 'import os', 'import re', 'import sys', '',
     'sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))', '',
-    'import saltus_grid  # noqa: E402', ...imports.map((l) => `${l}  # noqa: E402`), '',
+    'import saltus_grid  # noqa: E402', ...imports.map((l) => `${l}  # noqa: E402`),
+    ...(torch ? ['import torch  # noqa: E402', 'import network  # noqa: E402'] : []), '',
     'MODELS = {', ...table, '}', '',
     '_UNITS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "ns": 1e-9}', '', '',
     'def parse_time(text):',
@@ -143,10 +157,12 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '    fmt = "text"',
     '    dt = None',
     '    path = None',
+    ...(torch ? ['    device = "cpu"'] : []),
     '    while args:',
     '        a = args.pop(0)',
     '        if a in ("--dt", "--timestep"):',
     '            dt = parse_time(args.pop(0))',
+    ...(torch ? ['        elif a == "--device":', '            device = args.pop(0)'] : []),
     '        elif a == "--format":',
     '            fmt = args.pop(0)',
     '        elif path is None:',
@@ -156,12 +172,24 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '    if path is None or dt is None:',
     '        raise SystemExit(__doc__)',
     '    with open(path, encoding="utf-8") as f:',
-    '        net = saltus_grid.load_network(json.load(f), MODELS)',
-    '    try:',
-    '        run = saltus_grid.forward(net, dt)',
-    '    except saltus_grid.GridError as e:',
-    '        raise SystemExit("run.py: %s" % e)',
-    '    out = saltus_grid.report(run, saltus_grid.backward(run))',
+    ...(torch ? [
+      '        description = json.load(f)',
+      '    if device not in ("cpu", "cuda") or (device == "cuda" and not torch.cuda.is_available()):',
+      '        raise SystemExit("run.py: --device must be cpu or cuda (and cuda needs a GPU that torch sees); got %r" % device)',
+      '    try:',
+      '        net = network.Network(description, dt, dtype=torch.float64, device=device)',
+      '        net().backward()',
+      '    except saltus_grid.GridError as e:',
+      '        raise SystemExit("run.py: %s" % e)',
+      '    out = net.report()',
+    ] : [
+      '        net = saltus_grid.load_network(json.load(f), MODELS)',
+      '    try:',
+      '        run = saltus_grid.forward(net, dt)',
+      '    except saltus_grid.GridError as e:',
+      '        raise SystemExit("run.py: %s" % e)',
+      '    out = saltus_grid.report(run, saltus_grid.backward(run))',
+    ]),
     '    if fmt == "json":',
     '        print(json.dumps(out))',
     '    else:',
