@@ -14,6 +14,7 @@ import {
 } from 'vscode-languageserver';
 import { complete, type CompletionKind } from '../outputs/completion';
 import { quickFixes } from '../outputs/codeActions';
+import { rewriteAllFix } from '../syntax/migrate';
 import { fixAll } from '../outputs/fixAll';
 import { foldingRanges } from '../outputs/folding';
 import { formatEdits } from '../outputs/format';
@@ -133,9 +134,15 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     if (!wants(CodeActionKind.QuickFix)) return actions;
     const given = (p.context?.diagnostics ?? []).filter((d) => d.source === 'saltus' && isDiagnosticData(d.data));
     if (given.length > 0) {
+      let all: ReturnType<typeof rewriteAllFix> | null = null;
       for (const d of given) {
         if (!isDiagnosticData(d.data)) continue;
         for (const fix of d.data.fixes) actions.push(action(fix.title, fix.preferred, d, { [uri]: fix.edits }));
+        // the rewrite of every quoted docstring spans the file: computed here, not published with each hint
+        if (d.code === 'quoted-docstring') {
+          if (all === null) all = rewriteAllFix(a.text, a.parse);
+          if (all) actions.push(action(all.title, false, d, { [uri]: all.edits.map((e) => toTextEdit(a, e)) }));
+        }
       }
       return actions;
     }
