@@ -9,6 +9,7 @@ import { basename } from 'node:path';
 import {
   CodeActionKind, CompletionItemKind, DocumentHighlightKind, ErrorCodes, InlayHintKind, InsertTextFormat, ResponseError, SymbolKind,
   type CodeAction, type CompletionItem, type Connection, type DocumentSymbol, type Diagnostic as LspDiagnostic,
+  type SemanticTokens, type SemanticTokensDelta,
   type DocumentHighlight, type FoldingRange, type InlayHint, type Location, type SelectionRange, type SignatureHelp,
   type SymbolInformation, type TextEdit,
 } from 'vscode-languageserver';
@@ -26,7 +27,7 @@ import { hover, type HoverSection } from '../outputs/hover';
 import { inlayHints } from '../outputs/inlayHints';
 import { definition, highlights, references } from '../outputs/navigation';
 import { isRefusal, prepareRename, rename } from '../outputs/rename';
-import { encodeSemanticTokens, semanticTokens } from '../outputs/semanticTokens';
+import { encodeSemanticTokens, semanticTokens, semanticTokensEdits } from '../outputs/semanticTokens';
 import { documentSymbols, type OutlineKind, type OutlineSymbol } from '../outputs/symbols';
 import { analysisSummary } from '../outputs/summary';
 import type { Analysis } from '../pipeline';
@@ -103,7 +104,30 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     return { changes: { [uri]: r.edits.map((e) => toTextEdit(a, e)) } };
   }));
 
-  connection.languages.semanticTokens.on(guarded('semantic tokens', { data: [] as number[] }, (a) => ({ data: encodeSemanticTokens(a, f.semanticTokens(a)) })));
+  // Full results carry a resultId so that the next request may ask for a delta against them;
+  // the last full result is kept per open document (the delta is computed from it).
+  const lastTokens = new Map<string, { resultId: string; data: number[] }>();
+  let tokenResults = 0;
+  const remember = (uri: string, data: number[]): string => {
+    const resultId = String(++tokenResults);
+    const open = new Set(state.openUris());
+    for (const u of lastTokens.keys()) if (!open.has(u)) lastTokens.delete(u);
+    lastTokens.set(uri, { resultId, data });
+    return resultId;
+  };
+  connection.languages.semanticTokens.on(guarded('semantic tokens', { data: [] as number[] } as SemanticTokens, (a, uri): SemanticTokens => {
+    const data = encodeSemanticTokens(a, f.semanticTokens(a));
+    return { resultId: remember(uri, data), data };
+  }));
+  connection.languages.semanticTokens.onDelta(guarded('semantic tokens delta', { data: [] as number[] } as SemanticTokens | SemanticTokensDelta, (a, uri, p) => {
+    const data = encodeSemanticTokens(a, f.semanticTokens(a));
+    const before = lastTokens.get(uri);
+    const resultId = remember(uri, data);
+    if (!before || before.resultId !== p.previousResultId) return { resultId, data };
+    return { resultId, edits: semanticTokensEdits(before.data, data) };
+  }));
+  connection.languages.semanticTokens.onRange(guarded('semantic tokens range', { data: [] as number[] }, (a, _uri, p) =>
+    ({ data: encodeSemanticTokens(a, f.semanticTokens(a, fromRange(a, p.range))) })));
 
   connection.onFoldingRanges(guarded('folding', [] as FoldingRange[], (a) =>
     f.foldingRanges(a).map((r) => ({ startLine: r.startLine, endLine: r.endLine, ...(r.kind ? { kind: r.kind } : {}) }))));
