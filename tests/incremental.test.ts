@@ -29,7 +29,7 @@ function rng(seed: number): () => number {
 const SNIPPETS = [' ', 'x', 'V', '1', '0.5', '\n', '  ', '{', '}', '(', ')', '[', ']', '[ms]', '[mV', '"', '"doc"', '#', '#~ a note\n', '# plain\n',
   '+', '-', '*', '/', '^', '=', ':=', ',', 'param a = 2 [ms]\n', 'state Z = 0\n', 'let q = V * 2\n', 'dV/dt = -V / tau\n', 'dQ/dt = 1\n',
   'exp(', 'max(V, 1)', 'fire when V crosses 1 up { V := 0 }\n', 'incoming u { I := I + u }\n', 'neuron', 'neuron Extra { state Y = 0 }\n',
-  'connect A -> B\n', 'timestep 0.2 [ms]\n', 'trainable ', '\r\n', 'refractory 2 [ms]\n', '\u00e9', 'tau', 'I', 'crosses', 'up', '5 ms'];
+  'connect A -> B\n', 'timestep 0.2 [ms]\n', 'trainable ', '\r\n', 'refractory 2 [ms]\n', '\u00e9', 'tau', 'I', 'crosses', 'up', '5 ms', '\r', '\n\n', '\r\n\r\n'];
 
 /** One random edit of `text`: a replacement of a short range (or an insertion or a deletion). */
 function randomEdit(text: string, r: () => number): string {
@@ -54,6 +54,7 @@ function view(a: Analysis): unknown {
     tokens: a.parse.tokens.map((t) => [t.startOffset, t.endOffset, t.image]),
     items: a.parse.file.items.map((i) => [i.kind, i.range]), comments: a.parse.file.comments,
     strayJumps: a.parse.strayJumps.map((j) => j.range), strayNotes: a.parse.strayNotes,
+    lines: Array.from({ length: a.lines.lineCount }, (_, i) => [a.lines.lineStart(i), a.lines.lineEnd(i)]),
   };
 }
 

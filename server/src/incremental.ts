@@ -70,7 +70,7 @@ export function analyseIncremental(previous: Analysis | undefined, text: string,
   if (previous && table) {
     tables.delete(previous);
     try {
-      const a = reuse(previous.text, table, text, options);
+      const a = reuse(previous.text, previous.lines, table, text, options);
       if (a) { lastIncrementalPath = 'reused'; return a; }
     } catch { /* a full analysis below */ }
   }
@@ -207,6 +207,7 @@ function buildTable(text: string, parsed: ParseOutput): Table | undefined {
   const strayJumps = partition(spans, parsed.strayJumps, (x) => x.range.start);
   const strayNotes = partition(spans, parsed.strayNotes, (x) => x.range.start);
   const docForm = partition(spans, docFormDiagnostics(text, parsed), (x) => x.range.start);
+  for (let i = 0; i < spans.length; i++) if (!parsedWhole(items[i]!, tokens[i]!)) return undefined;
   const blocks: Block[] = [];
   const exprDims = new Map<A.Expr, Dim>();
   let units: string[] = [];
@@ -223,6 +224,17 @@ function buildTable(text: string, parsed: ParseOutput): Table | undefined {
   return { blocks, eol: firstLineBreak(text), exprDims };
 }
 
+/**
+ * Whether the parser read the block's tokens as its items, from the first token to the last:
+ * where error recovery stopped early (the rest of a file is then not parsed at all) or ran on,
+ * the blocks are not independent.
+ */
+function parsedWhole(items: readonly A.TopLevel[], tokens: readonly IToken[]): boolean {
+  if (tokens.length === 0) return items.length === 0;
+  const first = tokens[0]!, last = tokens[tokens.length - 1]!;
+  return items.length > 0 && items[0]!.range.start === first.startOffset && items[items.length - 1]!.range.end >= last.startOffset + last.image.length;
+}
+
 /** One block's items resolved on their own (its `connect` lines are the whole file's business). */
 function resolveBlock(items: A.TopLevel[], comments: A.Comment[], strayJumps: A.Jump[], unitsBefore: readonly string[], length: number): ResolvedFile {
   const file: A.SourceFile = { kind: 'file', items: items.filter((x) => x.kind !== 'connect'), comments, range: { start: 0, end: length } };
@@ -232,7 +244,7 @@ function resolveBlock(items: A.TopLevel[], comments: A.Comment[], strayJumps: A.
 const sameList = (a: readonly string[], b: readonly string[]): boolean => a.length === b.length && a.every((x, i) => x === b[i]);
 
 /** The analysis of `text` from `table` (the blocks of `old`), or undefined when the change is not inside one neuron block. */
-function reuse(old: string, table: Table, text: string, options: AnalyseOptions): Analysis | undefined {
+function reuse(old: string, oldLines: LineIndex, table: Table, text: string, options: AnalyseOptions): Analysis | undefined {
   if (text.length > MAX_TEXT_LENGTH) return undefined;
   const blocks = table.blocks;
   const min = Math.min(old.length, text.length);
@@ -240,7 +252,7 @@ function reuse(old: string, table: Table, text: string, options: AnalyseOptions)
   // in chunks first (string comparison is native), then character by character
   for (let c = 4096; c >= 16; c >>= 4) while (p + c <= min && old.slice(p, p + c) === text.slice(p, p + c)) p += c;
   while (p < min && old.charCodeAt(p) === text.charCodeAt(p)) p++;
-  if (p === old.length && p === text.length) return keep(text, table, options);
+  if (p === old.length && p === text.length) return keep(text, table, options, oldLines);
   let s = 0;
   for (let c = 4096; c >= 16; c >>= 4) while (s + c <= min - p && old.slice(old.length - s - c, old.length - s) === text.slice(text.length - s - c, text.length - s)) s += c;
   while (s < min - p && old.charCodeAt(old.length - 1 - s) === text.charCodeAt(text.length - 1 - s)) s++;
@@ -263,6 +275,7 @@ function reuse(old: string, table: Table, text: string, options: AnalyseOptions)
   const items = parsed.file.items;
   const before = b.items[0];
   if (items.length !== 1 || items[0]!.kind !== 'neuron' || b.items.length !== 1 || before?.kind !== 'neuron') return undefined;
+  if (!parsedWhole(items, parsed.tokens)) return undefined;
   const name = items[0]!.name?.name;
   if (name === undefined || name !== before.name?.name) return undefined;
   const m = resolveBlock(items, parsed.file.comments, parsed.strayJumps, k > 0 ? blocks[k - 1]!.unitsAfter : [], padded.length);
@@ -275,14 +288,14 @@ function reuse(old: string, table: Table, text: string, options: AnalyseOptions)
   for (const [key, v] of fresh.exprDims) table.exprDims.set(key, v);
   blocks[k] = fresh;
   if (delta !== 0) for (let j = k + 1; j < blocks.length; j++) shift(blocks[j]!, delta);
-  const a = assemble(text, table, options);
+  const a = assemble(text, table, options, LineIndex.edited(oldLines, text, p, old.length - s, text.length - s));
   tables.set(a, table);
   return a;
 }
 
 /** Same text: the same blocks (a new analysis object, e.g. for other options). */
-function keep(text: string, table: Table, options: AnalyseOptions): Analysis {
-  const a = assemble(text, table, options);
+function keep(text: string, table: Table, options: AnalyseOptions, lines: LineIndex): Analysis {
+  const a = assemble(text, table, options, lines);
   tables.set(a, table);
   return a;
 }
@@ -332,7 +345,7 @@ function joined<T>(blocks: readonly Block[], part: (b: Block) => readonly T[]): 
 }
 
 /** The analysis the blocks make up, as `analyse` builds it. */
-function assemble(text: string, table: Table, options: AnalyseOptions): Analysis {
+function assemble(text: string, table: Table, options: AnalyseOptions, lines = new LineIndex(text)): Analysis {
   const blocks = table.blocks;
   const items = joined(blocks, (b) => b.items), comments = joined(blocks, (b) => b.comments), tokens = joined(blocks, (b) => b.tokens);
   const errors = joined(blocks, (b) => b.errors), strayJumps = joined(blocks, (b) => b.strayJumps), strayNotes = joined(blocks, (b) => b.strayNotes);
@@ -357,5 +370,5 @@ function assemble(text: string, table: Table, options: AnalyseOptions): Analysis
   append(diagnostics, docForm);
   append(diagnostics, modelDiagnostics);
   diagnostics.sort((x, y) => x.range.start - y.range.start || x.range.end - y.range.end);
-  return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines: new LineIndex(text), timestep: settleTimestep(text, model, options) };
+  return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines, timestep: settleTimestep(text, model, options) };
 }
