@@ -122,6 +122,48 @@ describe('language server over stdio', () => {
     expect(tokens.data.length).toBeGreaterThan(100);
   });
 
+  it('serves semantic tokens by range and as deltas against the previous result, equal to the full tokens', async () => {
+    const uri = 'file:///inline/tokens.saltus';
+    const text = readFileSync(join(root, 'samples', 'lif_current.saltus'), 'utf8');
+    client.open(uri, text);
+    await client.diagnosticsFor(uri, 1);
+    type Tokens = { resultId?: string; data: number[] };
+    const full = await client.conn.sendRequest('textDocument/semanticTokens/full', { textDocument: { uri } }) as Tokens;
+    expect(full.resultId).toBeTruthy();
+    // decoded to absolute [line, char, length, type, modifiers]
+    const decode = (data: number[]): number[][] => {
+      const out: number[][] = [];
+      let line = 0, ch = 0;
+      for (let i = 0; i < data.length; i += 5) {
+        line += data[i]!; ch = data[i]! === 0 ? ch + data[i + 1]! : data[i + 1]!;
+        out.push([line, ch, data[i + 2]!, data[i + 3]!, data[i + 4]!]);
+      }
+      return out;
+    };
+    const lines = text.split('\n').length;
+    const range = await client.conn.sendRequest('textDocument/semanticTokens/range',
+      { textDocument: { uri }, range: { start: { line: 20, character: 0 }, end: { line: 30, character: 0 } } }) as Tokens;
+    expect(range.data.length).toBeGreaterThan(0);
+    expect(decode(range.data)).toEqual(decode(full.data).filter((t) => t[0]! >= 20 && t[0]! < 30));
+    expect(lines).toBeGreaterThan(30);
+    // an edit inside one line, then a delta: applying its edits gives the new full tokens
+    const at = text.indexOf('# ', text.indexOf('neuron')) + 2; // inside a comment of the neuron block
+    const p = { line: text.slice(0, at).split('\n').length - 1, character: at - text.lastIndexOf('\n', at) - 1 };
+    void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: 2 }, contentChanges: [{ range: { start: p, end: p }, text: 'x' }] });
+    await client.diagnosticsFor(uri, 2);
+    const delta = await client.conn.sendRequest('textDocument/semanticTokens/full/delta', { textDocument: { uri }, previousResultId: full.resultId }) as
+      { resultId: string; edits: { start: number; deleteCount: number; data: number[] }[] };
+    expect(delta.edits.length).toBe(1);
+    expect(delta.edits[0]!.data.length).toBeLessThan(full.data.length / 4);
+    const patched = [...full.data];
+    for (const e of [...delta.edits].reverse()) patched.splice(e.start, e.deleteCount, ...e.data);
+    const fresh = await client.conn.sendRequest('textDocument/semanticTokens/full', { textDocument: { uri } }) as Tokens;
+    expect(patched).toEqual(fresh.data);
+    // an unknown previous result gives the full tokens
+    const unknown = await client.conn.sendRequest('textDocument/semanticTokens/full/delta', { textDocument: { uri }, previousResultId: 'nope' }) as Tokens;
+    expect(unknown.data).toEqual(fresh.data);
+  });
+
   it('counts positions in UTF-16 code units after Greek letters and emoji on the same line', async () => {
     const uri = 'file:///inline/one-line.saltus';
     const text = 'neuron N "λ 🐝 Δ" { param tau = 2 [mV] state V = 0 dV/dt = -V / tau }  # ω 🎯\n';

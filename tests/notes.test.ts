@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { parse } from '../server/src/syntax/parse';
 import { documentedDecls } from '../server/src/syntax/notes';
 import { migrateText, applyTextEdits } from '../server/src/syntax/migrate';
+import { quickFixes } from '../server/src/outputs/codeActions';
 import { analyse } from '../server/src/pipeline';
 import { hover } from '../server/src/outputs/hover';
 import { complete } from '../server/src/outputs/completion';
@@ -122,7 +123,11 @@ describe('the old quoted docstrings', () => {
     expect(top).toContain('#~ the neuron\nneuron N {\n');
     expect(docs(top)).toEqual(docs(OLD));
     // all of them
-    const all = applyTextEdits(OLD, hints[0]!.fixes![1]!.edits);
+    // all of them: offered beside each hint by the quick fixes (not carried by every hint: its edits span the file)
+    expect(hints[0]!.fixes).toHaveLength(1);
+    const offered = quickFixes(a, hints[0]!.range).filter((q) => q.diagnostic === hints[0]);
+    expect(offered.map((q) => q.title)).toEqual(['Rewrite as a #~ note', 'Rewrite all 3 quoted docstrings of this file as #~ notes']);
+    const all = applyTextEdits(OLD, offered[1]!.fix.edits);
     expect(all).toBe(migrateText(OLD).text);
     expect(analyse(all).diagnostics).toEqual([]);
     expect(docs(all)).toEqual(docs(OLD));

@@ -15,6 +15,7 @@ import type { ResolvedFile, ResolvedNeuron } from './model/types';
 import { type Diagnostic, internalError } from './base/diagnostic';
 import { LineIndex } from './base/lineIndex';
 import type { Range } from './base/range';
+import type { SyntaxError } from './syntax/ast';
 import { adjointDiagnostics, derivationFor, type NeuronDerivation } from './adjoint/index';
 import { stepDiagnostics, type StepReport } from './step/index';
 import { stepReportFor } from './step/cache';
@@ -58,8 +59,12 @@ export const MAX_TEXT_LENGTH = 4 * 1024 * 1024;
 
 export function analyse(text: string, options: AnalyseOptions = {}): Analysis {
   if (text.length > MAX_TEXT_LENGTH) return tooLarge(text, options);
-  const parsed = parse(text);
-  const diagnostics: Diagnostic[] = parsed.errors.map((e): Diagnostic => ({ severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range, ...(e.fixes ? { fixes: e.fixes } : {}) }));
+  return analyseParsed(text, parse(text), options);
+}
+
+/** `analyse` of a text already parsed (`parsed` = parse(text)); incremental.ts uses it when it cannot reuse blocks. */
+export function analyseParsed(text: string, parsed: ParseOutput, options: AnalyseOptions = {}): Analysis {
+  const diagnostics: Diagnostic[] = parsed.errors.map(syntaxDiagnostic);
   try {
     diagnostics.push(...docFormDiagnostics(text, parsed));
   } catch (err) {
@@ -78,8 +83,13 @@ export function analyse(text: string, options: AnalyseOptions = {}): Analysis {
   return { text, parse: parsed, model, diagnostics: clampAll(diagnostics, text.length), lines: new LineIndex(text), timestep: settleTimestep(text, model, options) };
 }
 
+/** A lexer or parser error as a diagnostic. */
+export function syntaxDiagnostic(e: SyntaxError): Diagnostic {
+  return { severity: 'error', code: e.code ?? 'syntax-error', message: e.message, range: e.range, ...(e.fixes ? { fixes: e.fixes } : {}) };
+}
+
 /** The override when it is a usable dt, else the file's `timestep` (with the range of its value). */
-function settleTimestep(text: string, model: ResolvedFile, options: AnalyseOptions): EffectiveTimestep | undefined {
+export function settleTimestep(text: string, model: ResolvedFile, options: AnalyseOptions): EffectiveTimestep | undefined {
   const o = options.timestep;
   if (o && typeof o.seconds === 'number' && Number.isFinite(o.seconds) && o.seconds > 0 && (o.source === 'setting' || o.source === 'option')) {
     return { seconds: o.seconds, source: o.source, label: String(o.label ?? '') };
@@ -101,7 +111,7 @@ export function timestepOrigin(t: EffectiveTimestep): string {
  * A neuron with a syntax error inside its text is not well-formed: error recovery may have
  * dropped part of it (a flow, a jump), and the analyses must not run on what is left.
  */
-function markIncomplete(model: ResolvedFile, errors: readonly { range: { start: number } }[]): void {
+export function markIncomplete(model: ResolvedFile, errors: readonly { range: { start: number } }[]): void {
   if (errors.length === 0) return;
   const starts = errors.map((e) => e.range.start).sort((x, y) => x - y);
   for (const n of model.neurons) {

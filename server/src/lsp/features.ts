@@ -9,11 +9,13 @@ import { basename } from 'node:path';
 import {
   CodeActionKind, CompletionItemKind, DocumentHighlightKind, ErrorCodes, InlayHintKind, InsertTextFormat, ResponseError, SymbolKind,
   type CodeAction, type CompletionItem, type Connection, type DocumentSymbol, type Diagnostic as LspDiagnostic,
+  type SemanticTokens, type SemanticTokensDelta,
   type DocumentHighlight, type FoldingRange, type InlayHint, type Location, type SelectionRange, type SignatureHelp,
   type SymbolInformation, type TextEdit,
 } from 'vscode-languageserver';
 import { complete, type CompletionKind } from '../outputs/completion';
 import { quickFixes } from '../outputs/codeActions';
+import { rewriteAllFix } from '../syntax/migrate';
 import { fixAll } from '../outputs/fixAll';
 import { foldingRanges } from '../outputs/folding';
 import { formatEdits } from '../outputs/format';
@@ -25,7 +27,7 @@ import { hover, type HoverSection } from '../outputs/hover';
 import { inlayHints } from '../outputs/inlayHints';
 import { definition, highlights, references } from '../outputs/navigation';
 import { isRefusal, prepareRename, rename } from '../outputs/rename';
-import { encodeSemanticTokens, semanticTokens } from '../outputs/semanticTokens';
+import { encodeSemanticTokens, semanticTokens, semanticTokensEdits } from '../outputs/semanticTokens';
 import { documentSymbols, type OutlineKind, type OutlineSymbol } from '../outputs/symbols';
 import { analysisSummary } from '../outputs/summary';
 import type { Analysis } from '../pipeline';
@@ -102,7 +104,30 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     return { changes: { [uri]: r.edits.map((e) => toTextEdit(a, e)) } };
   }));
 
-  connection.languages.semanticTokens.on(guarded('semantic tokens', { data: [] as number[] }, (a) => ({ data: encodeSemanticTokens(a, f.semanticTokens(a)) })));
+  // Full results carry a resultId so that the next request may ask for a delta against them;
+  // the last full result is kept per open document (the delta is computed from it).
+  const lastTokens = new Map<string, { resultId: string; data: number[] }>();
+  let tokenResults = 0;
+  const remember = (uri: string, data: number[]): string => {
+    const resultId = String(++tokenResults);
+    const open = new Set(state.openUris());
+    for (const u of lastTokens.keys()) if (!open.has(u)) lastTokens.delete(u);
+    lastTokens.set(uri, { resultId, data });
+    return resultId;
+  };
+  connection.languages.semanticTokens.on(guarded('semantic tokens', { data: [] as number[] } as SemanticTokens, (a, uri): SemanticTokens => {
+    const data = encodeSemanticTokens(a, f.semanticTokens(a));
+    return { resultId: remember(uri, data), data };
+  }));
+  connection.languages.semanticTokens.onDelta(guarded('semantic tokens delta', { data: [] as number[] } as SemanticTokens | SemanticTokensDelta, (a, uri, p) => {
+    const data = encodeSemanticTokens(a, f.semanticTokens(a));
+    const before = lastTokens.get(uri);
+    const resultId = remember(uri, data);
+    if (!before || before.resultId !== p.previousResultId) return { resultId, data };
+    return { resultId, edits: semanticTokensEdits(before.data, data) };
+  }));
+  connection.languages.semanticTokens.onRange(guarded('semantic tokens range', { data: [] as number[] }, (a, _uri, p) =>
+    ({ data: encodeSemanticTokens(a, f.semanticTokens(a, fromRange(a, p.range))) })));
 
   connection.onFoldingRanges(guarded('folding', [] as FoldingRange[], (a) =>
     f.foldingRanges(a).map((r) => ({ startLine: r.startLine, endLine: r.endLine, ...(r.kind ? { kind: r.kind } : {}) }))));
@@ -133,9 +158,15 @@ export function registerFeatures(connection: Connection, state: DocumentState, f
     if (!wants(CodeActionKind.QuickFix)) return actions;
     const given = (p.context?.diagnostics ?? []).filter((d) => d.source === 'saltus' && isDiagnosticData(d.data));
     if (given.length > 0) {
+      let all: ReturnType<typeof rewriteAllFix> | null = null;
       for (const d of given) {
         if (!isDiagnosticData(d.data)) continue;
         for (const fix of d.data.fixes) actions.push(action(fix.title, fix.preferred, d, { [uri]: fix.edits }));
+        // the rewrite of every quoted docstring spans the file: computed here, not published with each hint
+        if (d.code === 'quoted-docstring') {
+          if (all === null) all = rewriteAllFix(a.text, a.parse);
+          if (all) actions.push(action(all.title, false, d, { [uri]: all.edits.map((e) => toTextEdit(a, e)) }));
+        }
       }
       return actions;
     }

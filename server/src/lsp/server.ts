@@ -20,6 +20,7 @@ import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigura
 import { TextDocument } from 'vscode-languageserver-textdocument';
 import { analyse, neuronDerivedDiagnostics, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
 import { type Diagnostic, setInternalErrorLog } from '../base/diagnostic';
+import { analyseIncremental } from '../incremental';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
@@ -56,6 +57,8 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   let canRegisterConfiguration = false;
   let canWatchFolders = false;
   const budgetMs = options.derivedBudgetMs ?? DERIVED_BUDGET_MS;
+  // SALTUS_FULL_ANALYSIS=1 analyses every version whole (the bench's before/after comparison).
+  const incremental = process.env.SALTUS_FULL_ANALYSIS !== '1';
   let shutDown = false;
   const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
   setInternalErrorLog(log);
@@ -69,8 +72,12 @@ export function startServer(connection: Connection, options: ServerOptions = {})
       const hit = cache.get(uri);
       const settingsKey = analysisKey(settings);
       if (hit && hit.version === doc.version && hit.settingsKey === settingsKey) return hit;
+      // Only the block an edit lies in is analysed again (incremental.ts); the previous
+      // analysis is handed over and must not be used afterwards (a stale derived run stops,
+      // as the cache no longer holds its entry).
+      const opts = settings.timestep ? { timestep: settings.timestep } : {};
       const fresh: CachedAnalysis = { uri, version: doc.version, settingsKey,
-        analysis: analyse(doc.getText(), settings.timestep ? { timestep: settings.timestep } : {}) };
+        analysis: incremental ? analyseIncremental(hit?.analysis, doc.getText(), opts) : analyse(doc.getText(), opts) };
       cache.set(uri, fresh);
       return fresh;
     },
@@ -195,7 +202,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
         referencesProvider: true,
         documentHighlightProvider: true,
         renameProvider: { prepareProvider: true },
-        semanticTokensProvider: { legend: { tokenTypes: [...SEMANTIC_TOKEN_TYPES], tokenModifiers: [...SEMANTIC_TOKEN_MODIFIERS] }, full: true, range: false },
+        semanticTokensProvider: { legend: { tokenTypes: [...SEMANTIC_TOKEN_TYPES], tokenModifiers: [...SEMANTIC_TOKEN_MODIFIERS] }, full: { delta: true }, range: true },
         foldingRangeProvider: true,
         documentFormattingProvider: true,
         documentRangeFormattingProvider: true,

@@ -25,8 +25,12 @@ export function isReservedName(name: string): boolean {
   return isDerivedSymbolName(name) || (S.FUNCTION_NAMES as readonly string[]).includes(name);
 }
 
-export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = []): ResolvedFile {
-  const ctx: LowerContext = { diagnostics: [], unitsUsed: new Set(), exprDims: new Map(), references: [], mismatchRatios: new Map() };
+/**
+ * `unitsBefore`: the units written earlier in the file, in order (messages word dimensions in
+ * them); given when a part of a file is resolved on its own (incremental.ts).
+ */
+export function resolveFile(file: A.SourceFile, strayJumps: A.Jump[] = [], unitsBefore: readonly string[] = []): ResolvedFile {
+  const ctx: LowerContext = { diagnostics: [], unitsUsed: new Set(unitsBefore), exprDims: new Map(), references: [], mismatchRatios: new Map() };
   const symbols: SymbolInfo[] = [];
   const neurons: ResolvedNeuron[] = [];
   const seen = new Map<string, SymbolInfo>();

@@ -8,6 +8,7 @@ import type { Analysis } from '../pipeline';
 import type * as A from '../syntax/ast';
 import type { Diagnostic, DiagnosticCode, Fix } from '../base/diagnostic';
 import { overlaps } from './locate';
+import { rewriteAllFix } from '../syntax/migrate';
 
 export interface QuickFix { title: string; diagnostic: Diagnostic; fix: Fix; preferred: boolean }
 
@@ -26,11 +27,21 @@ export function fixesFor(a: Analysis, d: Diagnostic): Fix[] {
   return [...own, ...built.filter((b) => !own.some((o) => o.title === b.title))];
 }
 
+/**
+ * The fixes of the diagnostics overlapping `range`; a `quoted-docstring` hint also gets the
+ * rewrite of all of the file's quoted docstrings (syntax/migrate.ts `rewriteAllFix`, computed
+ * here on request rather than carried by every hint).
+ */
 export function quickFixes(a: Analysis, range: A.Range, diagnostics: readonly Diagnostic[] = a.diagnostics): QuickFix[] {
   const out: QuickFix[] = [];
+  let all: Fix | undefined | null = null;
   for (const d of diagnostics) {
     if (!overlaps(d.range, range)) continue;
     for (const fix of fixesFor(a, d)) out.push({ title: fix.title, diagnostic: d, fix, preferred: fix.preferred === true });
+    if (d.code === 'quoted-docstring') {
+      if (all === null) all = rewriteAllFix(a.text, a.parse);
+      if (all) out.push({ title: all.title, diagnostic: d, fix: all, preferred: false });
+    }
   }
   return out;
 }

@@ -6,7 +6,8 @@
 //   the incoming weight -> property, neuron names -> type, built-in calls -> function,
 //   `dX/dt` -> variable (the state it differentiates), `t` -> keyword.
 // Unit text inside brackets is left to the TextMate grammar. `encodeSemanticTokens` writes
-// the LSP relative encoding (5 integers per token) with the LineIndex of the analysis.
+// the LSP relative encoding (5 integers per token) with the LineIndex of the analysis;
+// `semanticTokensEdits` the delta between two encodings (one replacement).
 //
 // Invariant: tokens are sorted, disjoint and single-line (no Saltus token spans lines).
 import type { Analysis } from '../pipeline';
@@ -25,13 +26,23 @@ export interface SemanticToken { range: A.Range; type: SemanticType; modifiers: 
 const OPERATORS = new Set(['Assign', 'Arrow', 'Equals', 'Plus', 'Minus', 'Star', 'Slash', 'Caret']);
 const SYMBOL_TYPE: Record<SymbolKind, SemanticType> = { param: 'parameter', state: 'variable', let: 'variable', weight: 'property', neuron: 'type' };
 
-export function semanticTokens(a: Analysis): SemanticToken[] {
+/** First index whose offset is at or after `offset` (the array sorted by that offset). */
+function firstAtOrAfter<T>(xs: readonly T[], offset: number, at: (x: T) => number): number {
+  let lo = 0, hi = xs.length;
+  while (lo < hi) { const mid = (lo + hi) >> 1; if (at(xs[mid]!) < offset) lo = mid + 1; else hi = mid; }
+  return lo;
+}
+
+/** The tokens of the file, or only those that start inside `within` (a range request: a large file is not classified whole). */
+export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
+  const from = within?.start ?? 0, to = within?.end ?? Infinity;
+  const inside = (r: A.Range): boolean => r.start >= from && r.start < to;
   const kinds = new Map<number, { kind: SymbolKind; declaration: boolean }>();
-  for (const s of a.model.symbols) kinds.set(s.nameRange.start, { kind: s.kind, declaration: true });
-  for (const r of a.model.references) if (!kinds.has(r.range.start)) kinds.set(r.range.start, { kind: r.target.kind, declaration: false });
+  for (const s of a.model.symbols) if (inside(s.nameRange)) kinds.set(s.nameRange.start, { kind: s.kind, declaration: true });
+  for (const r of a.model.references) if (inside(r.range) && !kinds.has(r.range.start)) kinds.set(r.range.start, { kind: r.target.kind, declaration: false });
   const out: SemanticToken[] = [];
   const tokens = a.parse.tokens;
-  for (let i = 0; i < tokens.length; i++) {
+  for (let i = within ? firstAtOrAfter(tokens, from, (t) => t.startOffset) : 0; i < tokens.length && tokens[i]!.startOffset < to; i++) {
     const t = tokens[i]!;
     const type = t.tokenType.name;
     const range = tokenRange(t);
@@ -52,8 +63,31 @@ export function semanticTokens(a: Analysis): SemanticToken[] {
       }
     }
   }
-  for (const c of a.parse.file.comments) out.push({ range: c.range, type: 'comment', modifiers: c.note ? ['documentation'] : [] });
+  const comments = a.parse.file.comments;
+  for (let i = within ? firstAtOrAfter(comments, from, (c) => c.range.start) : 0; i < comments.length && comments[i]!.range.start < to; i++) {
+    const c = comments[i]!;
+    out.push({ range: c.range, type: 'comment', modifiers: c.note ? ['documentation'] : [] });
+  }
   return out.sort((x, y) => x.range.start - y.range.start);
+}
+
+/** One edit of an LSP semantic-tokens delta: replace `deleteCount` integers at `start` by `data`. */
+export interface SemanticTokensEdit { start: number; deleteCount: number; data: number[] }
+
+/**
+ * The edits that turn the encoded tokens `before` into `after` (textDocument/semanticTokens/full/delta):
+ * one replacement between their common head and tail, in whole tokens of 5 integers; none when equal.
+ */
+export function semanticTokensEdits(before: readonly number[], after: readonly number[]): SemanticTokensEdit[] {
+  const n = Math.min(before.length, after.length);
+  let head = 0;
+  while (head < n && before[head] === after[head]) head++;
+  head -= head % 5;
+  if (head === before.length && head === after.length) return [];
+  let tail = 0;
+  while (tail < n - head && before[before.length - 1 - tail] === after[after.length - 1 - tail]) tail++;
+  tail -= tail % 5;
+  return [{ start: head, deleteCount: before.length - head - tail, data: after.slice(head, after.length - tail) }];
 }
 
 /** The LSP encoding: per token [deltaLine, deltaStartChar, length, typeIndex, modifierBits]. */

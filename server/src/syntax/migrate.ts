@@ -21,10 +21,18 @@ export interface Migration {
 
 /** Applies non-overlapping edits (offsets into `text`), the later ones first. */
 export function applyTextEdits(text: string, edits: readonly TextEdit[]): string {
-  const sorted = [...edits].map((e, i) => ({ e, i })).sort((x, y) => y.e.range.start - x.e.range.start || y.i - x.i);
-  let out = text;
-  for (const { e } of sorted) out = out.slice(0, e.range.start) + e.newText + out.slice(e.range.end);
-  return out;
+  // One pass front to back (slicing the whole text once per edit was quadratic); edits at the
+  // same offset keep their given order, as when they were applied from the end backwards.
+  const sorted = [...edits].map((e, i) => ({ e, i })).sort((x, y) => x.e.range.start - y.e.range.start || x.i - y.i);
+  const parts: string[] = [];
+  let at = 0;
+  for (const { e } of sorted) {
+    if (e.range.start >= at) parts.push(text.slice(at, e.range.start));
+    parts.push(e.newText);
+    at = Math.max(at, e.range.end);
+  }
+  parts.push(text.slice(at));
+  return parts.join('');
 }
 
 /** Every rewrite edit of the file, in text order. */
@@ -63,24 +71,38 @@ function checkRewrite(before: ParseOutput, after: ParseOutput): string | undefin
 }
 
 /**
- * The `quoted-docstring` hints (deprecated form, each with a fix rewriting it, and one for the
- * whole file) and the `stray-note` hints of a parsed file.
+ * The fix that rewrites every quoted docstring of the file as a note (when there are at least
+ * two and the rewrite passes its check), or undefined. Offered by the code actions on a
+ * `quoted-docstring` hint (outputs/codeActions.ts `quickFixes`, the language server's quick
+ * fixes), computed when asked: it is not carried by each diagnostic, because its edits span the
+ * whole file (one copy per hint made publishing quadratic in the file's size) and its check
+ * parses the rewritten file again.
+ */
+export function rewriteAllFix(text: string, parsed: ParseOutput): Fix | undefined {
+  const count = documentedDecls(parsed.file).filter((d) => d.quotedDoc).length;
+  if (count < 2) return undefined;
+  const whole = migrateText(text, parsed);
+  return whole.problem ? undefined
+    : { title: `Rewrite all ${count} quoted docstrings of this file as ${NOTE_MARKER} notes`, edits: allEdits(text, parsed) };
+}
+
+/**
+ * The `quoted-docstring` hints (deprecated form, each with a fix rewriting it; the rewrite of
+ * all of them is `rewriteAllFix`) and the `stray-note` hints of a parsed file. Each hint
+ * depends only on its own declaration or note (and the file's first line break), so that a
+ * re-analysis of one block (incremental.ts) computes the same hints as the whole file.
  */
 export function docFormDiagnostics(text: string, parsed: ParseOutput): Diagnostic[] {
   const out: Diagnostic[] = [];
   const quoted = documentedDecls(parsed.file).filter((d) => d.quotedDoc);
   if (quoted.length) {
     const lines = new LineIndex(text);
-    const whole = quoted.length > 1 ? migrateText(text, parsed) : undefined;
-    const wholeFix: Fix | undefined = whole && !whole.problem
-      ? { title: `Rewrite all ${quoted.length} quoted docstrings of this file as ${NOTE_MARKER} notes`, edits: allEdits(text, parsed) }
-      : undefined;
     for (const d of quoted) {
       const q = d.quotedDoc!;
       const edits = quotedDocEdits(text, lines, d);
       out.push({ severity: 'hint', code: 'quoted-docstring', range: q.range, tags: ['deprecated'],
         message: `a quoted docstring is the old form of documentation: write it as a note, '${NOTE_MARKER} ${q.text.length > 40 ? q.text.slice(0, 37) + '...' : q.text}', at the end of the line or on the line above (saltus migrate rewrites whole files)`,
-        fixes: [{ title: `Rewrite as a ${NOTE_MARKER} note`, edits, preferred: true }, ...(wholeFix ? [wholeFix] : [])] });
+        fixes: [{ title: `Rewrite as a ${NOTE_MARKER} note`, edits, preferred: true }] });
     }
   }
   for (const c of parsed.strayNotes) {
