@@ -352,7 +352,7 @@ function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): Deriva
   }
   if (isZero(raw) && inGuard.every((x) => !neuron.flows.has(x)) && !dependsOn(g, TIME)) {
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
-      message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; spikes fired by jumps are not in the language yet); ${end}` };
+      message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; it could fire by jumps only, but a model whose guard slope is identically 0 is not derived); ${end}` };
   }
   if (isZero(raw)) {
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],

@@ -197,36 +197,36 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     if (traj.spikes.length > maxSpikes) { errors.push(`more than ${maxSpikes} spikes: stopped`); return false; }
     return true;
   };
-  /** The spikes fired by jumps at this instant, after event `root` (-1: the initial state);
-   *  `ref` holds each firing neuron's guard at the start of the instant (after its own spike
-   *  for the root's sender), `due` the neurons that fire first. False when the run must stop. */
-  const cascade = (root: number, ref: Map<number, number>, due: number[]): boolean => {
+  /** The spikes fired by jumps at this instant, after event `root` (-1: the initial state),
+   *  one at a time: the first firing neuron (network order) whose guard the instant's jumps
+   *  carried across 0 since `ref` (its guard at the start of the instant, or right after its
+   *  own spike), or that is in `initial` (on the fired side at t = 0), fires and delivers its
+   *  spike; then the test is repeated. False when the run must stop. */
+  const cascade = (root: number, ref: Map<number, number>, initial: Set<number>): boolean => {
     const firedNow = new Set<number>();
-    while (due.length > 0) {
-      for (const i of due) {
-        const name = `neuron ${i} (${inst[i]!.c.model.name})`;
-        if (firedNow.has(i)) {
-          errors.push(`${name} is carried across its threshold a second time at t = ${t} s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped`);
-          return false;
-        }
-        firedNow.add(i);
-        if (!fire(i, { byJump: true, cause: root })) return false;
-        const after = guardAt(i, y);
-        if (!Number.isFinite(after) || onFiredSide(dirOf(i), after)) {
-          errors.push(`${name} is still on the fired side of its threshold right after its spike at t = ${t} s (guard ${after}): its spike jump must leave it on the other side; stopped`);
-          return false;
-        }
-        ref.set(i, after);
+    for (;;) {
+      const i = firing.find((j) => (initial.has(j) && !firedNow.has(j)) || jumpCrosses(dirOf(j), ref.get(j)!, guardAt(j, y)));
+      if (i === undefined) return true;
+      const name = `neuron ${i} (${inst[i]!.c.model.name})`;
+      if (firedNow.has(i)) {
+        errors.push(`${name} is carried across its threshold a second time at t = ${t} s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped`);
+        return false;
       }
-      due = firing.filter((i) => jumpCrosses(dirOf(i), ref.get(i)!, guardAt(i, y)));
+      firedNow.add(i);
+      if (!fire(i, { byJump: true, cause: root })) return false;
+      const after = guardAt(i, y);
+      if (!Number.isFinite(after) || onFiredSide(dirOf(i), after)) {
+        errors.push(`${name} is still on the fired side of its threshold right after its spike at t = ${t} s (guard ${after}): its spike jump must leave it on the other side; stopped`);
+        return false;
+      }
+      ref.set(i, after);
     }
-    return true;
   };
   const guardsNow = (): Map<number, number> => new Map(firing.map((i) => [i, guardAt(i, y)] as const));
   {
     const ref = guardsNow();
-    const due = firing.filter((i) => onFiredSide(dirOf(i), ref.get(i)!));
-    if (due.length > 0 && !cascade(-1, ref, due)) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
+    const initial = new Set(firing.filter((i) => onFiredSide(dirOf(i), ref.get(i)!)));
+    if (initial.size > 0 && !cascade(-1, ref, initial)) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
   }
   for (;;) {
     const tNext = next < arrivals.length ? arrivals[next]!.time : duration;
@@ -243,7 +243,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       const ref = guardsNow();
       if (!fire(sender, {})) break;
       ref.set(sender, guardAt(sender, y));
-      if (!cascade(traj.events.length - 1, ref, firing.filter((i) => jumpCrosses(dirOf(i), ref.get(i)!, guardAt(i, y))))) break;
+      if (!cascade(traj.events.length - 1, ref, new Set())) break;
       continue;
     }
     if (next >= arrivals.length) break;
@@ -258,7 +258,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         receive(target, inputs[a.train]!.weight, post, post);
       }
     });
-    if (!cascade(traj.events.length - 1, ref, firing.filter((i) => jumpCrosses(dirOf(i), ref.get(i)!, guardAt(i, y))))) break;
+    if (!cascade(traj.events.length - 1, ref, new Set())) break;
   }
   cur.t1 = t;
   traj.intervals.push(cur);
