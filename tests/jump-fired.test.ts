@@ -4,7 +4,13 @@
 // own, their numerator handed to the spike that caused them) against central finite
 // differences of the accurate simulator; and the run-time stops (a loop at one instant, a
 // spike jump that leaves the fired side) that replace a hang.
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { parseScenario } from '../server/src/crosscheck/scenario';
+import { runCrossCheckSync } from '../server/src/crosscheck';
+import { gridBackward, gridForward, networkFromScenario } from '../server/src/grid';
 import { derivationFor } from '../server/src/adjoint';
 import { simulate } from '../server/src/simulate';
 import { sym, add, mul, num, pow } from '../server/src/symbolic/sym';
@@ -138,5 +144,68 @@ describe('spikes fired by jumps: gradients against finite differences of the acc
       loss: { terms: [{ neuron: 1, integrand: mul(sym('V'), sym('V')) }] } };
     const r = gradientCheck(c, derive, { skipInitial: true });
     expect(r.rows.find((x) => x.what === 'input 0 weight')!.unstable).toBe(true);
+  });
+});
+
+describe('spikes fired by jumps on the grid (docs/network-step.md) and in the demo sample', () => {
+  const ROOT = join(__dirname, '..');
+  const analysis = analyse(readFileSync(join(ROOT, 'samples', 'delta_layer.saltus'), 'utf8'));
+  const text = readFileSync(join(ROOT, 'samples', 'scenarios', 'delta_layer.json'), 'utf8');
+  const gridNet = () => {
+    const sc = parseScenario(text, analysis);
+    if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+    return networkFromScenario(sc.scenario);
+  };
+
+  test('the accurate cross-check of samples/delta_layer agrees, and the delta layer fires', () => {
+    const r = runCrossCheckSync(analysis, text, { traces: false });
+    expect(r.errors).toEqual([]);
+    expect(r.passed).toBe(true);
+    expect(r.spikeCounts.delta!.reduce((a, b) => a + b, 0)).toBeGreaterThan(10);
+    // the onset neurons' time constants reach the loss only through the delta spikes' times
+    expect(Math.abs(r.params.find((p) => p.population === 'onset' && p.name === 'tau_s')!.adjoint)).toBeGreaterThan(0.1);
+    expect(r.maxRelativeError!).toBeLessThan(1e-6);
+  });
+
+  test('grid = accurate simulation at dt = 0.1 ms: the same spikes, gradients within 1e-6 (exact LIF maps)', () => {
+    const exact = runCrossCheckSync(analysis, text, { traces: false });
+    const run = gridForward(gridNet(), { dt: 1e-4 });
+    expect(run.errors).toEqual([]);
+    const counts = Object.fromEntries(Object.entries(run.trials[0]!.spikes).map(([p, s]) => [p, s.length]));
+    expect(counts).toMatchObject({ onset: 16, delta: 23 });
+    const g = gridBackward(run);
+    const rel = (a: number, b: number) => Math.abs(a - b) / Math.max(Math.abs(b), 1e-12);
+    let worst = 0;
+    for (const r of exact.gradients) if (r.adjoint !== 0) worst = Math.max(worst, rel(g.weights[r.projection]![r.to]![r.from]!, r.adjoint));
+    for (const r of exact.params) if (r.adjoint !== 0) worst = Math.max(worst, rel(g.params[r.population]![r.name]!, r.adjoint));
+    console.log(`delta_layer: grid vs exact gradient at dt = 0.1 ms, worst relative gap ${worst.toExponential(2)}`);
+    expect(worst).toBeLessThan(1e-6);
+  });
+
+  test('grid gradient = central differences of the grid loss (onset time constants, through the delta spikes)', () => {
+    const net = gridNet();
+    const g = gridBackward(gridForward(net, { dt: 1e-4 }));
+    const onset = net.populations.find((p) => p.name === 'onset')! as { params: Record<string, number> };
+    for (const q of ['tau_m', 'tau_s']) {
+      const v0 = onset.params[q] ?? (q === 'tau_m' ? 20e-3 : 5e-3), h = 1e-6 * v0;
+      const at = (v: number) => { onset.params = { ...onset.params, [q]: v }; const l = gridForward(net, { dt: 1e-4 }).loss; onset.params = { ...onset.params, [q]: v0 }; return l; };
+      const fd = (at(v0 + h) - at(v0 - h)) / (2 * h);
+      expect(Math.abs(g.params.onset![q]! - fd) / Math.abs(fd), q).toBeLessThan(1e-6);
+    }
+  });
+
+  test('grid: a loop of spikes fired by jumps at one instant stops with an error', () => {
+    const loopText = `${DELTA}\nconnect Delta -> Delta`;
+    const a = analyse(loopText);
+    const sc = parseScenario(JSON.stringify({ duration_s: 0.01, populations: { in: { size: 1, spikes: [[0.002, 0]] }, d: { model: 'Delta', size: 2 } },
+      projections: [{ from: 'in', to: 'd', weights: [[0.025], [0]] }, { from: 'd', to: 'd', weights: [[0, 0.03], [0.03, 0]] }],
+      loss: { kind: 'state-integral', population: 'd', state: 'V', target: -0.06 } }), a);
+    if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+    const run = gridForward(networkFromScenario(sc.scenario), { dt: 1e-4 });
+    expect(run.errors.join(' ')).toMatch(/carried across its threshold a second time at 0\.002 s.*loop of spikes fired by jumps/);
+    const acc = runCrossCheckSync(a, JSON.stringify({ duration_s: 0.01, populations: { in: { size: 1, spikes: [[0.002, 0]] }, d: { model: 'Delta', size: 2 } },
+      projections: [{ from: 'in', to: 'd', weights: [[0.025], [0]] }, { from: 'd', to: 'd', weights: [[0, 0.03], [0.03, 0]] }],
+      loss: { kind: 'state-integral', population: 'd', state: 'V', target: -0.06 } }), { traces: false });
+    expect(acc.errors.map((e) => e.message).join(' ')).toMatch(/second time at t = 0\.002 s/);
   });
 });
