@@ -295,6 +295,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     imposedJump.set(x, work.simp(add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!))), `jump of lambda_${x} at a spike fired by a jump`, where));
   });
   const imposed: ImposedTransition = { numerator: work.simp(numerRaw, 'numerator of a spike fired by a jump', where), jump: imposedJump };
+  work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
 
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
   const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;
