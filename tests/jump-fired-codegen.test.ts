@@ -101,6 +101,17 @@ describe('the grid simulator on the corner cases', () => {
     expect(acc.spikeCounts.a).toEqual([count('a', 0)]);
     expect(acc.spikeCounts.b).toEqual([0, 1, 2].map((i) => count('b', i)));
   });
+  test('an input spike at t = 0 applies before the initial state fires (accurate and grid alike)', () => {
+    const json = { ...CHAIN, populations: { ...CHAIN.populations, sensor: { size: 2, spikes: [[0, 0], ...CHAIN.populations.sensor.spikes] } } };
+    const grid = gridForward(gridNet(json), { dt: 1e-4 });
+    expect(grid.errors).toEqual([]);
+    const acc = runCrossCheckSync(analyse(DELTA), JSON.stringify(json), { traces: false });
+    expect(acc.errors).toEqual([]);
+    const count = (pop: string, i: number) => grid.trials[0]!.spikes[pop]!.filter(([, k]) => k === i).length;
+    expect(acc.spikeCounts.a).toEqual([count('a', 0)]);
+    expect(acc.spikeCounts.b).toEqual([0, 1, 2].map((i) => count('b', i)));
+    expect(Math.abs(acc.loss - grid.loss) / Math.abs(acc.loss)).toBeLessThan(1e-8);
+  });
   test('a loop stops with an error', () => {
     expect(gridForward(gridNet(LOOP), { dt: 1e-4 }).errors.join(' ')).toMatch(/second time at 0\.002 s.*loop of spikes fired by jumps/);
   });

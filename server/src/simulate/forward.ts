@@ -223,10 +223,13 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     }
   };
   const guardsNow = (): Map<number, number> => new Map(firing.map((i) => [i, guardAt(i, y)] as const));
-  {
-    const ref = guardsNow();
-    const initial = new Set(firing.filter((i) => onFiredSide(dirOf(i), ref.get(i)!)));
-    if (initial.size > 0 && !cascade(-1, ref, initial)) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
+  // The initial state on the fired side fires at t = 0, after the input spikes at t = 0 (the
+  // instant's arrivals apply first, as on the grid).
+  let initial = new Set(firing.filter((i) => onFiredSide(dirOf(i), guardAt(i, y))));
+  if (initial.size > 0 && !(arrivals.length > 0 && arrivals[0]!.time === 0)) {
+    const ok = cascade(-1, guardsNow(), initial);
+    initial = new Set();
+    if (!ok) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
   }
   for (;;) {
     const tNext = next < arrivals.length ? arrivals[next]!.time : duration;
@@ -258,7 +261,9 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         receive(target, inputs[a.train]!.weight, post, post);
       }
     });
-    if (!cascade(traj.events.length - 1, ref, new Set())) break;
+    const due = initial;
+    initial = new Set();
+    if (!cascade(traj.events.length - 1, ref, due)) break;
   }
   cur.t1 = t;
   traj.intervals.push(cur);
