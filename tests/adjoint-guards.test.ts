@@ -111,11 +111,11 @@ describe('a guard the flow can never cross in its direction', () => {
   fire when V crosses V_th up { V := V_reset }${incoming ? '\n  incoming w [mV] { V := V + w }' : ''}
 }`;
 
-  test('information where an incoming jump could carry it across (spikes fired by jumps are not in the language)', () => {
+  test('information where an incoming jump could carry it across (it fires by jumps only)', () => {
     const ds = codes(DELTA_LIF(true));
     expect(ds.map((d) => [d.code, d.severity])).toEqual([['fires-only-by-jumps', 'info']]);
     expect(ds[0]!.message).toMatch(/the flow never reaches the threshold from below: .*gdot = \(E_L - V_th\) \/ tau_m is negative .*\(-2 \[mV\/ms\]\)/);
-    expect(ds[0]!.message).toMatch(/fires only if an incoming jump carries it across \(spikes fired by jumps are not in the language yet/);
+    expect(ds[0]!.message).toMatch(/fires only if an incoming jump carries it across: it then fires at that arrival's instant/);
     expect(ds[0]!.at).toBe('fire when V crosses V_th up');
   });
 

@@ -53,6 +53,9 @@ export function fdCases(): NamedCase[] {
   const alif = sampleNeuron('adaptive_lif.saltus', 'AdaptiveLif');
   const adex = sampleNeuron('adex.saltus', 'AdEx');
   const izh = sampleNeuron('izhikevich.saltus', 'Izhikevich');
+  const onset = sampleNeuron('delta_layer.saltus', 'Onset');
+  const delta = sampleNeuron('delta_layer.saltus', 'DeltaLif');
+  const roDelta = sampleNeuron('delta_layer.saltus', 'Readout');
   const mixed = modelNeuron(MIXED, 'Mixed');
   const dipper = modelNeuron(MIXED, 'Dipper');
   const L = fromMathjs;
@@ -62,6 +65,13 @@ export function fdCases(): NamedCase[] {
       inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 1, times: [0.006, 0.02], weight: 2.5 }],
       duration: 0.045,
       loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 0, perSpike: L('100 * (t - 0.01)^2'), integrand: L('0.1 * V^2') }] },
+    } },
+    { name: 'delta_layer: Onset -> DeltaLif (fires by jumps) -> Readout', source: 'samples/delta_layer.saltus', c: {
+      net: { neurons: [{ model: onset }, { model: delta }, { model: delta, params: { tau_m: 0.015 } }, { model: roDelta }],
+        synapses: [{ from: 0, to: 1, weight: 0.024 }, { from: 0, to: 2, weight: 0.012 }, { from: 1, to: 3, weight: 0.8 }, { from: 2, to: 3, weight: -0.5 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 2, times: [0.0035, 0.0205], weight: 0.005 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 3, integrand: L('(V - 0.3)^2') }, { neuron: 2, integrand: L('1000 * (V + 0.065)^2') }] },
     } },
     { name: 'readout alone', source: 'samples/readout.saltus', c: {
       net: { neurons: [{ model: roAlone }], synapses: [] },

@@ -69,7 +69,7 @@ export function compareWithGrid(who: string, label: string, net: Network, dt: nu
   return { loss, worst, spikes };
 }
 
-export const SAMPLE_SCENARIOS = ['lif_current', 'adaptive_lif', 'readout', 'adex', 'izhikevich'] as const;
+export const SAMPLE_SCENARIOS = ['lif_current', 'adaptive_lif', 'readout', 'adex', 'izhikevich', 'delta_layer'] as const;
 
 /**
  * A sample model, its scenario (JSON) and the scenario as a grid network; `untilS` cuts the

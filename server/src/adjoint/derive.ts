@@ -45,6 +45,20 @@ export interface SpikeDerivation {
   /** Forward state values the backward pass needs at each spike of this neuron. */
   record: string[];
   eventBased: boolean;
+  /** The same transition at an imposed time (a spike fired by a jump, at the instant of the
+   *  event that caused it; docs/adjoint.md "Spikes fired by jumps"): its time does not depend
+   *  on this neuron's state, so there is no phi; nothing is simplified on the guard surface
+   *  (the state is past it). */
+  imposed: ImposedTransition;
+}
+
+/** A transition whose time is set by another event: lambda- = h_x^T lambda+, and its
+ *  numerator (-dL/d(time), the phi numerator without the division) goes to that event. */
+export interface ImposedTransition {
+  /** lambda+ . (f(x+) - h_x f(x-) - h_t) + coupling - dlp_dt + lV_post - lV_pre, off the guard surface. */
+  numerator: Sym;
+  /** lambda_X just before the transition: (h_x^T lambda+)_X. */
+  jump: Map<string, Sym>;
 }
 
 export interface IncomingDerivation {
@@ -64,6 +78,8 @@ export interface ParamGradient {
   flow: Sym;
   /** Increment per spike of this neuron: lambda+ . dh/dp + phi dg/dp (null without fire block). */
   spike: Sym | null;
+  /** Increment per spike fired by a jump: lambda+ . dh/dp, off the guard surface (null without fire block). */
+  spikeImposed: Sym | null;
   /** Increment per received spike: lambda+ . dr/dp (null without incoming block). */
   incoming: Sym | null;
 }
@@ -187,13 +203,14 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   const paramGradients = new Map<string, ParamGradient>();
   for (const p of gradientParams) {
     const flow = work.simp(dot(f.map((fi, i) => [lambda[i]!, derivative(fi, p)])), `flow integrand of the ${p} gradient`);
-    let spikeInc: Sym | null = null;
+    let spikeInc: Sym | null = null, spikeImposed: Sym | null = null;
     if (neuron.fire && spike) {
       const fire = neuron.fire;
       const hp = states.map((x) => derivative(fire.jumps.get(x) ?? sym(x), p));
       const raw = add(dot(hp.map((d, i) => [lambda[i]!, d])), mul(sym(PHI), derivative(fire.guard, p)));
       const r = onSurface(work.simp(raw, `spike increment of the ${p} gradient`, { kind: 'fire' }), spike.surface, work.budget);
       spikeInc = r.sym;
+      spikeImposed = work.simp(dot(hp.map((d, i) => [lambda[i]!, d])), `increment of the ${p} gradient at a spike fired by a jump`, { kind: 'fire' });
     }
     let inc: Sym | null = null;
     if (neuron.incoming) {
@@ -201,7 +218,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
       const rp = states.map((x) => derivative(inj.jumps.get(x) ?? sym(x), p));
       inc = work.simp(dot(rp.map((d, i) => [lambda[i]!, d])), `incoming increment of the ${p} gradient`, { kind: 'incoming' });
     }
-    paramGradients.set(p, { flow, spike: spikeInc, incoming: inc });
+    paramGradients.set(p, { flow, spike: spikeInc, spikeImposed, incoming: inc });
   }
   if (spike) {
     const extra = [...paramGradients.values()].flatMap((g) => (g.spike ? stateFree(g.spike, states) : []));
@@ -273,11 +290,19 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const jumpExprs = [...h, ...hx.flat(), g, ...gx];
   work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
 
+  // The same transition at an imposed time: no phi, and the state is not on the guard surface.
+  const imposedJump = new Map<string, Sym>();
+  states.forEach((x, j) => {
+    imposedJump.set(x, work.simp(add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!))), `jump of lambda_${x} at a spike fired by a jump`, where));
+  });
+  const imposed: ImposedTransition = { numerator: work.simp(numerRaw, 'numerator of a spike fired by a jump', where), jump: imposedJump };
+  work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
+
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
   const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;
   const postGuard = rule ? onSurfaceAlways(substitute(g, post), rule, work) : work.simp(substitute(g, post), 'guard after the jump', where);
   return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}),
-    surfaceSlope, postGuard, record, eventBased: true };
+    surfaceSlope, postGuard, record, eventBased: true, imposed };
 }
 
 function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
@@ -329,7 +354,7 @@ function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): Deriva
   }
   if (isZero(raw) && inGuard.every((x) => !neuron.flows.has(x)) && !dependsOn(g, TIME)) {
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
-      message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; spikes fired by jumps are not in the language yet); ${end}` };
+      message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; it could fire by jumps only, but a model whose guard slope is identically 0 is not derived); ${end}` };
   }
   if (isZero(raw)) {
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],

@@ -83,7 +83,7 @@ export function guardDiagnostics(derivation: NeuronDerivation, n: ResolvedNeuron
       const base = `the flow never reaches the threshold ${side}: on it${where} the guard slope ${formula} is ${sign} for the file's parameter values (${slopeText(n, slope)})`;
       if (jumped.length) {
         out.push({ severity: 'info', code: 'fires-only-by-jumps', range: header(fire.decl),
-          message: `${base}; this neuron fires only if an incoming jump carries it across (spikes fired by jumps are not in the language yet)` });
+          message: `${base}; this neuron fires only if an incoming jump carries it across: it then fires at that arrival's instant, and its spike time moves with the spike that arrived` });
       } else {
         out.push({ severity: 'warning', code: 'never-fires', range: header(fire.decl),
           message: `${base}, and no incoming jump moves ${guardStates.join(', ') || 'the guard'}: this neuron can never fire` });

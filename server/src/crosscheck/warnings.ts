@@ -66,6 +66,7 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
     for (const e of traj.events) {
       if (e.kind !== 'spike' || e.neuron !== i) continue;
       spikes++;
+      if (e.byJump) continue; // its time is its arrival's: no crossing slope to judge
       const slope = gdotAtSpike(load(e.pre, e.time));
       if (!Number.isFinite(slope) || !(rms > 0)) continue;
       const r = Math.abs(slope) / rms;
@@ -80,6 +81,16 @@ export function fragilityWarnings(b: BuiltScenario, traj: Trajectory, grid: Grid
     const dir = m.fire.direction === 'down' ? -1 : m.fire.direction === 'up' ? 1 : 0;
     const range = gMax - gMin;
     if (!(range > 0)) return;
+    for (const e of traj.events) {
+      // A spike fired by a jump that carried the guard only just past 0: a small change of a
+      // weight could remove it (or, just short of 0, add one; those are the near misses below).
+      if (e.kind !== 'spike' || e.neuron !== i || !e.byJump) continue;
+      const past = Math.abs(guard(load(e.pre, e.time)));
+      if (past / range < NEAR_MISS_FRACTION) {
+        out.push({ kind: 'near-miss', population, index, time: e.time,
+          message: `${who} was carried only ${pct(past / range)} of its guard range past its threshold by a jump at ${ms(e.time)}: a small change of a weight could remove this spike` });
+      }
+    }
     for (let k = 1; k + 1 < g.length; k++) {
       // A local maximum of dir * g (|g| minimum for either) inside one interval, below zero.
       if (grid.interval[k - 1] !== grid.interval[k] || grid.interval[k + 1] !== grid.interval[k]) continue;

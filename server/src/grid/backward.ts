@@ -10,7 +10,8 @@
 //   at a spike located where g(G(x_a, a, s - a), s) = 0:
 //     D = T + mu . dG/dh,  mu = h_x^T lambda(s+),  gdot = g_x . dG/dh + g_t,
 //     Phi = -D / gdot,  lambda(s-) = mu + Phi g_x,  dL/dp += Phi g_p
-//   (the implicit-function derivative of the located time).
+//   (the implicit-function derivative of the located time); a spike fired by a jump has no
+//   located time: lambda(s-) = mu, and D goes to the arrival whose instant it shares.
 // For an exact map (dG/dh = f(G), no explicit time) the segment starts are not needed:
 // dG/dh at an event's end is f(x-) of the logged state, and at an event's start
 // lambda(b-) . dG/dh = lambda(a+) . f(x+) (forward.ts `needsStarts`).
@@ -209,6 +210,13 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
         eventTimes.push({ trial: b, kind: 'spike', time: E.time, pop: B.run.name, index: n, dLdt: T[e]! });
         const rate = new Float64Array(S);
         const D = T[e]! + endTerm(B, n, E, E.start, mu, rate);
+        if (E.byJump !== undefined) {
+          // A spike fired by a jump: its time is its arrival's, so dL/d(its time) goes there (and
+          // on to the spike that caused the arrival); no phi, no guard terms.
+          if (E.byJump >= 0) T[E.byJump]! += D;
+          for (let j = 0; j < S; j++) B.lam[o + j] = mu[j]!;
+          continue;
+        }
         load(k, v, E.xPre, 0, E.time);
         const G = k.guard!;
         let gdot = G.gt(v);

@@ -15,9 +15,15 @@
 // state, the integral loss), the state at every grid point and each arrival's per-neuron
 // segment starts. An exact map with nothing else needs the events alone: memory grows with
 // the number of spikes, not with the number of steps.
+// Spikes fired by jumps (docs/language.md): when no arrival at the current instant is still
+// pending, the first neuron (populations in order, then by index) whose guard the instant's
+// arrivals carried across 0 (against its guard at the start of the instant, or right after
+// its own spike), or whose initial state is on the fired side at t = 0, fires there; its
+// arrivals are delivered at the same instant, and the test repeats. A neuron that would fire
+// twice in one instant stops the run with an error.
 // Invariants: never throws for a validated network (numeric trouble becomes `errors`).
 import { gridDerivationFor } from './derive';
-import { type Kernels, compileKernels, crossed, load, valuesFor } from './kernels';
+import { type Kernels, compileKernels, crossed, jumpCrossed, load, valuesFor } from './kernels';
 import { type ModelPopulation, type Network, initialVector, paramVector, validateNetwork } from './network';
 import { SegmentMap } from './segment';
 import { substepsFor } from '../step/substeps';
@@ -43,7 +49,10 @@ export type LogEvent =
       xPre: Float64Array;
       /** Per neuron, where its segment ending here started (needsStarts only). */
       starts?: Int32Array }
-  | { kind: 'spike'; step: number; time: number; pop: number; neuron: number; xPre: Float64Array; first: boolean; start: StartRef };
+  | { kind: 'spike'; step: number; time: number; pop: number; neuron: number; xPre: Float64Array; first: boolean; start: StartRef;
+      /** A spike fired by a jump: the index of the arrival whose instant it shares (-1: the
+       *  initial state at t = 0); its time moves with that arrival, not with a crossing. */
+      byJump?: number };
 
 export interface PopRun {
   index: number;
@@ -253,12 +262,88 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   };
 
   let spikeCount = 0;
+  /** A spike of neuron n of L at time s (its segment already advanced there): log, spike jump,
+   *  the fired-side check, arrivals for its targets. An error message when the run must stop. */
+  const emit = (L: Live, n: number, s: number, step: number, byJump?: number): string | undefined => {
+    const S = L.S, k = L.k;
+    const ev = log.length;
+    const xPre = L.x.slice(n * S, n * S + S);
+    const first = !L.fired[n];
+    L.fired[n] = 1;
+    log.push({ kind: 'spike', step, time: s, pop: L.run.index, neuron: n, xPre, first, start: L.start[n]!, ...(byJump !== undefined ? { byJump } : {}) });
+    load(k, L.v, xPre, 0, s);
+    for (let j = 0; j < S; j++) y[j] = k.spike!.J[j]!(L.v);
+    L.x.set(y.subarray(0, S), n * S);
+    L.start[n] = ev;
+    const after = guardNow(L, n);
+    if (!Number.isFinite(after) || onFiredSide(k.guard!.direction, after)) {
+      return `${L.pop.name}[${n}] is on the fired side of its threshold right after its own spike at ${s} s: its spike jump must leave it below the threshold`;
+    }
+    spikes[L.pop.name]!.push([s, n]);
+    if (L.lossPop && first && (loss.kind === 'spike-time' || loss.kind === 'ce-first-spike')) lossValues[n] = s;
+    net.projections.forEach((pr, j) => { if (pr.from === L.pop.name) queue.push({ time: s, seq: seq++, projection: j, source: n, cause: ev }); });
+    if (++spikeCount > maxSpikes) return `more than ${maxSpikes} spikes: stopped (check the weights' units)`;
+    return undefined;
+  };
+
+  // The current instant of spikes fired by jumps: per firing population, each neuron's guard
+  // at the start of the instant (or right after its spike there), the last arrival into it,
+  // and who fired; `initial` marks neurons on the fired side at t = 0.
+  let instant = NaN;
+  const ref = new Map<Live, Float64Array>();
+  const lastArrival = new Map<Live, number>();
+  const firedNow = new Set<string>();
+  const initial = new Set<string>();
+  const openInstant = (s: number): void => {
+    if (s === instant) return;
+    instant = s; ref.clear(); lastArrival.clear(); firedNow.clear(); initial.clear();
+  };
+  const touch = (L: Live): void => {
+    if (!L.k.guard || ref.has(L)) return;
+    ref.set(L, Float64Array.from({ length: L.pop.size }, (_, n) => guardNow(L, n)));
+  };
+  /** Spikes fired by jumps at the current instant, while no arrival there is pending. */
+  const jumpFired = (s: number, step: number): string | undefined => {
+    for (;;) {
+      const pending = queue.peek();
+      if (pending && pending.time === s) return undefined;
+      let hit: Live | null = null, hitN = -1;
+      for (const L of firing) {
+        const g = ref.get(L);
+        if (!g) continue;
+        for (let n = 0; n < L.pop.size && !hit; n++) {
+          const key = `${L.run.index}:${n}`;
+          if ((initial.has(key) && !firedNow.has(key)) || jumpCrossed(L.k.guard!.direction, g[n]!, guardNow(L, n))) { hit = L; hitN = n; }
+        }
+        if (hit) break;
+      }
+      if (!hit) return undefined;
+      const key = `${hit.run.index}:${hitN}`;
+      if (firedNow.has(key)) return `${hit.pop.name}[${hitN}] is carried across its threshold a second time at ${s} s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped`;
+      firedNow.add(key);
+      const err = emit(hit, hitN, s, step, lastArrival.get(hit) ?? -1);
+      if (err) return err;
+      ref.get(hit)![hitN] = guardNow(hit, hitN);
+    }
+  };
+  openInstant(0);
+  for (const L of firing) {
+    touch(L);
+    const g = ref.get(L)!;
+    for (let n = 0; n < L.pop.size; n++) if (onFiredSide(L.k.guard!.direction, g[n]!)) initial.add(`${L.run.index}:${n}`);
+  }
+  let initialDone = initial.size === 0;
   for (let step = 0; step < steps; step++) {
     const tEnd = step === steps - 1 ? net.duration : (step + 1) * dt;
     for (const L of pops) {
       L.start.fill(-1);
       if (L.run.needsStarts) L.run.checkpoints.push(L.x.slice());
       if (L.run.gridValues && step === 0) for (let n = 0; n < L.pop.size; n++) L.run.gridValues[n]![0] = L.x[n * L.S + lossState]!;
+    }
+    if (!initialDone) {
+      initialDone = true;
+      const err = jumpFired(0, step);
+      if (err) return { error: err };
     }
     for (;;) {
       const next = queue.peek();
@@ -272,25 +357,9 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
         }
       }
       if (bestPop && best <= tArr) {
-        const L = bestPop, n = bestN, s = best, S = L.S, k = L.k;
-        advance(L, n, s);
-        const ev = log.length;
-        const xPre = L.x.slice(n * S, n * S + S);
-        const first = !L.fired[n];
-        L.fired[n] = 1;
-        log.push({ kind: 'spike', step, time: s, pop: L.run.index, neuron: n, xPre, first, start: L.start[n]! });
-        load(k, L.v, xPre, 0, s);
-        for (let j = 0; j < S; j++) y[j] = k.spike!.J[j]!(L.v);
-        L.x.set(y.subarray(0, S), n * S);
-        L.start[n] = ev;
-        const after = guardNow(L, n);
-        if (!Number.isFinite(after) || onFiredSide(k.guard!.direction, after)) {
-          return { error: `${L.pop.name}[${n}] is on the fired side of its threshold right after its own spike at ${s} s: its spike jump must leave it below the threshold` };
-        }
-        spikes[L.pop.name]!.push([s, n]);
-        if (L.lossPop && first && (loss.kind === 'spike-time' || loss.kind === 'ce-first-spike')) lossValues[n] = s;
-        net.projections.forEach((pr, j) => { if (pr.from === L.pop.name) queue.push({ time: s, seq: seq++, projection: j, source: n, cause: ev }); });
-        if (++spikeCount > maxSpikes) return { error: `more than ${maxSpikes} spikes: stopped (check the weights' units)` };
+        advance(bestPop, bestN, best);
+        const err = emit(bestPop, bestN, best, step);
+        if (err) return { error: err };
         continue;
       }
       if (tArr === Infinity) break;
@@ -299,7 +368,10 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
       const L = live[popIndex.get(pr.to)!]!;
       const k = L.k, S = L.S;
       for (let n = 0; n < L.pop.size; n++) advance(L, n, arr.time);
+      openInstant(arr.time);
+      touch(L);
       const ev = log.length;
+      lastArrival.set(L, ev);
       log.push({ kind: 'arrival', step, time: arr.time, pop: L.run.index, projection: arr.projection, source: arr.source, cause: arr.cause,
         xPre: L.x.slice(), ...(L.run.needsStarts ? { starts: L.start.slice() } : {}) });
       const self = pr.from === pr.to;
@@ -311,6 +383,8 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
         }
         L.start[n] = ev;
       }
+      const err = jumpFired(arr.time, step);
+      if (err) return { error: err };
     }
     for (const L of pops) {
       for (let n = 0; n < L.pop.size; n++) advance(L, n, tEnd);

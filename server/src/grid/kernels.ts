@@ -64,6 +64,14 @@ export function load(k: Kernels, v: Float64Array, x: ArrayLike<number>, off: num
   return v;
 }
 
+/** Whether a jump from guard value g0 to g1 fires the neuron (docs/language.md, "Spikes fired
+ *  by jumps"): up g0 <= 0 < g1, down g0 >= 0 > g1, either one of them. The same test as the
+ *  accurate simulator's (simulate/forward.ts `jumpCrosses`). */
+export function jumpCrossed(direction: Direction, g0: number, g1: number): boolean {
+  const up = g0 <= 0 && g1 > 0, down = g0 >= 0 && g1 < 0;
+  return direction === 'up' ? up : direction === 'down' ? down : up || down;
+}
+
 /** Crossing test of the grid: up g0 < 0 <= g1, down g0 > 0 >= g1, either one of them. */
 export function crossed(direction: Direction, g0: number, g1: number): boolean {
   const up = g0 < 0 && g1 >= 0, down = g0 > 0 && g1 <= 0;

@@ -38,6 +38,14 @@ export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
     ];
     const grazing = d.issues.filter((i) => i.code === 'grazing-crossing').map((i) => ` Grazing set: ${i.message}.`).join('');
     sections.push({ title: `At a spike (${s.direction} crossing)`, note: `λ just after the event, states just before. Record at each spike: ${s.record.length ? s.record.join(', ') : 'the spike time only'}.${grazing}`, rows });
+    sections.push({
+      title: 'At a spike fired by a jump (its time is the arrival’s)',
+      note: 'no φ of its own; the numerator is added to the coupling of the spike that caused the arrival (dropped for an input spike or the initial state)',
+      rows: [
+        { label: 'numerator', latex: `N = ${L(s.imposed.numerator)}` },
+        ...[...s.imposed.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
+      ],
+    });
   }
   if (d.incoming) {
     const i = d.incoming;

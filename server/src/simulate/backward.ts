@@ -4,6 +4,9 @@
 // accumulates the weight, input-weight and parameter gradients. Every formula comes from a
 // NeuronDerivation (adjoint/derive.ts) through symbolic `compile`; nothing here knows a model.
 //
+// A spike fired by a jump has no phi of its own: its numerator (-dL/d(its time)) is added to
+// the `coupling` of the event that started its instant (the spike that caused it moves it),
+// and dropped where that is an input spike or the initial state (fixed times).
 // Invariants: never throws for bad input (errors come back in `errors`); at an event the
 // sender's and targets' new lambdas are computed from the post-event lambdas and pre-event
 // states before any is written; gradients are dL/d(value) of the simulated loss.
@@ -51,6 +54,10 @@ interface CompiledAdjoint {
   phi?: Compiled;
   jump?: Compiled[];
   paramSpike?: Compiled[];
+  /** A spike fired by a jump (its time imposed by the event that caused it). */
+  imposedNumerator?: Compiled;
+  imposedJump?: Compiled[];
+  paramImposed?: Compiled[];
   inJump?: Compiled[];
   weightGradient?: Compiled;
   coupling?: Compiled;
@@ -70,6 +77,9 @@ function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjo
     out.phi = c(d.spike.phi);
     out.jump = states.map((x) => c(d.spike!.jump.get(x)));
     out.paramSpike = ps.map((g) => c(g.spike));
+    out.imposedNumerator = c(d.spike.imposed.numerator);
+    out.imposedJump = states.map((x) => c(d.spike!.imposed.jump.get(x)));
+    out.paramImposed = ps.map((g) => c(g.spikeImposed));
   }
   if (d.incoming) {
     out.inJump = states.map((x) => c(d.incoming!.jump.get(x)));
@@ -193,6 +203,8 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     seen.add(e.neuron);
     return first || !ai[e.neuron]!.fwd.loss.firstOnly;
   });
+  /** Numerators of spikes fired by jumps, by the index of the event that caused them. */
+  const handed = new Map<number, number>();
   if (options.keepCostate) result.costate = traj.intervals.map((v) => ({ t0: v.t0, t1: v.t1, segments: [] }));
   for (let k = traj.intervals.length - 1; k >= 0; k--) {
     iv = traj.intervals[k]!;
@@ -226,6 +238,8 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       continue;
     }
     // A spike: the sender's and every target's new lambdas from the same post-event lambdas.
+    // Spikes fired by jumps at this instant come later in the log, so their numerators are
+    // already in `handed` when their cause is reached.
     const zPlus = z.slice();
     const zNew = z.slice();
     {
@@ -244,11 +258,20 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       b[sp.dlp] = it.fwd.loss.perSpikeRate && scored[k - 1] ? it.fwd.loss.perSpikeRate(v) : 0;
       b[sp.pre] = lossAt(e.pre, e.time);
       b[sp.post] = lossAt(e.post, e.time);
-      b[sp.coupling] = coupling;
-      b[sp.phi] = it.a.phi!(b);
       const off = layout.offset[n]!;
-      for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
-      it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
+      if (e.byJump) {
+        b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
+        b[sp.phi] = 0;
+        const cause = e.cause ?? -1;
+        if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + it.a.imposedNumerator!(b));
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.imposedJump![j]!(b);
+        it.a.paramImposed!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
+      } else {
+        b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
+        b[sp.phi] = it.a.phi!(b);
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
+        it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
+      }
       flagNonFinite(zNew, e.time, 'spike');
     }
     z = zNew;

@@ -3,6 +3,12 @@
 // spike jumps applied to the sender and incoming jumps to its targets at the same instant,
 // external input spikes applied at their times. The loss integral is integrated alongside.
 //
+// Spikes fired by jumps (docs/language.md "Spikes fired by jumps"): after every event, each
+// firing neuron whose guard the instant's jumps carried across 0 in its declared direction
+// (or whose initial state lies on the fired side, at t = 0) fires at that instant, as its own
+// spike event (`byJump`, `cause` = the event that started the instant); its spike may fire
+// others in turn. A neuron that would fire twice in one instant, or whose spike jump leaves it
+// on the fired side, stops the run with an error (never a loop).
 // Invariants: never throws for bad input (errors come back in `errors`, nothing simulated);
 // intervals[k] spans from events[k-1] (or 0) to events[k] (or the duration), so the dense
 // output inside an interval is smooth and its ends are the post-/pre-event states; the
@@ -36,6 +42,11 @@ export interface NetEvent {
   arrivals?: { train: number; neuron: number; pre: Float64Array }[];
   pre: Float64Array;
   post: Float64Array;
+  /** A spike fired by a jump: its time is the instant of `cause`, not a crossing of the flow. */
+  byJump?: boolean;
+  /** For a spike fired by a jump: the index in `events` of the spike or input event that
+   *  started the instant (-1 for a spike of the initial state at t = 0). */
+  cause?: number;
 }
 
 export interface Interval { t0: number; t1: number; segments: DenseSegment[] }
@@ -165,6 +176,61 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     setWeight(it, w);
     it.c.incoming!.forEach((r, j) => { post[it.offset + j] = r(v); });
   };
+  const guardAt = (i: number, state: Float64Array): number => inst[i]!.c.guard!(load(inst[i]!, state, t));
+  const dirOf = (i: number): 'up' | 'down' | 'either' => inst[i]!.c.model.fire!.direction;
+  /** A spike of `sender` at the current time: its jump, the delivery to its targets, the per-spike loss. */
+  const fire = (sender: number, extra: Pick<NetEvent, 'byJump' | 'cause'>): boolean => {
+    event({ kind: 'spike', time: t, neuron: sender, ...extra }, (post) => {
+      const pre = y.slice();
+      const it = inst[sender]!;
+      const v = load(it, pre, t);
+      it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
+      for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, post, pre);
+      if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) {
+        const l = it.loss.perSpike(v);
+        if (!Number.isFinite(l) && !traj.nonFinite) traj.nonFinite = { time: t, neuron: sender, quantity: 'spike-time loss', cause: 'spike' };
+        traj.lossSpikes += l;
+      }
+      fired.add(sender);
+    });
+    traj.spikes.push({ neuron: sender, time: t });
+    if (traj.spikes.length > maxSpikes) { errors.push(`more than ${maxSpikes} spikes: stopped`); return false; }
+    return true;
+  };
+  /** The spikes fired by jumps at this instant, after event `root` (-1: the initial state),
+   *  one at a time: the first firing neuron (network order) whose guard the instant's jumps
+   *  carried across 0 since `ref` (its guard at the start of the instant, or right after its
+   *  own spike), or that is in `initial` (on the fired side at t = 0), fires and delivers its
+   *  spike; then the test is repeated. False when the run must stop. */
+  const cascade = (root: number, ref: Map<number, number>, initial: Set<number>): boolean => {
+    const firedNow = new Set<number>();
+    for (;;) {
+      const i = firing.find((j) => (initial.has(j) && !firedNow.has(j)) || jumpCrosses(dirOf(j), ref.get(j)!, guardAt(j, y)));
+      if (i === undefined) return true;
+      const name = `neuron ${i} (${inst[i]!.c.model.name})`;
+      if (firedNow.has(i)) {
+        errors.push(`${name} is carried across its threshold a second time at t = ${t} s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped`);
+        return false;
+      }
+      firedNow.add(i);
+      if (!fire(i, { byJump: true, cause: root })) return false;
+      const after = guardAt(i, y);
+      if (!Number.isFinite(after) || onFiredSide(dirOf(i), after)) {
+        errors.push(`${name} is still on the fired side of its threshold right after its spike at t = ${t} s (guard ${after}): its spike jump must leave it on the other side; stopped`);
+        return false;
+      }
+      ref.set(i, after);
+    }
+  };
+  const guardsNow = (): Map<number, number> => new Map(firing.map((i) => [i, guardAt(i, y)] as const));
+  // The initial state on the fired side fires at t = 0, after the input spikes at t = 0 (the
+  // instant's arrivals apply first, as on the grid).
+  let initial = new Set(firing.filter((i) => onFiredSide(dirOf(i), guardAt(i, y))));
+  if (initial.size > 0 && !(arrivals.length > 0 && arrivals[0]!.time === 0)) {
+    const ok = cascade(-1, guardsNow(), initial);
+    initial = new Set();
+    if (!ok) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
+  }
   for (;;) {
     const tNext = next < arrivals.length ? arrivals[next]!.time : duration;
     const res = tNext > t ? integrate(st, t, y, tNext, opts, guards, (s) => cur.segments.push(s)) : { t, y, steps: 0, rejected: 0 };
@@ -177,26 +243,16 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     const hit = 'hit' in res ? res.hit : undefined;
     if (hit !== undefined) {
       const sender = firing[hit]!;
-      event({ kind: 'spike', time: t, neuron: sender }, (post) => {
-        const pre = y.slice();
-        const it = inst[sender]!;
-        const v = load(it, pre, t);
-        it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
-        for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, post, pre);
-        if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) {
-          const l = it.loss.perSpike(v);
-          if (!Number.isFinite(l) && !traj.nonFinite) traj.nonFinite = { time: t, neuron: sender, quantity: 'spike-time loss', cause: 'spike' };
-          traj.lossSpikes += l;
-        }
-        fired.add(sender);
-      });
-      traj.spikes.push({ neuron: sender, time: t });
-      if (traj.spikes.length > maxSpikes) { errors.push(`more than ${maxSpikes} spikes: stopped`); break; }
+      const ref = guardsNow();
+      if (!fire(sender, {})) break;
+      ref.set(sender, guardAt(sender, y));
+      if (!cascade(traj.events.length - 1, ref, new Set())) break;
       continue;
     }
     if (next >= arrivals.length) break;
     const first = arrivals[next]!;
     const group: NonNullable<NetEvent['arrivals']> = [];
+    const ref = guardsNow();
     event({ kind: 'input', time: t, neuron: inputs[first.train]!.target, train: first.train, arrivals: group }, (post) => {
       // Every arrival at this instant, in train order, each on the state the previous ones left.
       while (next < arrivals.length && arrivals[next]!.time === first.time) {
@@ -205,6 +261,9 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         receive(target, inputs[a.train]!.weight, post, post);
       }
     });
+    const due = initial;
+    initial = new Set();
+    if (!cascade(traj.events.length - 1, ref, due)) break;
   }
   cur.t1 = t;
   traj.intervals.push(cur);
@@ -212,6 +271,17 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   traj.lossIntegral = y[n]!;
   traj.loss = traj.lossIntegral + traj.lossSpikes;
   return traj;
+}
+
+/** Whether guard value g lies on the side a neuron fires from (`either` has none). */
+export function onFiredSide(direction: 'up' | 'down' | 'either', g: number): boolean {
+  return direction === 'up' ? g > 0 : direction === 'down' ? g < 0 : false;
+}
+
+/** Whether a jump from guard value g0 to g1 carries the guard across 0 in `direction`. */
+export function jumpCrosses(direction: 'up' | 'down' | 'either', g0: number, g1: number): boolean {
+  const up = g0 <= 0 && g1 > 0, down = g0 >= 0 && g1 < 0;
+  return direction === 'up' ? up : direction === 'down' ? down : up || down;
 }
 
 const scratch = new Map<number, Float64Array>();

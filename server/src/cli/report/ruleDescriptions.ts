@@ -33,7 +33,7 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'internal-error': 'Saltus itself failed on this text (a bug, not a mistake in the model); the language server log has the details.',
   'non-positive-constant': 'A parameter that divides an equation is 0, or a time constant or capacitance is negative.',
   'zero-guard-slope': 'The guard slope is identically zero on the threshold, so the flow never crosses it and no spike time has a derivative.',
-  'fires-only-by-jumps': 'The flow never crosses the threshold in the declared direction; only a jump could carry the neuron across.',
+  'fires-only-by-jumps': 'The flow never crosses the threshold in the declared direction; the neuron fires only when an incoming jump carries it across, at that arrival\'s instant.',
   'never-fires': 'Neither the flow nor any jump can carry the neuron across its threshold in the declared direction.',
   'reset-on-threshold': 'A spike jump leaves the neuron on its threshold or on the side it fires from.',
   'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',

@@ -212,6 +212,14 @@ SALTUS_HD static int saltus_crossed(int direction, saltus_real g0, saltus_real g
     return direction > 0 ? up : direction < 0 ? down : (up || down);
 }
 
+/* A jump from guard value g0 to g1 fires the neuron (docs/language.md, "Spikes fired by jumps"):
+ * up g0 <= 0 < g1, down g0 >= 0 > g1, either one of them (kernels.ts `jumpCrossed`). */
+SALTUS_HD static int saltus_jump_crossed(int direction, saltus_real g0, saltus_real g1)
+{
+    int up = g0 <= 0 && g1 > 0, down = g0 >= 0 && g1 < 0;
+    return direction > 0 ? up : direction < 0 ? down : (up || down);
+}
+
 SALTUS_HD static int saltus_fired_side(int direction, saltus_real g)
 {
     return direction > 0 ? g > 0 : direction < 0 ? g < 0 : 0;
@@ -285,13 +293,13 @@ SALTUS_HD static saltus_real saltus_locate_crossing(const saltus_seg *g, const s
 size_t saltus_ws_reals(const saltus_plan *plan)
 {
     size_t grid = (size_t)(plan->steps + 1) * (size_t)plan->n_grid;
-    return 2 * plan->x_total + 2 * (size_t)plan->n_total + (size_t)plan->steps * plan->ck_stride + grid
+    return 2 * plan->x_total + 3 * (size_t)plan->n_total + (size_t)plan->steps * plan->ck_stride + grid
         + 2 * (size_t)plan->n_loss + (size_t)plan->g_total + saltus_scratch_size(plan);
 }
 
 size_t saltus_ws_ints(const saltus_plan *plan)
 {
-    return 2 * (size_t)plan->n_total + (size_t)plan->n_loss + 1;
+    return 3 * (size_t)plan->n_total + (size_t)plan->n_loss + 1 + (size_t)plan->n_populations;
 }
 
 SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, saltus_real *reals, int *ints)
@@ -306,10 +314,13 @@ SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, sa
     ws->loss_values = r; r += plan->n_loss;
     ws->loss_coef = r; r += plan->n_loss;
     ws->grad = r; r += plan->g_total;
+    ws->jref = r; r += plan->n_total;
     ws->scratch = r;
     ws->start = ints;
     ws->fired = ints + plan->n_total;
     ws->argmax = ints + 2 * plan->n_total;
+    ws->jflag = ints + 2 * plan->n_total + plan->n_loss + 1;
+    ws->jlast = ws->jflag + plan->n_total;
 }
 
 /* Room for `need` elements in a growable array (realloc on the host), or SALTUS_E_CAPACITY
@@ -497,6 +508,113 @@ SALTUS_HD static int fw_fail(saltus_trial_ws *ws, int code, int pop, int neuron,
     return code;
 }
 
+/* A spike of neuron n of population p at time s (its segment already advanced there): log,
+ * spike jump, the fired-side check, arrivals for its targets (forward.ts `emit`); by_jump as in
+ * saltus_event. */
+SALTUS_NOINLINE SALTUS_HD static int fw_emit(saltus_ctx *c, int p, int n, saltus_real s, int step, int by_jump)
+{
+    const saltus_network *net = c->net;
+    const saltus_plan *plan = c->plan;
+    saltus_trial_ws *ws = c->ws;
+    const saltus_pop_plan *pp = &plan->pops[p];
+    const saltus_model *M = net->populations[p].model;
+    const saltus_real *par = net->populations[p].params;
+    const saltus_loss *loss = &net->loss;
+    saltus_real *x, *xPre, *y = c->t.v[V_Y2], after;
+    saltus_event *E;
+    int ev = (int)ws->n_events, S = pp->S, i, j, rc;
+    rc = reserve_events(ws, ws->n_events + 1);
+    if (!rc) rc = reserve_xbuf(ws, ws->n_xbuf + (size_t)S);
+    if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
+    x = ws->x + pp->x_off + (size_t)n * S;
+    xPre = ws->xbuf + ws->n_xbuf;
+    for (i = 0; i < S; i++) xPre[i] = x[i];
+    E = &ws->events[ws->n_events++];
+    E->kind = 1;
+    E->step = step;
+    E->time = s;
+    E->pop = p;
+    E->neuron = n;
+    E->first = !ws->fired[pp->n_off + n];
+    E->start = ws->start[pp->n_off + n];
+    E->projection = E->source = E->cause = -1;
+    E->by_jump = by_jump;
+    E->x_at = ws->n_xbuf;
+    E->s_at = (size_t)-1;
+    ws->n_xbuf += (size_t)S;
+    ws->fired[pp->n_off + n] = 1;
+    SALTUS_CALL(M, spike_jump, xPre, par, s, y);
+    for (i = 0; i < S; i++) x[i] = y[i];
+    ws->start[pp->n_off + n] = ev;
+    after = SALTUS_CALL(M, guard, x, par, ws->tau[pp->n_off + n]);
+    if (!isfinite(after) || saltus_fired_side(M->direction, after)) return fw_fail(ws, SALTUS_E_FIRED_SIDE, p, n, -1, s);
+    ws->jref[pp->n_off + n] = after;
+    if (p == c->lp && E->first && (loss->kind == SALTUS_LOSS_SPIKE_TIME || loss->kind == SALTUS_LOSS_CE_FIRST_SPIKE)) ws->loss_values[n] = s;
+    for (j = 0; j < net->n_projections; j++) {
+        if (net->projections[j].from != p) continue;
+        rc = queue_push(ws, s, j, n, ev);
+        if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
+    }
+    if (++ws->spike_count > plan->max_spikes) return fw_fail(ws, SALTUS_E_SPIKES, -1, -1, -1, s);
+    return SALTUS_OK;
+}
+
+/* A new instant at time s (spikes fired by jumps): every population untouched. */
+SALTUS_HD static void fw_open_instant(saltus_ctx *c, saltus_real s)
+{
+    saltus_trial_ws *ws = c->ws;
+    int p, n;
+    if (s == ws->inst) return;
+    ws->inst = s;
+    for (p = 0; p < c->net->n_populations; p++) {
+        const saltus_pop_plan *pp = &c->plan->pops[p];
+        ws->jlast[p] = -1;
+        if (!c->net->populations[p].model) continue;
+        for (n = 0; n < pp->n; n++) { ws->jref[pp->n_off + n] = SALTUS_R(NAN); ws->jflag[pp->n_off + n] = 0; }
+    }
+}
+
+/* Population p's guards at the start of the instant, when not taken yet. */
+SALTUS_HD static void fw_touch(saltus_ctx *c, int p)
+{
+    const saltus_pop_plan *pp = &c->plan->pops[p];
+    const saltus_model *M = c->net->populations[p].model;
+    saltus_trial_ws *ws = c->ws;
+    int n;
+    if (!M || !M->has_guard || pp->n == 0 || !isnan(ws->jref[pp->n_off])) return;
+    for (n = 0; n < pp->n; n++)
+        ws->jref[pp->n_off + n] = SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, c->net->populations[p].params, ws->tau[pp->n_off + n]);
+}
+
+/* Spikes fired by jumps at instant s while no arrival there is pending: the first neuron
+ * (populations in order, then by index) carried across since the start of the instant (or its
+ * own spike there), or on the fired side at t = 0, fires; then the test repeats. */
+SALTUS_HD static int fw_jump_fired(saltus_ctx *c, saltus_real s, int step)
+{
+    saltus_trial_ws *ws = c->ws;
+    int p, n, hitP, hitN, rc;
+    for (;;) {
+        if (ws->n_queue > 0 && ws->queue[0].time == s) return SALTUS_OK;
+        hitP = hitN = -1;
+        for (p = 0; p < c->net->n_populations && hitP < 0; p++) {
+            const saltus_pop_plan *pp = &c->plan->pops[p];
+            const saltus_model *M = c->net->populations[p].model;
+            if (!M || !M->has_guard) continue;
+            for (n = 0; n < pp->n; n++) {
+                int k = pp->n_off + n, flag = ws->jflag[k];
+                saltus_real g = SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, c->net->populations[p].params, ws->tau[k]);
+                if (((flag & 4) && !(flag & 2)) || saltus_jump_crossed(M->direction, ws->jref[k], g)) { hitP = p; hitN = n; break; }
+            }
+        }
+        if (hitP < 0) return SALTUS_OK;
+        n = c->plan->pops[hitP].n_off + hitN;
+        if (ws->jflag[n] & 2) return fw_fail(ws, SALTUS_E_JUMP_LOOP, hitP, hitN, -1, s);
+        ws->jflag[n] |= 2;
+        rc = fw_emit(c, hitP, hitN, s, step, ws->jlast[hitP]);
+        if (rc) return rc;
+    }
+}
+
 SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan *plan, int b, saltus_trial_ws *ws)
 {
     const saltus_trial *tr = &net->trials[b];
@@ -527,6 +645,18 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
             ws->fired[pp->n_off + n] = 0;
         }
     }
+    ws->inst = 0;
+    for (p = 0; p < net->n_populations; p++) {
+        const saltus_pop_plan *pp = &plan->pops[p];
+        const saltus_model *M = net->populations[p].model;
+        ws->jlast[p] = -1;
+        if (!M) continue;
+        for (n = 0; n < pp->n; n++) {
+            saltus_real g = M->has_guard ? SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, net->populations[p].params, 0) : SALTUS_R(NAN);
+            ws->jref[pp->n_off + n] = g;
+            ws->jflag[pp->n_off + n] = M->has_guard && saltus_fired_side(M->direction, g) ? 4 : 0;
+        }
+    }
     for (j = 0; j < net->n_projections; j++) {
         int from = net->projections[j].from;
         if (net->populations[from].model) continue;
@@ -550,6 +680,10 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
             if (p == lp && loss->kind == SALTUS_LOSS_CE_MAX && step == 0)
                 for (n = 0; n < pp->n; n++) ws->grid_values[n] = ws->x[pp->x_off + (size_t)n * pp->S + c.ls];
         }
+        if (step == 0) {
+            rc = fw_jump_fired(&c, 0, 0);
+            if (rc) return rc;
+        }
         for (;;) {
             saltus_real tArr = ws->n_queue > 0 && ws->queue[0].time < tEnd ? ws->queue[0].time : SALTUS_INF;
             saltus_real best = SALTUS_INF, s, e;
@@ -565,46 +699,9 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 }
             }
             if (bestPop >= 0 && best <= tArr) {
-                const saltus_pop_plan *pp = &plan->pops[bestPop];
-                const saltus_model *M = net->populations[bestPop].model;
-                const saltus_real *par = net->populations[bestPop].params;
-                saltus_real *x, *xPre, *y = c.t.v[V_Y2], after;
-                saltus_event *E;
-                int ev = (int)ws->n_events, S = pp->S;
-                n = bestN;
-                s = best;
-                fw_advance(&c, bestPop, n, s);
-                rc = reserve_events(ws, ws->n_events + 1);
-                if (!rc) rc = reserve_xbuf(ws, ws->n_xbuf + (size_t)S);
-                if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
-                x = ws->x + pp->x_off + (size_t)n * S;
-                xPre = ws->xbuf + ws->n_xbuf;
-                for (i = 0; i < S; i++) xPre[i] = x[i];
-                E = &ws->events[ws->n_events++];
-                E->kind = 1;
-                E->step = step;
-                E->time = s;
-                E->pop = bestPop;
-                E->neuron = n;
-                E->first = !ws->fired[pp->n_off + n];
-                E->start = ws->start[pp->n_off + n];
-                E->projection = E->source = E->cause = -1;
-                E->x_at = ws->n_xbuf;
-                E->s_at = (size_t)-1;
-                ws->n_xbuf += (size_t)S;
-                ws->fired[pp->n_off + n] = 1;
-                SALTUS_CALL(M, spike_jump, xPre, par, s, y);
-                for (i = 0; i < S; i++) x[i] = y[i];
-                ws->start[pp->n_off + n] = ev;
-                after = SALTUS_CALL(M, guard, x, par, ws->tau[pp->n_off + n]);
-                if (!isfinite(after) || saltus_fired_side(M->direction, after)) return fw_fail(ws, SALTUS_E_FIRED_SIDE, bestPop, n, -1, s);
-                if (bestPop == lp && E->first && first_spike) ws->loss_values[n] = s;
-                for (j = 0; j < net->n_projections; j++) {
-                    if (net->projections[j].from != bestPop) continue;
-                    rc = queue_push(ws, s, j, n, ev);
-                    if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
-                }
-                if (++ws->spike_count > plan->max_spikes) return fw_fail(ws, SALTUS_E_SPIKES, -1, -1, -1, s);
+                fw_advance(&c, bestPop, bestN, best);
+                rc = fw_emit(&c, bestPop, bestN, best, step, -2);
+                if (rc) return rc;
                 continue;
             }
             if (tArr == SALTUS_INF) break;
@@ -619,6 +716,9 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 saltus_event *E;
                 int ev = (int)ws->n_events, S = pp->S;
                 for (n = 0; n < pp->n; n++) fw_advance(&c, q, n, arr.time);
+                fw_open_instant(&c, arr.time);
+                fw_touch(&c, q);
+                ws->jlast[q] = ev;
                 rc = reserve_events(ws, ws->n_events + 1);
                 if (!rc) rc = reserve_xbuf(ws, ws->n_xbuf + (size_t)pp->n * S);
                 if (!rc && pp->needs_starts) rc = reserve_sbuf(ws, ws->n_sbuf + (size_t)pp->n);
@@ -632,6 +732,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 E->source = arr.source;
                 E->cause = arr.cause;
                 E->neuron = E->first = E->start = -1;
+                E->by_jump = -2;
                 E->x_at = ws->n_xbuf;
                 for (i = 0; i < pp->n * S; i++) ws->xbuf[ws->n_xbuf + (size_t)i] = ws->x[pp->x_off + (size_t)i];
                 ws->n_xbuf += (size_t)pp->n * S;
@@ -648,6 +749,8 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                     }
                     ws->start[pp->n_off + n] = ev;
                 }
+                rc = fw_jump_fired(&c, arr.time, step);
+                if (rc) return rc;
             }
         }
         for (p = 0; p < net->n_populations; p++) {
@@ -908,6 +1011,12 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
                     if (loss->kind == SALTUS_LOSS_CE_FIRST_SPIKE) ws->T[e] += ws->loss_coef[n];
                 }
                 D = ws->T[e] + bw_end_term(&c, E->pop, n, e, E->start, mu, rate);
+                if (E->by_jump != -2) {
+                    /* fired by a jump: its time is its arrival's; D goes there, no phi */
+                    if (E->by_jump >= 0) ws->T[E->by_jump] += D;
+                    for (i = 0; i < S; i++) lam[i] = mu[i];
+                    continue;
+                }
                 SALTUS_CALL(M, guard_grad, ws->xbuf + E->x_at, par, E->time, kb);
                 gdot = kb[S];
                 for (i = 0; i < S; i++) gdot += kb[i] * rate[i];
@@ -1052,6 +1161,10 @@ void saltus_trial_message(const saltus_network *net, const saltus_trial_ws *ws, 
     switch (ws->status) {
     case SALTUS_E_FIRED_SIDE:
         snprintf(buf, cap, "%s[%d] is on the fired side of its threshold right after its own spike at %.17g s: its spike jump must leave it below the threshold",
+                 pop, ws->err_neuron, (double)ws->err_time);
+        break;
+    case SALTUS_E_JUMP_LOOP:
+        snprintf(buf, cap, "%s[%d] is carried across its threshold a second time at %.17g s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped",
                  pop, ws->err_neuron, (double)ws->err_time);
         break;
     case SALTUS_E_SPIKES:

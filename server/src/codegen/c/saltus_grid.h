@@ -161,6 +161,8 @@ typedef struct {
     saltus_real time;
     size_t x_at;                /* the state just before (arrival: the whole population), in xbuf */
     size_t s_at;                /* arrival of a population that keeps starts: each neuron's segment start, in sbuf */
+    int by_jump;                /* spikes: -2 located on the flow; else fired by a jump (docs/language.md), at the
+                                   instant of this arrival event (-1: the initial state at t = 0) */
 } saltus_event;
 
 typedef struct {
@@ -176,7 +178,8 @@ enum {
     SALTUS_E_NOT_FINITE,        /* a state is not finite at a grid point */
     SALTUS_E_LOSS,              /* the trial's loss is not finite */
     SALTUS_E_CAPACITY,          /* a fixed-capacity workspace (CUDA) is full: enlarge and run again */
-    SALTUS_E_MEMORY             /* out of memory */
+    SALTUS_E_MEMORY,            /* out of memory */
+    SALTUS_E_JUMP_LOOP          /* a neuron carried across its threshold twice at one instant (a loop of spikes fired by jumps) */
 };
 
 typedef struct {
@@ -194,6 +197,10 @@ typedef struct {
     saltus_real *grid_values;                      /* (steps + 1) x n_loss (ce-max) */
     saltus_real *loss_values, *loss_coef, *grad;
     saltus_real *scratch;
+    /* spikes fired by jumps at the current instant `inst`: each neuron's guard at its start (NaN:
+       not touched), flags (2 fired there, 4 on the fired side at t = 0), each population's last arrival */
+    saltus_real *jref, inst;
+    int *jflag, *jlast;
     /* results */
     saltus_real loss, integral;
     long seq, spike_count;

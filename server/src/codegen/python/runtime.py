@@ -40,6 +40,18 @@ def _crossed(direction, g0, g1):
     return up | down
 
 
+def _jump_crossed(direction, g0, g1):
+    """A jump from guard value g0 to g1 fires the neuron (docs/language.md, "Spikes fired by jumps"):
+    up g0 <= 0 < g1, down g0 >= 0 > g1; a NaN g0 (not touched at this instant) never does."""
+    up = (g0 <= 0) & (g1 > 0)
+    down = (g0 >= 0) & (g1 < 0)
+    if direction == "up":
+        return up
+    if direction == "down":
+        return down
+    return up | down
+
+
 def _fired_side(direction, g):
     if direction == "up":
         return g > 0
@@ -94,6 +106,12 @@ class _Live:
         self.grid_values = None
         self.inbound = []
         self.outbound = []
+        # spikes fired by jumps at the current instant of each trial: the guard at its start
+        # (NaN: not touched), who fired there, who starts on the fired side (t = 0), the last arrival
+        self.jref = X.full((B, self.n), float("nan"))
+        self.jfired = X.zeros_bool((B, self.n))
+        self.jinit = X.zeros_bool((B, self.n))
+        self.jlast = X.full_int((B,), -1)
 
     # the step map in m sub-steps over [a, a + h], per element
     def apply(self, x, a, h):
@@ -310,6 +328,38 @@ def forward(net, dt, max_spikes=100000):
     records = run.records
     all_rows = X.arange(B)
 
+    # the current instant per trial (spikes fired by jumps), opened at t = 0 with the initial state
+    run.inst = X.full((B,), 0.0)
+    for L in firing:
+        L.jref = L.model.guard([X.copy(v) for v in L.x], L.pop.params, X.full((B, L.n), 0.0))[0] + X.zeros_like(L.jref)
+        L.jinit = _fired_side(L.model.DIRECTION, L.jref)
+    run.firing = firing
+
+    def emit(L, rows, n, s, step, by_jump=None):
+        """A spike of neurons n (per row) of L at time s (per row), already advanced there."""
+        x_pre = _take(L.x, rows, n)
+        first = ~L.fired[rows, n]
+        L.fired[rows, n] = True
+        r = len(records)
+        records.append(Record("spike", step, rows, s, L.index, neuron=n, x_pre=x_pre, first=first, start=L.start[rows, n],
+                              by_jump=by_jump))
+        _put(L.x, rows, L.model.spike_jump(x_pre, L.pop.params, s), n)
+        L.start[rows, n] = r
+        after = L.model.guard(_take(L.x, rows, n), L.pop.params, s)[0]
+        if bool(X.any(~X.isfinite(after) | _fired_side(L.model.DIRECTION, after))):
+            raise GridError("%s: a neuron is on the fired side of its threshold right after its own spike; its spike jump must leave it below the threshold" % L.pop.name)
+        if by_jump is not None:
+            L.jref[rows, n] = after
+        for b, t, i in zip(X.tolist(rows), X.tolist(s), X.tolist(n)):
+            run.spikes[b][L.pop.name].append((t, i))
+        if L.loss_pop and loss["kind"] in ("spike-time", "ce-first-spike"):
+            values[rows, n] = X.where(first, s, values[rows, n])
+        spike_count[rows] = spike_count[rows] + 1
+        if bool(X.any(spike_count > max_spikes)):
+            raise GridError("more than %d spikes in a trial: stopped (check the weights' units)" % max_spikes)
+        for j in L.outbound:
+            _deliver(run, lives, names, net, j, rows, n, s, r, step, advance)
+
     def advance(L, rows, cols, to):
         """Neurons (rows, cols) of L to time `to` (per row), integrating the loss on the way."""
         a = L.tau[rows, cols] if cols is not None else L.tau[rows]
@@ -367,9 +417,34 @@ def forward(net, dt, max_spikes=100000):
                 best = X.where(better, m, best)
                 best_pop = X.where(better, X.full_int((B,), L.index), best_pop)
                 best_n = X.where(better, idx, best_n)
-            spiking = active & (best <= tin) & X.isfinite(best)
-            arriving = active & ~spiking & X.isfinite(tin)
-            active = spiking | arriving
+            # spikes fired by jumps at the current instant, once no input arrives there any more:
+            # the first neuron (populations in order, then by index) carried across fires
+            jump_pop = X.full_int((B,), -1)
+            jump_n = X.full_int((B,), -1)
+            for L in firing:
+                cand = X.nonzero1(active & (tin != run.inst) & (jump_pop < 0))
+                if len(cand) == 0:
+                    break
+                g_now = L.model.guard(_take(L.x, cand), L.pop.params, run.inst[cand][:, None])[0]
+                due = (L.jinit[cand] & ~L.jfired[cand]) | _jump_crossed(L.model.DIRECTION, L.jref[cand], g_now)
+                order = X.where(due, X.zeros_like(g_now) + X.arange(L.n)[None, :], X.full(g_now.shape, float("inf")))
+                m, idx = X.min_last(order)
+                hit = X.isfinite(m)
+                jump_pop[cand[hit]] = L.index
+                jump_n[cand[hit]] = idx[hit]
+            jumping = active & (jump_pop >= 0)
+            spiking = active & ~jumping & (best <= tin) & X.isfinite(best)
+            arriving = active & ~jumping & ~spiking & X.isfinite(tin)
+            active = jumping | spiking | arriving
+            for L in firing:
+                rows = X.nonzero1(jumping & (jump_pop == L.index))
+                if len(rows) == 0:
+                    continue
+                n = jump_n[rows]
+                if bool(X.any(L.jfired[rows, n])):
+                    raise GridError("%s: a neuron is carried across its threshold a second time at one instant by spikes fired at that instant: a loop of spikes fired by jumps; stopped" % L.pop.name)
+                L.jfired[rows, n] = True
+                emit(L, rows, n, run.inst[rows], step, L.jlast[rows])
             for L in firing:
                 rows = X.nonzero1(spiking & (best_pop == L.index))
                 if len(rows) == 0:
@@ -377,25 +452,7 @@ def forward(net, dt, max_spikes=100000):
                 n = best_n[rows]
                 s = best[rows]
                 advance(L, rows, n, s)
-                x_pre = _take(L.x, rows, n)
-                first = ~L.fired[rows, n]
-                L.fired[rows, n] = True
-                r = len(records)
-                records.append(Record("spike", step, rows, s, L.index, neuron=n, x_pre=x_pre, first=first, start=L.start[rows, n]))
-                _put(L.x, rows, L.model.spike_jump(x_pre, L.pop.params, s), n)
-                L.start[rows, n] = r
-                after = L.model.guard(_take(L.x, rows, n), L.pop.params, s)[0]
-                if bool(X.any(~X.isfinite(after) | _fired_side(L.model.DIRECTION, after))):
-                    raise GridError("%s: a neuron is on the fired side of its threshold right after its own spike; its spike jump must leave it below the threshold" % L.pop.name)
-                for b, t, i in zip(X.tolist(rows), X.tolist(s), X.tolist(n)):
-                    run.spikes[b][L.pop.name].append((t, i))
-                if L.loss_pop and loss["kind"] in ("spike-time", "ce-first-spike"):
-                    values[rows, n] = X.where(first, s, values[rows, n])
-                spike_count[rows] = spike_count[rows] + 1
-                if bool(X.any(spike_count > max_spikes)):
-                    raise GridError("more than %d spikes in a trial: stopped (check the weights' units)" % max_spikes)
-                for j in L.outbound:
-                    _deliver(run, lives, names, net, j, rows, n, s, r, step, advance)
+                emit(L, rows, n, s, step)
             for L in lives:
                 tim, proj, src, ptr = pending[L.index]
                 rows = X.nonzero1(arriving & (tin == nxt[L.index]))
@@ -463,6 +520,22 @@ def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
     advance(L, rows, None, t)
     x_pre = _take(L.x, rows)
     r = len(run.records)
+    # a new instant for the trials whose last one was earlier: every firing population untouched
+    fresh = run.inst[rows] != t
+    if bool(X.any(fresh)):
+        rn = rows[fresh]
+        run.inst[rn] = t[fresh]
+        for M in run.firing:
+            M.jref[rn] = float("nan")
+            M.jfired[rn] = False
+            M.jinit[rn] = False
+            M.jlast[rn] = -1
+    if L.model.HAS_GUARD:
+        untouched = L.jref[rows][:, 0] != L.jref[rows][:, 0]
+        if bool(X.any(untouched)):
+            ru = rows[untouched]
+            L.jref[ru] = L.model.guard([v[untouched] for v in x_pre], L.pop.params, t[untouched][:, None])[0] + X.zeros_like(L.jref[ru])
+        L.jlast[rows] = r
     run.records.append(Record("arrival", step, rows, t, L.index, projection=j, source=src, cause=cause, x_pre=x_pre,
                               starts=X.copy(L.start[rows]) if L.needs_starts else None))
     w = X.transpose(pr["weights"][:, src])  # (rows, n): weight from each row's sender into every neuron
@@ -683,6 +756,12 @@ def backward(run, spike_time_grad=None):
                 event_times.append(("spike", e, X.copy(Tsens[e])))
                 et, rate = end_term(L, rows, n, rec.time, rec.x_pre, rec.start, step, mu, True)
                 D = Tsens[e] + et
+                if rec.by_jump is not None:
+                    # fired by a jump: its time is its arrival's; D goes there, no phi
+                    add_T(rec.by_jump, rows, D)
+                    _put(lam[L.index], rows, mu, n)
+                    e -= 1
+                    continue
                 gg = L.model.guard_grad(rec.x_pre, L.pop.params, rec.time)
                 gdot = gg[S]
                 for i in range(S):
