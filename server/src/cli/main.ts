@@ -10,7 +10,8 @@ import { UsageError, type CliIO, type Command } from './command';
 import { checkCommand } from './commands/check';
 import { lspCommand } from './commands/lsp';
 import { generateCommand } from './commands/generate';
-import { adjointCommand } from './commands/adjoint';
+import { ruleCommand } from './commands/rule';
+import { RULES } from '../rules/index';
 import { stepCommand } from './commands/step';
 import { crosscheckCommand } from './commands/crosscheck';
 import { migrateCommand } from './commands/migrate';
@@ -21,7 +22,7 @@ export const COMMANDS: readonly Command[] = [
   checkCommand,
   lspCommand,
   generateCommand,
-  adjointCommand,
+  ...RULES.map(ruleCommand), // one command per learning rule (adjoint, eligibility)
   stepCommand,
   crosscheckCommand,
   migrateCommand,
