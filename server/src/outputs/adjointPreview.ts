@@ -7,7 +7,6 @@ import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
 import { RULES } from '../rules/index';
 import { renderModelsBody, type PreviewModel } from './preview';
-export { adjointBadge, previewModel } from '../adjoint/preview';
 
 export interface AdjointPreview { title: string; subtitle: string; body: string; models: string[] }
 
