@@ -13,6 +13,7 @@ import { generateCommand } from './commands/generate';
 import { ruleCommand } from './commands/rule';
 import { RULES } from '../rules/index';
 import { stepCommand } from './commands/step';
+import { planCommand } from './commands/plan';
 import { crosscheckCommand } from './commands/crosscheck';
 import { migrateCommand } from './commands/migrate';
 import { SALTUS_VERSION } from '../base/version';
@@ -24,6 +25,7 @@ export const COMMANDS: readonly Command[] = [
   generateCommand,
   ...RULES.map(ruleCommand), // one command per learning rule (adjoint, eligibility)
   stepCommand,
+  planCommand,
   crosscheckCommand,
   migrateCommand,
 ];

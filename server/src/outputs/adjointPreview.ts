@@ -1,12 +1,13 @@
 // The derived-gradient preview of a file: one PreviewModel per well-formed neuron, with the
 // sections of every learning rule of the registry (rules/index.ts: the EventProp adjoint,
 // then e-prop's eligibility traces where the neuron has a surrogate), each equation as LaTeX
-// (typeset by outputs/preview.ts). Used by the VS Code webview (through the server's
+// (typeset by outputs/preview.ts), and the planner's table and plot (outputs/planPreview.ts). Used by the VS Code webview (through the server's
 // `saltus/adjointPreview` request) and by standalone HTML exports.
 import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
 import { RULES } from '../rules/index';
 import { renderModelsBody, type PreviewModel } from './preview';
+import { planHtml } from './planPreview';
 
 export interface AdjointPreview { title: string; subtitle: string; body: string; models: string[] }
 
@@ -24,7 +25,8 @@ function neuronPreview(a: Analysis, name: string): PreviewModel | undefined {
 export function adjointPreview(a: Analysis, fileLabel: string): AdjointPreview {
   const started = Date.now();
   const ds = derivations(a);
-  const body = renderModelsBody(ds.map((d) => neuronPreview(a, d.name)).filter((m): m is PreviewModel => m !== undefined));
+  const models = ds.map((d) => neuronPreview(a, d.name)).filter((m): m is PreviewModel => m !== undefined);
+  const body = renderModelsBody(models) + (models.length ? planHtml(a) : '');
   const skipped = a.model.neurons.filter((n) => !n.wellFormed).map((n) => n.name);
   const self = a.model.connections.filter((c) => c.implicit).map((c) => c.from);
   const subtitle = [fileLabel, `${ds.length} neuron${ds.length === 1 ? '' : 's'} derived in ${Date.now() - started} ms`,
