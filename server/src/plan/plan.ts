@@ -2,9 +2,10 @@
 // kept and the arithmetic per training step of the three ways to train it:
 // - BPTT with a surrogate: every state of every neuron and its spike at every step, kept for
 //   the backward pass:                       B T N (S + 1) values;
-// - e-prop: per synapse the eligibility components the weight's update can make non-zero, per
-//   neuron those of each trainable parameter, the current state and the gradient sums, all
-//   independent of T:                        B (Nsyn Sw + N P Sp + N S) + Nsyn + P values;
+// - e-prop: per synapse the eligibility components the weight's update can make non-zero and
+//   the trace filtered by the readout, per neuron those of each trainable parameter and its
+//   filtered trace, the current state and the gradient sums, all independent of T:
+//                                            B (Nsyn (Sw + 1) + N (Sp + P) + N S) + Nsyn + P values;
 // - EventProp: per spike the values the adjoint derivation says to record, the spike time and
 //   the neuron's index, plus the forward trajectories of the states it names (none for an
 //   event-based adjoint), and the current state: B (r T N (R + 2) + T N Q + N S) values.
@@ -86,11 +87,12 @@ export function planTraining(n: ResolvedNeuron, shape: PlanShape): TrainingPlan 
     const Sw = w ? w.update.filter((u) => !isZero(u)).length : 0;
     const ps = elig.quantities.filter((q) => q.kind === 'param');
     const Sp = ps.reduce((a, q) => a + q.update.filter((u) => !isZero(u)).length, 0);
-    const values = B * (syn * Sw + N * Sp + N * S) + (w ? syn : 0) + ps.length;
+    // + one readout-filtered trace per synapse and per neuron and parameter (ebar, docs/eprop.md)
+    const values = B * (syn * (Sw + (w ? 1 : 0)) + N * (Sp + ps.length) + N * S) + (w ? syn : 0) + ps.length;
     const perSynapse = w ? nodes(w.update) + size(w.trace) + 2 : 0;
     const perNeuron = ps.reduce((a, q) => a + nodes(q.update) + size(q.trace) + 2, 0) + size(elig.psi);
     methods.push({ method: 'eprop', values, bytes: values * bytes, ops: forward + B * T * (syn * perSynapse + N * perNeuron),
-      kept: `eligibility per synapse (${Sw} component${Sw === 1 ? '' : 's'}) and per neuron for ${ps.length} parameter${ps.length === 1 ? '' : 's'} (${Sp}), the current state, the gradient sums; independent of T`,
+      kept: `eligibility per synapse (${Sw} component${Sw === 1 ? '' : 's'} and the filtered trace) and per neuron for ${ps.length} parameter${ps.length === 1 ? '' : 's'} (${Sp}), the current state, the gradient sums; independent of T`,
       perStep: 0, fixed: values * bytes });
   } else notes.push(`e-prop: ${elig.notDerived}`);
 

@@ -13,6 +13,7 @@ import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
 import runtimeText from './runtime.py?raw';
 import numpyDialectText from './numpy_dialect.py?raw';
+import { epropFunctions } from './eprop';
 
 export interface GeneratedFile { name: string; content: string }
 
@@ -59,7 +60,9 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
   L.push(`WEIGHT = ${plan.weight ? `"${plan.weight.id}"` : 'None'}`);
   L.push('', '');
   for (const k of plan.kernels) L.push(...kernelFunction(plan, k), '', '');
-  L.push(`__all__ = ["NAME", "STATES", "PARAMS", "GRAD_PARAMS", "DEFAULT_PARAMS", "INITIAL", ${plan.kernels.map((k) => `"${k.name}"`).join(', ')}]`);
+  const eprop = epropFunctions(plan);
+  L.push(...eprop.lines);
+  L.push(`__all__ = ["NAME", "STATES", "PARAMS", "GRAD_PARAMS", "DEFAULT_PARAMS", "INITIAL", ${plan.kernels.map((k) => `"${k.name}"`).concat(eprop.names.map((n) => `"${n}"`)).join(', ')}]`);
   return { name, content: L.join('\n').trimEnd() + '\n' };
 }
 
@@ -121,6 +124,11 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '# saltus-hash: sha256:@@SALTUS_HASH@@ (of this file without this line). Saltus will not overwrite this file once it has been changed, unless forced.',
     '# Generated: do not edit.',
     '"""Usage: python3 run.py NET.json --dt 0.1ms [--format json|text]',
+    '       python3 run.py TASK.json --dt 0.1ms --rule eprop [--feedback exact|symmetric|random] [--epochs N --lr RATE]',
+    '',
+    'With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs": [trial][step][input],',
+    '"win": [neuron][input], "wout": [output][neuron], "kappa", "targets": [trial][step][output], "params"?}; prints the',
+    'e-prop gradient {"loss", "spikes", "weights", "readout", "params", "kept_bytes"}, or with --epochs {"losses": [...]}.',
     '',
     'Prints {"loss": L, "spikes": {POP: [[t, i], ...]}, "weights": [dL/dW per projection, weights[to][from]],',
     '"params": {"POP.NAME": dL/dp}} in SI units (docs/codegen.md, "Runner")."""',
@@ -143,18 +151,48 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '    fmt = "text"',
     '    dt = None',
     '    path = None',
+    '    rule = "eventprop"',
+    '    feedback = "exact"',
+    '    epochs = None',
+    '    lr = 0.0',
     '    while args:',
     '        a = args.pop(0)',
     '        if a in ("--dt", "--timestep"):',
     '            dt = parse_time(args.pop(0))',
     '        elif a == "--format":',
     '            fmt = args.pop(0)',
+    '        elif a == "--rule":',
+    '            rule = args.pop(0)',
+    '        elif a == "--feedback":',
+    '            feedback = args.pop(0)',
+    '        elif a == "--epochs":',
+    '            epochs = int(args.pop(0))',
+    '        elif a == "--lr":',
+    '            lr = float(args.pop(0))',
     '        elif path is None:',
     '            path = a',
     '        else:',
     '            raise SystemExit("run.py: unexpected argument %r" % a)',
     '    if path is None or dt is None:',
     '        raise SystemExit(__doc__)',
+    '    if rule not in ("eventprop", "eprop"):',
+    '        raise SystemExit("run.py: --rule must be eventprop or eprop; got %r" % rule)',
+    '    if rule == "eprop":',
+    '        with open(path, encoding="utf-8") as f:',
+    '            task = json.load(f)',
+    '        task["dt"] = dt',
+    '        if task.get("model") not in MODELS:',
+    '            raise SystemExit("run.py: the task names model %r; this folder has %s" % (task.get("model"), ", ".join(MODELS)))',
+    '        model = MODELS[task["model"]]',
+    '        try:',
+    '            if epochs is not None:',
+    '                out = {"losses": saltus_grid.eprop_train(model, task, epochs, lr, task.get("params"), feedback)}',
+    '            else:',
+    '                out = saltus_grid.eprop_layer(model, task, task.get("params"), feedback)',
+    '        except saltus_grid.GridError as e:',
+    '            raise SystemExit("run.py: %s" % e)',
+    '        print(json.dumps(out) if fmt == "json" else "\\n".join("%s %s" % kv for kv in out.items()))',
+    '        return 0',
     '    with open(path, encoding="utf-8") as f:',
     '        net = saltus_grid.load_network(json.load(f), MODELS)',
     '    try:',
