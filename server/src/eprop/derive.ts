@@ -1,6 +1,7 @@
 // The e-prop eligibility derivation of a neuron (docs/eprop.md), in discrete time on the grid
 // of generated code. One step, in this order:
-//   1. spike test   z = H(g(x)) on the state x at the start of the step;
+//   1. spike test   z = H(g(x)) on the state x at the start of the step (H(-g) for a `down` crossing;
+//                   psi is dz/dg as the surrogate line writes it);
 //   2. spike jump   x1 = J(x, z) = x + z (h(x) - x)        (h: the fire block's jumps);
 //   3. flow         x2 = F(x1, params, t, dt)             (the step map, step/map.ts);
 //   4. arrivals     x3 = A(x2, z_pre) = x2 + z_pre (r(x2, w) - x2)   (r: the incoming jumps).
@@ -64,6 +65,7 @@ const empty = (n: ResolvedNeuron, why: string): EligibilityDerivation => ({
 export function whyNoEligibility(n: ResolvedNeuron): string | undefined {
   if (!n.wellFormed) return `${n.name} has errors`;
   if (!n.fire) return `${n.name} has no fire block: it never spikes, so it has no pseudo-derivative and no eligibility trace`;
+  if (n.fire.direction === 'either') return `${n.name} fires on a crossing in either direction: e-prop's spike test z = H(g) needs 'up' or 'down'`;
   if (!n.surrogate) return `${n.name} has no 'surrogate' line: e-prop needs the pseudo-derivative of the spike (add 'surrogate' inside the neuron; a quick fix writes the triangular one)`;
   const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.incoming ? [n.incoming.weight] : []).filter(isEligibilitySymbolName);
   if (clash.length) return `${clash.map((c) => `'${c}'`).join(', ')} ${clash.length === 1 ? 'is' : 'are'} spelled like a symbol of the e-prop formulas (z, z_pre, psi, eps_X); rename to derive them`;

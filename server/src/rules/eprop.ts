@@ -27,7 +27,8 @@ surrogate or a fire block are listed with the reason.`,
   unavailable: whyNoEligibility,
   lens(n, cachedOnly) {
     if (whyNoEligibility(n)) return undefined;
-    const d = cachedOnly ? cachedEligibility(n) : eligibilityFor(n);
+    // a written-out exponential-RK4 map takes seconds: the lens derives exact maps only (the preview derives the rest)
+    const d = cachedEligibility(n) ?? (!cachedOnly && stepMapFor(n).exact ? eligibilityFor(n) : undefined);
     return d ? badge(d) : undefined;
   },
   hover(n, item) {

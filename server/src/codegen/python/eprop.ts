@@ -45,7 +45,7 @@ export function epropFunctions(plan: KernelPlan): { lines: string[]; names: stri
     `EPROP = (${d.quantities.map((q) => `("${qid(q)}", "${q.kind}")`).join(', ')}${d.quantities.length === 1 ? ',' : ''})`,
     `EPROP_DETACHING = (${d.detaching.map((x) => `"${stateIds.get(x)}"`).join(', ')}${d.detaching.length === 1 ? ',' : ''})`, '', '',
     ...fn('eprop_spike(x, p, t)', 'The spike z = H(g) on the state at the start of the step, and psi = dz/dg (the surrogate).',
-      `((${g} > 0) * 1.0, ${e(d.psi)} + 0.0 * (${g}))`),
+      `((${g} ${plan.neuron.fire?.direction === 'down' ? '<' : '>'} 0) * 1.0, ${e(d.psi)} + 0.0 * (${g}))`),
     ...fn('eprop_step(x, p, t, dt, z)', 'The state after the spike jump (where z = 1) and the flow over dt.', tuple(d.step)),
     ...(d.arrivals ? fn('eprop_arrive(x, p, weight)', 'The state after one arrival.', tuple(d.arrivals.next)) : []),
   ];
