@@ -7,13 +7,13 @@
 // model text reaches comments and strings only through escape.ts.
 import type { Sym } from '../../symbolic/sym';
 import { toPlain, toPython } from '../../symbolic/print';
+import { epropFunctions } from './eprop';
 import { oneLine, pyComment, pyStringBody } from '../escape';
 import { type KernelPlan, headerLines } from '../kernelPlan';
 import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
 import runtimeText from './runtime.py?raw';
 import numpyDialectText from './numpy_dialect.py?raw';
-import { epropFunctions } from './eprop';
 
 export interface GeneratedFile { name: string; content: string }
 
@@ -124,11 +124,6 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '# saltus-hash: sha256:@@SALTUS_HASH@@ (of this file without this line). Saltus will not overwrite this file once it has been changed, unless forced.',
     '# Generated: do not edit.',
     '"""Usage: python3 run.py NET.json --dt 0.1ms [--format json|text]',
-    '       python3 run.py TASK.json --dt 0.1ms --rule eprop [--feedback exact|symmetric|random] [--epochs N --lr RATE]',
-    '',
-    'With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs": [trial][step][input],',
-    '"win": [neuron][input], "wout": [output][neuron], "kappa", "targets": [trial][step][output], "params"?}; prints the',
-    'e-prop gradient {"loss", "spikes", "weights", "readout", "params", "kept_bytes"}, or with --epochs {"losses": [...]}.',
     '',
     'Prints {"loss": L, "spikes": {POP: [[t, i], ...]}, "weights": [dL/dW per projection, weights[to][from]],',
     '"params": {"POP.NAME": dL/dp}} in SI units (docs/codegen.md, "Runner")."""',
@@ -147,52 +142,24 @@ export function runnerFile(models: readonly KernelPlan[]): GeneratedFile {
     '        raise SystemExit("run.py: --dt must be positive; got %r" % text)',
     '    return value', '', '',
     'def main(argv):',
+    '    if "--rule" in argv:  # --rule eventprop (this runner, the default) or eprop (docs/eprop.md)',
+    '        return saltus_grid.rule_main(argv, MODELS, parse_time, main)',
     '    args = list(argv)',
     '    fmt = "text"',
     '    dt = None',
     '    path = None',
-    '    rule = "eventprop"',
-    '    feedback = "exact"',
-    '    epochs = None',
-    '    lr = 0.0',
     '    while args:',
     '        a = args.pop(0)',
     '        if a in ("--dt", "--timestep"):',
     '            dt = parse_time(args.pop(0))',
     '        elif a == "--format":',
     '            fmt = args.pop(0)',
-    '        elif a == "--rule":',
-    '            rule = args.pop(0)',
-    '        elif a == "--feedback":',
-    '            feedback = args.pop(0)',
-    '        elif a == "--epochs":',
-    '            epochs = int(args.pop(0))',
-    '        elif a == "--lr":',
-    '            lr = float(args.pop(0))',
     '        elif path is None:',
     '            path = a',
     '        else:',
     '            raise SystemExit("run.py: unexpected argument %r" % a)',
     '    if path is None or dt is None:',
     '        raise SystemExit(__doc__)',
-    '    if rule not in ("eventprop", "eprop"):',
-    '        raise SystemExit("run.py: --rule must be eventprop or eprop; got %r" % rule)',
-    '    if rule == "eprop":',
-    '        with open(path, encoding="utf-8") as f:',
-    '            task = json.load(f)',
-    '        task["dt"] = dt',
-    '        if task.get("model") not in MODELS:',
-    '            raise SystemExit("run.py: the task names model %r; this folder has %s" % (task.get("model"), ", ".join(MODELS)))',
-    '        model = MODELS[task["model"]]',
-    '        try:',
-    '            if epochs is not None:',
-    '                out = {"losses": saltus_grid.eprop_train(model, task, epochs, lr, task.get("params"), feedback)}',
-    '            else:',
-    '                out = saltus_grid.eprop_layer(model, task, task.get("params"), feedback)',
-    '        except saltus_grid.GridError as e:',
-    '            raise SystemExit("run.py: %s" % e)',
-    '        print(json.dumps(out) if fmt == "json" else "\\n".join("%s %s" % kv for kv in out.items()))',
-    '        return 0',
     '    with open(path, encoding="utf-8") as f:',
     '        net = saltus_grid.load_network(json.load(f), MODELS)',
     '    try:',

@@ -853,3 +853,64 @@ def eprop_train(model, task, epochs, lr, params=None, feedback="exact", seed=0):
         task["win"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["win"], g["weights"])]
         task["wout"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["wout"], g["readout"])]
     return losses
+
+
+RULE_USAGE = """Usage: python3 run.py TASK.json --dt 1ms --rule eprop [--feedback exact|symmetric|random]
+                     [--epochs N --lr RATE] [--format json|text]
+
+With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs":
+[trial][step][input], "win": [neuron][input], "wout": [output][neuron], "kappa", "targets":
+[trial][step][output], "params"?}. Prints the e-prop gradient {"loss", "spikes", "weights",
+"readout", "params", "kept_bytes"}, or with --epochs the loss of each epoch {"losses": [...]}.
+--rule eventprop (the default) runs the network description as without --rule."""
+
+
+def rule_main(argv, models, parse_time, default_main):
+    """run.py's --rule: eventprop hands the other arguments to the runner, eprop runs a layer task."""
+    args = list(argv)
+    k = args.index("--rule")
+    if k + 1 >= len(args):
+        raise SystemExit(RULE_USAGE)
+    rule = args[k + 1]
+    del args[k:k + 2]
+    if rule == "eventprop":
+        return default_main(args)
+    if rule != "eprop":
+        raise SystemExit("run.py: --rule must be eventprop or eprop; got %r" % rule)
+    import json
+    fmt, dt, path, feedback, epochs, lr = "text", None, None, "exact", None, 0.0
+    while args:
+        a = args.pop(0)
+        if not args and a.startswith("--"):
+            raise SystemExit(RULE_USAGE)
+        if a in ("--dt", "--timestep"):
+            dt = parse_time(args.pop(0))
+        elif a == "--format":
+            fmt = args.pop(0)
+        elif a == "--feedback":
+            feedback = args.pop(0)
+        elif a == "--epochs":
+            epochs = int(args.pop(0))
+        elif a == "--lr":
+            lr = float(args.pop(0))
+        elif path is None:
+            path = a
+        else:
+            raise SystemExit("run.py: unexpected argument %r" % a)
+    if path is None or dt is None:
+        raise SystemExit(RULE_USAGE)
+    with open(path, encoding="utf-8") as f:
+        task = json.load(f)
+    task["dt"] = dt
+    if task.get("model") not in models:
+        raise SystemExit("run.py: the task names model %r; this folder has %s" % (task.get("model"), ", ".join(models)))
+    model = models[task["model"]]
+    try:
+        if epochs is not None:
+            out = {"losses": eprop_train(model, task, epochs, lr, task.get("params"), feedback)}
+        else:
+            out = eprop_layer(model, task, task.get("params"), feedback)
+    except GridError as e:
+        raise SystemExit("run.py: %s" % e)
+    print(json.dumps(out) if fmt == "json" else "\n".join("%s %s" % kv for kv in out.items()))
+    return 0
