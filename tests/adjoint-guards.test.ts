@@ -11,7 +11,7 @@ import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse, derivedDiagnostics } from '../server/src/pipeline';
 import { adjointDiagnostics, adjointHoverMarkdown, deriveNeuron } from '../server/src/adjoint';
-import { adjointBadge, previewModel } from '../server/src/outputs/adjointPreview';
+import { adjointBadge, previewModel } from '../server/src/adjoint/preview';
 import { generateFiles } from '../server/src/codegen';
 import { sampleText } from './helpers/models';
 import { runCli } from './helpers/cli';

@@ -2,6 +2,7 @@
 // - base/ imports nothing of ours above it;
 // - no stage below the faces (everything but outputs/, cli/, lsp/) imports outputs/, cli/ or lsp/;
 // - outputs/ imports neither cli/ nor lsp/;
+// - the faces (outputs/, cli/, lsp/) reach learning rules only through rules/ (the registry);
 // - only lsp/ imports vscode-languageserver, nothing imports vscode;
 // - no import circle between files (type-only imports count: a circle is a circle).
 import { describe, expect, it } from 'vitest';
@@ -58,6 +59,14 @@ describe('architecture: layers and import graph of server/src', () => {
     expect(bad.map((e) => `${relative(SRC, e.from)} -> ${e.spec}`)).toEqual([]);
   });
 
+  it('the faces reach learning rules only through the registry (rules/), never a rule\'s stage (adjoint/, eprop/)', () => {
+    const bad = g.edges.filter((e) => FACES.includes(top(e.from)) && ['adjoint', 'eprop'].includes(top(e.to)));
+    expect(bad.map((e) => `${relative(SRC, e.from)} -> ${e.spec}`)).toEqual([]);
+  });
+  it('negative control: the rule check sees a face importing a rule stage', () => {
+    const made: Edge = { from: join(SRC, 'outputs', 'x.ts'), to: join(SRC, 'eprop', 'index.ts'), spec: '../eprop/index' };
+    expect([made].filter((e) => FACES.includes(top(e.from)) && ['adjoint', 'eprop'].includes(top(e.to)))).toHaveLength(1);
+  });
   it('only lsp/ and the server entry import vscode-languageserver; nothing imports vscode', () => {
     const bad: string[] = [];
     for (const [f, specs] of g.packages) {

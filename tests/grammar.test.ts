@@ -25,7 +25,7 @@ const SAMPLES = join(ROOT, 'samples');
 
 /** Reserved words, in the order of docs/language.md "Lexical rules". */
 const KEYWORDS = ['neuron', 'param', 'state', 'let', 'fire', 'when', 'crosses', 'up', 'down', 'either',
-  'incoming', 'connect', 'timestep', 'trainable', 't'];
+  'incoming', 'connect', 'timestep', 'trainable', 'surrogate', 'detaching', 't'];
 /** Built-in functions, docs/language.md "Expressions". */
 const FUNCTIONS = ['exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'abs', 'min', 'max', 'pow'];
 /** The scope each reserved word gets when it stands alone. */
@@ -36,6 +36,7 @@ const KEYWORD_SCOPE: Record<string, string> = {
   down: 'keyword.other.direction.down.saltus', either: 'keyword.other.direction.either.saltus',
   incoming: 'keyword.control.incoming.saltus', connect: 'keyword.other.connect.saltus',
   timestep: 'keyword.other.timestep.saltus', trainable: 'storage.modifier.trainable.saltus',
+  surrogate: 'keyword.control.surrogate.saltus', detaching: 'keyword.control.detaching.saltus',
   t: 'variable.language.time.saltus',
 };
 

@@ -114,7 +114,6 @@ describe('constructs of the next language version: not in the language (yet)', (
     ['  refractory 2 [ms]', 'refractory'],
     ['  quiet for t_ref { dV/dt = 0 }', 'quiet'],
     ['  quiet for t_ref {\n    dV/dt = 0\n  }', 'quiet'],
-    ['  surrogate 0.3 / theta * max(0, 1 - abs(V - theta) / theta) detaching V', 'surrogate'],
   ] as const) {
     it(`${line.trim().split('\n')[0]}`, () => {
       const ds = analyse(body(line)).diagnostics;

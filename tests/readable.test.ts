@@ -10,7 +10,7 @@ import type { NeuronDerivation } from '../server/src/adjoint';
 import { evaluate, freeSymbols, normalise, type Sym } from '../server/src/symbolic';
 import { toMathjs } from '../server/src/symbolic/print';
 import { readable, readableText } from '../server/src/symbolic/readable';
-import { previewModel } from '../server/src/outputs/adjointPreview';
+import { previewModel } from '../server/src/adjoint/preview';
 import { fromMathjs } from './helpers/parseMathjs';
 import { modelNeuron, neuronsOf, sampleNeuron, sampleText } from './helpers/models';
 

@@ -41,6 +41,7 @@ export const DiagnosticCodes = [
   'reset-on-threshold',
   'quoted-docstring',
   'stray-note',
+  'surrogate-without-fire',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

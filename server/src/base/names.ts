@@ -41,3 +41,18 @@ export function isDerivedSymbolName(name: string): boolean {
 export function derivedSymbolNames(states: readonly string[]): string[] {
   return [...states.map(lambdaName), ...states.map(lossPartialName), PHI, COUPLING, DLP_DT, LV_PRE, LV_POST, TIME];
 }
+
+// e-prop (docs/eprop.md "Symbols"). Not reserved: a model that declares one of them gets no
+// e-prop derivation and a sentence asking to rename it (rules/eprop), so v0 files stay valid.
+/** This neuron's spike in the step (0 or 1): z = H(g) on the state at the start of the step. */
+export const SPIKE = 'z';
+/** Whether a presynaptic spike arrived in the step (0 or 1). */
+export const ARRIVAL = 'z_pre';
+/** The pseudo-derivative dz/dg (the neuron's `surrogate`), at the state at the start of the step. */
+export const PSEUDO = 'psi';
+/** eps_X: the eligibility component of state X (dX/dq for a trained quantity q). */
+export const eligibilityName = (state: string): string => `eps_${state}`;
+/** Whether a declared name collides with a symbol of the e-prop formulas. */
+export function isEligibilitySymbolName(name: string): boolean {
+  return [SPIKE, ARRIVAL, PSEUDO].includes(name) || name.startsWith('eps_');
+}

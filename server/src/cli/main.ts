@@ -10,8 +10,10 @@ import { UsageError, type CliIO, type Command } from './command';
 import { checkCommand } from './commands/check';
 import { lspCommand } from './commands/lsp';
 import { generateCommand } from './commands/generate';
-import { adjointCommand } from './commands/adjoint';
+import { ruleCommand } from './commands/rule';
+import { RULES } from '../rules/index';
 import { stepCommand } from './commands/step';
+import { planCommand } from './commands/plan';
 import { crosscheckCommand } from './commands/crosscheck';
 import { migrateCommand } from './commands/migrate';
 import { SALTUS_VERSION } from '../base/version';
@@ -21,8 +23,9 @@ export const COMMANDS: readonly Command[] = [
   checkCommand,
   lspCommand,
   generateCommand,
-  adjointCommand,
+  ...RULES.map(ruleCommand), // one command per learning rule (adjoint, eligibility)
   stepCommand,
+  planCommand,
   crosscheckCommand,
   migrateCommand,
 ];

@@ -6,8 +6,8 @@
 // modeller picked. Guarded like every other handler (features.ts). Code lenses derive
 // uncached neurons only within CODELENS_BUDGET_MS.
 import type { CodeLens, Connection, ProgressToken, WorkDoneProgressReporter } from 'vscode-languageserver';
-import { adjointBadge, adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
-import { cachedDerivation, derivationFor } from '../adjoint/index';
+import { adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
+import { RULES } from '../rules/index';
 import { makeGuard, type DocumentState } from './documentState';
 import { toRange } from './convert';
 import { generateFiles, writeGenerated, type Target, type WriteResult } from '../codegen/index';
@@ -55,13 +55,18 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
     // Derived results already cached cost nothing; new ones are derived within a budget so that
     // a file with thousands of neurons does not hold the server (the rest say so; the preview derives them).
     const started = performance.now();
+    // One lens per rule of the registry that applies (the first, EventProp, on every neuron); each opens the preview.
     return a.model.neurons.map((n): CodeLens[] => {
-      const d = n.wellFormed ? cachedDerivation(n) ?? (performance.now() - started < CODELENS_BUDGET_MS ? derivationFor(n) : undefined) : undefined;
-      const title = !n.wellFormed ? 'adjoint: fix the errors first' : d ? adjointBadge(d) : 'adjoint: not derived yet (open the preview)';
       const range = toRange(a, n.symbol.nameRange);
       const client = state.client();
-      return [{ range, command: { title, command: lensCommand('showAdjoint', client), arguments: [uri, n.name] } },
-        ...(n.wellFormed ? [{ range, command: { title: 'generate code…', command: lensCommand('generateCode', client), arguments: [uri, n.name] } }] : [])];
+      const show = (title: string): CodeLens => ({ range, command: { title, command: lensCommand('showAdjoint', client), arguments: [uri, n.name] } });
+      if (!n.wellFormed) return [show('adjoint: fix the errors first')];
+      const rules = RULES.map((r, i) => {
+        if (i > 0 && r.unavailable(n)) return undefined;
+        const title = r.lens(n, true) ?? (performance.now() - started < CODELENS_BUDGET_MS ? r.lens(n, false) : undefined);
+        return show(title ?? `${r.label.split(' (')[0]}: not derived yet (open the preview)`);
+      }).filter((l): l is CodeLens => l !== undefined);
+      return [...rules, { range, command: { title: 'generate code…', command: lensCommand('generateCode', client), arguments: [uri, n.name] } }];
     }).flat();
   }));
   // The cross-check runs asynchronously (it yields between simulations). Progress is the

@@ -15,7 +15,7 @@
 import { dirname, join, sep } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import { MessageType, type Connection, type MessageActionItem } from 'vscode-languageserver';
-import { derivationFor, renderText } from '../adjoint/index';
+import { RULES } from '../rules/index';
 import { CODE_TARGETS } from '../codegen/targets/index';
 import { generateInto, type GenerateReply } from './derivedFeatures';
 import type { DocumentState } from './documentState';
@@ -38,7 +38,9 @@ export function registerCommands(connection: Connection, state: DocumentState): 
     if (!c) { tell(MessageType.Warning, `Saltus: ${uri} is not open in the editor.`); return null; }
     const models = c.analysis.model.neurons.filter((n) => neuron === undefined || n.name === neuron);
     if (models.length === 0) { tell(MessageType.Warning, `Saltus: no neuron ${neuron ?? ''} in this file.`); return null; }
-    const texts = models.map((n) => (n.wellFormed ? renderText(derivationFor(n)) : `${n.name}: fix the errors first; the adjoint is derived from a model without errors.`));
+    // every rule of the registry that applies to the neuron (EventProp always, e-prop with a surrogate)
+    const texts = models.map((n) => (n.wellFormed ? RULES.filter((r) => !r.unavailable(n)).map((r) => r.render([n], 'text', {})).join('\n\n')
+      : `${n.name}: fix the errors first; the adjoint is derived from a model without errors.`));
     const result = { title: `Derived adjoint of ${models.map((n) => n.name).join(', ')}`, text: texts.join('\n\n') };
     tell(MessageType.Info, result.text);
     return result;

@@ -19,5 +19,6 @@ export function modelHash(n: ResolvedNeuron): string {
     parts.push('I', n.incoming.weight);
     for (const [x, r] of n.incoming.jumps) parts.push(`${x}:=${key(r)}`);
   }
+  if (n.surrogate) parts.push('Z', key(n.surrogate.psi), ...n.surrogate.detaching);
   return contentHash(parts.join('\u0001'));
 }

@@ -18,7 +18,8 @@ import { suggestions, unknownName } from './suggest';
 import { constantProblem, constantUses } from './constants';
 import { formatNumber } from '../units/format';
 import { repairUnits } from './unitRepair';
-import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SymbolInfo } from './types';
+import { resolveSurrogate } from './surrogate';
+import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SurrogateInfo, SymbolInfo } from './types';
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
 export function isReservedName(name: string): boolean {
@@ -170,7 +171,9 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   let fire: FireInfo | undefined;
   let incoming: IncomingInfo | undefined;
   let fireSeen: A.FireBlock | undefined, incomingSeen: A.IncomingBlock | undefined;
+  const surrogates: A.SurrogateDecl[] = [];
   for (const m of decl.members) {
+    if (m.kind === 'surrogate') { surrogates.push(m); continue; }
     if (m.kind === 'flow') {
       const target = stateTarget(m.target, table, nName, ctx, 'an equation dX/dt');
       if (target && flowDecls.has(target.name)) {
@@ -203,6 +206,13 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       incoming = resolveIncoming(m, table, nName, ctx, symbols, scopeFor);
     }
   }
+  // After the fire block, wherever it stands: the surrogate's dimension is one over the guard's.
+  let surrogate: SurrogateInfo | undefined;
+  surrogates.forEach((m, i) => {
+    const r = resolveSurrogate({ decl: m, ...(i > 0 ? { first: surrogates[0]! } : {}), fire, fireDecl: fireSeen, scope: flowScope,
+      table, params, states, neuron: nName }, ctx);
+    if (i === 0 && r) surrogate = r;
+  });
   for (const s of states) {
     if (!flowDecls.has(s.name)) ctx.diagnostics.push({ severity: 'info', code: 'state-without-flow', range: s.nameRange,
       message: `'${s.name}' has no d${s.name}/dt equation: it stays constant between events` });
@@ -225,7 +235,7 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
-    ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), wellFormed };
+    ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), ...(surrogate ? { surrogate } : {}), wellFormed };
 }
 
 /** 'too-complex' errors for resolved expressions that later stages could not walk in bounded time and stack. */

@@ -67,6 +67,14 @@ export interface IncomingInfo {
   decl: A.IncomingBlock;
 }
 
+/** `surrogate EXPR (detaching X, Y)?` (e-prop): psi = dz/dg, SI, lets inlined. */
+export interface SurrogateInfo {
+  psi: Sym;
+  /** States whose spike jump is treated as independent of the spike (stop-gradient), in the order written. */
+  detaching: string[];
+  decl: A.SurrogateDecl;
+}
+
 export interface ResolvedNeuron {
   name: string;
   doc?: string;
@@ -81,6 +89,7 @@ export interface ResolvedNeuron {
   flowDecls: Map<string, A.FlowEq>;
   fire?: FireInfo;
   incoming?: IncomingInfo;
+  surrogate?: SurrogateInfo;
   wellFormed: boolean;
 }
 

@@ -1,86 +1,37 @@
-// The derived-adjoint preview of a file: one PreviewModel per well-formed neuron, each
-// equation as LaTeX (typeset by outputs/preview.ts). Used by the VS Code webview (through
-// the server's `saltus/adjointPreview` request) and by standalone HTML exports.
-import type { NeuronDerivation } from '../adjoint/index';
-import type { Sym } from '../symbolic/sym';
-import { latexName, toLatex } from '../symbolic/latex'; // not symbolic/index: that also loads mathjs's parser, a slow start-up
-import { readable } from '../symbolic/readable';
+// The derived-gradient preview of a file: one PreviewModel per well-formed neuron, with the
+// sections of every learning rule of the registry (rules/index.ts: the EventProp adjoint,
+// then e-prop's eligibility traces where the neuron has a surrogate), each equation as LaTeX
+// (typeset by outputs/preview.ts), and the planner's table and plot (outputs/planPreview.ts). Used by the VS Code webview (through the server's
+// `saltus/adjointPreview` request) and by standalone HTML exports.
 import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
-import { renderModelsBody, type PreviewModel, type PreviewRow } from './preview';
-
-const isZero = (s: Sym | null): boolean => s === null || (s.k === 'num' && s.v === 0);
-/** The derivation's own symbols in the usual notation: l_V just after / before the event, the spike-time loss term. */
-const DERIVED_NAMES: Record<string, string> = {
-  lV_post: 'l_V^{+}', lV_pre: 'l_V^{-}', dlp_dt: '\\frac{\\partial l_p}{\\partial t_k}', coupling: '\\mathrm{coupling}',
-};
-const L = (s: Sym): string => toLatex(readable(s), (n) => DERIVED_NAMES[n]);
-const lam = (x: string): string => `\\lambda_{${latexName(x)}}`;
-
-export function adjointBadge(d: NeuronDerivation): string {
-  if (!d.wellFormed) return d.notDerived ? `adjoint: not derived (${d.notDerived})` : 'not derived';
-  return d.trajectory.eventBased ? 'adjoint: event-based' : `adjoint: needs trajectory of ${d.trajectory.adjointStates.concat(d.trajectory.gradientStates).filter((x, i, all) => all.indexOf(x) === i).join(', ')}`;
-}
-
-export function previewModel(d: NeuronDerivation, doc?: string): PreviewModel {
-  const sections: PreviewModel['sections'] = [];
-  if (!d.wellFormed) return { name: d.name, badge: adjointBadge(d), ...(doc ? { doc } : {}), sections, notes: [...d.notes] };
-  sections.push({
-    title: 'Adjoint flow (integrated backwards in time from λ(T) = 0)',
-    rows: [...d.adjointFlow].map(([x, e]) => ({ label: `λ_${x}`, latex: `\\frac{d${lam(x)}}{dt} = ${L(e)}` })),
-  });
-  if (d.spike) {
-    const s = d.spike;
-    const rows: PreviewRow[] = [
-      { label: 'guard slope', latex: `\\dot g = ${L(s.gdot)}` },
-      { label: 'φ', latex: `\\phi = ${L(s.phi)}`, note: 'coupling: the sum over outgoing synapses of each target’s coupling term' },
-      ...[...s.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
-    ];
-    const grazing = d.issues.filter((i) => i.code === 'grazing-crossing').map((i) => ` Grazing set: ${i.message}.`).join('');
-    sections.push({ title: `At a spike (${s.direction} crossing)`, note: `λ just after the event, states just before. Record at each spike: ${s.record.length ? s.record.join(', ') : 'the spike time only'}.${grazing}`, rows });
-    sections.push({
-      title: 'At a spike fired by a jump (its time is the arrival’s)',
-      note: 'no φ of its own; the numerator is added to the coupling of the spike that caused the arrival (dropped for an input spike or the initial state)',
-      rows: [
-        { label: 'numerator', latex: `N = ${L(s.imposed.numerator)}` },
-        ...[...s.imposed.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
-      ],
-    });
-  }
-  if (d.incoming) {
-    const i = d.incoming;
-    sections.push({
-      title: `At a received spike (weight ${i.weight})`,
-      note: `λ just after the arrival, states just before. Record at each received spike: ${i.record.length ? i.record.join(', ') : 'the arrival time only'}.`,
-      rows: [
-        ...[...i.jump].map(([x, e]) => ({ label: `λ_${x} before`, latex: `${lam(x)}^{-} = ${L(e)}` })),
-        { label: 'weight gradient', latex: `\\Delta\\frac{\\partial L}{\\partial ${latexName(i.weight)}} = ${L(i.weightGradient)}` },
-        { label: 'coupling term', latex: `c = ${L(i.coupling)}`, note: 'added to the sender’s φ numerator, with this neuron’s states and adjoints' },
-      ],
-    });
-  }
-  const grads = [...d.paramGradients].map(([p, g]) => {
-    const parts = [!isZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', !isZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
-      !isZero(g.incoming) ? `\\sum_{\\text{received}} ${L(g.incoming!)}` : ''].filter((x) => x);
-    return { label: p, latex: `\\frac{\\partial L}{\\partial ${latexName(p)}} = ${parts.length ? parts.join(' + ') : '0'}` };
-  });
-  if (grads.length) sections.push({ title: 'Gradients of trainable parameters', rows: grads });
-  const notes = [...d.notes];
-  return { name: d.name, badge: adjointBadge(d), ...(doc ? { doc } : {}), sections, notes };
-}
+import { RULES } from '../rules/index';
+import { renderModelsBody, type PreviewModel } from './preview';
+import { planHtml } from './planPreview';
 
 export interface AdjointPreview { title: string; subtitle: string; body: string; models: string[] }
+
+/** One neuron's preview: the first rule's badge and sections, then every other rule that applies. */
+function neuronPreview(a: Analysis, name: string): PreviewModel | undefined {
+  const n = a.model.neurons.find((x) => x.name === name && x.wellFormed);
+  if (!n) return undefined;
+  const parts = RULES.filter((r) => !r.unavailable(n)).map((r) => r.preview(n));
+  const [first, ...rest] = parts;
+  if (!first) return undefined;
+  return { name: n.name, badge: [first.badge, ...rest.map((p) => p.badge)].filter((b) => b).join(' · '), ...(n.doc ? { doc: n.doc } : {}),
+    sections: parts.flatMap((p) => p.sections), notes: parts.flatMap((p) => p.notes) };
+}
 
 export function adjointPreview(a: Analysis, fileLabel: string): AdjointPreview {
   const started = Date.now();
   const ds = derivations(a);
-  const docs = new Map(a.model.neurons.map((n) => [n.name, n.doc] as const));
-  const body = renderModelsBody(ds.map((d) => previewModel(d, docs.get(d.name))));
+  const models = ds.map((d) => neuronPreview(a, d.name)).filter((m): m is PreviewModel => m !== undefined);
+  const body = renderModelsBody(models) + (models.length ? planHtml(a) : '');
   const skipped = a.model.neurons.filter((n) => !n.wellFormed).map((n) => n.name);
   const self = a.model.connections.filter((c) => c.implicit).map((c) => c.from);
   const subtitle = [fileLabel, `${ds.length} neuron${ds.length === 1 ? '' : 's'} derived in ${Date.now() - started} ms`,
     skipped.length ? `not derived (errors): ${skipped.join(', ')}` : '',
     self.length ? `no connect declared: ${self.join(', ')} project${self.length === 1 ? 's' : ''} onto ${self.length === 1 ? 'itself' : 'themselves'}` : '']
     .filter((x) => x).join(' · ');
-  return { title: 'Derived adjoint (EventProp)', subtitle, body, models: ds.map((d) => d.name) };
+  return { title: `Derived gradients (${RULES.map((r) => r.label.split(' (')[0]).join(', ')})`, subtitle, body, models: ds.map((d) => d.name) };
 }

@@ -37,10 +37,10 @@ export const MODELLER_UNITS = [
   'uF/cm^2', 'mS/cm^2', 'uA/cm^2', 'um', 'cm',
 ] as const;
 
-const MEMBER_KEYWORDS = ['param', 'state', 'let', 'fire', 'incoming'] as const;
+const MEMBER_KEYWORDS = ['param', 'state', 'let', 'fire', 'incoming', 'surrogate'] as const;
 const TOP_KEYWORDS = ['neuron', 'connect', 'timestep'] as const;
-const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Derivative']);
-const EXPRESSION_AFTER = new Set(['Equals', 'Assign', 'Plus', 'Minus', 'Star', 'Slash', 'Caret', 'LParen', 'Comma', 'Kw_when', 'Kw_crosses']);
+const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Kw_surrogate', 'Derivative']);
+const EXPRESSION_AFTER = new Set(['Equals', 'Assign', 'Plus', 'Minus', 'Star', 'Slash', 'Caret', 'LParen', 'Comma', 'Kw_when', 'Kw_crosses', 'Kw_surrogate']);
 const OPERAND_END = new Set(['Identifier', 'NumberLiteral', 'RBracket', 'RParen', 'Kw_t']);
 
 const KEYWORD_SNIPPETS: Record<string, string> = {
@@ -50,6 +50,7 @@ const KEYWORD_SNIPPETS: Record<string, string> = {
   let: 'let ${1:name} = ${2:expression}',
   fire: 'fire when ${1:V} crosses ${2:threshold} ${3|up,down,either|} {\n\t$0\n}',
   incoming: 'incoming ${1:w} {\n\t$0\n}',
+  surrogate: 'surrogate ${1:0.3 / theta * max(0, 1 - abs(V - theta) / theta)} detaching ${2:V}',
   connect: 'connect ${1:From} -> ${2:To}',
   timestep: 'timestep ${1:0.1} [${2:ms}]',
 };

@@ -1,29 +1,33 @@
-// The derived sections appended to hovers: the adjoint of a state, of the fire block and
-// of the incoming block (adjoint/hover.ts), and the step analysis of an equation and of
+// The derived sections appended to hovers: what every learning rule of the registry
+// (rules/index.ts) says about a state, the fire block, the incoming block and the surrogate
+// line (the EventProp adjoint, e-prop's eligibility), and the step analysis of an equation and of
 // the timestep (step/report.ts), at the analysis's effective dt (`Analysis.timestep`: the
 // file's, or the saltus.timestep setting's). Each is a HoverSection (outputs/hover.ts); the
 // language server passes DERIVED_SECTIONS to `hover`.
-import { adjointHoverMarkdown, derivationFor } from '../adjoint/index';
+import { RULES } from '../rules/index';
+import type { RuleHoverItem } from '../rules/types';
 import { escapeMarkdown, type HoverSection } from './hover';
 import { timestepOrigin, type Analysis } from '../pipeline';
 import { formatTime, stepHoverMarkdown } from '../step/index';
 import { stepReportFor } from '../step/cache';
 
-const adjointSection: HoverSection = ({ target, neuron }) => {
-  if (!neuron?.wellFormed) return undefined;
-  if (target.kind === 'symbol' && target.symbol.kind === 'state' && target.symbol.neuron === neuron.name) {
-    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'state', name: target.symbol.name });
-  }
-  if (target.kind === 'keyword' && (target.word === 'fire' || target.word === 'when' || target.word === 'crosses') && neuron.fire) {
-    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'fire' });
-  }
-  if (target.kind === 'keyword' && target.word === 'incoming' && neuron.incoming) {
-    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'incoming' });
-  }
-  if (target.kind === 'symbol' && target.symbol.kind === 'weight' && neuron.incoming) {
-    return adjointHoverMarkdown(derivationFor(neuron), { kind: 'incoming' });
-  }
+/** What a hover target is, for the learning rules. */
+function ruleItem(target: Parameters<HoverSection>[0]['target'], neuron: NonNullable<Parameters<HoverSection>[0]['neuron']>): RuleHoverItem | undefined {
+  if (target.kind === 'symbol' && target.symbol.kind === 'state' && target.symbol.neuron === neuron.name) return { kind: 'state', name: target.symbol.name };
+  if (target.kind === 'keyword' && (target.word === 'fire' || target.word === 'when' || target.word === 'crosses') && neuron.fire) return { kind: 'fire' };
+  if (target.kind === 'keyword' && target.word === 'incoming' && neuron.incoming) return { kind: 'incoming' };
+  if (target.kind === 'symbol' && target.symbol.kind === 'weight' && neuron.incoming) return { kind: 'incoming' };
+  if (target.kind === 'keyword' && (target.word === 'surrogate' || target.word === 'detaching')) return { kind: 'surrogate' };
   return undefined;
+}
+
+/** Every rule of the registry that has something to say about the target (EventProp, then e-prop). */
+const rulesSection: HoverSection = ({ target, neuron }) => {
+  if (!neuron?.wellFormed) return undefined;
+  const item = ruleItem(target, neuron);
+  if (!item) return undefined;
+  const parts = RULES.map((r) => r.hover(neuron, item)).filter((p): p is string => p !== undefined);
+  return parts.length ? parts.join('\n\n') : undefined;
 };
 
 /** One line naming the dt in use and where it came from (and the file's value it overrides). */
@@ -49,4 +53,4 @@ const stepSection: HoverSection = ({ analysis, target, neuron }) => {
   return undefined;
 };
 
-export const DERIVED_SECTIONS: HoverSection[] = [adjointSection, stepSection];
+export const DERIVED_SECTIONS: HoverSection[] = [rulesSection, stepSection];

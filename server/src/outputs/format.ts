@@ -24,7 +24,7 @@ import type { TextEdit } from '../base/diagnostic';
 
 const INDENT = '  ';
 const CONTINUATION = '    ';
-const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Derivative']);
+const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Kw_surrogate', 'Derivative']);
 const OPERAND_END = new Set(['Identifier', 'NumberLiteral', 'RBracket', 'RParen', 'Kw_t']);
 
 interface Item { comment: boolean; type: string; text: string; start: number; end: number; index: number }

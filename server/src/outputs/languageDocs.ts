@@ -20,6 +20,8 @@ export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
   connect: 'A projection: `connect A -> B` sends the spikes of A to the `incoming` block of B. Without any `connect`, a model that fires and receives projects onto itself.',
   timestep: 'The time step used by the step analysis and generated code, e.g. `timestep 0.1 [ms]`; the `saltus.timestep` setting can override it.',
   trainable: 'Marks a parameter whose gradient the derived adjoint equations compute.',
+  surrogate: 'The pseudo-derivative psi = dz/dg of the spike with respect to the guard, used by e-prop: `surrogate EXPR (detaching X, Y)?`; its unit is one over the guard\'s. `detaching` lists states whose spike jump the gradient treats as independent of the spike (a stop-gradient on the reset).',
+  detaching: 'Part of `surrogate EXPR detaching X, Y`: the states whose spike jump is treated as not depending on the spike when e-prop differentiates the step (the usual stop-gradient on the membrane reset).',
   t: 'The time. It may appear in flows and guards, not in parameter values or initial values.',
 };
 

@@ -92,4 +92,7 @@ table.eqs tr + tr td, table.eqs tr + tr th { border-top: 1px dotted var(--rule);
 .katex-display > .katex { text-align: left; }
 ul.notes { color: var(--muted); font-size: 12px; padding-left: 18px; }
 .empty { color: var(--muted); }
+table.plan { border-collapse: collapse; font-size: 12px; margin: 4px 0 8px; }
+table.plan th, table.plan td { text-align: left; padding: 3px 12px 3px 0; border-top: 1px dotted var(--rule); vertical-align: top; }
+figure { margin: 6px 0; } figure svg { max-width: 100%; height: auto; color: var(--fg); }
 `;

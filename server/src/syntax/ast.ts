@@ -63,7 +63,16 @@ export interface IncomingBlock extends Documented {
   openEnd?: number;
 }
 
-export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock;
+/**
+ * `surrogate EXPR (detaching X, Y)?`: the pseudo-derivative psi = dz/dg of the spike with
+ * respect to the guard, used by e-prop; `detaching` lists the states whose spike jump is
+ * treated as not depending on the spike (stop-gradient through the reset).
+ */
+export interface SurrogateDecl {
+  kind: 'surrogate'; value?: Expr; detaching: Ident[]; detachingRange?: Range; range: Range; keywordRange: Range;
+}
+
+export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock | SurrogateDecl;
 
 /** Documentation text; `range` covers what it was read from (the note comments, or the quoted string). */
 export interface DocString { text: string; range: Range }

@@ -273,6 +273,14 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       return { kind: 'incoming', ...(weight ? { weight } : {}), ...(unit ? { unit } : {}),
         jumps: buildJumps(block), range, keywordRange: kwRange('Kw_incoming'), ...(open ? { openEnd: tokRange(open).end } : {}) };
     }
+    case 'surrogateDecl': {
+      const value = rootExpr(node(ch, 'expr'));
+      const detaching: A.Ident[] = [];
+      for (const t of ch['detached'] ?? []) { const id = isToken(t) && real(t) ? ident(t) : undefined; if (id) detaching.push(id); }
+      const det = tok(ch, 'Kw_detaching');
+      return { kind: 'surrogate', ...(value ? { value } : {}), detaching, ...(det && real(det) ? { detachingRange: tokRange(det) } : {}),
+        range, keywordRange: kwRange('Kw_surrogate') };
+    }
     case 'jump': return buildJump(inner);
     default: return undefined;
   }

@@ -12,6 +12,7 @@
 //   fire      := 'fire' 'when' expr ('crosses' expr ('up'|'down'|'either') | COMPARE expr) '{' jump* '}'
 //                (COMPARE, `V > V_th`, is not the language: build.ts reports it with a fix)
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
+//   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
 //   jump      := NAME ':=' expr
 //   connect   := 'connect' NAME '->' NAME
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
@@ -47,7 +48,7 @@ const messages: IParserErrorMessageProvider = {
 
 const RULE_WHAT: Record<string, string> = {
   topLevel: "a 'timestep', 'neuron' or 'connect' declaration",
-  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming')",
+  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming', 'surrogate')",
   primary: 'a value: a number, a name, t or a parenthesised expression',
   direction: "a crossing direction: 'up', 'down' or 'either'",
   unaryExpr: 'a value',
@@ -131,6 +132,7 @@ export class SaltusParser extends CstParser {
       { ALT: () => this.SUBRULE(this.flowEq) },
       { ALT: () => this.SUBRULE(this.fireBlock) },
       { ALT: () => this.SUBRULE(this.incomingBlock) },
+      { ALT: () => this.SUBRULE(this.surrogateDecl) },
       { ALT: () => this.SUBRULE(this.jump) },
     ]);
   });
@@ -204,6 +206,19 @@ export class SaltusParser extends CstParser {
     this.CONSUME(T.Identifier);
     this.OPTION(() => this.SUBRULE(this.unit));
     this.SUBRULE(this.jumpBlock);
+  });
+
+  private surrogateDecl = this.RULE('surrogateDecl', () => {
+    this.CONSUME(T.Surrogate);
+    this.OPTION1(() => this.SUBRULE(this.expr)); // missing: an error with a fix that writes one (model/surrogate.ts)
+    this.OPTION2(() => {
+      this.CONSUME(T.Detaching);
+      this.CONSUME1(T.Identifier, { LABEL: 'detached' });
+      this.MANY(() => {
+        this.CONSUME(T.Comma);
+        this.CONSUME2(T.Identifier, { LABEL: 'detached' });
+      });
+    });
   });
 
   private jumpBlock = this.RULE('jumpBlock', () => {

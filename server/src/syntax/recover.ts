@@ -3,7 +3,7 @@
 //   become one BareUnit token, which the grammar reads as the number's unit, and one error
 //   says that units go in brackets, with a fix (`5 [ms]`);
 // - a construct planned for the next version of the language but not in it yet (`refractory
-//   2 [ms]`, `quiet for t_ref { ... }`, `surrogate ...` in a neuron; `via`, `delay` after a
+//   2 [ms]`, `quiet for t_ref { ... }` in a neuron; `via`, `delay` after a
 //   connection): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
 //   left out, with one 'unsupported' error saying it is not in the language (yet).
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
@@ -17,7 +17,6 @@ import { parseUnit } from '../units/unitParse';
 const PLANNED_MEMBERS: Readonly<Record<string, string>> = {
   refractory: 'refractory periods',
   quiet: 'quiet (refractory) periods',
-  surrogate: 'surrogate derivatives (for e-prop)',
 };
 const PLANNED_CONNECT: Readonly<Record<string, string>> = {
   via: "connections 'via' one of several incoming blocks",

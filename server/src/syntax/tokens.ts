@@ -27,11 +27,13 @@ export const Incoming = keyword('incoming');
 export const Connect = keyword('connect');
 export const Timestep = keyword('timestep');
 export const Trainable = keyword('trainable');
+export const Surrogate = keyword('surrogate');
+export const Detaching = keyword('detaching');
 export const Time = keyword('t');
 
 /** Every reserved word, in the order docs/language.md ("Lexical rules") lists them. */
 export const KEYWORDS = ['neuron', 'param', 'state', 'let', 'fire', 'when', 'crosses', 'up', 'down', 'either',
-  'incoming', 'connect', 'timestep', 'trainable', 't'] as const;
+  'incoming', 'connect', 'timestep', 'trainable', 'surrogate', 'detaching', 't'] as const;
 
 export const NumberLiteral = createToken({ name: 'NumberLiteral', pattern: /(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?/, label: 'a number' });
 export const StringLiteral = createToken({ name: 'StringLiteral', pattern: /"(?:[^"\\\r\n]|\\.)*"/, label: 'a "docstring"' });
@@ -69,7 +71,7 @@ export const UnitLCurly = inUnit('UnitLCurly', /\{/, LCurly);
 export const UnitRCurly = inUnit('UnitRCurly', /\}/, RCurly);
 export const UnitString = inUnit('UnitString', /"(?:[^"\\\r\n]|\\.)*"/, StringLiteral);
 
-const keywords = [Neuron, Param, State, Let, Fire, When, Crosses, Up, Down, Either, Incoming, Connect, Timestep, Trainable, Time];
+const keywords = [Neuron, Param, State, Let, Fire, When, Crosses, Up, Down, Either, Incoming, Connect, Timestep, Trainable, Surrogate, Detaching, Time];
 
 export const ALL_TOKENS: TokenType[] = [
   WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,

@@ -38,4 +38,5 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'reset-on-threshold': 'A spike jump leaves the neuron on its threshold or on the side it fires from.',
   'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',
   'stray-note': 'A #~ note that documents no declaration.',
+  'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
 };

@@ -7,6 +7,7 @@
 // model text reaches comments and strings only through escape.ts.
 import type { Sym } from '../../symbolic/sym';
 import { toPlain, toPython } from '../../symbolic/print';
+import { epropFunctions } from './eprop';
 import { oneLine, pyComment, pyStringBody } from '../escape';
 import { type KernelPlan, headerLines } from '../kernelPlan';
 import type { Kernel } from '../kernels';
@@ -71,7 +72,9 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
   L.push(`WEIGHT = ${plan.weight ? `"${plan.weight.id}"` : 'None'}`);
   L.push('', '');
   for (const k of plan.kernels) L.push(...kernelFunction(plan, k), '', '');
-  L.push(`__all__ = ["NAME", "STATES", "PARAMS", "GRAD_PARAMS", "DEFAULT_PARAMS", "INITIAL", ${plan.kernels.map((k) => `"${k.name}"`).join(', ')}]`);
+  const eprop = epropFunctions(plan);
+  L.push(...eprop.lines);
+  L.push(`__all__ = ["NAME", "STATES", "PARAMS", "GRAD_PARAMS", "DEFAULT_PARAMS", "INITIAL", ${plan.kernels.map((k) => `"${k.name}"`).concat(eprop.names.map((n) => `"${n}"`)).join(', ')}]`);
   return { name, content: L.join('\n').trimEnd() + '\n' };
 }
 
@@ -153,6 +156,8 @@ export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_D
     '        raise SystemExit("run.py: --dt must be positive; got %r" % text)',
     '    return value', '', '',
     'def main(argv):',
+    '    if "--rule" in argv:  # --rule eventprop (this runner, the default) or eprop (docs/eprop.md)',
+    '        return saltus_grid.rule_main(argv, MODELS, parse_time, main)',
     '    args = list(argv)',
     '    fmt = "text"',
     '    dt = None',

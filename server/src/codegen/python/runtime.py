@@ -820,3 +820,176 @@ def report(run, grad):
         out["trials"] = len(run.spikes)
         out["spikes_per_trial"] = [{k: [[t, i] for t, i in v] for k, v in s.items()} for s in run.spikes]
     return out
+
+
+# ---------------------------------------------------------------------------------------------
+# e-prop (docs/eprop.md): a layer of one model without recurrence, fed by input spike trains,
+# read out by leaky integrators y(t+1) = kappa y(t) + W_out z(t), loss E = 1/2 sum_t |y - y*|^2.
+# Online: per synapse the eligibility vector (the model's eprop_update) and the trace filtered
+# by the readout, ebar(t+1) = kappa ebar(t) + e(t); the weight change is sum_t L(t) ebar(t) with
+# the learning signal L = B err: B = W_out^T (exact here, the symmetric variant) or a fixed
+# random matrix (the random variant). Nothing grows with the sequence length.
+
+def _nbytes(a):
+    n = getattr(a, "nbytes", None)
+    return int(n) if n is not None else int(a.element_size() * a.nelement())
+
+
+def _feedback(kind, wout, seed):
+    if kind in ("exact", "symmetric"):
+        return wout
+    if kind != "random":
+        raise GridError("feedback must be exact, symmetric or random; got %r" % (kind,))
+    import random
+    r = random.Random(seed)
+    K, N = len(X.tolist(wout)), len(X.tolist(wout)[0])
+    return X.array([[r.gauss(0.0, 1.0) / N ** 0.5 for _ in range(N)] for _ in range(K)])
+
+
+def eprop_layer(model, task, params=None, feedback="exact", seed=0):
+    """The e-prop gradient of one pass over `task` (see above); returns loss, gradients, spikes, kept bytes."""
+    if not getattr(model, "EPROP", ()):
+        raise GridError("%s has no e-prop traces: %s" % (model.NAME, getattr(model, "EPROP_NONE", "no surrogate")))
+    dt = float(task["dt"])
+    pv = dict(model.DEFAULT_PARAMS)
+    pv.update(params or {})
+    p = tuple(float(pv[n]) for n in model.PARAMS)
+    inputs = X.array(task["inputs"])  # (B, T, nIn), 0 or 1
+    win = X.array(task["win"])        # (N, nIn)
+    wout = X.array(task["wout"])      # (K, N)
+    targets = X.array(task["targets"])  # (B, T, K)
+    kappa = float(task["kappa"])
+    B, T, nIn = len(task["inputs"]), len(task["inputs"][0]), len(task["inputs"][0][0])
+    N, K, S = len(task["win"]), len(task["wout"]), len(model.STATES)
+    fb = _feedback(feedback, wout, seed)
+    x = [X.full((B, N), float(model.INITIAL[s])) for s in model.STATES]
+    qs = list(enumerate(model.EPROP))
+    wq = [k for k, (_, kind) in qs if kind == "weight"]
+    pq = [(k, name) for k, (name, kind) in qs if kind == "param"]
+    zero3 = X.full((B, N, nIn), 0.0)
+    zero2 = X.full((B, N), 0.0)
+    eps_w = [X.full((B, N, nIn), 0.0) for _ in range(S)]
+    ebar_w = X.full((B, N, nIn), 0.0)
+    eps_p = [[X.full((B, N), 0.0) for _ in range(S)] for _ in pq]
+    ebar_p = [X.full((B, N), 0.0) for _ in pq]
+    grad_w = X.full((N, nIn), 0.0)
+    grad_p = [0.0 for _ in pq]
+    grad_out = X.full((K, N), 0.0)
+    y = X.full((B, K), 0.0)
+    zbar = X.full((B, N), 0.0)
+    loss = 0.0
+    spikes = 0
+    w3 = win[None, :, :]
+    for t in range(T):
+        tt = t * dt
+        z, psi = model.eprop_spike(x, p, tt)
+        z = z + zero2
+        psi = psi + zero2
+        spikes += int(X.sum(z))
+        s = inputs[:, t, :]
+        anyin = (X.sum_last(s) > 0) * 1.0
+        x3 = [xi[:, :, None] for xi in x]
+        if wq:
+            k = wq[0]
+            args = (x3, p, tt, dt, z[:, :, None], s[:, None, :], psi[:, :, None], w3, eps_w)
+            e = model.EPROP_TRACE[k](*args) + zero3
+            eps_w = [u + zero3 for u in model.EPROP_UPDATE[k](*args)]
+            ebar_w = kappa * ebar_w + e
+        for m, (k, _) in enumerate(pq):
+            args = (x, p, tt, dt, z, anyin[:, None] + zero2, psi, 0.0, eps_p[m])
+            e = model.EPROP_TRACE[k](*args) + zero2
+            eps_p[m] = [u + zero2 for u in model.EPROP_UPDATE[k](*args)]
+            ebar_p[m] = kappa * ebar_p[m] + e
+        x = [xi + zero2 for xi in model.eprop_step(x, p, tt, dt, z)]
+        for i in range(nIn):
+            hit = s[:, i][:, None] > 0
+            if bool(X.any(hit)):
+                after = model.eprop_arrive(x, p, win[None, :, i])
+                x = [X.where(hit, a + zero2, xi) for a, xi in zip(after, x)]
+        y = kappa * y + z @ wout.T
+        err = y - targets[:, t, :]
+        loss += 0.5 * float(X.sum(err * err))
+        L = err @ fb  # (B, N)
+        if wq:
+            grad_w = grad_w + (L[:, :, None] * ebar_w).sum(0)
+        for m in range(len(pq)):
+            grad_p[m] += float(X.sum(L * ebar_p[m]))
+        zbar = kappa * zbar + z
+        grad_out = grad_out + err.T @ zbar
+    kept = [*eps_w, ebar_w, *[a for e in eps_p for a in e], *ebar_p, *x, grad_w]
+    return {"loss": loss, "spikes": spikes, "weights": X.tolist(grad_w), "readout": X.tolist(grad_out),
+            "params": {name: grad_p[m] for m, (_, name) in enumerate(pq)},
+            "kept_bytes": sum(_nbytes(a) for a in kept) + 8 * len(pq)}
+
+
+def eprop_train(model, task, epochs, lr, params=None, feedback="exact", seed=0):
+    """Gradient descent on the input and readout weights with e-prop; returns the loss of every epoch."""
+    losses = []
+    for _ in range(int(epochs)):
+        g = eprop_layer(model, task, params, feedback, seed)
+        losses.append(g["loss"])
+        task = dict(task)
+        task["win"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["win"], g["weights"])]
+        task["wout"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["wout"], g["readout"])]
+    return losses
+
+
+RULE_USAGE = """Usage: python3 run.py TASK.json --dt 1ms --rule eprop [--feedback exact|symmetric|random]
+                     [--epochs N --lr RATE] [--format json|text]
+
+With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs":
+[trial][step][input], "win": [neuron][input], "wout": [output][neuron], "kappa", "targets":
+[trial][step][output], "params"?}. Prints the e-prop gradient {"loss", "spikes", "weights",
+"readout", "params", "kept_bytes"}, or with --epochs the loss of each epoch {"losses": [...]}.
+--rule eventprop (the default) runs the network description as without --rule."""
+
+
+def rule_main(argv, models, parse_time, default_main):
+    """run.py's --rule: eventprop hands the other arguments to the runner, eprop runs a layer task."""
+    args = list(argv)
+    k = args.index("--rule")
+    if k + 1 >= len(args):
+        raise SystemExit(RULE_USAGE)
+    rule = args[k + 1]
+    del args[k:k + 2]
+    if rule == "eventprop":
+        return default_main(args)
+    if rule != "eprop":
+        raise SystemExit("run.py: --rule must be eventprop or eprop; got %r" % rule)
+    import json
+    fmt, dt, path, feedback, epochs, lr = "text", None, None, "exact", None, 0.0
+    while args:
+        a = args.pop(0)
+        if not args and a.startswith("--"):
+            raise SystemExit(RULE_USAGE)
+        if a in ("--dt", "--timestep"):
+            dt = parse_time(args.pop(0))
+        elif a == "--format":
+            fmt = args.pop(0)
+        elif a == "--feedback":
+            feedback = args.pop(0)
+        elif a == "--epochs":
+            epochs = int(args.pop(0))
+        elif a == "--lr":
+            lr = float(args.pop(0))
+        elif path is None:
+            path = a
+        else:
+            raise SystemExit("run.py: unexpected argument %r" % a)
+    if path is None or dt is None:
+        raise SystemExit(RULE_USAGE)
+    with open(path, encoding="utf-8") as f:
+        task = json.load(f)
+    task["dt"] = dt
+    if task.get("model") not in models:
+        raise SystemExit("run.py: the task names model %r; this folder has %s" % (task.get("model"), ", ".join(models)))
+    model = models[task["model"]]
+    try:
+        if epochs is not None:
+            out = {"losses": eprop_train(model, task, epochs, lr, task.get("params"), feedback)}
+        else:
+            out = eprop_layer(model, task, task.get("params"), feedback)
+    except GridError as e:
+        raise SystemExit("run.py: %s" % e)
+    print(json.dumps(out) if fmt == "json" else "\n".join("%s %s" % kv for kv in out.items()))
+    return 0
