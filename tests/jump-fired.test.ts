@@ -19,7 +19,7 @@ import { modelNeuron, sampleNeuron } from './helpers/models';
 
 const derive = (m: Parameters<typeof derivationFor>[0]) => derivationFor(m, { params: 'all' });
 
-// The delta-synapse LIF of the issue: E_L < V_th, so the flow alone never reaches the threshold.
+// The delta-synapse LIF, the model most training work starts from: E_L < V_th, so the flow alone never reaches the threshold.
 const DELTA = `neuron Delta {
   param tau_m = 20 [ms]
   param E_L = -70 [mV]
