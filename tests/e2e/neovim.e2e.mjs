@@ -127,7 +127,9 @@ export async function runNeovimChecks({ scratch }) {
       expect(lr.asked.length === 1 && ['C99', 'CUDA', 'NumPy'].every((l) => lr.asked[0].actions.includes(l)), `the server asked ${JSON.stringify(lr.asked)}`);
       expect(lr.generated, `no message after the generate lens: ${JSON.stringify(lr.messages)}`);
       const py = lr.files.filter((f) => f.endsWith('.py'));
-      expect(py.length === 1 && py[0].endsWith(`${firstNeuron}.py`), `generated/ holds ${JSON.stringify(lr.files)}`);
+      // the model's module (lowercase) beside the runtime and its array dialect
+      const names = py.map((f) => f.split('/').pop()).sort();
+      expect(JSON.stringify(names) === JSON.stringify([`${firstNeuron.toLowerCase()}.py`, 'saltus_dialect.py', 'saltus_grid.py']), `generated/ holds ${JSON.stringify(lr.files)}`);
       const wrote = lr.messages.find((m) => m.startsWith('Saltus wrote'));
       expect(wrote && wrote.includes(input.lens_run.generated), `the report reads ${JSON.stringify(lr.messages.slice(1))}`);
       return `lenses [${onLine.map((l) => l.title).join(' | ')}] on line ${input.lens_run.line + 1}; adjoint shown (${adjointText.split('\n').length} lines, flow line as the CLI's); asked [${lr.asked[0].actions.join(', ')}] -> NumPy; "${wrote}"`;

@@ -138,7 +138,8 @@ export async function crossCheck(t) {
   const r = t.runCli(['crosscheck', SAMPLE, '--scenario', scenario, '--format', 'json']);
   expect(r.status === 0 && r.stdout, `saltus crosscheck exited ${r.status} (0 = the gradients agree): ${r.stderr}${r.stdout.slice(0, 500)}`);
   const want = JSON.parse(r.stdout);
-  const wantRows = [...want.gradients.map((g) => ({ adjoint: g.adjoint, label: null })), ...want.params.map((p) => ({ adjoint: p.adjoint, label: `${p.population}.${p.name}` }))];
+  const wantRows = [...want.gradients.map((g) => ({ adjoint: g.adjoint, label: null })), ...want.params.map((p) => ({ adjoint: p.adjoint * (p.unit?.scale ?? 1), label: `${p.population}.${p.name}` }))];
+  // the page shows a parameter's dL/d(value) per the file's unit of the value (the JSON is SI)
 
   await ui.tidy();
   await ui.openFile(SAMPLE);
