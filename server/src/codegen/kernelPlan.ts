@@ -156,3 +156,31 @@ export function headerLines(plan: KernelPlan, o: HeaderContext): string[] {
   }
   return lines;
 }
+
+/**
+ * How a kernel's body names what it reads, for every target: its locals `_s<i>`, states and
+ * parameters by their plan identifiers, `t`, `dt`, the weight as `weight`; `vector` spells
+ * component i of the costate (`lam`) or tangent (`dx`) argument, `unknown` any other name.
+ * `used` collects every name read, so the emitter unpacks only those.
+ */
+export function kernelNamer(plan: KernelPlan, k: Kernel, vector: (kind: 'lam' | 'dx', i: number) => string,
+  unknown: (n: string) => string): { locals: Map<string, string>; used: Set<string>; name: (n: string) => string } {
+  const locals = new Map(k.locals.map((a, i) => [a.name, `_s${i}`]));
+  const used = new Set<string>();
+  const name = (n: string): string => {
+    used.add(n);
+    const local = locals.get(n);
+    if (local) return local;
+    const m = /^(x|p|lam|dx)\.(\d+)$/.exec(n);
+    if (m) {
+      const i = Number(m[2]);
+      if (m[1] === 'x') return plan.states[i]!.id;
+      if (m[1] === 'p') return plan.params[i]!.id;
+      return vector(m[1] as 'lam' | 'dx', i);
+    }
+    if (n === 't' || n === 'dt') return n;
+    if (n === 'w') return 'weight';
+    return unknown(n);
+  };
+  return { locals, used, name };
+}

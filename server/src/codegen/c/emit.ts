@@ -10,7 +10,7 @@
 import type { Sym } from '../../symbolic/sym';
 import { toC, toPlain } from '../../symbolic/print';
 import { cComment, cStringBody } from '../escape';
-import { type KernelPlan, headerLines } from '../kernelPlan';
+import { type KernelPlan, headerLines, kernelNamer } from '../kernelPlan';
 import type { Kernel, KernelArg } from '../kernels';
 import type { Renaming } from '../names';
 import { HASH_PLACEHOLDER } from '../hash';
@@ -58,23 +58,9 @@ function signature(plan: KernelPlan, k: Kernel): string {
 /** One kernel as a C function; the arities of expdd it calls are added to `arities`. */
 function kernelFunction(plan: KernelPlan, k: Kernel, f: CFlavour, arities: Set<number>): string[] {
   const M = plan.prefix;
-  const locals = new Map(k.locals.map((a, i) => [a.name, `_s${i}`]));
-  const used = new Set<string>();
-  const name = (n: string): string => {
-    used.add(n);
-    const local = locals.get(n);
-    if (local) return local;
-    const m = /^(x|p|lam|dx)\.(\d+)$/.exec(n);
-    if (m) {
-      const i = Number(m[2]);
-      if (m[1] === 'x') return plan.states[i]!.id;
-      if (m[1] === 'p') return plan.params[i]!.id;
-      return `_${m[1] === 'lam' ? 'l' : 'd'}${i}`;
-    }
-    if (n === 't' || n === 'dt') return n;
-    if (n === 'w') return 'weight';
+  const { locals, used, name } = kernelNamer(plan, k, (kind, i) => `_${kind === 'lam' ? 'l' : 'd'}${i}`, (n) => {
     throw new Error(`kernel ${k.name} of ${plan.neuron.name} reads '${n}', which is no argument`);
-  };
+  });
   const e = (s: Sym): string => toC(s, { float: f.float, name, expdd: { phi1: 'saltus_phi1', expdd: (n) => { arities.add(n); return `${M}_expdd${n}`; } } });
   const body: string[] = [];
   for (const a of k.locals) body.push(`const saltus_real ${locals.get(a.name)} = ${e(a.expr)};`);

@@ -9,7 +9,7 @@ import type { Sym } from '../../symbolic/sym';
 import { toPlain, toPython } from '../../symbolic/print';
 import { epropFunctions } from './eprop';
 import { oneLine, pyComment, pyStringBody } from '../escape';
-import { type KernelPlan, headerLines } from '../kernelPlan';
+import { type KernelPlan, headerLines, kernelNamer } from '../kernelPlan';
 import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
 import runtimeText from './runtime.py?raw';
@@ -81,23 +81,7 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
 const ARG_NAMES: Record<string, string> = { x: 'x', p: 'p', t: 't', dt: 'dt', w: 'weight', lam: 'lam', dx: 'dx' };
 
 function kernelFunction(plan: KernelPlan, k: Kernel): string[] {
-  const locals = new Map(k.locals.map((a, i) => [a.name, `_s${i}`]));
-  const used = new Set<string>();
-  const name = (n: string): string => {
-    used.add(n);
-    const local = locals.get(n);
-    if (local) return local;
-    const m = /^(x|p|lam|dx)\.(\d+)$/.exec(n);
-    if (m) {
-      const i = Number(m[2]);
-      if (m[1] === 'x') return plan.states[i]!.id;
-      if (m[1] === 'p') return plan.params[i]!.id;
-      return `${m[1]}[${i}]`;
-    }
-    if (n === 't' || n === 'dt') return n;
-    if (n === 'w') return 'weight';
-    return n;
-  };
+  const { locals, used, name } = kernelNamer(plan, k, (kind, i) => `${kind}[${i}]`, (n) => n);
   const e = (s: Sym): string => toPython(s, { module: 'X', name, expdd: { phi1: 'X.phi1', expdd: () => 'X.expdd' } });
   const body: string[] = [];
   for (const a of k.locals) body.push(`${locals.get(a.name)} = ${e(a.expr)}`);
