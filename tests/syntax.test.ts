@@ -2,6 +2,8 @@
 import { describe, expect, test } from 'vitest';
 import fc from 'fast-check';
 import { parse } from '../server/src/syntax/parse';
+import { SaltusParser } from '../server/src/syntax/grammar';
+import { createLexer } from '../server/src/syntax/tokens';
 import type { Expr, NeuronDecl } from '../server/src/syntax/ast';
 
 const show = (e: Expr | undefined): string => {
@@ -22,6 +24,18 @@ const exprOf = (src: string): Expr | undefined => {
   const t = r.file.items[0]!;
   return t.kind === 'timestep' ? t.value : undefined;
 };
+
+describe('grammar definition', () => {
+  // The shipped lexer and parser skip chevrotain's definition checks to start faster; the
+  // checks run here instead, so an ambiguous or left-recursive rule still fails the tests.
+  test('the parser passes chevrotain\'s grammar validation', () => {
+    expect(() => new SaltusParser(true)).not.toThrow();
+    expect((new SaltusParser(true) as unknown as { definitionErrors: unknown[] }).definitionErrors).toEqual([]);
+  });
+  test('the lexer passes chevrotain\'s token-definition validation', () => {
+    expect(createLexer(true).lexerDefinitionErrors).toEqual([]);
+  });
+});
 
 describe('expressions', () => {
   test.each([

@@ -79,8 +79,13 @@ export class SaltusParser extends CstParser {
   private alt8?: IOrAlt<unknown>[];
   private alt9?: IOrAlt<unknown>[];
 
-  constructor() {
-    super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset' });
+  /**
+   * `validate`: run chevrotain's checks of the grammar (ambiguities, left recursion) while it is
+   * analysed. The shipped parser skips them (part of the start-up cost); tests build one with
+   * them on and require no definition errors.
+   */
+  constructor(validate = false) {
+    super(T.ALL_TOKENS, { recoveryEnabled: true, errorMessageProvider: messages, maxLookahead: 3, nodeLocationTracking: 'onlyOffset', skipValidations: !validate });
     this.performSelfAnalysis();
   }
 
@@ -331,6 +336,9 @@ export class SaltusParser extends CstParser {
   });
 }
 
-/** The one parser instance (chevrotain parsers are built once and reused). */
-export const parserInstance = new SaltusParser();
+let instance: SaltusParser | undefined;
+/** The one parser instance (chevrotain parsers are built once, on the first parse, and reused). */
+export function parserInstance(): SaltusParser {
+  return instance ??= new SaltusParser();
+}
 export type { CstNode };

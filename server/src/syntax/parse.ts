@@ -10,7 +10,8 @@ import type * as A from './ast';
 import { buildFile, tokRange } from './build';
 import { MAX_EXPR_NESTING, parserInstance } from './grammar';
 import { cutTooDeep } from './nesting';
-import { saltusLexer } from './tokens';
+import { createLexer } from './tokens';
+import type { Lexer } from 'chevrotain';
 import { recoverTokens } from './recover';
 import { attachNotes } from './notes';
 
@@ -22,6 +23,8 @@ export interface ParseOutput extends A.ParseResult {
   strayNotes: A.Comment[];
 }
 
+let lexer: Lexer | undefined;
+
 export function parse(text: string): ParseOutput {
   const errors: A.SyntaxError[] = [];
   const clamp = (r: A.Range): A.Range => {
@@ -29,7 +32,7 @@ export function parse(text: string): ParseOutput {
     return { start, end: Math.max(start, Math.min(r.end, text.length)) };
   };
   try {
-    const lexed = saltusLexer.tokenize(text);
+    const lexed = (lexer ??= createLexer()).tokenize(text);
     for (const e of lexed.errors) {
       const ch = text.slice(e.offset, e.offset + Math.max(1, e.length));
       errors.push({ message: `unexpected character${ch.length > 1 ? 's' : ''} '${ch.length > 12 ? ch.slice(0, 12) + '…' : ch}'`, range: clamp({ start: e.offset, end: e.offset + Math.max(1, e.length) }) });
@@ -42,11 +45,12 @@ export function parse(text: string): ParseOutput {
     const cut = cutTooDeep(recovered.tokens, MAX_EXPR_NESTING);
     const tooDeepMessage = `expression nested too deeply (more than ${MAX_EXPR_NESTING} levels of parentheses, signs or exponents); this part is not checked: name parts of it with 'let'`;
     for (const r of cut.regions) errors.push({ code: 'too-complex', range: clamp({ start: r.first.startOffset, end: tokRange(r.last).end }), message: tooDeepMessage });
-    parserInstance.input = cut.tokens;
-    const cst = parserInstance.file();
-    const tooDeep = parserInstance.tooDeep;
+    const parser = parserInstance();
+    parser.input = cut.tokens;
+    const cst = parser.file();
+    const tooDeep = parser.tooDeep;
     if (tooDeep && Number.isFinite(tooDeep.startOffset)) errors.push({ code: 'too-complex', range: clamp(tokRange(tooDeep)), message: tooDeepMessage });
-    for (const e of parserInstance.errors) {
+    for (const e of parser.errors) {
       // The parser's own complaint at the token where the nesting limit stopped it says nothing useful.
       if (tooDeep && e.token === tooDeep) continue;
       let r: A.Range;

@@ -79,14 +79,20 @@ export const ALL_TOKENS: TokenType[] = [
   UnitBody, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString, BareUnit,
 ];
 
-export const saltusLexer = new Lexer(
-  {
-    modes: {
-      main: [WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,
-        Assign, Arrow, Compare, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket],
-      unit: [UnitBody, RBracket, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString],
-    },
-    defaultMode: 'main',
+/** The lexer's modes (main, and unit inside brackets). */
+export const LEXER_DEFINITION = {
+  modes: {
+    main: [WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,
+      Assign, Arrow, Compare, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket],
+    unit: [UnitBody, RBracket, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString],
   },
-  { positionTracking: 'onlyOffset', ensureOptimizations: false },
-);
+  defaultMode: 'main',
+};
+
+/**
+ * A lexer for the language. The shipped one skips chevrotain's validation of the token
+ * definitions (part of the start-up cost); tests build one with `validate` and require no errors.
+ */
+export function createLexer(validate = false): Lexer {
+  return new Lexer(LEXER_DEFINITION, { positionTracking: 'onlyOffset', ensureOptimizations: false, skipValidations: !validate });
+}

@@ -1,113 +1,80 @@
-// Looks up one unit symbol (with an SI prefix, e.g. `mV`, `MOhm`, `uM`) in a private mathjs
-// instance and returns its dimension and its scale to SI coherent base units.
+// Looks up one unit symbol (with an SI prefix, e.g. `mV`, `MOhm`, `uM`) in mathjs's unit table
+// and returns its dimension and its scale to SI coherent base units.
 //
 // Invariants:
-// - The mathjs instance is created lazily, lives only in this module and is never exported.
-//   It is only ever asked about a single symbol that matched /^[A-Za-z]{1,32}$/: user text is
-//   never evaluated or parsed as a mathjs expression (the expression syntax is ours, see
-//   unitParse.ts).
-// - Modeller spellings are added to the private instance only: `Ohm` (so `MOhm`, `kOhm`,
-//   `GOhm` work; mathjs spells megaohm `Mohm`) and the molar `M` = 1000 mol/m^3 (so `mM`, `uM`).
+// - The table (`unitTable.ts`) is mathjs's own, generated from it by scripts/unit-table.mjs
+//   and checked against it by tests/unit-table.test.ts: every unit in mathjs's lookup order,
+//   its value, offset and dimensions, and its prefix set. The lookup below is mathjs's: an
+//   exact unit name first, else the first unit (in table order) whose name ends the symbol
+//   and whose prefix set holds the rest. No mathjs instance is built at run time (its set-up
+//   cost about 100 ms of the server's start; docs/performance.md).
+// - Only a single symbol that matched /^[A-Za-z]{1,32}$/ is looked up; user text is never
+//   evaluated (the expression syntax is ours, see unitParse.ts).
+// - Modeller spellings are part of the table: `Ohm` (so `MOhm`, `kOhm`, `GOhm` work; mathjs
+//   spells megaohm `Mohm`) and the molar `M` = 1000 mol/m^3 (so `mM`, `uM`).
 // - Units with an offset (degC, degF) are refused: a scale factor cannot express them.
 // - lookupUnitSymbol never throws.
-
-// Only the factories units need (the Unit class and createUnit), not the whole library: the
-// bundle and the start-up stay small (docs/performance.md).
-import { create, createUnitDependencies, unitDependencies } from 'mathjs';
 import { BASE_DIMENSION_NAMES, DIM_LENGTH, dimFromArray, type Dim } from './dimension';
+import { PREFIX_SETS, TABLE_BASE_DIMENSIONS, UNIT_ROWS } from './unitTable';
 
 export type SymbolLookup =
   | { ok: true; dim: Dim; scale: number; symbol: string }
   | { ok: false; message: string };
 
-/** What a unit symbol may look like before mathjs is asked about it. */
+/** What a unit symbol may look like before the table is asked about it. */
 export const UNIT_SYMBOL_PATTERN = /^[A-Za-z]{1,32}$/;
 
-interface MathUnitPart {
-  unit: { name: string; offset: number };
-  prefix: { name: string };
-  power: number;
-}
-interface MathUnitLike {
-  value: number | null;
-  dimensions: number[];
-  units: MathUnitPart[];
-}
-interface PrivateUnits {
-  makeUnit(symbol: string): MathUnitLike;
-  /** For each of our Dim components, its index in mathjs's dimension vector. */
-  componentIndex: number[];
-}
+interface Found { value: number | null; offset: number; dims: readonly number[]; prefix: number }
 
-let privateUnits: PrivateUnits | null | undefined; // undefined: not tried yet; null: setup failed
-let setupError = '';
+/** For each of our Dim components, its index in the table's dimension vectors. */
+const componentIndex = BASE_DIMENSION_NAMES.map((name) => TABLE_BASE_DIMENSIONS.indexOf(name));
+const tableUsable = componentIndex.every((i) => i >= 0) && TABLE_BASE_DIMENSIONS.length === DIM_LENGTH;
+const byName = new Map(UNIT_ROWS.map((row) => [row[0], row] as const));
 
-function setup(): PrivateUnits | null {
-  if (privateUnits !== undefined) return privateUnits;
-  try {
-    const math = create({ createUnitDependencies, unitDependencies });
-    math.createUnit('Ohm', { definition: '1 ohm', prefixes: 'short' });
-    math.createUnit('M', { definition: '1000 mol/m^3', prefixes: 'short' });
-    const UnitCtor = math.Unit as unknown as {
-      new (value: number, name: string): MathUnitLike;
-      BASE_DIMENSIONS: string[];
-    };
-    const baseNames = UnitCtor.BASE_DIMENSIONS;
-    const componentIndex = BASE_DIMENSION_NAMES.map((name) => baseNames.indexOf(name));
-    if (componentIndex.some((i) => i < 0) || baseNames.length !== DIM_LENGTH) {
-      throw new Error(`unexpected mathjs base dimensions: ${baseNames.join(', ')}`);
-    }
-    privateUnits = {
-      makeUnit: (symbol: string) => new UnitCtor(1, symbol),
-      componentIndex,
-    };
-  } catch (e) {
-    setupError = e instanceof Error ? e.message : String(e);
-    privateUnits = null;
+/** mathjs's `_findUnit`: the exact name first, else the first unit whose name ends the symbol with an allowed prefix. */
+function findUnit(symbol: string): Found | undefined {
+  const exact = byName.get(symbol);
+  const bare = exact ? PREFIX_SETS[exact[4]]?.[''] : undefined;
+  if (exact && bare !== undefined) return { value: exact[1], offset: exact[2], dims: exact[3], prefix: bare };
+  for (const [name, value, offset, dims, set] of UNIT_ROWS) {
+    if (!symbol.endsWith(name)) continue;
+    const prefixes = PREFIX_SETS[set]!;
+    const prefixName = symbol.slice(0, symbol.length - name.length);
+    if (Object.hasOwn(prefixes, prefixName)) return { value, offset, dims, prefix: prefixes[prefixName]! };
   }
-  return privateUnits;
+  return undefined;
 }
 
 const CACHE_LIMIT = 512;
 const cache = new Map<string, SymbolLookup>();
 
-function lookupUncached(symbol: string, units: PrivateUnits): SymbolLookup {
-  let u: MathUnitLike;
-  try {
-    u = units.makeUnit(symbol);
-  } catch {
-    return { ok: false, message: `unknown unit '${symbol}'${suggestionFor(symbol, units)}` };
-  }
-  if (u.units.length !== 1) return { ok: false, message: `unknown unit '${symbol}'` };
-  const part = u.units[0]!;
-  if (part.unit.offset !== 0) {
+function lookupUncached(symbol: string): SymbolLookup {
+  const u = findUnit(symbol);
+  if (!u) return { ok: false, message: `unknown unit '${symbol}'${suggestionFor(symbol)}` };
+  if (u.offset !== 0) {
     return {
       ok: false,
       message: `unit '${symbol}' has an offset from zero and cannot be used in a unit expression; use K`,
     };
   }
-  const scale = u.value;
-  if (typeof scale !== 'number' || !Number.isFinite(scale) || scale <= 0) {
+  const scale = u.value === null ? NaN : u.value * u.prefix; // as mathjs normalises a value of 1 in this unit
+  if (!Number.isFinite(scale) || scale <= 0) {
     return { ok: false, message: `unit '${symbol}' has no usable scale` };
   }
-  const dim = dimFromArray(units.componentIndex.map((i) => u.dimensions[i] ?? 0));
+  const dim = dimFromArray(componentIndex.map((i) => u.dims[i] ?? 0));
   return { ok: true, dim, scale, symbol };
 }
 
-function exists(symbol: string, units: PrivateUnits): boolean {
-  try {
-    const u = units.makeUnit(symbol);
-    return u.units.length === 1 && u.units[0]!.unit.offset === 0;
-  } catch {
-    return false;
-  }
+function exists(symbol: string): boolean {
+  const u = findUnit(symbol);
+  return u !== undefined && u.offset === 0;
 }
 
 /**
  * A hint for a symbol that differs from known ones only in letter case ("Mv" -> 'MV' or 'mV'):
  * tries every one-letter and (for short symbols) two-letter case change, lists up to three.
  */
-function suggestionFor(symbol: string, units: PrivateUnits): string {
+function suggestionFor(symbol: string): string {
   if (symbol.length > 8) return '';
   const flip = (c: string) => (c === c.toLowerCase() ? c.toUpperCase() : c.toLowerCase());
   const candidates: string[] = [];
@@ -124,7 +91,7 @@ function suggestionFor(symbol: string, units: PrivateUnits): string {
   }
   const found: string[] = [];
   for (const c of candidates) {
-    if (c !== symbol && !found.includes(c) && exists(c, units)) found.push(c);
+    if (c !== symbol && !found.includes(c) && exists(c)) found.push(c);
     if (found.length === 3) break;
   }
   if (found.length === 0) return '';
@@ -141,11 +108,10 @@ export function lookupUnitSymbol(symbol: string): SymbolLookup {
   }
   const cached = cache.get(symbol);
   if (cached) return cached;
-  const units = setup();
-  if (!units) return { ok: false, message: `unit library unavailable: ${setupError}` };
+  if (!tableUsable) return { ok: false, message: `unit table unusable: unexpected base dimensions ${TABLE_BASE_DIMENSIONS.join(', ')}` };
   let result: SymbolLookup;
   try {
-    result = lookupUncached(symbol, units);
+    result = lookupUncached(symbol);
   } catch (e) {
     result = { ok: false, message: `unit '${symbol}' could not be read (${e instanceof Error ? e.message : String(e)})` };
   }

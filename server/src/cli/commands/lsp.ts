@@ -1,8 +1,8 @@
 // `saltus lsp --stdio | --node-ipc`: runs the Saltus language server in this process.
 // vscode-languageserver's createConnection() reads the transport flag from process.argv,
 // so the flag given here is the one the server uses. With --stdio, stdout belongs to the
-// protocol: this command prints nothing itself.
-import { runLanguageServer } from '../../lsp/main';
+// protocol: this command prints nothing itself. The server's code (and vscode-languageserver)
+// is loaded only when this command runs, so the CLI's other commands start without it.
 import { parseCommandArgs, UsageError, type Command } from '../command';
 
 export const lspCommand: Command = {
@@ -31,6 +31,7 @@ Options:
     }
     if (positionals.length > 0) throw new UsageError(`unexpected argument '${positionals[0]}'`, 'lsp');
     if (values.stdio === values['node-ipc']) throw new UsageError('give exactly one transport: --stdio or --node-ipc', 'lsp');
+    const { runLanguageServer } = await import('../../lsp/main');
     runLanguageServer();
     return { keepRunning: true };
   },
