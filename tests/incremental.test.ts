@@ -8,7 +8,8 @@
 import { readdirSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { analyse, type Analysis } from '../server/src/pipeline';
+import { analyse, neuronDerivedDiagnostics, type Analysis } from '../server/src/pipeline';
+import { derivedReuseCount, reusedNeuronDerivedDiagnostics } from '../server/src/derivedReuse';
 import { analyseIncremental, lastIncrementalPath } from '../server/src/incremental';
 import { generatedFile } from './regressions/bigFiles';
 
@@ -105,6 +106,39 @@ describe('incremental re-analysis equals a full analysis', () => {
     }
     expect(prev.diagnostics).toEqual(analyse(big).diagnostics);
     expect(reused).toBeGreaterThan(60 * 0.5);
+  }, 600_000);
+
+  it('the slow checks of unchanged neurons, reused across edits, equal fresh ones (800 random edits on the samples and a 30-neuron file, dt from the file and from a setting)', () => {
+    const before = { ...derivedReuseCount };
+    let oneBlockEdits = 0;
+    const files: [string, string][] = [...samples.map((f): [string, string] => [f, readFileSync(join(SAMPLES, f), 'utf8')]), ['generated 300 lines', generatedFile(300)], ['generated 300 lines', generatedFile(300)]];
+    files.forEach(([f, start], i) => {
+      const r = rng(5000 + i);
+      let text = start;
+      let prev = analyseIncremental(undefined, text);
+      for (let step = 0; step < 100; step++) {
+        text = step > 0 && step % 10 === 0 ? start : randomEdit(text, r);
+        const options = step % 40 >= 30 ? { timestep: { seconds: 5e-5, source: 'setting' as const, label: '0.05 [ms]' } } : {};
+        const inc = analyseIncremental(prev, text, options);
+        const path = lastIncrementalPath;
+        const full = analyse(text, options);
+        const computedBefore = derivedReuseCount.computed;
+        inc.model.neurons.forEach((n, k) => {
+          if (!n.wellFormed) return;
+          expect(reusedNeuronDerivedDiagnostics(inc, n), `${f} step ${step} ${n.name}`).toEqual(neuronDerivedDiagnostics(full, full.model.neurons[k]!));
+        });
+        // an edit inside one block, at an unchanged dt: only that block's neuron is checked anew
+        if (path === 'reused' && step % 40 !== 30 && step % 40 !== 0) {
+          expect(derivedReuseCount.computed - computedBefore, `${f} step ${step}`).toBeLessThanOrEqual(1);
+          oneBlockEdits++;
+        }
+        prev = inc;
+      }
+    });
+    // most neurons were handed out again (a test where nothing is reused proves nothing)
+    const reused = derivedReuseCount.reused - before.reused, computed = derivedReuseCount.computed - before.computed;
+    expect(reused).toBeGreaterThan(0.15 * (reused + computed));
+    expect(oneBlockEdits).toBeGreaterThan(100);
   }, 600_000);
 
   it('falls back to a full analysis where blocks are not independent, with the same result', () => {

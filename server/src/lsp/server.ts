@@ -8,7 +8,8 @@
 // changes are queued, only the newest text is analysed (coalesced with setImmediate: a
 // check runs once no newer version arrived during the last event-loop turn). The fast
 // diagnostics are published with the document version; the slow derived checks run on a
-// later turn, one neuron after another in slices of the event loop, and are published
+// later turn, one neuron after another in slices of the event loop (a neuron an edit did not
+// touch hands out its previous results, moved: derivedReuse.ts), and are published
 // merged only if that version is still current: a newer version, closing the document or
 // shutdown cancels the rest, and DERIVED_BUDGET_MS bounds the work per version (neurons
 // not reached get one 'time-budget' diagnostic). Only the text the client sent is analysed;
@@ -18,9 +19,10 @@
 // unknown or closed documents are null/empty; diagnostics are cleared on close.
 import { TextDocuments, TextDocumentSyncKind, CodeActionKind, DidChangeConfigurationNotification, type Connection, type InitializeResult } from 'vscode-languageserver';
 import { TextDocument } from 'vscode-languageserver-textdocument';
-import { analyse, neuronDerivedDiagnostics, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
+import { analyse, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
 import { type Diagnostic, setInternalErrorLog } from '../base/diagnostic';
 import { analyseIncremental } from '../incremental';
+import { reusedNeuronDerivedDiagnostics } from '../derivedReuse';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
@@ -44,8 +46,8 @@ export interface ServerOptions {
 
 /** Default work-time budget of the derived checks per document version. */
 export const DERIVED_BUDGET_MS = 2000;
-/** Longest stretch of derived work before the server turns to queued messages. */
-const SLICE_MS = 15;
+/** Longest stretch of derived work before the server turns to queued messages (an edit waits at most this). */
+const SLICE_MS = 5;
 
 /** The newest analysis of one document version, with its derived diagnostics once computed. */
 export function startServer(connection: Connection, options: ServerOptions = {}): void {
@@ -135,7 +137,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
             next = todo.length;
             break;
           }
-          out.push(...neuronDerivedDiagnostics(c.analysis, todo[next++]!));
+          out.push(...reusedNeuronDerivedDiagnostics(c.analysis, todo[next++]!));
         }
         worked += performance.now() - sliceStart;
         if (next < todo.length) { setImmediate(slice); return; }
