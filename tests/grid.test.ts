@@ -19,6 +19,7 @@ import { gridBackward, gridForward, networkFromScenario, type Network } from '..
 import { gridForward as oracleForward } from './helpers/gridOracle/forward';
 import { gridBackward as oracleBackward } from './helpers/gridOracle/backward';
 import { modelNeuron } from './helpers/models';
+import { CELL } from './helpers/gridCompare';
 
 const ROOT = join(__dirname, '..');
 const sample = (name: string): { net: Network; analysis: ReturnType<typeof analyse>; text: string } => {
@@ -133,18 +134,8 @@ describe('accuracy against the exact gradient of the accurate simulator at dt = 
 
 // A LIF network whose hidden spike drives the output across its threshold within the same
 // grid step (strong weights), with a recurrent projection: the order of events inside a step.
-const CHAIN = `
-neuron Cell {
-  param tau_m = 10 [ms] trainable
-  param tau_s = 1 [ms]
-  param theta = 1
-  state V = 0
-  state I = 0
-  dV/dt = (I - V) / tau_m
-  dI/dt = -I / tau_s
-  fire when V crosses theta up { V := 0 }
-  incoming w { I := I + w }
-}`;
+// (the cell of tests/helpers/gridCompare.ts with a fixed threshold)
+const CHAIN = CELL.replace('param theta = 1 trainable', 'param theta = 1');
 
 function chainNetwork(loss: Network['loss'], trials: Network['trials']): Network {
   const model = modelNeuron(CHAIN, 'Cell');
