@@ -149,6 +149,17 @@ describe.skipIf(!hasGcc)('e-prop in the C target (saltus_run --rule eprop)', () 
     expect(rule.stdout).toBe(plain.stdout);
   }, 120_000);
 
+  it('a model whose step map is not exact (AdEx) gets no C e-prop and its runner says so', () => {
+    const c = generate('adex', 'c', 'adex-c');
+    expect(readFileSync(join(c, 'saltus_grid.c'), 'utf8')).not.toContain('saltus_eprop_layer');
+    const r0 = spawnSync('gcc', [...GCC, ...readdirSync(c).filter((f) => f.endsWith('.c')), '-lm', '-o', 'saltus_run'], { cwd: c, encoding: 'utf8' });
+    expect(r0.status, r0.stderr).toBe(0);
+    writeFileSync(join(base, 'adex-task.json'), JSON.stringify(task('AdEx', 1, 10, 1)));
+    const r = runC(c, [join(base, 'adex-task.json'), '--dt', '1ms', '--rule', 'eprop']);
+    expect(r.code).toBe(2);
+    expect(r.stderr).toMatch(/--rule eprop needs a firing model with a surrogate line and an exact step map/);
+  }, 120_000);
+
   it('compiles in single precision (--float) with the strict flags, and its gradient is close to float64', () => {
     const c = generate('adaptive_lif', 'c', 'float-c', ['--float']);
     gcc(c);

@@ -30,9 +30,10 @@ export function epropC(plan: KernelPlan, f: Flavour): { lines: string[]; hasTrac
   const q = f.cuda ? 'static __host__ __device__ ' : 'static ';
   const storage = f.cuda ? 'static const' : 'const';
   const d = eligibilityFor(plan.neuron);
-  if (d.notDerived) {
+  const none = whyNoCEprop(plan);
+  if (none) {
     return { hasTraces: false, lines: ['/* e-prop: none for this model (saltus_eprop.h). */',
-      `${storage} saltus_eprop_model ${M}_eprop = {&${M}_model, 0, 0, 0, 0, "${cStringBody(d.notDerived)}", 0, 0, 0, 0, 0};`, ''] };
+      `${storage} saltus_eprop_model ${M}_eprop = {&${M}_model, 0, 0, 0, 0, "${cStringBody(none)}", 0, 0, 0, 0, 0};`, ''] };
   }
   const stateIdx = new Map(plan.states.map((s, i) => [s.name, i] as const));
   const paramIdx = new Map(plan.params.map((p, i) => [p.name, i] as const));
@@ -98,9 +99,22 @@ export function epropC(plan: KernelPlan, f: Flavour): { lines: string[]; hasTrac
   return { hasTraces: true, lines: ['/* ---- e-prop (docs/eprop.md): the derived eligibility formulas, one neuron or synapse at a time ---- */', '', ...expdd, ...body, ...table] };
 }
 
-/** Whether any model of a generate call has eligibility traces: only then do the C/CUDA files carry e-prop. */
+/**
+ * Why a model's C/CUDA files carry no e-prop functions, or undefined. Besides a model without
+ * traces: a step map that is not exact (the exponential Runge-Kutta map), whose eligibility
+ * formulas print to hundreds of kilobytes of C (AdEx: about 800 kB, 24 s of gcc -O2); the NumPy
+ * and PyTorch targets have them.
+ */
+export function whyNoCEprop(plan: KernelPlan): string | undefined {
+  const d = eligibilityFor(plan.neuron);
+  if (d.notDerived) return d.notDerived;
+  if (d.scheme !== 'exact') return `its step map is not exact (${d.scheme}): its e-prop formulas are generated for the NumPy and PyTorch targets only`;
+  return undefined;
+}
+
+/** Whether any model of a generate call has C e-prop functions: only then do the C/CUDA files carry e-prop. */
 export function anyEprop(plans: readonly KernelPlan[]): boolean {
-  return plans.some((p) => !eligibilityFor(p.neuron).notDerived);
+  return plans.some((p) => !whyNoCEprop(p));
 }
 
 /** The runner's --rule eprop when no model has traces: a clear refusal. */
@@ -111,7 +125,7 @@ export const NO_EPROP_RUNNER = [
   '{',
   '    (void)argc;',
   '    (void)argv;',
-  '    fprintf(stderr, "saltus_run: --rule eprop needs a firing model with a surrogate line; none of this runner\'s models has e-prop traces\\n");',
+  '    fprintf(stderr, "saltus_run: --rule eprop needs a firing model with a surrogate line and an exact step map; none of this runner\'s models has C e-prop functions (the NumPy and PyTorch targets have them for every model with traces)\\n");',
   '    return 2;',
   '}',
   ''].join('\n');
