@@ -8,8 +8,8 @@
 // - EventProp: the generated layer's forward (GridLayerFunction), measured by
 //   saltus_torch.kept_bytes (every tensor its event log and checkpoints hold, once per storage),
 //   against the planner's estimate of the generated event log (`generatedBytes`), with the
-//   measured firing rates as the planner's rates. Within 10 % for T = 100 and 300 (the issue's
-//   bound); the derivation's minimum and plain autograd BPTT are printed beside them.
+//   measured firing rates as the planner's rates. Within 10 % for T = 100 and 300 (the bound
+//   the planner's checks use); the derivation's minimum and plain autograd BPTT are printed beside them.
 import { describe, expect, it } from 'vitest';
 import { mkdirSync, mkdtempSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
