@@ -1,10 +1,11 @@
 // `npm run demo`: a tour of the CLI on the project's samples/. Builds dist/ first when it is
 // missing. Step 1 checks every samples/*.saltus file and shows the report; the demo passes
 // when the only error diagnostics are in samples/mistakes.saltus (which exists to show them)
-// and that file does have errors. The last step trains a two-layer network of the generated
+// and that file does have errors. Step 7 trains a two-layer network of the generated
 // PyTorch layers on an invented sensor task (scripts/train_demo.py: the loss must fall and the
 // test accuracy rise well above chance); without a python3 that imports torch it prints a SKIP
-// line saying so. Exit 0 on success, 1 otherwise.
+// line saying so; then the LIF network scenario trains by the generated PyTorch code's e-prop
+// (the loss must fall; skipped with a line without torch). Exit 0 on success, 1 otherwise.
 import { spawnSync } from 'node:child_process';
 import { existsSync, readdirSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
@@ -160,6 +161,25 @@ if (!torchPython) {
   const r = spawnSync(torchPython, [join(root, 'scripts', 'train_demo.py'), pkg, join(out, 'training')], { cwd: root, stdio: 'inherit' });
   expectExit('PyTorch training demo (scripts/train_demo.py)', r);
   if (r.status === 0) console.log(`learning curve: ${join('demo-output', 'training', 'learning-curve.svg')}`);
+}
+
+// --- Step 8: the same network scenario trained by e-prop ---------------------------------
+// The LIF sample's scenario of step 6, now trained by the generated PyTorch package's e-prop
+// (`run.py --rule eprop --epochs`, docs/eprop.md "Networks"): eligibility traces per synapse,
+// the readout's learning signal, gradient descent on every projection; the loss must fall.
+heading(`e-prop: ${NET} trained by the generated PyTorch code's e-prop (run.py --rule eprop)`);
+if (!torchPython) {
+  console.log('SKIP e-prop training demo: neither python3 on PATH nor /usr/bin/python3 imports torch (Debian: apt-get install python3-torch)');
+} else {
+  const dir = join(out, 'network', 'torch');
+  expectExit('generate torch --network', saltus(['generate', NET_MODEL, '--target', 'torch', '--network', NET, '--out', dir, '--force'], true));
+  const r = spawnSync(torchPython, ['run.py', join(root, NET), '--dt', NET_DT, '--rule', 'eprop', '--epochs', '6', '--lr', '3', '--format', 'json'], { cwd: dir, encoding: 'utf8' });
+  if (r.status !== 0) failures.push(`e-prop training (run.py --rule eprop) exited ${r.status}: ${r.stderr.trim().split('\n').pop()}`);
+  else {
+    const losses = JSON.parse(r.stdout).losses;
+    console.log(`e-prop losses per epoch: ${losses.map((l) => l.toExponential(3)).join(' ')}`);
+    if (!(losses.at(-1) < losses[0])) failures.push(`e-prop training did not lower the loss (${losses[0]} -> ${losses.at(-1)})`);
+  }
 }
 
 heading('demo result');

@@ -31,6 +31,8 @@ export interface PlanShape {
   rate: number;
   /** Bytes per stored value (8: float64, 4: float32). */
   bytes: number;
+  /** Spikes per presynaptic neuron and step, where it differs from `rate` (the generated EventProp's arrival log). */
+  inputRate?: number;
 }
 
 export type Method = 'bptt' | 'eprop' | 'eventprop';
@@ -48,6 +50,14 @@ export interface MethodPlan {
   /** Bytes per step of T (0: independent of T) and the part independent of T. */
   perStep: number;
   fixed: number;
+  /**
+   * EventProp: the bytes the generated grid runtime keeps (codegen/python/runtime.py's event
+   * log, tests/eprop-plan-memory.test.ts): per spike the state before it, its time, trial,
+   * neuron, first flag and segment start; per arrival the whole target population's state
+   * before it (and each neuron's segment start where the derivation needs grid checkpoints), its
+   * time, trial, sender and cause; the states at every step where the adjoint is not event-based.
+   */
+  generatedBytes?: number;
 }
 
 export interface TrainingPlan {
@@ -103,9 +113,13 @@ export function planTraining(n: ResolvedNeuron, shape: PlanShape): TrainingPlan 
     const adjNodes = nodes([...adj.adjointFlow.values()]);
     const jumpNodes = adj.spike ? nodes([...adj.spike.jump.values()]) + size(adj.spike.phi) : 0;
     const recvNodes = adj.incoming ? nodes([...adj.incoming.jump.values()]) + size(adj.incoming.weightGradient) : 0;
-    methods.push({ method: 'eventprop', values, bytes: values * bytes,
+    const rIn = shape.inputRate ?? r;
+    const perSpike = S * bytes + bytes + 8 + 8 + 1 + 8;
+    const perArrival = N * S * bytes + bytes + 8 * 3 + (Q ? N * 8 : 0);
+    const generatedBytes = B * (spikes * perSpike + rIn * T * fanIn * perArrival + (Q ? T * N * S * bytes : 0));
+    methods.push({ method: 'eventprop', values, bytes: values * bytes, generatedBytes,
       ops: forward + B * T * N * adjNodes + B * spikes * jumpNodes + B * syn * r * T * recvNodes,
-      kept: `per spike ${R} recorded value${R === 1 ? '' : 's'}, the time and the index (r·T·N = ${spikes} spikes)${Q ? `, and the trajectories of ${Q} state${Q === 1 ? '' : 's'} at every step` : ''}`,
+      kept: `per spike ${R} recorded value${R === 1 ? '' : 's'}, the time and the index (r·T·N = ${spikes} spikes)${Q ? `, and the trajectories of ${Q} state${Q === 1 ? '' : 's'} at every step` : ''}; the generated code's event log keeps about ${formatBytes(generatedBytes)} (per arrival the target population's state)`,
       perStep: B * (r * N * (R + 2) + N * Q) * bytes, fixed: B * N * S * bytes });
   } else notes.push(`EventProp: ${adj.notDerived ?? 'not derived'}`);
   return { neuron: n.name, shape, methods, notes };

@@ -19,6 +19,10 @@ import gridHeaderText from './saltus_grid.h?raw';
 import gridBodyText from './saltus_grid.c?raw';
 import runnerText from './saltus_run.c?raw';
 import cudaText from './saltus_cuda.cu?raw';
+import epropHeaderText from './saltus_eprop.h?raw';
+import epropBodyText from './saltus_eprop.c?raw';
+import epropRunText from './saltus_eprop_run.c?raw';
+import { NO_EPROP_RUNNER, anyEprop, epropC } from './eprop';
 
 export interface GeneratedFile { name: string; content: string }
 
@@ -135,7 +139,7 @@ export function maxExpddArity(plan: KernelPlan): number {
 }
 
 /** <M>.h and <M>.c (C), or <M>.cuh (CUDA: header-only kernels, compiled within saltus_grid.cu). */
-export function modelFiles(plan: KernelPlan, f: CFlavour, id: number, ctx: CContext): GeneratedFile[] {
+export function modelFiles(plan: KernelPlan, f: CFlavour, id: number, ctx: CContext, eprop = false): GeneratedFile[] {
   const M = plan.prefix;
   const x = ext(f);
   const guard = `SALTUS_${M.toUpperCase()}_${x.h.toUpperCase()}`;
@@ -146,14 +150,15 @@ export function modelFiles(plan: KernelPlan, f: CFlavour, id: number, ctx: CCont
     + `${plan.params.length ? ` (${plan.params.map((p) => p.id).join(', ')})` : ''}, in these orders in x and p. */`];
   if (f.cuda) {
     const h = [...header(plan, f, `${M}.cuh`, ctx), `#ifndef ${guard}`, `#define ${guard}`, '', '#include <math.h>', '#include "saltus_grid.cuh"', '',
-      ...facts, '', ...helpers, ...fns, ...modelTable(plan, f, id), `#endif /* ${guard} */`, ''];
+      ...facts, '', ...helpers, ...fns, ...modelTable(plan, f, id), ...(eprop ? epropC(plan, f).lines : []), `#endif /* ${guard} */`, ''];
     return [{ name: `${M}.cuh`, content: h.join('\n') }];
   }
   const protos = plan.kernels.map((k) => `${signature(plan, k)};`);
   const h = [...header(plan, f, `${M}.h`, ctx), `#ifndef ${guard}`, `#define ${guard}`, '', '#include "saltus_grid.h"', '',
-    '#ifdef __cplusplus', 'extern "C" {', '#endif', '', ...facts, ...protos, `extern const saltus_model ${M}_model;`, '',
+    '#ifdef __cplusplus', 'extern "C" {', '#endif', '', ...facts, ...protos, `extern const saltus_model ${M}_model;`,
+    ...(eprop ? [`extern const saltus_eprop_model ${M}_eprop; /* e-prop (saltus_grid.h) */`] : []), '',
     '#ifdef __cplusplus', '}', '#endif', '', `#endif /* ${guard} */`, ''];
-  const c = [...header(plan, f, `${M}.c`, ctx), '#include <math.h>', `#include "${M}.h"`, '', ...helpers, ...fns, ...modelTable(plan, f, id)];
+  const c = [...header(plan, f, `${M}.c`, ctx), '#include <math.h>', `#include "${M}.h"`, '', ...helpers, ...fns, ...modelTable(plan, f, id), ...(eprop ? epropC(plan, f).lines : [])];
   return [{ name: `${M}.h`, content: h.join('\n') }, { name: `${M}.c`, content: c.join('\n') }];
 }
 
@@ -186,13 +191,22 @@ const KERNEL_SIGS: [string, string, string][] = [
 ];
 const argNames = (sig: string): string => sig.split(', ').map((a) => a.replace(/^.*[\s*]/, '')).join(', ');
 
-/** The grid runtime: saltus_grid.h/.c (C), or saltus_grid.cuh/.cu (CUDA, with the models of this call). */
+/** The e-prop runtime's declarations (saltus_eprop.h) inside saltus_grid.h, before its closing #endif. */
+function withEprop(headerText: string, eprop: boolean): string {
+  if (!eprop) return headerText;
+  return headerText.replace(/#endif \/\* SALTUS_GRID_H \*\/\s*$/, `${epropHeaderText}\n#endif /* SALTUS_GRID_H */\n`);
+}
+
+/** The grid runtime: saltus_grid.h/.c (C), or saltus_grid.cuh/.cu (CUDA, with the models of this call); with e-prop
+ * (a model with eligibility traces) the e-prop runtime (saltus_eprop.h/.c) is part of them. */
 export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): GeneratedFile[] {
   const headerText = gridHeaderText.replace('@SALTUS_PRECISION@', precisionLines(f));
+  const eprop = anyEprop(models);
   if (!f.cuda) {
     return [
-      { name: 'saltus_grid.h', content: [...stamp('saltus_grid.h', 'the grid runtime\'s types and functions', f), headerText].join('\n') },
-      { name: 'saltus_grid.c', content: [...stamp('saltus_grid.c', 'the grid runtime (events inside steps, the exact gradient)', f), '#include "saltus_grid.h"', gridBodyText].join('\n') },
+      { name: 'saltus_grid.h', content: [...stamp('saltus_grid.h', 'the grid runtime\'s types and functions', f), withEprop(headerText, eprop)].join('\n') },
+      { name: 'saltus_grid.c', content: [...stamp('saltus_grid.c', 'the grid runtime (events inside steps, the exact gradient)', f), '#include "saltus_grid.h"', gridBodyText,
+        ...(eprop ? [epropBodyText] : [])].join('\n') },
     ];
   }
   const dispatchProtos = KERNEL_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig});`);
@@ -203,6 +217,7 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
     '/* Every trial forward and backward on the GPU, one thread per trial (saltus_grid.cu); the result holds each',
     '   trial\'s loss and event log (spikes). 0, or -1 with a message in err. */',
     'int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltus_result *out, char *err, size_t cap);', '',
+    ...(eprop ? ['/* e-prop (docs/eprop.md): the model functions are __host__ __device__; the layer pass runs on the host. */', epropHeaderText, ''] : []),
     '#endif /* SALTUS_GRID_H */', ''];
   const dispatch = KERNEL_SIGS.flatMap(([ret, k, sig]) => {
     const cases = models.filter((m) => m.kernels.some((x) => x.name === k)).map((m, _i) => `    case ${models.indexOf(m)}: ${ret === 'void' ? '' : 'return '}${m.prefix}_${k}(${argNames(sig)});${ret === 'void' ? ' return;' : ''}`);
@@ -212,7 +227,7 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
   });
   const cu = [...stamp('saltus_grid.cu', 'the grid runtime for CUDA: one trial per thread, with the models generated with it', f),
     '#include "saltus_grid.cuh"', ...models.map((m) => `#include "${m.prefix}.cuh"`), '', gridBodyText, '',
-    '/* ---- kernels of the models generated with this file, by id ---- */', ...dispatch, cudaText];
+    '/* ---- kernels of the models generated with this file, by id ---- */', ...dispatch, cudaText, ...(eprop ? ['', epropBodyText] : [])];
   return [{ name: 'saltus_grid.cuh', content: cuh.join('\n') }, { name: 'saltus_grid.cu', content: cu.join('\n') }];
 }
 
@@ -227,6 +242,9 @@ export function runnerFile(models: readonly KernelPlan[], f: CFlavour): Generate
     ...(f.cuda ? ['#include "saltus_grid.cu"'] : ['#include "saltus_grid.h"', ...models.map((m) => `#include "${m.prefix}.h"`)]), '',
     '/* The models this runner knows, by the name declared in the model file. */',
     `static const saltus_model *const saltus_models[] = {${models.map((m) => `&${m.prefix}_model`).join(', ')}};`,
-    `#define SALTUS_N_MODELS ${models.length}`, '', runnerText];
+    `#define SALTUS_N_MODELS ${models.length}`,
+    ...(anyEprop(models) ? ['/* Their e-prop functions (saltus_eprop.h), in the same order. */',
+      `static const saltus_eprop_model *const saltus_eprop_models[] = {${models.map((m) => `&${m.prefix}_eprop`).join(', ')}};`] : []),
+    '', runnerText, anyEprop(models) ? epropRunText : NO_EPROP_RUNNER];
   return { name: file, content: L.join('\n') };
 }

@@ -863,13 +863,13 @@ static void put_result(const saltus_network *net, const saltus_result *res, int 
 /* ---- command line ---- */
 
 static const char *USAGE =
-    "Usage: saltus_run NET.json --dt TIME [--format json|text] [--max-spikes N]"
+    "Usage: saltus_run NET.json --dt TIME [--format json|text] [--max-spikes N] [--rule eventprop|eprop]"
 #if defined(__CUDACC__)
     " [--host]"
 #endif
     "\n"
     "Runs the network NET.json on the grid of step TIME (e.g. 0.1ms, 100us, 1e-4 s) and prints its loss,\n"
-    "spikes and exact gradient (docs/codegen.md, \"Runner\").\n";
+    "spikes and exact gradient (docs/codegen.md, \"Runner\"); --rule eprop runs a layer task instead (--rule eprop --help).\n";
 
 /* A time as the command line writes it: 0.1ms, 0.1 ms, 0.1 [ms], 1e-4 s (s, ms, us, \xC2\xB5s, ns). */
 static int parse_time(const char *text, double *out)
@@ -923,6 +923,9 @@ static char *read_file(const char *path, size_t *len)
     return buf;
 }
 
+/* --rule eprop: a layer task trained by e-prop (the text after this one; docs/eprop.md). */
+static int rule_main(int argc, char **argv);
+
 int main(int argc, char **argv)
 {
     const char *path = 0;
@@ -935,8 +938,11 @@ int main(int argc, char **argv)
     reader r;
     built B;
     saltus_result res;
+    for (a = 1; a + 1 < argc; a++) if (!strcmp(argv[a], "--rule") && strcmp(argv[a + 1], "eventprop")) return rule_main(argc, argv);
     for (a = 1; a < argc; a++) {
-        if (!strcmp(argv[a], "--dt") || !strcmp(argv[a], "--timestep")) {
+        if (!strcmp(argv[a], "--rule")) {
+            a++; /* eventprop: this runner */
+        } else if (!strcmp(argv[a], "--dt") || !strcmp(argv[a], "--timestep")) {
             if (a + 1 >= argc || parse_time(argv[++a], &dt)) {
                 fprintf(stderr, "saltus_run: --dt must be a positive time with a unit, e.g. 0.1ms; got '%s'\n", a < argc ? argv[a] : "");
                 return 2;

@@ -937,6 +937,10 @@ def eprop_train(model, task, epochs, lr, params=None, feedback="exact", seed=0):
 RULE_USAGE = """Usage: python3 run.py TASK.json --dt 1ms --rule eprop [--feedback exact|symmetric|random]
                      [--epochs N --lr RATE] [--format json|text]
 
+With --rule eprop and a network description (NET.json, docs/eprop.md "Networks"), every model
+population but the loss's trains by e-prop with the learning signal of the state-integral loss
+on the readout population; prints the runner contract with "rule": "eprop" and "kept_bytes".
+
 With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs":
 [trial][step][input], "win": [neuron][input], "wout": [output][neuron], "kappa", "targets":
 [trial][step][output], "params"?}. Prints the e-prop gradient {"loss", "spikes", "weights",
@@ -980,6 +984,17 @@ def rule_main(argv, models, parse_time, default_main):
         raise SystemExit(RULE_USAGE)
     with open(path, encoding="utf-8") as f:
         task = json.load(f)
+    if isinstance(task, dict) and "populations" in task:  # a network description (docs/eprop.md, "Networks")
+        try:
+            net = load_network(task, models)
+            if epochs is not None:
+                out = {"rule": "eprop", "losses": eprop_network_train(net, dt, epochs, lr, feedback)}
+            else:
+                out = eprop_network(net, dt, feedback)
+        except (GridError, ValueError, KeyError, TypeError) as e:
+            raise SystemExit("run.py: %s: %s" % (path, e))
+        print(json.dumps(out) if fmt == "json" else "\n".join("%s %s" % kv for kv in out.items()))
+        return 0
     task["dt"] = dt
     if task.get("model") not in models:
         raise SystemExit("run.py: the task names model %r; this folder has %s" % (task.get("model"), ", ".join(models)))
@@ -993,3 +1008,186 @@ def rule_main(argv, models, parse_time, default_main):
         raise SystemExit("run.py: %s" % e)
     print(json.dumps(out) if fmt == "json" else "\n".join("%s %s" % kv for kv in out.items()))
     return 0
+
+
+# ---------------------------------------------------------------------------------------------
+# e-prop on a network description (docs/eprop.md, "Networks"): every model population but the
+# loss's is a firing model with eligibility traces, simulated on the discrete e-prop grid (spike
+# test at the start of a step, spike jump and flow, then the step's arrivals: input spikes of
+# [t dt, (t+1) dt) and the spikes of step t, so recurrence has a delay of one step). The loss's
+# population is a readout that never fires, with an exact linear step map and additive arrivals;
+# the loss is the state-integral loss on the grid, E = dt sum_{t=1..T} 1/2 |X(t) - X*|^2. The
+# learning signal of a neuron is the exact partial derivative dE/dz through the readout: each
+# synapse's trace is filtered by the readout's own step, ebar(t+1) = A ebar(t) + b e(t) (A its
+# step matrix, b the arrival's direction), and the weight change is sum_t L(t) . c ebar(t) with
+# L = dt B^T err (B: the readout weights, `exact` and `symmetric`, or a fixed random matrix).
+# The recurrent paths are left out by design; nothing grows with the number of steps.
+
+def _net_counts(net, dt, steps):
+    """Per input population: (B, steps, size) counts of its spikes in each step (a spike at s
+    arrives at the end of step floor(s / dt), with a tolerance of 1e-9 steps)."""
+    out = {}
+    for name, size in net.inputs.items():
+        c = [[[0.0] * size for _ in range(steps)] for _ in net.trials]
+        for b, tr in enumerate(net.trials):
+            for s, i in tr["inputs"].get(name, []):
+                k = int((s / dt + 1e-9) // 1)
+                if 0 <= k < steps and 0 <= i < size:
+                    c[b][k][i] += 1.0
+        out[name] = X.array(c)
+    return out
+
+
+def eprop_network(net, dt, feedback="exact", seed=0):
+    """The e-prop gradient of a network description (see above): the runner contract's loss,
+    spikes (trial 0), weights per projection and params, with "rule" and "kept_bytes"."""
+    steps = max(1, int(-(-(net.duration / dt - 1e-9) // 1)))
+    loss = net.loss
+    if loss.get("kind") != "state-integral":
+        raise GridError("loss.kind: e-prop on a network takes the state-integral loss of a readout population; got %r" % (loss.get("kind"),))
+    pops = {P.name: P for P in net.populations}
+    R = pops.get(loss["population"])
+    if R is None:
+        raise GridError("loss.population: %r is not a model population" % (loss["population"],))
+    Rm = R.model
+    if Rm.HAS_GUARD or not Rm.EXACT or Rm.STATE_DEPENDENT_DERIVATIVES:
+        raise GridError("loss.population %s: e-prop's learning signal needs a readout that never fires, with an exact linear step map (%s %s)"
+                        % (R.name, Rm.NAME, "fires" if Rm.HAS_GUARD else "has a map that is not exact and linear"))
+    for P in net.populations:
+        if P is not R and not getattr(P.model, "EPROP", ()):
+            raise GridError("populations.%s: %s has no e-prop traces (%s)" % (P.name, P.model.NAME, getattr(P.model, "EPROP_NONE", "no surrogate")))
+    if loss["state"] not in Rm.STATES:
+        raise GridError("loss.state: %s has no state %r" % (Rm.NAME, loss["state"]))
+    Sr, c = len(Rm.STATES), list(Rm.STATES).index(loss["state"])
+    B = len(net.trials)
+    target = X.array(loss["target"])
+    zero_r = [0.0] * Sr
+    # the readout's arrival direction b, checked additive: r(x, w) = x + w b
+    b_dir = [float(v) - 0.0 for v in Rm.incoming_jump(zero_r, R.params, 0.0, 1.0)]
+    twice = [float(v) for v in Rm.incoming_jump(zero_r, R.params, 0.0, 2.0)]
+    shifted = [float(v) - 1.0 for v in Rm.incoming_jump([1.0] * Sr, R.params, 0.0, 1.0)]
+    if any(abs(t2 - 2 * b1) > 1e-12 * (1 + abs(b1)) or abs(s1 - b1) > 1e-12 * (1 + abs(b1)) for t2, b1, s1 in zip(twice, b_dir, shifted)):
+        raise GridError("loss.population %s: e-prop's learning signal needs arrivals that add the weight (such as I := I + w)" % R.name)
+
+    def readout_step(v, tt):
+        """A v: the readout's step matrix applied to a list of Sr arrays."""
+        out = Rm.map_jvp(zero_r, R.params, tt, dt, v)
+        return [out[Sr + k] + 0.0 * v[0] for k in range(Sr)]
+
+    counts = _net_counts(net, dt, steps)
+    size = dict(net.inputs)
+    size.update({P.name: P.size for P in net.populations})
+    projs = net.projections
+    fb = {}
+    for j, pr in enumerate(projs):
+        if pr["to"] == R.name and pr["from"] in pops and pops[pr["from"]] is not R:
+            fb[j] = _feedback(feedback, pr["weights"], seed + j)
+    signal = {P.name for P in net.populations if any(projs[j]["from"] == P.name for j in fb)}
+    x = {P.name: [X.full((B, P.size), v) for v in P.initial] for P in net.populations}
+    eps, ebar, zin, grad_w = {}, {}, {}, []
+    for j, pr in enumerate(projs):
+        nt, nf = size[pr["to"]], size[pr["from"]]
+        grad_w.append(X.full((nt, nf), 0.0))
+        if pr["to"] == R.name:
+            zin[j] = [X.full((B, nf), 0.0) for _ in range(Sr)]
+        elif pr["to"] in signal:
+            eps[j] = [X.full((B, nt, nf), 0.0) for _ in pops[pr["to"]].model.STATES]
+            ebar[j] = [X.full((B, nt, nf), 0.0) for _ in range(Sr)]
+    pq = {P.name: [(k, name) for k, (name, kind) in enumerate(P.model.EPROP) if kind == "param"] for P in net.populations if P is not R and P.name in signal}
+    eps_p = {n: [[X.full((B, pops[n].size), 0.0) for _ in pops[n].model.STATES] for _ in q] for n, q in pq.items()}
+    ebar_p = {n: [[X.full((B, pops[n].size), 0.0) for _ in range(Sr)] for _ in q] for n, q in pq.items()}
+    grad_p = {n: [0.0 for _ in q] for n, q in pq.items()}
+    spikes = {P.name: [] for P in net.populations}
+    total = 0.0
+    for t in range(steps):
+        tt = t * dt
+        z, psi = {}, {}
+        for P in net.populations:
+            if P is R:
+                z[P.name] = X.full((B, P.size), 0.0)
+                continue
+            zz, ps = P.model.eprop_spike(x[P.name], P.params, tt)
+            z[P.name] = zz + X.full((B, P.size), 0.0)
+            psi[P.name] = ps + X.full((B, P.size), 0.0)
+            for i, v in enumerate(X.tolist(z[P.name][0])):
+                if v > 0:
+                    spikes[P.name].append([tt, i])
+        pre = [counts[pr["from"]][:, t, :] if pr["from"] in counts else z[pr["from"]] for pr in projs]
+        for j in eps:
+            pr, P = projs[j], pops[projs[j]["to"]]
+            kw = [k for k, (_, kind) in enumerate(P.model.EPROP) if kind == "weight"][0]
+            zero3 = X.full((B, P.size, size[pr["from"]]), 0.0)
+            args = ([xi[:, :, None] for xi in x[P.name]], P.params, tt, dt, z[P.name][:, :, None], pre[j][:, None, :],
+                    psi[P.name][:, :, None], pr["weights"][None, :, :], eps[j])
+            e = P.model.EPROP_TRACE[kw](*args) + zero3
+            eps[j] = [u + zero3 for u in P.model.EPROP_UPDATE[kw](*args)]
+            ebar[j] = [a + b_dir[k] * e for k, a in enumerate(readout_step(ebar[j], tt))]
+        for n, q in pq.items():
+            P = pops[n]
+            zero2 = X.full((B, P.size), 0.0)
+            anyin = zero2
+            for j, pr in enumerate(projs):
+                if pr["to"] == n:
+                    anyin = anyin + X.sum_last(pre[j])[:, None]
+            anyin = (anyin > 0) * 1.0
+            for m, (k, _) in enumerate(q):
+                args = (x[n], P.params, tt, dt, z[n], anyin, psi[n], 0.0, eps_p[n][m])
+                e = P.model.EPROP_TRACE[k](*args) + zero2
+                eps_p[n][m] = [u + zero2 for u in P.model.EPROP_UPDATE[k](*args)]
+                ebar_p[n][m] = [a + b_dir[kk] * e for kk, a in enumerate(readout_step(ebar_p[n][m], tt))]
+        for P in net.populations:
+            zero2 = X.full((B, P.size), 0.0)
+            if P is R:
+                m_sub = substeps(Rm, dt)
+                xs = x[P.name]
+                for r in range(m_sub):
+                    xs = [v + zero2 for v in Rm.map_step(xs, P.params, tt + r * dt / m_sub, dt / m_sub)]
+                x[P.name] = xs
+            else:
+                x[P.name] = [v + zero2 for v in P.model.eprop_step(x[P.name], P.params, tt, dt, z[P.name])]
+        for j, pr in enumerate(projs):
+            P, s = pops[pr["to"]], pre[j]
+            zero2 = X.full((B, P.size), 0.0)
+            for i in range(size[pr["from"]]):
+                col = s[:, i]
+                most = int(max(X.tolist(col)))
+                for rep in range(most):
+                    hit = (col > rep)[:, None]
+                    if P is R:
+                        after = Rm.incoming_jump(x[P.name], P.params, tt + dt, pr["weights"][None, :, i])
+                    else:
+                        after = P.model.eprop_arrive(x[P.name], P.params, pr["weights"][None, :, i])
+                    x[P.name] = [X.where(hit, a + zero2, xi) for a, xi in zip(after, x[P.name])]
+            if j in zin:
+                zin[j] = [a + b_dir[k] * s for k, a in enumerate(readout_step(zin[j], tt))]
+        err = x[R.name][c] - target[None, :]
+        total += 0.5 * dt * float(X.sum(err * err))
+        L = {}
+        for j, Bm in fb.items():
+            n = projs[j]["from"]
+            L[n] = (L[n] if n in L else 0.0) + dt * (err @ Bm)
+        for j in eps:
+            Lp = L[projs[j]["to"]]
+            grad_w[j] = grad_w[j] + (Lp[:, :, None] * ebar[j][c]).sum(0)
+        for n, q in pq.items():
+            for m in range(len(q)):
+                grad_p[n][m] += float(X.sum(L[n] * ebar_p[n][m][c]))
+        for j in zin:
+            grad_w[j] = grad_w[j] + dt * (err.T @ zin[j][c])
+    kept = [a for d in (eps, ebar, zin) for v in d.values() for a in v]
+    kept += [a for n in eps_p for e in eps_p[n] for a in e] + [a for n in ebar_p for e in ebar_p[n] for a in e]
+    kept += [a for v in x.values() for a in v] + grad_w
+    return {"rule": "eprop", "loss": total, "spikes": spikes, "weights": [X.tolist(g) for g in grad_w],
+            "params": {"%s.%s" % (n, name): grad_p[n][m] for n, q in pq.items() for m, (_, name) in enumerate(q)},
+            "steps": steps, "kept_bytes": sum(_nbytes(a) for a in kept) + 8 * sum(len(q) for q in pq.values())}
+
+
+def eprop_network_train(net, dt, epochs, lr, feedback="exact", seed=0):
+    """Gradient descent on every projection's weights with e-prop; returns the loss of every epoch."""
+    losses = []
+    for _ in range(int(epochs)):
+        g = eprop_network(net, dt, feedback, seed)
+        losses.append(g["loss"])
+        for pr, d in zip(net.projections, g["weights"]):
+            pr["weights"] = pr["weights"] - lr * X.array(d)
+    return losses

@@ -106,11 +106,11 @@ export function initFile(plans: readonly KernelPlan[], network: boolean): Genera
   const L = [...stamp('__init__.py', 'the package of PyTorch code generated from the models'),
     '"""PyTorch layers of Saltus models with exact event-based gradients (import this folder as a package)."""',
     `from . import ${['saltus_dialect', 'saltus_grid', 'saltus_torch', ...plans.map(mod)].join(', ')}`,
-    'from .saltus_torch import GridLayerFunction, GridNetwork, LayerOutput, SpikingLayer, first_spike_logits, kept_bytes, pad_events',
+    'from .saltus_torch import GridLayerFunction, GridNetwork, LayerOutput, SpikingLayer, eprop_backward, first_spike_logits, kept_bytes, pad_events',
     `from .layers import ${layers.join(', ')}`,
     ...(network ? ['from .network import Network'] : []), '',
     `__all__ = [${[...layers, ...(network ? ['Network'] : []), 'SpikingLayer', 'GridLayerFunction', 'GridNetwork', 'LayerOutput',
-      'first_spike_logits', 'kept_bytes', 'pad_events', 'saltus_grid', ...plans.map(mod)].map((n) => `"${n}"`).join(', ')}]`];
+      'eprop_backward', 'first_spike_logits', 'kept_bytes', 'pad_events', 'saltus_grid', ...plans.map(mod)].map((n) => `"${n}"`).join(', ')}]`];
   return { name: '__init__.py', content: L.join('\n') + '\n' };
 }
 

@@ -332,6 +332,62 @@ class SpikingLayer(torch.nn.Module):
         params = [self.model_params[k] for k in self.spec.param_names]
         return LayerOutput(*GridLayerFunction.apply(self.spec, times, index, self.weight, *params))
 
+    def eprop(self, inputs: torch.Tensor, targets: torch.Tensor, readout: torch.Tensor, kappa: float,
+              feedback: str = "exact", seed: int = 0) -> dict:
+        """e-prop on this layer (docs/eprop.md): see ``eprop_backward``; adds the gradients to ``.grad``."""
+        return eprop_backward(self, inputs, targets, readout, kappa, feedback, seed)
+
+
+def eprop_backward(layer: "SpikingLayer", inputs: torch.Tensor, targets: torch.Tensor, readout: torch.Tensor,
+                   kappa: float, feedback: str = "exact", seed: int = 0) -> dict:
+    """e-prop (docs/eprop.md) on a layer fed by input spike trains on the grid and read out by leaky
+    integrators ``y(t+1) = kappa y(t) + readout z(t)`` with the loss ``E = 1/2 sum_t |y - targets|^2``.
+
+    Online and without an autograd graph: per synapse the model's derived eligibility vector and
+    its trace filtered by the readout, a learning signal per neuron and step (``feedback``:
+    "exact" or "symmetric", the readout's transpose, which for this readout is the exact dE/dz;
+    "random", a fixed random matrix drawn from ``seed``); nothing grows with the steps. The
+    gradients are *added* to ``.grad`` of ``layer.weight``, of the layer's trainable parameters
+    and of ``readout`` when it requires grad, so a torch optimizer can step on them.
+
+    Parameters
+    ----------
+    layer : SpikingLayer
+        Its model must have eligibility traces (a ``surrogate`` line).
+    inputs : torch.Tensor
+        (B, T, in_features) input spikes per step, 0 or 1.
+    targets : torch.Tensor
+        (B, T, K) the readout's targets per step.
+    readout : torch.Tensor
+        (K, out_features) readout weights.
+    kappa : float
+        The readout's decay per step, exp(-dt / tau_out).
+
+    Returns
+    -------
+    dict
+        {"loss": E, "spikes": spikes of the pass, "kept_bytes": bytes of the arrays kept}.
+    """
+    w = layer.weight
+    values = dict(layer.spec.fixed)
+    values.update({k: float(v) for k, v in layer.model_params.items()})
+    task = {"dt": layer.spec.dt, "inputs": inputs.detach(), "win": w.detach(), "wout": readout.detach(),
+            "targets": targets.detach(), "kappa": float(kappa)}
+    with X.on(w.dtype, w.device):
+        out = grid.eprop_layer(layer.model, task, values, feedback, seed)
+
+    def add(param, value):
+        g = torch.as_tensor(value, dtype=param.dtype, device=param.device)
+        param.grad = g if param.grad is None else param.grad + g
+
+    add(w, out["weights"])
+    for k, v in layer.model_params.items():
+        if k in out["params"]:
+            add(v, out["params"][k])
+    if readout.requires_grad:
+        add(readout, out["readout"])
+    return {"loss": out["loss"], "spikes": out["spikes"], "kept_bytes": out["kept_bytes"]}
+
 
 def first_spike_logits(first: torch.Tensor, duration: float, tau: float) -> torch.Tensor:
     """-t_first / tau per neuron, silent neurons at t_first = duration (the ce-first-spike loss's logits).
