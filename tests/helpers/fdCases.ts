@@ -2,6 +2,8 @@
 // synthetic models that exercise what the samples do not (time in guards and jumps, a
 // non-identity incoming jump, a trainable parameter inside the incoming jump, a down
 // crossing). Scenario numbers are our own (invented pump-vibration spike pattern).
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { fromMathjs } from './parseMathjs';
 import type { CheckCase } from './gradientCheck';
 import { modelNeuron, sampleNeuron } from './models';
@@ -111,3 +113,27 @@ export function fdCases(): NamedCase[] {
     } },
   ];
 }
+
+/** Test-only receptor models: `Duo` (a nonlinear excitatory block with a trainable parameter
+ *  in its jump, conductance-like inhibition) and the sample's `Balanced`. */
+export const RECEPTORS = `
+neuron Duo {  #~ test-only: two receptors, nonlinear excitatory jump, conductance-like inhibition
+  param tau_m = 10 [ms] trainable
+  param tau_e = 4 [ms] trainable
+  param tau_i = 8 [ms] trainable
+  param g_max = 6 trainable
+  param E_i = -0.5 trainable
+  state V = 0
+  state Ie = 0
+  state Ii = 0
+  dV/dt = (Ie + Ii * (E_i - V) - V) / tau_m
+  dIe/dt = -Ie / tau_e
+  dIi/dt = -Ii / tau_i
+  fire when V crosses 1 up { V := 0 }
+  incoming w_exc {
+    Ie := Ie + w_exc * (1 - Ie / g_max)
+    V := V + 0.05 * w_exc
+  }
+  incoming w_inh { Ii := Ii + w_inh * (1 + 0.1 * V) }
+}
+` + readFileSync(join(__dirname, '..', '..', 'samples', 'receptors.saltus'), 'utf8').split('#~ non-spiking')[0]!.replace(/^timestep.*$/m, '');

@@ -67,7 +67,8 @@ export function whyNoEligibility(n: ResolvedNeuron): string | undefined {
   if (!n.fire) return `${n.name} has no fire block: it never spikes, so it has no pseudo-derivative and no eligibility trace`;
   if (n.fire.direction === 'either') return `${n.name} fires on a crossing in either direction: e-prop's spike test z = H(g) needs 'up' or 'down'`;
   if (!n.surrogate) return `${n.name} has no 'surrogate' line: e-prop needs the pseudo-derivative of the spike (add 'surrogate' inside the neuron; a quick fix writes the triangular one)`;
-  const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.incoming ? [n.incoming.weight] : []).filter(isEligibilitySymbolName);
+  if (n.receptors.length > 1) return `${n.name} has ${n.receptors.length} incoming blocks (${n.receptors.map((r) => r.weight).join(', ')}): e-prop's arrival step is derived for one block only so far`;
+  const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.receptors.map((r) => r.weight)).filter(isEligibilitySymbolName);
   if (clash.length) return `${clash.map((c) => `'${c}'`).join(', ')} ${clash.length === 1 ? 'is' : 'are'} spelled like a symbol of the e-prop formulas (z, z_pre, psi, eps_X); rename to derive them`;
   return undefined;
 }
@@ -110,7 +111,7 @@ function derive(n: ResolvedNeuron): EligibilityDerivation {
   const Fx1 = F.map((e) => X.map((y) => normalise(substitute(derivative(e, y), toJ))));
   // 4. arrivals at x2 = step
   const toX2 = new Map(X.map((x, i) => [x, step[i]!] as const));
-  const inc = n.incoming;
+  const inc = n.receptors[0]; // one block at most here (whyNoEligibility)
   const r = (x: string): Sym | undefined => inc?.jumps.get(x);
   const A = X.map((x) => { const rx = r(x); return rx ? add(sym(x), mul(zpre, add(rx, mul(num(-1), sym(x))))) : sym(x); });
   const Ax = A.map((e) => X.map((y) => normalise(substitute(derivative(e, y), toX2))));

@@ -92,7 +92,7 @@ export function renderEligibilityLatex(d: EligibilityDerivation): string {
 }
 
 /** Hover text for a state (its eligibility components), the fire block or the surrogate (psi and every trace). */
-export function eligibilityHoverMarkdown(d: EligibilityDerivation, item: { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' } | { kind: 'surrogate' }): string | undefined {
+export function eligibilityHoverMarkdown(d: EligibilityDerivation, item: { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string } | { kind: 'surrogate' }): string | undefined {
   if (d.notDerived) return item.kind === 'surrogate' ? `_e-prop: none: ${d.notDerived}._` : undefined;
   const c = (s: Sym): string => '`' + toMathjs(s) + '`';
   if (item.kind === 'state') {

@@ -149,7 +149,7 @@ function symbolMarkdown(a: Analysis, s: SymbolInfo): string {
 /** Whether the incoming block of a weight carries a note of its own. */
 function weightNote(a: Analysis, s: SymbolInfo): boolean {
   const n = s.neuron ? resolvedNeuron(a, s.neuron) : undefined;
-  return n?.incoming?.decl.doc !== undefined && n.incoming.weight === s.name;
+  return n?.receptors.find((r) => r.weight === s.name)?.decl.doc !== undefined;
 }
 
 function headerText(a: Analysis, s: SymbolInfo, decl: A.ParamDecl | A.StateDecl | A.LetDecl | undefined): string {

@@ -21,7 +21,7 @@ export function epropFunctions(plan: KernelPlan): { lines: string[]; names: stri
   if (d.notDerived) return { lines: ['EPROP = ()', `EPROP_NONE = "${pyStringBody(d.notDerived)}"`, '', ''], names: ['EPROP'] };
   const stateIds = new Map(plan.states.map((s) => [s.name, s.id] as const));
   const paramIds = new Map(plan.params.map((p) => [p.name, p.id] as const));
-  const weight = plan.neuron.incoming?.weight;
+  const weight = plan.neuron.receptors[0]?.weight;
   const epsIndex = new Map(d.states.map((x, i) => [eligibilityName(x), i] as const));
   const name = (n: string): string => {
     const s = stateIds.get(n) ?? paramIds.get(n);

@@ -1,0 +1,175 @@
+// Receptors (language v1): several `incoming` blocks per neuron, told apart by their weight
+// names, and `connect A -> B via W`. Resolution and diagnostics (stable codes), the derived
+// per-block adjoint, and its check against finite differences of our accurate simulator
+// (server/src/simulate) on a network with excitatory and inhibitory receptors.
+// Scenario numbers are our own (invented pump vibration-sensor spike pattern).
+import { describe, expect, it } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { deriveNeuron } from '../server/src/adjoint/derive';
+import { adjointJson } from '../server/src/adjoint/render';
+import { simulate } from '../server/src/simulate';
+import { toMathjs } from '../server/src/symbolic/print';
+import { gradientCheck, formatReport } from './helpers/gradientCheck';
+import { fromMathjs } from './helpers/parseMathjs';
+import { KNOCKS, RECEPTORS } from './helpers/fdCases';
+import { modelNeuron } from './helpers/models';
+
+const TWO = `timestep 0.1 [ms]
+neuron P {
+  param tau_m = 20 [ms]
+  param tau_e = 5 [ms]
+  param tau_i = 10 [ms]
+  state V = 0
+  state Ie = 0
+  state Ii = 0
+  dV/dt = (Ie - Ii - V) / tau_m
+  dIe/dt = -Ie / tau_e
+  dIi/dt = -Ii / tau_i
+  fire when V crosses 1 up { V := 0 }
+  incoming w_exc { Ie := Ie + w_exc }
+  incoming w_inh { Ii := Ii + w_inh }
+}
+`;
+const diags = (text: string) => analyse(text).diagnostics.map((d) => ({ code: d.code, severity: d.severity, at: text.slice(d.range.start, d.range.end), message: d.message }));
+
+describe('receptors: resolution and diagnostics (docs/language.md, v1 rules for the corner cases)', () => {
+  it('two blocks resolve, in the order written, each with its weight', () => {
+    const a = analyse(TWO + 'connect P -> P via w_exc\nconnect P -> P via w_inh\n');
+    expect(a.diagnostics).toEqual([]);
+    const n = a.model.neurons[0]!;
+    expect(n.wellFormed).toBe(true);
+    expect(n.receptors.map((r) => r.weight)).toEqual(['w_exc', 'w_inh']);
+    expect(n.incoming?.weight).toBe('w_exc');
+    // the same pair projected twice, into two blocks
+    expect(a.model.connections.map((c) => `${c.from}->${c.to} via ${c.via}`)).toEqual(['P->P via w_exc', 'P->P via w_inh']);
+  });
+
+  it('without connect lines: one implicit self-projection per block', () => {
+    expect(analyse(TWO).model.connections.map((c) => [c.via, c.implicit])).toEqual([['w_exc', true], ['w_inh', true]]);
+  });
+
+  it('via is required when the target has several blocks (missing-via, a fix per block)', () => {
+    const text = TWO + 'connect P -> P\n';
+    const a = analyse(text);
+    expect(diags(text).map((d) => [d.code, d.severity, d.at])).toEqual([['missing-via', 'error', 'connect P -> P']]);
+    expect(a.diagnostics[0]!.fixes!.map((f) => f.title)).toEqual(['Connect via w_exc', 'Connect via w_inh']);
+    expect(a.model.connections).toEqual([]);
+  });
+
+  it('via names an existing block, with did-you-mean', () => {
+    const text = TWO + 'connect P -> P via w_in\n';
+    const d = diags(text);
+    expect(d.map((x) => [x.code, x.at])).toEqual([['unknown-name', 'w_in']]);
+    expect(d[0]!.message).toContain("did you mean 'w_inh'?");
+    expect(analyse(text).diagnostics[0]!.fixes!.map((f) => f.edits[0]!.newText)).toEqual(['w_inh']);
+  });
+
+  it('the same pair twice through the same block is an error; twice into one v0 block stays a warning', () => {
+    const text = TWO + 'connect P -> P via w_inh\nconnect P -> P via w_inh\n';
+    expect(diags(text).map((x) => [x.code, x.severity])).toEqual([['duplicate-declaration', 'error']]);
+    const v0 = 'neuron A { state V = 0\n dV/dt = -V / 1 [ms]\n fire when V crosses 1 up { V := 0 }\n incoming w { V := V + w } }\nconnect A -> A\nconnect A -> A via w\n';
+    expect(diags(v0).map((x) => [x.code, x.severity])).toEqual([['duplicate-declaration', 'warning']]);
+  });
+
+  it('via on a single block is optional and checked', () => {
+    const v0 = 'neuron A { state V = 0\n dV/dt = -V / 1 [ms]\n fire when V crosses 1 up { V := 0 }\n incoming w { V := V + w } }\n';
+    expect(diags(v0 + 'connect A -> A via w\n')).toEqual([]);
+    expect(diags(v0 + 'connect A -> A via v\n').map((x) => x.code)).toEqual(['unknown-name']);
+  });
+
+  it('two blocks with the same weight name: duplicate-declaration on the second', () => {
+    const text = TWO.replace('incoming w_inh { Ii := Ii + w_inh }', 'incoming w_exc { Ii := Ii + w_exc }');
+    const d = diags(text);
+    expect(d.map((x) => [x.code, x.severity, x.at])).toEqual([['duplicate-declaration', 'error', 'w_exc']]);
+    expect(text.indexOf('w_exc', text.indexOf('incoming w_exc') + 5)).toBeLessThan(analyse(text).diagnostics[0]!.range.start);
+  });
+
+  it('each block infers its own weight unit', () => {
+    const text = TWO.replace('state Ie = 0', 'state Ie = 0 [nA]').replace('state Ii = 0', 'state Ii = 0 [nA]').replace('dV/dt = (Ie - Ii - V) / tau_m', 'dV/dt = ((Ie - Ii) * 1 [Mohm] / 1 [mV] - V) / tau_m');
+    const n = analyse(text).model.neurons[0]!;
+    expect(n.wellFormed).toBe(true);
+    expect(n.receptors.map((r) => r.weightDim)).toEqual([n.states[1]!.dim, n.states[2]!.dim]);
+  });
+
+  it("'delay' after 'via W' is still reported as not in the language yet", () => {
+    const d = diags(TWO + 'connect P -> P via w_exc delay 1 [ms]\nconnect P -> P via w_inh\n');
+    expect(d.map((x) => [x.code, x.at])).toEqual([['unsupported', 'delay 1 [ms]']]);
+  });
+
+  it("'via' stays a name elsewhere (v0 files keep their meaning)", () => {
+    expect(diags('neuron A { param via = 2 [ms]\n state V = 0\n dV/dt = -V / via }\n').map((x) => x.code)).toEqual([]);
+  });
+
+  it('the via name is a reference to the weight (navigation, rename)', () => {
+    const text = TWO + 'connect P -> P via w_inh\nconnect P -> P via w_exc\n';
+    const a = analyse(text);
+    const at = text.lastIndexOf('via w_inh') + 4;
+    const ref = a.model.references.find((r) => r.range.start === at);
+    expect(ref?.target.kind).toBe('weight');
+    expect(ref?.target.name).toBe('w_inh');
+  });
+});
+
+describe('receptors: the derived adjoint has one jump, weight gradient and coupling term per block', () => {
+  it('for additive current synapses: lambda jumps are the identity, dL/dw_k = lambda_{I_k}+ (Wunderlich & Pehle 2021, eq. for the current synapse)', () => {
+    const n = analyse(TWO).model.neurons[0]!;
+    const d = deriveNeuron(n);
+    expect(d.receptors.map((r) => r.weight)).toEqual(['w_exc', 'w_inh']);
+    expect(d.receptors.map((r) => toMathjs(r.weightGradient))).toEqual(['lambda_Ie', 'lambda_Ii']);
+    const json = adjointJson([d]).models[0]!;
+    expect(json.receptors.map((r) => r.weight)).toEqual(['w_exc', 'w_inh']);
+    expect(json.incoming?.weight).toBe('w_exc');
+  });
+});
+
+
+describe('receptors: derived gradients against finite differences of the accurate simulator', () => {
+  const duo = modelNeuron(RECEPTORS, 'Duo');
+  const balanced = modelNeuron(RECEPTORS, 'Balanced');
+  const L = fromMathjs;
+
+  it('Duo: nonlinear excitatory block with a trainable parameter, conductance-like inhibition; one pair projected into both blocks', () => {
+    const c = {
+      net: { neurons: [{ model: duo }, { model: duo, params: { g_max: 5 } }],
+        synapses: [{ from: 0, to: 1, weight: 3, receptor: 0 }, { from: 0, to: 1, weight: 0.8, receptor: 1 }, { from: 1, to: 0, weight: 1.2, receptor: 1 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 4.5 }, { target: 0, times: [0.0072, 0.0243], weight: 1.5, receptor: 1 }, { target: 1, times: [0.004, 0.017], weight: 3 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 1, integrand: L('(V - 0.2)^2 + Ii^2'), perSpike: L('20 * t') }, { neuron: 0, integrand: L('Ie^2 / 100') }] },
+      sim: { rtol: 1e-12 },
+    };
+    const r = gradientCheck(c, (m) => deriveNeuron(m, { params: 'all' }), { relStep: 1e-5 });
+    console.log(`Duo: ${r.spikes} spikes, ${r.rows.length} gradients, max relative error ${r.maxRelError.toExponential(2)}\n${formatReport(r)}`);
+    expect(r.spikes).toBeGreaterThan(3);
+    expect(r.trajectory.spikes.some((s) => s.neuron === 1)).toBe(true);
+    expect(r.rows.filter((x) => x.unstable)).toEqual([]);
+    expect(r.maxRelError).toBeLessThan(2e-5);
+    // the inhibitory synapses matter: their gradients are not 0
+    expect(Math.abs(r.gradients.weights[1]!)).toBeGreaterThan(1e-6);
+    expect(Math.abs(r.gradients.inputWeights[1]!)).toBeGreaterThan(1e-6);
+    // negative control: the two blocks' derivations swapped (each synapse handled by the other
+    // block's jump, weight gradient and coupling) no longer agree with finite differences
+    const swapped = gradientCheck(c, (m) => { const d = deriveNeuron(m, { params: 'all' }); return { ...d, receptors: [...d.receptors].reverse() }; }, { relStep: 1e-5 });
+    expect(swapped.maxRelError).toBeGreaterThan(1e-2);
+  });
+
+  it('Balanced (the sample): excitatory and inhibitory current synapses', () => {
+    const c = {
+      net: { neurons: [{ model: balanced }, { model: balanced }],
+        synapses: [{ from: 0, to: 1, weight: 4, receptor: 0 }, { from: 1, to: 0, weight: 0.9, receptor: 1 }, { from: 0, to: 1, weight: 0.5, receptor: 1 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 6 }, { target: 1, times: KNOCKS.slice(3), weight: 2.5, receptor: 1 }, { target: 1, times: [0.004, 0.011], weight: 5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 1, integrand: L('(V - 0.3)^2'), perSpike: L('30 * t^2') }, { neuron: 0, perSpike: L('100 * (t - 0.01)^2') }] },
+      sim: { rtol: 1e-12 },
+    };
+    const r = gradientCheck(c, (m) => deriveNeuron(m, { params: 'all' }), { relStep: 1e-5 });
+    console.log(`Balanced: ${r.spikes} spikes, ${r.rows.length} gradients, max relative error ${r.maxRelError.toExponential(2)}\n${formatReport(r)}`);
+    expect(r.spikes).toBeGreaterThan(3);
+    expect(r.rows.filter((x) => x.unstable)).toEqual([]);
+    expect(r.maxRelError).toBeLessThan(2e-5);
+  });
+
+  it('a block index the target lacks is refused with a message', () => {
+    const t = simulate({ neurons: [{ model: balanced }], synapses: [] }, 0.01, [{ target: 0, times: [0.001], weight: 1, receptor: 2 }]);
+    expect(t.errors).toEqual(['input 0: Balanced has no incoming block number 2']);
+  });
+});
