@@ -3,7 +3,11 @@
 // per-block adjoint, and its check against finite differences of our accurate simulator
 // (server/src/simulate) on a network with excitatory and inhibitory receptors.
 // Scenario numbers are our own (invented pump vibration-sensor spike pattern).
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
+import { gridBackward, gridForward, networkFromScenario, type Network as GridNetwork } from '../server/src/grid';
 import { analyse } from '../server/src/pipeline';
 import { deriveNeuron } from '../server/src/adjoint/derive';
 import { adjointJson } from '../server/src/adjoint/render';
@@ -14,6 +18,7 @@ import { fromMathjs } from './helpers/parseMathjs';
 import { KNOCKS, RECEPTORS } from './helpers/fdCases';
 import { modelNeuron } from './helpers/models';
 
+const ROOT = join(__dirname, '..');
 const TWO = `timestep 0.1 [ms]
 neuron P {
   param tau_m = 20 [ms]
@@ -171,5 +176,81 @@ describe('receptors: derived gradients against finite differences of the accurat
   it('a block index the target lacks is refused with a message', () => {
     const t = simulate({ neurons: [{ model: balanced }], synapses: [] }, 0.01, [{ target: 0, times: [0.001], weight: 1, receptor: 2 }]);
     expect(t.errors).toEqual(['input 0: Balanced has no incoming block number 2']);
+  });
+});
+
+describe('receptors on the grid (the semantics of every generated target) and in the cross-check', () => {
+  const text = readFileSync(join(ROOT, 'samples', 'receptors.saltus'), 'utf8');
+  const json = readFileSync(join(ROOT, 'samples', 'scenarios', 'receptors.json'), 'utf8');
+  const analysis = analyse(text);
+  const parsed = parseScenario(json, analysis);
+  if (!parsed.ok) throw new Error(JSON.stringify(parsed.errors));
+  const gridNet = (): GridNetwork => networkFromScenario(parsed.scenario);
+
+  it('the sample checks clean; its scenario names the blocks and projects sensor -> hid into both', () => {
+    expect(analysis.diagnostics.filter((d) => d.severity !== 'hint')).toEqual([]);
+    expect(parsed.scenario.projections.map((p) => [p.from, p.to, p.via ?? null, p.receptor])).toEqual([
+      ['sensor', 'hid', 'w_exc', 0], ['sensor', 'hid', 'w_inh', 1], ['hid', 'hid', 'w_inh', 1], ['hid', 'out', null, 0]]);
+    expect(parsed.scenario.remarks).toEqual([]);
+  });
+
+  it('cross-check (adjoint of the accurate simulator vs its central finite differences): every row agrees', () => {
+    const r = runCrossCheckSync(analysis, json, { traces: false });
+    const bad = [...r.gradients, ...r.params].filter((x) => x.status !== 'ok');
+    console.log(`receptors cross-check: ${r.gradients.length} weight rows, ${r.params.length} parameter rows; worst relative error ${Math.max(...[...r.gradients, ...r.params].map((x) => x.relativeError ?? 0)).toExponential(2)}; spikes ${JSON.stringify(r.spikes ?? null)}`);
+    expect(bad.map((x) => `${'projection' in x ? x.projection : x.name}: ${x.status}`)).toEqual([]);
+    expect(r.gradients.filter((x) => x.via === 'w_inh').length).toBe(8); // 6 from the sensor, 2 lateral (no self-synapses)
+    expect(r.gradients.some((x) => x.via === 'w_inh' && Math.abs(x.adjoint) > 1e-6)).toBe(true);
+  });
+
+  it('grid gradient = central differences of the grid forward pass, and agrees with the exact gradient at dt = 0.1 ms (LTI flow: <= 1e-6)', () => {
+    const net = gridNet();
+    const dt = 1e-4;
+    const run = gridForward(net, { dt });
+    expect(run.errors).toEqual([]);
+    const g = gridBackward(run);
+    const spikes = (x: ReturnType<typeof gridForward>): number => x.trials.reduce((s, t) => s + Object.values(t.spikes).reduce((a, v) => a + v.length, 0), 0);
+    const n0 = spikes(run);
+    expect(n0).toBeGreaterThan(3);
+    let worst = 0, count = 0;
+    net.projections.forEach((pr, p) => pr.weights.forEach((row, i) => row.forEach((w0, j) => {
+      if (pr.from === pr.to && i === j) return;
+      const h = 1e-6 * Math.max(Math.abs(w0), 1e-12);
+      const at = (x: number): ReturnType<typeof gridForward> => { row[j] = x; const o = gridForward(net, { dt }); row[j] = w0; return o; };
+      const rs = [at(w0 + h), at(w0 - h), at(w0 + h / 2), at(w0 - h / 2)];
+      if (rs.some((x) => spikes(x) !== n0)) return;
+      const d1 = (rs[0]!.loss - rs[1]!.loss) / (2 * h), d2 = (rs[2]!.loss - rs[3]!.loss) / h, fd = (4 * d2 - d1) / 3;
+      const floor = 3e3 * 2.2e-16 * Math.abs(run.loss) / h;
+      const gap = Math.abs(g.weights[p]![i]![j]! - fd);
+      count++;
+      if (gap > floor) worst = Math.max(worst, gap / Math.max(Math.abs(fd), 1e-300));
+    })));
+    console.log(`receptors grid: ${count} weight rows vs grid central differences, worst relative gap above the rounding floor ${worst.toExponential(2)}`);
+    expect(count).toBeGreaterThan(15);
+    expect(worst).toBeLessThan(1e-6);
+    const exact = runCrossCheckSync(analysis, json, { traces: false });
+    const errs = exact.gradients.map((r) => Math.abs(g.weights[r.projection]![r.to]![r.from]! - r.adjoint) / Math.max(Math.abs(r.adjoint), 1e-300));
+    console.log(`receptors grid vs exact gradient at dt = 0.1 ms: max ${Math.max(...errs).toExponential(2)}`);
+    expect(Math.max(...errs)).toBeLessThan(1e-6);
+  }, 120_000);
+
+  it('a projection into a block the model lacks is refused by the grid validator', () => {
+    const net = gridNet();
+    net.projections[1] = { ...net.projections[1]!, receptor: 5 };
+    expect(gridForward(net, { dt: 1e-4 }).errors).toEqual(['projections[1].receptor: Balanced has no incoming block number 5']);
+  });
+
+  it('scenario: via is required into several blocks, checked against the model, and a pair twice into one block is refused', () => {
+    const sc = JSON.parse(json) as { projections: Record<string, unknown>[] };
+    const errs = (mut: (s: typeof sc) => void): string[] => {
+      const c = JSON.parse(json) as typeof sc;
+      mut(c);
+      const r = parseScenario(JSON.stringify(c), analysis);
+      return r.ok ? [] : r.errors.map((e) => `${e.path}: ${e.message}`);
+    };
+    expect(errs((c) => { delete c.projections[1]!.via; })).toEqual(['projections[1]: hid (Balanced) has 2 incoming blocks (w_exc, w_inh): say which one receives this projection with "via", e.g. "via": "w_exc"']);
+    expect(errs((c) => { c.projections[1]!.via = 'w_in'; })).toEqual(["projections[1].via: Balanced has no incoming block with the weight 'w_in' (its blocks: w_exc, w_inh); did you mean 'w_inh'?"]);
+    expect(errs((c) => { c.projections[1]!.via = 'w_exc'; })).toEqual(['projections[1]: sensor -> hid via w_exc is already given by projections[0]; merge the two']);
+    expect(errs((c) => { c.projections[3]!.via = 'w'; })).toEqual([]);
   });
 });
