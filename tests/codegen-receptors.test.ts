@@ -1,10 +1,11 @@
 // Receptors (several incoming blocks, projections `via` one of them) in generated code: the
-// NumPy runner on the receptors sample scenario (the same pair of populations projected into
+// NumPy runner and the C runner (gcc, strict flags) on the receptors sample scenario (the same pair of populations projected into
 // both blocks) agrees with Saltus's own grid simulator (server/src/grid/, checked against
 // finite differences and the exact gradient of the accurate simulator in
 // tests/receptors.test.ts) to 1e-12 relative in float64. Scenario data: invented pump-sensor
 // spike patterns.
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { spawnSync } from 'node:child_process';
+import { mkdirSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, test } from 'vitest';
@@ -41,4 +42,39 @@ describe.skipIf(!python)('NumPy target with receptors', () => {
     delete bad.projections[1]!.via;
     expect(() => runNumpy('receptors_novia', text, bad, '0.1ms')).toThrow(/projections\[1\]: Balanced has 2 incoming blocks \(w_exc, w_inh\)/);
   }, 300_000);
+});
+
+const hasGcc = spawnSync('gcc', ['--version']).status === 0;
+
+function runC(name: string, text: string, netJson: unknown, dt: string, float = false): RunnerReport {
+  const dir = join(work, `c_${name}`);
+  const g = generateFiles(analyse(text), { target: 'c', network: netJson, float, source: `${name}.saltus` });
+  expect(g.errors).toEqual([]);
+  mkdirSync(dir, { recursive: true });
+  for (const f of g.files) writeFileSync(join(dir, f.name), f.content);
+  const sources = readdirSync(dir).filter((f) => f.endsWith('.c'));
+  const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic', ...sources, '-lm', '-o', 'saltus_run'], { cwd: dir, encoding: 'utf8' });
+  if (cc.status !== 0 || cc.stderr) throw new Error(`gcc failed:\n${cc.stderr}`);
+  writeFileSync(join(dir, 'net.json'), JSON.stringify(netJson));
+  const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', dt, '--format', 'json'], { cwd: dir, encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`saltus_run failed (${r.status}):\n${r.stderr}`);
+  return JSON.parse(r.stdout) as RunnerReport;
+}
+
+describe.skipIf(!hasGcc)('C target with receptors', () => {
+  test('receptors sample scenario at dt = 0.1 ms: the same spikes, loss and gradients as the grid', () => {
+    const { text, json, net } = sampleNetwork('receptors');
+    const r = compareWithGrid('C runner', 'receptors', net, 1e-4, runC('receptors', text, json, '0.1ms'));
+    expect(r.spikes).toBeGreaterThan(3);
+  }, 120_000);
+
+  test('a projection without "via" into a model with several blocks stops the runner with a message', () => {
+    const { text, json } = sampleNetwork('receptors');
+    const bad = JSON.parse(JSON.stringify(json)) as { projections: Record<string, unknown>[] };
+    delete bad.projections[1]!.via;
+    expect(() => runC('receptors_novia', text, bad, '0.1ms')).toThrow(/projections\[1\]: Balanced has several incoming blocks/);
+    const wrong = JSON.parse(JSON.stringify(json)) as { projections: Record<string, unknown>[] };
+    wrong.projections[1]!.via = 'w_exc';
+    expect(() => runC('receptors_twice', text, wrong, '0.1ms')).toThrow(/projections\[1\]: sensor -> hid is projected twice/);
+  }, 120_000);
 });
