@@ -13,6 +13,12 @@ import { deriveNeuron } from '../server/src/adjoint/derive';
 import { adjointJson } from '../server/src/adjoint/render';
 import { simulate } from '../server/src/simulate';
 import { toMathjs } from '../server/src/symbolic/print';
+import { complete } from '../server/src/outputs/completion';
+import { hover } from '../server/src/outputs/hover';
+import { isRefusal, rename } from '../server/src/outputs/rename';
+import { definition, references } from '../server/src/outputs/navigation';
+import { formatText } from '../server/src/outputs/format';
+import { semanticTokens } from '../server/src/outputs/semanticTokens';
 import { gradientCheck, formatReport } from './helpers/gradientCheck';
 import { fromMathjs } from './helpers/parseMathjs';
 import { KNOCKS, RECEPTORS } from './helpers/fdCases';
@@ -254,3 +260,66 @@ describe('receptors on the grid (the semantics of every generated target) and in
     expect(errs((c) => { c.projections[3]!.via = 'w'; })).toEqual([]);
   });
 });
+
+describe('receptors in the editor: completion, hover, rename, navigation, formatting, semantic tokens', () => {
+  const text = TWO + 'connect P -> P via w_inh\nconnect P -> P via w_exc\n';
+  const a = analyse(text);
+
+  it('completion offers via after connect A -> B, then the weights of B\'s blocks', () => {
+    const t1 = TWO + 'connect P -> P ';
+    expect(complete(analyse(t1), t1.length).map((c) => c.label)).toEqual(['via']);
+    const t2 = TWO + 'connect P -> P via w';
+    const c2 = complete(analyse(t2), t2.length);
+    expect(c2.map((c) => [c.label, c.kind])).toEqual([['w_exc', 'weight'], ['w_inh', 'weight']]);
+    expect(c2[0]!.replace).toEqual({ start: t2.length - 1, end: t2.length });
+    const t3 = TWO + 'connect P -> P via ';
+    expect(complete(analyse(t3), t3.length).map((c) => c.label)).toEqual(['w_exc', 'w_inh']);
+  });
+
+  it('hover: the word via explains itself; the weight after it is the weight', () => {
+    const at = text.indexOf('via w_inh');
+    expect(hover(a, at + 1)?.markdown).toContain('Which incoming block');
+    expect(hover(a, at + 5)?.markdown).toContain('w_inh');
+  });
+
+  it('rename of a weight used in via renames the block, its jump and the connection; a clash with the other block is refused', () => {
+    const at = text.indexOf('w_inh {') + 1;
+    const r = rename(a, at, 'w_gaba');
+    if (isRefusal(r)) throw new Error(r.error);
+    const out = applyEdits(text, r.edits);
+    expect(out).toContain('incoming w_gaba { Ii := Ii + w_gaba }');
+    expect(out).toContain('connect P -> P via w_gaba');
+    expect(analyse(out).diagnostics).toEqual([]);
+    // from the use in the connection too
+    const r2 = rename(a, text.indexOf('via w_inh') + 5, 'w_gaba');
+    if (isRefusal(r2)) throw new Error(r2.error);
+    expect(applyEdits(text, r2.edits)).toBe(out);
+    expect(isRefusal(rename(a, at, 'w_exc'))).toBe(true);
+  });
+
+  it('go to definition from via lands on the block\'s weight; references list the connection', () => {
+    const use = text.indexOf('via w_inh') + 4;
+    expect(definition(a, use + 1)).toEqual({ start: text.indexOf('w_inh {'), end: text.indexOf('w_inh {') + 5 });
+    expect(references(a, text.indexOf('w_inh {') + 1, false)).toContainEqual({ start: use, end: use + 5 });
+  });
+
+  it('formatting keeps via and spaces it', () => {
+    const messy = TWO + 'connect  P->P   via    w_inh\n';
+    const f = formatText(messy);
+    expect(f).toContain('connect P -> P via w_inh\n');
+    expect(analyse(f!).model.connections.map((c) => c.via)).toEqual(['w_inh']);
+  });
+
+  it('semantic tokens: via is a keyword, the weight after it a property', () => {
+    const toks = semanticTokens(a);
+    const at = text.indexOf('via w_inh');
+    expect(toks.find((t) => t.range.start === at)?.type).toBe('keyword');
+    expect(toks.find((t) => t.range.start === at + 4)?.type).toBe('property');
+  });
+});
+
+function applyEdits(text: string, edits: readonly { range: { start: number; end: number }; newText: string }[]): string {
+  let out = text;
+  for (const e of [...edits].sort((x, y) => y.range.start - x.range.start)) out = out.slice(0, e.range.start) + e.newText + out.slice(e.range.end);
+  return out;
+}
