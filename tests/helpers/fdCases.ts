@@ -58,6 +58,8 @@ export function fdCases(): NamedCase[] {
   const onset = sampleNeuron('delta_layer.saltus', 'Onset');
   const delta = sampleNeuron('delta_layer.saltus', 'DeltaLif');
   const roDelta = sampleNeuron('delta_layer.saltus', 'Readout');
+  const balanced = sampleNeuron('receptors.saltus', 'Balanced');
+  const roRec = sampleNeuron('receptors.saltus', 'Readout');
   const mixed = modelNeuron(MIXED, 'Mixed');
   const dipper = modelNeuron(MIXED, 'Dipper');
   const L = fromMathjs;
@@ -74,6 +76,13 @@ export function fdCases(): NamedCase[] {
       inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 2, times: [0.0035, 0.0205], weight: 0.005 }],
       duration: 0.04,
       loss: { terms: [{ neuron: 3, integrand: L('(V - 0.3)^2') }, { neuron: 2, integrand: L('1000 * (V + 0.065)^2') }] },
+    } },
+    { name: 'receptors: Balanced (excitatory and inhibitory blocks, one pair into both) -> Readout', source: 'samples/receptors.saltus', c: {
+      net: { neurons: [{ model: balanced }, { model: balanced }, { model: roRec }],
+        synapses: [{ from: 0, to: 1, weight: 4, receptor: 0 }, { from: 0, to: 1, weight: 0.5, receptor: 1 }, { from: 1, to: 0, weight: 0.9, receptor: 1 }, { from: 0, to: 2, weight: 0.7 }, { from: 1, to: 2, weight: 0.4 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 6 }, { target: 1, times: KNOCKS.slice(3), weight: 2.5, receptor: 1 }, { target: 1, times: [0.004, 0.011], weight: 5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 1, perSpike: L('30 * t^2') }] },
     } },
     { name: 'readout alone', source: 'samples/readout.saltus', c: {
       net: { neurons: [{ model: roAlone }], synapses: [] },
