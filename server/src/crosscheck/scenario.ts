@@ -302,7 +302,7 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
       if (seen.has(pair)) err(path, `${pair} is already given by projections[${seen.get(pair)}]; merge the two`);
       seen.set(pair, k);
       if (from.kind === 'model' && to.kind === 'model' && block
-        && !analysis.model.connections.some((c) => c.from === from.model.name && c.to === to.model.name && c.via === block.weight)) {
+        && !analysis.model.connections.some((c) => c.from === from.model.name && c.to === to.model.name && (c.via ?? to.model.receptors[0]?.weight) === block.weight)) {
         remarks.push(`${path}: the model file has no 'connect ${from.model.name} -> ${to.model.name}${via ? ` via ${via}` : ''}'; the check simulates the projection anyway`);
       }
     }

@@ -42,10 +42,12 @@ export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[]
       continue;
     }
     seen.set(key, c);
-    if (ok && via !== undefined) out.push({ from: from.name, to: to.name, via, decl: c, implicit: false });
+    if (ok && via !== undefined) out.push({ from: from.name, to: to.name, ...(blocks.length > 1 || c.via ? { via } : {}), decl: c, implicit: false });
   }
   if (declared.length === 0) {
-    for (const n of neurons) if (n.fire) for (const r of n.receptors) out.push({ from: n.name, to: n.name, via: r.weight, implicit: true });
+    for (const n of neurons) {
+      if (n.fire) for (const r of n.receptors) out.push({ from: n.name, to: n.name, ...(n.receptors.length > 1 ? { via: r.weight } : {}), implicit: true });
+    }
   }
   return out;
 }

@@ -101,8 +101,9 @@ export interface ResolvedNeuron {
 /** One use of a name in the text and what it resolves to. */
 export interface Reference { range: A.Range; target: SymbolInfo }
 
-/** A projection: spikes of `from` reach the `incoming` block of `to` whose weight is `via`. */
-export interface Connection { from: string; to: string; via: string; decl?: A.ConnectDecl; implicit: boolean }
+/** A projection: spikes of `from` reach the `incoming` block of `to` whose weight is `via`
+ *  (set when `to` has several blocks or the line names one; absent: its only block). */
+export interface Connection { from: string; to: string; via?: string; decl?: A.ConnectDecl; implicit: boolean }
 
 export interface ResolvedFile {
   neurons: ResolvedNeuron[];
