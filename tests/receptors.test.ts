@@ -10,6 +10,9 @@ import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 import { gridBackward, gridForward, networkFromScenario, type Network as GridNetwork } from '../server/src/grid';
 import { analyse } from '../server/src/pipeline';
 import { deriveNeuron } from '../server/src/adjoint/derive';
+import { deriveEligibility } from '../server/src/eprop/derive';
+import { normalise } from '../server/src/symbolic/normalise';
+import { substitute } from '../server/src/symbolic/sym';
 import { adjointJson } from '../server/src/adjoint/render';
 import { simulate } from '../server/src/simulate';
 import { toMathjs } from '../server/src/symbolic/print';
@@ -323,3 +326,24 @@ function applyEdits(text: string, edits: readonly { range: { start: number; end:
   for (const e of [...edits].sort((x, y) => y.range.start - x.range.start)) out = out.slice(0, e.range.start) + e.newText + out.slice(e.range.end);
   return out;
 }
+
+describe('receptors in e-prop (docs/eprop.md): one arrival symbol per block, an eligibility per weight', () => {
+  it('Balanced: additive blocks give dx3/dw_k = z_k in the block\'s current only (Bellec et al. 2020, eq. for a current synapse: the trace of w is the filtered presynaptic arrival)', () => {
+    const n = analyse(readFileSync(join(ROOT, 'samples', 'receptors.saltus'), 'utf8')).model.neurons.find((x) => x.name === 'Balanced')!;
+    const d = deriveEligibility(n);
+    expect(d.notDerived).toBeUndefined();
+    expect(d.receptors.map((r) => [r.weight, r.arrival])).toEqual([['w_exc', 'z_pre'], ['w_inh', 'z_pre_w_inh']]);
+    const q = (name: string) => d.quantities.find((x) => x.name === name)!;
+    const iIe = d.states.indexOf('Ie'), iIi = d.states.indexOf('Ii');
+    // the update minus M eps: with eps = 0 only the direct term is left
+    const zeroEps = new Map(d.states.map((x) => [`eps_${x}`, { k: 'num', v: 0 } as const]));
+    const direct = (name: string) => q(name).update.map((u) => toMathjs(normalise(substitute(u, zeroEps))));
+    expect(direct('w_exc')[iIe]).toBe('z_pre');
+    expect(direct('w_exc')[iIi]).toBe('0');
+    expect(direct('w_inh')[iIi]).toBe('z_pre_w_inh');
+    expect(direct('w_inh')[iIe]).toBe('0');
+    // after one arrival at a block, only that block's current moved
+    expect(toMathjs(d.receptors[1]!.next[iIi]!)).toBe('Ii + w_inh');
+    expect(toMathjs(d.receptors[1]!.next[iIe]!)).toBe('Ie');
+  });
+});

@@ -18,6 +18,10 @@ import type { KernelPlan } from '../kernelPlan';
 
 export function epropFunctions(plan: KernelPlan): { lines: string[]; names: string[] } {
   const d = eligibilityFor(plan.neuron);
+  if (!d.notDerived && plan.neuron.receptors.length > 1) {
+    const why = `${plan.neuron.name} has ${plan.neuron.receptors.length} incoming blocks: the generated e-prop layer feeds one block (saltus eligibility derives them all)`;
+    return { lines: ['EPROP = ()', `EPROP_NONE = "${pyStringBody(why)}"`, '', ''], names: ['EPROP'] };
+  }
   if (d.notDerived) return { lines: ['EPROP = ()', `EPROP_NONE = "${pyStringBody(d.notDerived)}"`, '', ''], names: ['EPROP'] };
   const stateIds = new Map(plan.states.map((s) => [s.name, s.id] as const));
   const paramIds = new Map(plan.params.map((p) => [p.name, p.id] as const));
