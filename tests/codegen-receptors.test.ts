@@ -78,3 +78,22 @@ describe.skipIf(!hasGcc)('C target with receptors', () => {
     expect(() => runC('receptors_twice', text, wrong, '0.1ms')).toThrow(/projections\[1\]: sensor -> hid is projected twice/);
   }, 120_000);
 });
+
+const hasNvcc = spawnSync('nvcc', ['--version']).status === 0;
+
+describe.skipIf(!hasNvcc)('CUDA target with receptors: nvcc, and the runner\'s host path', () => {
+  test('saltus_run.cu --host (the __host__ __device__ runtime on the CPU, kernels by model id and block) agrees with the grid', () => {
+    const { text, json, net } = sampleNetwork('receptors');
+    const dir = join(work, 'cuda_receptors');
+    const g = generateFiles(analyse(text), { target: 'cuda', network: json, source: 'receptors.saltus' });
+    expect(g.errors).toEqual([]);
+    mkdirSync(dir, { recursive: true });
+    for (const f of g.files) writeFileSync(join(dir, f.name), f.content);
+    const b = spawnSync('nvcc', ['-O2', '-Werror', 'all-warnings', '-Xcompiler', '-Wall,-Wextra', '-o', 'saltus_run', 'saltus_run.cu'], { cwd: dir, encoding: 'utf8' });
+    expect(b.status, b.stderr).toBe(0);
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
+    const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', '0.1ms', '--format', 'json', '--host'], { cwd: dir, encoding: 'utf8' });
+    expect(r.status, r.stderr).toBe(0);
+    compareWithGrid('CUDA runner (host)', 'receptors', net, 1e-4, JSON.parse(r.stdout) as RunnerReport);
+  }, 600_000);
+});
