@@ -1,5 +1,6 @@
 // Receptors (several incoming blocks, projections `via` one of them) in generated code: the
-// NumPy runner and the C runner (gcc, strict flags) on the receptors sample scenario (the same pair of populations projected into
+// NumPy runner, the PyTorch run.py (the Network module), the C runner (gcc, strict flags) and
+// the CUDA runner's host path on the receptors sample scenario (the same pair of populations projected into
 // both blocks) agrees with Saltus's own grid simulator (server/src/grid/, checked against
 // finite differences and the exact gradient of the accurate simulator in
 // tests/receptors.test.ts) to 1e-12 relative in float64. Scenario data: invented pump-sensor
@@ -11,7 +12,7 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { generateFiles, writeGenerated } from '../server/src/codegen';
-import { numpyPython, runPython } from './helpers/python';
+import { numpyPython, runPython, torchPython } from './helpers/python';
 import { type RunnerReport, compareWithGrid, sampleNetwork } from './helpers/gridCompare';
 
 const work = mkdtempSync(join(tmpdir(), 'saltus-receptors-'));
@@ -95,5 +96,20 @@ describe.skipIf(!hasNvcc)('CUDA target with receptors: nvcc, and the runner\'s h
     const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', '0.1ms', '--format', 'json', '--host'], { cwd: dir, encoding: 'utf8' });
     expect(r.status, r.stderr).toBe(0);
     compareWithGrid('CUDA runner (host)', 'receptors', net, 1e-4, JSON.parse(r.stdout) as RunnerReport);
+  }, 600_000);
+});
+
+const torch = torchPython();
+
+describe.skipIf(!torch)('PyTorch target with receptors', () => {
+  test('run.py --device cpu (the Network module) on the receptors sample scenario agrees with the grid', () => {
+    const { text, json, net } = sampleNetwork('receptors');
+    const dir = join(work, 'torch_receptors');
+    const g = generateFiles(analyse(text), { target: 'torch', network: json, source: 'receptors.saltus' });
+    expect(g.errors).toEqual([]);
+    expect(writeGenerated(dir, g.files, { force: true }).errors).toEqual([]);
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
+    const r = JSON.parse(runPython(torch!, ['run.py', 'net.json', '--dt', '0.1ms', '--format', 'json', '--device', 'cpu'], dir)) as RunnerReport;
+    compareWithGrid('torch run.py', 'receptors', net, 1e-4, r);
   }, 600_000);
 });

@@ -68,6 +68,9 @@ describe('receptors: resolution and diagnostics (docs/language.md, v1 rules for 
     expect(diags(text).map((d) => [d.code, d.severity, d.at])).toEqual([['missing-via', 'error', 'connect P -> P']]);
     expect(a.diagnostics[0]!.fixes!.map((f) => f.title)).toEqual(['Connect via w_exc', 'Connect via w_inh']);
     expect(a.model.connections).toEqual([]);
+    const fixed = applyEdits(text, a.diagnostics[0]!.fixes![1]!.edits);
+    expect(fixed.endsWith('connect P -> P via w_inh\n')).toBe(true);
+    expect(analyse(fixed).diagnostics).toEqual([]);
   });
 
   it('via names an existing block, with did-you-mean', () => {
