@@ -9,6 +9,7 @@ import { describe, expect, it } from 'vitest';
 import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
 import { gridBackward, gridForward, networkFromScenario, type Network as GridNetwork } from '../server/src/grid';
 import { analyse } from '../server/src/pipeline';
+import { analyseIncremental } from '../server/src/incremental';
 import { deriveNeuron } from '../server/src/adjoint/derive';
 import { deriveEligibility } from '../server/src/eprop/derive';
 import { normalise } from '../server/src/symbolic/normalise';
@@ -348,5 +349,25 @@ describe('receptors in e-prop (docs/eprop.md): one arrival symbol per block, an 
     // after one arrival at a block, only that block's current moved
     expect(toMathjs(d.receptors[1]!.next[iIi]!)).toBe('Ii + w_inh');
     expect(toMathjs(d.receptors[1]!.next[iIe]!)).toBe('Ie');
+  });
+});
+
+describe('receptors and incremental analysis', () => {
+  it('edits inside a receptor neuron give the same diagnostics, connections and references as a full analysis', () => {
+    const base = TWO + 'neuron Q {\n  state V = 0\n  dV/dt = -V / 1 [ms]\n  fire when V crosses 1 up { V := 0 }\n  incoming w { V := V + w }\n}\nconnect Q -> P via w_inh\nconnect P -> Q\n';
+    let prev = analyseIncremental(undefined, base);
+    const edits: [string, string][] = [['Ii := Ii + w_inh', 'Ii := Ii + 2 * w_inh'], ['param tau_i = 10 [ms]', 'param tau_i = 12 [ms]'],
+      ['incoming w_inh { Ii := Ii + 2 * w_inh }', 'incoming w_inhib { Ii := Ii + 2 * w_inhib }'], ['w_inhib {', 'w_inh {'], ['Ii + 2 * w_inhib', 'Ii + 2 * w_inh']];
+    let text = base;
+    for (const [from, to] of edits) {
+      text = text.replace(from, to);
+      prev = analyseIncremental(prev, text);
+      const full = analyse(text);
+      expect(prev.diagnostics, to).toEqual(full.diagnostics);
+      expect(prev.model.connections.map((c) => [c.from, c.to, c.via])).toEqual(full.model.connections.map((c) => [c.from, c.to, c.via]));
+      const refs = (x: typeof full): string[] => x.model.references.map((r) => `${r.range.start}-${r.range.end}:${r.target.kind} ${r.target.name}`).sort();
+      expect(refs(prev)).toEqual(refs(full));
+    }
+    expect(prev.diagnostics).toEqual([]);
   });
 });
