@@ -2,6 +2,8 @@
 // synthetic models that exercise what the samples do not (time in guards and jumps, a
 // non-identity incoming jump, a trainable parameter inside the incoming jump, a down
 // crossing). Scenario numbers are our own (invented pump-vibration spike pattern).
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { fromMathjs } from './parseMathjs';
 import type { CheckCase } from './gradientCheck';
 import { modelNeuron, sampleNeuron } from './models';
@@ -56,6 +58,8 @@ export function fdCases(): NamedCase[] {
   const onset = sampleNeuron('delta_layer.saltus', 'Onset');
   const delta = sampleNeuron('delta_layer.saltus', 'DeltaLif');
   const roDelta = sampleNeuron('delta_layer.saltus', 'Readout');
+  const balanced = sampleNeuron('receptors.saltus', 'Balanced');
+  const roRec = sampleNeuron('receptors.saltus', 'Readout');
   const mixed = modelNeuron(MIXED, 'Mixed');
   const dipper = modelNeuron(MIXED, 'Dipper');
   const L = fromMathjs;
@@ -72,6 +76,13 @@ export function fdCases(): NamedCase[] {
       inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 2, times: [0.0035, 0.0205], weight: 0.005 }],
       duration: 0.04,
       loss: { terms: [{ neuron: 3, integrand: L('(V - 0.3)^2') }, { neuron: 2, integrand: L('1000 * (V + 0.065)^2') }] },
+    } },
+    { name: 'receptors: Balanced (excitatory and inhibitory blocks, one pair into both) -> Readout', source: 'samples/receptors.saltus', c: {
+      net: { neurons: [{ model: balanced }, { model: balanced }, { model: roRec }],
+        synapses: [{ from: 0, to: 1, weight: 4, receptor: 0 }, { from: 0, to: 1, weight: 0.5, receptor: 1 }, { from: 1, to: 0, weight: 0.9, receptor: 1 }, { from: 0, to: 2, weight: 0.7 }, { from: 1, to: 2, weight: 0.4 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 6 }, { target: 1, times: KNOCKS.slice(3), weight: 2.5, receptor: 1 }, { target: 1, times: [0.004, 0.011], weight: 5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 1, perSpike: L('30 * t^2') }] },
     } },
     { name: 'readout alone', source: 'samples/readout.saltus', c: {
       net: { neurons: [{ model: roAlone }], synapses: [] },
@@ -111,3 +122,27 @@ export function fdCases(): NamedCase[] {
     } },
   ];
 }
+
+/** Test-only receptor models: `Duo` (a nonlinear excitatory block with a trainable parameter
+ *  in its jump, conductance-like inhibition) and the sample's `Balanced`. */
+export const RECEPTORS = `
+neuron Duo {  #~ test-only: two receptors, nonlinear excitatory jump, conductance-like inhibition
+  param tau_m = 10 [ms] trainable
+  param tau_e = 4 [ms] trainable
+  param tau_i = 8 [ms] trainable
+  param g_max = 6 trainable
+  param E_i = -0.5 trainable
+  state V = 0
+  state Ie = 0
+  state Ii = 0
+  dV/dt = (Ie + Ii * (E_i - V) - V) / tau_m
+  dIe/dt = -Ie / tau_e
+  dIi/dt = -Ii / tau_i
+  fire when V crosses 1 up { V := 0 }
+  incoming w_exc {
+    Ie := Ie + w_exc * (1 - Ie / g_max)
+    V := V + 0.05 * w_exc
+  }
+  incoming w_inh { Ii := Ii + w_inh * (1 + 0.1 * V) }
+}
+` + readFileSync(join(__dirname, '..', '..', 'samples', 'receptors.saltus'), 'utf8').split('#~ non-spiking')[0]!.replace(/^timestep.*$/m, '');

@@ -15,7 +15,7 @@ import { modelHash } from '../model/hash';
 import { toMathjs } from '../symbolic/print';
 import { readableText } from '../symbolic/readable';
 import type { Direction } from '../syntax/ast';
-import type { ResolvedNeuron } from '../model/types';
+import type { IncomingInfo, ResolvedNeuron } from '../model/types';
 import { COUPLING, DLP_DT, LV_POST, LV_PRE, PHI, TIME, lambdaName, lossPartialName } from '../base/names';
 import { type DeriveBudget, DEFAULT_BUDGET, simplifyChecked } from './verify';
 import { type SurfaceRule, guardSurfaceRule, onSurface, vanishingConditions } from './surface';
@@ -71,6 +71,8 @@ export interface IncomingDerivation {
   coupling: Sym;
   /** Target state values needed at each received spike. */
   record: string[];
+  /** Per gradient parameter: its increment per spike received here, lambda+ . dr/dp. */
+  params: Map<string, Sym>;
 }
 
 export interface ParamGradient {
@@ -80,7 +82,8 @@ export interface ParamGradient {
   spike: Sym | null;
   /** Increment per spike fired by a jump: lambda+ . dh/dp, off the guard surface (null without fire block). */
   spikeImposed: Sym | null;
-  /** Increment per received spike: lambda+ . dr/dp (null without incoming block). */
+  /** Increment per spike received by the first incoming block: lambda+ . dr/dp (null without
+   *  incoming block); each block's own is in its `IncomingDerivation.params`. */
   incoming: Sym | null;
 }
 
@@ -109,6 +112,9 @@ export interface NeuronDerivation {
   jacobian: Sym[][];
   adjointFlow: Map<string, Sym>;
   spike: SpikeDerivation | null;
+  /** One per incoming block (receptor), in the model's order: its own jump, weight gradient and coupling term. */
+  receptors: IncomingDerivation[];
+  /** The first of `receptors` (v0's only block), or null. */
   incoming: IncomingDerivation | null;
   paramGradients: Map<string, ParamGradient>;
   trajectory: TrajectoryNeeds;
@@ -150,7 +156,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   const gradientParams = neuron.params.filter((p) => ctx.params === 'all' || p.trainable).map((p) => p.name);
   const base: NeuronDerivation = {
     name: neuron.name, hash: modelHash(neuron), wellFormed: neuron.wellFormed, states, gradientParams,
-    jacobian: [], adjointFlow: new Map(), spike: null, incoming: null, paramGradients: new Map(),
+    jacobian: [], adjointFlow: new Map(), spike: null, receptors: [], incoming: null, paramGradients: new Map(),
     trajectory: { eventBased: true, adjointStates: [], gradientStates: [], bytesPerStep: 0 }, issues: [], notes: [], millis: 0,
   };
   if (!neuron.wellFormed) {
@@ -178,7 +184,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   }
 }
 
-type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'incoming' | 'paramGradients' | 'trajectory'>;
+type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'receptors' | 'incoming' | 'paramGradients' | 'trajectory'>;
 
 function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string[], work: Work): Derived {
   const lambda = states.map((x) => sym(lambdaName(x)));
@@ -198,7 +204,8 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   });
 
   const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, gradientParams, work) : null;
-  const incoming = neuron.incoming ? deriveIncoming(neuron, states, lambda, f, gradientParams, work) : null;
+  const receptors = neuron.receptors.map((inj) => deriveIncoming(inj, states, lambda, f, gradientParams, work));
+  const incoming = receptors[0] ?? null;
 
   const paramGradients = new Map<string, ParamGradient>();
   for (const p of gradientParams) {
@@ -212,13 +219,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
       spikeInc = r.sym;
       spikeImposed = work.simp(dot(hp.map((d, i) => [lambda[i]!, d])), `increment of the ${p} gradient at a spike fired by a jump`, { kind: 'fire' });
     }
-    let inc: Sym | null = null;
-    if (neuron.incoming) {
-      const inj = neuron.incoming;
-      const rp = states.map((x) => derivative(inj.jumps.get(x) ?? sym(x), p));
-      inc = work.simp(dot(rp.map((d, i) => [lambda[i]!, d])), `incoming increment of the ${p} gradient`, { kind: 'incoming' });
-    }
-    paramGradients.set(p, { flow, spike: spikeInc, spikeImposed, incoming: inc });
+    paramGradients.set(p, { flow, spike: spikeInc, spikeImposed, incoming: incoming?.params.get(p) ?? null });
   }
   if (spike) {
     const extra = [...paramGradients.values()].flatMap((g) => (g.spike ? stateFree(g.spike, states) : []));
@@ -239,7 +240,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   if (gradientStates.length > 0) {
     work.notes.push(`the parameter-gradient integrands also need the trajectory of ${gradientStates.join(', ')}`);
   }
-  return { jacobian, adjointFlow, spike, incoming, paramGradients, trajectory };
+  return { jacobian, adjointFlow, spike, receptors, incoming, paramGradients, trajectory };
 }
 
 function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): SpikeDerivation {
@@ -278,7 +279,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
 
   if (surfaceUsed && rule) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
   work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
-    + (neuron.incoming ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
+    + (neuron.receptors.length ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
 
   // Grazing: the slope can vanish on the guard surface.
   const grazing = vanishingConditions(gdot, states);
@@ -305,9 +306,8 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     surfaceSlope, postGuard, record, eventBased: true, imposed };
 }
 
-function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
-  const inj = neuron.incoming!;
-  const where: Where = { kind: 'incoming' };
+function deriveIncoming(inj: IncomingInfo, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
+  const where: Where = { kind: 'incoming', weight: inj.weight };
   const w = inj.weight;
   const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
   const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
@@ -322,7 +322,9 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   const exprs = [...r, ...ry.flat(), ...r.map((ri) => derivative(ri, w)), ...gradientParams.flatMap((p) => r.map((ri) => derivative(ri, p)))];
   work.issues.push(...nonSmoothIssues(where, r, [...states, w, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   const record = states.filter((x) => [coupling, weightGradient, ...jump.values()].some((e) => dependsOn(e, x)));
-  return { weight: w, jump, weightGradient, coupling, record };
+  const params = new Map(gradientParams.map((p) => [p, work.simp(dot(r.map((ri, i) => [lambda[i]!, derivative(ri, p)])),
+    `incoming increment of the ${p} gradient`, where)] as const));
+  return { weight: w, jump, weightGradient, coupling, record, params };
 }
 
 /** s on the guard surface (the substitution made even where it reads longer), simplified. */

@@ -55,8 +55,9 @@ function place(where: Where, n: ResolvedNeuron): Place {
     for (const r of [d.lhs?.range, d.rhs?.range, d.directionRange]) if (r) head = span(head, r);
     return { range: head, exprs: [d.lhs, d.rhs, ...d.jumps.map((j) => j.value)] };
   }
-  if (where.kind === 'incoming' && n.incoming) {
-    const d = n.incoming.decl;
+  const inc = where.kind === 'incoming' ? n.receptors.find((r) => where.weight === undefined || r.weight === where.weight) : undefined;
+  if (inc) {
+    const d = inc.decl;
     let head = d.keywordRange;
     for (const r of [d.weight?.range, d.unit?.range]) if (r) head = span(head, r);
     return { range: head, exprs: d.jumps.map((j) => j.value) };

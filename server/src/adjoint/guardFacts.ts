@@ -29,7 +29,7 @@ function constants(n: ResolvedNeuron): Map<string, Sym> | undefined {
     env.set(p.name, num(p.valueSI));
   }
   for (const s of n.states) {
-    const still = !n.flows.has(s.name) && !n.fire?.jumps.has(s.name) && !n.incoming?.jumps.has(s.name);
+    const still = !n.flows.has(s.name) && !n.fire?.jumps.has(s.name) && !n.receptors.some((r) => r.jumps.has(s.name));
     if (still) env.set(s.name, num(s.initialSI));
   }
   return env;
@@ -79,7 +79,7 @@ export function guardDiagnostics(derivation: NeuronDerivation, n: ResolvedNeuron
       const side = dir > 0 ? 'from below' : 'from above';
       const sign = slope < 0 ? 'negative' : 'positive';
       const guardStates = states.filter((x) => dependsOn(fire.guard, x));
-      const jumped = n.incoming ? guardStates.filter((x) => n.incoming!.jumps.has(x)) : [];
+      const jumped = guardStates.filter((x) => n.receptors.some((r) => r.jumps.has(x)));
       const base = `the flow never reaches the threshold ${side}: on it${where} the guard slope ${formula} is ${sign} for the file's parameter values (${slopeText(n, slope)})`;
       if (jumped.length) {
         out.push({ severity: 'info', code: 'fires-only-by-jumps', range: header(fire.decl),

@@ -7,7 +7,8 @@ import { readableText } from '../symbolic/readable';
 import type { NeuronDerivation } from './derive';
 import { lambdaName } from '../base/names';
 
-export type AdjointHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' };
+/** `incoming`: the block of weight `weight` (absent: the first block). */
+export type AdjointHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string };
 
 const code = (s: Sym): string => '`' + readableText(s) + '`';
 
@@ -23,8 +24,10 @@ export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem
     lines.push(`**Adjoint of ${x}** (\`${lambdaName(x)} = dL/d${x}(t)\`)`, '', `\`d${lambdaName(x)}/dt\` = ${code(flow)}`);
     const sj = d.spike?.jump.get(x);
     if (sj) lines.push('', `at a spike: \`${lambdaName(x)}\` before = ${code(sj)}`);
-    const ij = d.incoming?.jump.get(x);
-    if (ij) lines.push('', `at a received spike: \`${lambdaName(x)}\` before = ${code(ij)}`);
+    for (const i of d.receptors) {
+      const ij = i.jump.get(x);
+      if (ij) lines.push('', `at a received spike${d.receptors.length > 1 ? ` (${i.weight})` : ''}: \`${lambdaName(x)}\` before = ${code(ij)}`);
+    }
     if (d.trajectory.adjointStates.includes(x)) lines.push('', `_The adjoint flow needs the forward trajectory of ${x}._`);
   } else if (item.kind === 'fire') {
     const s = d.spike;
@@ -36,7 +39,7 @@ export function adjointHoverMarkdown(d: NeuronDerivation, item: AdjointHoverItem
       + (s.eventBased ? 'purely event-based.' : `needs the forward trajectory of ${d.trajectory.adjointStates.join(', ')}.`));
     for (const i of d.issues) if (i.code === 'grazing-crossing') lines.push('', `_Grazing set:_ ${i.message}`);
   } else {
-    const inc = d.incoming;
+    const inc = d.receptors.find((i) => item.weight === undefined || i.weight === item.weight);
     if (!inc) return `_${d.name} has no incoming block._`;
     lines.push(`**Adjoint at a received spike** (weight \`${inc.weight}\`)`, '');
     for (const [x, e] of inc.jump) lines.push(`- \`${lambdaName(x)}\` before = ${code(e)}`);

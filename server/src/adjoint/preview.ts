@@ -46,8 +46,7 @@ export function previewModel(d: NeuronDerivation, doc?: string): AdjointPreviewM
       ],
     });
   }
-  if (d.incoming) {
-    const i = d.incoming;
+  for (const i of d.receptors) {
     sections.push({
       title: `At a received spike (weight ${i.weight})`,
       note: `λ just after the arrival, states just before. Record at each received spike: ${i.record.length ? i.record.join(', ') : 'the arrival time only'}.`,
@@ -60,7 +59,10 @@ export function previewModel(d: NeuronDerivation, doc?: string): AdjointPreviewM
   }
   const grads = [...d.paramGradients].map(([p, g]) => {
     const parts = [!isZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', !isZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
-      !isZero(g.incoming) ? `\\sum_{\\text{received}} ${L(g.incoming!)}` : ''].filter((x) => x);
+      ...d.receptors.flatMap((i) => {
+        const e = i.params.get(p);
+        return e && !isZero(e) ? [`\\sum_{\\text{received${d.receptors.length > 1 ? `, ${i.weight}` : ''}}} ${L(e)}`] : [];
+      })].filter((x) => x);
     return { label: p, latex: `\\frac{\\partial L}{\\partial ${latexName(p)}} = ${parts.length ? parts.join(' + ') : '0'}` };
   });
   if (grads.length) sections.push({ title: 'Gradients of trainable parameters', rows: grads });

@@ -20,7 +20,10 @@ export interface AdjointJsonModel {
   states: string[];
   adjointFlow: Record<string, Expr>;
   spike: { direction: string; gdot: Expr; phi: Expr; jump: Record<string, Expr>; record: string[]; eventBased: boolean } | null;
+  /** The first incoming block (v0's only one); `receptors` has every block. */
   incoming: { weight: string; jump: Record<string, Expr>; weightGradient: Expr; coupling: Expr; record: string[] } | null;
+  /** One per incoming block, in the model's order, with each parameter's increment per spike received there. */
+  receptors: { weight: string; jump: Record<string, Expr>; weightGradient: Expr; coupling: Expr; record: string[]; params: Record<string, Expr> }[];
   paramGradients: Record<string, { flow: Expr; spike: Expr | null; incoming: Expr | null }>;
   trajectory: { eventBased: boolean; adjointStates: string[]; gradientStates: string[]; bytesPerStep: number };
   notes: string[];
@@ -41,6 +44,8 @@ export function adjointJson(derivations: readonly NeuronDerivation[]): AdjointJs
         record: d.spike.record, eventBased: d.spike.eventBased } : null,
       incoming: d.incoming ? { weight: d.incoming.weight, jump: record(d.incoming.jump), weightGradient: toMathjs(d.incoming.weightGradient),
         coupling: toMathjs(d.incoming.coupling), record: d.incoming.record } : null,
+      receptors: d.receptors.map((i) => ({ weight: i.weight, jump: record(i.jump), weightGradient: toMathjs(i.weightGradient),
+        coupling: toMathjs(i.coupling), record: i.record, params: record(i.params) })),
       paramGradients: Object.fromEntries([...d.paramGradients].map(([p, g]) => [p, { flow: toMathjs(g.flow), spike: text(g.spike), incoming: text(g.incoming) }])),
       trajectory: { ...d.trajectory },
       notes: [...d.notes],
@@ -61,6 +66,15 @@ const LEGEND: [RegExp, string][] = [
 
 const recordText = (xs: readonly string[], none: string): string => (xs.length ? xs.join(', ') : none);
 
+/** One text per incoming block whose increment of p's gradient is not 0; `w` names the block's
+ *  weight only when there are several, so a v0 model reads as before. */
+function received(d: NeuronDerivation, p: string, show: (e: Sym, w: string) => string): string[] {
+  return d.receptors.flatMap((i) => {
+    const e = i.params.get(p) ?? null;
+    return nonZero(e) ? [show(e!, d.receptors.length > 1 ? i.weight : '')] : [];
+  });
+}
+
 /** Plain-text lines of one derivation (mathjs syntax, grouped for reading), with a legend of its symbols. */
 export function renderText(d: NeuronDerivation): string {
   const out: string[] = [`Adjoint system of ${d.name} (canonical costate lambda = dL/dx; lambda(T) = 0, integrated backwards)`];
@@ -74,8 +88,7 @@ export function renderText(d: NeuronDerivation): string {
     for (const [x, e] of s.jump) out.push(`  ${lambdaName(x)}- = ${t(e)}`);
     out.push(`  record at each spike: ${recordText(s.record, '(nothing but the time)')}`);
   }
-  if (d.incoming) {
-    const i = d.incoming;
+  for (const i of d.receptors) {
     out.push(`At a received spike (weight ${i.weight}):`);
     for (const [x, e] of i.jump) out.push(`  ${lambdaName(x)}- = ${t(e)}`);
     out.push(`  dL/d${i.weight} += ${t(i.weightGradient)}`, `  coupling term (summed into the sender's coupling) = ${t(i.coupling)}`);
@@ -84,7 +97,7 @@ export function renderText(d: NeuronDerivation): string {
   for (const [p, g] of d.paramGradients) {
     const parts = [nonZero(g.flow) ? `integral of ${t(g.flow)} dt` : '',
       nonZero(g.spike) ? `sum over spikes of ${t(g.spike!)}` : '',
-      nonZero(g.incoming) ? `sum over received spikes of ${t(g.incoming!)}` : ''].filter((x) => x);
+      ...received(d, p, (e, w) => `sum over ${w ? `spikes received at ${w}` : 'received spikes'} of ${t(e)}`)].filter((x) => x);
     out.push(`dL/d${p} = ${parts.length ? parts.join(' + ') : '0'}`);
   }
   const body = out.join('\n');
@@ -104,14 +117,15 @@ export function renderLatex(d: NeuronDerivation): string {
     rows.push(`\\dot g &= ${L(d.spike.gdot)}`, `\\phi &= ${L(d.spike.phi)}`);
     for (const [x, e] of d.spike.jump) rows.push(`${lam(x)}^- &= ${L(e)}`);
   }
-  if (d.incoming) {
-    for (const [x, e] of d.incoming.jump) rows.push(`${lam(x)}^- &= ${L(e)} \\quad\\text{(received spike)}`);
-    rows.push(`\\Delta \\frac{\\partial L}{\\partial ${d.incoming.weight}} &= ${L(d.incoming.weightGradient)}`);
-    rows.push(`\\text{coupling term} &= ${L(d.incoming.coupling)}`);
+  for (const i of d.receptors) {
+    const via = d.receptors.length > 1 ? `, ${i.weight}` : '';
+    for (const [x, e] of i.jump) rows.push(`${lam(x)}^- &= ${L(e)} \\quad\\text{(received spike${via})}`);
+    rows.push(`\\Delta \\frac{\\partial L}{\\partial ${i.weight}} &= ${L(i.weightGradient)}`);
+    rows.push(`\\text{coupling term${via}} &= ${L(i.coupling)}`);
   }
   for (const [p, g] of d.paramGradients) {
     const parts = [nonZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', nonZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
-      nonZero(g.incoming) ? `\\sum_{\\text{received}} ${L(g.incoming!)}` : ''].filter((x) => x);
+      ...received(d, p, (e, w) => `\\sum_{\\text{received${w ? `, ${w}` : ''}}} ${L(e)}`)].filter((x) => x);
     rows.push(`\\frac{\\partial L}{\\partial ${p}} &= ${parts.length ? parts.join(' + ') : '0'}`);
   }
   return `\\begin{aligned}\n${rows.join(' \\\\\n')}\n\\end{aligned}`;
@@ -129,16 +143,16 @@ export function renderMarkdown(d: NeuronDerivation): string {
     for (const [x, e] of d.spike.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
     out.push(`- record at each spike: ${d.spike.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
   }
-  if (d.incoming) {
-    out.push('', `**At a received spike** (weight \`${d.incoming.weight}\`)`, '');
-    for (const [x, e] of d.incoming.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
-    out.push(`- weight gradient increment = ${c(d.incoming.weightGradient)}`, `- coupling term in the sender's \`phi\` = ${c(d.incoming.coupling)}`);
-    out.push(`- record at each received spike: ${d.incoming.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
+  for (const i of d.receptors) {
+    out.push('', `**At a received spike** (weight \`${i.weight}\`)`, '');
+    for (const [x, e] of i.jump) out.push(`- \`${lambdaName(x)}\` before = ${c(e)}`);
+    out.push(`- weight gradient increment = ${c(i.weightGradient)}`, `- coupling term in the sender's \`phi\` = ${c(i.coupling)}`);
+    out.push(`- record at each received spike: ${i.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
   }
   if (d.paramGradients.size) {
     out.push('', '**Parameter gradients**', '');
     for (const [p, g] of d.paramGradients) {
-      out.push(`- \`${p}\`: integrand ${c(g.flow)}` + (nonZero(g.spike) ? `; per spike ${c(g.spike!)}` : '') + (nonZero(g.incoming) ? `; per received spike ${c(g.incoming!)}` : ''));
+      out.push(`- \`${p}\`: integrand ${c(g.flow)}` + (nonZero(g.spike) ? `; per spike ${c(g.spike!)}` : '') + received(d, p, (e, w) => `; per ${w ? `spike received at ${w}` : 'received spike'} ${c(e)}`).join(''));
     }
   }
   if (d.notes.length) out.push('', '**Notes**', '', ...d.notes.map((n) => `- ${n}`));

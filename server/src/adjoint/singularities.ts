@@ -11,7 +11,8 @@ import { readableText as toMathjs } from '../symbolic/readable';
 import { type Condition, asEquation, vanishingConditions } from './surface';
 import { TIME } from '../base/names';
 
-export type Where = { kind: 'flow'; state: string } | { kind: 'fire' } | { kind: 'incoming' };
+/** `incoming`: the block of weight `weight` (absent: the first block). */
+export type Where = { kind: 'flow'; state: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string };
 
 export interface DerivationIssue {
   code: 'grazing-crossing' | 'non-smooth' | 'vanishing-denominator' | 'derivation-budget' | 'zero-guard-slope';

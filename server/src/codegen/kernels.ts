@@ -88,14 +88,18 @@ export function modelKernels(d: GridDerivation): Kernel[] {
         ...vec('lp', Array.from({ length: G }, (_, q) => dot(j.Jp.map((row) => row[q]!), lam))), ...(Jw ? [{ name: 'lw', expr: dot(Jw, lam) }] : [])], [], rename));
   };
   if (d.spike) jump('spike', 'spike jump', d.spike, ['x', 'p', 't'], ren);
-  const inc = d.incoming[0];
-  if (inc) {
+  // One pair of kernels per incoming block: `incoming_*` for the first (v0's only one),
+  // `incoming<k>_*` for block k >= 1 (several receptors); each reads its own weight as `w`.
+  d.incoming.forEach((inc, b) => {
     const wr = roles(d, inc.weight);
     const jw = (s: Sym): Sym => substitute(s, wr);
-    jump('incoming', 'incoming jump', inc, ['x', 'p', 't', 'w'], jw);
-  }
+    jump(incomingKernel(b), b === 0 ? 'incoming jump' : `incoming jump of the block of weight ${inc.weight}`, inc, ['x', 'p', 't', 'w'], jw);
+  });
   return out.map((k) => commonCalls({ ...k, outputs: k.outputs.map((o) => ({ name: o.name, expr: normalise(o.expr) })) }));
 }
+
+/** The kernel name stem of incoming block b: `incoming` (b = 0), `incoming1`, `incoming2`, ... */
+export function incomingKernel(b: number): string { return b === 0 ? 'incoming' : `incoming${b}`; }
 
 /** Function calls worth computing once: every one but the cheap kinks. */
 const HOISTED = new Set(['expdd', 'exp', 'log', 'sqrt', 'tanh', 'sigmoid', 'pow']);

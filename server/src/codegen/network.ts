@@ -37,7 +37,7 @@ export function readNetworkSpec(json: unknown, modelNames: readonly string[]): {
 }
 
 /** Fields whose string values are names or text, not values. */
-const TEXT_FIELDS = new Set(['$schema', 'description', 'model', 'from', 'to', 'kind', 'population', 'state']);
+const TEXT_FIELDS = new Set(['$schema', 'description', 'model', 'from', 'to', 'via', 'kind', 'population', 'state']);
 
 /** Values written as quantities ("2 [nS]"): the generated runner reads SI numbers only. */
 function quantityStrings(v: unknown, path = '', out: string[] = []): string[] {

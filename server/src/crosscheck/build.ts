@@ -14,6 +14,10 @@ import type { ModelPopulation, Scenario } from './scenario';
 /** One checked weight: projection index in the file, receiver `to`, sender `from`. */
 export interface WeightRef {
   projection: number;
+  /** The receiving block's weight name, when the projection names it (several blocks). */
+  via?: string;
+  /** The receiving block's index in the model's receptors. */
+  receptor: number;
   fromPopulation: string;
   toPopulation: string;
   to: number;
@@ -57,15 +61,16 @@ export function buildScenario(s: Scenario): BuiltScenario {
     const input = inputsOf.get(pr.from);
     const toBase = firstNeuron.get(pr.to)!;
     pr.weights.forEach((row, i) => row.forEach((w, j) => {
-      const base = { projection: pr.index, fromPopulation: pr.from, toPopulation: pr.to, to: i, from: j, value: w };
+      const base = { projection: pr.index, ...(pr.via ? { via: pr.via } : {}), receptor: pr.receptor, fromPopulation: pr.from, toPopulation: pr.to, to: i, from: j, value: w };
+      const receptor = pr.receptor ? { receptor: pr.receptor } : {};
       if (input) {
         const times = input.kind === 'input' ? input.spikes.filter(([, k]) => k === j).map(([t]) => t).sort((a, b) => a - b) : [];
-        inputs.push({ target: toBase + i, times, weight: w });
+        inputs.push({ target: toBase + i, times, weight: w, ...receptor });
         weights.push({ ...base, slot: { kind: 'input', index: inputs.length - 1 } });
       } else {
         const fromBase = firstNeuron.get(pr.from)!;
         if (pr.from === pr.to && i === j) return;
-        synapses.push({ from: fromBase + j, to: toBase + i, weight: w });
+        synapses.push({ from: fromBase + j, to: toBase + i, weight: w, ...receptor });
         weights.push({ ...base, slot: { kind: 'synapse', index: synapses.length - 1 } });
       }
     }));

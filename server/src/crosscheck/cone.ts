@@ -59,10 +59,10 @@ export function coneOf(b: BuiltScenario, base: Trajectory, roots: readonly numbe
   b.net.synapses.forEach((s, k) => {
     if (!inCone[s.to]) return;
     if (inCone[s.from]) {
-      synapses.push({ from: index[s.from]!, to: index[s.to]!, weight: s.weight });
+      synapses.push({ from: index[s.from]!, to: index[s.to]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}) });
       synapseSlot.set(k, { kind: 'synapse', index: synapses.length - 1 });
     } else {
-      inputs.push({ target: index[s.to]!, times: spikesOf[s.from]!, weight: s.weight });
+      inputs.push({ target: index[s.to]!, times: spikesOf[s.from]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}) });
       synapseSlot.set(k, { kind: 'input', index: inputs.length - 1 });
     }
   });

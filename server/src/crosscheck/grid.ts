@@ -10,7 +10,7 @@
 // the validated scenario and the exact rows.
 import { gridBackward, gridForward, networkFromScenario } from '../grid';
 import type { Scenario } from './scenario';
-import type { GradientRow, GridConvergence, GridRowConvergence, ParamRow } from './types';
+import { type GradientRow, type GridConvergence, type GridRowConvergence, type ParamRow, rowLabel } from './types';
 
 export type { GridConvergence, GridRowConvergence };
 
@@ -23,7 +23,7 @@ export function gridConvergence(s: Scenario, gradients: readonly GradientRow[], 
   const net = networkFromScenario(s);
   const out: GridConvergence = { dts, substeps: {}, exact: {}, loss: { values: [], errors: [] }, rows: [], worst: null, failures: [], timing_ms: 0 };
   const rows: GridRowConvergence[] = [
-    ...gradients.map((r) => ({ label: `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]`, exact: r.adjoint, values: [], errors: [], orders: [] })),
+    ...gradients.map((r) => ({ label: rowLabel(r), exact: r.adjoint, values: [], errors: [], orders: [] })),
     ...params.map((r) => ({ label: `${r.population}.${r.name}`, exact: r.adjoint, values: [], errors: [], orders: [] })),
   ];
   const relErr = (v: number | null, exact: number): number | null => (v === null || exact === 0 || !Number.isFinite(v) ? null : Math.abs(v - exact) / Math.abs(exact));

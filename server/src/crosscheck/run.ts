@@ -196,9 +196,9 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   for (const [k, w] of b.weights.entries()) {
     if (!pickedSet.has(k)) continue;
     const adjoint = w.slot.kind === 'input' ? grads.inputWeights[w.slot.index]! : grads.weights[w.slot.index]!;
-    const row: GradientRow = { projection: w.projection, fromPopulation: w.fromPopulation, toPopulation: w.toPopulation, to: w.to, from: w.from,
+    const row: GradientRow = { projection: w.projection, ...(w.via ? { via: w.via } : {}), fromPopulation: w.fromPopulation, toPopulation: w.toPopulation, to: w.to, from: w.from,
       value: w.value, step: null, adjoint, finiteDifference: null, absoluteError: null, relativeError: null, status: 'ok' };
-    const inc = modelOf(s, w.toPopulation)?.incoming;
+    const inc = modelOf(s, w.toPopulation)?.receptors[w.receptor];
     const unitText = inc?.weightUnit;
     const wu = displayUnit(unitText, inc?.weightDim);
     if (wu) row.unit = wu;

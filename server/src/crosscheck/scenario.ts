@@ -12,7 +12,8 @@
 // population's projection onto itself is 0 (no self-synapses); the loss refers to an
 // existing population (and state, or a firing model for spike times).
 import type { Analysis } from '../pipeline';
-import type { ResolvedNeuron, SymbolInfo } from '../model/types';
+import type { IncomingInfo, ResolvedNeuron, SymbolInfo } from '../model/types';
+import { suggestions } from '../model/suggest';
 import { constantProblem, constantUses } from '../model/constants';
 import { TIME } from '../units';
 import { type Expected, type UnitSuspect, prefixSuspect, readQuantity, typeMessage } from './quantity';
@@ -29,7 +30,8 @@ export interface ModelPopulation {
 }
 export type Population = InputPopulation | ModelPopulation;
 
-export interface Projection { index: number; from: string; to: string; weights: number[][] }
+/** `receptor`: the index of the receiving block in the model's `receptors` (`via`: its weight, when the scenario named it or the model has several). */
+export interface Projection { index: number; from: string; to: string; via?: string; receptor: number; weights: number[][] }
 
 export type ScenarioLoss =
   | { kind: 'state-integral'; population: string; state: string; target: number[] }
@@ -290,20 +292,45 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
     const to = endpoint(p.to, `${path}.to`, pops, rejected, err);
     if (from?.kind === 'model' && !from.model.fire) { err(`${path}.from`, `${from.name} (${from.model.name}) has no fire block, so it sends no spikes`); }
     if (to?.kind === 'input') err(`${path}.to`, `${to.name} is an input population: it receives no projections`);
-    else if (to && !to.model.incoming) err(`${path}.to`, `${to.name} (${to.model.name}) has no incoming block, so it cannot receive spikes`);
-    if (from && to) {
-      const pair = `${from.name} -> ${to.name}`;
+    else if (to && to.model.receptors.length === 0) err(`${path}.to`, `${to.name} (${to.model.name}) has no incoming block, so it cannot receive spikes`);
+    const receptor = to?.kind === 'model' ? readVia(p.via, `${path}.via`, to, err) : p.via !== undefined ? -1 : 0;
+    if (p.via !== undefined && to?.kind === 'input') err(`${path}.via`, `${to.name} is an input population: it has no incoming blocks`);
+    const block = to?.kind === 'model' && receptor !== undefined ? to.model.receptors[receptor] : undefined;
+    const via = block && (p.via !== undefined || (to?.kind === 'model' && to.model.receptors.length > 1)) ? block.weight : undefined;
+    if (from && to && receptor !== undefined) {
+      const pair = `${from.name} -> ${to.name}${via ? ` via ${via}` : ''}`;
       if (seen.has(pair)) err(path, `${pair} is already given by projections[${seen.get(pair)}]; merge the two`);
       seen.set(pair, k);
-      if (from.kind === 'model' && to.kind === 'model' && !analysis.model.connections.some((c) => c.from === from.model.name && c.to === to.model.name)) {
-        remarks.push(`${path}: the model file has no 'connect ${from.model.name} -> ${to.model.name}'; the check simulates the projection anyway`);
+      if (from.kind === 'model' && to.kind === 'model' && block
+        && !analysis.model.connections.some((c) => c.from === from.model.name && c.to === to.model.name && (c.via ?? to.model.receptors[0]?.weight) === block.weight)) {
+        remarks.push(`${path}: the model file has no 'connect ${from.model.name} -> ${to.model.name}${via ? ` via ${via}` : ''}'; the check simulates the projection anyway`);
       }
     }
     // With an endpoint rejected above, its size is unknown: the weights are not checked against it.
-    const weights = readWeights(p.weights, `${path}.weights`, from, to, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)), suspects);
-    if (from && to && weights) out.push({ index: k, from: from.name, to: to.name, weights });
+    const weights = readWeights(p.weights, `${path}.weights`, from, to, block, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)), suspects);
+    if (from && to && weights && receptor !== undefined && receptor >= 0) out.push({ index: k, from: from.name, to: to.name, ...(via ? { via } : {}), receptor, weights });
   });
   return out;
+}
+
+/** The index of the block a projection into model population `to` reaches (undefined, with an error, when it cannot be told). */
+function readVia(v: unknown, path: string, to: ModelPopulation, err: (p: string, m: string) => void): number | undefined {
+  const names = to.model.receptors.map((r) => r.weight);
+  if (v === undefined) {
+    if (names.length > 1) {
+      err(path.replace(/\.via$/, ''), `${to.name} (${to.model.name}) has ${names.length} incoming blocks (${names.join(', ')}): say which one receives this projection with "via", e.g. "via": "${names[0]}"`);
+      return undefined;
+    }
+    return 0;
+  }
+  if (typeof v !== 'string') { err(path, `must be the weight name of one of ${to.model.name}'s incoming blocks (${names.join(', ') || 'none'}); got ${show(v)}`); return undefined; }
+  const k = names.indexOf(v);
+  if (k < 0) {
+    const near = suggestions(v, names);
+    err(path, `${to.model.name} has no incoming block with the weight '${v}' (its blocks: ${names.join(', ') || 'none'})${near.length ? `; did you mean '${near[0]}'?` : ''}`);
+    return undefined;
+  }
+  return k;
 }
 
 function endpoint(v: unknown, path: string, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void): Population | undefined {
@@ -315,7 +342,7 @@ function endpoint(v: unknown, path: string, pops: Map<string, Population>, rejec
   return p;
 }
 
-function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, err: (p: string, m: string) => void,
+function readWeights(v: unknown, path: string, from: Population | undefined, to: Population | undefined, inc: IncomingInfo | undefined, err: (p: string, m: string) => void,
   quiet: boolean, suspects: UnitSuspect[]): number[][] | undefined {
   if (quiet) return undefined;
   if (v === undefined) { err(path, 'missing: give weights[to][from], one row per receiving neuron'); return undefined; }
@@ -323,7 +350,6 @@ function readWeights(v: unknown, path: string, from: Population | undefined, to:
   let ok = true;
   if (to && v.length !== to.size) { err(path, `expected ${to.size} row${to.size === 1 ? '' : 's'} (one per neuron of ${to.name}), got ${v.length}`); ok = false; }
   const rows: number[][] = [];
-  const inc = to?.kind === 'model' ? to.model.incoming : undefined;
   const e: Expected = { what: `a weight of ${to?.name ?? 'the receiver'}${inc ? ` (${inc.weight})` : ''}`, ...(inc?.weightDim ? { dim: inc.weightDim } : {}), ...(inc?.weightUnit ? { unitText: inc.weightUnit } : {}) };
   v.forEach((row, i) => {
     const at = `${path}[${i}]`;

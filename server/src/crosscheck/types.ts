@@ -33,6 +33,8 @@ interface RowCommon {
 /** A weight: `projection` indexes the scenario's projections, weights[to][from]. */
 export interface GradientRow extends RowCommon {
   projection: number;
+  /** The receiving block's weight name, when the projection names it (several blocks). */
+  via?: string;
   fromPopulation: string;
   toPopulation: string;
   to: number;
@@ -198,7 +200,7 @@ export interface CrossCheckOptions {
 
 /** A row's label for people: `w[0] in[0] -> hid[1]` or `hid.beta`. */
 export function rowLabel(r: GradientRow | ParamRow): string {
-  return 'projection' in r ? `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]` : `${r.population}.${r.name}`;
+  return 'projection' in r ? `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]${r.via ? ` via ${r.via}` : ''}` : `${r.population}.${r.name}`;
 }
 
 /** The grid gradient against the exact one at dt, dt/2 and dt/4 (crosscheck/grid.ts). */

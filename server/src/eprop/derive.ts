@@ -47,6 +47,9 @@ export interface EligibilityDerivation {
   step: Sym[];
   /** The state after one arrival, in the names of the state before it. */
   arrivals?: { weight: string; next: Sym[] };
+  /** Every incoming block's arrival map (the first is `arrivals`), with the symbol of its arrival
+   *  in the step: `z_pre` for the first block, `z_pre_<weight>` for the others (receptors). */
+  receptors: { weight: string; arrival: string; next: Sym[] }[];
   /** M[i][j] = d x3_i / d x_j (z, z_pre, psi symbolic). */
   transition: Sym[][];
   quantities: EligibilityQuantity[];
@@ -58,7 +61,7 @@ export const MAX_STEP_NODES = 200_000;
 
 const empty = (n: ResolvedNeuron, why: string): EligibilityDerivation => ({
   name: n.name, notDerived: why, states: n.states.map((s) => s.name), params: n.params.map((p) => p.name),
-  guard: ZERO, psi: ZERO, detaching: [], scheme: '', step: [], transition: [], quantities: [], notes: [],
+  guard: ZERO, psi: ZERO, detaching: [], scheme: '', step: [], transition: [], quantities: [], notes: [], receptors: [],
 });
 
 /** Why e-prop derives nothing for `n`, or undefined when it can. */
@@ -67,7 +70,9 @@ export function whyNoEligibility(n: ResolvedNeuron): string | undefined {
   if (!n.fire) return `${n.name} has no fire block: it never spikes, so it has no pseudo-derivative and no eligibility trace`;
   if (n.fire.direction === 'either') return `${n.name} fires on a crossing in either direction: e-prop's spike test z = H(g) needs 'up' or 'down'`;
   if (!n.surrogate) return `${n.name} has no 'surrogate' line: e-prop needs the pseudo-derivative of the spike (add 'surrogate' inside the neuron; a quick fix writes the triangular one)`;
-  const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.incoming ? [n.incoming.weight] : []).filter(isEligibilitySymbolName);
+  const arrivalNames = n.receptors.slice(1).map((r) => arrivalName(r.weight));
+  const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.receptors.map((r) => r.weight))
+    .filter((x) => isEligibilitySymbolName(x) || arrivalNames.includes(x));
   if (clash.length) return `${clash.map((c) => `'${c}'`).join(', ')} ${clash.length === 1 ? 'is' : 'are'} spelled like a symbol of the e-prop formulas (z, z_pre, psi, eps_X); rename to derive them`;
   return undefined;
 }
@@ -81,6 +86,9 @@ export function deriveEligibility(n: ResolvedNeuron): EligibilityDerivation {
     return empty(n, `the derivation failed: ${(e as Error).message}`);
   }
 }
+
+/** The arrival symbol of a further incoming block (receptor) in the step. */
+export const arrivalName = (weight: string): string => `${ARRIVAL}_${weight}`;
 
 function derive(n: ResolvedNeuron): EligibilityDerivation {
   const fire = n.fire!, sur = n.surrogate!;
@@ -110,9 +118,15 @@ function derive(n: ResolvedNeuron): EligibilityDerivation {
   const Fx1 = F.map((e) => X.map((y) => normalise(substitute(derivative(e, y), toJ))));
   // 4. arrivals at x2 = step
   const toX2 = new Map(X.map((x, i) => [x, step[i]!] as const));
-  const inc = n.incoming;
-  const r = (x: string): Sym | undefined => inc?.jumps.get(x);
-  const A = X.map((x) => { const rx = r(x); return rx ? add(sym(x), mul(zpre, add(rx, mul(num(-1), sym(x))))) : sym(x); });
+  const inc = n.receptors[0];
+  // the blocks one after another, each with its own arrival z_k in the step (z_pre for the first):
+  // y_k = y_{k-1} + z_k (r_k(y_{k-1}) - y_{k-1}); one block: x2 + z_pre (r(x2) - x2) as in v0
+  let A: Sym[] = X.map((x) => sym(x));
+  n.receptors.forEach((blk, k) => {
+    const z = k === 0 ? zpre : sym(arrivalName(blk.weight));
+    const prev = new Map(X.map((x, i) => [x, A[i]!] as const));
+    A = X.map((x, i) => { const rx = blk.jumps.get(x); return rx ? add(A[i]!, mul(z, add(substitute(rx, prev), mul(num(-1), A[i]!)))) : A[i]!; });
+  });
   const Ax = A.map((e) => X.map((y) => normalise(substitute(derivative(e, y), toX2))));
   const matmul = (P: Sym[][], Q: Sym[][]): Sym[][] => P.map((row) => X.map((_, j) => normalise(add(...row.map((p, k) => mul(p, Q[k]![j]!))))));
   const matvec = (P: Sym[][], v: Sym[]): Sym[] => P.map((row) => normalise(add(...row.map((p, k) => mul(p, v[k]!)))));
@@ -123,8 +137,8 @@ function derive(n: ResolvedNeuron): EligibilityDerivation {
   const traceOf = (dgdq: Sym): Sym => normalise(mul(psi, add(...gx.map((d, j) => mul(d, eps[j]!)), dgdq)));
 
   const quantities: EligibilityQuantity[] = [];
-  if (inc) {
-    const w = inc.weight;
+  for (const blk of n.receptors) {
+    const w = blk.weight;
     const b = A.map((e) => normalise(substitute(derivative(e, w), toX2)));
     quantities.push({ name: w, kind: 'weight', update: Meps.map((m, i) => normalise(add(m, b[i]!))), trace: traceOf(ZERO) });
   }
@@ -138,14 +152,19 @@ function derive(n: ResolvedNeuron): EligibilityDerivation {
     const b = matvec(Ax, inner).map((v, i) => normalise(add(v, Ap[i]!)));
     quantities.push({ name: p, kind: 'param', update: Meps.map((m, i) => normalise(add(m, b[i]!))), trace: traceOf(gp) });
   }
+  // each block's map after one arrival there (its z 1, the others' 0)
+  const zs = n.receptors.map((blk, k) => (k === 0 ? ARRIVAL : arrivalName(blk.weight)));
+  const receptors = n.receptors.map((blk, k) => ({ weight: blk.weight, arrival: zs[k]!,
+    next: A.map((e) => normalise(substitute(e, new Map(zs.map((z, j) => [z, num(j === k ? 1 : 0)] as const))))) }));
   const notes: string[] = [];
+  if (n.receptors.length > 1) notes.push(`${n.receptors.length} incoming blocks: an arrival at block k in the step is ${zs.join(', ')} (one each); the blocks apply one after another, in the order written`);
   if (!inc) notes.push(`${n.name} has no incoming block: only its trainable parameters have eligibility traces`);
   if (!quantities.length) notes.push(`${n.name} has no incoming weight and no trainable parameter: nothing to train`);
   if (!map.exact) notes.push(`the flow has no exact step map: the ${map.entries.find((e) => e.label !== 'exact') ? 'fourth-order exponential Runge-Kutta' : ''} map is differentiated (docs/step-map.md)`);
   return {
     name: n.name, states: X, params, guard: normalise(g), psi: normalise(sur.psi), detaching: [...sur.detaching],
     scheme: map.exact ? 'exact' : 'exponential-rk4', step,
-    ...(inc ? { arrivals: { weight: inc.weight, next: A.map((e) => normalise(substitute(e, new Map([[ARRIVAL, num(1)]])))) } } : {}),
+    ...(inc ? { arrivals: { weight: inc.weight, next: receptors[0]!.next } } : {}), receptors,
     transition: M, quantities, notes,
   };
 }

@@ -36,7 +36,7 @@ export function eligibilityJson(ds: readonly EligibilityDerivation[], dt: number
   return {
     models: ds.filter((d) => !d.notDerived).map((d) => ({
       name: d.name, dt: dt ?? null, states: [...d.states], step: byState(d, d.step), guard: toMathjs(d.guard), psi: toMathjs(d.psi),
-      detaching: [...d.detaching], arrivals: d.arrivals ? { [d.arrivals.weight]: byState(d, d.arrivals.next) } : {},
+      detaching: [...d.detaching], arrivals: Object.fromEntries(d.receptors.map((r) => [r.weight, byState(d, r.next)])),
       eligibility: Object.fromEntries(d.quantities.map((q) => [q.name, { update: byState(d, q.update), trace: toMathjs(q.trace) }])),
       scheme: d.scheme, notes: [...d.notes],
     })),
@@ -52,7 +52,10 @@ export function renderEligibilityText(d: EligibilityDerivation): string {
   out.push(`  guard g = ${toMathjs(d.guard)}`, `  ${PSEUDO} = dz/dg = ${toMathjs(d.psi)}`,
     `  detaching: ${d.detaching.join(', ') || '(none)'}`, `Step (${d.scheme} map, ${SPIKE} symbolic):`);
   d.states.forEach((x, i) => out.push(`  ${x}(t+dt) = ${toMathjs(d.step[i]!)}`));
-  if (d.arrivals) { out.push(`After one arrival (weight ${d.arrivals.weight}):`); d.states.forEach((x, i) => out.push(`  ${x}+ = ${toMathjs(d.arrivals!.next[i]!)}`)); }
+  for (const r of d.receptors) {
+    out.push(`After one arrival (weight ${r.weight}${d.receptors.length > 1 ? `; ${r.arrival} = 1` : ''}):`);
+    d.states.forEach((x, i) => out.push(`  ${x}+ = ${toMathjs(r.next[i]!)}`));
+  }
   for (const q of d.quantities) {
     out.push(`Eligibility of ${q.kind} ${q.name}:`);
     d.states.forEach((x, i) => out.push(`  ${eligibilityName(x)}(t+1) = ${toMathjs(q.update[i]!)}`));
@@ -92,7 +95,7 @@ export function renderEligibilityLatex(d: EligibilityDerivation): string {
 }
 
 /** Hover text for a state (its eligibility components), the fire block or the surrogate (psi and every trace). */
-export function eligibilityHoverMarkdown(d: EligibilityDerivation, item: { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' } | { kind: 'surrogate' }): string | undefined {
+export function eligibilityHoverMarkdown(d: EligibilityDerivation, item: { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string } | { kind: 'surrogate' }): string | undefined {
   if (d.notDerived) return item.kind === 'surrogate' ? `_e-prop: none: ${d.notDerived}._` : undefined;
   const c = (s: Sym): string => '`' + toMathjs(s) + '`';
   if (item.kind === 'state') {
@@ -102,7 +105,7 @@ export function eligibilityHoverMarkdown(d: EligibilityDerivation, item: { kind:
       ...d.quantities.map((q) => `- for \`${q.name}\`: \`${eligibilityName(item.name)}(t+1)\` = ${c(q.update[i]!)}`)].join('\n');
   }
   if (item.kind === 'incoming') {
-    const q = d.quantities.find((x) => x.kind === 'weight');
+    const q = d.quantities.find((x) => x.kind === 'weight' && (item.weight === undefined || x.name === item.weight));
     if (!q) return undefined;
     return [`**e-prop eligibility of the weight \`${q.name}\`** (per synapse; \`z_pre\`: an arrival in the step)`, '',
       ...d.states.map((x, i) => `- \`${eligibilityName(x)}(t+1)\` = ${c(q.update[i]!)}`), `- \`e(t)\` = ${c(q.trace)}`].join('\n');

@@ -86,7 +86,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
     const pr = net.projections[E.projection]!;
     if (pr.from === pr.to && n === E.source) return E.xPre.slice(n * S, n * S + S);
     load(k, v, E.xPre, n * S, E.time, 0, pr.weights[n]![E.source]!);
-    for (let j = 0; j < S; j++) out[j] = k.incoming!.J[j]!(v);
+    for (let j = 0; j < S; j++) out[j] = k.receptors[pr.receptor ?? 0]!.J[j]!(v);
     return out;
   };
   /** Segment start of neuron n: the grid point of `step` (ref -1) or the logged event ref. */
@@ -178,14 +178,15 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
           if (!(self && n === E.source)) {
             load(k, v, E.xPre, o, E.time, 0, pr.weights[n]![E.source]!);
             const lam = B.lam.slice(o, o + S);
+            const R = k.receptors[pr.receptor ?? 0]!;
             let gw = 0, gt = 0;
-            for (let i = 0; i < S; i++) { gw += lam[i]! * k.incoming!.Jw![i]!(v); gt += lam[i]! * k.incoming!.Jt[i]!(v); }
+            for (let i = 0; i < S; i++) { gw += lam[i]! * R.Jw![i]!(v); gt += lam[i]! * R.Jt[i]!(v); }
             gW[E.projection]![n]![E.source]! += gw;
             T[e]! += gt;
-            for (let q = 0; q < B.grad.length; q++) for (let i = 0; i < S; i++) B.grad[q]! += lam[i]! * k.incoming!.Jp[i]![q]!(v);
+            for (let q = 0; q < B.grad.length; q++) for (let i = 0; i < S; i++) B.grad[q]! += lam[i]! * R.Jp[i]![q]!(v);
             for (let j = 0; j < S; j++) {
               let acc = 0;
-              for (let i = 0; i < S; i++) acc += k.incoming!.Jx[i]![j]!(v) * lam[i]!;
+              for (let i = 0; i < S; i++) acc += R.Jx[i]![j]!(v) * lam[i]!;
               B.lam[o + j] = acc;
             }
           }

@@ -125,8 +125,7 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
       guard = { direction: neuron.fire.direction, g, gx: states.map((x) => d(g, x)), gt: d(g, TIME), gp: gradParams.map((p) => d(g, p)) };
       spike = jumpPieces(neuron.fire.jumps);
     }
-    const incoming: IncomingPieces[] = neuron.incoming
-      ? [{ weight: neuron.incoming.weight, ...jumpPieces(neuron.incoming.jumps, neuron.incoming.weight) } as IncomingPieces] : [];
+    const incoming: IncomingPieces[] = neuron.receptors.map((r) => ({ weight: r.weight, ...jumpPieces(r.jumps, r.weight) }) as IncomingPieces);
     // the backward pass evaluates Fx and Fp at each segment's start state, and Fh, Ft there
     // too unless the map is exact (then dF/d dt = f at the recorded event states, dF/dt = 0)
     const needs = [...map.Fx.flat(), ...map.Fp.flat(), ...(m.exact ? [] : [...map.Fh, ...map.Ft])];

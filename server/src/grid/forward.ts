@@ -378,7 +378,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
       for (let n = 0; n < L.pop.size; n++) {
         if (!(self && n === arr.source)) {
           load(k, L.v, L.x, n * S, arr.time, 0, pr.weights[n]![arr.source]!);
-          for (let j = 0; j < S; j++) y[j] = k.incoming!.J[j]!(L.v);
+          for (let j = 0; j < S; j++) y[j] = k.receptors[pr.receptor ?? 0]!.J[j]!(L.v);
           L.x.set(y.subarray(0, S), n * S);
         }
         L.start[n] = ev;

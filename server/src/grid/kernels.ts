@@ -1,6 +1,8 @@
 // The grid derivation of one model compiled to closures (symbolic/evaluate.ts `compile`,
 // never eval) over one values vector per neuron:
 //   [states..., params..., t, dt, weight]
+// With several incoming blocks (receptors) the weight slot holds the weight of the block an
+// arrival reaches: each block's closures read its own weight name from that one slot.
 // The grid simulator fills the vector and calls the closures; generated code prints the same
 // Syms. Invariant: every closure reads only that layout.
 import { type Compiled, compile } from '../symbolic/evaluate';
@@ -23,19 +25,25 @@ export interface Kernels {
   F: Compiled[]; Fx: Compiled[][]; Fh: Compiled[]; Ft: Compiled[]; Fp: Compiled[][]; flow: Compiled[];
   guard?: { direction: Direction; g: Compiled; gx: Compiled[]; gt: Compiled; gp: Compiled[] };
   spike?: JumpKernels;
+  /** Per incoming block, in the model's order (its weight in slot W). */
+  receptors: JumpKernels[];
+  /** The first of `receptors`. */
   incoming?: JumpKernels;
   /** Indices (into params) of the parameters with a gradient. */
   gradIndex: number[];
 }
 
 export function compileKernels(d: GridDerivation): Kernels {
-  const weight = d.incoming[0]?.weight ?? '__no_weight__';
-  const names = [...d.states, ...d.params, 't', 'dt', weight, ...d.map.assigns.map((a) => a.name)];
+  const namesWith = (weight: string): string[] => [...d.states, ...d.params, 't', 'dt', weight, ...d.map.assigns.map((a) => a.name)];
+  const names = namesWith(d.incoming[0]?.weight ?? '__no_weight__');
   const c = (s: Sym): Compiled => compile(s, names);
   const cm = (m: Sym[][]): Compiled[][] => m.map((row) => row.map(c));
   const S = d.states.length, P = d.params.length;
-  const jump = (j: { J: Sym[]; Jx: Sym[][]; Jt: Sym[]; Jp: Sym[][]; Jw?: Sym[] }): JumpKernels =>
-    ({ J: j.J.map(c), Jx: cm(j.Jx), Jt: j.Jt.map(c), Jp: cm(j.Jp), ...(j.Jw ? { Jw: j.Jw.map(c) } : {}) });
+  const jump = (j: { J: Sym[]; Jx: Sym[][]; Jt: Sym[]; Jp: Sym[][]; Jw?: Sym[] }, over = names): JumpKernels => {
+    const cc = (s: Sym): Compiled => compile(s, over);
+    return { J: j.J.map(cc), Jx: j.Jx.map((r) => r.map(cc)), Jt: j.Jt.map(cc), Jp: j.Jp.map((r) => r.map(cc)), ...(j.Jw ? { Jw: j.Jw.map(cc) } : {}) };
+  };
+  const receptors = d.incoming.map((i) => jump(i, namesWith(i.weight)));
   const A = d.map.assigns;
   return {
     d, stages: compileAssigns(needed(A, d.map.F), names), stagesFh: compileAssigns(needed(A, [...d.map.F, ...d.map.Fh]), names),
@@ -44,7 +52,7 @@ export function compileKernels(d: GridDerivation): Kernels {
     F: d.map.F.map(c), Fx: cm(d.map.Fx), Fh: d.map.Fh.map(c), Ft: d.map.Ft.map(c), Fp: cm(d.map.Fp), flow: d.map.flow.map(c),
     ...(d.guard ? { guard: { direction: d.guard.direction, g: c(d.guard.g), gx: d.guard.gx.map(c), gt: c(d.guard.gt), gp: d.guard.gp.map(c) } } : {}),
     ...(d.spike ? { spike: jump(d.spike) } : {}),
-    ...(d.incoming[0] ? { incoming: jump(d.incoming[0]) } : {}),
+    receptors, ...(receptors[0] ? { incoming: receptors[0] } : {}),
     gradIndex: d.gradParams.map((p) => d.params.indexOf(p)),
   };
 }

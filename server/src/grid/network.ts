@@ -4,7 +4,8 @@
 // parameters), and a loss. All values SI.
 //
 // Invariants of a validated network: every population name is unique; every projection's
-// sender is an input or fires, its receiver has an incoming block; weights[to][from] is
+// sender is an input or fires, its receiver has the incoming block it names (`receptor`, the
+// index in the model's receptors; the same pair may be projected into several blocks); weights[to][from] is
 // size(to) x size(from); a population projecting onto itself has no self-synapses (its
 // diagonal is ignored); input spikes lie in [0, duration); labels index the loss population.
 import type { ResolvedNeuron } from '../model/types';
@@ -22,6 +23,8 @@ export type Population = InputPopulation | ModelPopulation;
 export interface Projection {
   from: string;
   to: string;
+  /** The receiving incoming block: its index in the model's `receptors` (default 0). */
+  receptor?: number;
   /** weights[to][from] (SI). */
   weights: number[][];
 }
@@ -78,7 +81,10 @@ export function validateNetwork(net: Network): string[] {
     if (!to) errors.push(`projections[${k}].to: no population ${pr.to}`);
     if (!from || !to) return;
     if (to.kind !== 'model') errors.push(`projections[${k}].to: ${to.name} is an input population`);
-    else if (!to.model.incoming) errors.push(`projections[${k}].to: ${to.model.name} has no incoming block`);
+    else if (to.model.receptors.length === 0) errors.push(`projections[${k}].to: ${to.model.name} has no incoming block`);
+    else if (pr.receptor !== undefined && !(Number.isInteger(pr.receptor) && pr.receptor >= 0 && pr.receptor < to.model.receptors.length)) {
+      errors.push(`projections[${k}].receptor: ${to.model.name} has no incoming block number ${pr.receptor}`);
+    }
     if (from.kind === 'model' && !from.model.fire) errors.push(`projections[${k}].from: ${from.model.name} never fires`);
     if (pr.weights.length !== to.size || pr.weights.some((row) => row.length !== from.size)) {
       errors.push(`projections[${k}].weights: must be ${to.size} rows (${to.name}) of ${from.size} numbers (${from.name})`);

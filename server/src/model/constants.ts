@@ -44,7 +44,7 @@ export function constantUses(n: {
   params: readonly { name: string; dim?: Dim }[];
   flows: ReadonlyMap<string, Sym>;
   fire?: { guard: Sym; jumps: ReadonlyMap<string, Sym> };
-  incoming?: { jumps: ReadonlyMap<string, Sym> };
+  receptors: readonly { jumps: ReadonlyMap<string, Sym> }[];
 }): Map<string, ConstantUse> {
   const divides = new Map<string, string[]>();
   const note = (s: Sym, where: string): void => {
@@ -57,7 +57,7 @@ export function constantUses(n: {
     note(n.fire.guard, 'the guard');
     for (const [x, h] of n.fire.jumps) note(h, `the jump of ${x}`);
   }
-  if (n.incoming) for (const [x, r] of n.incoming.jumps) note(r, `the incoming jump of ${x}`);
+  for (const inc of n.receptors) for (const [x, r] of inc.jumps) note(r, `the incoming jump of ${x}`);
   const out = new Map<string, ConstantUse>();
   for (const p of n.params) {
     const where = [...new Set(divides.get(p.name) ?? [])];

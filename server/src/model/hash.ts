@@ -15,9 +15,9 @@ export function modelHash(n: ResolvedNeuron): string {
     parts.push('F', key(n.fire.lhs), key(n.fire.rhs), key(n.fire.guard), n.fire.direction);
     for (const [x, h] of n.fire.jumps) parts.push(`${x}:=${key(h)}`);
   }
-  if (n.incoming) {
-    parts.push('I', n.incoming.weight);
-    for (const [x, r] of n.incoming.jumps) parts.push(`${x}:=${key(r)}`);
+  for (const inc of n.receptors) {
+    parts.push('I', inc.weight);
+    for (const [x, r] of inc.jumps) parts.push(`${x}:=${key(r)}`);
   }
   if (n.surrogate) parts.push('Z', key(n.surrogate.psi), ...n.surrogate.detaching);
   return contentHash(parts.join('\u0001'));

@@ -169,8 +169,9 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   const flowDecls = new Map<string, A.FlowEq>();
   const flowScope = scopeFor(undefined);
   let fire: FireInfo | undefined;
-  let incoming: IncomingInfo | undefined;
-  let fireSeen: A.FireBlock | undefined, incomingSeen: A.IncomingBlock | undefined;
+  const receptors: IncomingInfo[] = [];
+  const weightsSeen = new Map<string, A.IncomingBlock>();
+  let fireSeen: A.FireBlock | undefined;
   const surrogates: A.SurrogateDecl[] = [];
   for (const m of decl.members) {
     if (m.kind === 'surrogate') { surrogates.push(m); continue; }
@@ -196,14 +197,17 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       fireSeen = m;
       fire = resolveFire(m, flowScope, table, nName, ctx);
     } else if (m.kind === 'incoming') {
-      if (incomingSeen) {
-        ctx.diagnostics.push({ severity: 'error', code: 'unsupported', range: m.keywordRange,
-          message: 'only one incoming block per neuron is supported in v0 (one synapse type)',
-          related: [{ message: 'the first incoming block', range: incomingSeen.keywordRange }] });
+      // Several blocks (receptors) are told apart by their weight names.
+      const prior = m.weight ? weightsSeen.get(m.weight.name) : undefined;
+      if (m.weight && prior) {
+        ctx.diagnostics.push({ severity: 'error', code: 'duplicate-declaration', range: m.weight.range,
+          message: `another incoming block already has the weight '${m.weight.name}': each block needs its own weight name (connections pick a block by it with 'via')`,
+          related: [{ message: 'the first block with this weight', range: prior.weight!.range }] });
         continue;
       }
-      incomingSeen = m;
-      incoming = resolveIncoming(m, table, nName, ctx, symbols, scopeFor);
+      if (m.weight) weightsSeen.set(m.weight.name, m);
+      const r = resolveIncoming(m, table, nName, ctx, symbols, scopeFor);
+      if (r) receptors.push(r);
     }
   }
   // After the fire block, wherever it stands: the surrogate's dimension is one over the guard's.
@@ -221,7 +225,7 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   for (const d of [...params, ...lets]) {
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
-  checkBounds(lets, flows, flowDecls, fire, incoming, table, ctx);
+  checkBounds(lets, flows, flowDecls, fire, receptors, table, ctx);
   if (!probe && ctx.mismatchRatios) {
     repairUnits({ decl, diagnostics: ctx.diagnostics.slice(diagnosticsBefore), ratios: ctx.mismatchRatios,
       references: ctx.references.slice(referencesBefore), unitsUsed: [...ctx.unitsUsed],
@@ -232,15 +236,15 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       } });
   }
   // Only on a neuron that is otherwise sound (a too-complex expression is not walked again).
-  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx);
+  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, receptors, table, ctx);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
-    ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), ...(surrogate ? { surrogate } : {}), wellFormed };
+    ...(fire ? { fire } : {}), receptors, ...(receptors[0] ? { incoming: receptors[0] } : {}), ...(surrogate ? { surrogate } : {}), wellFormed };
 }
 
 /** 'too-complex' errors for resolved expressions that later stages could not walk in bounded time and stack. */
 function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<string, A.FlowEq>, fire: FireInfo | undefined,
-  incoming: IncomingInfo | undefined, table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
+  receptors: IncomingInfo[], table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
   const check = (s: S.Sym, range: A.Range | undefined, what: string): void => {
     const e = range ? complexityError(s, range, what) : undefined;
     if (e) ctx.diagnostics.push(e);
@@ -253,13 +257,13 @@ function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<
     check(fire.guard, d.lhs && d.rhs ? { start: d.lhs.range.start, end: d.rhs.range.end } : d.keywordRange, 'the guard');
     for (const [x, h] of fire.jumps) check(h, jumpRange(d.jumps, x), `the jump of '${x}'`);
   }
-  if (incoming) for (const [x, r] of incoming.jumps) check(r, jumpRange(incoming.decl.jumps, x), `the incoming jump of '${x}'`);
+  for (const inc of receptors) for (const [x, r] of inc.jumps) check(r, jumpRange(inc.decl.jumps, x), `the incoming jump of '${x}'`);
 }
 
 /** Zero divisors (error) and negative time constants or capacitances (warning), on the parameter's value. */
-function checkConstants(params: ParamInfo[], flows: Map<string, S.Sym>, fire: FireInfo | undefined, incoming: IncomingInfo | undefined,
+function checkConstants(params: ParamInfo[], flows: Map<string, S.Sym>, fire: FireInfo | undefined, receptors: IncomingInfo[],
   table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
-  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}) });
+  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), receptors });
   for (const p of params) {
     const use = uses.get(p.name);
     if (!use || p.valueSI === undefined) continue;
@@ -420,7 +424,7 @@ function resolveIncoming(m: A.IncomingBlock, table: Map<string, { info: SymbolIn
     ctx.diagnostics.push({ severity: 'warning', code: 'unused-declaration', range: m.weight.range,
       message: `the weight '${name}' is not used: incoming spikes would have no effect` });
   }
-  return { weight: name, ...(dim ? { weightDim: dim } : {}), ...(info.unitText ? { weightUnit: info.unitText } : {}), jumps, decl: m };
+  return { weight: name, symbol: info, ...(dim ? { weightDim: dim } : {}), ...(info.unitText ? { weightUnit: info.unitText } : {}), jumps, decl: m };
 }
 
 /** Without a bracket unit, the weight takes the dimension that makes every jump consistent (tried silently). */

@@ -60,6 +60,8 @@ export interface FireInfo {
 
 export interface IncomingInfo {
   weight: string;
+  /** The weight's symbol (a connection's `via` refers to it). */
+  symbol: SymbolInfo;
   weightDim?: Dim;
   weightUnit?: string;
   /** Jump maps y+ = r(y-, w): only states that jump appear. */
@@ -88,6 +90,9 @@ export interface ResolvedNeuron {
   /** Flow ASTs by state, for ranges. */
   flowDecls: Map<string, A.FlowEq>;
   fire?: FireInfo;
+  /** The `incoming` blocks (receptors) in the order written, told apart by their weight names (v0: at most one). */
+  receptors: IncomingInfo[];
+  /** The first incoming block (v0's only one); every stage reads `receptors`. */
   incoming?: IncomingInfo;
   surrogate?: SurrogateInfo;
   wellFormed: boolean;
@@ -96,7 +101,9 @@ export interface ResolvedNeuron {
 /** One use of a name in the text and what it resolves to. */
 export interface Reference { range: A.Range; target: SymbolInfo }
 
-export interface Connection { from: string; to: string; decl?: A.ConnectDecl; implicit: boolean }
+/** A projection: spikes of `from` reach the `incoming` block of `to` whose weight is `via`
+ *  (set when `to` has several blocks or the line names one; absent: its only block). */
+export interface Connection { from: string; to: string; via?: string; decl?: A.ConnectDecl; implicit: boolean }
 
 export interface ResolvedFile {
   neurons: ResolvedNeuron[];

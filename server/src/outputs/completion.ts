@@ -1,6 +1,6 @@
 // Completion candidates at an offset, from the token stream before the caret (so that it
 // works in half-typed, unparsable text): unit symbols inside `[ ]`, neuron names after
-// `connect` and `->`, the names in scope in expressions (the neuron's params, states, lets,
+// `connect` and `->`, `via` after `connect A -> B` and the weights of B's incoming blocks after it, the names in scope in expressions (the neuron's params, states, lets,
 // `t`, and the weight inside its `incoming` block) with the built-in functions, and the
 // keywords that can start a declaration at that place.
 //
@@ -123,6 +123,7 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
   const inExpression = prevType !== undefined && (EXPRESSION_AFTER.has(prevType) || (OPERAND_END.has(prevType) && sameLine && ctx.statement.length > 0));
 
   if (!neuronFrame) {
+    if (head === 'Kw_connect') return connectCandidates(a, ctx, replace);
     if (inExpression && head === 'Kw_timestep') return [];
     return keywordCandidates(TOP_KEYWORDS, replace);
   }
@@ -158,6 +159,17 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
     out.push({ label: `d${s.name}/dt`, kind: 'equation', detail: `flow of state ${s.name}`, snippet: `d${s.name}/dt = $0`, replace, rank: 0 });
   }
   return out;
+}
+
+/** In a `connect` line: `via` after `connect A -> B`, then the weights of B's incoming blocks. */
+function connectCandidates(a: Analysis, ctx: Context, replace: A.Range): CompletionCandidate[] {
+  const st = ctx.statement;
+  const target = st.length >= 4 && st[2]?.tokenType.name === 'Arrow' ? a.model.neurons.find((n) => n.name === st[3]!.image) : undefined;
+  if (st.length === 4 && target) return keywordCandidates(['via'], replace).map((c) => ({ ...c, snippet: 'via ${1:weight}' }));
+  if (st.length === 5 && st[4]!.image === 'via' && target) {
+    return target.receptors.map((r) => ({ ...nameCandidate(r.symbol, replace), detail: `incoming block of ${target.name}${r.weightUnit ? ` · [${r.weightUnit}]` : ''}` }));
+  }
+  return [];
 }
 
 function nameCandidate(s: SymbolInfo, replace: A.Range): CompletionCandidate {

@@ -12,19 +12,24 @@ import { formatTime, stepHoverMarkdown } from '../step/index';
 import { stepReportFor } from '../step/cache';
 
 /** What a hover target is, for the learning rules. */
-function ruleItem(target: Parameters<HoverSection>[0]['target'], neuron: NonNullable<Parameters<HoverSection>[0]['neuron']>): RuleHoverItem | undefined {
+function ruleItem(target: Parameters<HoverSection>[0]['target'], neuron: NonNullable<Parameters<HoverSection>[0]['neuron']>, offset: number): RuleHoverItem | undefined {
   if (target.kind === 'symbol' && target.symbol.kind === 'state' && target.symbol.neuron === neuron.name) return { kind: 'state', name: target.symbol.name };
   if (target.kind === 'keyword' && (target.word === 'fire' || target.word === 'when' || target.word === 'crosses') && neuron.fire) return { kind: 'fire' };
-  if (target.kind === 'keyword' && target.word === 'incoming' && neuron.incoming) return { kind: 'incoming' };
-  if (target.kind === 'symbol' && target.symbol.kind === 'weight' && neuron.incoming) return { kind: 'incoming' };
+  if (target.kind === 'keyword' && target.word === 'incoming' && neuron.receptors.length) {
+    const block = neuron.receptors.find((r) => r.decl.keywordRange.start <= offset && offset <= r.decl.keywordRange.end);
+    return { kind: 'incoming', ...(block ? { weight: block.weight } : {}) };
+  }
+  if (target.kind === 'symbol' && target.symbol.kind === 'weight' && neuron.receptors.some((r) => r.weight === target.symbol.name)) {
+    return { kind: 'incoming', weight: target.symbol.name };
+  }
   if (target.kind === 'keyword' && (target.word === 'surrogate' || target.word === 'detaching')) return { kind: 'surrogate' };
   return undefined;
 }
 
 /** Every rule of the registry that has something to say about the target (EventProp, then e-prop). */
-const rulesSection: HoverSection = ({ target, neuron }) => {
+const rulesSection: HoverSection = ({ target, neuron, offset }) => {
   if (!neuron?.wellFormed) return undefined;
-  const item = ruleItem(target, neuron);
+  const item = ruleItem(target, neuron, offset);
   if (!item) return undefined;
   const parts = RULES.map((r) => r.hover(neuron, item)).filter((p): p is string => p !== undefined);
   return parts.length ? parts.join('\n\n') : undefined;

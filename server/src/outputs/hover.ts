@@ -59,6 +59,11 @@ export function hover(a: Analysis, offset: number, sections: readonly HoverSecti
   }
 }
 
+/** Whether offset starts the word `via` of a `connect A -> B via W` line. */
+export function viaWordAt(a: Analysis, offset: number): boolean {
+  return a.parse.file.items.some((i) => i.kind === 'connect' && i.viaRange?.start === offset);
+}
+
 function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: A.Range } | undefined {
   if (commentAt(a, offset)) return undefined;
   const tok = tokenAt(a, offset);
@@ -73,6 +78,7 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
     return { target: { kind: 'unit', text }, range: { start: tok.startOffset + lead, end: tok.startOffset + lead + text.length } };
   }
   if (tok && type?.startsWith('Kw_')) return { target: { kind: 'keyword', word: tok.image }, range: tokenRange(tok) };
+  if (tok && type === 'Identifier' && viaWordAt(a, tok.startOffset)) return { target: { kind: 'keyword', word: 'via' }, range: tokenRange(tok) };
   const hit = symbolAt(a, offset);
   if (hit) return { target: { kind: 'symbol', symbol: hit.symbol, isDeclaration: hit.isDeclaration }, range: hit.range };
   if (tok && type === 'Identifier' && (FUNCTION_NAMES as readonly string[]).includes(tok.image)) {
@@ -149,7 +155,7 @@ function symbolMarkdown(a: Analysis, s: SymbolInfo): string {
 /** Whether the incoming block of a weight carries a note of its own. */
 function weightNote(a: Analysis, s: SymbolInfo): boolean {
   const n = s.neuron ? resolvedNeuron(a, s.neuron) : undefined;
-  return n?.incoming?.decl.doc !== undefined && n.incoming.weight === s.name;
+  return n?.receptors.find((r) => r.weight === s.name)?.decl.doc !== undefined;
 }
 
 function headerText(a: Analysis, s: SymbolInfo, decl: A.ParamDecl | A.StateDecl | A.LetDecl | undefined): string {

@@ -4,7 +4,7 @@
 // (a `#~` note) and `deprecated` (a quoted docstring, the old form of documentation):
 //   params -> parameter, states -> variable, lets -> variable+readonly,
 //   the incoming weight -> property, neuron names -> type, built-in calls -> function,
-//   `dX/dt` -> variable (the state it differentiates), `t` -> keyword.
+//   `dX/dt` -> variable (the state it differentiates), `t` and the `via` of a connection -> keyword.
 // Unit text inside brackets is left to the TextMate grammar. `encodeSemanticTokens` writes
 // the LSP relative encoding (5 integers per token) with the LineIndex of the analysis;
 // `semanticTokensEdits` the delta between two encodings (one replacement).
@@ -42,6 +42,7 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
   for (const r of a.model.references) if (inside(r.range) && !kinds.has(r.range.start)) kinds.set(r.range.start, { kind: r.target.kind, declaration: false });
   const out: SemanticToken[] = [];
   const tokens = a.parse.tokens;
+  const viaWords = new Set(a.parse.file.items.flatMap((i) => (i.kind === 'connect' && i.viaRange ? [i.viaRange.start] : [])));
   for (let i = within ? firstAtOrAfter(tokens, from, (t) => t.startOffset) : 0; i < tokens.length && tokens[i]!.startOffset < to; i++) {
     const t = tokens[i]!;
     const type = t.tokenType.name;
@@ -53,7 +54,8 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
     else if (type === 'Derivative') out.push({ range, type: 'variable', modifiers: [] });
     else if (type === 'Identifier') {
       const k = kinds.get(range.start);
-      if (k) {
+      if (viaWords.has(range.start)) out.push({ range, type: 'keyword', modifiers: [] });
+      else if (k) {
         const modifiers: SemanticModifier[] = [];
         if (k.declaration) modifiers.push('declaration');
         if (k.kind === 'let') modifiers.push('readonly');

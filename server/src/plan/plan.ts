@@ -81,7 +81,8 @@ export function planTraining(n: ResolvedNeuron, shape: PlanShape): TrainingPlan 
   const spikes = r * T * N; // per batch element
   // the forward pass, shared by all three
   const stepNodes = elig.notDerived ? nodes([...n.flows.values()]) * 4 : nodes(elig.step);
-  const arrivalNodes = n.incoming ? nodes([...n.incoming.jumps.values()]) : 0;
+  // a synapse reaches one block: the largest block stands for all
+  const arrivalNodes = Math.max(0, ...n.receptors.map((i) => nodes([...i.jumps.values()])));
   const guardNodes = n.fire ? size(n.fire.guard) : 0;
   const forward = B * T * (N * (stepNodes + guardNodes) + syn * r * arrivalNodes);
   const methods: MethodPlan[] = [];
@@ -112,7 +113,7 @@ export function planTraining(n: ResolvedNeuron, shape: PlanShape): TrainingPlan 
     const values = B * (spikes * (R + 2) + T * N * Q + N * S);
     const adjNodes = nodes([...adj.adjointFlow.values()]);
     const jumpNodes = adj.spike ? nodes([...adj.spike.jump.values()]) + size(adj.spike.phi) : 0;
-    const recvNodes = adj.incoming ? nodes([...adj.incoming.jump.values()]) + size(adj.incoming.weightGradient) : 0;
+    const recvNodes = Math.max(0, ...adj.receptors.map((i) => nodes([...i.jump.values()]) + size(i.weightGradient)));
     const rIn = shape.inputRate ?? r;
     const perSpike = S * bytes + bytes + 8 + 8 + 1 + 8;
     const perArrival = N * S * bytes + bytes + 8 * 3 + (Q ? N * 8 : 0);

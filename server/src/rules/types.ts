@@ -8,7 +8,7 @@ import type { ResolvedNeuron } from '../model/types';
 export type RuleFormat = 'text' | 'markdown' | 'latex' | 'json';
 
 /** What a hover is on: a state, the fire block, the incoming block (or its weight), the surrogate line. */
-export type RuleHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming' } | { kind: 'surrogate' };
+export type RuleHoverItem = { kind: 'state'; name: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string } | { kind: 'surrogate' };
 
 export interface RulePreviewRow { label: string; latex: string; note?: string }
 export interface RulePreviewSection { title: string; note?: string; rows: RulePreviewRow[] }

@@ -46,7 +46,7 @@ export interface Gradients {
   nonFinite?: NonFiniteAt;
 }
 
-/** A derivation compiled over [states, lambdas, params, weight?, t, phi, coupling, dlp_dt, lV_pre, lV_post, dlV_dX...]. */
+/** A derivation compiled over [states, lambdas, params, weights of the blocks..., t, phi, coupling, dlp_dt, lV_pre, lV_post, dlV_dX...]. */
 interface CompiledAdjoint {
   names: string[];
   flow: Compiled[];
@@ -58,21 +58,21 @@ interface CompiledAdjoint {
   imposedNumerator?: Compiled;
   imposedJump?: Compiled[];
   paramImposed?: Compiled[];
-  inJump?: Compiled[];
-  weightGradient?: Compiled;
-  coupling?: Compiled;
-  paramIncoming?: Compiled[];
+  /** Per incoming block: lambda jump, weight gradient, coupling term, parameter increments. */
+  receptors: { inJump: Compiled[]; weightGradient: Compiled; coupling: Compiled; paramIncoming: Compiled[] }[];
   gradientParams: string[];
 }
 
 function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjoint {
   const states = m.states.map((s) => s.name);
-  const names = [...states, ...states.map(lambdaName), ...m.params.map((p) => p.name), ...(m.incoming ? [m.incoming.weight] : []),
+  const names = [...states, ...states.map(lambdaName), ...m.params.map((p) => p.name), ...m.receptors.map((r) => r.weight),
     TIME, PHI, COUPLING, DLP_DT, LV_PRE, LV_POST, ...states.map(lossPartialName)];
   const c = (s: Sym | null | undefined): Compiled => compile(s ?? ZERO, names);
   const ps = d.gradientParams.map((p) => d.paramGradients.get(p)!);
   const out: CompiledAdjoint = { names, gradientParams: d.gradientParams,
-    flow: states.map((x) => c(d.adjointFlow.get(x))), paramFlow: ps.map((g) => c(g.flow)) };
+    flow: states.map((x) => c(d.adjointFlow.get(x))), paramFlow: ps.map((g) => c(g.flow)),
+    receptors: d.receptors.map((i) => ({ inJump: states.map((x) => c(i.jump.get(x))), weightGradient: c(i.weightGradient),
+      coupling: c(i.coupling), paramIncoming: d.gradientParams.map((p) => c(i.params.get(p))) })) };
   if (d.spike) {
     out.phi = c(d.spike.phi);
     out.jump = states.map((x) => c(d.spike!.jump.get(x)));
@@ -80,12 +80,6 @@ function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjo
     out.imposedNumerator = c(d.spike.imposed.numerator);
     out.imposedJump = states.map((x) => c(d.spike!.imposed.jump.get(x)));
     out.paramImposed = ps.map((g) => c(g.spikeImposed));
-  }
-  if (d.incoming) {
-    out.inJump = states.map((x) => c(d.incoming!.jump.get(x)));
-    out.weightGradient = c(d.incoming.weightGradient);
-    out.coupling = c(d.incoming.coupling);
-    out.paramIncoming = ps.map((g) => c(g.incoming));
   }
   return out;
 }
@@ -141,7 +135,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   };
   const slot = (x: AdjointInstance, name: string): number => x.a.names.indexOf(name);
   const special = ai.map((x) => ({ t: slot(x, TIME), phi: slot(x, PHI), coupling: slot(x, COUPLING), dlp: slot(x, DLP_DT),
-    pre: slot(x, LV_PRE), post: slot(x, LV_POST), w: x.fwd.c.model.incoming ? slot(x, x.fwd.c.model.incoming.weight) : -1 }));
+    pre: slot(x, LV_PRE), post: slot(x, LV_POST), w: x.fwd.c.model.receptors.map((r) => slot(x, r.weight)) }));
 
   /** Fill instance i's buffer from the network state x, costates z and time t (dlV_dX too). */
   const fill = (i: number, x: Float64Array, z: Float64Array, t: number): Float64Array => {
@@ -185,14 +179,18 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   const lossAt = (state: Float64Array, t: number): number =>
     ai.reduce((s, it) => s + (it.fwd.loss.integrand ? it.fwd.loss.integrand(load(it.fwd, state, t)) : 0), 0);
 
-  /** Target side of one delivered spike: new lambdas, weight gradient, parameter increments. */
-  const receive = (m: number, w: number, e: { pre: Float64Array; time: number }, zPlus: Float64Array, zNew: Float64Array): number => {
-    const it = ai[m]!, b = fill(m, e.pre, zPlus, e.time), off = layout.offset[m]!;
-    b[special[m]!.w] = w;
-    setWeight(it.fwd, w);
-    for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.inJump![j]!(b);
-    it.a.paramIncoming!.forEach((f, k) => { zNew[it.acc + k] = zNew[it.acc + k]! + f(b); });
-    return it.a.weightGradient!(b);
+  /** Instance m's buffer for its block r with weight w (the other blocks' weights 0). */
+  const setBlock = (m: number, b: Float64Array, w: number, r: number): void => {
+    special[m]!.w.forEach((slotOf, k) => { b[slotOf] = k === r ? w : 0; });
+    setWeight(ai[m]!.fwd, w, r);
+  };
+  /** Target side of one delivered spike at block r: new lambdas, weight gradient, parameter increments. */
+  const receive = (m: number, w: number, r: number, e: { pre: Float64Array; time: number }, zPlus: Float64Array, zNew: Float64Array): number => {
+    const it = ai[m]!, b = fill(m, e.pre, zPlus, e.time), off = layout.offset[m]!, R = it.a.receptors[r]!;
+    setBlock(m, b, w, r);
+    for (let j = 0; j < it.nStates; j++) zNew[off + j] = R.inJump[j]!(b);
+    R.paramIncoming.forEach((f, k) => { zNew[it.acc + k] = zNew[it.acc + k]! + f(b); });
+    return R.weightGradient(b);
   };
 
   // Events whose spike carries the per-spike loss (all spikes, or each neuron's first one).
@@ -220,7 +218,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     const e = traj.events[k - 1]!;
     const increment = (g: number, target: number): number => {
       if (!Number.isFinite(g) && !result.nonFinite) {
-        result.nonFinite = { time: e.time, neuron: target, quantity: `dL/d${ai[target]!.fwd.c.model.incoming?.weight ?? 'w'}`, cause: 'received spike' };
+        result.nonFinite = { time: e.time, neuron: target, quantity: `dL/d${ai[target]!.fwd.c.model.receptors[0]?.weight ?? 'w'}`, cause: 'received spike' };
       }
       return g;
     };
@@ -232,7 +230,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       for (let q = group.length - 1; q >= 0; q--) {
         const a = group[q]!;
         x.set(a.pre, layout.offset[a.neuron]!);
-        result.inputWeights[a.train]! += increment(receive(a.neuron, inputs[a.train]!.weight, { pre: x, time: e.time }, z, z), a.neuron);
+        result.inputWeights[a.train]! += increment(receive(a.neuron, inputs[a.train]!.weight, inputs[a.train]!.receptor ?? 0, { pre: x, time: e.time }, z, z), a.neuron);
       }
       flagNonFinite(z, e.time, 'input spike');
       continue;
@@ -245,13 +243,34 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     {
       const n = e.neuron, sp = special[n]!;
       let coupling = 0;
-      net.synapses.forEach((s, si) => {
-        if (s.from !== n) return;
-        const it = ai[s.to]!, b = fill(s.to, e.pre, zPlus, e.time);
-        b[special[s.to]!.w] = s.weight;
-        coupling += it.a.coupling!(b);
-        result.weights[si]! += increment(receive(s.to, s.weight, e, zPlus, zNew), s.to);
-      });
+      // Per target, its synapses from this sender (several only into several blocks) applied
+      // one after another in network order: replay their states forward, then go back through
+      // them, each with the target's state before it and the lambdas after it.
+      const byTarget = new Map<number, number[]>();
+      net.synapses.forEach((s, si) => { if (s.from === n) byTarget.set(s.to, [...(byTarget.get(s.to) ?? []), si]); });
+      for (const [m, list] of byTarget) {
+        const it = ai[m]!, off = layout.offset[m]!, size = it.nStates;
+        const states: Float64Array[] = [e.pre];
+        for (const si of list.slice(0, -1)) {
+          const s = net.synapses[si]!, prev = states[states.length - 1]!, next = prev.slice();
+          const v = load(it.fwd, prev, e.time);
+          setWeight(it.fwd, s.weight, s.receptor ?? 0);
+          it.fwd.c.receptors[s.receptor ?? 0]!.forEach((f, j) => { next[off + j] = f(v); });
+          states.push(next);
+        }
+        const zAfter = zPlus.slice(off, off + size);
+        for (let q = list.length - 1; q >= 0; q--) {
+          const si = list[q]!, s = net.synapses[si]!, r = s.receptor ?? 0;
+          const at = { pre: states[q]!, time: e.time };
+          const scratchZ = zNew.slice();
+          scratchZ.set(zAfter, off);
+          const b = fill(m, at.pre, scratchZ, e.time);
+          setBlock(m, b, s.weight, r);
+          coupling += it.a.receptors[r]!.coupling(b);
+          result.weights[si]! += increment(receive(m, s.weight, r, at, scratchZ, zNew), m);
+          zAfter.set(zNew.subarray(off, off + size));
+        }
+      }
       const it = ai[n]!;
       const b = fill(n, e.pre, zPlus, e.time);
       const v = load(it.fwd, e.pre, e.time);

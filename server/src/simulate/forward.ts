@@ -110,8 +110,11 @@ export function load(inst: Instance, y: Float64Array, t: number): Float64Array {
   return inst.vals;
 }
 
-/** Set the incoming weight slot of an instance's values buffer. */
-export function setWeight(inst: Instance, w: number): void { inst.vals[inst.vals.length - 2] = w; }
+/** Set the weight slot of incoming block r in an instance's values buffer (the other blocks' weights are 0). */
+export function setWeight(inst: Instance, w: number, r = 0): void {
+  const first = inst.c.states.length + inst.c.params.length;
+  for (let k = 0; k < inst.c.receptors.length; k++) inst.vals[first + k] = k === r ? w : 0;
+}
 
 export function simulate(net: Network, duration: number, inputs: readonly InputTrain[] = [], options: SimOptions = {}): Trajectory {
   const layout = layoutOf(net);
@@ -170,11 +173,12 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     y = post;
     cur = { t0: t, t1: t, segments: [] };
   };
-  const receive = (target: number, w: number, post: Float64Array, pre: Float64Array): void => {
+  /** An arrival at `target`'s block `r`, on the target's states in `post` (what the instant's earlier jumps left). */
+  const receive = (target: number, w: number, r: number, post: Float64Array): void => {
     const it = inst[target]!;
-    const v = load(it, pre, t);
-    setWeight(it, w);
-    it.c.incoming!.forEach((r, j) => { post[it.offset + j] = r(v); });
+    const v = load(it, post, t);
+    setWeight(it, w, r);
+    it.c.receptors[r]!.forEach((f, j) => { post[it.offset + j] = f(v); });
   };
   const guardAt = (i: number, state: Float64Array): number => inst[i]!.c.guard!(load(inst[i]!, state, t));
   const dirOf = (i: number): 'up' | 'down' | 'either' => inst[i]!.c.model.fire!.direction;
@@ -185,7 +189,9 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       const it = inst[sender]!;
       const v = load(it, pre, t);
       it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
-      for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, post, pre);
+      // targets are other neurons (validated): their states in `post` are still the pre-spike ones,
+      // except where an earlier synapse of this spike reached another block of the same target
+      for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, s.receptor ?? 0, post);
       if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) {
         const l = it.loss.perSpike(v);
         if (!Number.isFinite(l) && !traj.nonFinite) traj.nonFinite = { time: t, neuron: sender, quantity: 'spike-time loss', cause: 'spike' };
@@ -258,7 +264,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       while (next < arrivals.length && arrivals[next]!.time === first.time) {
         const a = arrivals[next++]!, target = inputs[a.train]!.target, off = layout.offset[target]!;
         group.push({ train: a.train, neuron: target, pre: post.slice(off, off + layout.size[target]!) });
-        receive(target, inputs[a.train]!.weight, post, post);
+        receive(target, inputs[a.train]!.weight, inputs[a.train]!.receptor ?? 0, post);
       }
     });
     const due = initial;

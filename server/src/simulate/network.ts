@@ -6,8 +6,10 @@
 // State layout: the network state vector is the concatenation of every instance's states in
 // the model's declaration order; instance i occupies [offset[i], offset[i] + size[i]).
 // Invariants: a validated network has no self-synapse and at most one synapse per ordered
-// pair (the derived jump formulas treat sender and target as different neurons), every
-// sender fires, every target has an incoming block, every parameter has a value.
+// pair and receiving block (the derived jump formulas treat sender and target as different
+// neurons; two synapses of one pair into two blocks apply one after the other, in network
+// order), every sender fires, every target has the incoming block it names, every parameter
+// has a value.
 import type { ResolvedNeuron } from '../model/types';
 import { type Sym, ZERO, freeSymbols, sym } from '../symbolic/sym';
 import { type Compiled, compile } from '../symbolic/evaluate';
@@ -21,9 +23,10 @@ export interface NetworkNeuron {
   /** Initial state values (SI) overriding the model's. */
   initial?: Readonly<Record<string, number>>;
 }
-export interface Synapse { from: number; to: number; weight: number }
-/** External spikes delivered to one neuron's incoming block with one weight. */
-export interface InputTrain { target: number; times: readonly number[]; weight: number }
+/** `receptor`: the index of the target's incoming block in `model.receptors` (default 0). */
+export interface Synapse { from: number; to: number; weight: number; receptor?: number }
+/** External spikes delivered to one of a neuron's incoming blocks (`receptor`, default 0) with one weight. */
+export interface InputTrain { target: number; times: readonly number[]; weight: number; receptor?: number }
 export interface Network { neurons: readonly NetworkNeuron[]; synapses: readonly Synapse[] }
 
 /** L = integral sum_i l_V,i(x_i, t) dt + sum over spikes k of neuron i of l_p,i(t_k). */
@@ -40,7 +43,7 @@ export interface Loss { terms: readonly LossTerm[] }
 
 export interface Layout { offset: number[]; size: number[]; total: number }
 
-/** A model compiled for simulation; names = [states..., params..., weight?, t]. */
+/** A model compiled for simulation; names = [states..., params..., weights of its blocks..., t]. */
 export interface CompiledModel {
   model: ResolvedNeuron;
   states: string[];
@@ -50,7 +53,8 @@ export interface CompiledModel {
   guard?: Compiled;
   /** Full jump map h (identity for states without a jump). */
   jumps?: Compiled[];
-  incoming?: Compiled[];
+  /** Per incoming block: its full jump map r (identity for states without a jump). */
+  receptors: Compiled[][];
 }
 
 /** Per-instance loss pieces compiled over the model's names, with dlV_dX for every state. */
@@ -86,15 +90,19 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     if (!from || !to) { errors.push(`synapse ${k}: neuron index out of range`); return; }
     if (s.from === s.to) errors.push(`synapse ${k}: a neuron may not project onto itself here (use two neurons of the model)`);
     if (!from.model.fire) errors.push(`synapse ${k}: ${from.model.name} never fires`);
-    if (!to.model.incoming) errors.push(`synapse ${k}: ${to.model.name} has no incoming block`);
-    const key = `${s.from}->${s.to}`;
+    const bad = receptorProblem(to.model, s.receptor);
+    if (bad) errors.push(`synapse ${k}: ${bad}`);
+    const key = `${s.from}->${s.to}:${s.receptor ?? 0}`;
     if (pairs.has(key)) errors.push(`synapse ${k}: ${key} is already connected`);
     pairs.add(key);
   });
   inputs.forEach((inp, k) => {
     const to = net.neurons[inp.target];
     if (!to) errors.push(`input ${k}: neuron index out of range`);
-    else if (!to.model.incoming) errors.push(`input ${k}: ${to.model.name} has no incoming block`);
+    else {
+      const bad = receptorProblem(to.model, inp.receptor);
+      if (bad) errors.push(`input ${k}: ${bad}`);
+    }
   });
   for (const term of loss?.terms ?? []) {
     if (term.neuron < 0 || term.neuron >= nN) errors.push(`loss term: neuron ${term.neuron} out of range`);
@@ -102,9 +110,18 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
   return errors;
 }
 
-export function modelNames(m: ResolvedNeuron): string[] {
-  return [...m.states.map((s) => s.name), ...m.params.map((p) => p.name), ...(m.incoming ? [m.incoming.weight] : []), 't'];
+function receptorProblem(m: ResolvedNeuron, r: number | undefined): string | undefined {
+  if (m.receptors.length === 0) return `${m.name} has no incoming block`;
+  if (r !== undefined && !(Number.isInteger(r) && r >= 0 && r < m.receptors.length)) return `${m.name} has no incoming block number ${r}`;
+  return undefined;
 }
+
+export function modelNames(m: ResolvedNeuron): string[] {
+  return [...m.states.map((s) => s.name), ...m.params.map((p) => p.name), ...m.receptors.map((r) => r.weight), 't'];
+}
+
+/** The slot of block r's weight in the values buffer over modelNames(m). */
+export function weightSlot(m: ResolvedNeuron, r: number): number { return m.states.length + m.params.length + r; }
 
 export function compileModel(m: ResolvedNeuron): CompiledModel {
   const states = m.states.map((s) => s.name);
@@ -112,12 +129,12 @@ export function compileModel(m: ResolvedNeuron): CompiledModel {
   const out: CompiledModel = {
     model: m, states, params: m.params.map((p) => p.name), names,
     flows: states.map((x) => compile(m.flows.get(x) ?? ZERO, names)),
+    receptors: m.receptors.map((r) => states.map((x) => compile(r.jumps.get(x) ?? sym(x), names))),
   };
   if (m.fire) {
     out.guard = compile(m.fire.guard, names);
     out.jumps = states.map((x) => compile(m.fire!.jumps.get(x) ?? sym(x), names));
   }
-  if (m.incoming) out.incoming = states.map((x) => compile(m.incoming!.jumps.get(x) ?? sym(x), names));
   return out;
 }
 

@@ -330,8 +330,9 @@ export function buildFile(cst: CstNode | undefined, text: string): { file: A.Sou
       items.push({ kind: 'timestep', ...(value ? { value } : {}), range, keywordRange: kw ? tokRange(kw) : range });
     } else if (inner.name === 'connectDecl') {
       const kw = tok(ch, 'Kw_connect');
-      const from = ident(tok(ch, 'from')), to = ident(tok(ch, 'to'));
-      items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), range, keywordRange: kw ? tokRange(kw) : range });
+      const from = ident(tok(ch, 'from')), to = ident(tok(ch, 'to')), via = ident(tok(ch, 'via')), viaWord = tok(ch, 'viaWord');
+      items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), ...(via ? { via } : {}), ...(viaWord ? { viaRange: tokRange(viaWord) } : {}),
+        range, keywordRange: kw ? tokRange(kw) : range });
     }
   }
   const found = limitErrors;

@@ -14,7 +14,7 @@
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
 //   jump      := NAME ':=' expr
-//   connect   := 'connect' NAME '->' NAME
+//   connect   := 'connect' NAME '->' NAME ('via' NAME)?   ('via' is a word, not a keyword: names may still be 'via')
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
 //   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
 //   primary   := NUMBER (unit | BAREUNIT)? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
@@ -118,6 +118,10 @@ export class SaltusParser extends CstParser {
     this.CONSUME1(T.Identifier, { LABEL: 'from' });
     this.CONSUME(T.Arrow);
     this.CONSUME2(T.Identifier, { LABEL: 'to' });
+    this.OPTION({ GATE: () => this.LA(1).image === 'via', DEF: () => {
+      this.CONSUME3(T.Identifier, { LABEL: 'viaWord' });
+      this.CONSUME4(T.Identifier, { LABEL: 'via' });
+    } });
   });
 
   private neuronDecl = this.RULE('neuronDecl', () => {

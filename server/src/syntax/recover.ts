@@ -3,8 +3,8 @@
 //   become one BareUnit token, which the grammar reads as the number's unit, and one error
 //   says that units go in brackets, with a fix (`5 [ms]`);
 // - a construct planned for the next version of the language but not in it yet (`refractory
-//   2 [ms]`, `quiet for t_ref { ... }` in a neuron; `via`, `delay` after a
-//   connection): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
+//   2 [ms]`, `quiet for t_ref { ... }` in a neuron; `delay` after a connection, also after
+//   its `via NAME`): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
 //   left out, with one 'unsupported' error saying it is not in the language (yet).
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
 // range lies inside the text.
@@ -19,7 +19,6 @@ const PLANNED_MEMBERS: Readonly<Record<string, string>> = {
   quiet: 'quiet (refractory) periods',
 };
 const PLANNED_CONNECT: Readonly<Record<string, string>> = {
-  via: "connections 'via' one of several incoming blocks",
   delay: 'connection delays',
 };
 /** Tokens after which an identifier continues an expression rather than starting a member. */
@@ -41,8 +40,9 @@ export function recoverTokens(tokens: readonly IToken[], text: string): Recovere
       // a construct of the next language version
       const member = Object.hasOwn(PLANNED_MEMBERS, t.image) && !CONTINUES.has(prev?.tokenType.name ?? '')
         && (prev === undefined || !sameLine(end(prev), t.startOffset) || prev.tokenType.name === 'LCurly' || prev.tokenType.name === 'RCurly');
+      const afterVia = out[out.length - 2]?.image === 'via' && out[out.length - 3]?.tokenType.name === 'Identifier' && out[out.length - 4]?.tokenType.name === 'Arrow';
       const connect = Object.hasOwn(PLANNED_CONNECT, t.image) && prev?.tokenType.name === 'Identifier'
-        && out[out.length - 2]?.tokenType.name === 'Arrow' && sameLine(end(prev), t.startOffset);
+        && (out[out.length - 2]?.tokenType.name === 'Arrow' || afterVia) && sameLine(end(prev), t.startOffset);
       if (member || connect) {
         const last = plannedExtent(tokens, i, sameLine);
         const what = member ? PLANNED_MEMBERS[t.image]! : PLANNED_CONNECT[t.image]!;

@@ -39,4 +39,5 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',
   'stray-note': 'A #~ note that documents no declaration.',
   'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
+  'missing-via': 'A connection into a neuron with several incoming blocks does not say which one (via NAME).',
 };

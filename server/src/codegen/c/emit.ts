@@ -11,7 +11,7 @@ import type { Sym } from '../../symbolic/sym';
 import { toC, toPlain } from '../../symbolic/print';
 import { cComment, cStringBody } from '../escape';
 import { type KernelPlan, headerLines, kernelNamer } from '../kernelPlan';
-import type { Kernel, KernelArg } from '../kernels';
+import { type Kernel, type KernelArg, incomingKernel } from '../kernels';
 import type { Renaming } from '../names';
 import { HASH_PLACEHOLDER } from '../hash';
 import { SALTUS_VERSION } from '../../base/version';
@@ -116,12 +116,20 @@ function modelTable(plan: KernelPlan, f: CFlavour, id: number): string[] {
   if (grad.length) L.push(`${storage} int ${M}_grad_params[] = {${grad.join(', ')}};`);
   L.push(`${storage} saltus_real ${M}_initial[] = {${plan.states.map((s) => num(s.initialSI, f)).join(', ')}};`);
   const dir = plan.grid.guard ? (plan.grid.guard.direction === 'up' ? 1 : plan.grid.guard.direction === 'down' ? -1 : 0) : 0;
+  // every incoming block's kernels, by block index (block 0 is also incoming_jump/_vjp)
+  const blocks = plan.grid.incoming.map((_, b) => incomingKernel(b));
+  if (blocks.length) {
+    L.push(`${storage} char *const ${M}_incoming_names[] = {${plan.grid.incoming.map((i) => `"${cStringBody(i.weight)}"`).join(', ')}};`);
+    L.push(`static void (*const ${M}_incoming_jumps[])(const saltus_real *, const saltus_real *, saltus_real, saltus_real, saltus_real *) = {${blocks.map((b) => `${M}_${b}_jump`).join(', ')}};`);
+    L.push(`static void (*const ${M}_incoming_vjps[])(const saltus_real *, const saltus_real *, saltus_real, saltus_real, const saltus_real *, saltus_real *) = {${blocks.map((b) => `${M}_${b}_vjp`).join(', ')}};`);
+  }
   L.push(`${f.cuda ? 'static const' : 'const'} saltus_model ${M}_model = {`,
     `    "${cStringBody(plan.neuron.name)}", ${id}, ${plan.states.length}, ${plan.params.length}, ${grad.length},`,
     `    ${M}_state_names, ${plan.params.length ? `${M}_param_names` : '0'}, ${grad.length ? `${M}_grad_params` : '0'},`,
     `    ${plan.params.length ? `${M}_default_params` : '0'}, ${M}_initial,`,
-    `    ${plan.grid.exact ? 1 : 0}, ${plan.stateDependent ? 1 : 0}, ${plan.grid.guard ? 1 : 0}, ${dir}, ${plan.grid.incoming.length ? 1 : 0}, ${num(plan.rate, { cuda: false, float: false })},`,
-    `    ${['map_step', 'map_jvp', 'map_vjp', 'flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp'].map(fn).join(', ')}`,
+    `    ${plan.grid.exact ? 1 : 0}, ${plan.stateDependent ? 1 : 0}, ${plan.grid.guard ? 1 : 0}, ${dir}, ${plan.grid.incoming.length}, ${num(plan.rate, { cuda: false, float: false })},`,
+    `    ${['map_step', 'map_jvp', 'map_vjp', 'flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp'].map(fn).join(', ')},`,
+    `    ${blocks.length ? `${M}_incoming_names, ${M}_incoming_jumps, ${M}_incoming_vjps` : '0, 0, 0'}`,
     '};', '');
   return L;
 }
@@ -209,10 +217,13 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
         ...(eprop ? [epropBodyText] : [])].join('\n') },
     ];
   }
-  const dispatchProtos = KERNEL_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig});`);
+  const IN_SIGS = KERNEL_SIGS.filter(([, k]) => k.startsWith('incoming_'));
+  const dispatchProtos = [...KERNEL_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig});`),
+    ...IN_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}_in(int id, int r, ${sig});`)];
   const cuh = [...stamp('saltus_grid.cuh', 'the grid runtime\'s types and functions for CUDA', f),
     '/* Kernels are called through a switch on the model\'s id (saltus_grid.cu), not through pointers. */',
-    '#define SALTUS_CALL(m, kernel, ...) saltus_dispatch_##kernel((m)->id, __VA_ARGS__)', '', headerText.replace(/#endif \/\* SALTUS_GRID_H \*\/\s*$/, ''),
+    '#define SALTUS_CALL(m, kernel, ...) saltus_dispatch_##kernel((m)->id, __VA_ARGS__)',
+    '#define SALTUS_CALL_IN(m, r, kernel, ...) saltus_dispatch_incoming_##kernel##_in((m)->id, r, __VA_ARGS__)', '', headerText.replace(/#endif \/\* SALTUS_GRID_H \*\/\s*$/, ''),
     '/* The kernels of the model with this id (the models generated together, saltus_grid.cu). */', ...dispatchProtos, '',
     '/* Every trial forward and backward on the GPU, one thread per trial (saltus_grid.cu); the result holds each',
     '   trial\'s loss and event log (spikes). 0, or -1 with a message in err. */',
@@ -225,6 +236,14 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
     return [`SALTUS_NOINLINE SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig})`, '{', '    switch (id) {', ...cases, '    default: break;', '    }',
       `    ${unused}`, ...(ret === 'void' ? [] : ['    return SALTUS_R(NAN);']), '}', ''];
   });
+  // an incoming block's kernel by (model id, block index)
+  dispatch.push(...IN_SIGS.flatMap(([ret, k, sig]) => {
+    const kind = k.replace('incoming_', '');
+    const cases = models.flatMap((m) => m.grid.incoming.map((_, b) => `    case ${models.indexOf(m) * 256 + b}: ${m.prefix}_${incomingKernel(b)}_${kind}(${argNames(sig)}); return;`));
+    const unused = argNames(sig).split(', ').map((a) => `(void)${a};`).join(' ');
+    return [`SALTUS_NOINLINE SALTUS_HD ${ret} saltus_dispatch_${k}_in(int id, int r, ${sig})`, '{', '    switch (id * 256 + r) {', ...cases, '    default: break;', '    }',
+      `    ${unused}`, '}', ''];
+  }));
   const cu = [...stamp('saltus_grid.cu', 'the grid runtime for CUDA: one trial per thread, with the models generated with it', f),
     '#include "saltus_grid.cuh"', ...models.map((m) => `#include "${m.prefix}.cuh"`), '', gridBodyText, '',
     '/* ---- kernels of the models generated with this file, by id ---- */', ...dispatch, cudaText, ...(eprop ? ['', epropBodyText] : [])];

@@ -744,7 +744,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 for (n = 0; n < pp->n; n++) {
                     if (!(self && n == arr.source)) {
                         x = ws->x + pp->x_off + (size_t)n * S;
-                        SALTUS_CALL(M, incoming_jump, x, par, arr.time, pr->weights[(size_t)n * from_size + arr.source], y);
+                        SALTUS_CALL_IN(M, pr->receptor, jump, x, par, arr.time, pr->weights[(size_t)n * from_size + arr.source], y);
                         for (i = 0; i < S; i++) x[i] = y[i];
                     }
                     ws->start[pp->n_off + n] = ev;
@@ -818,7 +818,7 @@ SALTUS_HD static void bw_post_state(saltus_ctx *c, int p, int n, int ref, saltus
         const saltus_projection *pr = &c->net->projections[E->projection];
         const saltus_real *xp = c->ws->xbuf + E->x_at + (size_t)n * S;
         if (pr->from == pr->to && n == E->source) { for (i = 0; i < S; i++) out[i] = xp[i]; }
-        else SALTUS_CALL(M, incoming_jump, xp, par, E->time, pr->weights[(size_t)n * c->net->populations[pr->from].size + E->source], out);
+        else SALTUS_CALL_IN(M, pr->receptor, jump, xp, par, E->time, pr->weights[(size_t)n * c->net->populations[pr->from].size + E->source], out);
     }
 }
 
@@ -987,7 +987,7 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
                     if (!(self && n == E->source)) {
                         size_t wi = (size_t)n * from_size + E->source;
                         for (i = 0; i < S; i++) lampost[i] = lam[i];
-                        SALTUS_CALL(M, incoming_vjp, ws->xbuf + E->x_at + (size_t)n * S, par, E->time, pr->weights[wi], lampost, kb);
+                        SALTUS_CALL_IN(M, pr->receptor, vjp, ws->xbuf + E->x_at + (size_t)n * S, par, E->time, pr->weights[wi], lampost, kb);
                         gW[plan->w_off[E->projection] + wi] += kb[S + 1 + G];
                         ws->T[e] += kb[S];
                         for (q = 0; q < G; q++) ws->grad[pp->g_off + q] += kb[S + 1 + q];
@@ -1105,6 +1105,8 @@ int saltus_plan_make(const saltus_network *net, double dt, long max_spikes, doub
         to = &net->populations[pr->to];
         if (!to->model) SALTUS_FAIL("projections[%d].to: %s is an input population", j, to->name);
         if (!to->model->has_incoming) SALTUS_FAIL("projections[%d].to: %s has no incoming block", j, to->model->name);
+        if (pr->receptor < 0 || pr->receptor >= to->model->has_incoming)
+            SALTUS_FAIL("projections[%d].receptor: %s has no incoming block number %d", j, to->model->name, pr->receptor);
         if (from->model && !from->model->has_guard) SALTUS_FAIL("projections[%d].from: %s never fires", j, from->model->name);
         for (k = 0; k < to->size * from->size; k++)
             if (!isfinite(pr->weights[k])) SALTUS_FAIL("projections[%d].weights: every weight must be a finite number", j);

@@ -49,7 +49,9 @@
  *   spike_vjp     out[S + 1 + G]: (dJ/dx)^T lam, lam . dJ/dt, lam . dJ/dp
  *   incoming_jump out[S]: the state after an incoming spike of weight w
  *   incoming_vjp  out[S + 2 + G]: (dJ/dx)^T lam, lam . dJ/dt, lam . dJ/dp, lam . dJ/dw
- * A model without a fire (incoming) block has NULL spike (incoming) kernels. */
+ * A model without a fire (incoming) block has NULL spike (incoming) kernels. A model with several
+ * incoming blocks (receptors) lists each block's pair in incoming_jumps/incoming_vjps (block 0 is
+ * incoming_jump/incoming_vjp), with the blocks' weight names in incoming_names. */
 typedef struct saltus_model {
     const char *name;                  /* as declared in the model file */
     int id;                            /* position in the generated set (CUDA dispatch) */
@@ -62,7 +64,7 @@ typedef struct saltus_model {
     int exact;                         /* the map is the exact flow */
     int state_dependent;               /* the map's derivatives read the segment-start state */
     int has_guard, direction;          /* direction: 1 up, -1 down, 0 either */
-    int has_incoming;
+    int has_incoming;                  /* the number of incoming blocks (0: none) */
     double rate;                       /* the sub-step rule's rate (1/s; 0 for an exact map) */
     void (*map_step)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, saltus_real *out);
     void (*map_jvp)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, const saltus_real *dx, saltus_real *out);
@@ -74,11 +76,18 @@ typedef struct saltus_model {
     void (*spike_vjp)(const saltus_real *x, const saltus_real *p, saltus_real t, const saltus_real *lam, saltus_real *out);
     void (*incoming_jump)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, saltus_real *out);
     void (*incoming_vjp)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, const saltus_real *lam, saltus_real *out);
+    const char *const *incoming_names; /* the blocks' weight names, as declared (a projection's "via") */
+    void (*const *incoming_jumps)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, saltus_real *out);
+    void (*const *incoming_vjps)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, const saltus_real *lam, saltus_real *out);
 } saltus_model;
 
 /* How the runtime calls a kernel (the CUDA file replaces it by a dispatch on the model's id). */
 #ifndef SALTUS_CALL
 #define SALTUS_CALL(m, kernel, ...) ((m)->kernel(__VA_ARGS__))
+#endif
+/* An incoming block's kernel (kernel: jump or vjp) by the block's index r. */
+#ifndef SALTUS_CALL_IN
+#define SALTUS_CALL_IN(m, r, kernel, ...) ((m)->incoming_##kernel##s[r](__VA_ARGS__))
 #endif
 
 /* ---- the network (docs/network-step.md, "Network description"); all values SI ---- */
@@ -102,6 +111,7 @@ typedef struct {
 typedef struct {
     int from, to;               /* population indices */
     const saltus_real *weights; /* weights[to][from], size(to) rows of size(from), row-major */
+    int receptor;               /* the receiving incoming block (its index in the model; 0: the first) */
 } saltus_projection;
 
 typedef struct {

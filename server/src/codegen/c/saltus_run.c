@@ -445,7 +445,7 @@ static int read_network(reader *r, const jval *root, built *B)
     static const char *const root_keys[] = {"description", "duration_s", "populations", "projections", "loss", "trials", "sample", 0};
     static const char *const input_keys[] = {"size", "spikes", 0};
     static const char *const model_keys[] = {"model", "size", "params", "initial", "scales", 0};
-    static const char *const proj_keys[] = {"from", "to", "weights", 0};
+    static const char *const proj_keys[] = {"from", "to", "via", "weights", 0};
     static const char *const trial_keys[] = {"inputs", "label", 0};
     const jval *pops, *projs, *loss, *trials, *v;
     double duration;
@@ -529,7 +529,7 @@ static int read_network(reader *r, const jval *root, built *B)
         char fp[80];
         fmt(path, sizeof path, "projections[%lu]", (unsigned long)i);
         if (pr->kind != J_OBJ) { bad(r, path, "must be an object with from, to and weights%s%s", "", ""); goto done; }
-        if (unknown_keys(r, pr, path, proj_keys, "from, to, weights")) goto done;
+        if (unknown_keys(r, pr, path, proj_keys, "from, to, via, weights")) goto done;
         for (j = 0; j < 2; j++) {
             const jval *end = jget(pr, j ? "to" : "from");
             fmt(fp, sizeof fp, "%s.%s", path, j ? "to" : "from");
@@ -538,16 +538,31 @@ static int read_network(reader *r, const jval *root, built *B)
         }
         from = pop_index(B, n_pops, jget(pr, "from")->str);
         to = pop_index(B, n_pops, jget(pr, "to")->str);
-        for (b = 0; b < (int)i; b++) {
-            if (B->projs[b].from == from && B->projs[b].to == to) {
-                bad(r, path, "%s -> %s is projected twice: merge the two projections", B->names[from], B->names[to]);
-                goto done;
-            }
-        }
         B->projs[i].from = from;
         B->projs[i].to = to;
         if (!B->pops[to].model) { bad(r, fp, "%s is an input population: it cannot receive a projection%s", B->names[to], ""); goto done; }
         if (!B->pops[to].model->has_incoming) { bad(r, fp, "%s has no incoming block%s", B->pops[to].model->name, ""); goto done; }
+        {   /* the receiving block: "via" names it by its weight; required with several blocks */
+            const saltus_model *tm = B->pops[to].model;
+            const jval *via = jget(pr, "via");
+            int k, found = -1;
+            fmt(fp, sizeof fp, "%s.via", path);
+            if (!via) {
+                if (tm->has_incoming > 1) { bad(r, path, "%s has several incoming blocks: say which one receives this projection with \"via\"%s", tm->name, ""); goto done; }
+                found = 0;
+            } else {
+                if (via->kind != J_STR) { bad(r, fp, "must be the weight name of one of %s's incoming blocks%s", tm->name, ""); goto done; }
+                for (k = 0; k < tm->has_incoming; k++) if (tm->incoming_names && strcmp(tm->incoming_names[k], via->str) == 0) found = k;
+                if (found < 0) { bad(r, fp, "%s has no incoming block with the weight %.100s", tm->name, via->str); goto done; }
+            }
+            B->projs[i].receptor = found;
+        }
+        for (b = 0; b < (int)i; b++) {
+            if (B->projs[b].from == from && B->projs[b].to == to && B->projs[b].receptor == B->projs[i].receptor) {
+                bad(r, path, "%s -> %s is projected twice: merge the two projections", B->names[from], B->names[to]);
+                goto done;
+            }
+        }
         if (B->pops[from].model && !B->pops[from].model->has_guard) {
             fmt(fp, sizeof fp, "%s.from", path);
             bad(r, fp, "%s never fires (it has no fire block)%s", B->pops[from].model->name, "");

@@ -70,6 +70,9 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
   L.push(`HAS_GUARD = ${plan.grid.guard ? 'True' : 'False'}`);
   L.push(`DIRECTION = ${plan.grid.guard ? `"${plan.grid.guard.direction}"` : 'None'}`);
   L.push(`WEIGHT = ${plan.weight ? `"${plan.weight.id}"` : 'None'}`);
+  // the incoming blocks by their weight names as written (a projection's "via" names one)
+  const inc = plan.neuron.receptors.map((r) => `"${pyStringBody(r.weight)}"`);
+  L.push(`INCOMING = (${inc.join(', ')}${inc.length === 1 ? ',' : ''})`);
   L.push('', '');
   for (const k of plan.kernels) L.push(...kernelFunction(plan, k), '', '');
   const eprop = epropFunctions(plan);

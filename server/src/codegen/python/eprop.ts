@@ -18,10 +18,14 @@ import type { KernelPlan } from '../kernelPlan';
 
 export function epropFunctions(plan: KernelPlan): { lines: string[]; names: string[] } {
   const d = eligibilityFor(plan.neuron);
+  if (!d.notDerived && plan.neuron.receptors.length > 1) {
+    const why = `${plan.neuron.name} has ${plan.neuron.receptors.length} incoming blocks: the generated e-prop layer feeds one block (saltus eligibility derives them all)`;
+    return { lines: ['EPROP = ()', `EPROP_NONE = "${pyStringBody(why)}"`, '', ''], names: ['EPROP'] };
+  }
   if (d.notDerived) return { lines: ['EPROP = ()', `EPROP_NONE = "${pyStringBody(d.notDerived)}"`, '', ''], names: ['EPROP'] };
   const stateIds = new Map(plan.states.map((s) => [s.name, s.id] as const));
   const paramIds = new Map(plan.params.map((p) => [p.name, p.id] as const));
-  const weight = plan.neuron.incoming?.weight;
+  const weight = plan.neuron.receptors[0]?.weight;
   const epsIndex = new Map(d.states.map((x, i) => [eligibilityName(x), i] as const));
   const name = (n: string): string => {
     const s = stateIds.get(n) ?? paramIds.get(n);

@@ -2,8 +2,9 @@
 # events inside steps, and the exact gradient of that simulation (docs/network-step.md).
 # It is the same algorithm as Saltus's own grid simulator (server/src/grid/), vectorised over
 # trials and neurons: arrays are shaped (trials, neurons). Model kernels (map_step, map_jvp,
-# map_vjp, flow, guard, guard_grad, spike_jump, spike_vjp, incoming_jump, incoming_vjp) come
-# from the generated model modules; this file knows no model.
+# map_vjp, flow, guard, guard_grad, spike_jump, spike_vjp, incoming_jump, incoming_vjp, and
+# incoming<k>_jump/_vjp for a model's further incoming blocks) come from the generated model
+# modules; this file knows no model. A projection's "receptor" (default 0) picks the block.
 #
 # Array operations go through the `X` dialect object defined above this text by the
 # generator (NumPy, or PyTorch tensors on any device and dtype), so one runtime serves both.
@@ -13,6 +14,13 @@ GAUSS_NODES = (0.5 - 15 ** 0.5 / 10, 0.5, 0.5 + 15 ** 0.5 / 10)
 GAUSS_WEIGHTS = (5 / 18, 8 / 18, 5 / 18)
 SUBSTEP_RATE_BOUND = 0.2
 MAX_SUBSTEPS = 64
+
+
+def incoming_kernels(model, pr):
+    """The jump and vjp kernels of the incoming block a projection reaches (its "receptor", default 0)."""
+    r = int(pr.get("receptor", 0))
+    stem = "incoming" if r == 0 else "incoming%d" % r
+    return getattr(model, stem + "_jump"), getattr(model, stem + "_vjp")
 
 
 class GridError(Exception):
@@ -539,7 +547,7 @@ def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
     run.records.append(Record("arrival", step, rows, t, L.index, projection=j, source=src, cause=cause, x_pre=x_pre,
                               starts=X.copy(L.start[rows]) if L.needs_starts else None))
     w = X.transpose(pr["weights"][:, src])  # (rows, n): weight from each row's sender into every neuron
-    post = list(L.model.incoming_jump(x_pre, L.pop.params, t[:, None], w))
+    post = list(incoming_kernels(L.model, pr)[0](x_pre, L.pop.params, t[:, None], w))
     if pr["from"] == pr["to"]:
         selfmask = X.arange(L.n)[None, :] == src[:, None]
         post = [X.where(selfmask, a, b) for a, b in zip(x_pre, post)]
@@ -600,7 +608,7 @@ def backward(run, spike_time_grad=None):
                 pr = net.projections[rec.projection]
                 xp = [v[slot, cc] for v in rec.x_pre]
                 w = pr["weights"][cc, rec.source[slot]]
-                vals = list(L.model.incoming_jump(xp, L.pop.params, rec.time[slot], w))
+                vals = list(incoming_kernels(L.model, pr)[0](xp, L.pop.params, rec.time[slot], w))
                 if pr["from"] == pr["to"]:
                     same = cc == rec.source[slot]
                     vals = [X.where(same, a, b) for a, b in zip(xp, vals)]
@@ -713,7 +721,7 @@ def backward(run, spike_time_grad=None):
                 segment_back(L, R, C, X.repeat_rows(rec.time, L.n), X.full_int(R.shape, e), step)
                 lam_post = [v[rows] for v in lam[L.index]]
                 w = X.transpose(pr["weights"][:, rec.source])
-                out = L.model.incoming_vjp(rec.x_pre, L.pop.params, rec.time[:, None], w, lam_post)
+                out = incoming_kernels(L.model, pr)[1](rec.x_pre, L.pop.params, rec.time[:, None], w, lam_post)
                 S = L.S
                 keep = X.ones_bool((nrow, L.n))
                 if pr["from"] == pr["to"]:
@@ -781,6 +789,22 @@ def backward(run, spike_time_grad=None):
     return {"loss": run.loss, "weights": gW, "params": params, "event_times": event_times, "records": records}
 
 
+def _receptor(p, pops, models, k):
+    """The index of the incoming block projection k reaches: its "via" (a weight name of the target
+    model), or the only block."""
+    to = pops.get(p["to"], {})
+    model = models.get(to.get("model"))
+    names = tuple(getattr(model, "INCOMING", ())) if model is not None else ()
+    via = p.get("via")
+    if via is None:
+        if len(names) > 1:
+            raise ValueError("projections[%d]: %s has %d incoming blocks (%s): say which one with \"via\"" % (k, to.get("model"), len(names), ", ".join(names)))
+        return 0
+    if via not in names:
+        raise ValueError("projections[%d].via: %s has no incoming block with the weight %s (its blocks: %s)" % (k, to.get("model"), via, ", ".join(names)))
+    return names.index(via)
+
+
 def load_network(obj, models):
     """A Network from a network description (the cross-check scenario format, docs/codegen.md):
     {"duration_s", "populations": {name: {"size", "spikes"} | {"model", "size", "params", "initial"}},
@@ -807,7 +831,8 @@ def load_network(obj, models):
         size = pops[loss["population"]]["size"]
         tgt = loss["target"]
         loss["target"] = [float(tgt)] * size if not isinstance(tgt, list) else [float(v) for v in tgt]
-    projections = [{"from": p["from"], "to": p["to"], "weights": p["weights"]} for p in obj["projections"]]
+    projections = [{"from": p["from"], "to": p["to"], "weights": p["weights"], "receptor": _receptor(p, pops, models, k)}
+                   for k, p in enumerate(obj["projections"])]
     return Network(obj["duration_s"], inputs, populations, projections, trials, loss)
 
 

@@ -122,12 +122,18 @@ class FrozenModel:
         self.STATE_DEPENDENT_DERIVATIVES = bool(model.STATE_DEPENDENT_DERIVATIVES) and not model.EXACT
 
     def __getattr__(self, name):
-        return getattr(self._model, name)
+        kernel = getattr(self._model, name)
+        if name.startswith("incoming") and name.endswith("_vjp"):  # every incoming block's vjp
+            return lambda x, p, t, weight, lam: self._frozen_vjp(kernel, x, p, t, weight, lam)
+        return kernel
 
-    def incoming_vjp(self, x, p, t, weight, lam):
-        out = self._model.incoming_vjp(x, p, t, weight, lam)
+    def _frozen_vjp(self, kernel, x, p, t, weight, lam):
+        out = kernel(x, p, t, weight, lam)
         S, G = len(self._model.STATES), len(self._model.GRAD_PARAMS)
         return tuple(out[:S + 1]) + tuple(out[S + 1 + G:])
+
+    def incoming_vjp(self, x, p, t, weight, lam):
+        return self._frozen_vjp(self._model.incoming_vjp, x, p, t, weight, lam)
 
 
 class LayerSpec:
