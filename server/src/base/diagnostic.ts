@@ -42,6 +42,7 @@ export const DiagnosticCodes = [
   'quoted-docstring',
   'stray-note',
   'surrogate-without-fire',
+  'negative-delay',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

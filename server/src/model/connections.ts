@@ -1,8 +1,10 @@
 // Projections between neuron models: declared `connect A -> B`, or, when the file declares
 // none, the implicit self-projection of every model that both fires and receives spikes
-// (docs/language.md "Projections").
+// (docs/language.md "Projections"). A written `delay D` must be a constant time >= 0 (SI
+// seconds in `Connection.delaySI`).
 import type * as A from '../syntax/ast';
-import type { LowerContext } from './lower';
+import { TIME, dimEqual } from '../units/dimension';
+import { constantValue, describe, lower, type LowerContext } from './lower';
 import { suggestions, unknownName } from './suggest';
 import type { Connection, ResolvedNeuron } from './types';
 
@@ -35,12 +37,32 @@ export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[]
       continue;
     }
     seen.set(key, c);
-    if (ok) out.push({ from: from.name, to: to.name, decl: c, implicit: false });
+    const delaySI = c.delay ? delayOf(c.delay, ctx) : undefined;
+    if (c.delay && delaySI === undefined) ok = false;
+    if (ok) out.push({ from: from.name, to: to.name, decl: c, implicit: false, ...(delaySI !== undefined ? { delaySI } : {}) });
   }
   if (declared.length === 0) {
     for (const n of neurons) if (n.fire && n.incoming) out.push({ from: n.name, to: n.name, implicit: true });
   }
   return out;
+}
+
+/** The delay's value in seconds: a constant time >= 0; undefined (with a diagnostic) otherwise. */
+function delayOf(e: A.Expr, ctx: LowerContext): number | undefined {
+  const v = lower(e, { lookup: () => undefined, names: () => [], constantOnly: 'a delay' }, ctx);
+  if (v.dim && !dimEqual(v.dim, TIME)) {
+    ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: e.range,
+      message: `a delay must be a time, e.g. 1 [ms]; this one is ${describe(v.dim, ctx)}` });
+    return undefined;
+  }
+  const val = v.sym ? constantValue(v.sym) : undefined;
+  if (val === undefined) return undefined;
+  if (!(val >= 0)) {
+    ctx.diagnostics.push({ severity: 'error', code: 'negative-delay', range: e.range,
+      message: `a delay must be a time >= 0 (spikes cannot arrive before they are sent); this one is ${val} s` });
+    return undefined;
+  }
+  return val;
 }
 
 function endpoint(id: A.Ident, byName: Map<string, ResolvedNeuron>, ctx: LowerContext): ResolvedNeuron | undefined {

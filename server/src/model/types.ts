@@ -96,7 +96,8 @@ export interface ResolvedNeuron {
 /** One use of a name in the text and what it resolves to. */
 export interface Reference { range: A.Range; target: SymbolInfo }
 
-export interface Connection { from: string; to: string; decl?: A.ConnectDecl; implicit: boolean }
+/** A projection; `delaySI`: its transmission delay in seconds (>= 0) when `delay D` is written and valid. */
+export interface Connection { from: string; to: string; decl?: A.ConnectDecl; implicit: boolean; delaySI?: number }
 
 export interface ResolvedFile {
   neurons: ResolvedNeuron[];

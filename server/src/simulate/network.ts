@@ -21,9 +21,11 @@ export interface NetworkNeuron {
   /** Initial state values (SI) overriding the model's. */
   initial?: Readonly<Record<string, number>>;
 }
-export interface Synapse { from: number; to: number; weight: number }
-/** External spikes delivered to one neuron's incoming block with one weight. */
-export interface InputTrain { target: number; times: readonly number[]; weight: number }
+/** `delay`: transmission delay in seconds (>= 0, default 0): a spike at t arrives at t + delay. */
+export interface Synapse { from: number; to: number; weight: number; delay?: number }
+/** External spikes delivered to one neuron's incoming block with one weight, each `delay`
+ *  seconds (>= 0, default 0) after its time. */
+export interface InputTrain { target: number; times: readonly number[]; weight: number; delay?: number }
 export interface Network { neurons: readonly NetworkNeuron[]; synapses: readonly Synapse[] }
 
 /** L = integral sum_i l_V,i(x_i, t) dt + sum over spikes k of neuron i of l_p,i(t_k). */
@@ -87,6 +89,7 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     if (s.from === s.to) errors.push(`synapse ${k}: a neuron may not project onto itself here (use two neurons of the model)`);
     if (!from.model.fire) errors.push(`synapse ${k}: ${from.model.name} never fires`);
     if (!to.model.incoming) errors.push(`synapse ${k}: ${to.model.name} has no incoming block`);
+    if (s.delay !== undefined && !(s.delay >= 0 && Number.isFinite(s.delay))) errors.push(`synapse ${k}: the delay must be a finite time >= 0`);
     const key = `${s.from}->${s.to}`;
     if (pairs.has(key)) errors.push(`synapse ${k}: ${key} is already connected`);
     pairs.add(key);
@@ -95,6 +98,7 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     const to = net.neurons[inp.target];
     if (!to) errors.push(`input ${k}: neuron index out of range`);
     else if (!to.model.incoming) errors.push(`input ${k}: ${to.model.name} has no incoming block`);
+    if (inp.delay !== undefined && !(inp.delay >= 0 && Number.isFinite(inp.delay))) errors.push(`input ${k}: the delay must be a finite time >= 0`);
   });
   for (const term of loss?.terms ?? []) {
     if (term.neuron < 0 || term.neuron >= nN) errors.push(`loss term: neuron ${term.neuron} out of range`);

@@ -82,7 +82,8 @@ export interface NeuronDecl extends Documented {
   range: Range; keywordRange: Range; bodyRange?: Range;
 }
 export interface TimestepDecl { kind: 'timestep'; value?: Expr; range: Range; keywordRange: Range }
-export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; range: Range; keywordRange: Range }
+/** `connect A -> B (delay D)?`: `delayRange` is the word `delay` (a word of this place only), `delay` its value. */
+export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; delay?: Expr; delayRange?: Range; range: Range; keywordRange: Range }
 
 export type TopLevel = NeuronDecl | TimestepDecl | ConnectDecl;
 

@@ -331,7 +331,9 @@ export function buildFile(cst: CstNode | undefined, text: string): { file: A.Sou
     } else if (inner.name === 'connectDecl') {
       const kw = tok(ch, 'Kw_connect');
       const from = ident(tok(ch, 'from')), to = ident(tok(ch, 'to'));
-      items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), range, keywordRange: kw ? tokRange(kw) : range });
+      const word = tok(ch, 'delayWord'), delay = rootExpr(node(ch, 'delay'));
+      items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), ...(word ? { delayRange: tokRange(word) } : {}),
+        ...(delay ? { delay } : {}), range, keywordRange: kw ? tokRange(kw) : range });
     }
   }
   const found = limitErrors;

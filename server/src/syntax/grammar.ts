@@ -14,7 +14,8 @@
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
 //   jump      := NAME ':=' expr
-//   connect   := 'connect' NAME '->' NAME
+//   connect   := 'connect' NAME '->' NAME ('delay' expr)?   ('delay' is a word of this place only:
+//                a name elsewhere, so v0 files that call something `delay` still read)
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
 //   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
 //   primary   := NUMBER (unit | BAREUNIT)? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
@@ -113,6 +114,10 @@ export class SaltusParser extends CstParser {
     this.CONSUME1(T.Identifier, { LABEL: 'from' });
     this.CONSUME(T.Arrow);
     this.CONSUME2(T.Identifier, { LABEL: 'to' });
+    this.OPTION({ GATE: () => this.LA(1).tokenType === T.Identifier && this.LA(1).image === 'delay', DEF: () => {
+      this.CONSUME3(T.Identifier, { LABEL: 'delayWord' });
+      this.SUBRULE(this.expr, { LABEL: 'delay' });
+    } });
   });
 
   private neuronDecl = this.RULE('neuronDecl', () => {

@@ -39,4 +39,5 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',
   'stray-note': 'A #~ note that documents no declaration.',
   'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
+  'negative-delay': 'A connection delay below 0: spikes cannot arrive before they are sent.',
 };

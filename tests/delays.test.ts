@@ -1,0 +1,117 @@
+// Transmission delays (docs/language.md "Delays", docs/adjoint.md "Transmission delays"):
+// `connect A -> B delay D` (a constant time >= 0), the scenario's `delay_s`, the accurate
+// simulator's queue of pending arrivals (a spike at t arrives at t + d; arrivals at or after
+// T are dropped), and the derived gradient with respect to every delay, checked against
+// finite differences of the accurate simulator (central; one-sided at a delay of 0). A delay
+// of 0 reproduces the runs without delays bit for bit.
+import { describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { derivationFor } from '../server/src/adjoint';
+import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
+import { add, mul, num, pow, sym } from '../server/src/symbolic/sym';
+import { formatReport, gradientCheck } from './helpers/gradientCheck';
+import { lifText, modelNeuron } from './helpers/models';
+
+const derive = (m: Parameters<typeof derivationFor>[0]) => derivationFor(m, { params: 'all' });
+const L = () => modelNeuron(lifText({ trainable: true }), 'L');
+const LIF = `${lifText({ name: 'A' })}\n`;
+
+describe('delays: syntax and units', () => {
+  const check = (line: string) => analyse(LIF + line + '\n');
+  test('a delay is a constant time >= 0, read in SI', () => {
+    const a = check('connect A -> A delay 1.5 [ms]');
+    expect(a.diagnostics).toEqual([]);
+    expect(a.model.connections[0]!.delaySI).toBeCloseTo(1.5e-3, 15);
+    expect(check('connect A -> A delay 0 [ms]').model.connections[0]!.delaySI).toBe(0);
+    expect(check('connect A -> A delay 2 [ms] / 4').model.connections[0]!.delaySI).toBeCloseTo(0.5e-3, 15);
+  });
+  test('a delay that is not a time is a unit-mismatch; a negative one is negative-delay', () => {
+    const wrong = check('connect A -> A delay 2 [mV]');
+    expect(wrong.diagnostics.map((d) => d.code)).toEqual(['unit-mismatch']);
+    expect(wrong.diagnostics[0]!.message).toMatch(/delay must be a time/);
+    const neg = check('connect A -> A delay -1 [ms]');
+    expect(neg.diagnostics.map((d) => d.code)).toEqual(['negative-delay']);
+    expect(neg.model.connections).toEqual([]);
+    // a name is not a constant: a delay is a value of the file, not of a neuron
+    expect(check('connect A -> A delay tau_m').diagnostics.length).toBeGreaterThan(0);
+  });
+  test('the range of a delay error lies on its value', () => {
+    const text = LIF + 'connect A -> A delay -1 [ms]\n';
+    const d = analyse(text).diagnostics[0]!;
+    expect(text.slice(d.range.start, d.range.end)).toBe('-1 [ms]');
+  });
+  test('a missing value is a syntax error; `delay` stays a name elsewhere (v0 files read as before)', () => {
+    expect(check('connect A -> A delay').diagnostics.map((d) => d.code)).toContain('syntax-error');
+    const named = analyse(`neuron B {\n  param delay = 2 [ms]\n  state V = 0\n  dV/dt = -V / delay\n}\n`);
+    expect(named.diagnostics).toEqual([]);
+  });
+  test("'via' is still reported as not in the language yet", () => {
+    expect(check('connect A -> A via w delay 1 [ms]').diagnostics.map((d) => d.code)).toEqual(['unsupported']);
+  });
+});
+
+describe('delays: the accurate simulator', () => {
+  const net = (d: number | undefined): Network => ({ neurons: [{ model: L() }, { model: L() }],
+    synapses: [{ from: 0, to: 1, weight: 2, ...(d !== undefined ? { delay: d } : {}) }] });
+  const inputs: InputTrain[] = [{ target: 0, times: [1e-3, 2e-3], weight: 5 }];
+  test('a spike at t arrives at t + d: the target jumps there, not before', () => {
+    const tr = simulate(net(2e-3), 0.02, inputs, { rtol: 1e-12 });
+    expect(tr.errors).toEqual([]);
+    const spike = tr.events.find((e) => e.kind === 'spike')!;
+    const arrival = tr.events.find((e) => e.arrivals?.some((a) => a.synapse === 0))!;
+    expect(arrival.time).toBe(spike.time + 2e-3);
+    // target's I: unchanged by the spike event, +2 at the arrival (the incoming jump I := I + w)
+    expect(spike.post[3]).toBe(spike.pre[3]);
+    expect(arrival.post[3]! - arrival.pre[3]!).toBeCloseTo(2, 14);
+  });
+  test('arrivals at or after T are dropped', () => {
+    const first = simulate(net(undefined), 0.02, inputs, { rtol: 1e-12 }).spikes[0]!.time;
+    const tr = simulate(net(0.02 - first), 0.02, inputs, { rtol: 1e-12 });
+    expect(tr.events.some((e) => e.arrivals?.some((a) => a.synapse === 0))).toBe(false);
+    const inputLate = simulate(net(undefined), 0.02, [{ ...inputs[0]!, delay: 0.0185 }], { rtol: 1e-12 });
+    expect(inputLate.events.filter((e) => e.kind === 'input').map((e) => e.time)).toEqual([1e-3 + 0.0185]);
+  });
+  test('a delay of 0 reproduces the run without delays exactly (trajectory and gradients)', () => {
+    const loss = { terms: [{ neuron: 1, integrand: mul(num(0.5), pow(add(sym('V'), num(-0.5)), num(2))) }] };
+    const a = simulate(net(undefined), 0.02, inputs, { rtol: 1e-10, loss });
+    const b = simulate(net(0), 0.02, inputs.map((x) => ({ ...x, delay: 0 })), { rtol: 1e-10, loss });
+    expect(b.loss).toBe(a.loss);
+    expect(b.spikes).toEqual(a.spikes);
+    const ga = backward(net(undefined), a, inputs, { loss, derivation: derive });
+    const gb = backward(net(0), b, inputs.map((x) => ({ ...x, delay: 0 })), { loss, derivation: derive });
+    expect(gb.weights).toEqual(ga.weights);
+    expect(gb.inputWeights).toEqual(ga.inputWeights);
+    expect(gb.params).toEqual(ga.params);
+  });
+});
+
+describe('delay gradients against finite differences of the accurate simulator', () => {
+  // Three LIFs with exponential current synapses (Wunderlich & Pehle 2021, Table 1 values):
+  // an input drives neuron 0, which drives 1 and 2; 1 drives 2. An integral loss on 2's V and a
+  // first-spike-time loss on 1: every delay moves a jump that both losses see.
+  const loss = { terms: [{ neuron: 2, integrand: mul(num(0.5), pow(add(sym('V'), num(-0.5)), num(2))) },
+    { neuron: 1, perSpike: mul(num(0.5), pow(add(sym('t'), num(-0.012)), num(2))), firstSpikeOnly: true }] };
+  const caseOf = (d: number): { net: Network; inputs: InputTrain[] } => ({
+    net: { neurons: [{ model: L() }, { model: L() }, { model: L() }],
+      synapses: [{ from: 0, to: 1, weight: 2.5, delay: d }, { from: 0, to: 2, weight: 1.9, delay: d * 0.6 }, { from: 1, to: 2, weight: 1.2, delay: 0.7e-3 }] },
+    inputs: [{ target: 0, times: [1e-3, 4e-3, 9e-3], weight: 4.5, delay: 0.5e-3 }, { target: 1, times: [2e-3], weight: 1.5 }],
+  });
+  for (const d of [1.3e-3, 4e-3]) {
+    test(`per-synapse delays (${d * 1e3} ms, ${d * 0.6e3} ms, 0.7 ms) and an input delay agree with central differences`, () => {
+      const r = gradientCheck({ ...caseOf(d), duration: 0.03, loss, sim: { rtol: 1e-12 } }, derive, { skipInitial: true });
+      const delays = r.rows.filter((x) => x.what.includes('delay'));
+      expect(delays.length).toBe(4);
+      expect(r.spikes).toBeGreaterThan(10);
+      for (const x of delays) expect(x.unstable, x.what).toBe(false);
+      // measured: every row within 6e-8 relative (rtol 1e-12, step 1e-5 relative)
+      expect(r.maxRelError, formatReport(r)).toBeLessThan(1e-6);
+    });
+  }
+  test('a delay of 0 gets the one-sided derivative (d -> 0+), checked one-sided', () => {
+    const r = gradientCheck({ ...caseOf(0), duration: 0.03, loss, sim: { rtol: 1e-12 } }, derive, { skipInitial: true });
+    const zero = r.rows.filter((x) => x.what === 'delay[0->1]' || x.what === 'delay[0->2]');
+    expect(zero.length).toBe(2);
+    // a forward difference has an O(h) error: measured 1.6e-6 relative at h = 1e-8 s
+    for (const x of zero) expect(Math.abs(x.adjoint - x.fd), formatReport(r)).toBeLessThan(1e-5 * Math.abs(x.fd));
+  });
+});
