@@ -4,8 +4,14 @@
 // T are dropped), and the derived gradient with respect to every delay, checked against
 // finite differences of the accurate simulator (central; one-sided at a delay of 0). A delay
 // of 0 reproduces the runs without delays bit for bit.
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
 import { describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
+import { parseScenario } from '../server/src/crosscheck/scenario';
+import { runCrossCheckSync } from '../server/src/crosscheck';
+import { crossCheckJson, crossCheckText } from '../server/src/crosscheck/report';
+import { rowLabel } from '../server/src/crosscheck/types';
 import { derivationFor } from '../server/src/adjoint';
 import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
 import { add, mul, num, pow, sym } from '../server/src/symbolic/sym';
@@ -97,7 +103,7 @@ describe('delay gradients against finite differences of the accurate simulator',
     inputs: [{ target: 0, times: [1e-3, 4e-3, 9e-3], weight: 4.5, delay: 0.5e-3 }, { target: 1, times: [2e-3], weight: 1.5 }],
   });
   for (const d of [1.3e-3, 4e-3]) {
-    test(`per-synapse delays (${d * 1e3} ms, ${d * 0.6e3} ms, 0.7 ms) and an input delay agree with central differences`, () => {
+    test(`per-synapse delays (${(d * 1e3).toFixed(1)} ms, ${(d * 0.6e3).toFixed(2)} ms, 0.7 ms) and an input delay agree with central differences`, () => {
       const r = gradientCheck({ ...caseOf(d), duration: 0.03, loss, sim: { rtol: 1e-12 } }, derive, { skipInitial: true });
       const delays = r.rows.filter((x) => x.what.includes('delay'));
       expect(delays.length).toBe(4);
@@ -113,5 +119,52 @@ describe('delay gradients against finite differences of the accurate simulator',
     expect(zero.length).toBe(2);
     // a forward difference has an O(h) error: measured 1.6e-6 relative at h = 1e-8 s
     for (const x of zero) expect(Math.abs(x.adjoint - x.fd), formatReport(r)).toBeLessThan(1e-5 * Math.abs(x.fd));
+  });
+});
+
+describe('delays in the gradient cross-check (scenario delay_s, the file\'s delay)', () => {
+  const RELAY = readFileSync(join(__dirname, '..', 'samples', 'delayed_relay.saltus'), 'utf8');
+  const SCENARIO = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'delayed_relay.json'), 'utf8')) as Record<string, unknown> & { projections: Record<string, unknown>[] };
+  const with_ = (f: (s: typeof SCENARIO) => void) => { const s = structuredClone(SCENARIO); f(s); return s; };
+  test('rows: a shared input delay, one per recurrent synapse, the file\'s shared delay; all agree with central differences', () => {
+    const r = runCrossCheckSync(analyse(RELAY), SCENARIO, { traces: false });
+    expect(r.errors).toEqual([]);
+    expect(r.delays!.map((d) => rowLabel(d))).toEqual(['d0 sensor -> hid (shared)', 'd1 hid[1] -> hid[0]', 'd1 hid[0] -> hid[1]', 'd2 hid -> out (shared)']);
+    expect(r.delays!.map((d) => d.value)).toEqual([0.3e-3, 0.4e-3, 0.8e-3, 1e-3]);
+    // measured: every row within 2e-7 relative of its central difference
+    expect(r.passed).toBe(true);
+    expect(r.maxRelativeError!).toBeLessThan(1e-5);
+    // An independent check of the derivation: the readout is driven only through the relay,
+    // so delaying every sensor spike by e delays everything the readout sees by e, as does
+    // delaying every relay -> readout arrival by e (time-shift symmetry, boundary effects
+    // aside: no arrival falls on T). The two shared delays have the same gradient.
+    expect(Math.abs(r.delays![0]!.adjoint - r.delays![3]!.adjoint)).toBeLessThan(1e-9 * Math.abs(r.delays![3]!.adjoint));
+    const json = crossCheckJson(r) as { delays: { projection: number; shared: boolean }[] };
+    expect(json.delays.map((d) => [d.projection, d.shared])).toEqual([[0, true], [1, false], [1, false], [2, true]]);
+    expect(crossCheckText(r)).toMatch(/d2 hid -> out \(shared\)\s+1 ms/);
+  });
+  test('a delay of 0 is checked one-sided, and a scenario without delays reports no delay rows', () => {
+    const zero = with_((s) => { s.projections[0]!.delay_s = 0; });
+    const r = runCrossCheckSync(analyse(RELAY), zero, { traces: false });
+    const d0 = r.delays!.find((d) => d.projection === 0)!;
+    expect(d0.oneSided).toBe(true);
+    expect(d0.status).toBe('ok');
+    expect(d0.stepBasis).toMatch(/one-sided/);
+    const plain = runCrossCheckSync(analyse(RELAY.replace(/ delay [^#\n]*/g, ' ')), with_((s) => { for (const p of s.projections) delete p.delay_s; }), { traces: false });
+    expect(plain.delays).toBeUndefined();
+    expect('delays' in crossCheckJson(plain)).toBe(false);
+  });
+  test('bad delay_s values name their place', () => {
+    const errs = (f: (s: typeof SCENARIO) => void) => { const r = parseScenario(with_(f), analyse(RELAY)); return r.ok ? [] : r.errors.map((e) => `${e.path}: ${e.message}`); };
+    expect(errs((s) => { s.projections[0]!.delay_s = -1e-3; })).toEqual([expect.stringMatching(/^projections\[0\]\.delay_s: a delay must be >= 0/)]);
+    expect(errs((s) => { s.projections[0]!.delay_s = '2 [mV]'; })[0]).toMatch(/^projections\[0\]\.delay_s: /);
+    expect(errs((s) => { s.projections[1]!.delay_s = [[0, 1e-3]]; })).toEqual([expect.stringMatching(/^projections\[1\]\.delay_s: expected 2 rows shaped like weights, got 1/)]);
+    expect(errs((s) => { s.projections[1]!.delay_s = [[0, 1e-3], [0]]; })).toEqual([expect.stringMatching(/^projections\[1\]\.delay_s\[1\]: expected 2 values/)]);
+    // a scenario's delay_s overrides the file's delay; without one the file's applies
+    const over = parseScenario(with_((s) => { s.projections[2]!.delay_s = '3 [ms]'; }), analyse(RELAY));
+    expect(over.ok && over.scenario.projections[2]!.delays).toEqual([[3e-3, 3e-3]]);
+    const file = parseScenario(SCENARIO, analyse(RELAY));
+    expect(file.ok && file.scenario.projections[2]!.delayShared).toBe(true);
+    expect(file.ok && file.scenario.projections[2]!.delays).toEqual([[1e-3, 1e-3]]);
   });
 });
