@@ -12,6 +12,10 @@ import { parseScenario } from '../server/src/crosscheck/scenario';
 import { runCrossCheckSync } from '../server/src/crosscheck';
 import { crossCheckJson, crossCheckText } from '../server/src/crosscheck/report';
 import { rowLabel } from '../server/src/crosscheck/types';
+import { hover } from '../server/src/outputs/hover';
+import { complete } from '../server/src/outputs/completion';
+import { semanticTokens } from '../server/src/outputs/semanticTokens';
+import { formatText } from '../server/src/outputs/format';
 import { derivationFor } from '../server/src/adjoint';
 import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
 import { add, mul, num, pow, sym } from '../server/src/symbolic/sym';
@@ -166,5 +170,36 @@ describe('delays in the gradient cross-check (scenario delay_s, the file\'s dela
     const file = parseScenario(SCENARIO, analyse(RELAY));
     expect(file.ok && file.scenario.projections[2]!.delayShared).toBe(true);
     expect(file.ok && file.scenario.projections[2]!.delays).toEqual([[1e-3, 1e-3]]);
+  });
+});
+
+describe('delays in the editor: hover, completion, semantic tokens, formatting', () => {
+  const text = LIF + 'connect A->A   delay 1.5[ms]\n';
+  const a = analyse(text);
+  const at = text.indexOf('delay');
+  test('hover on `delay` says the delay in the file\'s unit and SI, and what it does', () => {
+    const h = hover(a, at + 2)!;
+    expect(h.range).toEqual({ start: at, end: at + 5 });
+    expect(h.markdown).toMatch(/^\*\*delay\*\* — A transmission delay/);
+    expect(h.markdown).toContain('`A -> A`: 1.5 [ms] = 0.0015 s');
+    expect(h.markdown).toContain('at t + 1.5 ms');
+  });
+  test('completion offers `delay` after `connect A -> B`, and top-level words on the next line', () => {
+    const labels = (t: string) => complete(analyse(t), t.length).map((c) => c.label);
+    expect(labels(LIF + 'connect A -> A ')).toEqual(['delay']);
+    expect(labels(LIF + 'connect A -> A de')).toEqual(['delay']);
+    expect(complete(analyse(LIF + 'connect A -> A '), (LIF + 'connect A -> A ').length)[0]!.snippet).toBe('delay ${1:1} [${2:ms}]');
+    expect(labels(LIF + 'connect A -> A delay ')).toEqual([]);
+    expect(labels(LIF + 'connect A -> A delay 1 [ms]\nne')).toEqual(['neuron', 'connect', 'timestep']);
+  });
+  test('`delay` is a keyword token in a connect line, and a name elsewhere', () => {
+    const tokens = semanticTokens(a).filter((x) => x.range.start >= at).map((x) => `${text.slice(x.range.start, x.range.end)}:${x.type}`);
+    expect(tokens).toEqual(['delay:keyword', '1.5:number']);
+    const named = `neuron B {\n  param delay = 2 [ms]\n  state V = 0\n  dV/dt = -V / delay\n}\n`;
+    const b = analyse(named);
+    expect(semanticTokens(b).filter((x) => named.slice(x.range.start, x.range.end) === 'delay').map((x) => x.type)).toEqual(['parameter', 'parameter']);
+  });
+  test('formatting spaces a connect line with its delay', () => {
+    expect(formatText(text)!.endsWith('connect A -> A delay 1.5 [ms]\n')).toBe(true);
   });
 });

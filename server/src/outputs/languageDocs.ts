@@ -18,6 +18,7 @@ export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
   either: 'Crossing direction: the guard LHS − RHS reaches 0 in either direction.',
   incoming: 'What a presynaptic spike does to this neuron: `incoming NAME [UNIT]? { jumps }`. NAME is the synaptic weight, which is always trainable.',
   connect: 'A projection: `connect A -> B` sends the spikes of A to the `incoming` block of B. Without any `connect`, a model that fires and receives projects onto itself.',
+  delay: 'A transmission delay: `connect A -> B delay 1.5 [ms]` (a constant time >= 0) delivers each spike of A to B that long after it is sent; arrivals at or after the end of a run are dropped.',
   timestep: 'The time step used by the step analysis and generated code, e.g. `timestep 0.1 [ms]`; the `saltus.timestep` setting can override it.',
   trainable: 'Marks a parameter whose gradient the derived adjoint equations compute.',
   surrogate: 'The pseudo-derivative psi = dz/dg of the spike with respect to the guard, used by e-prop: `surrogate EXPR (detaching X, Y)?`; its unit is one over the guard\'s. `detaching` lists states whose spike jump the gradient treats as independent of the spike (a stop-gradient on the reset).',
