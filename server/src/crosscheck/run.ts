@@ -277,7 +277,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   if (options.traces !== false && grads.costate) {
     result.traces = buildTraces(s, b, base, grid, states, sampleCostates(grads.costate, grid, base.layout.total));
   }
-  if (options.gridTimestep !== undefined && options.gridTimestep > 0) result.grid = gridConvergence(s, result.gradients, result.params, result.loss, options.gridTimestep);
+  if (options.gridTimestep !== undefined && options.gridTimestep > 0) result.grid = gridConvergence(s, result.gradients, result.params, result.loss, options.gridTimestep, result.delays);
   done = total;
   yield progress('report');
   result.timing.total_ms = now() - t0;
