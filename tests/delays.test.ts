@@ -18,6 +18,7 @@ import { semanticTokens } from '../server/src/outputs/semanticTokens';
 import { formatText } from '../server/src/outputs/format';
 import { gridBackward, gridForward, networkFromScenario } from '../server/src/grid';
 import type { Network as GridNetwork } from '../server/src/grid/network';
+import { readNetworkSpec } from '../server/src/codegen/network';
 import { derivationFor } from '../server/src/adjoint';
 import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
 import { add, mul, num, pow, sym } from '../server/src/symbolic/sym';
@@ -255,5 +256,16 @@ describe('delays on the grid (the semantics of generated code)', () => {
     const run = gridForward(net, { dt: 1e-4 });
     expect(run.trials[0]!.log.filter((e) => e.kind === 'arrival' && e.projection === 2)).toEqual([]);
     expect(run.loss).toBeCloseTo(0.5 ** 2 / 2 * 0.05, 12); // the readout never moves from V = 0
+  });
+});
+
+describe('generated code refuses delays it does not run yet', () => {
+  test('a network description with delay_s, or over a file that connects with a delay, is refused with its place', () => {
+    const sc = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'delayed_relay.json'), 'utf8'));
+    const r = readNetworkSpec(sc, ['Relay', 'Readout'], ['Relay -> Relay', 'Relay -> Readout']);
+    expect(r.errors.filter((e) => /transmission delays are not in generated code yet/.test(e)).map((e) => e.split(':')[0])).toEqual(
+      ['projections[0].delay_s', 'projections[1].delay_s', 'projections[2]']);
+    const plain = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'lif_current.json'), 'utf8'));
+    expect(readNetworkSpec(plain, ['LifCurrent', 'Readout'], []).errors).toEqual([]);
   });
 });
