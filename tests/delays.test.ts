@@ -4,9 +4,10 @@
 // T are dropped), and the derived gradient with respect to every delay, checked against
 // finite differences of the accurate simulator (central; one-sided at a delay of 0). A delay
 // of 0 reproduces the runs without delays bit for bit.
-import { readFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { describe, expect, test } from 'vitest';
+import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { parseScenario } from '../server/src/crosscheck/scenario';
 import { runCrossCheckSync } from '../server/src/crosscheck';
@@ -19,6 +20,9 @@ import { formatText } from '../server/src/outputs/format';
 import { gridBackward, gridForward, networkFromScenario } from '../server/src/grid';
 import type { Network as GridNetwork } from '../server/src/grid/network';
 import { readNetworkSpec } from '../server/src/codegen/network';
+import { generateFiles, writeGenerated } from '../server/src/codegen';
+import { numpyPython, runPython } from './helpers/python';
+import { type RunnerReport, compareWithGrid } from './helpers/gridCompare';
 import { derivationFor } from '../server/src/adjoint';
 import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
 import { add, mul, num, pow, sym } from '../server/src/symbolic/sym';
@@ -263,9 +267,75 @@ describe('generated code refuses delays it does not run yet', () => {
   test('a network description with delay_s, or over a file that connects with a delay, is refused with its place', () => {
     const sc = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'delayed_relay.json'), 'utf8'));
     const r = readNetworkSpec(sc, ['Relay', 'Readout'], ['Relay -> Relay', 'Relay -> Readout']);
-    expect(r.errors.filter((e) => /transmission delays are not in generated code yet/.test(e)).map((e) => e.split(':')[0])).toEqual(
+    expect(r.errors.filter((e) => /transmission delays are not in this target's generated code yet/.test(e)).map((e) => e.split(':')[0])).toEqual(
       ['projections[0].delay_s', 'projections[1].delay_s', 'projections[2]']);
+    // the NumPy target runs delay_s, but no runner reads the file's delay: it must be given as delay_s
+    expect(readNetworkSpec(sc, ['Relay', 'Readout'], ['Relay -> Relay', 'Relay -> Readout'], true).errors.filter((e) => /delay/.test(e)))
+      .toEqual([expect.stringMatching(/^projections\[2\]: the model file connects Relay -> Readout with a delay, which the generated runner does not read: give it as this projection's "delay_s"$/)]);
     const plain = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'lif_current.json'), 'utf8'));
     expect(readNetworkSpec(plain, ['LifCurrent', 'Readout'], []).errors).toEqual([]);
   });
+});
+
+const python = numpyPython();
+describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulator\'s numbers to 1e-12', () => {
+  const work = mkdtempSync(join(tmpdir(), 'saltus-delays-'));
+  afterAll(() => rmSync(work, { recursive: true, force: true }));
+  /** The sample with its scenario edited, through generated NumPy code and through grid/, compared. */
+  const compare = (name: string, edit: (sc: Record<string, any>) => void, dt: number) => {
+    const text = readFileSync(join(__dirname, '..', 'samples', `${name}.saltus`), 'utf8');
+    const json = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', `${name}.json`), 'utf8'));
+    edit(json);
+    // the cross-check reads one trial: its scenario is the first trial, the grid network gets them all
+    const one = structuredClone(json);
+    if (one.trials) {
+      for (const [p, spikes] of Object.entries(one.trials[0].inputs)) one.populations[p].spikes = spikes;
+      delete one.trials;
+    }
+    const sc = parseScenario(one, analyse(text));
+    if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+    const net = networkFromScenario(sc.scenario);
+    if (json.trials) net.trials = json.trials.map((tr: { inputs: Record<string, [number, number][]> }) => ({ inputs: tr.inputs }));
+    const dir = join(work, name);
+    const g = generateFiles(analyse(text), { target: 'numpy', network: json, source: `${name}.saltus` });
+    expect(g.errors).toEqual([]);
+    expect(writeGenerated(dir, g.files, {}).errors).toEqual([]);
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
+    const r = JSON.parse(runPython(python!, ['run.py', 'net.json', '--dt', `${dt * 1e3}ms`, '--format', 'json'], dir)) as RunnerReport & { delays: number[][][] };
+    const { spikes } = compareWithGrid('NumPy runner', `${name} with delays`, net, dt, r);
+    expect(spikes).toBeGreaterThan(5);
+    const grid = gridBackward(gridForward(net, { dt })).delays;
+    const big = Math.max(...grid.flat(2).map(Math.abs));
+    grid.forEach((m, j) => m.forEach((row, i) => row.forEach((v, k) => {
+      expect(Math.abs(r.delays[j]![i]![k]! - v), `delays[${j}][${i}][${k}]`).toBeLessThanOrEqual(1e-12 * Math.max(Math.abs(v), 1e-3 * big));
+    })));
+    return grid;
+  };
+  test('the relay: per-synapse input and recurrent delays and a shared readout delay (the file\'s, given as delay_s)', () => {
+    const grid = compare('delayed_relay', (sc) => {
+      sc.duration_s = 0.05;
+      sc.projections[0].delay_s = [[0.0003, 0, 0.0007], [0.0003, 0.0002, 0.0003]];
+      sc.projections[1].delay_s = [[0, 0.0004], [0.0008, 0]];
+      sc.projections[2].delay_s = 0.001;
+    }, 1e-4);
+    expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
+  }, 300_000);
+  test('the delta layer, two trials: neurons fired by jumps at delayed arrivals', () => {
+    compare('delta_layer', (sc) => {
+      const spikes = sc.populations.sensor.spikes as [number, number][];
+      sc.populations.sensor = { size: 3 };
+      sc.trials = [{ inputs: { sensor: spikes } }, { inputs: { sensor: spikes.map(([t, i]) => [t + 0.0009, (i + 1) % 3]) } }];
+      sc.projections[0].delay_s = 0.0002;
+      sc.projections[1].delay_s = [[0.0007, 0.0003], [0.0004, 0.0004], [0.0011, 0.0002]];
+      sc.projections[2].delay_s = [[0.0012, 0, 0.0005], [0.0003, 0.0012, 0.0012]];
+    }, 1e-4);
+  }, 300_000);
+  test('AdEx (fourth-order map with sub-steps, segment starts kept): 9 ms with delays', () => {
+    compare('adex', (sc) => {
+      sc.duration_s = 0.009;
+      sc.populations.sensor.spikes = sc.populations.sensor.spikes.filter(([t]: [number, number]) => t < 0.009);
+      sc.projections[0].delay_s = [[3e-4, 0], [5e-4, 2e-4]];
+      sc.projections[1].delay_s = 7e-4;
+    }, 1e-4);
+  }, 300_000);
 });

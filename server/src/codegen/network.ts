@@ -3,8 +3,9 @@
 // generated runner reads the file again at run time for weights, inputs and the loss.
 // The runner reads SI numbers only: a quantity with a unit ("2 [nS]"), which the cross-check
 // accepts, is refused here with its path and the SI number to write.
-// Transmission delays (`delay_s`, or a `connect ... delay` of the file, `fileDelays`) are not in
-// generated code yet: such a description is refused with the place, never run without them.
+// Transmission delays: the NumPy runtime reads `delay_s` (`delaysRun`); the other targets do
+// not run delays yet, and no runner reads a `connect ... delay` of the file (`fileDelays`): such
+// a description is refused with the place, never run without them.
 // Invariant: `readNetworkSpec` never throws; problems name the JSON field.
 import { readQuantity } from '../crosscheck/quantity';
 
@@ -18,7 +19,7 @@ export interface NetworkSpec {
 type Obj = Record<string, unknown>;
 const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v);
 
-export function readNetworkSpec(json: unknown, modelNames: readonly string[], fileDelays: readonly string[] = []): { spec?: NetworkSpec; errors: string[] } {
+export function readNetworkSpec(json: unknown, modelNames: readonly string[], fileDelays: readonly string[] = [], delaysRun = false): { spec?: NetworkSpec; errors: string[] } {
   const errors: string[] = [];
   if (!isObj(json)) return { errors: ['the network description must be a JSON object with populations, projections and loss'] };
   const pops = json.populations;
@@ -34,11 +35,11 @@ export function readNetworkSpec(json: unknown, modelNames: readonly string[], fi
   if (!Array.isArray(json.projections)) errors.push('projections: must be a list');
   else {
     json.projections.forEach((p: unknown, k) => {
-      if (isObj(p) && p.delay_s !== undefined) errors.push(`projections[${k}].delay_s: transmission delays are not in generated code yet (the cross-check simulates them)`);
+      if (isObj(p) && p.delay_s !== undefined && !delaysRun) errors.push(`projections[${k}].delay_s: transmission delays are not in this target's generated code yet (the NumPy target and the cross-check run them)`);
       const from = isObj(p) && typeof p.from === 'string' && isObj(pops[p.from]) ? (pops[p.from] as Obj).model : undefined;
       const to = isObj(p) && typeof p.to === 'string' && isObj(pops[p.to]) ? (pops[p.to] as Obj).model : undefined;
       if (isObj(p) && p.delay_s === undefined && fileDelays.includes(`${String(from)} -> ${String(to)}`)) {
-        errors.push(`projections[${k}]: the model file connects ${String(from)} -> ${String(to)} with a delay; transmission delays are not in generated code yet (the cross-check simulates them)`);
+        errors.push(`projections[${k}]: the model file connects ${String(from)} -> ${String(to)} with a delay, which the generated runner does not read: give it as this projection's "delay_s"${delaysRun ? '' : ' (transmission delays are not in this target\'s generated code yet; the NumPy target and the cross-check run them)'}`);
       }
     });
   }
