@@ -21,7 +21,7 @@ import { gridBackward, gridForward, networkFromScenario } from '../server/src/gr
 import type { Network as GridNetwork } from '../server/src/grid/network';
 import { readNetworkSpec } from '../server/src/codegen/network';
 import { generateFiles, writeGenerated } from '../server/src/codegen';
-import { numpyPython, runPython } from './helpers/python';
+import { numpyPython, runPython, torchPython } from './helpers/python';
 import { type RunnerReport, compareWithGrid } from './helpers/gridCompare';
 import { derivationFor } from '../server/src/adjoint';
 import { backward, simulate, type InputTrain, type Network } from '../server/src/simulate';
@@ -282,7 +282,7 @@ describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulat
   const work = mkdtempSync(join(tmpdir(), 'saltus-delays-'));
   afterAll(() => rmSync(work, { recursive: true, force: true }));
   /** The sample with its scenario edited, through generated NumPy code and through grid/, compared. */
-  const compare = (name: string, edit: (sc: Record<string, any>) => void, dt: number) => {
+  const compare = (name: string, edit: (sc: Record<string, any>) => void, dt: number, target: 'numpy' | 'torch' = 'numpy', py = python!) => {
     const text = readFileSync(join(__dirname, '..', 'samples', `${name}.saltus`), 'utf8');
     const json = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', `${name}.json`), 'utf8'));
     edit(json);
@@ -296,13 +296,13 @@ describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulat
     if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
     const net = networkFromScenario(sc.scenario);
     if (json.trials) net.trials = json.trials.map((tr: { inputs: Record<string, [number, number][]> }) => ({ inputs: tr.inputs }));
-    const dir = join(work, name);
-    const g = generateFiles(analyse(text), { target: 'numpy', network: json, source: `${name}.saltus` });
+    const dir = join(work, `${name}-${target}`);
+    const g = generateFiles(analyse(text), { target, network: json, source: `${name}.saltus` });
     expect(g.errors).toEqual([]);
     expect(writeGenerated(dir, g.files, {}).errors).toEqual([]);
     writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
-    const r = JSON.parse(runPython(python!, ['run.py', 'net.json', '--dt', `${dt * 1e3}ms`, '--format', 'json'], dir)) as RunnerReport & { delays: number[][][] };
-    const { spikes } = compareWithGrid('NumPy runner', `${name} with delays`, net, dt, r);
+    const r = JSON.parse(runPython(py, ['run.py', 'net.json', '--dt', `${dt * 1e3}ms`, '--format', 'json'], dir)) as RunnerReport & { delays: number[][][] };
+    const { spikes } = compareWithGrid(`${target} runner`, `${name} with delays`, net, dt, r);
     expect(spikes).toBeGreaterThan(5);
     const grid = gridBackward(gridForward(net, { dt })).delays;
     const big = Math.max(...grid.flat(2).map(Math.abs));
@@ -311,14 +311,18 @@ describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulat
     })));
     return grid;
   };
+  const relay = (sc: Record<string, any>) => {
+    sc.duration_s = 0.05;
+    sc.projections[0].delay_s = [[0.0003, 0, 0.0007], [0.0003, 0.0002, 0.0003]];
+    sc.projections[1].delay_s = [[0, 0.0004], [0.0008, 0]];
+    sc.projections[2].delay_s = 0.001;
+  };
   test('the relay: per-synapse input and recurrent delays and a shared readout delay (the file\'s, given as delay_s)', () => {
-    const grid = compare('delayed_relay', (sc) => {
-      sc.duration_s = 0.05;
-      sc.projections[0].delay_s = [[0.0003, 0, 0.0007], [0.0003, 0.0002, 0.0003]];
-      sc.projections[1].delay_s = [[0, 0.0004], [0.0008, 0]];
-      sc.projections[2].delay_s = 0.001;
-    }, 1e-4);
+    const grid = compare('delayed_relay', relay, 1e-4);
     expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
+  }, 300_000);
+  test.skipIf(!torchPython())('the relay through the PyTorch runner (the same runtime on tensors; delays reported, not trained)', () => {
+    compare('delayed_relay', relay, 1e-4, 'torch', torchPython()!);
   }, 300_000);
   test('the delta layer, two trials: neurons fired by jumps at delayed arrivals', () => {
     compare('delta_layer', (sc) => {
