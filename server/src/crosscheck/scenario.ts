@@ -9,8 +9,9 @@
 // in [0, duration) and index an existing input neuron; weights[to][from] has exactly
 // size(to) rows of size(from) numbers; every projection's sender fires (or is an input) and its receiver has an
 // incoming block; no ordered pair of populations is projected twice; the diagonal of a
-// population's projection onto itself is 0 (no self-synapses); the loss refers to an
-// existing population (and state, or a firing model for spike times).
+// population's projection onto itself is 0 (no self-synapses); a projection's delays (its
+// `delay_s`, else the file's `connect ... delay`) are times >= 0 shaped like its weights; the
+// loss refers to an existing population (and state, or a firing model for spike times).
 import type { Analysis } from '../pipeline';
 import type { ResolvedNeuron, SymbolInfo } from '../model/types';
 import { constantProblem, constantUses } from '../model/constants';
