@@ -9,7 +9,7 @@
 // never passed; items follow scenario and model files as they are created and deleted.
 import * as vscode from 'vscode';
 import type { LanguageClient } from 'vscode-languageclient/node';
-import { rowLabel, type CrossCheckResult, type GradientRow, type ParamRow } from '../../server/src/crosscheck/types';
+import { rowLabel, type AnyRow, type CrossCheckResult } from '../../server/src/crosscheck/types';
 import { requestCrossCheck } from './crosscheckRequest';
 
 export const CONTROLLER_ID = 'saltus.crosschecks';
@@ -29,7 +29,7 @@ const exists = async (u: vscode.Uri): Promise<boolean> => {
 
 const fmt = (x: number | null): string => (x === null ? 'n/a' : x.toPrecision(6));
 
-function rowMessage(r: GradientRow | ParamRow, tolerance: number): vscode.TestMessage {
+function rowMessage(r: AnyRow, tolerance: number): vscode.TestMessage {
   const what = `relative error ${r.relativeError === null ? 'n/a' : r.relativeError.toExponential(2)} (tolerance ${tolerance.toExponential(0)}): ${r.status}${r.note ? `; ${r.note}` : ''}`;
   if (r.finiteDifference === null) return new vscode.TestMessage(`adjoint ${fmt(r.adjoint)}, no usable finite difference; ${what}`);
   const m = vscode.TestMessage.diff(`adjoint ${fmt(r.adjoint)} vs finite difference ${fmt(r.finiteDifference)}; ${what}`, fmt(r.finiteDifference), fmt(r.adjoint));
@@ -86,12 +86,12 @@ export function registerCrossCheckTests(client: LanguageClient): vscode.Disposab
       run.errored(item, result.errors.map((e) => new vscode.TestMessage(e.message)));
       return;
     }
-    const rows: (GradientRow | ParamRow)[] = [...result.gradients, ...result.params];
+    const rows: AnyRow[] = [...result.gradients, ...result.params, ...(result.delays ?? [])];
     const children = rows.map((r, k) => {
       const id = `${item.id}#${rowLabel(r)}`;
       const child = item.children.get(id) ?? controller.createTestItem(id, rowLabel(r), scenarioUri);
       child.description = `adjoint ${fmt(r.adjoint)}`;
-      child.sortText = String(k).padStart(5, '0'); // the report's order: weights by projection, then parameters
+      child.sortText = String(k).padStart(5, '0'); // the report's order: weights by projection, then parameters, then delays
       return { child, row: r };
     });
     item.children.replace(children.map((c) => c.child));

@@ -361,8 +361,12 @@ function assemble(text: string, table: Table, options: AnalyseOptions, lines = n
   const connections = resolveConnections(file, neurons, ctx);
   append(references, ctx.references);
   append(modelDiagnostics, ctx.diagnostics);
+  // a connection's delay is an expression too: its dimensions and units, as `analyse` records them
+  for (const [e, d] of ctx.exprDims) table.exprDims.set(e, d);
+  const unitsUsed = new Set(table.blocks[table.blocks.length - 1]?.unitsAfter ?? []);
+  for (const u of ctx.unitsUsed) unitsUsed.add(u);
   const model: ResolvedFile = { neurons, ...(timestepSI !== undefined ? { timestepSI } : {}), ...(timestepDecl ? { timestepDecl } : {}),
-    connections, symbols, references, unitsUsed: [...(table.blocks[table.blocks.length - 1]?.unitsAfter ?? [])], diagnostics: modelDiagnostics,
+    connections, symbols, references, unitsUsed: [...unitsUsed], diagnostics: modelDiagnostics,
     exprDims: table.exprDims };
   markIncomplete(model, errors);
   const parsed: ParseOutput = { file, errors, strayJumps, tokens, strayNotes };

@@ -60,6 +60,8 @@ export function fdCases(): NamedCase[] {
   const roDelta = sampleNeuron('delta_layer.saltus', 'Readout');
   const balanced = sampleNeuron('receptors.saltus', 'Balanced');
   const roRec = sampleNeuron('receptors.saltus', 'Readout');
+  const relay = sampleNeuron('delayed_relay.saltus', 'Relay');
+  const roRelay = sampleNeuron('delayed_relay.saltus', 'Readout');
   const mixed = modelNeuron(MIXED, 'Mixed');
   const dipper = modelNeuron(MIXED, 'Dipper');
   const L = fromMathjs;
@@ -83,6 +85,20 @@ export function fdCases(): NamedCase[] {
       inputs: [{ target: 0, times: KNOCKS, weight: 6 }, { target: 1, times: KNOCKS.slice(3), weight: 2.5, receptor: 1 }, { target: 1, times: [0.004, 0.011], weight: 5 }],
       duration: 0.045,
       loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 1, perSpike: L('30 * t^2') }] },
+    } },
+    { name: 'delayed_relay: Relay <-> Relay -> Readout with transmission delays', source: 'samples/delayed_relay.saltus', c: {
+      net: { neurons: [{ model: relay }, { model: relay }, { model: roRelay }],
+        synapses: [{ from: 0, to: 1, weight: 4, delay: 0.0005 }, { from: 1, to: 0, weight: 1.5, delay: 0.0008 }, { from: 1, to: 2, weight: 0.8, delay: 0.001 }, { from: 0, to: 2, weight: -0.3, delay: 0.001 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 5, delay: 0.0003 }, { target: 1, times: [0.006, 0.02], weight: 2.5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 0, perSpike: L('100 * (t - 0.01)^2'), integrand: L('0.1 * V^2') }] },
+    } },
+    { name: 'delta_layer with delays: DeltaLif fires by jumps at delayed arrivals', source: 'samples/delta_layer.saltus', c: {
+      net: { neurons: [{ model: onset }, { model: delta }, { model: delta, params: { tau_m: 0.015 } }, { model: roDelta }],
+        synapses: [{ from: 0, to: 1, weight: 0.024, delay: 0.0007 }, { from: 0, to: 2, weight: 0.012, delay: 0.0004 }, { from: 1, to: 3, weight: 0.8, delay: 0.0012 }, { from: 2, to: 3, weight: -0.5 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 2, times: [0.0035, 0.0205], weight: 0.005, delay: 0.0002 }],
+      duration: 0.04,
+      loss: { terms: [{ neuron: 3, integrand: L('(V - 0.3)^2') }, { neuron: 2, integrand: L('1000 * (V + 0.065)^2') }] },
     } },
     { name: 'readout alone', source: 'samples/readout.saltus', c: {
       net: { neurons: [{ model: roAlone }], synapses: [] },

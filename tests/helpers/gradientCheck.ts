@@ -1,7 +1,8 @@
 // Reusable numeric check of derived adjoint equations: simulate a short trajectory
 // (server/src/simulate), run the backward pass with the derivation under test, and compare
 // every gradient (synapse weights, input weights, parameters of every neuron, initial
-// states) with central finite differences of the simulated loss.
+// states, and the delays a network gives: central, one-sided at a delay of 0) with finite
+// differences of the simulated loss.
 // Invariants: a row is marked `unstable` (and excluded from maxRelError) when the spike
 // count differs between the two perturbed runs, since the loss is then not differentiable
 // across the perturbation; everything else is compared, nothing is skipped silently.
@@ -63,6 +64,22 @@ export function gradientCheck(c: CheckCase, derivation: (m: ResolvedNeuron) => N
     rows.push({ what, adjoint, fd: d, absError: Math.abs(adjoint - d),
       unstable: a.spikes.length !== base.spikes.length || b.spikes.length !== base.spikes.length });
   };
+  /** A delay: central, or one-sided (forward) at 0, where a negative delay is not a network. */
+  const fdDelay = (what: string, adjoint: number, x: number, make: (v: number) => [Network, InputTrain[]]): void => {
+    if (x > 0) { fd(what, adjoint, x, 1, make); return; }
+    const h = rel * 1e-3;
+    const [n1, i1] = make(h);
+    const a = simulate(n1, c.duration, i1, sim);
+    if (a.errors.length) throw new Error(`perturbed simulation failed: ${a.errors.join('; ')}`);
+    const d = (a.loss - base.loss) / h;
+    rows.push({ what, adjoint, fd: d, absError: Math.abs(adjoint - d), unstable: a.spikes.length !== base.spikes.length });
+  };
+  c.net.synapses.forEach((s, k) => {
+    if (s.delay !== undefined) fdDelay(`delay[${s.from}->${s.to}]`, grads.delays[k]!, s.delay, (v) => [{ ...c.net, synapses: c.net.synapses.map((x, j) => (j === k ? { ...x, delay: v } : x)) }, c.inputs]);
+  });
+  c.inputs.forEach((inp, k) => {
+    if (inp.delay !== undefined) fdDelay(`input ${k} delay`, grads.inputDelays[k]!, inp.delay, (v) => [c.net, c.inputs.map((x, j) => (j === k ? { ...x, delay: v } : x))]);
+  });
   const wScale = Math.max(1e-12, ...c.net.synapses.map((s) => Math.abs(s.weight)), ...c.inputs.map((s) => Math.abs(s.weight)));
   c.net.synapses.forEach((s, k) => fd(`w[${s.from}->${s.to}]`, grads.weights[k]!, s.weight, wScale, (v) => [withWeight(c.net, k, v), c.inputs]));
   c.inputs.forEach((inp, k) => fd(`input ${k} weight`, grads.inputWeights[k]!, inp.weight, wScale,

@@ -43,6 +43,7 @@ export const DiagnosticCodes = [
   'stray-note',
   'surrogate-without-fire',
   'missing-via',
+  'negative-delay',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

@@ -68,7 +68,8 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
     const errors: string[] = [];
     let network;
     if (options.network !== undefined) {
-      const r = readNetworkSpec(options.network, all.map((n) => n.name));
+      const r = readNetworkSpec(options.network, all.map((n) => n.name),
+        analysis.model.connections.filter((c) => c.delaySI !== undefined).map((c) => `${c.from} -> ${c.to}`), options.target === 'numpy' || options.target === 'torch');
       if (r.errors.length) return fail(...r.errors.map((e) => `network description: ${e}`));
       network = r.spec!;
     }

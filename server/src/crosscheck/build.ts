@@ -5,7 +5,8 @@
 // report speaks in populations and indices, never in network slots.
 //
 // Invariants: neuron order is population order then index; `weights[k]` describes the k-th
-// checked weight, pointing at exactly one synapse or one input train; the diagonal of a
+// checked weight, pointing at exactly one synapse or one input train; a projection with
+// delays gives one `delays` entry (shared) or one per synapse, pointing at its slots; the diagonal of a
 // population's projection onto itself makes no synapse (the validator insists it is 0).
 import { type Sym, add, mul, num, pow, sub, sym } from '../symbolic/sym';
 import type { InputTrain, Loss, LossTerm, Network, NetworkNeuron } from '../simulate';
@@ -27,6 +28,20 @@ export interface WeightRef {
   slot: { kind: 'synapse'; index: number } | { kind: 'input'; index: number };
 }
 
+/** A checked delay: a projection's shared one (every slot of it) or one synapse's (one slot). */
+export interface DelayRef {
+  projection: number;
+  fromPopulation: string;
+  toPopulation: string;
+  shared: boolean;
+  to?: number;
+  from?: number;
+  value: number;
+  slots: ({ kind: 'synapse'; index: number } | { kind: 'input'; index: number })[];
+  /** The receiving network neurons (the roots of its cone). */
+  targets: number[];
+}
+
 /** A trainable parameter shared by the neurons of a model population. */
 export interface ParamRef { population: string; name: string; value: number; neurons: number[] }
 
@@ -39,6 +54,8 @@ export interface BuiltScenario {
   /** Population name -> its first network neuron (model populations only). */
   firstNeuron: Map<string, number>;
   weights: WeightRef[];
+  /** The delays of projections that have one (after the weights in the report). */
+  delays: DelayRef[];
 }
 
 export function buildScenario(s: Scenario): BuiltScenario {
@@ -57,25 +74,36 @@ export function buildScenario(s: Scenario): BuiltScenario {
   const synapses: Network['synapses'][number][] = [];
   const inputs: InputTrain[] = [];
   const weights: WeightRef[] = [];
+  const delays: DelayRef[] = [];
   for (const pr of s.projections) {
     const input = inputsOf.get(pr.from);
     const toBase = firstNeuron.get(pr.to)!;
+    const head = { projection: pr.index, fromPopulation: pr.from, toPopulation: pr.to };
+    const shared: DelayRef | undefined = pr.delays && pr.delayShared ? { ...head, shared: true, value: pr.delays[0]?.[0] ?? 0, slots: [], targets: [] } : undefined;
     pr.weights.forEach((row, i) => row.forEach((w, j) => {
-      const base = { projection: pr.index, ...(pr.via ? { via: pr.via } : {}), receptor: pr.receptor, fromPopulation: pr.from, toPopulation: pr.to, to: i, from: j, value: w };
+      const base = { ...head, ...(pr.via ? { via: pr.via } : {}), receptor: pr.receptor, to: i, from: j, value: w };
       const receptor = pr.receptor ? { receptor: pr.receptor } : {};
+      const d = pr.delays?.[i]?.[j];
+      const delay = d !== undefined ? { delay: d } : {};
+      let slot: WeightRef['slot'];
       if (input) {
         const times = input.kind === 'input' ? input.spikes.filter(([, k]) => k === j).map(([t]) => t).sort((a, b) => a - b) : [];
-        inputs.push({ target: toBase + i, times, weight: w, ...receptor });
-        weights.push({ ...base, slot: { kind: 'input', index: inputs.length - 1 } });
+        inputs.push({ target: toBase + i, times, weight: w, ...receptor, ...delay });
+        slot = { kind: 'input', index: inputs.length - 1 };
       } else {
         const fromBase = firstNeuron.get(pr.from)!;
         if (pr.from === pr.to && i === j) return;
-        synapses.push({ from: fromBase + j, to: toBase + i, weight: w, ...receptor });
-        weights.push({ ...base, slot: { kind: 'synapse', index: synapses.length - 1 } });
+        synapses.push({ from: fromBase + j, to: toBase + i, weight: w, ...receptor, ...delay });
+        slot = { kind: 'synapse', index: synapses.length - 1 };
       }
+      weights.push({ ...base, slot });
+      if (d === undefined) return;
+      if (shared) { shared.slots.push(slot); if (!shared.targets.includes(toBase + i)) shared.targets.push(toBase + i); }
+      else delays.push({ ...head, shared: false, to: i, from: j, value: d, slots: [slot], targets: [toBase + i] });
     }));
+    if (shared && shared.slots.length) delays.push(shared);
   }
-  return { net: { neurons, synapses }, inputs, loss: lossOf(s, firstNeuron), neurons: names, firstNeuron, weights };
+  return { net: { neurons, synapses }, inputs, loss: lossOf(s, firstNeuron), neurons: names, firstNeuron, weights, delays };
 }
 
 /** L as simulator loss terms: (X - target_i)^2 / 2 per neuron, or (t - target_i)^2 / 2 at its first spike. */

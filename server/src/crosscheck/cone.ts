@@ -9,7 +9,7 @@
 // Invariants: the cone holds the roots and is closed under the network's synapses; its
 // neurons keep their order; a synapse from outside the cone into it becomes exactly one
 // input train carrying the sender's spike times of the unperturbed run; every input train
-// onto the cone is kept; a cone of the whole network is the network itself.
+// onto the cone is kept (with its delay); a cone of the whole network is the network itself.
 import type { InputTrain, Loss, Network, Trajectory } from '../simulate';
 import type { BuiltScenario, WeightRef } from './build';
 
@@ -19,8 +19,8 @@ export interface Cone {
   loss: Loss;
   /** Full-network index of each cone neuron. */
   keep: number[];
-  /** Where a checked weight lives in the cone (undefined when it is outside it). */
-  slot(w: WeightRef): { kind: 'synapse' | 'input'; index: number } | undefined;
+  /** Where a checked weight (or a slot of the full network) lives in the cone (undefined when it is outside it). */
+  slot(w: Pick<WeightRef, 'slot'>): { kind: 'synapse' | 'input'; index: number } | undefined;
 }
 
 /** Which neurons are downstream of `roots` (themselves included), as a 0/1 mask. */
@@ -59,10 +59,10 @@ export function coneOf(b: BuiltScenario, base: Trajectory, roots: readonly numbe
   b.net.synapses.forEach((s, k) => {
     if (!inCone[s.to]) return;
     if (inCone[s.from]) {
-      synapses.push({ from: index[s.from]!, to: index[s.to]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}) });
+      synapses.push({ from: index[s.from]!, to: index[s.to]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}), ...(s.delay !== undefined ? { delay: s.delay } : {}) });
       synapseSlot.set(k, { kind: 'synapse', index: synapses.length - 1 });
     } else {
-      inputs.push({ target: index[s.to]!, times: spikesOf[s.from]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}) });
+      inputs.push({ target: index[s.to]!, times: spikesOf[s.from]!, weight: s.weight, ...(s.receptor ? { receptor: s.receptor } : {}), ...(s.delay !== undefined ? { delay: s.delay } : {}) });
       synapseSlot.set(k, { kind: 'input', index: inputs.length - 1 });
     }
   });
@@ -89,6 +89,19 @@ export function coneWithWeight(c: Cone, w: WeightRef, value: number): { net: Net
   if (!s) return { net: c.net, inputs: c.inputs };
   if (s.kind === 'input') return { net: c.net, inputs: c.inputs.map((x, i) => (i === s.index ? { ...x, weight: value } : x)) };
   return { net: { ...c.net, synapses: c.net.synapses.map((x, i) => (i === s.index ? { ...x, weight: value } : x)) }, inputs: c.inputs };
+}
+
+/** The cone's network and inputs with the delay of every given slot (full-network) set to `value`. */
+export function coneWithDelay(c: Cone, slots: readonly WeightRef['slot'][], value: number): { net: Network; inputs: InputTrain[] } {
+  const syn = new Set<number>(), inp = new Set<number>();
+  for (const x of slots) {
+    const s = c.slot({ slot: x });
+    if (s?.kind === 'synapse') syn.add(s.index); else if (s) inp.add(s.index);
+  }
+  return {
+    net: syn.size ? { ...c.net, synapses: c.net.synapses.map((x, i) => (syn.has(i) ? { ...x, delay: value } : x)) } : c.net,
+    inputs: inp.size ? c.inputs.map((x, i) => (inp.has(i) ? { ...x, delay: value } : x)) : c.inputs,
+  };
 }
 
 /** The cone's network with parameter `name` set to `value` in the given full-network neurons. */

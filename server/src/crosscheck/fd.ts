@@ -15,7 +15,7 @@
 // Invariant: never throws; a row gets exactly one status.
 import { parseUnit } from '../units';
 import type { InputTrain, Network, NonFiniteAt, Trajectory } from '../simulate';
-import type { CrossCheckProgress, CrossCheckWarning, GradientRow, ParamRow } from './types';
+import type { AnyRow, CrossCheckProgress, CrossCheckWarning } from './types';
 
 /** Multiple of the machine epsilon of L taken as its rounding noise (common practice: a few dozen ulp). */
 const ROUNDING_ULPS = 64;
@@ -42,6 +42,8 @@ export interface FdOutcome {
   losses?: [number, number];
   status?: 'spike-count-changed' | 'simulation-failed' | 'non-finite';
   note?: string;
+  /** A one-sided difference (L(v + 2h) - L(v)) / 2h, for a value that cannot go below v. */
+  oneSided?: boolean;
 }
 
 type Make = (v: number) => { net: Network; inputs: InputTrain[] };
@@ -97,14 +99,16 @@ function* pair(ctx: FdContext, value: number, h: number, make: Make, count: bool
   return { fd: (a.loss - c.loss) / (2 * h), step: h, losses: [a.loss, c.loss] };
 }
 
-/** The central difference at h = relStep x scale, retried at a tenth of it when a spike count changes. */
-export function* central(ctx: FdContext, value: number, scale: number, make: Make, label: string): Generator<CrossCheckProgress, FdOutcome, void> {
+/** The central difference at h = relStep x scale, retried at a tenth of it when a spike count
+ *  changes; `oneSided`: centred on v + h instead, (L(v + 2h) - L(v)) / 2h, for a value that
+ *  cannot go below v (a delay of 0). */
+export function* central(ctx: FdContext, value: number, scale: number, make: Make, label: string, oneSided = false): Generator<CrossCheckProgress, FdOutcome, void> {
   const h0 = ctx.relStep * scale;
   let changed = '';
   for (const h of [h0, h0 / 10]) {
-    const r = yield* pair(ctx, value, h, make, h === h0);
+    const r = yield* pair(ctx, oneSided ? value + h : value, h, make, h === h0);
     if ('changed' in r) { changed = r.changed; continue; }
-    return r;
+    return oneSided ? { ...r, oneSided } : r;
   }
   ctx.warnings.push({ kind: 'spike-count-changed', message: `${label}: perturbing it by ±${h0.toPrecision(2)} (and by a tenth of that) changes a spike count (${changed}); the loss jumps there, so its finite difference is meaningless and is not reported` });
   return { fd: null, step: null, status: 'spike-count-changed', note: `spike count changed: ${changed}` };
@@ -117,7 +121,7 @@ export function* central(ctx: FdContext, value: number, scale: number, make: Mak
 export function* noiseEstimate(ctx: FdContext, value: number, first: FdOutcome, make: Make): Generator<CrossCheckProgress, number | null, void> {
   if (first.fd === null || first.step === null) return null;
   const h2 = first.step / 4;
-  const r = yield* pair(ctx, value, h2, make, true);
+  const r = yield* pair(ctx, first.oneSided ? value + h2 : value, h2, make, true);
   if ('changed' in r || r.fd === null || !Number.isFinite(r.fd)) return null;
   const lossSize = Math.max(...(first.losses ?? [0]).map(Math.abs), ...(r.losses ?? [0]).map(Math.abs));
   return Math.abs(first.fd - r.fd) + (ROUNDING_ULPS * Number.EPSILON * lossSize) / h2;
@@ -130,7 +134,7 @@ export function relativeError(adjoint: number, fd: number): number {
 }
 
 /** Whether this row needs the noise estimate before it can be judged. */
-export function needsNoise(row: GradientRow | ParamRow, tolerance: number): boolean {
+export function needsNoise(row: AnyRow, tolerance: number): boolean {
   return Number.isFinite(row.adjoint) && row.finiteDifference !== null && Number.isFinite(row.finiteDifference)
     && relativeError(row.adjoint, row.finiteDifference) > tolerance;
 }
@@ -139,7 +143,7 @@ export function needsNoise(row: GradientRow | ParamRow, tolerance: number): bool
  * Fills the row's difference, errors and status from the outcome, the noise estimate (when
  * one was made) and the tolerance; `adjointWhere` says where a non-finite adjoint came from.
  */
-export function judge<R extends GradientRow | ParamRow>(row: R, r: FdOutcome, noise: number | null, tolerance: number, adjointWhere: string): R {
+export function judge<R extends AnyRow>(row: R, r: FdOutcome, noise: number | null, tolerance: number, adjointWhere: string): R {
   row.finiteDifference = r.fd;
   row.step = r.step;
   if (r.note) row.note = r.note;

@@ -10,14 +10,15 @@
 // the validated scenario and the exact rows.
 import { gridBackward, gridForward, networkFromScenario } from '../grid';
 import type { Scenario } from './scenario';
-import { type GradientRow, type GridConvergence, type GridRowConvergence, type ParamRow, rowLabel } from './types';
+import { type DelayRow, type GradientRow, type GridConvergence, type GridRowConvergence, type ParamRow, rowLabel } from './types';
 
 export type { GridConvergence, GridRowConvergence };
 
 /** Below this relative error the difference is rounding: no order is computed from it. */
 const ROUNDING = 1e-11;
 
-export function gridConvergence(s: Scenario, gradients: readonly GradientRow[], params: readonly ParamRow[], exactLoss: number, dt: number): GridConvergence {
+export function gridConvergence(s: Scenario, gradients: readonly GradientRow[], params: readonly ParamRow[], exactLoss: number, dt: number,
+  delays: readonly DelayRow[] = []): GridConvergence {
   const t0 = performance.now();
   const dts = [dt, dt / 2, dt / 4];
   const net = networkFromScenario(s);
@@ -25,6 +26,7 @@ export function gridConvergence(s: Scenario, gradients: readonly GradientRow[], 
   const rows: GridRowConvergence[] = [
     ...gradients.map((r) => ({ label: rowLabel(r), exact: r.adjoint, values: [], errors: [], orders: [] })),
     ...params.map((r) => ({ label: `${r.population}.${r.name}`, exact: r.adjoint, values: [], errors: [], orders: [] })),
+    ...delays.map((r) => ({ label: rowLabel(r), exact: r.adjoint, values: [], errors: [], orders: [] })),
   ];
   const relErr = (v: number | null, exact: number): number | null => (v === null || exact === 0 || !Number.isFinite(v) ? null : Math.abs(v - exact) / Math.abs(exact));
   let held: Record<string, number> | undefined;
@@ -37,7 +39,8 @@ export function gridConvergence(s: Scenario, gradients: readonly GradientRow[], 
       for (const [pop, m] of Object.entries(run.substeps)) (out.substeps[pop] ??= []).push(m);
       for (const p of s.populations) if (p.kind === 'model') out.exact[p.name] = run.trials[0]?.pops.find((x) => x?.name === p.name)?.kernels.d.exact ?? false;
       const g = gridBackward(run);
-      values = [...gradients.map((r) => g.weights[r.projection]?.[r.to]?.[r.from] ?? null), ...params.map((r) => g.params[r.population]?.[r.name] ?? null)];
+      values = [...gradients.map((r) => g.weights[r.projection]?.[r.to]?.[r.from] ?? null), ...params.map((r) => g.params[r.population]?.[r.name] ?? null),
+        ...delays.map((r) => (r.shared ? g.delays[r.projection]?.flat().reduce((x, y) => x + y, 0) ?? null : g.delays[r.projection]?.[r.to!]?.[r.from!] ?? null))];
       out.loss.values.push(run.loss);
       out.loss.errors.push(exactLoss === 0 ? null : Math.abs(run.loss - exactLoss) / Math.abs(exactLoss));
     } catch (e) {

@@ -7,7 +7,7 @@
 // are our own, themed by VS Code's CSS variables when shown in a webview.
 import { gridSection } from './gridHtml';
 import { type RasterRow, errorBar, esc, lineChart, raster, sci } from './svg';
-import type { CrossCheckResult, GradientRow, NeuronTrace, ParamRow } from './types';
+import type { AnyRow, CrossCheckResult, NeuronTrace } from './types';
 import { rowDisplay, rowLabel } from './types';
 import { pctText } from './report';
 
@@ -74,7 +74,7 @@ function warnings(r: CrossCheckResult): string {
   return `<section><h2>Warnings</h2><ul class="warnings">${r.warnings.map((w) => `<li><span class="tag">${esc(w.kind)}</span> ${esc(w.message)}</li>`).join('')}</ul></section>`;
 }
 
-function row(x: GradientRow | ParamRow, r: CrossCheckResult, worst: boolean): string {
+function row(x: AnyRow, r: CrossCheckResult, worst: boolean): string {
   const status = x.status === 'ok' ? (x.withinNoise ? 'agrees within FD noise' : 'agrees') : x.status === 'above-tolerance' ? 'disagrees'
     : x.status === 'spike-count-changed' ? 'no finite difference' : x.status === 'non-finite' ? 'not finite' : 'simulation failed';
   const d = rowDisplay(x, r.lossUnit);
@@ -86,9 +86,10 @@ function table(r: CrossCheckResult): string {
   const head = `<tr><th>weight or parameter</th><th class="num">value (file's unit)</th><th class="num">dL/d(value): adjoint</th><th class="num">finite difference</th><th>unit of dL/d(value)</th><th class="num">relative error</th><th>error, log scale 10⁻¹²…1 (bar: tolerance)</th><th>status</th></tr>`;
   const weights = r.gradients.map((x, k) => row(x, r, r.worst?.kind === 'weight' && r.worst.index === k)).join('');
   const params = r.params.map((x, k) => row(x, r, r.worst?.kind === 'param' && r.worst.index === k)).join('');
+  const delays = (r.delays ?? []).map((x, k) => row(x, r, r.worst?.kind === 'delay' && r.worst.index === k)).join('');
   return `<section><h2>Gradients</h2>
 <p class="note">Weights are <code>w&lt;projection&gt; from[j] -&gt; to[i]</code> (weights[to][from] of that projection); parameters are shared by their population. Each value is shown in the unit the model file writes it in, and dL/d(value) per that same unit (the JSON report keeps SI). Relative error = |adjoint − FD| / max(|adjoint|, |FD|), each row on its own; where it exceeds the tolerance the difference is repeated at a quarter of the step, and a row whose |adjoint − FD| lies within that finite difference's own noise agrees (e.g. an exact zero against noise).</p>
-<table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="8">trainable parameters</th></tr>${params}` : ''}</tbody></table></section>`;
+<table class="grads"><thead>${head}</thead><tbody>${weights}${params ? `<tr class="group"><th colspan="8">trainable parameters</th></tr>${params}` : ''}${delays ? `<tr class="group"><th colspan="8">transmission delays (<code>d&lt;projection&gt;</code>; one-sided at 0)</th></tr>${delays}` : ''}</tbody></table></section>`;
 }
 
 function spikes(r: CrossCheckResult): string {

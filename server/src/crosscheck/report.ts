@@ -35,6 +35,10 @@ export function crossCheckJson(r: CrossCheckResult): Record<string, unknown> {
       const { name, population, adjoint, finiteDifference, relativeError, ...rest } = row(x);
       return { name, population, adjoint, finiteDifference, relativeError, ...rest };
     }),
+    ...(r.delays ? { delays: r.delays.map((x) => {
+      const { kind: _kind, projection, shared, adjoint, finiteDifference, relativeError, ...rest } = row(x);
+      return { projection, shared, adjoint, finiteDifference, relativeError, ...rest };
+    }) } : {}),
     maxRelativeError: num(r.maxRelativeError),
     worst: r.worst,
     noiseLimited: r.noiseLimited,
@@ -84,14 +88,14 @@ export function crossCheckText(r: CrossCheckResult): string {
   const counts = Object.entries(r.spikeCounts).map(([p, c]) => (!(p in r.spikes) ? `${p} does not fire` : `${p} ${c.reduce((a, b) => a + b, 0)}${c.length > 1 ? ` (${c.join(', ')})` : ''}`));
   out.push(`spikes: ${counts.join('; ') || 'none'}`);
   out.push('');
-  const rows = [...r.gradients, ...r.params];
-  const w = Math.max(12, ...rows.map((x) => rowLabel(x).length));
+  const rows = [...r.gradients, ...r.params, ...(r.delays ?? [])];
+  const w = Math.max(r.delays?.length ? 26 : 12, ...rows.map((x) => rowLabel(x).length));
   const shown = rows.map((x) => rowDisplay(x, r.lossUnit));
   const vals = shown.map((d) => `${sci(d.value, 6)} ${d.valueUnit}`.trimEnd());
   const units = shown.map((d) => `[${d.gradientUnit}]`);
   const vw = Math.max(5, ...vals.map((v) => v.length)), uw = Math.max(4, ...units.map((v) => v.length));
   out.push(`each gradient is dL/d(value) per the unit the value is shown in (the file's unit; the JSON report is SI)`);
-  out.push(`${'weight or parameter'.padEnd(w)}  ${'value'.padStart(vw)}  ${'adjoint'.padStart(15)}  ${'finite diff.'.padStart(15)}  ${'unit'.padEnd(uw)}  ${'rel. error'.padStart(10)}`);
+  out.push(`${(r.delays?.length ? 'weight, parameter or delay' : 'weight or parameter').padEnd(w)}  ${'value'.padStart(vw)}  ${'adjoint'.padStart(15)}  ${'finite diff.'.padStart(15)}  ${'unit'.padEnd(uw)}  ${'rel. error'.padStart(10)}`);
   rows.forEach((x, k) => {
     const d = shown[k]!;
     const flag = x.status === 'ok' ? (x.withinNoise ? `  (zero within FD noise ±${sci(d.fdNoise ?? null, 2)})` : '')

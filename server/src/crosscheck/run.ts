@@ -15,13 +15,13 @@ import { derivationFor, type NeuronDerivation } from '../adjoint/index';
 import type { ResolvedNeuron } from '../model/types';
 import { type InputTrain, type Loss, type Network, type Trajectory, backward, simulate } from '../simulate';
 import { type BuiltScenario, buildScenario, paramRefs } from './build';
-import { type Cone, coneOf, coneSize, coneWithParam, coneWithWeight } from './cone';
+import { type Cone, coneOf, coneSize, coneWithDelay, coneWithParam, coneWithWeight } from './cone';
 import { type Scenario, parseScenario } from './scenario';
 import { type Dim, isDimensionless, parseUnit } from '../units';
 import { fragilityWarnings, silentWarnings } from './warnings';
 import { sampleCostates, sampleGrid, sampleStates } from './traces';
 import { buildTraces, lossUnit, spikeRecords } from './summary';
-import type { CrossCheckOptions, CrossCheckProgress, CrossCheckResult, CrossCheckWarning, GradientRow, ParamRow } from './types';
+import type { AnyRow, CrossCheckOptions, CrossCheckProgress, CrossCheckResult, CrossCheckWarning, DelayRow, GradientRow, ParamRow } from './types';
 import { type FdContext, central, judge, needsNoise, noiseEstimate, nonFiniteText, spikeCountVector, zeroValueScale } from './fd';
 import { DEFAULT_SEED, sampleRows } from './sample';
 import { rowLabel } from './types';
@@ -119,7 +119,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
 
   // Which rows: every weight and trainable parameter, or a seeded sample of them.
   const params = paramRefs(s, b, (p) => derivation(p.model).gradientParams);
-  const groups = [...b.weights.map((w) => `w${w.projection}`), ...params.map((p) => `${p.population}.params`)];
+  const groups = [...b.weights.map((w) => `w${w.projection}`), ...params.map((p) => `${p.population}.params`), ...b.delays.map((d) => `d${d.projection}`)];
   const sampleSize = options.sample ?? s.sample?.rows;
   const seed = options.seed ?? s.sample?.seed ?? DEFAULT_SEED;
   const picked = sampleSize !== undefined ? sampleRows(groups, sampleSize, seed) : groups.map((_, k) => k);
@@ -137,8 +137,9 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     if (!size.has(k)) size.set(k, coneSize(b, roots));
     return size.get(k)! / Math.max(1, b.net.neurons.length);
   };
+  const nWP = b.weights.length + params.length;
   const work = 2 + picked.reduce((acc, k) => acc + 2 * share(k < b.weights.length
-    ? [b.firstNeuron.get(b.weights[k]!.toPopulation)! + b.weights[k]!.to] : params[k - b.weights.length]!.neurons), 0);
+    ? [b.firstNeuron.get(b.weights[k]!.toPopulation)! + b.weights[k]!.to] : k < nWP ? params[k - b.weights.length]!.neurons : b.delays[k - nWP]!.targets), 0);
   const progress = (phase: CrossCheckProgress['phase']): CrossCheckProgress => ({ done, total, phase,
     ...(firstMs !== undefined ? { firstSimulation_ms: firstMs, estimate_ms: firstMs * work } : {}),
     ...(result.sample ? { sample: { rows: result.sample.rows, of: result.sample.of } } : {}) });
@@ -179,11 +180,11 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   const tf = now();
   const warnings: CrossCheckWarning[] = [];
   const tolerance = result.tolerance;
-  function* check<R extends GradientRow | ParamRow>(row: R, scale: number, cone: Cone,
-    make: (v: number) => { net: Network; inputs: InputTrain[] }): Generator<CrossCheckProgress, R, void> {
+  function* check<R extends AnyRow>(row: R, scale: number, cone: Cone,
+    make: (v: number) => { net: Network; inputs: InputTrain[] }, oneSided = false): Generator<CrossCheckProgress, R, void> {
     const ctx: FdContext = { labels: cone.keep.map((i) => b.neurons[i]!), counts: cone.keep.map((i) => counts[i]!), relStep: rel, warnings,
       sim: (net, inputs) => sim(net, inputs, cone.loss), tick: (n) => { done += n; return progress('finite-differences'); } };
-    const r = yield* central(ctx, row.value, scale, make, rowLabel(row));
+    const r = yield* central(ctx, row.value, scale, make, rowLabel(row), oneSided);
     row.finiteDifference = r.fd;
     let noise: number | null = null;
     if (needsNoise(row, tolerance)) {
@@ -232,8 +233,27 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
     const cone = coneOf(b, base, p.neurons);
     paramRows.push(yield* check(row, scale, cone, (v) => coneWithParam(cone, p.neurons, p.name, v)));
   }
+  // Delays: the adjoint of a shared delay is the sum over its synapses; a delay of 0 is
+  // checked one-sided, its step relative to the projection's largest delay, else 1 ms.
+  const delayRows: DelayRow[] = [];
+  for (const [k, d] of b.delays.entries()) {
+    if (!pickedSet.has(nWP + k)) continue;
+    const adjoint = d.slots.reduce((acc, x) => acc + (x.kind === 'input' ? grads.inputDelays[x.index]! : grads.delays[x.index]!), 0);
+    const row: DelayRow = { kind: 'delay', projection: d.projection, fromPopulation: d.fromPopulation, toPopulation: d.toPopulation, shared: d.shared,
+      ...(d.shared ? {} : { to: d.to!, from: d.from! }), value: d.value, unit: { text: 'ms', scale: 1e-3 }, step: null, adjoint,
+      finiteDifference: null, absoluteError: null, relativeError: null, status: 'ok' };
+    let scale = d.value;
+    if (d.value === 0) {
+      row.oneSided = true;
+      const neighbours = Math.max(0, ...b.delays.filter((x) => x.projection === d.projection).map((x) => x.value));
+      scale = neighbours > 0 ? neighbours : 1e-3;
+      row.stepBasis = `${neighbours > 0 ? 'the largest delay of its projection' : '1 ms'} (a delay of 0 is checked one-sided)`;
+    }
+    const cone = coneOf(b, base, d.targets);
+    delayRows.push(yield* check(row, scale, cone, (v) => coneWithDelay(cone, d.slots, v), d.value === 0));
+  }
   result.timing.finiteDifferences_ms = now() - tf;
-  summarise(result, gradients, paramRows);
+  summarise(result, gradients, paramRows, b.delays.length ? delayRows : undefined);
 
   // Warnings and traces.
   const grid = sampleGrid(base);
@@ -257,7 +277,7 @@ function* core(analysis: Analysis, input: unknown, options: CrossCheckOptions): 
   if (options.traces !== false && grads.costate) {
     result.traces = buildTraces(s, b, base, grid, states, sampleCostates(grads.costate, grid, base.layout.total));
   }
-  if (options.gridTimestep !== undefined && options.gridTimestep > 0) result.grid = gridConvergence(s, result.gradients, result.params, result.loss, options.gridTimestep);
+  if (options.gridTimestep !== undefined && options.gridTimestep > 0) result.grid = gridConvergence(s, result.gradients, result.params, result.loss, options.gridTimestep, result.delays);
   done = total;
   yield progress('report');
   result.timing.total_ms = now() - t0;
@@ -283,18 +303,21 @@ function displayUnit(text: string | undefined, dim?: Dim): { text: string; scale
  * agree only within their own finite-difference noise are counted apart), and passed when
  * every row agrees and there was at least one.
  */
-function summarise(result: CrossCheckResult, gradients: GradientRow[], params: ParamRow[]): void {
-  const rows: (GradientRow | ParamRow)[] = [...gradients, ...params];
+function summarise(result: CrossCheckResult, gradients: GradientRow[], params: ParamRow[], delays?: DelayRow[]): void {
+  const rows: AnyRow[] = [...gradients, ...params, ...(delays ?? [])];
   let worst: CrossCheckResult['worst'] = null, max: number | null = null;
+  const nWP = gradients.length + params.length;
   rows.forEach((r, k) => {
     if (r.relativeError === null || r.withinNoise) return;
     if (max === null || r.relativeError > max) {
       max = r.relativeError;
-      worst = k < gradients.length ? { kind: 'weight', index: k, label: rowLabel(r) } : { kind: 'param', index: k - gradients.length, label: rowLabel(r) };
+      worst = k < gradients.length ? { kind: 'weight', index: k, label: rowLabel(r) } : k < nWP ? { kind: 'param', index: k - gradients.length, label: rowLabel(r) }
+        : { kind: 'delay', index: k - nWP, label: rowLabel(r) };
     }
   });
   result.gradients = gradients;
   result.params = params;
+  if (delays) result.delays = delays;
   result.maxRelativeError = max;
   result.worst = worst;
   result.noiseLimited = rows.filter((r) => r.withinNoise).length;

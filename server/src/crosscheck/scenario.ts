@@ -9,8 +9,9 @@
 // in [0, duration) and index an existing input neuron; weights[to][from] has exactly
 // size(to) rows of size(from) numbers; every projection's sender fires (or is an input) and its receiver has an
 // incoming block; no ordered pair of populations is projected twice; the diagonal of a
-// population's projection onto itself is 0 (no self-synapses); the loss refers to an
-// existing population (and state, or a firing model for spike times).
+// population's projection onto itself is 0 (no self-synapses); a projection's delays (its
+// `delay_s`, else the file's `connect ... delay`) are times >= 0 shaped like its weights; the
+// loss refers to an existing population (and state, or a firing model for spike times).
 import type { Analysis } from '../pipeline';
 import type { IncomingInfo, ResolvedNeuron, SymbolInfo } from '../model/types';
 import { suggestions } from '../model/suggest';
@@ -30,8 +31,10 @@ export interface ModelPopulation {
 }
 export type Population = InputPopulation | ModelPopulation;
 
-/** `receptor`: the index of the receiving block in the model's `receptors` (`via`: its weight, when the scenario named it or the model has several). */
-export interface Projection { index: number; from: string; to: string; via?: string; receptor: number; weights: number[][] }
+/** `receptor`: the index of the receiving block in the model's `receptors` (`via`: its weight, when the scenario named it or the model has several).
+ *  `delays[to][from]` (SI seconds, >= 0) when the scenario's `delay_s` or the file's `connect ... delay`
+ *  gives one; `delayShared`: one value for the whole projection (a scalar: one gradient row). */
+export interface Projection { index: number; from: string; to: string; via?: string; receptor: number; weights: number[][]; delays?: number[][]; delayShared?: boolean }
 
 export type ScenarioLoss =
   | { kind: 'state-integral'; population: string; state: string; target: number[] }
@@ -308,7 +311,17 @@ function readProjections(v: unknown, pops: Map<string, Population>, rejected: Se
     }
     // With an endpoint rejected above, its size is unknown: the weights are not checked against it.
     const weights = readWeights(p.weights, `${path}.weights`, from, to, block, err, [p.from, p.to].some((x) => typeof x === 'string' && rejected.has(x)), suspects);
-    if (from && to && weights && receptor !== undefined && receptor >= 0) out.push({ index: k, from: from.name, to: to.name, ...(via ? { via } : {}), receptor, weights });
+    const fileDelay = from?.kind === 'model' && to?.kind === 'model' && block
+      ? analysis.model.connections.find((c) => c.from === from.model.name && c.to === to.model.name && (c.via ?? to.model.receptors[0]?.weight) === block.weight)?.delaySI : undefined;
+    const delay = p.delay_s === undefined ? (fileDelay !== undefined ? { value: fileDelay } : undefined) : readDelays(p.delay_s, `${path}.delay_s`, weights, err, suspects);
+    if (from && to && weights && receptor !== undefined && receptor >= 0 && delay !== null) {
+      const pr: Projection = { index: k, from: from.name, to: to.name, ...(via ? { via } : {}), receptor, weights };
+      if (delay) {
+        pr.delays = 'value' in delay ? weights.map((row) => row.map(() => delay.value)) : delay.matrix;
+        pr.delayShared = 'value' in delay;
+      }
+      out.push(pr);
+    }
   });
   return out;
 }
@@ -367,6 +380,30 @@ function readWeights(v: unknown, path: string, from: Population | undefined, to:
     rows.push(out);
   });
   return ok ? rows : undefined;
+}
+
+/** `delay_s`: one time >= 0, or a matrix of them shaped like the weights; null when invalid (said). */
+function readDelays(v: unknown, path: string, weights: number[][] | undefined, err: Err, suspects: UnitSuspect[]):
+  { value: number } | { matrix: number[][] } | undefined | null {
+  const e = TIME_EXPECTED('a delay');
+  const one = (x: unknown, at: string): number | undefined => {
+    const r = quantity(x, at, e, err, `a delay must be a number of seconds >= 0 (or a time such as "1 [ms]"); got ${show(x)}`);
+    if (!r) return undefined;
+    if (!(r.si >= 0)) { err(at, `a delay must be >= 0 (spikes cannot arrive before they are sent); got ${show(x)}`); return undefined; }
+    const s = r.bare ? prefixSuspect(at, r.si, e) : undefined;
+    if (s) suspects.push(s);
+    return r.si;
+  };
+  if (!Array.isArray(v)) { const x = one(v, path); return x === undefined ? null : { value: x }; }
+  let ok = true;
+  if (weights && v.length !== weights.length) { err(path, `expected ${weights.length} row${weights.length === 1 ? '' : 's'} shaped like weights, got ${v.length}`); return null; }
+  const matrix = v.map((row, i) => {
+    const at = `${path}[${i}]`;
+    if (!Array.isArray(row)) { err(at, `must be a list of delays (one per sending neuron); got ${show(row)}`); ok = false; return []; }
+    if (weights && row.length !== weights[i]!.length) { err(at, `expected ${weights[i]!.length} value${weights[i]!.length === 1 ? '' : 's'} shaped like weights, got ${row.length}`); ok = false; }
+    return row.map((x, j) => { const d = one(x, `${at}[${j}]`); if (d === undefined) ok = false; return d ?? 0; });
+  });
+  return ok && weights ? { matrix } : null;
 }
 
 function readLoss(v: unknown, pops: Map<string, Population>, rejected: Set<string>, err: (p: string, m: string) => void, suspects: UnitSuspect[]): ScenarioLoss | undefined {

@@ -44,6 +44,23 @@ export interface GradientRow extends RowCommon {
 /** A trainable parameter of a model population (shared by its neurons). */
 export interface ParamRow extends RowCommon { population: string; name: string }
 
+/** A transmission delay of a projection: one value shared by it (`shared`, a scalar `delay_s`
+ *  or the file's `connect ... delay`), or one synapse's (`to`, `from`, a matrix `delay_s`).
+ *  A delay of 0 is checked one-sided (`oneSided`: a negative delay is not a network). */
+export interface DelayRow extends RowCommon {
+  kind: 'delay';
+  projection: number;
+  fromPopulation: string;
+  toPopulation: string;
+  shared: boolean;
+  to?: number;
+  from?: number;
+  oneSided?: boolean;
+}
+
+/** Any checked row. */
+export type AnyRow = GradientRow | ParamRow | DelayRow;
+
 export type WarningKind = 'grazing' | 'near-miss' | 'spike-count-changed' | 'silent' | 'unit-prefix' | 'remark';
 
 export interface CrossCheckWarning {
@@ -137,6 +154,8 @@ export interface CrossCheckResult {
   spikeCounts: Record<string, number[]>;
   gradients: GradientRow[];
   params: ParamRow[];
+  /** Delay rows, when the scenario or the file gives a projection a delay. */
+  delays?: DelayRow[];
   /** Largest relative error over rows judged by it (not those agreeing only within noise; null when none). */
   maxRelativeError: number | null;
   /** Rows that agree only within their finite difference's noise. */
@@ -147,7 +166,7 @@ export interface CrossCheckResult {
   closestToGrazing: SpikeSlope[];
   /** Per located spike (aligned with `spikes`): its |gdot| over the neuron's RMS guard slope (null where it cannot be evaluated). */
   spikeSlopeRatios: Record<string, (number | null)[]>;
-  worst: { kind: 'weight' | 'param'; index: number; label: string } | null;
+  worst: { kind: 'weight' | 'param' | 'delay'; index: number; label: string } | null;
   tolerance: number;
   /** Every row usable and within tolerance, and at least one row compared. */
   passed: boolean;
@@ -198,8 +217,9 @@ export interface CrossCheckOptions {
   derivation?: (model: ResolvedNeuron) => NeuronDerivation;
 }
 
-/** A row's label for people: `w[0] in[0] -> hid[1]` or `hid.beta`. */
-export function rowLabel(r: GradientRow | ParamRow): string {
+/** A row's label for people: `w0 in[0] -> hid[1]` (`via w_inh` where named), `hid.beta`, `d1 hid -> out (shared)` or `d1 hid[0] -> out[0]`. */
+export function rowLabel(r: AnyRow): string {
+  if ('kind' in r) return `d${r.projection} ${r.fromPopulation}${r.shared ? '' : `[${r.from}]`} -> ${r.toPopulation}${r.shared ? ' (shared)' : `[${r.to}]`}`;
   return 'projection' in r ? `w${r.projection} ${r.fromPopulation}[${r.from}] -> ${r.toPopulation}[${r.to}]${r.via ? ` via ${r.via}` : ''}` : `${r.population}.${r.name}`;
 }
 
@@ -235,7 +255,7 @@ export interface GridConvergence {
  *  whose value has no unit in the file stay SI and say so. The JSON keeps SI. */
 export interface RowDisplay { value: number; valueUnit: string; adjoint: number; finiteDifference: number | null; fdNoise?: number; gradientUnit: string }
 
-export function rowDisplay(r: GradientRow | ParamRow, lossUnit: string): RowDisplay {
+export function rowDisplay(r: AnyRow, lossUnit: string): RowDisplay {
   const scale = r.unit?.scale ?? 1;
   const u = r.unit?.text;
   const wrap = (s: string): string => (/[*/ ]/.test(s) ? `(${s})` : s);

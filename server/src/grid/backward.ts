@@ -12,6 +12,9 @@
 //     Phi = -D / gdot,  lambda(s-) = mu + Phi g_x,  dL/dp += Phi g_p
 //   (the implicit-function derivative of the located time); a spike fired by a jump has no
 //   located time: lambda(s-) = mu, and D goes to the arrival whose instant it shares.
+// Transmission delays: an arrival at s + d with `targets` reaches those neurons only; the
+// time sensitivity it collects from each target n (its jump's r_t, the end and start terms of
+// n's segments there, the D of a spike of n it fired) is dL/d(delay) of synapse (n, source).
 // For an exact map (dG/dh = f(G), no explicit time) the segment starts are not needed:
 // dG/dh at an event's end is f(x-) of the logged state, and at an event's start
 // lambda(b-) . dG/dh = lambda(a+) . f(x+) (forward.ts `needsStarts`).
@@ -26,6 +29,8 @@ export interface GridGradient {
   loss: number;
   /** dL/dW per projection, weights[to][from] (self-synapses 0). */
   weights: number[][][];
+  /** dL/d(delay) per projection, delays[to][from] (0 for a projection without delays). */
+  delays: number[][][];
   /** dL/dp per model population and trainable parameter (summed over the population's neurons). */
   params: Record<string, Record<string, number>>;
   /** dL/d(time) of every spike (its coupling and loss terms, the implicit part excluded) and every arrival. */
@@ -40,18 +45,19 @@ export interface BackwardOptions {
 export function gridBackward(run: GridRun, opts: BackwardOptions = {}): GridGradient {
   const net = run.network;
   const weights = net.projections.map((p) => p.weights.map((row) => row.map(() => 0)));
+  const delays = net.projections.map((p) => p.weights.map((row) => row.map(() => 0)));
   const params: Record<string, Record<string, number>> = {};
   for (const p of net.populations) {
     if (p.kind === 'model') params[p.name] = Object.fromEntries(p.model.params.filter((q) => q.trainable).map((q) => [q.name, 0]));
   }
   const eventTimes: EventTime[] = [];
-  run.trials.forEach((tr, b) => backwardTrial(net, run, tr, b, weights, params, eventTimes, opts));
-  return { loss: run.loss, weights, params, eventTimes };
+  run.trials.forEach((tr, b) => backwardTrial(net, run, tr, b, weights, delays, params, eventTimes, opts));
+  return { loss: run.loss, weights, delays, params, eventTimes };
 }
 
 interface Back { run: PopRun; S: number; lam: Float64Array; cur: Float64Array; grad: Float64Array; v: Float64Array; argmax?: Int32Array }
 
-function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: number[][][],
+function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: number[][][], gD: number[][][],
   gP: Record<string, Record<string, number>>, eventTimes: EventTime[], opts: BackwardOptions): void {
   const loss = net.loss;
   const lossPopIndex = net.populations.findIndex((p) => p.name === loss.population);
@@ -60,6 +66,16 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
   const integral = loss.kind === 'state-integral' || loss.kind === 'ce-integral';
   const log = tr.log;
   const T = new Float64Array(log.length);
+  /** Per arrival with targets: its time sensitivity per receiving neuron (the delay gradients). */
+  const Tn = new Map<number, Float64Array>();
+  const addT = (ev: number, n: number, x: number): void => {
+    T[ev]! += x;
+    const E = log[ev]!;
+    if (E.kind !== 'arrival' || !E.targets) return;
+    let a = Tn.get(ev);
+    if (!a) { a = new Float64Array(tr.pops[E.pop]!.size); Tn.set(ev, a); }
+    a[n]! += x;
+  };
   const dt = run.dt;
 
   const back: (Back | null)[] = tr.pops.map((r) => {
@@ -84,7 +100,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
       return out;
     }
     const pr = net.projections[E.projection]!;
-    if (pr.from === pr.to && n === E.source) return E.xPre.slice(n * S, n * S + S);
+    if (E.targets ? !E.targets.includes(n) : pr.from === pr.to && n === E.source) return E.xPre.slice(n * S, n * S + S);
     load(k, v, E.xPre, n * S, E.time, 0, pr.weights[n]![E.source]!);
     for (let j = 0; j < S; j++) out[j] = k.receptors[pr.receptor ?? 0]!.J[j]!(v);
     return out;
@@ -129,7 +145,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
       map.vjp(new Float64Array(S), a, h, lamEnd, lamStart, B.grad);
       if (ref >= 0) startT = -flowDot(B, postState(B, n, ref), a, lamStart);
     }
-    if (ref >= 0) T[ref]! += startT;
+    if (ref >= 0) addT(ref, n, startT);
     B.lam.set(lamStart, o);
     B.cur[n] = a;
   };
@@ -172,17 +188,19 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
       if (E.kind === 'arrival') {
         const pr = net.projections[E.projection]!;
         const self = pr.from === pr.to;
-        for (let n = 0; n < B.run.size; n++) {
+        const targets = E.targets;
+        for (let q = 0; q < (targets ? targets.length : B.run.size); q++) {
+          const n = targets ? targets[q]! : q;
           segmentBack(B, n, E.time, e, step);
           const o = n * S;
-          if (!(self && n === E.source)) {
+          if (targets || !(self && n === E.source)) {
             load(k, v, E.xPre, o, E.time, 0, pr.weights[n]![E.source]!);
             const lam = B.lam.slice(o, o + S);
             const R = k.receptors[pr.receptor ?? 0]!;
             let gw = 0, gt = 0;
             for (let i = 0; i < S; i++) { gw += lam[i]! * R.Jw![i]!(v); gt += lam[i]! * R.Jt[i]!(v); }
             gW[E.projection]![n]![E.source]! += gw;
-            T[e]! += gt;
+            addT(e, n, gt);
             for (let q = 0; q < B.grad.length; q++) for (let i = 0; i < S; i++) B.grad[q]! += lam[i]! * R.Jp[i]![q]!(v);
             for (let j = 0; j < S; j++) {
               let acc = 0;
@@ -190,9 +208,11 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
               B.lam[o + j] = acc;
             }
           }
-          T[e]! += endTerm(B, n, E, E.starts ? E.starts[n]! : -1, B.lam.subarray(o, o + S), null);
+          addT(e, n, endTerm(B, n, E, E.starts ? E.starts[n]! : -1, B.lam.subarray(o, o + S), null));
         }
         if (E.cause >= 0) T[E.cause]! += T[e]!;
+        const per = Tn.get(e);
+        if (targets && per) for (const n of targets) gD[E.projection]![n]![E.source]! += per[n]!;
         eventTimes.push({ trial: b, kind: 'arrival', time: E.time, pop: pr.from, index: E.source, dLdt: T[e]! });
       } else {
         const n = E.neuron, o = n * S;
@@ -214,7 +234,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
         if (E.byJump !== undefined) {
           // A spike fired by a jump: its time is its arrival's, so dL/d(its time) goes there (and
           // on to the spike that caused the arrival); no phi, no guard terms.
-          if (E.byJump >= 0) T[E.byJump]! += D;
+          if (E.byJump >= 0) addT(E.byJump, n, D);
           for (let j = 0; j < S; j++) B.lam[o + j] = mu[j]!;
           continue;
         }

@@ -21,6 +21,11 @@
 // its own spike), or whose initial state is on the fired side at t = 0, fires there; its
 // arrivals are delivered at the same instant, and the test repeats. A neuron that would fire
 // twice in one instant stops the run with an error.
+// Transmission delays (a projection's `delays[to][from]`): a spike (or input spike) of source
+// j at s is queued for each receiving neuron at s + delays[i][j] (neurons with equal delays
+// share one arrival, `targets`); an arrival at or after the duration is dropped; an arrival
+// with targets advances and jumps those neurons only. A projection without delays keeps one
+// arrival at s for the whole receiving population.
 // Invariants: never throws for a validated network (numeric trouble becomes `errors`).
 import { gridDerivationFor } from './derive';
 import { type Kernels, compileKernels, crossed, jumpCrossed, load, valuesFor } from './kernels';
@@ -48,7 +53,9 @@ export type LogEvent =
       /** State of every neuron of the receiving population just before (neuron-major, S per neuron). */
       xPre: Float64Array;
       /** Per neuron, where its segment ending here started (needsStarts only). */
-      starts?: Int32Array }
+      starts?: Int32Array;
+      /** The receiving neurons (a projection with delays), in order; none: the whole population. */
+      targets?: Int32Array }
   | { kind: 'spike'; step: number; time: number; pop: number; neuron: number; xPre: Float64Array; first: boolean; start: StartRef;
       /** A spike fired by a jump: the index of the arrival whose instant it shares (-1: the
        *  initial state at t = 0); its time moves with that arrival, not with a crossing. */
@@ -128,7 +135,7 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   return out;
 }
 
-interface Pending { time: number; seq: number; projection: number; source: number; cause: number }
+interface Pending { time: number; seq: number; projection: number; source: number; cause: number; targets?: Int32Array }
 
 /** Pending arrivals ordered by (time, seq). */
 export class ArrivalQueue {
@@ -219,8 +226,25 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
 
   const queue = new ArrivalQueue();
   let seq = 0;
+  /** Queue what a spike of `source` at s sends along projection j: one arrival at s, or one per
+   *  distinct delay (ascending) for the neurons with that delay; those at or after the duration are dropped. */
+  const schedule = (j: number, source: number, s: number, cause: number): void => {
+    const pr = net.projections[j]!;
+    if (!pr.delays) { queue.push({ time: s, seq: seq++, projection: j, source, cause }); return; }
+    const self = pr.from === pr.to;
+    const groups = new Map<number, number[]>();
+    pr.delays.forEach((row, n) => {
+      if (self && n === source) return;
+      const d = row[source]!;
+      const g = groups.get(d);
+      if (g) g.push(n); else groups.set(d, [n]);
+    });
+    for (const d of [...groups.keys()].sort((a, b) => a - b)) {
+      if (s + d < net.duration) queue.push({ time: s + d, seq: seq++, projection: j, source, cause, targets: Int32Array.from(groups.get(d)!) });
+    }
+  };
   net.projections.forEach((pr, j) => {
-    for (const [t, i] of trial.inputs[pr.from] ?? []) queue.push({ time: t, seq: seq++, projection: j, source: i, cause: -1 });
+    for (const [t, i] of trial.inputs[pr.from] ?? []) schedule(j, i, t, -1);
   });
 
   const y = new Float64Array(Math.max(1, ...pops.map((L) => L.S)));
@@ -281,7 +305,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     }
     spikes[L.pop.name]!.push([s, n]);
     if (L.lossPop && first && (loss.kind === 'spike-time' || loss.kind === 'ce-first-spike')) lossValues[n] = s;
-    net.projections.forEach((pr, j) => { if (pr.from === L.pop.name) queue.push({ time: s, seq: seq++, projection: j, source: n, cause: ev }); });
+    net.projections.forEach((pr, j) => { if (pr.from === L.pop.name) schedule(j, n, s, ev); });
     if (++spikeCount > maxSpikes) return `more than ${maxSpikes} spikes: stopped (check the weights' units)`;
     return undefined;
   };
@@ -292,11 +316,13 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   let instant = NaN;
   const ref = new Map<Live, Float64Array>();
   const lastArrival = new Map<Live, number>();
+  /** The last arrival with targets onto each neuron ('pop:n') at this instant. */
+  const lastArrivalOf = new Map<string, number>();
   const firedNow = new Set<string>();
   const initial = new Set<string>();
   const openInstant = (s: number): void => {
     if (s === instant) return;
-    instant = s; ref.clear(); lastArrival.clear(); firedNow.clear(); initial.clear();
+    instant = s; ref.clear(); lastArrival.clear(); lastArrivalOf.clear(); firedNow.clear(); initial.clear();
   };
   const touch = (L: Live): void => {
     if (!L.k.guard || ref.has(L)) return;
@@ -321,7 +347,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
       const key = `${hit.run.index}:${hitN}`;
       if (firedNow.has(key)) return `${hit.pop.name}[${hitN}] is carried across its threshold a second time at ${s} s by spikes fired at that same instant: a loop of spikes fired by jumps; stopped`;
       firedNow.add(key);
-      const err = emit(hit, hitN, s, step, lastArrival.get(hit) ?? -1);
+      const err = emit(hit, hitN, s, step, Math.max(lastArrival.get(hit) ?? -1, lastArrivalOf.get(key) ?? -1));
       if (err) return err;
       ref.get(hit)![hitN] = guardNow(hit, hitN);
     }
@@ -367,6 +393,26 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
       const pr = net.projections[arr.projection]!;
       const L = live[popIndex.get(pr.to)!]!;
       const k = L.k, S = L.S;
+      const targets = arr.targets;
+      if (targets) {
+        // a projection with delays: only the neurons this arrival reaches
+        for (const n of targets) advance(L, n, arr.time);
+        openInstant(arr.time);
+        touch(L);
+        const ev = log.length;
+        for (const n of targets) lastArrivalOf.set(`${L.run.index}:${n}`, ev);
+        log.push({ kind: 'arrival', step, time: arr.time, pop: L.run.index, projection: arr.projection, source: arr.source, cause: arr.cause,
+          xPre: L.x.slice(), ...(L.run.needsStarts ? { starts: L.start.slice() } : {}), targets });
+        for (const n of targets) {
+          load(k, L.v, L.x, n * S, arr.time, 0, pr.weights[n]![arr.source]!);
+          for (let j = 0; j < S; j++) y[j] = k.receptors[pr.receptor ?? 0]!.J[j]!(L.v);
+          L.x.set(y.subarray(0, S), n * S);
+          L.start[n] = ev;
+        }
+        const err = jumpFired(arr.time, step);
+        if (err) return { error: err };
+        continue;
+      }
       for (let n = 0; n < L.pop.size; n++) advance(L, n, arr.time);
       openInstant(arr.time);
       touch(L);

@@ -9,7 +9,8 @@ export function networkFromScenario(s: Scenario): Network {
     duration: s.duration,
     populations: s.populations.map((p) => (p.kind === 'input' ? { kind: 'input', name: p.name, size: p.size }
       : { kind: 'model', name: p.name, size: p.size, model: p.model, params: p.params, initial: p.initial })),
-    projections: s.projections.map((p) => ({ from: p.from, to: p.to, ...(p.receptor ? { receptor: p.receptor } : {}), weights: p.weights.map((r) => [...r]) })),
+    projections: s.projections.map((p) => ({ from: p.from, to: p.to, ...(p.receptor ? { receptor: p.receptor } : {}), weights: p.weights.map((r) => [...r]),
+      ...(p.delays ? { delays: p.delays.map((r) => [...r]) } : {}) })),
     trials: [{ inputs }],
     loss: s.loss.kind === 'state-integral'
       ? { kind: 'state-integral', population: s.loss.population, state: s.loss.state, target: [...s.loss.target] }

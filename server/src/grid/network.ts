@@ -7,7 +7,8 @@
 // sender is an input or fires, its receiver has the incoming block it names (`receptor`, the
 // index in the model's receptors; the same pair may be projected into several blocks); weights[to][from] is
 // size(to) x size(from); a population projecting onto itself has no self-synapses (its
-// diagonal is ignored); input spikes lie in [0, duration); labels index the loss population.
+// diagonal is ignored); delays, where given, are shaped like the weights and >= 0; input
+// spikes lie in [0, duration); labels index the loss population.
 import type { ResolvedNeuron } from '../model/types';
 
 export interface InputPopulation { kind: 'input'; name: string; size: number }
@@ -27,6 +28,9 @@ export interface Projection {
   receptor?: number;
   /** weights[to][from] (SI). */
   weights: number[][];
+  /** Transmission delays delays[to][from] (SI seconds, >= 0), shaped like weights; none: every
+   *  spike arrives at once at every neuron of the receiver (the diagonal of a self-projection is ignored). */
+  delays?: number[][];
 }
 
 export interface Trial {
@@ -89,6 +93,9 @@ export function validateNetwork(net: Network): string[] {
     if (pr.weights.length !== to.size || pr.weights.some((row) => row.length !== from.size)) {
       errors.push(`projections[${k}].weights: must be ${to.size} rows (${to.name}) of ${from.size} numbers (${from.name})`);
     } else if (pr.weights.some((row) => row.some((w) => !Number.isFinite(w)))) errors.push(`projections[${k}].weights: every weight must be a finite number`);
+    if (pr.delays && (pr.delays.length !== to.size || pr.delays.some((row) => row.length !== from.size))) {
+      errors.push(`projections[${k}].delays: must be ${to.size} rows (${to.name}) of ${from.size} numbers (${from.name}), like the weights`);
+    } else if (pr.delays?.some((row) => row.some((d) => !(d >= 0) || !Number.isFinite(d)))) errors.push(`projections[${k}].delays: every delay must be a finite time >= 0`);
   });
   if (net.trials.length === 0) errors.push('trials: at least one trial is needed');
   net.trials.forEach((tr, b) => {

@@ -4,8 +4,10 @@
 // `via W` names the receiving block by its weight: required when B has several blocks,
 // optional with one. The same pair may be projected twice with different blocks; twice into
 // the same block is a duplicate (an error between receptors; a warning with one block, as in v0).
+// A written `delay D` must be a constant time >= 0 (SI seconds in `Connection.delaySI`).
 import type * as A from '../syntax/ast';
-import type { LowerContext } from './lower';
+import { TIME, dimEqual } from '../units/dimension';
+import { constantValue, describe, lower, type LowerContext } from './lower';
 import { suggestions, unknownName } from './suggest';
 import type { Connection, ResolvedNeuron } from './types';
 
@@ -42,7 +44,9 @@ export function resolveConnections(file: A.SourceFile, neurons: ResolvedNeuron[]
       continue;
     }
     seen.set(key, c);
-    if (ok && via !== undefined) out.push({ from: from.name, to: to.name, ...(blocks.length > 1 || c.via ? { via } : {}), decl: c, implicit: false });
+    const delaySI = c.delay ? delayOf(c.delay, ctx) : undefined;
+    if (c.delay && delaySI === undefined) ok = false;
+    if (ok && via !== undefined) out.push({ from: from.name, to: to.name, ...(blocks.length > 1 || c.via ? { via } : {}), decl: c, implicit: false, ...(delaySI !== undefined ? { delaySI } : {}) });
   }
   if (declared.length === 0) {
     for (const n of neurons) {
@@ -74,6 +78,24 @@ function receptorOf(c: A.ConnectDecl, to: ResolvedNeuron, blocks: A.IncomingBloc
     return undefined;
   }
   return names[0];
+}
+
+/** The delay's value in seconds: a constant time >= 0; undefined (with a diagnostic) otherwise. */
+function delayOf(e: A.Expr, ctx: LowerContext): number | undefined {
+  const v = lower(e, { lookup: () => undefined, names: () => [], constantOnly: 'a delay' }, ctx);
+  if (v.dim && !dimEqual(v.dim, TIME)) {
+    ctx.diagnostics.push({ severity: 'error', code: 'unit-mismatch', range: e.range,
+      message: `a delay must be a time, e.g. 1 [ms]; this one is ${describe(v.dim, ctx)}` });
+    return undefined;
+  }
+  const val = v.sym ? constantValue(v.sym) : undefined;
+  if (val === undefined) return undefined;
+  if (!(val >= 0)) {
+    ctx.diagnostics.push({ severity: 'error', code: 'negative-delay', range: e.range,
+      message: `a delay must be a time >= 0 (spikes cannot arrive before they are sent); this one is ${val} s` });
+    return undefined;
+  }
+  return val;
 }
 
 function endpoint(id: A.Ident, byName: Map<string, ResolvedNeuron>, ctx: LowerContext): ResolvedNeuron | undefined {

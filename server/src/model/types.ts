@@ -102,8 +102,9 @@ export interface ResolvedNeuron {
 export interface Reference { range: A.Range; target: SymbolInfo }
 
 /** A projection: spikes of `from` reach the `incoming` block of `to` whose weight is `via`
- *  (set when `to` has several blocks or the line names one; absent: its only block). */
-export interface Connection { from: string; to: string; via?: string; decl?: A.ConnectDecl; implicit: boolean }
+ *  (set when `to` has several blocks or the line names one; absent: its only block);
+ *  `delaySI`: its transmission delay in seconds (>= 0) when `delay D` is written and valid. */
+export interface Connection { from: string; to: string; via?: string; decl?: A.ConnectDecl; implicit: boolean; delaySI?: number }
 
 export interface ResolvedFile {
   neurons: ResolvedNeuron[];

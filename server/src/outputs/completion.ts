@@ -52,6 +52,7 @@ const KEYWORD_SNIPPETS: Record<string, string> = {
   incoming: 'incoming ${1:w} {\n\t$0\n}',
   surrogate: 'surrogate ${1:0.3 / theta * max(0, 1 - abs(V - theta) / theta)} detaching ${2:V}',
   connect: 'connect ${1:From} -> ${2:To}',
+  delay: 'delay ${1:1} [${2:ms}]',
   timestep: 'timestep ${1:0.1} [${2:ms}]',
 };
 
@@ -125,6 +126,9 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
   if (!neuronFrame) {
     if (head === 'Kw_connect') return connectCandidates(a, ctx, replace);
     if (inExpression && head === 'Kw_timestep') return [];
+    // after `connect A -> B` on its line: the optional delay
+    if (head === 'Kw_connect' && sameLine && ctx.statement.length === 4 && prevType === 'Identifier') return keywordCandidates(['delay'], replace);
+    if (head === 'Kw_connect' && sameLine && ctx.statement.length >= 5) return [];
     return keywordCandidates(TOP_KEYWORDS, replace);
   }
   const symbols = a.model.symbols.filter((s) => s.neuron === neuronFrame.name);

@@ -22,7 +22,8 @@ export type HoverTarget =
   | { kind: 'keyword'; word: string }
   | { kind: 'unit'; text: string }
   | { kind: 'function'; name: UserFnName }
-  | { kind: 'number'; expr: A.NumberExpr };
+  | { kind: 'number'; expr: A.NumberExpr }
+  | { kind: 'delay'; connect: A.ConnectDecl };
 
 export interface HoverContext {
   analysis: Analysis;
@@ -79,6 +80,8 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
   }
   if (tok && type?.startsWith('Kw_')) return { target: { kind: 'keyword', word: tok.image }, range: tokenRange(tok) };
   if (tok && type === 'Identifier' && viaWordAt(a, tok.startOffset)) return { target: { kind: 'keyword', word: 'via' }, range: tokenRange(tok) };
+  const connect = tok && type === 'Identifier' ? delayAt(a, tok.startOffset) : undefined;
+  if (connect) return { target: { kind: 'delay', connect }, range: tokenRange(tok!) };
   const hit = symbolAt(a, offset);
   if (hit) return { target: { kind: 'symbol', symbol: hit.symbol, isDeclaration: hit.isDeclaration }, range: hit.range };
   if (tok && type === 'Identifier' && (FUNCTION_NAMES as readonly string[]).includes(tok.image)) {
@@ -100,7 +103,22 @@ function describeTarget(a: Analysis, t: HoverTarget, neuron: ResolvedNeuron | un
     case 'unit': return unitMarkdown(t.text);
     case 'function': return functionMarkdown(t.name);
     case 'number': return numberMarkdown(t.expr);
+    case 'delay': return delayMarkdown(a, t.connect);
   }
+}
+
+/** The `connect` whose word `delay` starts at `start`, if any. */
+export function delayAt(a: Analysis, start: number): A.ConnectDecl | undefined {
+  return a.parse.file.items.find((i): i is A.ConnectDecl => i.kind === 'connect' && i.delayRange?.start === start);
+}
+
+function delayMarkdown(a: Analysis, c: A.ConnectDecl): string {
+  const head = `**delay** — ${KEYWORD_DOCS.delay}`;
+  const conn = a.model.connections.find((x) => x.decl === c);
+  if (!c.from || !c.to || conn?.delaySI === undefined) return head;
+  const d = conn.delaySI;
+  return `${head}\n\n\`${c.from.name} -> ${c.to.name}\`: ${valueText(a, d, TIME, 'ms')}; a spike of \`${c.from.name}\` at t reaches the incoming block of \`${c.to.name}\` at t + ${formatNumber(d * 1e3)} ms`
+    + (d === 0 ? ' (at once: the same as no delay)' : '') + '. A scenario\'s `delay_s` overrides it for its projection; its gradient is checked beside the weights.';
 }
 
 // ---- symbols ---------------------------------------------------------------------------

@@ -43,6 +43,8 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
   const out: SemanticToken[] = [];
   const tokens = a.parse.tokens;
   const viaWords = new Set(a.parse.file.items.flatMap((i) => (i.kind === 'connect' && i.viaRange ? [i.viaRange.start] : [])));
+  // `delay` in `connect A -> B delay D` is a word of that place only: a keyword there, a name elsewhere.
+  const delayWords = new Set(a.parse.file.items.flatMap((x) => (x.kind === 'connect' && x.delayRange ? [x.delayRange.start] : [])));
   for (let i = within ? firstAtOrAfter(tokens, from, (t) => t.startOffset) : 0; i < tokens.length && tokens[i]!.startOffset < to; i++) {
     const t = tokens[i]!;
     const type = t.tokenType.name;
@@ -52,6 +54,7 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
     else if (type === 'StringLiteral' || type === 'UnitString') out.push({ range, type: 'string', modifiers: type === 'StringLiteral' ? ['deprecated'] : [] });
     else if (OPERATORS.has(type)) out.push({ range, type: 'operator', modifiers: [] });
     else if (type === 'Derivative') out.push({ range, type: 'variable', modifiers: [] });
+    else if (type === 'Identifier' && delayWords.has(range.start)) out.push({ range, type: 'keyword', modifiers: [] });
     else if (type === 'Identifier') {
       const k = kinds.get(range.start);
       if (viaWords.has(range.start)) out.push({ range, type: 'keyword', modifiers: [] });

@@ -7,6 +7,12 @@
 // A spike fired by a jump has no phi of its own: its numerator (-dL/d(its time)) is added to
 // the `coupling` of the event that started its instant (the spike that caused it moves it),
 // and dropped where that is an input spike or the initial state (fixed times).
+// Transmission delays (docs/adjoint.md "Transmission delays"): an arrival at a = t_k + d is a
+// jump of its target at time a, so its timing term N = -dL/da is the target's coupling term
+// at the arrival plus the jump of the integrand loss there (and the numerators of spikes the
+// arrival fired by a jump). dL/dd = -N for the synapse (or input train), and N enters the
+// `coupling` of the spike that sent it, as a zero-delay target's term does. A zero-delay
+// synapse gets the one-sided (d -> 0+) derivative: the arrival taken just after the spike.
 // Invariants: never throws for bad input (errors come back in `errors`); at an event the
 // sender's and targets' new lambdas are computed from the post-event lambdas and pre-event
 // states before any is written; gradients are dL/d(value) of the simulated loss.
@@ -34,6 +40,10 @@ export interface Gradients {
   weights: number[];
   /** dL/dw per input train. */
   inputWeights: number[];
+  /** dL/d(delay) per synapse (one-sided, d -> 0+, for a delay of 0). */
+  delays: number[];
+  /** dL/d(delay) per input train (one-sided for a delay of 0). */
+  inputDelays: number[];
   /** dL/dp per neuron instance, for the derivation's gradientParams. */
   params: Record<string, number>[];
   /** dL/dx(0): the costate at t = 0, in the network layout. */
@@ -91,6 +101,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   const layout = traj.layout;
   const errors: string[] = [...traj.errors];
   const result: Gradients = { errors, weights: net.synapses.map(() => 0), inputWeights: inputs.map(() => 0),
+    delays: net.synapses.map(() => 0), inputDelays: inputs.map(() => 0),
     params: net.neurons.map(() => ({})), initial: new Float64Array(layout.total) };
   if (errors.length) return result;
   let ai: AdjointInstance[];
@@ -203,6 +214,29 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   });
   /** Numerators of spikes fired by jumps, by the index of the event that caused them. */
   const handed = new Map<number, number>();
+  /** The same for a cause that is an arrival: by `event:arrival`. */
+  const handedArrival = new Map<string, number>();
+  /** Timing terms N of delayed arrivals, by the index of the spike event that sent them. */
+  const delayed = new Map<number, number>();
+  /** The integrand loss of neuron m with its states from `block` (its own slice), at time t. */
+  const lvOf = (m: number, block: ArrayLike<number>, t: number): number => {
+    const f = ai[m]!.fwd;
+    if (!f.loss.integrand) return 0;
+    for (let j = 0; j < ai[m]!.nStates; j++) f.vals[j] = block[j]!;
+    f.vals[f.vals.length - 1] = t;
+    return f.loss.integrand(f.vals);
+  };
+  /** -dL/d(time) of one arrival onto m is its coupling term (states just before it in x,
+   *  costates just after it, the synapse's weight) plus the jump of m's integrand loss. */
+  const couplingOf = (m: number, w: number, r: number, x: Float64Array, zPlus: Float64Array, time: number): number => {
+    const b = fill(m, x, zPlus, time);
+    setBlock(m, b, w, r);
+    return ai[m]!.a.receptors[r]!.coupling(b);
+  };
+  const lvJump = (m: number, x: Float64Array, postBlock: ArrayLike<number>, time: number): number => {
+    const off = layout.offset[m]!;
+    return lvOf(m, postBlock, time) - lvOf(m, x.subarray(off, off + ai[m]!.nStates), time);
+  };
   if (options.keepCostate) result.costate = traj.intervals.map((v) => ({ t0: v.t0, t1: v.t1, segments: [] }));
   for (let k = traj.intervals.length - 1; k >= 0; k--) {
     iv = traj.intervals[k]!;
@@ -227,10 +261,23 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       // changes only its target's lambdas and accumulators, so z is updated in place.
       const group = e.arrivals ?? [{ train: e.train!, neuron: e.neuron, pre: e.pre.slice(layout.offset[e.neuron]!, layout.offset[e.neuron]! + layout.size[e.neuron]!) }];
       const x = e.pre.slice();
+      /** Each target's states just after the arrival being undone (the next one's pre-state). */
+      const later = new Map<number, ArrayLike<number>>();
       for (let q = group.length - 1; q >= 0; q--) {
-        const a = group[q]!;
-        x.set(a.pre, layout.offset[a.neuron]!);
-        result.inputWeights[a.train]! += increment(receive(a.neuron, inputs[a.train]!.weight, inputs[a.train]!.receptor ?? 0, { pre: x, time: e.time }, z, z), a.neuron);
+        const a = group[q]!, off = layout.offset[a.neuron]!;
+        x.set(a.pre, off);
+        const via = a.train !== undefined ? inputs[a.train]! : net.synapses[a.synapse!]!;
+        const w = via.weight, r = via.receptor ?? 0;
+        const post = later.get(a.neuron) ?? e.post.subarray(off, off + layout.size[a.neuron]!);
+        later.set(a.neuron, a.pre);
+        const n = couplingOf(a.neuron, w, r, x, z, e.time) + lvJump(a.neuron, x, post, e.time) + (handedArrival.get(`${k - 1}:${q}`) ?? 0);
+        const g = increment(receive(a.neuron, w, r, { pre: x, time: e.time }, z, z), a.neuron);
+        if (a.train !== undefined) { result.inputWeights[a.train]! += g; result.inputDelays[a.train]! -= n; }
+        else {
+          result.weights[a.synapse!]! += g;
+          result.delays[a.synapse!]! -= n;
+          delayed.set(a.source!, (delayed.get(a.source!) ?? 0) + n);
+        }
       }
       flagNonFinite(z, e.time, 'input spike');
       continue;
@@ -243,11 +290,12 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     {
       const n = e.neuron, sp = special[n]!;
       let coupling = 0;
-      // Per target, its synapses from this sender (several only into several blocks) applied
-      // one after another in network order: replay their states forward, then go back through
-      // them, each with the target's state before it and the lambdas after it.
+      // Per target, its synapses from this sender without a delay (several only into several
+      // blocks) applied one after another in network order: replay their states forward, then go
+      // back through them, each with the target's state before it and the lambdas after it. A
+      // delayed synapse's arrival is an event of its own; its timing term comes back through `delayed`.
       const byTarget = new Map<number, number[]>();
-      net.synapses.forEach((s, si) => { if (s.from === n) byTarget.set(s.to, [...(byTarget.get(s.to) ?? []), si]); });
+      net.synapses.forEach((s, si) => { if (s.from === n && !((s.delay ?? 0) > 0)) byTarget.set(s.to, [...(byTarget.get(s.to) ?? []), si]); });
       for (const [m, list] of byTarget) {
         const it = ai[m]!, off = layout.offset[m]!, size = it.nStates;
         const states: Float64Array[] = [e.pre];
@@ -266,11 +314,16 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
           scratchZ.set(zAfter, off);
           const b = fill(m, at.pre, scratchZ, e.time);
           setBlock(m, b, s.weight, r);
-          coupling += it.a.receptors[r]!.coupling(b);
+          const c = it.a.receptors[r]!.coupling(b);
+          coupling += c;
+          // The one-sided delay derivative: the arrival moved to just after the spike event.
+          const after = q + 1 < list.length ? states[q + 1]!.subarray(off, off + size) : e.post.subarray(off, off + size);
+          result.delays[si]! -= c + lvJump(m, at.pre, after, e.time);
           result.weights[si]! += increment(receive(m, s.weight, r, at, scratchZ, zNew), m);
           zAfter.set(zNew.subarray(off, off + size));
         }
       }
+      coupling += delayed.get(k - 1) ?? 0;
       const it = ai[n]!;
       const b = fill(n, e.pre, zPlus, e.time);
       const v = load(it.fwd, e.pre, e.time);
@@ -283,6 +336,10 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
         b[sp.phi] = 0;
         const cause = e.cause ?? -1;
         if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + it.a.imposedNumerator!(b));
+        else if (cause >= 0 && e.causeArrival !== undefined) {
+          const key = `${cause}:${e.causeArrival}`;
+          handedArrival.set(key, (handedArrival.get(key) ?? 0) + it.a.imposedNumerator!(b));
+        }
         for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.imposedJump![j]!(b);
         it.a.paramImposed!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
       } else {

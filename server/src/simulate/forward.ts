@@ -9,6 +9,12 @@
 // spike event (`byJump`, `cause` = the event that started the instant); its spike may fire
 // others in turn. A neuron that would fire twice in one instant, or whose spike jump leaves it
 // on the fired side, stops the run with an error (never a loop).
+// Transmission delays: a synapse with delay 0 delivers within its sender's spike event (as
+// without delays); one with delay d > 0 queues an arrival at t + d, and every input spike
+// arrives at its time plus its train's delay. Arrivals at or after the duration are dropped.
+// Queued arrivals at one instant form one 'input' event, applied in order (input trains first,
+// by train, then synapses, by synapse), each on the state the previous left; the instant's
+// guards are then tested once.
 // Invariants: never throws for bad input (errors come back in `errors`, nothing simulated);
 // intervals[k] spans from events[k-1] (or 0) to events[k] (or the duration), so the dense
 // output inside an interval is smooth and its ends are the post-/pre-event states; the
@@ -32,14 +38,16 @@ export interface SimOptions {
 export interface NetEvent {
   kind: 'spike' | 'input';
   time: number;
-  /** The sender of a spike, or the target of (the first) input spike. */
+  /** The sender of a spike, or the target of (the first) arrival. */
   neuron: number;
-  /** Index of the (first) input train (inputs only). */
+  /** Index of the (first) input train, when the first arrival is an input spike. */
   train?: number;
-  /** Inputs only: every input spike arriving at this instant, applied one after another in
-   *  train order, each with its target's states just before it (one event for all of them,
-   *  so a wide input layer does not store the network state once per synapse). */
-  arrivals?: { train: number; neuron: number; pre: Float64Array }[];
+  /** Arrivals only: every arrival at this instant, applied one after another (input trains
+   *  first, then delayed synapses), each with its target's states just before it (one event
+   *  for all of them, so a wide input layer does not store the network state once per
+   *  synapse). An input spike names its `train`; a delayed spike its `synapse` and `source`,
+   *  the index in `events` of the spike that sent it. */
+  arrivals?: Arrival[];
   pre: Float64Array;
   post: Float64Array;
   /** A spike fired by a jump: its time is the instant of `cause`, not a crossing of the flow. */
@@ -47,7 +55,12 @@ export interface NetEvent {
   /** For a spike fired by a jump: the index in `events` of the spike or input event that
    *  started the instant (-1 for a spike of the initial state at t = 0). */
   cause?: number;
+  /** For a spike fired by a jump whose cause is an arrival event: the index in its
+   *  `arrivals` of the arrival whose time it has (the last one onto this neuron, else the last). */
+  causeArrival?: number;
 }
+
+export interface Arrival { train?: number; synapse?: number; source?: number; neuron: number; pre: Float64Array }
 
 export interface Interval { t0: number; t1: number; segments: DenseSegment[] }
 
@@ -152,8 +165,18 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     rtol, atol, typical: y0.map(Math.abs), floorFraction: 1e-3,
     maxStep: options.maxStep ?? duration / 50, h: (options.maxStep ?? duration / 50) / 10, maxSteps: 2_000_000,
   };
-  const arrivals = inputs.flatMap((inp, k) => inp.times.filter((tt) => tt >= 0 && tt < duration).map((time) => ({ time, train: k })))
+  // Queued arrivals, sorted by time, then input trains before synapses, then index.
+  interface Queued { time: number; train: number; synapse: number; source: number }
+  const before = (a: Queued, b: Queued): boolean => a.time < b.time || (a.time === b.time && (a.train >= 0 && b.train >= 0 ? a.train < b.train
+    : a.train >= 0 ? true : b.train >= 0 ? false : a.synapse < b.synapse));
+  const arrivals: Queued[] = inputs.flatMap((inp, k) => inp.times.map((tt) => tt + (inp.delay ?? 0))
+    .filter((tt) => tt >= 0 && tt < duration).map((time) => ({ time, train: k, synapse: -1, source: -1 })))
     .sort((a, b) => a.time - b.time || a.train - b.train);
+  const enqueue = (q: Queued): void => {
+    let lo = next, hi = arrivals.length;
+    while (lo < hi) { const mid = (lo + hi) >> 1; if (before(arrivals[mid]!, q)) lo = mid + 1; else hi = mid; }
+    arrivals.splice(lo, 0, q);
+  };
   const st = new Stepper(n + 1, rhs);
   const traj: Trajectory = { ...empty, loss: 0, lossIntegral: 0, lossSpikes: 0 };
   let cur: Interval = { t0: 0, t1: 0, segments: [] };
@@ -190,8 +213,15 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       const v = load(it, pre, t);
       it.c.jumps!.forEach((h, j) => { post[it.offset + j] = h(v); });
       // targets are other neurons (validated): their states in `post` are still the pre-spike ones,
-      // except where an earlier synapse of this spike reached another block of the same target
-      for (const s of net.synapses) if (s.from === sender) receive(s.to, s.weight, s.receptor ?? 0, post);
+      // except where an earlier synapse of this spike reached another block of the same target;
+      // a delayed synapse's arrival is queued (dropped at or after the end of the run)
+      const source = traj.events.length;
+      net.synapses.forEach((s, k) => {
+        if (s.from !== sender) return;
+        const d = s.delay ?? 0;
+        if (d === 0) receive(s.to, s.weight, s.receptor ?? 0, post);
+        else if (t + d < duration) enqueue({ time: t + d, train: -1, synapse: k, source });
+      });
       if (it.loss.perSpike && !(it.loss.firstOnly && fired.has(sender))) {
         const l = it.loss.perSpike(v);
         if (!Number.isFinite(l) && !traj.nonFinite) traj.nonFinite = { time: t, neuron: sender, quantity: 'spike-time loss', cause: 'spike' };
@@ -209,6 +239,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
    *  own spike), or that is in `initial` (on the fired side at t = 0), fires and delivers its
    *  spike; then the test is repeated. False when the run must stop. */
   const cascade = (root: number, ref: Map<number, number>, initial: Set<number>): boolean => {
+    const group = root >= 0 ? traj.events[root]!.arrivals : undefined;
     const firedNow = new Set<number>();
     for (;;) {
       const i = firing.find((j) => (initial.has(j) && !firedNow.has(j)) || jumpCrosses(dirOf(j), ref.get(j)!, guardAt(j, y)));
@@ -219,7 +250,13 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         return false;
       }
       firedNow.add(i);
-      if (!fire(i, { byJump: true, cause: root })) return false;
+      let causeArrival: number | undefined;
+      if (group) {
+        let q = group.length - 1;
+        for (let k = group.length - 1; k >= 0; k--) if (group[k]!.neuron === i) { q = k; break; }
+        causeArrival = q;
+      }
+      if (!fire(i, { byJump: true, cause: root, ...(causeArrival !== undefined ? { causeArrival } : {}) })) return false;
       const after = guardAt(i, y);
       if (!Number.isFinite(after) || onFiredSide(dirOf(i), after)) {
         errors.push(`${name} is still on the fired side of its threshold right after its spike at t = ${t} s (guard ${after}): its spike jump must leave it on the other side; stopped`);
@@ -259,12 +296,15 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     const first = arrivals[next]!;
     const group: NonNullable<NetEvent['arrivals']> = [];
     const ref = guardsNow();
-    event({ kind: 'input', time: t, neuron: inputs[first.train]!.target, train: first.train, arrivals: group }, (post) => {
-      // Every arrival at this instant, in train order, each on the state the previous ones left.
+    const targetOf = (a: Queued): number => (a.train >= 0 ? inputs[a.train]!.target : net.synapses[a.synapse]!.to);
+    event({ kind: 'input', time: t, neuron: targetOf(first), ...(first.train >= 0 ? { train: first.train } : {}), arrivals: group }, (post) => {
+      // Every arrival at this instant, in queue order, each on the state the previous ones left.
       while (next < arrivals.length && arrivals[next]!.time === first.time) {
-        const a = arrivals[next++]!, target = inputs[a.train]!.target, off = layout.offset[target]!;
-        group.push({ train: a.train, neuron: target, pre: post.slice(off, off + layout.size[target]!) });
-        receive(target, inputs[a.train]!.weight, inputs[a.train]!.receptor ?? 0, post);
+        const a = arrivals[next++]!, target = targetOf(a), off = layout.offset[target]!;
+        const pre = post.slice(off, off + layout.size[target]!);
+        group.push(a.train >= 0 ? { train: a.train, neuron: target, pre } : { synapse: a.synapse, source: a.source, neuron: target, pre });
+        const via = a.train >= 0 ? inputs[a.train]! : net.synapses[a.synapse]!;
+        receive(target, via.weight, via.receptor ?? 0, post);
       }
     });
     const due = initial;

@@ -23,10 +23,12 @@ export interface NetworkNeuron {
   /** Initial state values (SI) overriding the model's. */
   initial?: Readonly<Record<string, number>>;
 }
-/** `receptor`: the index of the target's incoming block in `model.receptors` (default 0). */
-export interface Synapse { from: number; to: number; weight: number; receptor?: number }
-/** External spikes delivered to one of a neuron's incoming blocks (`receptor`, default 0) with one weight. */
-export interface InputTrain { target: number; times: readonly number[]; weight: number; receptor?: number }
+/** `receptor`: the index of the target's incoming block in `model.receptors` (default 0);
+ *  `delay`: transmission delay in seconds (>= 0, default 0): a spike at t arrives at t + delay. */
+export interface Synapse { from: number; to: number; weight: number; receptor?: number; delay?: number }
+/** External spikes delivered to one of a neuron's incoming blocks (`receptor`, default 0) with one weight,
+ *  each `delay` seconds (>= 0, default 0) after its time. */
+export interface InputTrain { target: number; times: readonly number[]; weight: number; receptor?: number; delay?: number }
 export interface Network { neurons: readonly NetworkNeuron[]; synapses: readonly Synapse[] }
 
 /** L = integral sum_i l_V,i(x_i, t) dt + sum over spikes k of neuron i of l_p,i(t_k). */
@@ -92,6 +94,7 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     if (!from.model.fire) errors.push(`synapse ${k}: ${from.model.name} never fires`);
     const bad = receptorProblem(to.model, s.receptor);
     if (bad) errors.push(`synapse ${k}: ${bad}`);
+    if (s.delay !== undefined && !(s.delay >= 0 && Number.isFinite(s.delay))) errors.push(`synapse ${k}: the delay must be a finite time >= 0`);
     const key = `${s.from}->${s.to}:${s.receptor ?? 0}`;
     if (pairs.has(key)) errors.push(`synapse ${k}: ${key} is already connected`);
     pairs.add(key);
@@ -103,6 +106,7 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
       const bad = receptorProblem(to.model, inp.receptor);
       if (bad) errors.push(`input ${k}: ${bad}`);
     }
+    if (inp.delay !== undefined && !(inp.delay >= 0 && Number.isFinite(inp.delay))) errors.push(`input ${k}: the delay must be a finite time >= 0`);
   });
   for (const term of loss?.terms ?? []) {
     if (term.neuron < 0 || term.neuron >= nN) errors.push(`loss term: neuron ${term.neuron} out of range`);

@@ -82,8 +82,8 @@ export interface NeuronDecl extends Documented {
   range: Range; keywordRange: Range; bodyRange?: Range;
 }
 export interface TimestepDecl { kind: 'timestep'; value?: Expr; range: Range; keywordRange: Range }
-/** `connect A -> B (via W)?`: `via` names the receiving block by its weight (`viaRange`: the word `via`). */
-export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; via?: Ident; viaRange?: Range; range: Range; keywordRange: Range }
+/** `connect A -> B (via W)? (delay D)?`: `via` names the receiving block by its weight (`viaRange`: the word `via`); `delayRange` is the word `delay` (a word of this place only), `delay` its value. */
+export interface ConnectDecl { kind: 'connect'; from?: Ident; to?: Ident; via?: Ident; viaRange?: Range; delay?: Expr; delayRange?: Range; range: Range; keywordRange: Range }
 
 export type TopLevel = NeuronDecl | TimestepDecl | ConnectDecl;
 

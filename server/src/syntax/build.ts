@@ -331,8 +331,9 @@ export function buildFile(cst: CstNode | undefined, text: string): { file: A.Sou
     } else if (inner.name === 'connectDecl') {
       const kw = tok(ch, 'Kw_connect');
       const from = ident(tok(ch, 'from')), to = ident(tok(ch, 'to')), via = ident(tok(ch, 'via')), viaWord = tok(ch, 'viaWord');
+      const word = tok(ch, 'delayWord'), delay = rootExpr(node(ch, 'delay'));
       items.push({ kind: 'connect', ...(from ? { from } : {}), ...(to ? { to } : {}), ...(via ? { via } : {}), ...(viaWord ? { viaRange: tokRange(viaWord) } : {}),
-        range, keywordRange: kw ? tokRange(kw) : range });
+        ...(word ? { delayRange: tokRange(word) } : {}), ...(delay ? { delay } : {}), range, keywordRange: kw ? tokRange(kw) : range });
     }
   }
   const found = limitErrors;

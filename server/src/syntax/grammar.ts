@@ -14,7 +14,9 @@
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
 //   jump      := NAME ':=' expr
-//   connect   := 'connect' NAME '->' NAME ('via' NAME)?   ('via' is a word, not a keyword: names may still be 'via')
+//   connect   := 'connect' NAME '->' NAME ('via' NAME)? ('delay' expr)?   ('via' and 'delay' are words
+//                of this place only, not keywords: names elsewhere, so v0 files that call something
+//                `via` or `delay` still read)
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
 //   unary     := ('-'|'+') unary | power          power := primary ('^' unary)?
 //   primary   := NUMBER (unit | BAREUNIT)? | NAME ('(' expr (',' expr)* ')')? | 't' | '(' expr ')'
@@ -118,9 +120,13 @@ export class SaltusParser extends CstParser {
     this.CONSUME1(T.Identifier, { LABEL: 'from' });
     this.CONSUME(T.Arrow);
     this.CONSUME2(T.Identifier, { LABEL: 'to' });
-    this.OPTION({ GATE: () => this.LA(1).image === 'via', DEF: () => {
+    this.OPTION1({ GATE: () => this.LA(1).tokenType === T.Identifier && this.LA(1).image === 'via', DEF: () => {
       this.CONSUME3(T.Identifier, { LABEL: 'viaWord' });
       this.CONSUME4(T.Identifier, { LABEL: 'via' });
+    } });
+    this.OPTION2({ GATE: () => this.LA(1).tokenType === T.Identifier && this.LA(1).image === 'delay', DEF: () => {
+      this.CONSUME5(T.Identifier, { LABEL: 'delayWord' });
+      this.SUBRULE(this.expr, { LABEL: 'delay' });
     } });
   });
 

@@ -3,8 +3,7 @@
 //   become one BareUnit token, which the grammar reads as the number's unit, and one error
 //   says that units go in brackets, with a fix (`5 [ms]`);
 // - a construct planned for the next version of the language but not in it yet (`refractory
-//   2 [ms]`, `quiet for t_ref { ... }` in a neuron; `delay` after a connection, also after
-//   its `via NAME`): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
+//   2 [ms]`, `quiet for t_ref { ... }` in a neuron): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
 //   left out, with one 'unsupported' error saying it is not in the language (yet).
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
 // range lies inside the text.
@@ -19,7 +18,6 @@ const PLANNED_MEMBERS: Readonly<Record<string, string>> = {
   quiet: 'quiet (refractory) periods',
 };
 const PLANNED_CONNECT: Readonly<Record<string, string>> = {
-  delay: 'connection delays',
 };
 /** Tokens after which an identifier continues an expression rather than starting a member. */
 const CONTINUES = new Set(['Plus', 'Minus', 'Star', 'Slash', 'Caret', 'Comma', 'LParen', 'Equals', 'Assign', 'Kw_crosses', 'Kw_when', 'Kw_timestep', 'Compare', 'Arrow', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_incoming', 'Kw_neuron', 'Kw_connect']);

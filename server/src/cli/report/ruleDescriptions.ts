@@ -40,4 +40,5 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'stray-note': 'A #~ note that documents no declaration.',
   'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
   'missing-via': 'A connection into a neuron with several incoming blocks does not say which one (via NAME).',
+  'negative-delay': 'A connection delay below 0: spikes cannot arrive before they are sent.',
 };

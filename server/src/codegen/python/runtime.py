@@ -9,6 +9,13 @@
 # Array operations go through the `X` dialect object defined above this text by the
 # generator (NumPy, or PyTorch tensors on any device and dtype), so one runtime serves both.
 # Nothing here allocates per neuron; loops run over steps, events and sub-steps.
+# Transmission delays (a projection's "delays"[to][from], docs/network-step.md item 6): a
+# spike of neuron j at s is queued per trial for each receiving neuron at s + delays[i][j]
+# (neurons with equal delays share one arrival; at or after the duration: dropped); such an
+# arrival advances and jumps its own neurons only, one trial at a time. Its time sensitivity
+# per receiving neuron is dL/d(delay) of that synapse.
+
+import heapq
 
 GAUSS_NODES = (0.5 - 15 ** 0.5 / 10, 0.5, 0.5 + 15 ** 0.5 / 10)
 GAUSS_WEIGHTS = (5 / 18, 8 / 18, 5 / 18)
@@ -120,6 +127,8 @@ class _Live:
         self.jfired = X.zeros_bool((B, self.n))
         self.jinit = X.zeros_bool((B, self.n))
         self.jlast = X.full_int((B,), -1)
+        # the last arrival with targets (a projection with delays) onto each neuron at the instant
+        self.jlast_n = X.full_int((B, self.n), -1)
 
     # the step map in m sub-steps over [a, a + h], per element
     def apply(self, x, a, h):
@@ -304,7 +313,7 @@ def forward(net, dt, max_spikes=100000):
             items = []
             seq = 0
             for j, pr in enumerate(net.projections):
-                if pr["from"] in net.inputs:
+                if pr["from"] in net.inputs and "delays" not in pr:
                     for (t, i) in trial["inputs"].get(pr["from"], []):
                         if pr["to"] == L.pop.name:
                             items.append((float(t), seq, j, int(i)))
@@ -326,6 +335,44 @@ def forward(net, dt, max_spikes=100000):
         tim, _, _, ptr = pending[L.index]
         K = tim.shape[1]
         return X.where(ptr < K, X.gather_rows(tim, X.clamp_int(ptr, K - 1)), X.full((B,), float("inf")))
+
+    # arrivals of projections with delays: per trial a heap of (time, seq, projection, source, cause, targets)
+    delayed = [[] for _ in range(B)]
+    dseq = [0]
+
+    def schedule(b, j, src, s, cause):
+        pr = net.projections[j]
+        same = pr["from"] == pr["to"]
+        groups = {}
+        for n, row in enumerate(pr["delays"]):
+            if same and n == src:
+                continue
+            groups.setdefault(float(row[src]), []).append(n)
+        for d in sorted(groups):
+            if s + d < T:
+                heapq.heappush(delayed[b], (s + d, dseq[0], j, src, cause, tuple(groups[d])))
+                dseq[0] += 1
+
+    for j, pr in enumerate(net.projections):
+        if pr["from"] in net.inputs and "delays" in pr:
+            for b, trial in enumerate(net.trials):
+                for (t, i) in trial["inputs"].get(pr["from"], []):
+                    schedule(b, j, int(i), float(t), -1)
+
+    def next_delayed(L):
+        """The earliest queued arrival with a delay into L, per trial (inf when none)."""
+        out = X.full((B,), float("inf"))
+        for b in range(B):
+            best = min([it[0] for it in delayed[b] if net.projections[it[2]]["to"] == L.pop.name] + [float("inf")])
+            out[b] = best
+        return out
+
+    def next_any_delayed():
+        out = X.full((B,), float("inf"))
+        for b in range(B):
+            if delayed[b]:
+                out[b] = delayed[b][0][0]
+        return out
 
     run = Run()
     run.net, run.dt, run.steps, run.lives, run.records = net, dt, steps, lives, []
@@ -366,7 +413,11 @@ def forward(net, dt, max_spikes=100000):
         if bool(X.any(spike_count > max_spikes)):
             raise GridError("more than %d spikes in a trial: stopped (check the weights' units)" % max_spikes)
         for j in L.outbound:
-            _deliver(run, lives, names, net, j, rows, n, s, r, step, advance)
+            if "delays" in net.projections[j]:
+                for b, t, i in zip(X.tolist(rows), X.tolist(s), X.tolist(n)):
+                    schedule(b, j, i, t, r)
+            else:
+                _deliver(run, lives, names, net, j, rows, n, s, r, step, advance)
 
     def advance(L, rows, cols, to):
         """Neurons (rows, cols) of L to time `to` (per row), integrating the loss on the way."""
@@ -409,15 +460,16 @@ def forward(net, dt, max_spikes=100000):
         active = X.ones_bool((B,))
         while bool(X.any(active)):
             nxt = {L.index: next_input(L) for L in lives}
+            win = {L.index: X.minimum(nxt[L.index], next_delayed(L)) for L in lives}
             tin = X.full((B,), float("inf"))
-            for v in nxt.values():
+            for v in win.values():
                 tin = X.minimum(tin, v)
             tin = X.where(tin < t_end, tin, X.full((B,), float("inf")))
             best = X.full((B,), float("inf"))
             best_pop = X.full_int((B,), -1)
             best_n = X.full_int((B,), -1)
             for L in firing:
-                e = X.minimum(nxt[L.index], X.full((B,), t_end))
+                e = X.minimum(win[L.index], X.full((B,), t_end))
                 s = _crossing_times(L, e)
                 s = X.where(active[:, None], s, X.full(s.shape, float("inf")))
                 m, idx = X.min_last(s)
@@ -452,7 +504,7 @@ def forward(net, dt, max_spikes=100000):
                 if bool(X.any(L.jfired[rows, n])):
                     raise GridError("%s: a neuron is carried across its threshold a second time at one instant by spikes fired at that instant: a loop of spikes fired by jumps; stopped" % L.pop.name)
                 L.jfired[rows, n] = True
-                emit(L, rows, n, run.inst[rows], step, L.jlast[rows])
+                emit(L, rows, n, run.inst[rows], step, X.maximum(L.jlast[rows], L.jlast_n[rows, n]))
             for L in firing:
                 rows = X.nonzero1(spiking & (best_pop == L.index))
                 if len(rows) == 0:
@@ -477,6 +529,11 @@ def forward(net, dt, max_spikes=100000):
                 for jj in sorted(set(X.tolist(j))):
                     sel = j == jj
                     _arrive(run, lives, names, net, jj, rows[sel], i[sel], t[sel], -1, step, advance)
+            # then an arrival with a delay, one trial at a time (an input arrival at the same instant first)
+            tdel = next_any_delayed()
+            for b in X.tolist(X.nonzero1(arriving & (tdel == tin))):
+                t, _, j, src, cause, targets = heapq.heappop(delayed[b])
+                _arrive_targets(run, lives, names, net, j, b, src, t, cause, step, advance, targets)
         for L in lives:
             advance(L, all_rows, None, X.full((B,), t_end))
             L.tau[:] = t_end
@@ -538,6 +595,7 @@ def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
             M.jfired[rn] = False
             M.jinit[rn] = False
             M.jlast[rn] = -1
+            M.jlast_n[rn] = -1
     if L.model.HAS_GUARD:
         untouched = L.jref[rows][:, 0] != L.jref[rows][:, 0]
         if bool(X.any(untouched)):
@@ -553,6 +611,40 @@ def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
         post = [X.where(selfmask, a, b) for a, b in zip(x_pre, post)]
     _put(L.x, rows, post)
     L.start[rows] = r
+
+
+def _arrive_targets(run, lives, names, net, j, b, src, t, cause, step, advance, targets):
+    """An arrival with a delay on projection j in trial b from sender `src` at time t, onto the
+    neurons `targets` of the receiver only."""
+    pr = net.projections[j]
+    L = lives[names.index(pr["to"])]
+    k = len(targets)
+    rows = X.array_int([b])
+    R = X.array_int([b] * k)
+    C = X.array_int(list(targets))
+    tk = X.full((k,), t)
+    for n in targets:  # one neuron at a time: the loss integral of a trial is summed per call
+        advance(L, rows, X.array_int([n]), X.full((1,), t))
+    x_pre = _take(L.x, rows)
+    r = len(run.records)
+    if run.inst[b] != t:
+        run.inst[rows] = t
+        for M in run.firing:
+            M.jref[rows] = float("nan")
+            M.jfired[rows] = False
+            M.jinit[rows] = False
+            M.jlast[rows] = -1
+            M.jlast_n[rows] = -1
+    if L.model.HAS_GUARD:
+        if L.jref[b, 0] != L.jref[b, 0]:
+            L.jref[rows] = L.model.guard(x_pre, L.pop.params, X.full((1, 1), t))[0] + X.zeros_like(L.jref[rows])
+        L.jlast_n[R, C] = r
+    run.records.append(Record("arrival", step, rows, X.full((1,), t), L.index, projection=j, source=X.array_int([src]), cause=cause,
+                              x_pre=x_pre, starts=X.copy(L.start[rows]) if L.needs_starts else None, targets=C))
+    xs = [v[R, C] for v in L.x]
+    post = list(incoming_kernels(L.model, pr)[0](xs, L.pop.params, tk, pr["weights"][C, src]))
+    _put(L.x, R, post, C)
+    L.start[R, C] = r
 
 
 def _deliver(run, lives, names, net, j, rows, n, s, cause, step, advance):
@@ -574,7 +666,10 @@ def backward(run, spike_time_grad=None):
     dt = run.dt
     records = run.records
     Tsens = [X.zeros_like(rec.time) for rec in records]
+    # per arrival with a delay: its time sensitivity per receiving neuron (the delay gradients)
+    Tn = {}
     gW = [X.zeros_like(pr["weights"]) for pr in net.projections]
+    gD = [X.zeros_like(pr["weights"]) for pr in net.projections]
     lam = {L.index: [X.full((B, L.n), 0.0) for _ in range(L.S)] for L in lives}
     cur = {L.index: X.full((B, L.n), 0.0) for L in lives}
     grads = {L.index: [X.full((B, L.n), 0.0) for _ in L.model.GRAD_PARAMS] for L in lives}
@@ -609,7 +704,10 @@ def backward(run, spike_time_grad=None):
                 xp = [v[slot, cc] for v in rec.x_pre]
                 w = pr["weights"][cc, rec.source[slot]]
                 vals = list(incoming_kernels(L.model, pr)[0](xp, L.pop.params, rec.time[slot], w))
-                if pr["from"] == pr["to"]:
+                if getattr(rec, "targets", None) is not None:
+                    hit = X.array_int([1 if c in set(X.tolist(rec.targets)) else 0 for c in X.tolist(cc)]) == 1
+                    vals = [X.where(hit, b, a) for a, b in zip(xp, vals)]
+                elif pr["from"] == pr["to"]:
                     same = cc == rec.source[slot]
                     vals = [X.where(same, a, b) for a, b in zip(xp, vals)]
             for i in range(L.S):
@@ -639,8 +737,9 @@ def backward(run, spike_time_grad=None):
             s = s + lam_[i] * f[i]
         return s
 
-    def add_T(ref, rows, value):
-        """T[ref] += value for the elements whose ref >= 0 (ref, rows, value aligned)."""
+    def add_T(ref, rows, value, cols=None):
+        """T[ref] += value for the elements whose ref >= 0 (ref, rows, value aligned; cols: their
+        neurons, kept per neuron for an arrival with a delay)."""
         for r in sorted(set(X.tolist(ref))):
             if r < 0:
                 continue
@@ -648,6 +747,10 @@ def backward(run, spike_time_grad=None):
             rec = records[r]
             slot = X.search(rec.trials, rows[sel])
             Tsens[r] = X.index_add(Tsens[r], slot, value[sel])
+            if cols is not None and getattr(rec, "targets", None) is not None:
+                per = Tn.setdefault(r, {})
+                for c, v in zip(X.tolist(cols[sel]), X.tolist(value[sel])):
+                    per[c] = per.get(c, 0.0) + v
 
     def segment_back(L, rows, cols, a, ref, step):
         """lambda(b-) -> lambda(a+) across segments [a, cur] of (rows, cols) started at ref."""
@@ -679,7 +782,7 @@ def backward(run, spike_time_grad=None):
                 start_t[idx] = -flow_dot(L, xp, a[idx], [v[idx] for v in lam_start])
         for q in range(len(g)):
             grads[L.index][q][rows, cols] = grads[L.index][q][rows, cols] + g[q]
-        add_T(ref, rows, start_t)
+        add_T(ref, rows, start_t, cols)
         _put(lam[L.index], rows, lam_start, cols)
         cur[L.index][rows, cols] = a
 
@@ -713,7 +816,36 @@ def backward(run, spike_time_grad=None):
             rec = records[e]
             L = lives[rec.pop]
             rows = rec.trials
-            if rec.kind == "arrival":
+            if rec.kind == "arrival" and getattr(rec, "targets", None) is not None:
+                # an arrival with a delay: one trial, its own neurons only
+                pr = net.projections[rec.projection]
+                C = rec.targets
+                k = len(C)
+                R = X.repeat_rows(rows, k)
+                tk = X.repeat_rows(rec.time, k)
+                src = X.tolist(rec.source)[0]
+                segment_back(L, R, C, tk, X.full_int(R.shape, e), step)
+                lam_post = [v[R, C] for v in lam[L.index]]
+                xp = [X.flatten(v)[C] for v in rec.x_pre]
+                out = incoming_kernels(L.model, pr)[1](xp, L.pop.params, tk, pr["weights"][C, src], lam_post)
+                S = L.S
+                G = len(L.model.GRAD_PARAMS)
+                for q in range(G):
+                    grads[L.index][q][R, C] = grads[L.index][q][R, C] + out[S + 1 + q]
+                gW[rec.projection][C, src] = gW[rec.projection][C, src] + out[S + 1 + G]
+                lx = list(out[:S])
+                _put(lam[L.index], R, lx, C)
+                starts = X.flatten(rec.starts)[C] if rec.starts is not None else X.full_int((k,), -1)
+                et, _ = end_term(L, R, C, tk, xp, starts, step, lx, False)
+                per = out[S] + et
+                Tsens[e] = Tsens[e] + X.sum(per)
+                later = Tn.get(e, {})
+                gD[rec.projection][C, src] = gD[rec.projection][C, src] + per + X.array([later.get(c, 0.0) for c in X.tolist(C)])
+                if rec.cause >= 0:
+                    slot = X.search(records[rec.cause].trials, rows)
+                    Tsens[rec.cause] = X.index_add(Tsens[rec.cause], slot, Tsens[e])
+                event_times.append(("arrival", e, Tsens[e]))
+            elif rec.kind == "arrival":
                 pr = net.projections[rec.projection]
                 nrow = len(rows)
                 R = X.repeat_rows(rows, L.n)
@@ -766,7 +898,7 @@ def backward(run, spike_time_grad=None):
                 D = Tsens[e] + et
                 if rec.by_jump is not None:
                     # fired by a jump: its time is its arrival's; D goes there, no phi
-                    add_T(rec.by_jump, rows, D)
+                    add_T(rec.by_jump, rows, D, n)
                     _put(lam[L.index], rows, mu, n)
                     e -= 1
                     continue
@@ -786,7 +918,7 @@ def backward(run, spike_time_grad=None):
     params = {}
     for L in lives:
         params[L.pop.name] = {p: float(X.sum(grads[L.index][q])) for q, p in enumerate(L.model.GRAD_PARAMS)}
-    return {"loss": run.loss, "weights": gW, "params": params, "event_times": event_times, "records": records}
+    return {"loss": run.loss, "weights": gW, "delays": gD, "params": params, "event_times": event_times, "records": records}
 
 
 def _receptor(p, pops, models, k):
@@ -831,8 +963,13 @@ def load_network(obj, models):
         size = pops[loss["population"]]["size"]
         tgt = loss["target"]
         loss["target"] = [float(tgt)] * size if not isinstance(tgt, list) else [float(v) for v in tgt]
-    projections = [{"from": p["from"], "to": p["to"], "weights": p["weights"], "receptor": _receptor(p, pops, models, k)}
-                   for k, p in enumerate(obj["projections"])]
+    projections = []
+    for k, p in enumerate(obj["projections"]):
+        pr = {"from": p["from"], "to": p["to"], "weights": p["weights"], "receptor": _receptor(p, pops, models, k)}
+        if "delay_s" in p:  # one delay for the projection, or delays[to][from] shaped like the weights
+            d = p["delay_s"]
+            pr["delays"] = [[float(v) for v in row] for row in d] if isinstance(d, list) else [[float(d)] * len(row) for row in p["weights"]]
+        projections.append(pr)
     return Network(obj["duration_s"], inputs, populations, projections, trials, loss)
 
 
@@ -841,6 +978,8 @@ def report(run, grad):
     out = {"loss": run.loss, "spikes": {k: [[t, i] for t, i in v] for k, v in run.spikes[0].items()},
            "weights": [X.tolist(w) for w in grad["weights"]],
            "params": {"%s.%s" % (pop, name): v for pop, ps in grad["params"].items() for name, v in ps.items()}}
+    if any("delays" in pr for pr in run.net.projections):
+        out["delays"] = [X.tolist(d) for d in grad["delays"]]
     if len(run.spikes) > 1:
         out["trials"] = len(run.spikes)
         out["spikes_per_trial"] = [{k: [[t, i] for t, i in v] for k, v in s.items()} for s in run.spikes]

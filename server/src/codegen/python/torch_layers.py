@@ -512,4 +512,8 @@ class GridNetwork(torch.nn.Module):
         if len(run.spikes) > 1:
             out["trials"] = len(run.spikes)
             out["spikes_per_trial"] = [{k: [[t, i] for t, i in v] for k, v in s.items()} for s in run.spikes]
+        last = getattr(self, "last_gradient", None)
+        if last is not None and any("delays" in pr for pr in run.net.projections):
+            # transmission delays (delay_s) are fixed values here: their gradient is reported, not trained
+            out["delays"] = [d.tolist() for d in last["delays"]]
         return out
