@@ -42,6 +42,9 @@ export const DiagnosticCodes = [
   'quoted-docstring',
   'stray-note',
   'surrogate-without-fire',
+  'quiet-without-fire',
+  'negative-quiet-period',
+  'fired-side-after-quiet',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

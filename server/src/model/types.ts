@@ -75,6 +75,19 @@ export interface SurrogateInfo {
   decl: A.SurrogateDecl;
 }
 
+/**
+ * `quiet for DURATION { FLOWS }` (docs/language.md "Quiet periods"): for `duration` seconds
+ * after each spike the listed flows replace the normal ones and the neuron cannot fire.
+ */
+export interface QuietInfo {
+  /** The duration, SI seconds, an expression of parameters only (lets inlined). */
+  duration: Sym;
+  /** dX/dt during the quiet period for the listed states (others keep their normal flow). */
+  flows: Map<string, Sym>;
+  flowDecls: Map<string, A.FlowEq>;
+  decl: A.QuietBlock;
+}
+
 export interface ResolvedNeuron {
   name: string;
   doc?: string;
@@ -90,6 +103,7 @@ export interface ResolvedNeuron {
   fire?: FireInfo;
   incoming?: IncomingInfo;
   surrogate?: SurrogateInfo;
+  quiet?: QuietInfo;
   wellFormed: boolean;
 }
 

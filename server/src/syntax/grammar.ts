@@ -13,6 +13,7 @@
 //                (COMPARE, `V > V_th`, is not the language: build.ts reports it with a fix)
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
+//   quiet     := 'quiet' 'for' expr '{' flow* '}'   (`quiet`, `for`: names read as words here only)
 //   jump      := NAME ':=' expr
 //   connect   := 'connect' NAME '->' NAME
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
@@ -48,7 +49,7 @@ const messages: IParserErrorMessageProvider = {
 
 const RULE_WHAT: Record<string, string> = {
   topLevel: "a 'timestep', 'neuron' or 'connect' declaration",
-  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming', 'surrogate')",
+  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming', 'surrogate', 'quiet for')",
   primary: 'a value: a number, a name, t or a parenthesised expression',
   direction: "a crossing direction: 'up', 'down' or 'either'",
   unaryExpr: 'a value',
@@ -133,6 +134,8 @@ export class SaltusParser extends CstParser {
       { ALT: () => this.SUBRULE(this.fireBlock) },
       { ALT: () => this.SUBRULE(this.incomingBlock) },
       { ALT: () => this.SUBRULE(this.surrogateDecl) },
+      // `quiet for`: two names that are words only here, so a state named `quiet` stays valid
+      { GATE: () => this.LA(1).image === 'quiet' && this.LA(2).image === 'for', ALT: () => this.SUBRULE(this.quietBlock) },
       { ALT: () => this.SUBRULE(this.jump) },
     ]);
   });
@@ -219,6 +222,15 @@ export class SaltusParser extends CstParser {
         this.CONSUME2(T.Identifier, { LABEL: 'detached' });
       });
     });
+  });
+
+  private quietBlock = this.RULE('quietBlock', () => {
+    this.CONSUME1(T.Identifier, { LABEL: 'quietWord' });
+    this.CONSUME2(T.Identifier, { LABEL: 'forWord' });
+    this.SUBRULE(this.expr);
+    this.CONSUME(T.LCurly);
+    this.MANY(() => this.SUBRULE(this.flowEq));
+    this.CONSUME(T.RCurly);
   });
 
   private jumpBlock = this.RULE('jumpBlock', () => {

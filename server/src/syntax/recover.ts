@@ -2,10 +2,11 @@
 // - a unit written without brackets after a number (`param tau = 5 ms`): the unit's tokens
 //   become one BareUnit token, which the grammar reads as the number's unit, and one error
 //   says that units go in brackets, with a fix (`5 [ms]`);
-// - a construct planned for the next version of the language but not in it yet (`refractory
-//   2 [ms]`, `quiet for t_ref { ... }` in a neuron; `via`, `delay` after a
-//   connection): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
-//   left out, with one 'unsupported' error saying it is not in the language (yet).
+// - a construct planned for the next version of the language but not in it yet (`via`,
+//   `delay` after a connection), or a word of no construct that another one replaces
+//   (`refractory 2 [ms]` in a neuron: the language writes `quiet for DURATION { FLOWS }`):
+//   its tokens (to the end of the line, and through a `{ ... }` opened on it) are left out,
+//   with one 'unsupported' error saying what to write instead.
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
 // range lies inside the text.
 import { createTokenInstance, type IToken } from 'chevrotain';
@@ -13,10 +14,9 @@ import type * as A from './ast';
 import { BareUnit } from './tokens';
 import { parseUnit } from '../units/unitParse';
 
-/** Words that open a construct planned for the next language version, and what it is. */
+/** Words that open a member the language writes otherwise, and the message that says how. */
 const PLANNED_MEMBERS: Readonly<Record<string, string>> = {
-  refractory: 'refractory periods',
-  quiet: 'quiet (refractory) periods',
+  refractory: "'refractory' is not in the language: a refractory period is written 'quiet for DURATION { dV/dt = 0 }' (the flows listed replace the normal ones for DURATION after each spike, and the neuron cannot fire); this line is left out of the check",
 };
 const PLANNED_CONNECT: Readonly<Record<string, string>> = {
   via: "connections 'via' one of several incoming blocks",
@@ -45,9 +45,9 @@ export function recoverTokens(tokens: readonly IToken[], text: string): Recovere
         && out[out.length - 2]?.tokenType.name === 'Arrow' && sameLine(end(prev), t.startOffset);
       if (member || connect) {
         const last = plannedExtent(tokens, i, sameLine);
-        const what = member ? PLANNED_MEMBERS[t.image]! : PLANNED_CONNECT[t.image]!;
         errors.push({ code: 'unsupported', range: { start: t.startOffset, end: end(tokens[last]!) },
-          message: `'${t.image}' is not in the language (yet): ${what} are planned for its next version; this ${member ? 'line is' : 'part is'} left out of the check` });
+          message: member ? PLANNED_MEMBERS[t.image]!
+            : `'${t.image}' is not in the language (yet): ${PLANNED_CONNECT[t.image]!} are planned for its next version; this part is left out of the check` });
         i = last;
         continue;
       }

@@ -39,4 +39,7 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'quoted-docstring': 'A quoted docstring is the old form of documentation; write it as a #~ note (saltus migrate rewrites files).',
   'stray-note': 'A #~ note that documents no declaration.',
   'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
+  'quiet-without-fire': 'A quiet period in a neuron without a fire block: nothing ever starts it.',
+  'negative-quiet-period': 'The duration of a quiet period is negative (0 means no quiet period).',
+  'fired-side-after-quiet': 'The quiet period leaves the neuron on the side it fires from: it does not fire when the period ends, only at its next crossing.',
 };

@@ -1,0 +1,125 @@
+// Quiet (refractory) periods, v1 (docs/language.md "Quiet periods"): syntax and recovery,
+// resolution, units, diagnostics with their codes, and the step analysis of the quiet mode.
+// Sources: the syntax and the corner-case rules are the project's own language reference
+// (docs/language.md, v1); the step figures are checked against the closed-form propagator of
+// the held flow (dV/dt = 0: P = 1 exactly) and of the unchanged decay (exp(-dt/tau)).
+import { describe, expect, it } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { parse } from '../server/src/syntax/parse';
+import { analyseStep } from '../server/src/step/analyse';
+import { stepReportJson, stepReportText } from '../server/src/step/report';
+
+export const QUIET_LIF = `timestep 0.1 [ms]
+neuron Lif {
+  param tau_m = 20 [ms]
+  param tau_s = 5 [ms]
+  param theta = 1
+  param t_ref = 2 [ms] trainable
+  state V = 0
+  state I = 0
+  dV/dt = (I - V) / tau_m
+  dI/dt = -I / tau_s
+  fire when V crosses theta up { V := 0 }
+  quiet for t_ref { dV/dt = 0 }
+  incoming w { I := I + w }
+}
+`;
+const QUIET_LINE = 'quiet for t_ref { dV/dt = 0 }';
+const withQuiet = (line: string): string => QUIET_LIF.replace(QUIET_LINE, line);
+const found = (text: string) => analyse(text).diagnostics.filter((d) => d.severity !== 'hint')
+  .map((d) => ({ code: d.code, severity: d.severity, at: text.slice(d.range.start, d.range.end), message: d.message }));
+
+describe('syntax: quiet for DURATION { FLOWS }', () => {
+  it('parses into a quiet member with its duration, flows and ranges', () => {
+    const { file, errors } = parse(QUIET_LIF);
+    expect(errors).toEqual([]);
+    const n = file.items.find((i) => i.kind === 'neuron')!;
+    const q = n.kind === 'neuron' ? n.members.find((m) => m.kind === 'quiet') : undefined;
+    expect(q?.kind).toBe('quiet');
+    if (q?.kind !== 'quiet') return;
+    expect(QUIET_LIF.slice(q.keywordRange.start, q.keywordRange.end)).toBe('quiet');
+    expect(QUIET_LIF.slice(q.forRange!.start, q.forRange!.end)).toBe('for');
+    expect(QUIET_LIF.slice(q.duration!.range.start, q.duration!.range.end)).toBe('t_ref');
+    expect(q.flows.map((f) => QUIET_LIF.slice(f.range.start, f.range.end))).toEqual(['dV/dt = 0']);
+    expect(QUIET_LIF.slice(q.range.start, q.range.end)).toBe(QUIET_LINE);
+  });
+
+  it('the words stay names elsewhere: a state named quiet, a param named for', () => {
+    const text = 'neuron A {\n  param for = 1 [ms]\n  state quiet = 0\n  state V = 0\n  dV/dt = -V / for + quiet / 1 [ms]\n  fire when V crosses 1 up { V := 0  quiet := quiet + 1 }\n  quiet for for { dV/dt = 0 }\n}\n';
+    expect(found(text).filter((d) => d.severity === 'error')).toEqual([]);
+    expect(analyse(text).model.neurons[0]!.quiet).toBeDefined();
+  });
+
+  it('recovers from a broken block: the next member still parses', () => {
+    const text = withQuiet('quiet for t_ref { dV/dt = }');
+    const a = analyse(text);
+    expect(a.diagnostics.filter((d) => d.code === 'syntax-error').length).toBeGreaterThan(0);
+    expect(a.model.neurons[0]!.incoming?.weight).toBe('w');
+  });
+});
+
+describe('resolution, units and diagnostics (codes from server/src/base/diagnostic.ts)', () => {
+  it('a clean quiet period: the duration is the parameter, the listed flow replaces dV/dt only', () => {
+    expect(found(QUIET_LIF)).toEqual([]);
+    const n = analyse(QUIET_LIF).model.neurons[0]!;
+    expect(n.wellFormed).toBe(true);
+    expect(n.quiet?.duration).toEqual({ k: 'sym', name: 't_ref' });
+    expect([...n.quiet!.flows.keys()]).toEqual(['V']);
+  });
+
+  const cases: [string, string, { code: string; at: string; message?: RegExp }[]][] = [
+    ['a duration without a unit', 'quiet for 2 { dV/dt = 0 }', [{ code: 'unit-mismatch', at: '2', message: /must be a time, e.g. 2 \[ms\]; this one is dimensionless/ }]],
+    ['a duration in mV', 'quiet for 2 [mV] { dV/dt = 0 }', [{ code: 'unit-mismatch', at: '2 [mV]' }]],
+    ['a negative duration', 'quiet for -1 [ms] { dV/dt = 0 }', [{ code: 'negative-quiet-period', at: '-1 [ms]', message: /lasts -1 ms/ }]],
+    ['a duration from a state', 'quiet for V * 1 [ms] { dV/dt = 0 }', [{ code: 'unsupported', at: 'V' }]],
+    ['a duration from t', 'quiet for t { dV/dt = 0 }', [{ code: 'unsupported', at: 't' }]],
+    ['a flow of an unknown state', 'quiet for t_ref { dX/dt = 0 }', [{ code: 'unknown-name', at: 'X' }]],
+    ['a flow of the wrong unit', 'quiet for t_ref { dV/dt = 1 }', [{ code: 'unit-mismatch', at: '1' }]],
+    ['a flow given twice', 'quiet for t_ref { dV/dt = 0  dV/dt = 0 }', [{ code: 'duplicate-declaration', at: 'dV/dt' }]],
+    ['two quiet periods', 'quiet for t_ref { dV/dt = 0 }\n  quiet for t_ref { }', [{ code: 'duplicate-declaration', at: 'quiet' }]],
+  ];
+  for (const [name, line, want] of cases) {
+    it(name, () => {
+      const got = found(withQuiet(line));
+      expect(got.map((d) => ({ code: d.code, at: d.at }))).toEqual(want.map((w) => ({ code: w.code, at: w.at })));
+      want.forEach((w, i) => { if (w.message) expect(got[i]!.message).toMatch(w.message); });
+    });
+  }
+
+  it('a quiet period in a neuron that never fires: a warning, nothing starts it', () => {
+    const text = 'neuron A {\n  param d = 1 [ms]\n  state V = 0\n  dV/dt = -V / 1 [ms]\n  quiet for d { dV/dt = 0 }\n}\n';
+    expect(found(text).map((d) => [d.code, d.severity, d.at])).toEqual([['quiet-without-fire', 'warning', 'quiet']]);
+  });
+
+  it('a duration of 0 is allowed (no quiet period)', () => {
+    expect(found(withQuiet('quiet for 0 [ms] { dV/dt = 0 }'))).toEqual([]);
+  });
+
+  it('refractory says to write quiet for', () => {
+    const got = found(withQuiet('refractory 2 [ms]'));
+    expect(got.map((d) => d.code)).toEqual(['unsupported']);
+    expect(got[0]!.message).toMatch(/quiet for DURATION/);
+  });
+});
+
+describe('step analysis reports the quiet mode', () => {
+  const n = analyse(QUIET_LIF).model.neurons[0]!;
+  const r = analyseStep(n, 1e-4);
+  it('the quiet mode holds V exactly (P_VV = 1) while I keeps its decay exp(-dt/tau_s)', () => {
+    expect(r.quiet).toBeDefined();
+    const P = r.quiet!.exactPropagator!;
+    const iV = P.states.indexOf('V'), iI = P.states.indexOf('I');
+    expect(P.matrix[iV]![iV]).toBe(1);
+    expect(P.matrix[iV]![iI]).toBe(0);
+    expect(P.matrix[iI]![iI]).toBeCloseTo(Math.exp(-0.1 / 5), 14);
+    expect(r.quiet!.crossing).toBeNull(); // no threshold in the quiet mode
+    // the normal mode is unchanged: exp(-dt/tau_m) on the diagonal
+    expect(r.exactPropagator!.matrix[r.exactPropagator!.states.indexOf('V')]![r.exactPropagator!.states.indexOf('V')]).toBeCloseTo(Math.exp(-0.1 / 20), 14);
+  });
+  it('the text and the JSON say so', () => {
+    expect(stepReportText([r])).toMatch(/Lif in its quiet period/);
+    const j = stepReportJson([r]).models[0]!;
+    expect(j.quiet?.exactPropagator?.[0]?.[0]).toBe(1);
+    expect(stepReportJson([analyseStep(analyse(QUIET_LIF.replace(QUIET_LINE, '')).model.neurons[0]!, 1e-4)]).models[0]!.quiet).toBeUndefined();
+  });
+});
