@@ -61,6 +61,38 @@ export interface ImposedTransition {
   jump: Map<string, Sym>;
 }
 
+/**
+ * A transition at a time that does not depend on this neuron's state (docs/adjoint.md
+ * "Transitions and quiet periods"): the end of a quiet period, guard t - t_spike - DURATION
+ * (slope 1), no jump; the flow changes from the quiet to the normal one. The same general
+ * formula as a spike, with the flows before and after it.
+ */
+export interface QuietEndDerivation {
+  /** The guard as shown, t - t_spike - DURATION (t_spike: the time of the spike that started the period). */
+  guard: Sym;
+  /** Its slope along the quiet flow: 1. */
+  gdot: Sym;
+  /** lambda . (f_normal(x) - f_quiet(x)) + lV_post - lV_pre (the state does not jump, so the last two cancel). */
+  phiNumerator: Sym;
+  phi: Sym;
+  /** lambda_X just before the end (the guard holds no state: lambda is continuous). */
+  jump: Map<string, Sym>;
+}
+
+/** The quiet mode (`quiet for DURATION { FLOWS }`) and its two transitions. */
+export interface QuietDerivation {
+  /** DURATION, SI, parameters only. */
+  duration: Sym;
+  /** The adjoint flow during the quiet period (the quiet flows' Jacobian). */
+  adjointFlow: Map<string, Sym>;
+  /** The threshold transition into the quiet mode (its flow after is the quiet one). */
+  spike: SpikeDerivation | null;
+  /** The end of the quiet period. */
+  end: QuietEndDerivation;
+  /** This neuron's incoming coupling term while it is quiet (its flow is the quiet one). */
+  coupling: Sym | null;
+}
+
 export interface IncomingDerivation {
   weight: string;
   /** lambda_Y of the target just before a received spike. */
@@ -82,6 +114,10 @@ export interface ParamGradient {
   spikeImposed: Sym | null;
   /** Increment per received spike: lambda+ . dr/dp (null without incoming block). */
   incoming: Sym | null;
+  /** With a quiet period: the integrand over the quiet flow, lambda . df_quiet/dp. */
+  quietFlow?: Sym;
+  /** With a quiet period: the increment at its end, phi_end * dg_end/dp = -phi_end * dDURATION/dp. */
+  quietEnd?: Sym;
 }
 
 export interface TrajectoryNeeds {
@@ -110,6 +146,8 @@ export interface NeuronDerivation {
   adjointFlow: Map<string, Sym>;
   spike: SpikeDerivation | null;
   incoming: IncomingDerivation | null;
+  /** The quiet mode and its transitions, for a neuron with `quiet for` (null otherwise). */
+  quiet: QuietDerivation | null;
   paramGradients: Map<string, ParamGradient>;
   trajectory: TrajectoryNeeds;
   issues: DerivationIssue[];
@@ -150,7 +188,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   const gradientParams = neuron.params.filter((p) => ctx.params === 'all' || p.trainable).map((p) => p.name);
   const base: NeuronDerivation = {
     name: neuron.name, hash: modelHash(neuron), wellFormed: neuron.wellFormed, states, gradientParams,
-    jacobian: [], adjointFlow: new Map(), spike: null, incoming: null, paramGradients: new Map(),
+    jacobian: [], adjointFlow: new Map(), spike: null, incoming: null, quiet: null, paramGradients: new Map(),
     trajectory: { eventBased: true, adjointStates: [], gradientStates: [], bytesPerStep: 0 }, issues: [], notes: [], millis: 0,
   };
   if (!neuron.wellFormed) {
@@ -178,7 +216,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   }
 }
 
-type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'incoming' | 'paramGradients' | 'trajectory'>;
+type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'incoming' | 'quiet' | 'paramGradients' | 'trajectory'>;
 
 function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string[], work: Work): Derived {
   const lambda = states.map((x) => sym(lambdaName(x)));
@@ -197,8 +235,24 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
     work.issues.push(...nonSmoothIssues(where, [f[i]!], [...states, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   });
 
-  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, gradientParams, work) : null;
+  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, f, gradientParams, work) : null;
   const incoming = neuron.incoming ? deriveIncoming(neuron, states, lambda, f, gradientParams, work) : null;
+  // The quiet mode: its flows (the listed ones replace the normal ones), its adjoint flow,
+  // the spike into it and its end, each by the same transition formula.
+  const fq = neuron.quiet ? states.map((x, i) => neuron.quiet!.flows.get(x) ?? f[i]!) : null;
+  let quiet: QuietDerivation | null = null;
+  if (neuron.quiet && fq) {
+    const jq = fq.map((fi) => states.map((x) => derivative(fi, x)));
+    const qFlow = new Map<string, Sym>();
+    states.forEach((x, j) => {
+      const raw = add(...states.map((_, i) => mul(num(-1), jq[i]![j]!, lambda[i]!)), mul(num(-1), sym(lossPartialName(x))));
+      qFlow.set(x, work.simp(raw, `adjoint flow of ${x} in the quiet period`, { kind: 'flow', state: x }));
+    });
+    const end = deriveQuietEnd(neuron, states, lambda, fq, f, work);
+    const coupling = neuron.incoming ? deriveIncoming(neuron, states, lambda, fq, gradientParams, work).coupling : null;
+    quiet = { duration: neuron.quiet.duration, adjointFlow: qFlow,
+      spike: neuron.fire ? deriveSpike(neuron, states, lambda, f, fq, gradientParams, work, true) : null, end, coupling };
+  }
 
   const paramGradients = new Map<string, ParamGradient>();
   for (const p of gradientParams) {
@@ -218,16 +272,23 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
       const rp = states.map((x) => derivative(inj.jumps.get(x) ?? sym(x), p));
       inc = work.simp(dot(rp.map((d, i) => [lambda[i]!, d])), `incoming increment of the ${p} gradient`, { kind: 'incoming' });
     }
-    paramGradients.set(p, { flow, spike: spikeInc, spikeImposed, incoming: inc });
+    const g: ParamGradient = { flow, spike: spikeInc, spikeImposed, incoming: inc };
+    if (neuron.quiet && fq && quiet) {
+      g.quietFlow = work.simp(dot(fq.map((fi, i) => [lambda[i]!, derivative(fi, p)])), `quiet-period integrand of the ${p} gradient`);
+      // the end's guard t - t_spike - DURATION: dg/dp = -dDURATION/dp
+      g.quietEnd = work.simp(mul(num(-1), quiet.end.phi, derivative(neuron.quiet.duration, p)), `increment of the ${p} gradient at the end of a quiet period`);
+    }
+    paramGradients.set(p, g);
   }
   if (spike) {
     const extra = [...paramGradients.values()].flatMap((g) => (g.spike ? stateFree(g.spike, states) : []));
     spike.record = states.filter((x) => spike.record.includes(x) || extra.includes(x));
   }
 
-  const adjointStates = states.filter((x) => [...adjointFlow.values()].some((e) => dependsOn(e, x)));
+  const adjointFlows = [...adjointFlow.values(), ...(quiet ? quiet.adjointFlow.values() : [])];
+  const adjointStates = states.filter((x) => adjointFlows.some((e) => dependsOn(e, x)));
   const gradientStates = states.filter((x) => !adjointStates.includes(x)
-    && [...paramGradients.values()].some((g) => dependsOn(g.flow, x)));
+    && [...paramGradients.values()].some((g) => dependsOn(g.flow, x) || (g.quietFlow !== undefined && dependsOn(g.quietFlow, x))));
   const trajectory: TrajectoryNeeds = {
     eventBased: adjointStates.length === 0, adjointStates, gradientStates,
     bytesPerStep: 8 * (adjointStates.length + gradientStates.length),
@@ -239,10 +300,37 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   if (gradientStates.length > 0) {
     work.notes.push(`the parameter-gradient integrands also need the trajectory of ${gradientStates.join(', ')}`);
   }
-  return { jacobian, adjointFlow, spike, incoming, paramGradients, trajectory };
+  if (quiet) {
+    work.notes.push('the end of the quiet period is a transition at time t_spike + DURATION: its phi, lambda . (f_normal - f_quiet), is added to the coupling of the spike that started the period (it moves with that spike), and -phi dDURATION/dp to the gradient of each parameter of DURATION');
+  }
+  return { jacobian, adjointFlow, spike, incoming, quiet, paramGradients, trajectory };
 }
 
-function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): SpikeDerivation {
+/**
+ * The end of a quiet period by the general transition formula: guard g = t - t_spike - D
+ * (the constant t_spike left out: it has no derivative by a state, t or a parameter), no
+ * jump (h = identity), flow before fq (quiet) and after f (normal), no spike (no coupling,
+ * no spike-time loss).
+ */
+function deriveQuietEnd(neuron: ResolvedNeuron, states: string[], lambda: Sym[], fq: Sym[], f: Sym[], work: Work): QuietEndDerivation {
+  const where: Where = { kind: 'fire' };
+  const D = neuron.quiet!.duration;
+  const g = add(sym(TIME), mul(num(-1), D));
+  const gx = states.map((x) => derivative(g, x));
+  const gdot = work.simp(add(dot(gx.map((d, j) => [d, fq[j]!])), derivative(g, TIME)), 'slope of the end of the quiet period', where);
+  // tangential term with h = identity: f_after(x) - f_before(x)
+  const numer = work.simp(add(dot(states.map((_, i) => [lambda[i]!, add(f[i]!, mul(num(-1), fq[i]!))])), sym(LV_POST), mul(num(-1), sym(LV_PRE))),
+    'phi numerator at the end of the quiet period', where);
+  const phi = work.simp(mul(numer, pow(gdot, num(-1))), 'phi at the end of the quiet period', where);
+  const jump = new Map<string, Sym>();
+  states.forEach((x, j) => jump.set(x, work.simp(add(lambda[j]!, mul(phi, gx[j]!)), `jump of lambda_${x} at the end of the quiet period`, where)));
+  const shown = add(sym(TIME), mul(num(-1), sym('t_spike')), mul(num(-1), D));
+  return { guard: shown, gdot, phiNumerator: numer, phi, jump };
+}
+
+/** The threshold transition: flow f before it, fAfter after it (the quiet flows when it starts a quiet period). */
+function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], fAfter: Sym[], gradientParams: string[], work: Work,
+  intoQuiet = false): SpikeDerivation {
   const fire = neuron.fire!;
   const where: Where = { kind: 'fire' };
   const g = fire.guard;
@@ -253,7 +341,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const ht = h.map((hi) => derivative(hi, TIME));
   const post = new Map(states.map((x, i) => [x, h[i]!] as const));
   // Tangential part: f(x+) - h_x f(x-) - h_t, component by component.
-  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+  const tangential = states.map((x, i) => work.simp(add(substitute(fAfter[i]!, post),
     ...states.map((__, j) => mul(num(-1), hx[i]![j]!, f[j]!)), mul(num(-1), ht[i]!)), `tangential term of ${x}`, where));
 
   const gdotRaw = work.simp(add(dot(gx.map((d, j) => [d, f[j]!])), gt), 'guard slope', where);
@@ -276,19 +364,19 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     jump.set(x, surf(work.simp(raw, `jump of lambda_${x}`, where)));
   });
 
-  if (surfaceUsed && rule) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
-  work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
+  if (surfaceUsed && rule && !intoQuiet) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
+  if (!intoQuiet) work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
     + (neuron.incoming ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
 
   // Grazing: the slope can vanish on the guard surface.
-  const grazing = vanishingConditions(gdot, states);
+  const grazing = intoQuiet ? [] : vanishingConditions(gdot, states);
   if (grazing.length > 0) {
     work.issues.push({ code: 'grazing-crossing', where, conditions: grazing,
       message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: a spike there has no time derivative (guard slope ${slopeText(gdot)}); `
         + 'a threshold model has such a set, so this is information: the cross-check warns where a run comes near it' });
   }
   const jumpExprs = [...h, ...hx.flat(), g, ...gx];
-  work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
+  if (!intoQuiet) work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
 
   // The same transition at an imposed time: no phi, and the state is not on the guard surface.
   const imposedJump = new Map<string, Sym>();
@@ -296,7 +384,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     imposedJump.set(x, work.simp(add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!))), `jump of lambda_${x} at a spike fired by a jump`, where));
   });
   const imposed: ImposedTransition = { numerator: work.simp(numerRaw, 'numerator of a spike fired by a jump', where), jump: imposedJump };
-  work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
+  if (!intoQuiet) work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
 
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
   const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;

@@ -7,6 +7,11 @@
 // A spike fired by a jump has no phi of its own: its numerator (-dL/d(its time)) is added to
 // the `coupling` of the event that started its instant (the spike that caused it moves it),
 // and dropped where that is an input spike or the initial state (fixed times).
+// Quiet periods: over an interval where a neuron is quiet its quiet mode's adjoint flow and
+// integrands apply; a spike that starts a quiet period takes the derivation into the quiet
+// mode (its flow after is the quiet one); at a quiet end the derived phi_end is evaluated, its
+// parameter increments added, and phi_end handed to the spike that started the period, as a
+// coupling term (the end moves with that spike).
 // Invariants: never throws for bad input (errors come back in `errors`); at an event the
 // sender's and targets' new lambdas are computed from the post-event lambdas and pre-event
 // states before any is written; gradients are dL/d(value) of the simulated loss.
@@ -62,6 +67,12 @@ interface CompiledAdjoint {
   weightGradient?: Compiled;
   coupling?: Compiled;
   paramIncoming?: Compiled[];
+  /** The quiet mode: adjoint flow, integrands, the spike into it, its end, the coupling while quiet. */
+  quiet?: {
+    flow: Compiled[]; paramFlow: Compiled[];
+    phi?: Compiled; jump?: Compiled[]; imposedNumerator?: Compiled; imposedJump?: Compiled[];
+    endPhi: Compiled; endJump: Compiled[]; paramEnd: Compiled[]; coupling?: Compiled;
+  };
   gradientParams: string[];
 }
 
@@ -86,6 +97,16 @@ function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjo
     out.weightGradient = c(d.incoming.weightGradient);
     out.coupling = c(d.incoming.coupling);
     out.paramIncoming = ps.map((g) => c(g.incoming));
+  }
+  if (d.quiet) {
+    const q = d.quiet;
+    out.quiet = {
+      flow: states.map((x) => c(q.adjointFlow.get(x))), paramFlow: ps.map((g) => c(g.quietFlow)),
+      endPhi: c(q.end.phi), endJump: states.map((x) => c(q.end.jump.get(x))), paramEnd: ps.map((g) => c(g.quietEnd)),
+      ...(q.spike ? { phi: c(q.spike.phi), jump: states.map((x) => c(q.spike!.jump.get(x))),
+        imposedNumerator: c(q.spike.imposed.numerator), imposedJump: states.map((x) => c(q.spike!.imposed.jump.get(x))) } : {}),
+      ...(q.coupling ? { coupling: c(q.coupling) } : {}),
+    };
   }
   return out;
 }
@@ -163,8 +184,10 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     ai.forEach((it, i) => {
       const b = fill(i, x, z, t);
       const off = layout.offset[i]!;
-      for (let j = 0; j < it.nStates; j++) dz[off + j] = it.a.flow[j]!(b);
-      it.a.paramFlow.forEach((f, k) => { dz[it.acc + k] = -f(b); });
+      const quiet = iv.quiet?.[i] ? it.a.quiet : undefined;
+      const flow = quiet ? quiet.flow : it.a.flow, paramFlow = quiet ? quiet.paramFlow : it.a.paramFlow;
+      for (let j = 0; j < it.nStates; j++) dz[off + j] = flow[j]!(b);
+      paramFlow.forEach((f, k) => { dz[it.acc + k] = -f(b); });
     });
   };
   const st = new Stepper(nZ, rhs);
@@ -224,6 +247,24 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       }
       return g;
     };
+    if (e.kind === 'quiet-end') {
+      // The end of a quiet period (no jump): phi_end from lambda just after it, the parameter
+      // increments -phi_end dD/dp, lambda unchanged; phi_end moves with the starting spike.
+      const it = ai[e.neuron]!, q = it.a.quiet!, sp = special[e.neuron]!, off = layout.offset[e.neuron]!;
+      const b = fill(e.neuron, e.pre, z, e.time);
+      b[sp.pre] = lossAt(e.pre, e.time);
+      b[sp.post] = lossAt(e.post, e.time);
+      const phi = q.endPhi(b);
+      b[sp.phi] = phi;
+      const zNew = z.slice();
+      for (let j = 0; j < it.nStates; j++) zNew[off + j] = q.endJump[j]!(b);
+      q.paramEnd.forEach((f, p) => { zNew[it.acc + p] = zNew[it.acc + p]! + f(b); });
+      const cause = e.cause ?? -1;
+      if (cause >= 0) handed.set(cause, (handed.get(cause) ?? 0) + phi);
+      flagNonFinite(zNew, e.time, 'spike');
+      z = zNew;
+      continue;
+    }
     if (e.kind === 'input') {
       // The arrivals of this instant in reverse order, each from its own pre-state; a jump
       // changes only its target's lambdas and accumulators, so z is updated in place.
@@ -245,11 +286,13 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     {
       const n = e.neuron, sp = special[n]!;
       let coupling = 0;
+      const after = traj.intervals[k]!.quiet; // the modes just after this event
       net.synapses.forEach((s, si) => {
         if (s.from !== n) return;
         const it = ai[s.to]!, b = fill(s.to, e.pre, zPlus, e.time);
         b[special[s.to]!.w] = s.weight;
-        coupling += it.a.coupling!(b);
+        // the target's coupling term takes the flow of the mode it is in
+        coupling += (after?.[s.to] && it.a.quiet?.coupling ? it.a.quiet.coupling : it.a.coupling!)(b);
         result.weights[si]! += increment(receive(s.to, s.weight, e, zPlus, zNew), s.to);
       });
       const it = ai[n]!;
@@ -259,17 +302,19 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       b[sp.pre] = lossAt(e.pre, e.time);
       b[sp.post] = lossAt(e.post, e.time);
       const off = layout.offset[n]!;
+      // a spike that starts a quiet period: the transition into the quiet mode
+      const into = after?.[n] && it.a.quiet?.phi ? it.a.quiet : undefined;
       if (e.byJump) {
         b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
         b[sp.phi] = 0;
         const cause = e.cause ?? -1;
-        if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + it.a.imposedNumerator!(b));
-        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.imposedJump![j]!(b);
+        if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + (into ?? it.a).imposedNumerator!(b));
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = (into ?? it.a).imposedJump![j]!(b);
         it.a.paramImposed!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
       } else {
         b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
-        b[sp.phi] = it.a.phi!(b);
-        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
+        b[sp.phi] = (into ?? it.a).phi!(b);
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = (into ?? it.a).jump![j]!(b);
         it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
       }
       flagNonFinite(zNew, e.time, 'spike');

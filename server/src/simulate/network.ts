@@ -51,6 +51,9 @@ export interface CompiledModel {
   /** Full jump map h (identity for states without a jump). */
   jumps?: Compiled[];
   incoming?: Compiled[];
+  /** With `quiet for`: the flows of the quiet mode (the normal one where none is listed) and the duration. */
+  quietFlows?: Compiled[];
+  quietDuration?: Compiled;
 }
 
 /** Per-instance loss pieces compiled over the model's names, with dlV_dX for every state. */
@@ -118,6 +121,10 @@ export function compileModel(m: ResolvedNeuron): CompiledModel {
     out.jumps = states.map((x) => compile(m.fire!.jumps.get(x) ?? sym(x), names));
   }
   if (m.incoming) out.incoming = states.map((x) => compile(m.incoming!.jumps.get(x) ?? sym(x), names));
+  if (m.quiet) {
+    out.quietFlows = states.map((x) => compile(m.quiet!.flows.get(x) ?? m.flows.get(x) ?? ZERO, names));
+    out.quietDuration = compile(m.quiet.duration, names);
+  }
   return out;
 }
 
