@@ -123,3 +123,57 @@ describe('step analysis reports the quiet mode', () => {
     expect(stepReportJson([analyseStep(analyse(QUIET_LIF.replace(QUIET_LINE, '')).model.neurons[0]!, 1e-4)]).models[0]!.quiet).toBeUndefined();
   });
 });
+
+describe('editor: hover, completion, formatting, semantic tokens, folding (docs/language.md "Quiet periods")', async () => {
+  const { hover } = await import('../server/src/outputs/hover');
+  const { complete } = await import('../server/src/outputs/completion');
+  const { formatText } = await import('../server/src/outputs/format');
+  const { semanticTokens } = await import('../server/src/outputs/semanticTokens');
+  const { foldingRanges } = await import('../server/src/outputs/folding');
+  const a = analyse(QUIET_LIF);
+  const at = (needle: string, k = 0): number => QUIET_LIF.indexOf(needle) + k;
+
+  it('hover on quiet and on for explains the construct; on the duration, the parameter', () => {
+    expect(hover(a, at('quiet for') + 1)?.markdown).toMatch(/^\*\*quiet\*\* — A quiet \(refractory\) period/);
+    expect(hover(a, at('quiet for') + 7)?.markdown).toMatch(/^\*\*for\*\* — Part of `quiet for DURATION/);
+    expect(hover(a, at('quiet for t_ref') + 11)?.markdown).toMatch(/t_ref/);
+    // a state named quiet is a state, not the keyword
+    const text = 'neuron A {\n  state quiet = 0\n  dquiet/dt = 0\n}\n';
+    expect(hover(analyse(text), text.indexOf('quiet') + 1)?.markdown).not.toMatch(/refractory/);
+  });
+
+  it('completion offers quiet among the members (a snippet), parameters for the duration, flows inside', () => {
+    const body = QUIET_LIF.replace(QUIET_LINE, 'qu');
+    const c = complete(analyse(body), body.indexOf('qu\n') + 2);
+    expect(c.find((x) => x.label === 'quiet')?.snippet).toMatch(/^quiet for \$\{1:t_ref\} \{/);
+    const dur = QUIET_LIF.replace(QUIET_LINE, 'quiet for ');
+    const d = complete(analyse(dur), dur.indexOf('quiet for ') + 10);
+    expect(d.map((x) => x.label).sort()).toEqual(['t_ref', 'tau_m', 'tau_s', 'theta']);
+    const inside = QUIET_LIF.replace(QUIET_LINE, 'quiet for t_ref {\n    \n  }');
+    const f = complete(analyse(inside), inside.indexOf('t_ref {\n') + 12);
+    expect(f.map((x) => x.label)).toEqual(['dV/dt', 'dI/dt']);
+  });
+
+  it('formatting: a one-flow quiet period stays on one line, a longer one is laid out; formatting again changes nothing', () => {
+    expect(formatText(QUIET_LIF)).toBe(QUIET_LIF);
+    const messy = QUIET_LIF.replace(QUIET_LINE, 'quiet   for   2*t_ref {\n dV/dt = 0\n dI/dt=0 [1/s] }');
+    const once = formatText(messy)!;
+    expect(once).toContain('  quiet for 2 * t_ref {\n    dV/dt = 0\n    dI/dt = 0 [1/s]\n  }\n');
+    expect(formatText(once)).toBe(once);
+  });
+
+  it('semantic tokens: quiet and for are keywords there, the duration a parameter, dV/dt a variable', () => {
+    const toks = semanticTokens(a);
+    const of = (start: number) => toks.find((t) => t.range.start === start)?.type;
+    expect(of(at('quiet for'))).toBe('keyword');
+    expect(of(at('quiet for') + 6)).toBe('keyword');
+    expect(of(at('quiet for t_ref') + 10)).toBe('parameter');
+    expect(of(at('{ dV/dt = 0 }') + 2)).toBe('variable');
+  });
+
+  it('folding: a quiet period over several lines folds', () => {
+    const text = QUIET_LIF.replace(QUIET_LINE, 'quiet for t_ref {\n    dV/dt = 0\n  }');
+    const line = text.slice(0, text.indexOf('quiet for')).split('\n').length - 1;
+    expect(foldingRanges(analyse(text)).some((f) => f.startLine === line && f.endLine === line + 1)).toBe(true);
+  });
+});

@@ -73,6 +73,7 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
     return { target: { kind: 'unit', text }, range: { start: tok.startOffset + lead, end: tok.startOffset + lead + text.length } };
   }
   if (tok && type?.startsWith('Kw_')) return { target: { kind: 'keyword', word: tok.image }, range: tokenRange(tok) };
+  if (tok && type === 'Identifier' && quietWordAt(a, tok.startOffset)) return { target: { kind: 'keyword', word: tok.image }, range: tokenRange(tok) };
   const hit = symbolAt(a, offset);
   if (hit) return { target: { kind: 'symbol', symbol: hit.symbol, isDeclaration: hit.isDeclaration }, range: hit.range };
   if (tok && type === 'Identifier' && (FUNCTION_NAMES as readonly string[]).includes(tok.image)) {
@@ -84,6 +85,15 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
     if (e?.unit) return { target: { kind: 'number', expr: e }, range: e.range };
   }
   return undefined;
+}
+
+/** Whether the name at `start` is the `quiet` or `for` of a quiet period (those words are names elsewhere). */
+function quietWordAt(a: Analysis, start: number): boolean {
+  for (const item of a.parse.file.items) {
+    if (item.kind !== 'neuron' || start < item.range.start || start >= item.range.end) continue;
+    return item.members.some((m) => m.kind === 'quiet' && (m.keywordRange.start === start || m.forRange?.start === start));
+  }
+  return false;
 }
 
 function describeTarget(a: Analysis, t: HoverTarget, neuron: ResolvedNeuron | undefined): string {
