@@ -95,6 +95,16 @@ describe('resolution, units and diagnostics (codes from server/src/base/diagnost
     expect(found(withQuiet('quiet for 0 [ms] { dV/dt = 0 }'))).toEqual([]);
   });
 
+  it('fired-side-after-quiet: a quiet flow that drives V past theta by the end (V = 0 + 1/ms * 2 ms = 2 > 1) is a warning', async () => {
+    const { derivedDiagnostics } = await import('../server/src/pipeline');
+    const derived = (text: string) => derivedDiagnostics(analyse(text)).filter((d) => d.severity !== 'info')
+      .map((d) => [d.code, d.severity, text.slice(d.range.start, d.range.end)]);
+    expect(derived(withQuiet('quiet for t_ref { dV/dt = 1 / 1 [ms] }'))).toEqual([['fired-side-after-quiet', 'warning', 'quiet']]);
+    // 0.4 / ms for 2 ms ends at 0.8 < theta: nothing to say; a held V ends at its reset: nothing
+    expect(derived(withQuiet('quiet for t_ref { dV/dt = 0.4 / 1 [ms] }'))).toEqual([]);
+    expect(derived(QUIET_LIF)).toEqual([]);
+  });
+
   it('refractory says to write quiet for', () => {
     const got = found(withQuiet('refractory 2 [ms]'));
     expect(got.map((d) => d.code)).toEqual(['unsupported']);
