@@ -286,7 +286,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
         range, keywordRange: kwRange('Kw_surrogate') };
     }
     case 'quietBlock': {
-      const q = tok(ch, 'quietWord'), f = tok(ch, 'forWord'), open = tok(ch, 'LCurly');
+      const q = tok(ch, 'Kw_quiet'), f = tok(ch, 'Kw_for'), open = tok(ch, 'LCurly');
       const duration = rootExpr(node(ch, 'expr'));
       const flows = nodes(ch, 'flowEq').map((fn) => buildFlow(fn)).filter((x): x is A.FlowEq => x !== undefined);
       return { kind: 'quiet', ...(duration ? { duration } : {}), flows, range, keywordRange: q ? tokRange(q) : range,

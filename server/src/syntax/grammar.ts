@@ -13,7 +13,8 @@
 //                (COMPARE, `V > V_th`, is not the language: build.ts reports it with a fix)
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
-//   quiet     := 'quiet' 'for' expr '{' flow* '}'   (`quiet`, `for`: names read as words here only)
+//   quiet     := QUIET FOR expr '{' flow* '}'   (QUIET FOR: `quiet for` at a member's start,
+//                made by recover.ts; the two words are names everywhere else)
 //   jump      := NAME ':=' expr
 //   connect   := 'connect' NAME '->' NAME
 //   expr      := term (('+'|'-') term)*          term := unary (('*'|'/') unary)*
@@ -134,8 +135,7 @@ export class SaltusParser extends CstParser {
       { ALT: () => this.SUBRULE(this.fireBlock) },
       { ALT: () => this.SUBRULE(this.incomingBlock) },
       { ALT: () => this.SUBRULE(this.surrogateDecl) },
-      // `quiet for`: two names that are words only here, so a state named `quiet` stays valid
-      { GATE: () => this.LA(1).image === 'quiet' && this.LA(2).image === 'for', ALT: () => this.SUBRULE(this.quietBlock) },
+      { ALT: () => this.SUBRULE(this.quietBlock) },
       { ALT: () => this.SUBRULE(this.jump) },
     ]);
   });
@@ -225,8 +225,8 @@ export class SaltusParser extends CstParser {
   });
 
   private quietBlock = this.RULE('quietBlock', () => {
-    this.CONSUME1(T.Identifier, { LABEL: 'quietWord' });
-    this.CONSUME2(T.Identifier, { LABEL: 'forWord' });
+    this.CONSUME(T.QuietWord);
+    this.CONSUME(T.ForWord);
     this.SUBRULE(this.expr);
     this.CONSUME(T.LCurly);
     this.MANY(() => this.SUBRULE(this.flowEq));

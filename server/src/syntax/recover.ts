@@ -7,11 +7,14 @@
 //   (`refractory 2 [ms]` in a neuron: the language writes `quiet for DURATION { FLOWS }`):
 //   its tokens (to the end of the line, and through a `{ ... }` opened on it) are left out,
 //   with one 'unsupported' error saying what to write instead.
+// It also marks `quiet for` at the start of a member as the two words of a quiet period
+// (tokens QuietWord, ForWord), so that the grammar tells it from a jump by one token and
+// `quiet` and `for` stay names everywhere else.
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
 // range lies inside the text.
 import { createTokenInstance, type IToken } from 'chevrotain';
 import type * as A from './ast';
-import { BareUnit } from './tokens';
+import { BareUnit, ForWord, QuietWord } from './tokens';
 import { parseUnit } from '../units/unitParse';
 
 /** Words that open a member the language writes otherwise, and the message that says how. */
@@ -43,6 +46,14 @@ export function recoverTokens(tokens: readonly IToken[], text: string): Recovere
         && (prev === undefined || !sameLine(end(prev), t.startOffset) || prev.tokenType.name === 'LCurly' || prev.tokenType.name === 'RCurly');
       const connect = Object.hasOwn(PLANNED_CONNECT, t.image) && prev?.tokenType.name === 'Identifier'
         && out[out.length - 2]?.tokenType.name === 'Arrow' && sameLine(end(prev), t.startOffset);
+      const next = tokens[i + 1];
+      if (t.image === 'quiet' && next?.tokenType.name === 'Identifier' && next.image === 'for' && !CONTINUES.has(prev?.tokenType.name ?? '')
+        && (prev === undefined || !sameLine(end(prev), t.startOffset) || prev.tokenType.name === 'LCurly' || prev.tokenType.name === 'RCurly')) {
+        out.push(createTokenInstance(QuietWord, t.image, t.startOffset, end(t) - 1, NaN, NaN, NaN, NaN));
+        out.push(createTokenInstance(ForWord, next.image, next.startOffset, end(next) - 1, NaN, NaN, NaN, NaN));
+        i++;
+        continue;
+      }
       if (member || connect) {
         const last = plannedExtent(tokens, i, sameLine);
         errors.push({ code: 'unsupported', range: { start: t.startOffset, end: end(tokens[last]!) },
