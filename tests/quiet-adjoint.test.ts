@@ -156,3 +156,36 @@ describe('derived gradients with quiet periods against central finite difference
     expect(r.maxRelError, formatReport(r)).toBeLessThan(1e-5);
   });
 });
+
+// A spike counter: the guard's state has no flow and only incoming jumps move it (docs/language.md
+// "Spikes fired by jumps"), so every spike is fired by a jump; once the zero-guard-slope error.
+const COUNTER = `neuron Counter {
+  param n_max = 3
+  state c = 0
+  fire when c crosses n_max up { c := 0 }
+  quiet for 1.5 [ms] { }
+  incoming w { c := c + w }
+}
+neuron Score {
+  param tau = 10 [ms]
+  state V = 0
+  dV/dt = -V / tau
+  incoming w { V := V + w }
+}`;
+
+describe('a spike counter fires by jumps (its guard slope is identically 0)', () => {
+  test('it fires at the third arrival, not in its quiet period; gradients against central finite differences', () => {
+    const c = modelNeuron(COUNTER, 'Counter'), s = modelNeuron(COUNTER, 'Score');
+    expect(derive(c).spike?.byJumpsOnly).toBe(true);
+    const net = { neurons: [{ model: c }, { model: s }], synapses: [{ from: 0, to: 1, weight: 0.7 }] };
+    // 1.1 per arrival: 3.3 at the third (3 ms) fires and resets c; the 4 ms arrival lands in the
+    // quiet period (to 4.5 ms) and still counts (c = 1.1); 5.5 and 7 ms make 3.3: a spike at 7 ms
+    const inputs = [{ target: 0, times: [1 * ms, 2 * ms, 3 * ms, 4 * ms, 5.5 * ms, 7 * ms, 8 * ms], weight: 1.1 }];
+    const loss = { terms: [{ neuron: 1, integrand: mul(sym('V'), sym('V')) }] };
+    const r = gradientCheck({ net, inputs, duration: 0.02, loss, sim: { rtol: 1e-12 } }, derive, { skipInitial: true });
+    expect(r.trajectory.spikes.map((x) => x.time)).toEqual([3 * ms, 7 * ms]);
+    expect(r.rows.find((x) => x.what === 'w[0->1]')!.adjoint).not.toBe(0);
+    expect(r.rows.filter((x) => x.unstable)).toEqual([]);
+    expect(r.maxRelError, formatReport(r)).toBeLessThan(1e-6);
+  });
+});

@@ -45,6 +45,10 @@ export interface SpikeDerivation {
   /** Forward state values the backward pass needs at each spike of this neuron. */
   record: string[];
   eventBased: boolean;
+  /** The guard's states have no flow and change only by incoming jumps (a spike counter): the
+   *  flow never moves the guard (gdot is identically 0), so every spike is fired by a jump and
+   *  takes the imposed form; `phi` is 0 and `jump` is the imposed jump (no crossing divides). */
+  byJumpsOnly?: boolean;
   /** The same transition at an imposed time (a spike fired by a jump, at the instant of the
    *  event that caused it; docs/adjoint.md "Spikes fired by jumps"): its time does not depend
    *  on this neuron's state, so there is no phi; nothing is simplified on the guard surface
@@ -354,13 +358,16 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     if (r.used) surfaceUsed = true;
     return r.sym;
   };
+  // A guard the flow never moves (its states change only by jumps): every spike is fired by a
+  // jump, at an imposed time; nothing divides by the slope.
+  const byJumpsOnly = isZero(gdotRaw) && jumpOnlyGuard(neuron, states);
   const gdot = surf(gdotRaw);
   const numerRaw = add(dot(tangential.map((d, i) => [lambda[i]!, d])), sym(COUPLING), mul(num(-1), sym(DLP_DT)), sym(LV_POST), mul(num(-1), sym(LV_PRE)));
   const phiNumerator = surf(work.simp(numerRaw, 'phi numerator', where));
-  const phi = surf(work.simp(mul(phiNumerator, pow(gdot, num(-1))), 'phi', where));
+  const phi = byJumpsOnly ? ZERO : surf(work.simp(mul(phiNumerator, pow(gdot, num(-1))), 'phi', where));
   const jump = new Map<string, Sym>();
   states.forEach((x, j) => {
-    const raw = add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!)), mul(sym(PHI), gx[j]!));
+    const raw = add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!)), byJumpsOnly ? ZERO : mul(sym(PHI), gx[j]!));
     jump.set(x, surf(work.simp(raw, `jump of lambda_${x}`, where)));
   });
 
@@ -369,7 +376,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     + (neuron.incoming ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
 
   // Grazing: the slope can vanish on the guard surface.
-  const grazing = intoQuiet ? [] : vanishingConditions(gdot, states);
+  const grazing = intoQuiet || byJumpsOnly ? [] : vanishingConditions(gdot, states);
   if (grazing.length > 0) {
     work.issues.push({ code: 'grazing-crossing', where, conditions: grazing,
       message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: a spike there has no time derivative (guard slope ${slopeText(gdot)}); `
@@ -389,8 +396,12 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
   const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;
   const postGuard = rule ? onSurfaceAlways(substitute(g, post), rule, work) : work.simp(substitute(g, post), 'guard after the jump', where);
+  if (byJumpsOnly && !intoQuiet) {
+    work.issues.push({ code: 'fires-only-by-jumps', where, conditions: [],
+      message: `the guard's state${guardStatesOf(neuron, states).length === 1 ? '' : 's'} ${guardStatesOf(neuron, states).join(', ')} ${guardStatesOf(neuron, states).length === 1 ? 'has' : 'have'} no flow and change${guardStatesOf(neuron, states).length === 1 ? 's' : ''} only by jumps: the flow never crosses the guard, so this neuron fires only when an incoming jump carries it across, at that arrival's instant (its spike time moves with the spike that arrived)` });
+  }
   return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}),
-    surfaceSlope, postGuard, record, eventBased: true, imposed };
+    surfaceSlope, postGuard, record, eventBased: true, imposed, ...(byJumpsOnly ? { byJumpsOnly } : {}) };
 }
 
 function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
@@ -421,6 +432,16 @@ function onSurfaceAlways(s: Sym, rule: SurfaceRule, work: Work): Sym {
 
 const isZero = (s: Sym): boolean => s.k === 'num' && s.v === 0;
 
+const guardStatesOf = (neuron: ResolvedNeuron, states: readonly string[]): string[] => states.filter((x) => dependsOn(neuron.fire!.guard, x));
+
+/** The guard holds states only, none of them with a flow, and an incoming jump moves one of them: a spike counter, fired by jumps. */
+function jumpOnlyGuard(neuron: ResolvedNeuron, states: readonly string[]): boolean {
+  const g = neuron.fire?.guard;
+  if (!g || dependsOn(g, TIME)) return false;
+  const inGuard = guardStatesOf(neuron, states);
+  return inGuard.length > 0 && inGuard.every((x) => !neuron.flows.has(x)) && inGuard.some((x) => neuron.incoming?.jumps.has(x) === true);
+}
+
 /**
  * A guard whose slope is identically 0 on the guard surface: its states have no flow (they
  * change only by jumps), it holds no state at all, or the flow only approaches the threshold
@@ -441,6 +462,7 @@ function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): Deriva
       message: `the guard ${toMathjs(g)} = 0 holds no state and no t: it never changes, so the flow never crosses it (guard slope ${formula}); ${end}` };
   }
   if (isZero(raw) && inGuard.every((x) => !neuron.flows.has(x)) && !dependsOn(g, TIME)) {
+    if (jumpOnlyGuard(neuron, states)) return undefined; // fired by jumps (deriveSpike says so)
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
       message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; it could fire by jumps only, but a model whose guard slope is identically 0 is not derived); ${end}` };
   }

@@ -74,8 +74,8 @@ export function guardDiagnostics(derivation: NeuronDerivation, n: ResolvedNeuron
   const states = n.states.map((s) => s.name);
   const where = spike.surface ? ` (where ${spike.surface.state} = ${toMathjs(spike.surface.value)})` : '';
 
-  // 1. Can the flow cross at all?
-  const slope = dependsOn(spike.surfaceSlope, TIME) ? undefined : valueOf(spike.surfaceSlope, env);
+  // 1. Can the flow cross at all? (A guard the flow never moves is said by the derivation.)
+  const slope = spike.byJumpsOnly || dependsOn(spike.surfaceSlope, TIME) ? undefined : valueOf(spike.surfaceSlope, env);
   if (slope !== undefined) {
     const formula = `gdot = ${toMathjs(spike.surfaceSlope)}`;
     if (slope === 0) {
