@@ -147,6 +147,11 @@ describe('editor: hover, completion, formatting, semantic tokens, folding (docs/
     expect(hover(a, at('quiet for') + 1)?.markdown).toMatch(/^\*\*quiet\*\* — A quiet \(refractory\) period/);
     expect(hover(a, at('quiet for') + 7)?.markdown).toMatch(/^\*\*for\*\* — Part of `quiet for DURATION/);
     expect(hover(a, at('quiet for t_ref') + 11)?.markdown).toMatch(/t_ref/);
+    // the quiet flow: its own equation, said to be the quiet period's, with both sides' units
+    const q = hover(a, at('{ dV/dt = 0 }') + 3)?.markdown ?? '';
+    expect(q).toMatch(/dV\/dt = 0/);
+    expect(q).toMatch(/\*\*flow\*\* of state `V` of `Lif` in its quiet period/);
+    expect(hover(a, at('dV/dt = (I - V)') + 1)?.markdown).not.toMatch(/quiet period/);
     // a state named quiet is a state, not the keyword
     const text = 'neuron A {\n  state quiet = 0\n  dquiet/dt = 0\n}\n';
     expect(hover(analyse(text), text.indexOf('quiet') + 1)?.markdown).not.toMatch(/refractory/);

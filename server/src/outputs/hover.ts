@@ -205,13 +205,20 @@ function neuronFacts(a: Analysis, name: string): string[] {
 
 function flowAt(a: Analysis, derivStart: number): A.FlowEq | undefined {
   const decl = neuronDeclAt(a, derivStart);
-  return decl?.members.find((m): m is A.FlowEq => m.kind === 'flow' && m.derivRange.start === derivStart);
+  const flows = decl?.members.flatMap((m) => (m.kind === 'flow' ? [m] : m.kind === 'quiet' ? m.flows : [])) ?? [];
+  return flows.find((m) => m.derivRange.start === derivStart);
+}
+
+/** Whether a flow equation is one of a quiet period's. */
+function inQuiet(a: Analysis, eq: A.FlowEq): boolean {
+  return !!neuronDeclAt(a, eq.derivRange.start)?.members.some((m) => m.kind === 'quiet' && m.flows.includes(eq));
 }
 
 function flowMarkdown(a: Analysis, state: string, eq: A.FlowEq, neuron: ResolvedNeuron | undefined): string {
   const s = neuron?.states.find((x) => x.name === state);
   const lines = [codeBlock(`d${state}/dt = ${eq.value ? exprText(eq.value) : '?'}`)];
-  lines.push(s ? `**flow** of state \`${state}\` of \`${neuron!.name}\`` : `**flow** of \`${state}\`, which is not a state of this neuron`);
+  const quiet = inQuiet(a, eq) ? ' in its quiet period (after each spike, in place of the normal one)' : '';
+  lines.push(s ? `**flow** of state \`${state}\` of \`${neuron!.name}\`${quiet}` : `**flow** of \`${state}\`, which is not a state of this neuron`);
   const want = s?.dim ? dimDiv(s.dim, TIME) : undefined;
   const have = eq.value ? a.model.exprDims.get(eq.value) : undefined;
   const prefs = a.model.unitsUsed;
