@@ -189,3 +189,19 @@ describe('a spike counter fires by jumps (its guard slope is identically 0)', ()
     expect(r.maxRelError, formatReport(r)).toBeLessThan(1e-6);
   });
 });
+
+describe('the derivation as shown (preview, text, JSON)', async () => {
+  const { previewModel } = await import('../server/src/adjoint/preview');
+  const { adjointJson, renderText } = await import('../server/src/adjoint/render');
+  test('the quiet section, the end transition phi_end = lambda . (f - f_q), and the t_ref increment -phi_end', () => {
+    const d = derive(modelNeuron(QLIF, 'Q'));
+    expect(previewModel(d).sections.map((s) => s.title)).toContain('In the quiet period (for t_ref after each spike)');
+    const j = adjointJson([d]).models[0]!;
+    expect(j.quiet?.end.gdot).toBe('1');
+    // f - f_q: only dV/dt differs ((I - V)/tau_m against 0)
+    expect(j.quiet?.end.phi).toMatch(/lambda_V/);
+    expect(j.quiet?.end.phi).not.toMatch(/lambda_I/);
+    expect(j.paramGradients.t_ref!.quietEnd).toBeDefined();
+    expect(renderText(d)).toMatch(/at its end \(guard t - t_spike - t_ref, gdot = 1; no jump\)/);
+  });
+});
