@@ -56,6 +56,14 @@ describe('closed form: the firing rate of a LIF with a refractory period', () =>
   });
 });
 
+describe('a negative duration is an error at run time too (a scenario may override the file\'s value)', () => {
+  test('the simulator refuses it with the neuron and the value', () => {
+    const m = modelNeuron(DRIVEN('quiet for t_ref { dV/dt = 0 }'), 'Driven');
+    const tr = simulate({ neurons: [{ model: m, params: { t_ref: -1e-3 } }], synapses: [] }, 0.01);
+    expect(tr.errors).toEqual(['neuron 0 (Driven): the quiet period lasts -0.001 s; a duration must not be negative (0: no quiet period)']);
+  });
+});
+
 describe('a quiet period of 0 reproduces the model without one exactly', () => {
   test('same spikes, same loss, same gradients (bit for bit)', () => {
     const q = modelNeuron(DRIVEN('quiet for t_ref { dV/dt = 0 }'), 'Driven');

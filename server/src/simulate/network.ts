@@ -82,6 +82,10 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     for (const p of n.model.params) {
       if (n.params?.[p.name] === undefined && p.valueSI === undefined) errors.push(`neuron ${i}: parameter ${p.name} has no value`);
     }
+    if (n.model.quiet && n.model.wellFormed) {
+      const d = compile(n.model.quiet.duration, modelNames(n.model))(Float64Array.from([...initialValues(n), ...paramValues(n), 0, 0].slice(0, modelNames(n.model).length)));
+      if (!(d >= 0)) errors.push(`neuron ${i} (${n.model.name}): the quiet period lasts ${d} s; a duration must not be negative (0: no quiet period)`);
+    }
   });
   const pairs = new Set<string>();
   net.synapses.forEach((s, k) => {
