@@ -105,6 +105,14 @@ describe('resolution, units and diagnostics (codes from server/src/base/diagnost
     expect(derived(QUIET_LIF)).toEqual([]);
   });
 
+  it('the quiet mode adds no second copy of a derived diagnostic (each issue once)', async () => {
+    const { derivedDiagnostics } = await import('../server/src/pipeline');
+    const text = withQuiet('quiet for t_ref { dV/dt = 0 }').replace('incoming w { I := I + w }', 'incoming w { I := I + w / (1 + V * V) }');
+    const ds = derivedDiagnostics(analyse(text)).map((d) => `${d.code}@${d.range.start}`);
+    expect(ds.length).toBeGreaterThan(0);
+    expect(new Set(ds).size).toBe(ds.length);
+  });
+
   it('refractory says to write quiet for', () => {
     const got = found(withQuiet('refractory 2 [ms]'));
     expect(got.map((d) => d.code)).toEqual(['unsupported']);

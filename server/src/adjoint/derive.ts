@@ -253,7 +253,7 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
       qFlow.set(x, work.simp(raw, `adjoint flow of ${x} in the quiet period`, { kind: 'flow', state: x }));
     });
     const end = deriveQuietEnd(neuron, states, lambda, fq, f, work);
-    const coupling = neuron.incoming ? deriveIncoming(neuron, states, lambda, fq, gradientParams, work).coupling : null;
+    const coupling = neuron.incoming ? incomingCoupling(neuron, states, lambda, fq, work) : null;
     quiet = { duration: neuron.quiet.duration, adjointFlow: qFlow,
       spike: neuron.fire ? deriveSpike(neuron, states, lambda, f, fq, gradientParams, work, true) : null, end, coupling };
   }
@@ -410,11 +410,7 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   const w = inj.weight;
   const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
   const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
-  const rt = r.map((ri) => derivative(ri, TIME));
-  const post = new Map(states.map((x, i) => [x, r[i]!] as const));
-  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
-    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)), `tangential term of ${x}`, where));
-  const coupling = work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
+  const coupling = incomingCoupling(neuron, states, lambda, f, work);
   const jump = new Map<string, Sym>();
   states.forEach((x, j) => jump.set(x, work.simp(add(...states.map((_, i) => mul(ry[i]![j]!, lambda[i]!))), `incoming jump of lambda_${x}`, where)));
   const weightGradient = work.simp(dot(r.map((ri, i) => [lambda[i]!, derivative(ri, w)])), 'weight gradient', where);
@@ -422,6 +418,19 @@ function deriveIncoming(neuron: ResolvedNeuron, states: string[], lambda: Sym[],
   work.issues.push(...nonSmoothIssues(where, r, [...states, w, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   const record = states.filter((x) => [coupling, weightGradient, ...jump.values()].some((e) => dependsOn(e, x)));
   return { weight: w, jump, weightGradient, coupling, record };
+}
+
+/** A target's coupling term, lambda+ . (f(r(y-)) - r_y f(y-) - r_t), with the flow f of the mode it is in. */
+function incomingCoupling(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], work: Work): Sym {
+  const inj = neuron.incoming!;
+  const where: Where = { kind: 'incoming' };
+  const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
+  const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
+  const rt = r.map((ri) => derivative(ri, TIME));
+  const post = new Map(states.map((x, i) => [x, r[i]!] as const));
+  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)), `tangential term of ${x}`, where));
+  return work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
 }
 
 /** s on the guard surface (the substitution made even where it reads longer), simplified. */
