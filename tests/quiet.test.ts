@@ -107,7 +107,7 @@ describe('resolution, units and diagnostics (codes from server/src/base/diagnost
 
   it('the quiet mode adds no second copy of a derived diagnostic (each issue once)', async () => {
     const { derivedDiagnostics } = await import('../server/src/pipeline');
-    const text = withQuiet('quiet for t_ref { dV/dt = 0 }').replace('incoming w { I := I + w }', 'incoming w { I := I + w / (1 + V * V) }');
+    const text = withQuiet('quiet for t_ref { dV/dt = 0 }').replace('incoming w { I := I + w }', 'incoming w { I := I + w / (2 + V) }');
     const ds = derivedDiagnostics(analyse(text)).map((d) => `${d.code}@${d.range.start}`);
     expect(ds.length).toBeGreaterThan(0);
     expect(new Set(ds).size).toBe(ds.length);
