@@ -91,6 +91,11 @@ describe('resolution, units and diagnostics (codes from server/src/base/diagnost
     expect(found(text).map((d) => [d.code, d.severity, d.at])).toEqual([['quiet-without-fire', 'warning', 'quiet']]);
   });
 
+  it('a parameter that divides a quiet flow is checked like one that divides a normal flow', () => {
+    const text = withQuiet('quiet for t_ref { dV/dt = -V / tau_q }').replace('param theta = 1', 'param theta = 1\n  param tau_q = 0 [ms]');
+    expect(found(text).map((d) => [d.code, d.severity, d.at])).toEqual([['non-positive-constant', 'error', '0 [ms]']]);
+  });
+
   it('a duration of 0 is allowed (no quiet period)', () => {
     expect(found(withQuiet('quiet for 0 [ms] { dV/dt = 0 }'))).toEqual([]);
   });

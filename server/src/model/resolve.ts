@@ -244,7 +244,7 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       } });
   }
   // Only on a neuron that is otherwise sound (a too-complex expression is not walked again).
-  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx);
+  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, incoming, table, ctx, quiet);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
     ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), ...(surrogate ? { surrogate } : {}), ...(quiet ? { quiet } : {}), wellFormed };
@@ -270,8 +270,8 @@ function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<
 
 /** Zero divisors (error) and negative time constants or capacitances (warning), on the parameter's value. */
 function checkConstants(params: ParamInfo[], flows: Map<string, S.Sym>, fire: FireInfo | undefined, incoming: IncomingInfo | undefined,
-  table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
-  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}) });
+  table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext, quiet?: QuietInfo): void {
+  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), ...(incoming ? { incoming } : {}), ...(quiet ? { quiet } : {}) });
   for (const p of params) {
     const use = uses.get(p.name);
     if (!use || p.valueSI === undefined) continue;
