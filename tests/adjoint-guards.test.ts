@@ -54,7 +54,6 @@ const ASYMPTOTIC = `neuron Relax {  #~ the flow only approaches the threshold
 
 describe('a guard slope that is identically 0 is an error, and nothing is derived from it', () => {
   test.each([
-    ['states that change only by jumps', JUMP_ONLY, /the guard's state c has no flow: it changes only by jumps.*guard slope gdot = 0/],
     ['a guard with no state', NO_STATE, /the guard a - b = 0 holds no state and no t.*gdot = 0/],
     ['a flow that only approaches the threshold', ASYMPTOTIC, /on the threshold, where V = theta, the guard slope gdot = \(theta - V\) \/ tau is identically 0/],
   ])('%s', (_name, text, message) => {
@@ -81,13 +80,30 @@ describe('a guard slope that is identically 0 is an error, and nothing is derive
 
   test('saltus check exits 1 on each (before: silent, exit 0)', () => {
     const dir = mkdtempSync(join(tmpdir(), 'saltus-guards-'));
-    for (const [k, text] of [JUMP_ONLY, NO_STATE, ASYMPTOTIC].entries()) {
+    for (const [k, text] of [NO_STATE, ASYMPTOTIC].entries()) {
       const file = join(dir, `zero${k}.saltus`);
       writeFileSync(file, text);
       const r = runCli(['check', file]);
       expect(r.code, `model ${k}: ${r.stdout}${r.stderr}`).toBe(1);
       expect(r.stdout).toMatch(/error zero-guard-slope/);
     }
+  });
+
+  test('a guard state without a flow that an incoming jump moves (a spike counter) fires by jumps: information, derived', () => {
+    // docs/language.md "Spikes fired by jumps": the jump-fired machinery handles it, so it is
+    // no longer the error it was (tests/quiet-adjoint.test.ts checks its gradients).
+    const n = neuron(JUMP_ONLY);
+    const d = deriveNeuron(n);
+    expect(d.wellFormed).toBe(true);
+    expect(d.spike?.byJumpsOnly).toBe(true);
+    const ds = adjointDiagnostics(d, n);
+    expect(ds.map((x) => [x.code, x.severity])).toEqual([['fires-only-by-jumps', 'info']]);
+    expect(ds[0]!.message).toMatch(/the guard's state c has no flow and changes only by jumps/);
+    // generated code refuses it with the reason (its runtimes are not checked on such a guard yet)
+    expect(generateFiles(analyse(JUMP_ONLY), { target: 'numpy' }).errors.join(' ')).toMatch(/generated code does not run such a guard yet/);
+    // without an incoming jump on it, it can never fire: still the error
+    const still = JUMP_ONLY.replace('incoming w { c := c + w }', 'incoming w { V := V + w }');
+    expect(adjointDiagnostics(deriveNeuron(neuron(still)), neuron(still)).map((x) => x.code)).toEqual(['zero-guard-slope']);
   });
 
   test('a slope that is 0 only for the file\'s parameter values is an error too', () => {

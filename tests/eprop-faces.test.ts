@@ -91,7 +91,10 @@ describe('saltus eligibility', () => {
     const a = analyse(readFileSync(join(root, 'samples', file), 'utf8'));
     for (const n of a.model.neurons) {
       const m = j.models.find((x) => x.name === n.name);
-      if (n.fire) {
+      if (n.quiet) {
+        // e-prop's discrete step has no quiet mode yet: said, not derived as if it were absent
+        expect(j.notDerived.find((x) => x.name === n.name)!.reason).toMatch(/quiet period/);
+      } else if (n.fire) {
         expect(m, `${file}: ${n.name}`).toBeDefined();
         expect(m!.dt).toBe(a.timestep!.seconds);
         expect(Object.keys(m!.step)).toEqual(n.states.map((s) => s.name));

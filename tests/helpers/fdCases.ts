@@ -62,6 +62,8 @@ export function fdCases(): NamedCase[] {
   const roRec = sampleNeuron('receptors.saltus', 'Readout');
   const relay = sampleNeuron('delayed_relay.saltus', 'Relay');
   const roRelay = sampleNeuron('delayed_relay.saltus', 'Readout');
+  const refr = sampleNeuron('refractory_lif.saltus', 'RefractoryLif');
+  const roRefr = sampleNeuron('refractory_lif.saltus', 'Readout');
   const mixed = modelNeuron(MIXED, 'Mixed');
   const dipper = modelNeuron(MIXED, 'Dipper');
   const L = fromMathjs;
@@ -99,6 +101,13 @@ export function fdCases(): NamedCase[] {
       inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 2, times: [0.0035, 0.0205], weight: 0.005, delay: 0.0002 }],
       duration: 0.04,
       loss: { terms: [{ neuron: 3, integrand: L('(V - 0.3)^2') }, { neuron: 2, integrand: L('1000 * (V + 0.065)^2') }] },
+    } },
+    { name: 'refractory_lif: RefractoryLif (quiet periods) -> RefractoryLif -> Readout', source: 'samples/refractory_lif.saltus', c: {
+      net: { neurons: [{ model: refr }, { model: refr, params: { t_ref: 0.002 } }, { model: roRefr }],
+        synapses: [{ from: 0, to: 1, weight: 4.5 }, { from: 1, to: 2, weight: 0.8 }, { from: 0, to: 2, weight: -0.3 }] },
+      inputs: [{ target: 0, times: KNOCKS, weight: 5 }, { target: 1, times: [0.006, 0.02], weight: 2.5 }],
+      duration: 0.045,
+      loss: { terms: [{ neuron: 2, integrand: L('(V - 0.5)^2') }, { neuron: 0, perSpike: L('100 * (t - 0.01)^2'), integrand: L('0.1 * V^2') }] },
     } },
     { name: 'readout alone', source: 'samples/readout.saltus', c: {
       net: { neurons: [{ model: roAlone }], synapses: [] },

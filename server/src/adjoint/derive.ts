@@ -45,6 +45,10 @@ export interface SpikeDerivation {
   /** Forward state values the backward pass needs at each spike of this neuron. */
   record: string[];
   eventBased: boolean;
+  /** The guard's states have no flow and change only by incoming jumps (a spike counter): the
+   *  flow never moves the guard (gdot is identically 0), so every spike is fired by a jump and
+   *  takes the imposed form; `phi` is 0 and `jump` is the imposed jump (no crossing divides). */
+  byJumpsOnly?: boolean;
   /** The same transition at an imposed time (a spike fired by a jump, at the instant of the
    *  event that caused it; docs/adjoint.md "Spikes fired by jumps"): its time does not depend
    *  on this neuron's state, so there is no phi; nothing is simplified on the guard surface
@@ -59,6 +63,40 @@ export interface ImposedTransition {
   numerator: Sym;
   /** lambda_X just before the transition: (h_x^T lambda+)_X. */
   jump: Map<string, Sym>;
+}
+
+/**
+ * A transition at a time that does not depend on this neuron's state (docs/adjoint.md
+ * "Transitions and quiet periods"): the end of a quiet period, guard t - t_spike - DURATION
+ * (slope 1), no jump; the flow changes from the quiet to the normal one. The same general
+ * formula as a spike, with the flows before and after it.
+ */
+export interface QuietEndDerivation {
+  /** The guard as shown, t - t_spike - DURATION (t_spike: the time of the spike that started the period). */
+  guard: Sym;
+  /** Its slope along the quiet flow: 1. */
+  gdot: Sym;
+  /** lambda . (f_normal(x) - f_quiet(x)) + lV_post - lV_pre (the state does not jump, so the last two cancel). */
+  phiNumerator: Sym;
+  phi: Sym;
+  /** lambda_X just before the end (the guard holds no state: lambda is continuous). */
+  jump: Map<string, Sym>;
+}
+
+/** The quiet mode (`quiet for DURATION { FLOWS }`) and its two transitions. */
+export interface QuietDerivation {
+  /** DURATION, SI, parameters only. */
+  duration: Sym;
+  /** The adjoint flow during the quiet period (the quiet flows' Jacobian). */
+  adjointFlow: Map<string, Sym>;
+  /** The threshold transition into the quiet mode (its flow after is the quiet one). */
+  spike: SpikeDerivation | null;
+  /** The end of the quiet period. */
+  end: QuietEndDerivation;
+  /** This neuron's incoming coupling term while it is quiet (its flow is the quiet one): the first block's. */
+  coupling: Sym | null;
+  /** The same per incoming block, in the order of `receptors`. */
+  couplings: Sym[];
 }
 
 export interface IncomingDerivation {
@@ -85,6 +123,10 @@ export interface ParamGradient {
   /** Increment per spike received by the first incoming block: lambda+ . dr/dp (null without
    *  incoming block); each block's own is in its `IncomingDerivation.params`. */
   incoming: Sym | null;
+  /** With a quiet period: the integrand over the quiet flow, lambda . df_quiet/dp. */
+  quietFlow?: Sym;
+  /** With a quiet period: the increment at its end, phi_end * dg_end/dp = -phi_end * dDURATION/dp. */
+  quietEnd?: Sym;
 }
 
 export interface TrajectoryNeeds {
@@ -116,6 +158,8 @@ export interface NeuronDerivation {
   receptors: IncomingDerivation[];
   /** The first of `receptors` (v0's only block), or null. */
   incoming: IncomingDerivation | null;
+  /** The quiet mode and its transitions, for a neuron with `quiet for` (null otherwise). */
+  quiet: QuietDerivation | null;
   paramGradients: Map<string, ParamGradient>;
   trajectory: TrajectoryNeeds;
   issues: DerivationIssue[];
@@ -156,7 +200,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   const gradientParams = neuron.params.filter((p) => ctx.params === 'all' || p.trainable).map((p) => p.name);
   const base: NeuronDerivation = {
     name: neuron.name, hash: modelHash(neuron), wellFormed: neuron.wellFormed, states, gradientParams,
-    jacobian: [], adjointFlow: new Map(), spike: null, receptors: [], incoming: null, paramGradients: new Map(),
+    jacobian: [], adjointFlow: new Map(), spike: null, receptors: [], incoming: null, quiet: null, paramGradients: new Map(),
     trajectory: { eventBased: true, adjointStates: [], gradientStates: [], bytesPerStep: 0 }, issues: [], notes: [], millis: 0,
   };
   if (!neuron.wellFormed) {
@@ -184,7 +228,7 @@ export function deriveNeuron(neuron: ResolvedNeuron, ctx: DeriveContext = {}): N
   }
 }
 
-type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'receptors' | 'incoming' | 'paramGradients' | 'trajectory'>;
+type Derived = Pick<NeuronDerivation, 'jacobian' | 'adjointFlow' | 'spike' | 'receptors' | 'incoming' | 'quiet' | 'paramGradients' | 'trajectory'>;
 
 function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string[], work: Work): Derived {
   const lambda = states.map((x) => sym(lambdaName(x)));
@@ -203,9 +247,26 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
     work.issues.push(...nonSmoothIssues(where, [f[i]!], [...states, ...gradientParams]), ...denominatorIssues(where, exprs, states));
   });
 
-  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, gradientParams, work) : null;
+  const spike = neuron.fire ? deriveSpike(neuron, states, lambda, f, f, gradientParams, work) : null;
   const receptors = neuron.receptors.map((inj) => deriveIncoming(inj, states, lambda, f, gradientParams, work));
   const incoming = receptors[0] ?? null;
+  // The quiet mode: its flows (the listed ones replace the normal ones), its adjoint flow,
+  // the spike into it and its end, each by the same transition formula.
+  const fq = neuron.quiet ? states.map((x, i) => neuron.quiet!.flows.get(x) ?? f[i]!) : null;
+  let quiet: QuietDerivation | null = null;
+  if (neuron.quiet && fq) {
+    const jq = fq.map((fi) => states.map((x) => derivative(fi, x)));
+    const qFlow = new Map<string, Sym>();
+    states.forEach((x, j) => {
+      const raw = add(...states.map((_, i) => mul(num(-1), jq[i]![j]!, lambda[i]!)), mul(num(-1), sym(lossPartialName(x))));
+      qFlow.set(x, work.simp(raw, `adjoint flow of ${x} in the quiet period`, { kind: 'flow', state: x }));
+    });
+    const end = deriveQuietEnd(neuron, states, lambda, fq, f, work);
+    // each block's coupling term while quiet (the target's flow is the quiet one)
+    const couplings = neuron.receptors.map((inj) => incomingCoupling(inj, states, lambda, fq, work));
+    quiet = { duration: neuron.quiet.duration, adjointFlow: qFlow,
+      spike: neuron.fire ? deriveSpike(neuron, states, lambda, f, fq, gradientParams, work, true) : null, end, coupling: couplings[0] ?? null, couplings };
+  }
 
   const paramGradients = new Map<string, ParamGradient>();
   for (const p of gradientParams) {
@@ -219,16 +280,23 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
       spikeInc = r.sym;
       spikeImposed = work.simp(dot(hp.map((d, i) => [lambda[i]!, d])), `increment of the ${p} gradient at a spike fired by a jump`, { kind: 'fire' });
     }
-    paramGradients.set(p, { flow, spike: spikeInc, spikeImposed, incoming: incoming?.params.get(p) ?? null });
+    const g: ParamGradient = { flow, spike: spikeInc, spikeImposed, incoming: incoming?.params.get(p) ?? null };
+    if (neuron.quiet && fq && quiet) {
+      g.quietFlow = work.simp(dot(fq.map((fi, i) => [lambda[i]!, derivative(fi, p)])), `quiet-period integrand of the ${p} gradient`);
+      // the end's guard t - t_spike - DURATION: dg/dp = -dDURATION/dp
+      g.quietEnd = work.simp(mul(num(-1), quiet.end.phi, derivative(neuron.quiet.duration, p)), `increment of the ${p} gradient at the end of a quiet period`);
+    }
+    paramGradients.set(p, g);
   }
   if (spike) {
     const extra = [...paramGradients.values()].flatMap((g) => (g.spike ? stateFree(g.spike, states) : []));
     spike.record = states.filter((x) => spike.record.includes(x) || extra.includes(x));
   }
 
-  const adjointStates = states.filter((x) => [...adjointFlow.values()].some((e) => dependsOn(e, x)));
+  const adjointFlows = [...adjointFlow.values(), ...(quiet ? quiet.adjointFlow.values() : [])];
+  const adjointStates = states.filter((x) => adjointFlows.some((e) => dependsOn(e, x)));
   const gradientStates = states.filter((x) => !adjointStates.includes(x)
-    && [...paramGradients.values()].some((g) => dependsOn(g.flow, x)));
+    && [...paramGradients.values()].some((g) => dependsOn(g.flow, x) || (g.quietFlow !== undefined && dependsOn(g.quietFlow, x))));
   const trajectory: TrajectoryNeeds = {
     eventBased: adjointStates.length === 0, adjointStates, gradientStates,
     bytesPerStep: 8 * (adjointStates.length + gradientStates.length),
@@ -240,10 +308,37 @@ function derive(neuron: ResolvedNeuron, states: string[], gradientParams: string
   if (gradientStates.length > 0) {
     work.notes.push(`the parameter-gradient integrands also need the trajectory of ${gradientStates.join(', ')}`);
   }
-  return { jacobian, adjointFlow, spike, receptors, incoming, paramGradients, trajectory };
+  if (quiet) {
+    work.notes.push('the end of the quiet period is a transition at time t_spike + DURATION: its phi, lambda . (f_normal - f_quiet), is added to the coupling of the spike that started the period (it moves with that spike), and -phi dDURATION/dp to the gradient of each parameter of DURATION');
+  }
+  return { jacobian, adjointFlow, spike, receptors, incoming, quiet, paramGradients, trajectory };
 }
 
-function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): SpikeDerivation {
+/**
+ * The end of a quiet period by the general transition formula: guard g = t - t_spike - D
+ * (the constant t_spike left out: it has no derivative by a state, t or a parameter), no
+ * jump (h = identity), flow before fq (quiet) and after f (normal), no spike (no coupling,
+ * no spike-time loss).
+ */
+function deriveQuietEnd(neuron: ResolvedNeuron, states: string[], lambda: Sym[], fq: Sym[], f: Sym[], work: Work): QuietEndDerivation {
+  const where: Where = { kind: 'fire' };
+  const D = neuron.quiet!.duration;
+  const g = add(sym(TIME), mul(num(-1), D));
+  const gx = states.map((x) => derivative(g, x));
+  const gdot = work.simp(add(dot(gx.map((d, j) => [d, fq[j]!])), derivative(g, TIME)), 'slope of the end of the quiet period', where);
+  // tangential term with h = identity: f_after(x) - f_before(x)
+  const numer = work.simp(add(dot(states.map((_, i) => [lambda[i]!, add(f[i]!, mul(num(-1), fq[i]!))])), sym(LV_POST), mul(num(-1), sym(LV_PRE))),
+    'phi numerator at the end of the quiet period', where);
+  const phi = work.simp(mul(numer, pow(gdot, num(-1))), 'phi at the end of the quiet period', where);
+  const jump = new Map<string, Sym>();
+  states.forEach((x, j) => jump.set(x, work.simp(add(lambda[j]!, mul(phi, gx[j]!)), `jump of lambda_${x} at the end of the quiet period`, where)));
+  const shown = add(sym(TIME), mul(num(-1), sym('t_spike')), mul(num(-1), D));
+  return { guard: shown, gdot, phiNumerator: numer, phi, jump };
+}
+
+/** The threshold transition: flow f before it, fAfter after it (the quiet flows when it starts a quiet period). */
+function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f: Sym[], fAfter: Sym[], gradientParams: string[], work: Work,
+  intoQuiet = false): SpikeDerivation {
   const fire = neuron.fire!;
   const where: Where = { kind: 'fire' };
   const g = fire.guard;
@@ -254,7 +349,7 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
   const ht = h.map((hi) => derivative(hi, TIME));
   const post = new Map(states.map((x, i) => [x, h[i]!] as const));
   // Tangential part: f(x+) - h_x f(x-) - h_t, component by component.
-  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+  const tangential = states.map((x, i) => work.simp(add(substitute(fAfter[i]!, post),
     ...states.map((__, j) => mul(num(-1), hx[i]![j]!, f[j]!)), mul(num(-1), ht[i]!)), `tangential term of ${x}`, where));
 
   const gdotRaw = work.simp(add(dot(gx.map((d, j) => [d, f[j]!])), gt), 'guard slope', where);
@@ -267,29 +362,32 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     if (r.used) surfaceUsed = true;
     return r.sym;
   };
+  // A guard the flow never moves (its states change only by jumps): every spike is fired by a
+  // jump, at an imposed time; nothing divides by the slope.
+  const byJumpsOnly = isZero(gdotRaw) && jumpOnlyGuard(neuron, states);
   const gdot = surf(gdotRaw);
   const numerRaw = add(dot(tangential.map((d, i) => [lambda[i]!, d])), sym(COUPLING), mul(num(-1), sym(DLP_DT)), sym(LV_POST), mul(num(-1), sym(LV_PRE)));
   const phiNumerator = surf(work.simp(numerRaw, 'phi numerator', where));
-  const phi = surf(work.simp(mul(phiNumerator, pow(gdot, num(-1))), 'phi', where));
+  const phi = byJumpsOnly ? ZERO : surf(work.simp(mul(phiNumerator, pow(gdot, num(-1))), 'phi', where));
   const jump = new Map<string, Sym>();
   states.forEach((x, j) => {
-    const raw = add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!)), mul(sym(PHI), gx[j]!));
+    const raw = add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!)), byJumpsOnly ? ZERO : mul(sym(PHI), gx[j]!));
     jump.set(x, surf(work.simp(raw, `jump of lambda_${x}`, where)));
   });
 
-  if (surfaceUsed && rule) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
-  work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
+  if (surfaceUsed && rule && !intoQuiet) work.notes.push(`spike formulas are simplified on the guard surface, where ${rule.state} = ${toMathjs(rule.value)}`);
+  if (!intoQuiet) work.notes.push('phi contains `coupling`: the sum over the outgoing synapses of each target\'s incoming coupling term, written with the target\'s own state and lambda names'
     + (neuron.receptors.length ? ' (where the model projects onto itself, the targets are other neurons of the same model)' : ''));
 
   // Grazing: the slope can vanish on the guard surface.
-  const grazing = vanishingConditions(gdot, states);
+  const grazing = intoQuiet || byJumpsOnly ? [] : vanishingConditions(gdot, states);
   if (grazing.length > 0) {
     work.issues.push({ code: 'grazing-crossing', where, conditions: grazing,
       message: `the crossing is not transversal when ${grazing.map(conditionText).join(' or ')}: a spike there has no time derivative (guard slope ${slopeText(gdot)}); `
         + 'a threshold model has such a set, so this is information: the cross-check warns where a run comes near it' });
   }
   const jumpExprs = [...h, ...hx.flat(), g, ...gx];
-  work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
+  if (!intoQuiet) work.issues.push(...nonSmoothIssues(where, [g, ...h], [...states, ...gradientParams]), ...denominatorIssues(where, jumpExprs, states));
 
   // The same transition at an imposed time: no phi, and the state is not on the guard surface.
   const imposedJump = new Map<string, Sym>();
@@ -297,13 +395,17 @@ function deriveSpike(neuron: ResolvedNeuron, states: string[], lambda: Sym[], f:
     imposedJump.set(x, work.simp(add(...states.map((_, i) => mul(hx[i]![j]!, lambda[i]!))), `jump of lambda_${x} at a spike fired by a jump`, where));
   });
   const imposed: ImposedTransition = { numerator: work.simp(numerRaw, 'numerator of a spike fired by a jump', where), jump: imposedJump };
-  work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
+  if (!intoQuiet) work.notes.push('a spike fired by a jump (an arrival carried the guard across) has the arrival\'s time: no phi of its own (lambda before = h_x^T lambda after), and its phi numerator, taken off the guard surface, is added to the coupling of the spike that caused the arrival');
 
   const record = states.filter((x) => [gdot, phi, ...jump.values()].some((e) => dependsOn(e, x)));
   const surfaceSlope = rule ? onSurfaceAlways(gdotRaw, rule, work) : gdot;
   const postGuard = rule ? onSurfaceAlways(substitute(g, post), rule, work) : work.simp(substitute(g, post), 'guard after the jump', where);
+  if (byJumpsOnly && !intoQuiet) {
+    work.issues.push({ code: 'fires-only-by-jumps', where, conditions: [],
+      message: `the guard's state${guardStatesOf(neuron, states).length === 1 ? '' : 's'} ${guardStatesOf(neuron, states).join(', ')} ${guardStatesOf(neuron, states).length === 1 ? 'has' : 'have'} no flow and change${guardStatesOf(neuron, states).length === 1 ? 's' : ''} only by jumps: the flow never crosses the guard, so this neuron fires only when an incoming jump carries it across, at that arrival's instant (its spike time moves with the spike that arrived)` });
+  }
   return { direction: fire.direction, gdot, gdotRaw, phiNumerator, phi, jump, ...(surfaceUsed && rule ? { surface: rule } : {}),
-    surfaceSlope, postGuard, record, eventBased: true, imposed };
+    surfaceSlope, postGuard, record, eventBased: true, imposed, ...(byJumpsOnly ? { byJumpsOnly } : {}) };
 }
 
 function deriveIncoming(inj: IncomingInfo, states: string[], lambda: Sym[], f: Sym[], gradientParams: string[], work: Work): IncomingDerivation {
@@ -311,11 +413,7 @@ function deriveIncoming(inj: IncomingInfo, states: string[], lambda: Sym[], f: S
   const w = inj.weight;
   const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
   const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
-  const rt = r.map((ri) => derivative(ri, TIME));
-  const post = new Map(states.map((x, i) => [x, r[i]!] as const));
-  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
-    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)), `tangential term of ${x}`, where));
-  const coupling = work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
+  const coupling = incomingCoupling(inj, states, lambda, f, work);
   const jump = new Map<string, Sym>();
   states.forEach((x, j) => jump.set(x, work.simp(add(...states.map((_, i) => mul(ry[i]![j]!, lambda[i]!))), `incoming jump of lambda_${x}`, where)));
   const weightGradient = work.simp(dot(r.map((ri, i) => [lambda[i]!, derivative(ri, w)])), 'weight gradient', where);
@@ -327,6 +425,18 @@ function deriveIncoming(inj: IncomingInfo, states: string[], lambda: Sym[], f: S
   return { weight: w, jump, weightGradient, coupling, record, params };
 }
 
+/** A target's coupling term, lambda+ . (f(r(y-)) - r_y f(y-) - r_t), with the flow f of the mode it is in. */
+function incomingCoupling(inj: IncomingInfo, states: string[], lambda: Sym[], f: Sym[], work: Work): Sym {
+  const where: Where = { kind: 'incoming', weight: inj.weight };
+  const r = states.map((x) => inj.jumps.get(x) ?? sym(x));
+  const ry = r.map((ri) => states.map((x) => derivative(ri, x)));
+  const rt = r.map((ri) => derivative(ri, TIME));
+  const post = new Map(states.map((x, i) => [x, r[i]!] as const));
+  const tangential = states.map((x, i) => work.simp(add(substitute(f[i]!, post),
+    ...states.map((__, j) => mul(num(-1), ry[i]![j]!, f[j]!)), mul(num(-1), rt[i]!)), `tangential term of ${x}`, where));
+  return work.simp(dot(tangential.map((d, i) => [lambda[i]!, d])), 'coupling term', where);
+}
+
 /** s on the guard surface (the substitution made even where it reads longer), simplified. */
 function onSurfaceAlways(s: Sym, rule: SurfaceRule, work: Work): Sym {
   if (!dependsOn(s, rule.state)) return work.simp(s, 'guard-surface fact', { kind: 'fire' });
@@ -334,6 +444,16 @@ function onSurfaceAlways(s: Sym, rule: SurfaceRule, work: Work): Sym {
 }
 
 const isZero = (s: Sym): boolean => s.k === 'num' && s.v === 0;
+
+const guardStatesOf = (neuron: ResolvedNeuron, states: readonly string[]): string[] => states.filter((x) => dependsOn(neuron.fire!.guard, x));
+
+/** The guard holds states only, none of them with a flow, and an incoming jump moves one of them: a spike counter, fired by jumps. */
+function jumpOnlyGuard(neuron: ResolvedNeuron, states: readonly string[]): boolean {
+  const g = neuron.fire?.guard;
+  if (!g || dependsOn(g, TIME)) return false;
+  const inGuard = guardStatesOf(neuron, states);
+  return inGuard.length > 0 && inGuard.every((x) => !neuron.flows.has(x)) && inGuard.some((x) => neuron.incoming?.jumps.has(x) === true);
+}
 
 /**
  * A guard whose slope is identically 0 on the guard surface: its states have no flow (they
@@ -355,6 +475,7 @@ function zeroSlope(neuron: ResolvedNeuron, states: string[], work: Work): Deriva
       message: `the guard ${toMathjs(g)} = 0 holds no state and no t: it never changes, so the flow never crosses it (guard slope ${formula}); ${end}` };
   }
   if (isZero(raw) && inGuard.every((x) => !neuron.flows.has(x)) && !dependsOn(g, TIME)) {
+    if (jumpOnlyGuard(neuron, states)) return undefined; // fired by jumps (deriveSpike says so)
     return { code: 'zero-guard-slope', where: { kind: 'fire' }, conditions: [],
       message: `the guard's state${inGuard.length === 1 ? '' : 's'} ${inGuard.join(', ')} ${inGuard.length === 1 ? 'has' : 'have'} no flow: ${inGuard.length === 1 ? 'it changes' : 'they change'} only by jumps, so the flow never crosses the guard (guard slope ${formula}; it could fire by jumps only, but a model whose guard slope is identically 0 is not derived); ${end}` };
   }

@@ -16,6 +16,7 @@ import { guardDiagnostics } from './guardFacts';
 
 const SEVERITY: Record<DerivationIssue['code'], Severity> = {
   'zero-guard-slope': 'error',
+  'fires-only-by-jumps': 'info',
   'grazing-crossing': 'info',
   'non-smooth': 'warning',
   'vanishing-denominator': 'info',

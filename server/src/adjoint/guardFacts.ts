@@ -7,7 +7,11 @@
 //   jump moves the guard, warning `never-fires` when nothing does), or is 0 for these
 //   values (error `zero-guard-slope`);
 // - the spike jump leaves the neuron on the threshold or on the side it fires from
-//   (warning `reset-on-threshold`, with quick fixes to reset to a declared value below it).
+//   (warning `reset-on-threshold`, with quick fixes to reset to a declared value below it);
+// - a quiet period ends with the neuron on the side it fires from (warning
+//   `fired-side-after-quiet`): said where the quiet flows of the guard's states are constant
+//   rates (0 holds them) and no incoming jump moves them, so the guard at the end is
+//   g(h(x-) + rate * DURATION) on the threshold surface, a number for the file's values.
 // Sound and conservative: a fact is used only when, after substituting the parameter values
 // and the states that never change (no flow, no jump), it is a number; otherwise nothing
 // is said. Invariant: never throws; ranges lie inside the neuron's fire block.
@@ -20,6 +24,8 @@ import { readableText as toMathjs } from '../symbolic/readable';
 import { TIME as TIME_DIM, dimDiv, dimEqual, formatNumber, formatQuantity, parseUnit } from '../units';
 import { TIME } from '../base/names';
 import type { NeuronDerivation } from './derive';
+import { add, mul } from '../symbolic/sym';
+import { guardSurfaceRule } from './surface';
 
 /** Parameters by SI value and states that never change by their initial value; undefined when a parameter has no value. */
 function constants(n: ResolvedNeuron): Map<string, Sym> | undefined {
@@ -68,8 +74,8 @@ export function guardDiagnostics(derivation: NeuronDerivation, n: ResolvedNeuron
   const states = n.states.map((s) => s.name);
   const where = spike.surface ? ` (where ${spike.surface.state} = ${toMathjs(spike.surface.value)})` : '';
 
-  // 1. Can the flow cross at all?
-  const slope = dependsOn(spike.surfaceSlope, TIME) ? undefined : valueOf(spike.surfaceSlope, env);
+  // 1. Can the flow cross at all? (A guard the flow never moves is said by the derivation.)
+  const slope = spike.byJumpsOnly || dependsOn(spike.surfaceSlope, TIME) ? undefined : valueOf(spike.surfaceSlope, env);
   if (slope !== undefined) {
     const formula = `gdot = ${toMathjs(spike.surfaceSlope)}`;
     if (slope === 0) {
@@ -110,8 +116,37 @@ export function guardDiagnostics(derivation: NeuronDerivation, n: ResolvedNeuron
         ...(fixes.length ? { fixes } : {}) });
     }
   }
+  if (n.quiet && !onItOrFired(out)) out.push(...quietEndDiagnostics(n, env, dir));
   return out;
 }
+
+const onItOrFired = (ds: Diagnostic[]): boolean => ds.some((d) => d.code === 'reset-on-threshold');
+
+/** The guard when the quiet period ends, where that is a number for the file's values (see the header). */
+function quietEndDiagnostics(n: ResolvedNeuron, env: Map<string, Sym>, dir: number): Diagnostic[] {
+  const fire = n.fire!, quiet = n.quiet!;
+  if (dir === 0 || dependsOn(fire.guard, TIME)) return [];
+  const states = n.states.map((s) => s.name);
+  const guardStates = states.filter((x) => dependsOn(fire.guard, x) && !env.has(x));
+  if (guardStates.some((x) => n.incoming?.jumps.has(x))) return []; // arrivals in the quiet period move it
+  const end = new Map<string, Sym>();
+  for (const x of guardStates) {
+    const rate = quiet.flows.get(x) ?? n.flows.get(x) ?? num(0);
+    if ([...freeSymbols(rate)].some((y) => states.includes(y) || y === TIME)) return []; // not a constant rate
+    end.set(x, add(fire.jumps.get(x) ?? sym0(x), mul(rate, quiet.duration)));
+  }
+  const preferred = [fire.lhs, fire.rhs].flatMap((s) => (s.k === 'sym' && states.includes(s.name) ? [s.name] : []));
+  const rule = guardSurfaceRule(fire.guard, states, preferred);
+  let g = substitute(fire.guard, end);
+  if (rule) g = substitute(g, new Map([[rule.state, rule.value]]));
+  const value = valueOf(g, env);
+  const D = valueOf(quiet.duration, env);
+  if (value === undefined || D === undefined || !(D > 0) || Math.sign(value) !== dir) return [];
+  return [{ severity: 'warning', code: 'fired-side-after-quiet', range: quiet.decl.keywordRange,
+    message: `the quiet period ends with the neuron on the side it fires from (the guard is ${formatNumber(value, 3)} when it ends, for the file's values): it does not fire then, only at its next crossing ${dir > 0 ? 'upward' : 'downward'}, after the flow has first taken it back` }];
+}
+
+const sym0 = (x: string): Sym => ({ k: 'sym', name: x });
 
 /** The slope in the file's units where the guard has a state's unit ('-2 [mV/ms]'), else the SI number. */
 function slopeText(n: ResolvedNeuron, slope: number): string {

@@ -3,7 +3,7 @@
 import type { NeuronDerivation } from './derive';
 import type { Sym } from '../symbolic/sym';
 import { latexName, toLatex } from '../symbolic/latex'; // not symbolic/index: that also loads mathjs's parser, a slow start-up
-import { readable } from '../symbolic/readable';
+import { readable, readableText } from '../symbolic/readable';
 import type { RulePreviewRow, RulePreviewSection } from '../rules/types';
 
 export interface AdjointPreviewModel { name: string; badge: string; doc?: string; sections: RulePreviewSection[]; notes: string[] }
@@ -57,12 +57,26 @@ export function previewModel(d: NeuronDerivation, doc?: string): AdjointPreviewM
       ],
     });
   }
+  if (d.quiet) {
+    const q = d.quiet;
+    sections.push({
+      title: `In the quiet period (for ${readableText(q.duration)} after each spike)`,
+      note: 'the quiet flows apply between its start and its end; a spike into it takes φ with the quiet flow after it; at its end (guard t − t_spike − duration, slope 1, no jump) φ_end is added to the coupling of the spike that started it',
+      rows: [
+        ...[...q.adjointFlow].map(([x, e]) => ({ label: `λ_${x} (quiet)`, latex: `\\frac{d${lam(x)}}{dt} = ${L(e)}` })),
+        ...(q.spike ? [{ label: 'φ into it', latex: `\\phi = ${L(q.spike.phi)}` }] : []),
+        { label: 'φ at its end', latex: `\\phi_{\\mathrm{end}} = ${L(q.end.phi)}` },
+        ...(q.coupling ? [{ label: 'coupling term (quiet)', latex: `c = ${L(q.coupling)}` }] : []),
+      ],
+    });
+  }
   const grads = [...d.paramGradients].map(([p, g]) => {
     const parts = [!isZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', !isZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
       ...d.receptors.flatMap((i) => {
         const e = i.params.get(p);
         return e && !isZero(e) ? [`\\sum_{\\text{received${d.receptors.length > 1 ? `, ${i.weight}` : ''}}} ${L(e)}`] : [];
-      })].filter((x) => x);
+      }),
+      g.quietEnd && !isZero(g.quietEnd) ? `\\sum_{\\text{ends}} ${L(g.quietEnd)}` : ''].filter((x) => x);
     return { label: p, latex: `\\frac{\\partial L}{\\partial ${latexName(p)}} = ${parts.length ? parts.join(' + ') : '0'}` };
   });
   if (grads.length) sections.push({ title: 'Gradients of trainable parameters', rows: grads });

@@ -24,7 +24,14 @@ export interface AdjointJsonModel {
   incoming: { weight: string; jump: Record<string, Expr>; weightGradient: Expr; coupling: Expr; record: string[] } | null;
   /** One per incoming block, in the model's order, with each parameter's increment per spike received there. */
   receptors: { weight: string; jump: Record<string, Expr>; weightGradient: Expr; coupling: Expr; record: string[]; params: Record<string, Expr> }[];
-  paramGradients: Record<string, { flow: Expr; spike: Expr | null; incoming: Expr | null }>;
+  paramGradients: Record<string, { flow: Expr; spike: Expr | null; incoming: Expr | null; quietFlow?: Expr; quietEnd?: Expr }>;
+  /** The quiet mode (`quiet for`), absent without one (docs/adjoint.md "Transitions and quiet periods"). */
+  quiet?: {
+    duration: Expr; adjointFlow: Record<string, Expr>;
+    spike: { gdot: Expr; phi: Expr; jump: Record<string, Expr> } | null;
+    end: { guard: Expr; gdot: Expr; phi: Expr; jump: Record<string, Expr> };
+    coupling: Expr | null;
+  };
   trajectory: { eventBased: boolean; adjointStates: string[]; gradientStates: string[]; bytesPerStep: number };
   notes: string[];
 }
@@ -46,7 +53,14 @@ export function adjointJson(derivations: readonly NeuronDerivation[]): AdjointJs
         coupling: toMathjs(d.incoming.coupling), record: d.incoming.record } : null,
       receptors: d.receptors.map((i) => ({ weight: i.weight, jump: record(i.jump), weightGradient: toMathjs(i.weightGradient),
         coupling: toMathjs(i.coupling), record: i.record, params: record(i.params) })),
-      paramGradients: Object.fromEntries([...d.paramGradients].map(([p, g]) => [p, { flow: toMathjs(g.flow), spike: text(g.spike), incoming: text(g.incoming) }])),
+      paramGradients: Object.fromEntries([...d.paramGradients].map(([p, g]) => [p, { flow: toMathjs(g.flow), spike: text(g.spike), incoming: text(g.incoming),
+        ...(g.quietFlow ? { quietFlow: toMathjs(g.quietFlow) } : {}), ...(g.quietEnd ? { quietEnd: toMathjs(g.quietEnd) } : {}) }])),
+      ...(d.quiet ? { quiet: {
+        duration: toMathjs(d.quiet.duration), adjointFlow: record(d.quiet.adjointFlow),
+        spike: d.quiet.spike ? { gdot: toMathjs(d.quiet.spike.gdot), phi: toMathjs(d.quiet.spike.phi), jump: record(d.quiet.spike.jump) } : null,
+        end: { guard: toMathjs(d.quiet.end.guard), gdot: toMathjs(d.quiet.end.gdot), phi: toMathjs(d.quiet.end.phi), jump: record(d.quiet.end.jump) },
+        coupling: text(d.quiet.coupling),
+      } } : {}),
       trajectory: { ...d.trajectory },
       notes: [...d.notes],
     })),
@@ -94,10 +108,23 @@ export function renderText(d: NeuronDerivation): string {
     out.push(`  dL/d${i.weight} += ${t(i.weightGradient)}`, `  coupling term (summed into the sender's coupling) = ${t(i.coupling)}`);
     out.push(`  record at each received spike: ${recordText(i.record, '(nothing but the time)')}`);
   }
+  if (d.quiet) {
+    const q = d.quiet;
+    out.push(`In the quiet period (quiet for ${t(q.duration)} after each spike):`);
+    for (const [x, e] of q.adjointFlow) out.push(`  d${lambdaName(x)}/dt = ${t(e)}`);
+    if (q.spike) {
+      out.push('  at a spike that starts it (the flow after is the quiet one):', `    phi = ${t(q.spike.phi)}`);
+      for (const [x, e] of q.spike.jump) out.push(`    ${lambdaName(x)}- = ${t(e)}`);
+    }
+    out.push(`  at its end (guard ${t(q.end.guard)}, gdot = ${t(q.end.gdot)}; no jump):`, `    phi = ${t(q.end.phi)}  (added to the coupling of the spike that started the period)`);
+    for (const [x, e] of q.end.jump) out.push(`    ${lambdaName(x)}- = ${t(e)}`);
+    if (q.coupling) out.push(`  coupling term while quiet = ${t(q.coupling)}`);
+  }
   for (const [p, g] of d.paramGradients) {
-    const parts = [nonZero(g.flow) ? `integral of ${t(g.flow)} dt` : '',
+    const parts = [nonZero(g.flow) ? `integral of ${t(g.flow)} dt` + (g.quietFlow ? ` (${nonZero(g.quietFlow) ? t(g.quietFlow) : '0'} in the quiet period)` : '') : '',
       nonZero(g.spike) ? `sum over spikes of ${t(g.spike!)}` : '',
-      ...received(d, p, (e, w) => `sum over ${w ? `spikes received at ${w}` : 'received spikes'} of ${t(e)}`)].filter((x) => x);
+      ...received(d, p, (e, w) => `sum over ${w ? `spikes received at ${w}` : 'received spikes'} of ${t(e)}`),
+      g.quietEnd && nonZero(g.quietEnd) ? `sum over ends of quiet periods of ${t(g.quietEnd)}` : ''].filter((x) => x);
     out.push(`dL/d${p} = ${parts.length ? parts.join(' + ') : '0'}`);
   }
   const body = out.join('\n');
@@ -123,9 +150,15 @@ export function renderLatex(d: NeuronDerivation): string {
     rows.push(`\\Delta \\frac{\\partial L}{\\partial ${i.weight}} &= ${L(i.weightGradient)}`);
     rows.push(`\\text{coupling term${via}} &= ${L(i.coupling)}`);
   }
+  if (d.quiet) {
+    for (const [x, e] of d.quiet.adjointFlow) rows.push(`\\frac{d${lam(x)}}{dt} &= ${L(e)} \\quad\\text{(quiet period)}`);
+    if (d.quiet.spike) rows.push(`\\phi &= ${L(d.quiet.spike.phi)} \\quad\\text{(spike into the quiet period)}`);
+    rows.push(`\\phi_{\\text{end}} &= ${L(d.quiet.end.phi)} \\quad\\text{(end of the quiet period)}`);
+  }
   for (const [p, g] of d.paramGradients) {
     const parts = [nonZero(g.flow) ? `\\int ${L(g.flow)}\\,dt` : '', nonZero(g.spike) ? `\\sum_{\\text{spikes}} ${L(g.spike!)}` : '',
-      ...received(d, p, (e, w) => `\\sum_{\\text{received${w ? `, ${w}` : ''}}} ${L(e)}`)].filter((x) => x);
+      ...received(d, p, (e, w) => `\\sum_{\\text{received${w ? `, ${w}` : ''}}} ${L(e)}`),
+      g.quietEnd && nonZero(g.quietEnd) ? `\\sum_{\\text{ends}} ${L(g.quietEnd)}` : ''].filter((x) => x);
     rows.push(`\\frac{\\partial L}{\\partial ${p}} &= ${parts.length ? parts.join(' + ') : '0'}`);
   }
   return `\\begin{aligned}\n${rows.join(' \\\\\n')}\n\\end{aligned}`;
@@ -149,10 +182,18 @@ export function renderMarkdown(d: NeuronDerivation): string {
     out.push(`- weight gradient increment = ${c(i.weightGradient)}`, `- coupling term in the sender's \`phi\` = ${c(i.coupling)}`);
     out.push(`- record at each received spike: ${i.record.map((x) => '`' + x + '`').join(', ') || 'the time only'}`);
   }
+  if (d.quiet) {
+    const q = d.quiet;
+    out.push('', `**In the quiet period** (\`quiet for\` ${c(q.duration)} after each spike)`, '');
+    for (const [x, e] of q.adjointFlow) out.push(`- \`d${lambdaName(x)}/dt\` = ${c(e)}`);
+    if (q.spike) out.push(`- at a spike that starts it, \`phi\` = ${c(q.spike.phi)} (the flow after the spike is the quiet one)`);
+    out.push(`- at its end (guard ${c(q.end.guard)}, slope ${c(q.end.gdot)}, no jump): \`phi\` = ${c(q.end.phi)}, added to the coupling of the spike that started the period`);
+  }
   if (d.paramGradients.size) {
     out.push('', '**Parameter gradients**', '');
     for (const [p, g] of d.paramGradients) {
-      out.push(`- \`${p}\`: integrand ${c(g.flow)}` + (nonZero(g.spike) ? `; per spike ${c(g.spike!)}` : '') + received(d, p, (e, w) => `; per ${w ? `spike received at ${w}` : 'received spike'} ${c(e)}`).join(''));
+      out.push(`- \`${p}\`: integrand ${c(g.flow)}` + (nonZero(g.spike) ? `; per spike ${c(g.spike!)}` : '') + received(d, p, (e, w) => `; per ${w ? `spike received at ${w}` : 'received spike'} ${c(e)}`).join('')
+        + (g.quietFlow && nonZero(g.quietFlow) ? `; in the quiet period ${c(g.quietFlow)}` : '') + (g.quietEnd && nonZero(g.quietEnd) ? `; per end of a quiet period ${c(g.quietEnd)}` : ''));
     }
   }
   if (d.notes.length) out.push('', '**Notes**', '', ...d.notes.map((n) => `- ${n}`));

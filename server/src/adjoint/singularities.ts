@@ -15,7 +15,7 @@ import { TIME } from '../base/names';
 export type Where = { kind: 'flow'; state: string } | { kind: 'fire' } | { kind: 'incoming'; weight?: string };
 
 export interface DerivationIssue {
-  code: 'grazing-crossing' | 'non-smooth' | 'vanishing-denominator' | 'derivation-budget' | 'zero-guard-slope';
+  code: 'grazing-crossing' | 'non-smooth' | 'vanishing-denominator' | 'derivation-budget' | 'zero-guard-slope' | 'fires-only-by-jumps';
   where: Where;
   /** The issue arises where any of these holds (empty for budget notes). */
   conditions: Condition[];

@@ -44,6 +44,9 @@ export const DiagnosticCodes = [
   'surrogate-without-fire',
   'missing-via',
   'negative-delay',
+  'quiet-without-fire',
+  'negative-quiet-period',
+  'fired-side-after-quiet',
 ] as const;
 export type DiagnosticCode = (typeof DiagnosticCodes)[number];
 

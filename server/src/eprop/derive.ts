@@ -69,6 +69,7 @@ export function whyNoEligibility(n: ResolvedNeuron): string | undefined {
   if (!n.wellFormed) return `${n.name} has errors`;
   if (!n.fire) return `${n.name} has no fire block: it never spikes, so it has no pseudo-derivative and no eligibility trace`;
   if (n.fire.direction === 'either') return `${n.name} fires on a crossing in either direction: e-prop's spike test z = H(g) needs 'up' or 'down'`;
+  if (n.quiet) return `${n.name} has a quiet period ('quiet for'): e-prop's discrete step has no quiet mode yet, so no eligibility trace is derived`;
   if (!n.surrogate) return `${n.name} has no 'surrogate' line: e-prop needs the pseudo-derivative of the spike (add 'surrogate' inside the neuron; a quick fix writes the triangular one)`;
   const arrivalNames = n.receptors.slice(1).map((r) => arrivalName(r.weight));
   const clash = [...n.states, ...n.params].map((d) => d.name).concat(n.receptors.map((r) => r.weight))

@@ -99,6 +99,10 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
   const base: GridDerivation = { name: neuron.name, hash: modelHash(neuron), states, params, gradParams, exact: false, mapReason: '',
     map: empty, guard: null, spike: null, incoming: [], segmentStates: [], problems: [] };
   if (!neuron.wellFormed) return { ...base, problems: [`${neuron.name} has errors; fix them first (saltus check)`] };
+  // Quiet periods run in the accurate simulator (simulate/) and the derived adjoint; the grid
+  // semantics (a per-neuron countdown) and so every generated target do not have them yet:
+  // refused with the reason rather than run as if the block were absent.
+  if (neuron.quiet) return { ...base, problems: [`${neuron.name} has a quiet period ('quiet for'): the grid semantics and generated code do not run quiet periods yet (the accurate cross-check does: saltus crosscheck)`] };
   try {
     const m = stepMapFor(neuron);
     if (m.problems.length) return { ...base, problems: m.problems };

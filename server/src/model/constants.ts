@@ -45,6 +45,8 @@ export function constantUses(n: {
   flows: ReadonlyMap<string, Sym>;
   fire?: { guard: Sym; jumps: ReadonlyMap<string, Sym> };
   receptors: readonly { jumps: ReadonlyMap<string, Sym> }[];
+  /** A quiet period's flows (`quiet for`), which divide like the normal ones. */
+  quiet?: { flows: ReadonlyMap<string, Sym> };
 }): Map<string, ConstantUse> {
   const divides = new Map<string, string[]>();
   const note = (s: Sym, where: string): void => {
@@ -53,6 +55,7 @@ export function constantUses(n: {
     for (const p of names) divides.set(p, [...(divides.get(p) ?? []), where]);
   };
   for (const [x, f] of n.flows) note(f, `d${x}/dt`);
+  if (n.quiet) for (const [x, f] of n.quiet.flows) note(f, `d${x}/dt`);
   if (n.fire) {
     note(n.fire.guard, 'the guard');
     for (const [x, h] of n.fire.jumps) note(h, `the jump of ${x}`);

@@ -19,6 +19,10 @@ export function modelHash(n: ResolvedNeuron): string {
     parts.push('I', inc.weight);
     for (const [x, r] of inc.jumps) parts.push(`${x}:=${key(r)}`);
   }
+  if (n.quiet) {
+    parts.push('Q', key(n.quiet.duration));
+    for (const s of n.states) { const f = n.quiet.flows.get(s.name); if (f) parts.push(`d${s.name}=${key(f)}`); }
+  }
   if (n.surrogate) parts.push('Z', key(n.surrogate.psi), ...n.surrogate.detaching);
   return contentHash(parts.join('\u0001'));
 }

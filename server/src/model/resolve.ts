@@ -19,7 +19,8 @@ import { constantProblem, constantUses } from './constants';
 import { formatNumber } from '../units/format';
 import { repairUnits } from './unitRepair';
 import { resolveSurrogate } from './surrogate';
-import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, ResolvedFile, ResolvedNeuron, StateInfo, SurrogateInfo, SymbolInfo } from './types';
+import { resolveQuiet } from './quiet';
+import type { FireInfo, IncomingInfo, LetInfo, ParamInfo, QuietInfo, ResolvedFile, ResolvedNeuron, StateInfo, SurrogateInfo, SymbolInfo } from './types';
 
 /** Names the derivations use for their own symbols; a declaration may not take them. */
 export function isReservedName(name: string): boolean {
@@ -173,8 +174,10 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
   const weightsSeen = new Map<string, A.IncomingBlock>();
   let fireSeen: A.FireBlock | undefined;
   const surrogates: A.SurrogateDecl[] = [];
+  const quiets: A.QuietBlock[] = [];
   for (const m of decl.members) {
     if (m.kind === 'surrogate') { surrogates.push(m); continue; }
+    if (m.kind === 'quiet') { quiets.push(m); continue; }
     if (m.kind === 'flow') {
       const target = stateTarget(m.target, table, nName, ctx, 'an equation dX/dt');
       if (target && flowDecls.has(target.name)) {
@@ -217,6 +220,14 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       table, params, states, neuron: nName }, ctx);
     if (i === 0 && r) surrogate = r;
   });
+  // After the fire block, wherever it stands: a quiet period follows the neuron's spikes.
+  let quiet: QuietInfo | undefined;
+  quiets.forEach((m, i) => {
+    const r = resolveQuiet({ decl: m, ...(i > 0 ? { first: quiets[0]! } : {}), fireDecl: fireSeen,
+      durationScope: scopeFor('the duration of a quiet period'), flowScope, table, params, neuron: nName,
+      stateTarget: (id) => stateTarget(id, table, nName, ctx, 'an equation dX/dt'), checkFlowDim: (fm, target, dim) => checkFlowDim(fm, target, dim, params, ctx) }, ctx);
+    if (i === 0 && r) quiet = r;
+  });
   for (const s of states) {
     if (!flowDecls.has(s.name)) ctx.diagnostics.push({ severity: 'info', code: 'state-without-flow', range: s.nameRange,
       message: `'${s.name}' has no d${s.name}/dt equation: it stays constant between events` });
@@ -226,6 +237,7 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
     if (!used.has(d)) ctx.diagnostics.push({ severity: 'hint', code: 'unused-declaration', range: d.nameRange, message: `'${d.name}' is never used` });
   }
   checkBounds(lets, flows, flowDecls, fire, receptors, table, ctx);
+  if (quiet) for (const [x, f] of quiet.flows) { const e = complexityError(f, quiet.flowDecls.get(x)?.value?.range ?? quiet.decl.keywordRange, `d${x}/dt in the quiet period`); if (e) ctx.diagnostics.push(e); }
   if (!probe && ctx.mismatchRatios) {
     repairUnits({ decl, diagnostics: ctx.diagnostics.slice(diagnosticsBefore), ratios: ctx.mismatchRatios,
       references: ctx.references.slice(referencesBefore), unitsUsed: [...ctx.unitsUsed],
@@ -236,10 +248,10 @@ function resolveNeuron(decl: A.NeuronDecl, ctx: LowerContext, symbols: SymbolInf
       } });
   }
   // Only on a neuron that is otherwise sound (a too-complex expression is not walked again).
-  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, receptors, table, ctx);
+  if (countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0) checkConstants(params, flows, fire, receptors, table, ctx, quiet);
   const wellFormed = countErrors(ctx.diagnostics.slice(diagnosticsBefore)) === 0;
   return { name: nName, ...(decl.doc ? { doc: decl.doc.text } : {}), decl, symbol, params, states, lets, flows, flowDecls,
-    ...(fire ? { fire } : {}), receptors, ...(receptors[0] ? { incoming: receptors[0] } : {}), ...(surrogate ? { surrogate } : {}), wellFormed };
+    ...(fire ? { fire } : {}), receptors, ...(receptors[0] ? { incoming: receptors[0] } : {}), ...(surrogate ? { surrogate } : {}), ...(quiet ? { quiet } : {}), wellFormed };
 }
 
 /** 'too-complex' errors for resolved expressions that later stages could not walk in bounded time and stack. */
@@ -262,8 +274,8 @@ function checkBounds(lets: LetInfo[], flows: Map<string, S.Sym>, flowDecls: Map<
 
 /** Zero divisors (error) and negative time constants or capacitances (warning), on the parameter's value. */
 function checkConstants(params: ParamInfo[], flows: Map<string, S.Sym>, fire: FireInfo | undefined, receptors: IncomingInfo[],
-  table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext): void {
-  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), receptors });
+  table: Map<string, { decl: A.ParamDecl | A.StateDecl | A.LetDecl }>, ctx: LowerContext, quiet?: QuietInfo): void {
+  const uses = constantUses({ params, flows, ...(fire ? { fire } : {}), receptors, ...(quiet ? { quiet } : {}) });
   for (const p of params) {
     const use = uses.get(p.name);
     if (!use || p.valueSI === undefined) continue;

@@ -77,6 +77,19 @@ export interface SurrogateInfo {
   decl: A.SurrogateDecl;
 }
 
+/**
+ * `quiet for DURATION { FLOWS }` (docs/language.md "Quiet periods"): for `duration` seconds
+ * after each spike the listed flows replace the normal ones and the neuron cannot fire.
+ */
+export interface QuietInfo {
+  /** The duration, SI seconds, an expression of parameters only (lets inlined). */
+  duration: Sym;
+  /** dX/dt during the quiet period for the listed states (others keep their normal flow). */
+  flows: Map<string, Sym>;
+  flowDecls: Map<string, A.FlowEq>;
+  decl: A.QuietBlock;
+}
+
 export interface ResolvedNeuron {
   name: string;
   doc?: string;
@@ -95,6 +108,7 @@ export interface ResolvedNeuron {
   /** The first incoming block (v0's only one); every stage reads `receptors`. */
   incoming?: IncomingInfo;
   surrogate?: SurrogateInfo;
+  quiet?: QuietInfo;
   wellFormed: boolean;
 }
 

@@ -37,7 +37,7 @@ export const MODELLER_UNITS = [
   'uF/cm^2', 'mS/cm^2', 'uA/cm^2', 'um', 'cm',
 ] as const;
 
-const MEMBER_KEYWORDS = ['param', 'state', 'let', 'fire', 'incoming', 'surrogate'] as const;
+const MEMBER_KEYWORDS = ['param', 'state', 'let', 'fire', 'incoming', 'surrogate', 'quiet'] as const;
 const TOP_KEYWORDS = ['neuron', 'connect', 'timestep'] as const;
 const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Kw_surrogate', 'Derivative']);
 const EXPRESSION_AFTER = new Set(['Equals', 'Assign', 'Plus', 'Minus', 'Star', 'Slash', 'Caret', 'LParen', 'Comma', 'Kw_when', 'Kw_crosses', 'Kw_surrogate']);
@@ -51,12 +51,17 @@ const KEYWORD_SNIPPETS: Record<string, string> = {
   fire: 'fire when ${1:V} crosses ${2:threshold} ${3|up,down,either|} {\n\t$0\n}',
   incoming: 'incoming ${1:w} {\n\t$0\n}',
   surrogate: 'surrogate ${1:0.3 / theta * max(0, 1 - abs(V - theta) / theta)} detaching ${2:V}',
+  quiet: 'quiet for ${1:t_ref} {\n\t${2:dV/dt = 0}$0\n}',
   connect: 'connect ${1:From} -> ${2:To}',
   delay: 'delay ${1:1} [${2:ms}]',
   timestep: 'timestep ${1:0.1} [${2:ms}]',
 };
 
-interface Frame { kind: 'neuron' | 'fire' | 'incoming' | 'other'; name?: string }
+interface Frame { kind: 'neuron' | 'fire' | 'incoming' | 'quiet' | 'other'; name?: string }
+
+/** `quiet for` at tokens[i]: the two words of a quiet period (names elsewhere). */
+const quietAt = (tokens: readonly IToken[], i: number): boolean =>
+  tokens[i]?.tokenType.name === 'Identifier' && tokens[i]!.image === 'quiet' && tokens[i + 1]?.tokenType.name === 'Identifier' && tokens[i + 1]!.image === 'for';
 
 /** The block structure and current statement before the caret, read from the tokens. */
 interface Context { frames: Frame[]; statement: IToken[]; prev?: IToken; word: A.Range }
@@ -80,9 +85,10 @@ function readContext(a: Analysis, offset: number): Context {
   for (let i = 0; i < end; i++) {
     const t = tokens[i]!;
     const type = t.tokenType.name;
-    if (STATEMENT_START.has(type) || (type === 'Identifier' && tokens[i + 1]?.tokenType.name === 'Assign')) {
+    const quiet = quietAt(tokens, i);
+    if (STATEMENT_START.has(type) || quiet || (type === 'Identifier' && tokens[i + 1]?.tokenType.name === 'Assign')) {
       statement = [];
-      pendingKind = type === 'Kw_neuron' ? 'neuron' : type === 'Kw_fire' ? 'fire' : type === 'Kw_incoming' ? 'incoming' : 'other';
+      pendingKind = quiet ? 'quiet' : type === 'Kw_neuron' ? 'neuron' : type === 'Kw_fire' ? 'fire' : type === 'Kw_incoming' ? 'incoming' : 'other';
       pendingName = undefined;
     }
     if ((pendingKind === 'neuron' || pendingKind === 'incoming') && pendingName === undefined && type === 'Identifier') pendingName = t.image;
@@ -132,6 +138,11 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
     return keywordCandidates(TOP_KEYWORDS, replace);
   }
   const symbols = a.model.symbols.filter((s) => s.neuron === neuronFrame.name);
+  const quietHead = ctx.statement[0]?.image === 'quiet' && ctx.statement[1]?.image === 'for';
+  if (quietHead && ctx.statement.length >= 2 && (ctx.statement.length === 2 || !OPERAND_END.has(prevType ?? '') || !sameLine) && !ctx.statement.some((t) => t.tokenType.name === 'LCurly')) {
+    // the duration: parameters only
+    return symbols.filter((s) => s.kind === 'param').map((s) => nameCandidate(s, replace));
+  }
   if (prevType !== undefined && OPERAND_END.has(prevType) && sameLine && ctx.statement.length > 0) {
     // After a complete operand: what may follow it on this line.
     if (head === 'Kw_fire' && ctx.statement.some((t) => t.tokenType.name === 'Kw_crosses')) return keywordCandidates(['up', 'down', 'either'], replace);
@@ -154,6 +165,11 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
   // The start of a statement.
   if (inner && (inner.kind === 'fire' || inner.kind === 'incoming')) {
     return symbols.filter((s) => s.kind === 'state').map((s) => ({ ...nameCandidate(s, replace), snippet: `${s.name} := $0` }));
+  }
+  if (inner?.kind === 'quiet') {
+    // inside `quiet for D { }`: the flows it may replace
+    return symbols.filter((s) => s.kind === 'state').map((s) => ({ label: `d${s.name}/dt`, kind: 'equation' as const,
+      detail: `flow of state ${s.name} in the quiet period`, snippet: `d${s.name}/dt = \${1:0}$0`, replace, rank: 0 }));
   }
   if (inner?.kind !== 'neuron') return [];
   const out = keywordCandidates(MEMBER_KEYWORDS, replace);

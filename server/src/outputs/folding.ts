@@ -1,4 +1,4 @@
-// Folding ranges: neuron bodies, fire/incoming blocks, and runs of two or more lines that
+// Folding ranges: neuron bodies, fire/incoming/quiet blocks, and runs of two or more lines that
 // hold only a comment. Lines are 0-based. A block's range ends on the line before its
 // closing brace when that brace starts its line, so the brace stays visible when folded.
 //
@@ -20,7 +20,7 @@ export function foldingRanges(a: Analysis): Fold[] {
   for (const item of a.parse.file.items) {
     if (item.kind !== 'neuron') continue;
     block(item.range.start, item.bodyRange?.end ?? item.range.end);
-    for (const m of item.members) if (m.kind === 'fire' || m.kind === 'incoming') block(m.range.start, m.range.end);
+    for (const m of item.members) if (m.kind === 'fire' || m.kind === 'incoming' || m.kind === 'quiet') block(m.range.start, m.range.end);
   }
   out.push(...commentRuns(a, a.parse.file.comments));
   return out.sort((x, y) => x.startLine - y.startLine || y.endLine - x.endLine);

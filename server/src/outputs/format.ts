@@ -3,7 +3,8 @@
 // - one declaration, equation, jump, `timestep` or `connect` per line; 2-space indentation
 //   per open brace; `{` ends the line that opens it, `}` stands on its own line;
 // - a fire/incoming block written on one line with at most one jump stays on one line
-//   (`incoming w { I := I + w }`); a block with nothing inside is written `{}`;
+//   (`incoming w { I := I + w }`), and so does a quiet period with at most one flow
+//   (`quiet for t_ref { dV/dt = 0 }`); a block with nothing inside is written `{}`;
 // - single spaces around `=`, `:=`, `->`, binary `+ - * /`, before `[unit]`, `{`, docstrings
 //   and keywords, and after commas; none inside parentheses or brackets, after a unary sign,
 //   between a function name and `(`, or around `^` (`x^2`, `exp(-t / tau)`);
@@ -27,6 +28,10 @@ const CONTINUATION = '    ';
 const STATEMENT_START = new Set(['Kw_neuron', 'Kw_timestep', 'Kw_connect', 'Kw_param', 'Kw_state', 'Kw_let', 'Kw_fire', 'Kw_incoming', 'Kw_surrogate', 'Derivative']);
 const OPERAND_END = new Set(['Identifier', 'NumberLiteral', 'RBracket', 'RParen', 'Kw_t']);
 
+/** `quiet for` at tokens[i]: the start of a quiet period (the two words are names elsewhere). */
+const quietAt = (tokens: readonly IToken[], i: number): boolean =>
+  tokens[i]?.tokenType.name === 'Identifier' && tokens[i]!.image === 'quiet' && tokens[i + 1]?.tokenType.name === 'Identifier' && tokens[i + 1]!.image === 'for';
+
 interface Item { comment: boolean; type: string; text: string; start: number; end: number; index: number }
 
 const lineBreaks = (s: string): number => (s.match(/\r\n|\r|\n/g) ?? []).length;
@@ -45,7 +50,7 @@ export function formatText(text: string): string | undefined {
   const unary = tokens.map((t, i) => (t.tokenType.name === 'Plus' || t.tokenType.name === 'Minus') && !OPERAND_END.has(tokens[i - 1]?.tokenType.name ?? ''));
   const isStart = (i: number): boolean => {
     const type = tokens[i]!.tokenType.name;
-    return STATEMENT_START.has(type) || (type === 'Identifier' && tokens[i + 1]?.tokenType.name === 'Assign');
+    return STATEMENT_START.has(type) || quietAt(tokens, i) || (type === 'Identifier' && tokens[i + 1]?.tokenType.name === 'Assign');
   };
 
   const lines: Line[] = [];
@@ -162,8 +167,9 @@ function spacing(a: Item, b: Item, unary: boolean[]): string {
 }
 
 /**
- * Token indices of braces that stay on one line: an empty pair, or a fire/incoming block
- * written on one line with at most one jump and no comment inside.
+ * Token indices of braces that stay on one line: an empty pair, a fire/incoming block
+ * written on one line with at most one jump, or a quiet period with at most one flow, and
+ * no comment inside.
  */
 function inlineBlocks(text: string, tokens: readonly IToken[], commentStarts: readonly number[]): Set<number> {
   const out = new Set<number>();
@@ -172,6 +178,7 @@ function inlineBlocks(text: string, tokens: readonly IToken[], commentStarts: re
   for (let i = 0; i < tokens.length; i++) {
     const type = tokens[i]!.tokenType.name;
     if (STATEMENT_START.has(type)) stmt = type;
+    if (quietAt(tokens, i)) stmt = 'quiet';
     if (type === 'LCurly') { stack.push({ index: i, kind: stmt }); stmt = ''; continue; }
     if (type !== 'RCurly') continue;
     const open = stack.pop();
@@ -179,10 +186,11 @@ function inlineBlocks(text: string, tokens: readonly IToken[], commentStarts: re
     const from = tokens[open.index]!.startOffset, to = tokens[i]!.startOffset;
     const hasComment = commentStarts.some((c) => c > from && c < to);
     const empty = i === open.index + 1;
-    let jumps = 0;
-    for (let j = open.index + 1; j < i; j++) if (tokens[j]!.tokenType.name === 'Assign') jumps++;
+    let jumps = 0, flows = 0;
+    for (let j = open.index + 1; j < i; j++) { const t = tokens[j]!.tokenType.name; if (t === 'Assign') jumps++; if (t === 'Derivative') flows++; }
     const oneLine = !/[\r\n]/.test(text.slice(from, to));
-    if (!hasComment && (empty || ((open.kind === 'Kw_fire' || open.kind === 'Kw_incoming') && oneLine && jumps <= 1))) {
+    if (!hasComment && (empty || ((open.kind === 'Kw_fire' || open.kind === 'Kw_incoming') && oneLine && jumps <= 1)
+      || (open.kind === 'quiet' && oneLine && flows <= 1))) {
       out.add(open.index);
       out.add(i);
     }

@@ -82,6 +82,7 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
   if (tok && type === 'Identifier' && viaWordAt(a, tok.startOffset)) return { target: { kind: 'keyword', word: 'via' }, range: tokenRange(tok) };
   const connect = tok && type === 'Identifier' ? delayAt(a, tok.startOffset) : undefined;
   if (connect) return { target: { kind: 'delay', connect }, range: tokenRange(tok!) };
+  if (tok && type === 'Identifier' && quietWordAt(a, tok.startOffset)) return { target: { kind: 'keyword', word: tok.image }, range: tokenRange(tok) };
   const hit = symbolAt(a, offset);
   if (hit) return { target: { kind: 'symbol', symbol: hit.symbol, isDeclaration: hit.isDeclaration }, range: hit.range };
   if (tok && type === 'Identifier' && (FUNCTION_NAMES as readonly string[]).includes(tok.image)) {
@@ -93,6 +94,15 @@ function findTarget(a: Analysis, offset: number): { target: HoverTarget; range: 
     if (e?.unit) return { target: { kind: 'number', expr: e }, range: e.range };
   }
   return undefined;
+}
+
+/** Whether the name at `start` is the `quiet` or `for` of a quiet period (those words are names elsewhere). */
+function quietWordAt(a: Analysis, start: number): boolean {
+  for (const item of a.parse.file.items) {
+    if (item.kind !== 'neuron' || start < item.range.start || start >= item.range.end) continue;
+    return item.members.some((m) => m.kind === 'quiet' && (m.keywordRange.start === start || m.forRange?.start === start));
+  }
+  return false;
 }
 
 function describeTarget(a: Analysis, t: HoverTarget, neuron: ResolvedNeuron | undefined): string {
@@ -219,13 +229,20 @@ function neuronFacts(a: Analysis, name: string): string[] {
 
 function flowAt(a: Analysis, derivStart: number): A.FlowEq | undefined {
   const decl = neuronDeclAt(a, derivStart);
-  return decl?.members.find((m): m is A.FlowEq => m.kind === 'flow' && m.derivRange.start === derivStart);
+  const flows = decl?.members.flatMap((m) => (m.kind === 'flow' ? [m] : m.kind === 'quiet' ? m.flows : [])) ?? [];
+  return flows.find((m) => m.derivRange.start === derivStart);
+}
+
+/** Whether a flow equation is one of a quiet period's. */
+function inQuiet(a: Analysis, eq: A.FlowEq): boolean {
+  return !!neuronDeclAt(a, eq.derivRange.start)?.members.some((m) => m.kind === 'quiet' && m.flows.includes(eq));
 }
 
 function flowMarkdown(a: Analysis, state: string, eq: A.FlowEq, neuron: ResolvedNeuron | undefined): string {
   const s = neuron?.states.find((x) => x.name === state);
   const lines = [codeBlock(`d${state}/dt = ${eq.value ? exprText(eq.value) : '?'}`)];
-  lines.push(s ? `**flow** of state \`${state}\` of \`${neuron!.name}\`` : `**flow** of \`${state}\`, which is not a state of this neuron`);
+  const quiet = inQuiet(a, eq) ? ' in its quiet period (after each spike, in place of the normal one)' : '';
+  lines.push(s ? `**flow** of state \`${state}\` of \`${neuron!.name}\`${quiet}` : `**flow** of \`${state}\`, which is not a state of this neuron`);
   const want = s?.dim ? dimDiv(s.dim, TIME) : undefined;
   const have = eq.value ? a.model.exprDims.get(eq.value) : undefined;
   const prefs = a.model.unitsUsed;

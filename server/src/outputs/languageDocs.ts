@@ -24,6 +24,8 @@ export const KEYWORD_DOCS: Readonly<Record<string, string>> = {
   trainable: 'Marks a parameter whose gradient the derived adjoint equations compute.',
   surrogate: 'The pseudo-derivative psi = dz/dg of the spike with respect to the guard, used by e-prop: `surrogate EXPR (detaching X, Y)?`; its unit is one over the guard\'s. `detaching` lists states whose spike jump the gradient treats as independent of the spike (a stop-gradient on the reset).',
   detaching: 'Part of `surrogate EXPR detaching X, Y`: the states whose spike jump is treated as not depending on the spike when e-prop differentiates the step (the usual stop-gradient on the membrane reset).',
+  quiet: 'A quiet (refractory) period: `quiet for DURATION { dX/dt = ... }`. For DURATION after each spike the flows listed replace the normal ones (`dV/dt = 0` holds V) and the neuron cannot fire; incoming spikes still apply. DURATION is a time built of parameters (it may be trainable); 0 means none. `quiet` and `for` are words only together here.',
+  for: 'Part of `quiet for DURATION { ... }`: introduces the duration of the quiet period after each spike.',
   t: 'The time. It may appear in flows and guards, not in parameter values or initial values.',
 };
 

@@ -4,7 +4,8 @@
 // (a `#~` note) and `deprecated` (a quoted docstring, the old form of documentation):
 //   params -> parameter, states -> variable, lets -> variable+readonly,
 //   the incoming weight -> property, neuron names -> type, built-in calls -> function,
-//   `dX/dt` -> variable (the state it differentiates), `t` and the `via` of a connection -> keyword.
+//   `dX/dt` -> variable (the state it differentiates), `t`, the `via` and `delay` of a connection
+//   and the `quiet for` of a quiet period -> keyword (those words are names elsewhere).
 // Unit text inside brackets is left to the TextMate grammar. `encodeSemanticTokens` writes
 // the LSP relative encoding (5 integers per token) with the LineIndex of the analysis;
 // `semanticTokensEdits` the delta between two encodings (one replacement).
@@ -40,6 +41,11 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
   const kinds = new Map<number, { kind: SymbolKind; declaration: boolean }>();
   for (const s of a.model.symbols) if (inside(s.nameRange)) kinds.set(s.nameRange.start, { kind: s.kind, declaration: true });
   for (const r of a.model.references) if (inside(r.range) && !kinds.has(r.range.start)) kinds.set(r.range.start, { kind: r.target.kind, declaration: false });
+  // `quiet for`: two names that are keywords only in a quiet period
+  const words = new Set<number>();
+  for (const item of a.parse.file.items) if (item.kind === 'neuron') for (const m of item.members) {
+    if (m.kind === 'quiet') { words.add(m.keywordRange.start); if (m.forRange) words.add(m.forRange.start); }
+  }
   const out: SemanticToken[] = [];
   const tokens = a.parse.tokens;
   const viaWords = new Set(a.parse.file.items.flatMap((i) => (i.kind === 'connect' && i.viaRange ? [i.viaRange.start] : [])));
@@ -49,7 +55,7 @@ export function semanticTokens(a: Analysis, within?: A.Range): SemanticToken[] {
     const t = tokens[i]!;
     const type = t.tokenType.name;
     const range = tokenRange(t);
-    if (type.startsWith('Kw_')) out.push({ range, type: 'keyword', modifiers: [] });
+    if (type.startsWith('Kw_') || (type === 'Identifier' && words.has(range.start))) out.push({ range, type: 'keyword', modifiers: [] });
     else if (type === 'NumberLiteral') out.push({ range, type: 'number', modifiers: [] });
     else if (type === 'StringLiteral' || type === 'UnitString') out.push({ range, type: 'string', modifiers: type === 'StringLiteral' ? ['deprecated'] : [] });
     else if (OPERATORS.has(type)) out.push({ range, type: 'operator', modifiers: [] });

@@ -13,6 +13,11 @@
 // arrival fired by a jump). dL/dd = -N for the synapse (or input train), and N enters the
 // `coupling` of the spike that sent it, as a zero-delay target's term does. A zero-delay
 // synapse gets the one-sided (d -> 0+) derivative: the arrival taken just after the spike.
+// Quiet periods: over an interval where a neuron is quiet its quiet mode's adjoint flow and
+// integrands apply; a spike that starts a quiet period takes the derivation into the quiet
+// mode (its flow after is the quiet one); at a quiet end the derived phi_end is evaluated, its
+// parameter increments added, and phi_end handed to the spike that started the period, as a
+// coupling term (the end moves with that spike).
 // Invariants: never throws for bad input (errors come back in `errors`); at an event the
 // sender's and targets' new lambdas are computed from the post-event lambdas and pre-event
 // states before any is written; gradients are dL/d(value) of the simulated loss.
@@ -70,6 +75,12 @@ interface CompiledAdjoint {
   paramImposed?: Compiled[];
   /** Per incoming block: lambda jump, weight gradient, coupling term, parameter increments. */
   receptors: { inJump: Compiled[]; weightGradient: Compiled; coupling: Compiled; paramIncoming: Compiled[] }[];
+  /** The quiet mode: adjoint flow, integrands, the spike into it, its end, the coupling of each block while quiet. */
+  quiet?: {
+    flow: Compiled[]; paramFlow: Compiled[];
+    phi?: Compiled; jump?: Compiled[]; imposedNumerator?: Compiled; imposedJump?: Compiled[];
+    endPhi: Compiled; endJump: Compiled[]; paramEnd: Compiled[]; couplings: Compiled[];
+  };
   gradientParams: string[];
 }
 
@@ -90,6 +101,16 @@ function compileDerivation(m: ResolvedNeuron, d: NeuronDerivation): CompiledAdjo
     out.imposedNumerator = c(d.spike.imposed.numerator);
     out.imposedJump = states.map((x) => c(d.spike!.imposed.jump.get(x)));
     out.paramImposed = ps.map((g) => c(g.spikeImposed));
+  }
+  if (d.quiet) {
+    const q = d.quiet;
+    out.quiet = {
+      flow: states.map((x) => c(q.adjointFlow.get(x))), paramFlow: ps.map((g) => c(g.quietFlow)),
+      endPhi: c(q.end.phi), endJump: states.map((x) => c(q.end.jump.get(x))), paramEnd: ps.map((g) => c(g.quietEnd)),
+      ...(q.spike ? { phi: c(q.spike.phi), jump: states.map((x) => c(q.spike!.jump.get(x))),
+        imposedNumerator: c(q.spike.imposed.numerator), imposedJump: states.map((x) => c(q.spike!.imposed.jump.get(x))) } : {}),
+      couplings: q.couplings.map((x) => c(x)),
+    };
   }
   return out;
 }
@@ -168,8 +189,10 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
     ai.forEach((it, i) => {
       const b = fill(i, x, z, t);
       const off = layout.offset[i]!;
-      for (let j = 0; j < it.nStates; j++) dz[off + j] = it.a.flow[j]!(b);
-      it.a.paramFlow.forEach((f, k) => { dz[it.acc + k] = -f(b); });
+      const quiet = iv.quiet?.[i] ? it.a.quiet : undefined;
+      const flow = quiet ? quiet.flow : it.a.flow, paramFlow = quiet ? quiet.paramFlow : it.a.paramFlow;
+      for (let j = 0; j < it.nStates; j++) dz[off + j] = flow[j]!(b);
+      paramFlow.forEach((f, k) => { dz[it.acc + k] = -f(b); });
     });
   };
   const st = new Stepper(nZ, rhs);
@@ -228,10 +251,12 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
   };
   /** -dL/d(time) of one arrival onto m is its coupling term (states just before it in x,
    *  costates just after it, the synapse's weight) plus the jump of m's integrand loss. */
-  const couplingOf = (m: number, w: number, r: number, x: Float64Array, zPlus: Float64Array, time: number): number => {
+  /** (`quiet`: m is in its quiet period at the arrival, so its coupling takes the quiet flow.) */
+  const couplingOf = (m: number, w: number, r: number, x: Float64Array, zPlus: Float64Array, time: number, quiet = false): number => {
     const b = fill(m, x, zPlus, time);
     setBlock(m, b, w, r);
-    return ai[m]!.a.receptors[r]!.coupling(b);
+    const q = quiet ? ai[m]!.a.quiet : undefined;
+    return (q ? q.couplings[r]! : ai[m]!.a.receptors[r]!.coupling)(b);
   };
   const lvJump = (m: number, x: Float64Array, postBlock: ArrayLike<number>, time: number): number => {
     const off = layout.offset[m]!;
@@ -256,6 +281,24 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       }
       return g;
     };
+    if (e.kind === 'quiet-end') {
+      // The end of a quiet period (no jump): phi_end from lambda just after it, the parameter
+      // increments -phi_end dD/dp, lambda unchanged; phi_end moves with the starting spike.
+      const it = ai[e.neuron]!, q = it.a.quiet!, sp = special[e.neuron]!, off = layout.offset[e.neuron]!;
+      const b = fill(e.neuron, e.pre, z, e.time);
+      b[sp.pre] = lossAt(e.pre, e.time);
+      b[sp.post] = lossAt(e.post, e.time);
+      const phi = q.endPhi(b);
+      b[sp.phi] = phi;
+      const zNew = z.slice();
+      for (let j = 0; j < it.nStates; j++) zNew[off + j] = q.endJump[j]!(b);
+      q.paramEnd.forEach((f, p) => { zNew[it.acc + p] = zNew[it.acc + p]! + f(b); });
+      const cause = e.cause ?? -1;
+      if (cause >= 0) handed.set(cause, (handed.get(cause) ?? 0) + phi);
+      flagNonFinite(zNew, e.time, 'spike');
+      z = zNew;
+      continue;
+    }
     if (e.kind === 'input') {
       // The arrivals of this instant in reverse order, each from its own pre-state; a jump
       // changes only its target's lambdas and accumulators, so z is updated in place.
@@ -263,6 +306,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       const x = e.pre.slice();
       /** Each target's states just after the arrival being undone (the next one's pre-state). */
       const later = new Map<number, ArrayLike<number>>();
+      const quietNow = traj.intervals[k]!.quiet; // arrivals neither start nor end quiet periods
       for (let q = group.length - 1; q >= 0; q--) {
         const a = group[q]!, off = layout.offset[a.neuron]!;
         x.set(a.pre, off);
@@ -270,7 +314,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
         const w = via.weight, r = via.receptor ?? 0;
         const post = later.get(a.neuron) ?? e.post.subarray(off, off + layout.size[a.neuron]!);
         later.set(a.neuron, a.pre);
-        const n = couplingOf(a.neuron, w, r, x, z, e.time) + lvJump(a.neuron, x, post, e.time) + (handedArrival.get(`${k - 1}:${q}`) ?? 0);
+        const n = couplingOf(a.neuron, w, r, x, z, e.time, quietNow?.[a.neuron] === 1) + lvJump(a.neuron, x, post, e.time) + (handedArrival.get(`${k - 1}:${q}`) ?? 0);
         const g = increment(receive(a.neuron, w, r, { pre: x, time: e.time }, z, z), a.neuron);
         if (a.train !== undefined) { result.inputWeights[a.train]! += g; result.inputDelays[a.train]! -= n; }
         else {
@@ -294,6 +338,7 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       // blocks) applied one after another in network order: replay their states forward, then go
       // back through them, each with the target's state before it and the lambdas after it. A
       // delayed synapse's arrival is an event of its own; its timing term comes back through `delayed`.
+      const modesAfter = traj.intervals[k]!.quiet; // the modes just after this event
       const byTarget = new Map<number, number[]>();
       net.synapses.forEach((s, si) => { if (s.from === n && !((s.delay ?? 0) > 0)) byTarget.set(s.to, [...(byTarget.get(s.to) ?? []), si]); });
       for (const [m, list] of byTarget) {
@@ -314,7 +359,8 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
           scratchZ.set(zAfter, off);
           const b = fill(m, at.pre, scratchZ, e.time);
           setBlock(m, b, s.weight, r);
-          const c = it.a.receptors[r]!.coupling(b);
+          // the target's coupling term takes the flow of the mode it is in
+          const c = (modesAfter?.[m] && it.a.quiet ? it.a.quiet.couplings[r]! : it.a.receptors[r]!.coupling)(b);
           coupling += c;
           // The one-sided delay derivative: the arrival moved to just after the spike event.
           const after = q + 1 < list.length ? states[q + 1]!.subarray(off, off + size) : e.post.subarray(off, off + size);
@@ -331,21 +377,23 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
       b[sp.pre] = lossAt(e.pre, e.time);
       b[sp.post] = lossAt(e.post, e.time);
       const off = layout.offset[n]!;
+      // a spike that starts a quiet period: the transition into the quiet mode
+      const into = modesAfter?.[n] && it.a.quiet?.phi ? it.a.quiet : undefined;
       if (e.byJump) {
         b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
         b[sp.phi] = 0;
         const cause = e.cause ?? -1;
-        if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + it.a.imposedNumerator!(b));
+        if (cause >= 0 && traj.events[cause]!.kind === 'spike') handed.set(cause, (handed.get(cause) ?? 0) + (into ?? it.a).imposedNumerator!(b));
         else if (cause >= 0 && e.causeArrival !== undefined) {
           const key = `${cause}:${e.causeArrival}`;
-          handedArrival.set(key, (handedArrival.get(key) ?? 0) + it.a.imposedNumerator!(b));
+          handedArrival.set(key, (handedArrival.get(key) ?? 0) + (into ?? it.a).imposedNumerator!(b));
         }
-        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.imposedJump![j]!(b);
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = (into ?? it.a).imposedJump![j]!(b);
         it.a.paramImposed!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
       } else {
         b[sp.coupling] = coupling + (handed.get(k - 1) ?? 0);
-        b[sp.phi] = it.a.phi!(b);
-        for (let j = 0; j < it.nStates; j++) zNew[off + j] = it.a.jump![j]!(b);
+        b[sp.phi] = (into ?? it.a).phi!(b);
+        for (let j = 0; j < it.nStates; j++) zNew[off + j] = (into ?? it.a).jump![j]!(b);
         it.a.paramSpike!.forEach((f, q) => { zNew[it.acc + q] = zNew[it.acc + q]! + f(b); });
       }
       flagNonFinite(zNew, e.time, 'spike');

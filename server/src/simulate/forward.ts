@@ -15,6 +15,11 @@
 // Queued arrivals at one instant form one 'input' event, applied in order (input trains first,
 // by train, then synapses, by synapse), each on the state the previous left; the instant's
 // guards are then tested once.
+// Quiet periods (docs/language.md "Quiet periods"): every spike of a neuron with `quiet for D`
+// (D > 0) puts it in its quiet mode: its quiet flows apply and its guard is not tested (it
+// reads a constant, so no crossing, and no cascade picks it); at t_spike + D a `quiet-end`
+// event (no jump, `cause` = the spike) switches the flows back, before the arrivals of that
+// instant. A guard on the fired side then does not fire: only its next crossing does.
 // Invariants: never throws for bad input (errors come back in `errors`, nothing simulated);
 // intervals[k] spans from events[k-1] (or 0) to events[k] (or the duration), so the dense
 // output inside an interval is smooth and its ends are the post-/pre-event states; the
@@ -36,7 +41,8 @@ export interface SimOptions {
 }
 
 export interface NetEvent {
-  kind: 'spike' | 'input';
+  /** 'quiet-end': the end of a neuron's quiet period (no jump; `cause` is the spike that started it). */
+  kind: 'spike' | 'input' | 'quiet-end';
   time: number;
   /** The sender of a spike, or the target of (the first) arrival. */
   neuron: number;
@@ -53,7 +59,8 @@ export interface NetEvent {
   /** A spike fired by a jump: its time is the instant of `cause`, not a crossing of the flow. */
   byJump?: boolean;
   /** For a spike fired by a jump: the index in `events` of the spike or input event that
-   *  started the instant (-1 for a spike of the initial state at t = 0). */
+   *  started the instant (-1 for a spike of the initial state at t = 0). For a quiet-end:
+   *  the index of the spike that started the period. */
   cause?: number;
   /** For a spike fired by a jump whose cause is an arrival event: the index in its
    *  `arrivals` of the arrival whose time it has (the last one onto this neuron, else the last). */
@@ -62,7 +69,8 @@ export interface NetEvent {
 
 export interface Arrival { train?: number; synapse?: number; source?: number; neuron: number; pre: Float64Array }
 
-export interface Interval { t0: number; t1: number; segments: DenseSegment[] }
+/** `quiet`: per neuron, 1 where it is in its quiet period over the interval (absent: none is). */
+export interface Interval { t0: number; t1: number; segments: DenseSegment[]; quiet?: Uint8Array }
 
 export interface Trajectory {
   errors: string[];
@@ -141,11 +149,19 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   if (errors.length) return empty;
 
   const n = layout.total;
+  // Quiet periods: the mode of each neuron (1 = quiet), when its quiet period ends, and the
+  // spike event that started it.
+  const quietAt = new Uint8Array(inst.length);
+  const quietEnd = new Float64Array(inst.length).fill(Infinity);
+  const quietCause = new Int32Array(inst.length).fill(-1);
+  const hasQuiet = inst.some((it) => it.c.quietDuration !== undefined);
   const rhs = (t: number, y: Float64Array, dy: Float64Array): void => {
     let q = 0;
-    for (const it of inst) {
+    for (let i = 0; i < inst.length; i++) {
+      const it = inst[i]!;
       const v = load(it, y, t);
-      for (let j = 0; j < it.c.flows.length; j++) dy[it.offset + j] = it.c.flows[j]!(v);
+      const flows = quietAt[i] ? it.c.quietFlows! : it.c.flows;
+      for (let j = 0; j < flows.length; j++) dy[it.offset + j] = flows[j]!(v);
       if (it.loss.integrand) q += it.loss.integrand(v);
     }
     dy[n] = q;
@@ -154,7 +170,8 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   const guards: GuardSet = {
     count: firing.length,
     direction: Int8Array.from(firing.map((i) => { const d = inst[i]!.c.model.fire!.direction; return d === 'up' ? 1 : d === 'down' ? -1 : 0; })),
-    eval: (t, y, out) => { firing.forEach((i, k) => { out[k] = inst[i]!.c.guard!(load(inst[i]!, y, t)); }); },
+    // a quiet neuron's guard reads a constant: it cannot cross
+    eval: (t, y, out) => { firing.forEach((i, k) => { out[k] = quietAt[i] ? 1 : inst[i]!.c.guard!(load(inst[i]!, y, t)); }); },
   };
   const y0 = new Float64Array(n + 1);
   net.neurons.forEach((nn, i) => y0.set(initialValues(nn), layout.offset[i]!));
@@ -179,7 +196,8 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
   };
   const st = new Stepper(n + 1, rhs);
   const traj: Trajectory = { ...empty, loss: 0, lossIntegral: 0, lossSpikes: 0 };
-  let cur: Interval = { t0: 0, t1: 0, segments: [] };
+  const modes = (): { quiet?: Uint8Array } => (hasQuiet ? { quiet: quietAt.slice() } : {});
+  let cur: Interval = { t0: 0, t1: 0, segments: [], ...modes() };
   let t = 0, next = 0;
   let y: Float64Array = y0;
   const maxSpikes = options.maxSpikes ?? 10_000;
@@ -194,7 +212,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     if (bad >= 0) traj.nonFinite = { time: t, ...componentOf(layout, net, bad), cause: e.kind === 'spike' ? 'spike' : 'input spike' };
     for (let i = 0; i < n; i++) opts.typical[i] = Math.max(opts.typical[i]!, Math.abs(post[i]!));
     y = post;
-    cur = { t0: t, t1: t, segments: [] };
+    cur = { t0: t, t1: t, segments: [], ...modes() };
   };
   /** An arrival at `target`'s block `r`, on the target's states in `post` (what the instant's earlier jumps left). */
   const receive = (target: number, w: number, r: number, post: Float64Array): void => {
@@ -228,6 +246,9 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
         traj.lossSpikes += l;
       }
       fired.add(sender);
+      // every spike starts the quiet period (0: none); the next interval is in the quiet mode
+      const d = it.c.quietDuration ? it.c.quietDuration(v) : 0;
+      if (d > 0) { quietAt[sender] = 1; quietEnd[sender] = t + d; quietCause[sender] = traj.events.length; }
     });
     traj.spikes.push({ neuron: sender, time: t });
     if (traj.spikes.length > maxSpikes) { errors.push(`more than ${maxSpikes} spikes: stopped`); return false; }
@@ -242,7 +263,7 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     const group = root >= 0 ? traj.events[root]!.arrivals : undefined;
     const firedNow = new Set<number>();
     for (;;) {
-      const i = firing.find((j) => (initial.has(j) && !firedNow.has(j)) || jumpCrosses(dirOf(j), ref.get(j)!, guardAt(j, y)));
+      const i = firing.find((j) => !quietAt[j] && ((initial.has(j) && !firedNow.has(j)) || jumpCrosses(dirOf(j), ref.get(j)!, guardAt(j, y))));
       if (i === undefined) return true;
       const name = `neuron ${i} (${inst[i]!.c.model.name})`;
       if (firedNow.has(i)) {
@@ -274,8 +295,16 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
     initial = new Set();
     if (!ok) { cur.t1 = t; traj.intervals.push(cur); traj.final = y.slice(0, n); return traj; }
   }
+  /** The neuron whose quiet period ends first (-1: none before the duration). */
+  const firstQuietEnd = (): number => {
+    let best = -1;
+    for (let i = 0; i < inst.length; i++) if (quietAt[i] && quietEnd[i]! < duration && (best < 0 || quietEnd[i]! < quietEnd[best]!)) best = i;
+    return best;
+  };
   for (;;) {
-    const tNext = next < arrivals.length ? arrivals[next]!.time : duration;
+    const ending = firstQuietEnd();
+    const tArrival = next < arrivals.length ? arrivals[next]!.time : duration;
+    const tNext = ending >= 0 && quietEnd[ending]! <= tArrival ? quietEnd[ending]! : tArrival;
     const res = tNext > t ? integrate(st, t, y, tNext, opts, guards, (s) => cur.segments.push(s)) : { t, y, steps: 0, rejected: 0 };
     traj.steps += res.steps; traj.rejected += res.rejected;
     if ('nonFinite' in res && res.nonFinite && !traj.nonFinite) {
@@ -290,6 +319,14 @@ export function simulate(net: Network, duration: number, inputs: readonly InputT
       if (!fire(sender, {})) break;
       ref.set(sender, guardAt(sender, y));
       if (!cascade(traj.events.length - 1, ref, new Set())) break;
+      continue;
+    }
+    if (ending >= 0 && t >= quietEnd[ending]!) {
+      // the end of a quiet period: no jump; the flows switch back (an end at the instant of
+      // arrivals comes first); a guard on the fired side does not fire now
+      event({ kind: 'quiet-end', time: t, neuron: ending, cause: quietCause[ending]! }, () => {
+        quietAt[ending] = 0; quietEnd[ending] = Infinity; quietCause[ending] = -1;
+      });
       continue;
     }
     if (next >= arrivals.length) break;

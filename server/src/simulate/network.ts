@@ -57,6 +57,9 @@ export interface CompiledModel {
   jumps?: Compiled[];
   /** Per incoming block: its full jump map r (identity for states without a jump). */
   receptors: Compiled[][];
+  /** With `quiet for`: the flows of the quiet mode (the normal one where none is listed) and the duration. */
+  quietFlows?: Compiled[];
+  quietDuration?: Compiled;
 }
 
 /** Per-instance loss pieces compiled over the model's names, with dlV_dX for every state. */
@@ -84,6 +87,10 @@ export function validateNetwork(net: Network, inputs: readonly InputTrain[], los
     if (!n.model.wellFormed) errors.push(`neuron ${i} (${n.model.name}) has errors in its model`);
     for (const p of n.model.params) {
       if (n.params?.[p.name] === undefined && p.valueSI === undefined) errors.push(`neuron ${i}: parameter ${p.name} has no value`);
+    }
+    if (n.model.quiet && n.model.wellFormed) {
+      const d = compile(n.model.quiet.duration, modelNames(n.model))(Float64Array.from([...initialValues(n), ...paramValues(n), 0, 0].slice(0, modelNames(n.model).length)));
+      if (!(d >= 0)) errors.push(`neuron ${i} (${n.model.name}): the quiet period lasts ${d} s; a duration must not be negative (0: no quiet period)`);
     }
   });
   const pairs = new Set<string>();
@@ -138,6 +145,10 @@ export function compileModel(m: ResolvedNeuron): CompiledModel {
   if (m.fire) {
     out.guard = compile(m.fire.guard, names);
     out.jumps = states.map((x) => compile(m.fire!.jumps.get(x) ?? sym(x), names));
+  }
+  if (m.quiet) {
+    out.quietFlows = states.map((x) => compile(m.quiet!.flows.get(x) ?? m.flows.get(x) ?? ZERO, names));
+    out.quietDuration = compile(m.quiet.duration, names);
   }
   return out;
 }

@@ -13,6 +13,7 @@
 // (every coupling of J at unit steady-state gain); Newton's method for the reference state
 // works in the declared units.
 import type { ResolvedNeuron } from '../model/types';
+import { quietMode } from '../model/quiet';
 
 import { parseUnit } from '../units/unitParse';
 
@@ -62,6 +63,13 @@ function unitScale(unit: string | undefined): { unit: string; scale: number } {
 const nanMat = (n: number): Mat => Array.from({ length: n }, () => new Array<number>(n).fill(NaN));
 
 export function analyseStep(neuron: ResolvedNeuron, dtSI: number, opts: StepOptions = {}): StepReport {
+  const report = analyseMode(neuron, dtSI, opts);
+  // A quiet period is a second mode with its own flows: analysed the same way (no threshold).
+  if (neuron.quiet && neuron.wellFormed) report.quiet = analyseMode(quietMode(neuron), dtSI, opts);
+  return report;
+}
+
+function analyseMode(neuron: ResolvedNeuron, dtSI: number, opts: StepOptions): StepReport {
   const bound = opts.accuracyBound !== undefined && opts.accuracyBound > 0 ? opts.accuracyBound : DEFAULT_ACCURACY_BOUND;
   const problems: string[] = [];
   if (!neuron.wellFormed) problems.push('the neuron has errors; the step analysis only runs on a well-formed model');

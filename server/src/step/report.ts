@@ -20,6 +20,8 @@ export interface StepJsonModel {
   map: MapSchemeLabel;
   /** Sub-steps of the map per grid step of dt_s (1 for an exact map). */
   substeps: number;
+  /** The quiet mode's figures (`quiet for`), for a neuron with a quiet period. */
+  quiet?: Omit<StepJsonModel, 'name' | 'quiet'>;
 }
 export interface StepJson { models: StepJsonModel[] }
 
@@ -28,22 +30,27 @@ const fin = (v: number): number | null => (Number.isFinite(v) ? v : null);
 export function stepReportJson(reports: readonly StepReport[]): StepJson {
   return {
     models: reports.map((r) => {
-      const states: Record<string, { scheme: MapSchemeLabel }> = {};
-      for (const s of r.states) states[s.name] = { scheme: s.scheme };
-      return {
-        name: r.neuron,
-        dt_s: fin(r.dt_s),
-        reference: r.reference.kind,
-        states,
-        stepRadius: fin(r.stepRadius),
-        exactRadius: fin(r.exactRadius),
-        relativeStepError: fin(r.relativeStepError),
-        maxStableDt_s: r.maxStableDt_s === null ? null : fin(r.maxStableDt_s),
-        exactPropagator: r.exactPropagator ? r.exactPropagator.matrix.map((row) => row.map(fin)) : null,
-        map: r.map.scheme,
-        substeps: r.map.substeps,
-      };
+      const { name: _name, quiet: _q, ...quiet } = r.quiet ? modelJson(r.quiet) : { name: '' };
+      return { ...modelJson(r), ...(r.quiet ? { quiet: quiet as Omit<StepJsonModel, 'name' | 'quiet'> } : {}) };
     }),
+  };
+}
+
+function modelJson(r: StepReport): StepJsonModel {
+  const states: Record<string, { scheme: MapSchemeLabel }> = {};
+  for (const s of r.states) states[s.name] = { scheme: s.scheme };
+  return {
+    name: r.neuron,
+    dt_s: fin(r.dt_s),
+    reference: r.reference.kind,
+    states,
+    stepRadius: fin(r.stepRadius),
+    exactRadius: fin(r.exactRadius),
+    relativeStepError: fin(r.relativeStepError),
+    maxStableDt_s: r.maxStableDt_s === null ? null : fin(r.maxStableDt_s),
+    exactPropagator: r.exactPropagator ? r.exactPropagator.matrix.map((row) => row.map(fin)) : null,
+    map: r.map.scheme,
+    substeps: r.map.substeps,
   };
 }
 
@@ -81,37 +88,44 @@ export function mapWords(r: StepReport): string {
 export function stepReportText(reports: readonly StepReport[]): string {
   const out: string[] = [];
   for (const r of reports) {
-    out.push(`${r.neuron}  (dt = ${formatTime(r.dt_s)})`);
-    out.push(`  step map (what generated code runs): ${mapWords(r)}`);
-    out.push(`  reference: ${r.reference.kind} - ${r.reference.note}`);
-    out.push('  states:');
-    const w = Math.max(...r.states.map((s) => s.name.length), 1);
-    for (const s of r.states) out.push(`    ${s.name.padEnd(w)}  ${s.scheme.padEnd(16)}  ${s.reason}`);
-    if (r.order.length && !Number.isFinite(r.stepRadius)) {
-      out.push('  figures: not assessed');
-    } else if (r.order.length) {
-      out.push(`  spectral radius: step M ${num(r.stepRadius)}, exact flow P = expm(J dt) ${num(r.exactRadius)}`);
-      out.push(`  ${accuracyLine(r)}`);
-    }
-    out.push(`  stability: ${stabilityLine(r)}`);
-    if (r.exactPropagator) {
-      out.push(`  exact propagator (${r.exactPropagator.method}; this linear time-invariant flow has one), x(t + dt) = P x(t) + q:`);
-      out.push(...matrixLines(r.exactPropagator.matrix, r.exactPropagator.states, '    '));
-      if (r.exactPropagator.offset.some((v) => v !== 0)) out.push(`    q = [ ${r.exactPropagator.offset.map((v) => num(v)).join('  ')} ]`);
-    } else {
-      out.push(`  exact propagator: none (${r.lti.reason})`);
-    }
-    if (r.crossing) {
-      out.push(`  threshold on the grid: ${r.crossing.method}`);
-      out.push(`    bound: ${r.crossing.bound}`);
-      out.push(r.crossing.probe
-        ? `    ${r.crossing.probeNote}: linear interpolation would place the spike within about ${formatTime(r.crossing.probe.timeError_s)} (without interpolation: ${formatTime(r.crossing.gridBound_s)})`
-        : `    ${r.crossing.probeNote}`);
-    }
-    for (const p of r.problems) out.push(`  note: ${p}`);
-    out.push('');
+    out.push(...modeText(r, `${r.neuron}  (dt = ${formatTime(r.dt_s)})`));
+    if (r.quiet) out.push(...modeText(r.quiet, `${r.neuron} in its quiet period (quiet for: these flows, no threshold)`));
   }
   return out.join('\n');
+}
+
+function modeText(r: StepReport, title: string): string[] {
+  const out: string[] = [];
+  out.push(title);
+  out.push(`  step map (what generated code runs): ${mapWords(r)}`);
+  out.push(`  reference: ${r.reference.kind} - ${r.reference.note}`);
+  out.push('  states:');
+  const w = Math.max(...r.states.map((s) => s.name.length), 1);
+  for (const s of r.states) out.push(`    ${s.name.padEnd(w)}  ${s.scheme.padEnd(16)}  ${s.reason}`);
+  if (r.order.length && !Number.isFinite(r.stepRadius)) {
+    out.push('  figures: not assessed');
+  } else if (r.order.length) {
+    out.push(`  spectral radius: step M ${num(r.stepRadius)}, exact flow P = expm(J dt) ${num(r.exactRadius)}`);
+    out.push(`  ${accuracyLine(r)}`);
+  }
+  out.push(`  stability: ${stabilityLine(r)}`);
+  if (r.exactPropagator) {
+    out.push(`  exact propagator (${r.exactPropagator.method}; this linear time-invariant flow has one), x(t + dt) = P x(t) + q:`);
+    out.push(...matrixLines(r.exactPropagator.matrix, r.exactPropagator.states, '    '));
+    if (r.exactPropagator.offset.some((v) => v !== 0)) out.push(`    q = [ ${r.exactPropagator.offset.map((v) => num(v)).join('  ')} ]`);
+  } else {
+    out.push(`  exact propagator: none (${r.lti.reason})`);
+  }
+  if (r.crossing) {
+    out.push(`  threshold on the grid: ${r.crossing.method}`);
+    out.push(`    bound: ${r.crossing.bound}`);
+    out.push(r.crossing.probe
+      ? `    ${r.crossing.probeNote}: linear interpolation would place the spike within about ${formatTime(r.crossing.probe.timeError_s)} (without interpolation: ${formatTime(r.crossing.gridBound_s)})`
+      : `    ${r.crossing.probeNote}`);
+  }
+  for (const p of r.problems) out.push(`  note: ${p}`);
+  out.push('');
+  return out;
 }
 
 /** Hover markdown: the neuron's summary (on `timestep`), or one state's scheme (on its equation). */
@@ -144,6 +158,12 @@ export function stepHoverMarkdown(report: StepReport, stateName?: string): strin
       : 'up to dt^2 max|g\'\'| / (8 |g\'|)'} (up to ${formatTime(r.crossing.gridBound_s)} without interpolation).`);
   }
   for (const p of r.problems) lines.push('', `Note: ${p}`);
+  if (r.quiet) {
+    const q = r.quiet;
+    const qs = st ? q.states.find((s) => s.name === st.name) : undefined;
+    lines.push('', st ? (qs ? `In the quiet period: \`${qs.scheme}\` (${qs.reason})` : '')
+      : `**In the quiet period** the step map is ${mapWords(q)}; stability: ${stabilityLine(q)}.`);
+  }
   return lines.join('\n');
 }
 

@@ -125,6 +125,9 @@ export interface StepReport {
   recommended: 'exact-propagator' | SchemeLabel | MapSchemeLabel;
   crossing: CrossingReport | null;
   problems: string[];
+  /** The same analysis of the quiet mode (`quiet for`: its flows replace the listed ones,
+   *  no threshold), for a neuron with a quiet period; absent otherwise. */
+  quiet?: StepReport;
 }
 
 export interface CrossingReport {

@@ -72,7 +72,19 @@ export interface SurrogateDecl {
   kind: 'surrogate'; value?: Expr; detaching: Ident[]; detachingRange?: Range; range: Range; keywordRange: Range;
 }
 
-export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock | SurrogateDecl;
+/**
+ * `quiet for DURATION { FLOWS }`: for DURATION after each spike the listed flows replace the
+ * normal ones and the neuron cannot fire (docs/language.md "Quiet periods"). `quiet` and `for`
+ * are words of this construct only (a state may still be named `quiet`); `keywordRange`
+ * covers `quiet`, `forRange` covers `for`.
+ */
+export interface QuietBlock {
+  kind: 'quiet'; duration?: Expr; flows: FlowEq[]; range: Range; keywordRange: Range; forRange?: Range;
+  /** The offset just after the block's `{`, when present. */
+  openEnd?: number;
+}
+
+export type Member = ParamDecl | StateDecl | LetDecl | FlowEq | FireBlock | IncomingBlock | SurrogateDecl | QuietBlock;
 
 /** Documentation text; `range` covers what it was read from (the note comments, or the quoted string). */
 export interface DocString { text: string; range: Range }

@@ -200,6 +200,18 @@ function buildJump(n: CstNode): A.Jump | undefined {
   return { kind: 'jump', target, ...(value ? { value } : {}), range: r };
 }
 
+function buildFlow(n: CstNode): A.FlowEq | undefined {
+  const ch = n.children;
+  const range = rangeOf(n);
+  const d = tok(ch, 'Derivative');
+  if (!d || !range) return undefined;
+  const r = tokRange(d);
+  const stateName = d.image.slice(1, -3);
+  const value = rootExpr(node(ch, 'expr'));
+  return { kind: 'flow', target: { name: stateName, range: { start: r.start + 1, end: r.start + 1 + stateName.length } },
+    derivRange: r, ...(value ? { value } : {}), range };
+}
+
 function buildMember(n: CstNode): A.Member | A.Jump | undefined {
   const inner = Object.values(n.children)[0]?.[0];
   if (!inner || isToken(inner)) return undefined;
@@ -233,15 +245,7 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const doc = docString(tok(ch, 'StringLiteral'));
       return { kind: 'let', name, ...(value ? { value } : {}), ...quoted(doc), range, keywordRange: kwRange('Kw_let') };
     }
-    case 'flowEq': {
-      const d = tok(ch, 'Derivative');
-      if (!d) return undefined;
-      const r = tokRange(d);
-      const stateName = d.image.slice(1, -3);
-      const value = rootExpr(node(ch, 'expr'));
-      return { kind: 'flow', target: { name: stateName, range: { start: r.start + 1, end: r.start + 1 + stateName.length } },
-        derivRange: r, ...(value ? { value } : {}), range };
-    }
+    case 'flowEq': return buildFlow(inner);
     case 'fireBlock': {
       const lhs = rootExpr(node(ch, 'lhs'));
       const rhs = rootExpr(node(ch, 'rhs'));
@@ -280,6 +284,13 @@ function buildMember(n: CstNode): A.Member | A.Jump | undefined {
       const det = tok(ch, 'Kw_detaching');
       return { kind: 'surrogate', ...(value ? { value } : {}), detaching, ...(det && real(det) ? { detachingRange: tokRange(det) } : {}),
         range, keywordRange: kwRange('Kw_surrogate') };
+    }
+    case 'quietBlock': {
+      const q = tok(ch, 'Kw_quiet'), f = tok(ch, 'Kw_for'), open = tok(ch, 'LCurly');
+      const duration = rootExpr(node(ch, 'expr'));
+      const flows = nodes(ch, 'flowEq').map((fn) => buildFlow(fn)).filter((x): x is A.FlowEq => x !== undefined);
+      return { kind: 'quiet', ...(duration ? { duration } : {}), flows, range, keywordRange: q ? tokRange(q) : range,
+        ...(f ? { forRange: tokRange(f) } : {}), ...(open ? { openEnd: tokRange(open).end } : {}) };
     }
     case 'jump': return buildJump(inner);
     default: return undefined;

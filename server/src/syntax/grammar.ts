@@ -13,6 +13,8 @@
 //                (COMPARE, `V > V_th`, is not the language: build.ts reports it with a fix)
 //   incoming  := 'incoming' NAME unit? '{' jump* '}'
 //   surrogate := 'surrogate' expr? ('detaching' NAME (',' NAME)*)?
+//   quiet     := QUIET FOR expr '{' flow* '}'   (QUIET FOR: `quiet for` at a member's start,
+//                made by recover.ts; the two words are names everywhere else)
 //   jump      := NAME ':=' expr
 //   connect   := 'connect' NAME '->' NAME ('via' NAME)? ('delay' expr)?   ('via' and 'delay' are words
 //                of this place only, not keywords: names elsewhere, so v0 files that call something
@@ -50,7 +52,7 @@ const messages: IParserErrorMessageProvider = {
 
 const RULE_WHAT: Record<string, string> = {
   topLevel: "a 'timestep', 'neuron' or 'connect' declaration",
-  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming', 'surrogate')",
+  member: "a declaration ('param', 'state', 'let', 'dX/dt = ...', 'fire when', 'incoming', 'surrogate', 'quiet for')",
   primary: 'a value: a number, a name, t or a parenthesised expression',
   direction: "a crossing direction: 'up', 'down' or 'either'",
   unaryExpr: 'a value',
@@ -148,6 +150,7 @@ export class SaltusParser extends CstParser {
       { ALT: () => this.SUBRULE(this.fireBlock) },
       { ALT: () => this.SUBRULE(this.incomingBlock) },
       { ALT: () => this.SUBRULE(this.surrogateDecl) },
+      { ALT: () => this.SUBRULE(this.quietBlock) },
       { ALT: () => this.SUBRULE(this.jump) },
     ]);
   });
@@ -234,6 +237,15 @@ export class SaltusParser extends CstParser {
         this.CONSUME2(T.Identifier, { LABEL: 'detached' });
       });
     });
+  });
+
+  private quietBlock = this.RULE('quietBlock', () => {
+    this.CONSUME(T.QuietWord);
+    this.CONSUME(T.ForWord);
+    this.SUBRULE(this.expr);
+    this.CONSUME(T.LCurly);
+    this.MANY(() => this.SUBRULE(this.flowEq));
+    this.CONSUME(T.RCurly);
   });
 
   private jumpBlock = this.RULE('jumpBlock', () => {

@@ -2,20 +2,23 @@
 // - a unit written without brackets after a number (`param tau = 5 ms`): the unit's tokens
 //   become one BareUnit token, which the grammar reads as the number's unit, and one error
 //   says that units go in brackets, with a fix (`5 [ms]`);
-// - a construct planned for the next version of the language but not in it yet (`refractory
-//   2 [ms]`, `quiet for t_ref { ... }` in a neuron): its tokens (to the end of the line, and through a `{ ... }` opened on it) are
-//   left out, with one 'unsupported' error saying it is not in the language (yet).
+// - a word of no construct that another one replaces (`refractory 2 [ms]` in a neuron: the
+//   language writes `quiet for DURATION { FLOWS }`), or a construct planned for a later version
+//   after a connection (none at present): its tokens (to the end of the line, and through a
+//   `{ ... }` opened on it) are left out, with one 'unsupported' error saying what to write instead.
+// It also marks `quiet for` at the start of a member as the two words of a quiet period
+// (tokens QuietWord, ForWord), so that the grammar tells it from a jump by one token and
+// `quiet` and `for` stay names everywhere else.
 // Invariants: linear in the number of tokens; the input array is not modified; every error's
 // range lies inside the text.
 import { createTokenInstance, type IToken } from 'chevrotain';
 import type * as A from './ast';
-import { BareUnit } from './tokens';
+import { BareUnit, ForWord, QuietWord } from './tokens';
 import { parseUnit } from '../units/unitParse';
 
-/** Words that open a construct planned for the next language version, and what it is. */
+/** Words that open a member the language writes otherwise, and the message that says how. */
 const PLANNED_MEMBERS: Readonly<Record<string, string>> = {
-  refractory: 'refractory periods',
-  quiet: 'quiet (refractory) periods',
+  refractory: "'refractory' is not in the language: a refractory period is written 'quiet for DURATION { dV/dt = 0 }' (the flows listed replace the normal ones for DURATION after each spike, and the neuron cannot fire); this line is left out of the check",
 };
 const PLANNED_CONNECT: Readonly<Record<string, string>> = {
 };
@@ -41,11 +44,19 @@ export function recoverTokens(tokens: readonly IToken[], text: string): Recovere
       const afterVia = out[out.length - 2]?.image === 'via' && out[out.length - 3]?.tokenType.name === 'Identifier' && out[out.length - 4]?.tokenType.name === 'Arrow';
       const connect = Object.hasOwn(PLANNED_CONNECT, t.image) && prev?.tokenType.name === 'Identifier'
         && (out[out.length - 2]?.tokenType.name === 'Arrow' || afterVia) && sameLine(end(prev), t.startOffset);
+      const next = tokens[i + 1];
+      if (t.image === 'quiet' && next?.tokenType.name === 'Identifier' && next.image === 'for' && !CONTINUES.has(prev?.tokenType.name ?? '')
+        && (prev === undefined || !sameLine(end(prev), t.startOffset) || prev.tokenType.name === 'LCurly' || prev.tokenType.name === 'RCurly')) {
+        out.push(createTokenInstance(QuietWord, t.image, t.startOffset, end(t) - 1, NaN, NaN, NaN, NaN));
+        out.push(createTokenInstance(ForWord, next.image, next.startOffset, end(next) - 1, NaN, NaN, NaN, NaN));
+        i++;
+        continue;
+      }
       if (member || connect) {
         const last = plannedExtent(tokens, i, sameLine);
-        const what = member ? PLANNED_MEMBERS[t.image]! : PLANNED_CONNECT[t.image]!;
         errors.push({ code: 'unsupported', range: { start: t.startOffset, end: end(tokens[last]!) },
-          message: `'${t.image}' is not in the language (yet): ${what} are planned for its next version; this ${member ? 'line is' : 'part is'} left out of the check` });
+          message: member ? PLANNED_MEMBERS[t.image]!
+            : `'${t.image}' is not in the language (yet): ${PLANNED_CONNECT[t.image]!} are planned for its next version; this part is left out of the check` });
         i = last;
         continue;
       }

@@ -42,6 +42,10 @@ export const Assign = createToken({ name: 'Assign', pattern: /:=/, label: "':='"
 export const Arrow = createToken({ name: 'Arrow', pattern: /->/, label: "'->'" });
 /** `>`, `>=`, `<`, `<=`: not operators of the language; lexed so that `fire when V > V_th` gets one clear error (build.ts). */
 export const Compare = createToken({ name: 'Compare', pattern: /[<>]=?/, label: "a comparison ('>' or '<')" });
+/** `quiet for` opening a quiet period: the two names as the parser reads them there; made by
+ *  recover.ts, never by the lexer (elsewhere, and in `ParseResult.tokens`, they are names). */
+export const QuietWord = createToken({ name: 'Kw_quiet', pattern: Lexer.NA, label: "'quiet'" });
+export const ForWord = createToken({ name: 'Kw_for', pattern: Lexer.NA, label: "'for'" });
 /** A unit written without brackets after a number (`5 ms`); made by recover.ts, never by the lexer. */
 export const BareUnit = createToken({ name: 'BareUnit', pattern: Lexer.NA, label: 'a unit without brackets' });
 export const Equals = createToken({ name: 'Equals', pattern: /=/, label: "'='" });
@@ -76,7 +80,7 @@ const keywords = [Neuron, Param, State, Let, Fire, When, Crosses, Up, Down, Eith
 export const ALL_TOKENS: TokenType[] = [
   WhiteSpace, Comment, Derivative, ...keywords, Identifier, NumberLiteral, StringLiteral,
   Assign, Arrow, Compare, Equals, Plus, Minus, Star, Slash, Caret, Comma, LParen, RParen, LCurly, RCurly, LBracket, RBracket,
-  UnitBody, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString, BareUnit,
+  UnitBody, UnitBreak, UnitComment, UnitEquals, UnitLCurly, UnitRCurly, UnitString, BareUnit, QuietWord, ForWord,
 ];
 
 /** The lexer's modes (main, and unit inside brackets). */

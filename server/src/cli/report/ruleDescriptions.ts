@@ -41,4 +41,7 @@ export const RULE_DESCRIPTIONS: Record<DiagnosticCode, string> = {
   'surrogate-without-fire': 'A surrogate (e-prop pseudo-derivative) in a neuron without a fire block.',
   'missing-via': 'A connection into a neuron with several incoming blocks does not say which one (via NAME).',
   'negative-delay': 'A connection delay below 0: spikes cannot arrive before they are sent.',
+  'quiet-without-fire': 'A quiet period in a neuron without a fire block: nothing ever starts it.',
+  'negative-quiet-period': 'The duration of a quiet period is negative (0 means no quiet period).',
+  'fired-side-after-quiet': 'The quiet period leaves the neuron on the side it fires from: it does not fire when the period ends, only at its next crossing.',
 };
