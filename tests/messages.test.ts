@@ -122,10 +122,8 @@ describe('constructs of the next language version: not in the language (yet)', (
     });
   }
 
-  it('connect A -> A via w delay 1 [ms]', () => {
-    // 'via' is in the language since v1 (receptors); 'delay' is not yet
-    const ds = analyse(body('') + 'connect A -> A via w delay 1 [ms]\n').diagnostics;
-    expect(ds.map((d) => [d.code, d.message.split(':')[0]])).toEqual([['unsupported', "'delay' is not in the language (yet)"]]);
+  it('connect A -> A via w delay 1 [ms]: part of the language now (v1 receptors and delays), no diagnostic', () => {
+    expect(analyse(body('') + 'connect A -> A via w delay 1 [ms]\n').diagnostics).toEqual([]);
   });
 
   it('the same words as names keep working: a state named quiet, a jump of it', () => {

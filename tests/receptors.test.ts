@@ -109,9 +109,10 @@ describe('receptors: resolution and diagnostics (docs/language.md, v1 rules for 
     expect(n.receptors.map((r) => r.weightDim)).toEqual([n.states[1]!.dim, n.states[2]!.dim]);
   });
 
-  it("'delay' after 'via W' is still reported as not in the language yet", () => {
-    const d = diags(TWO + 'connect P -> P via w_exc delay 1 [ms]\nconnect P -> P via w_inh\n');
-    expect(d.map((x) => [x.code, x.at])).toEqual([['unsupported', 'delay 1 [ms]']]);
+  it("'delay' after 'via W' reads: one delayed receptor, one not", () => {
+    const text = TWO + 'connect P -> P via w_exc delay 1 [ms]\nconnect P -> P via w_inh\n';
+    expect(diags(text)).toEqual([]);
+    expect(analyse(text).model.connections.map((c) => [c.via, c.delaySI])).toEqual([['w_exc', 1e-3], ['w_inh', undefined]]);
   });
 
   it("'via' stays a name elsewhere (v0 files keep their meaning)", () => {
@@ -274,7 +275,9 @@ describe('receptors in the editor: completion, hover, rename, navigation, format
 
   it('completion offers via after connect A -> B, then the weights of B\'s blocks', () => {
     const t1 = TWO + 'connect P -> P ';
-    expect(complete(analyse(t1), t1.length).map((c) => c.label)).toEqual(['via']);
+    expect(complete(analyse(t1), t1.length).map((c) => c.label)).toEqual(['via', 'delay']);
+    const t4 = TWO + 'connect P -> P via w_inh ';
+    expect(complete(analyse(t4), t4.length).map((c) => c.label)).toEqual(['delay']);
     const t2 = TWO + 'connect P -> P via w';
     const c2 = complete(analyse(t2), t2.length);
     expect(c2.map((c) => [c.label, c.kind])).toEqual([['w_exc', 'weight'], ['w_inh', 'weight']]);

@@ -130,11 +130,9 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
   const inExpression = prevType !== undefined && (EXPRESSION_AFTER.has(prevType) || (OPERAND_END.has(prevType) && sameLine && ctx.statement.length > 0));
 
   if (!neuronFrame) {
-    if (head === 'Kw_connect') return connectCandidates(a, ctx, replace);
+    // on a connect line: `via`, the weights of B's blocks, `delay`; on the next line, top-level words
+    if (head === 'Kw_connect' && (sameLine || ctx.statement.length < 4)) return connectCandidates(a, ctx, replace);
     if (inExpression && head === 'Kw_timestep') return [];
-    // after `connect A -> B` on its line: the optional delay
-    if (head === 'Kw_connect' && sameLine && ctx.statement.length === 4 && prevType === 'Identifier') return keywordCandidates(['delay'], replace);
-    if (head === 'Kw_connect' && sameLine && ctx.statement.length >= 5) return [];
     return keywordCandidates(TOP_KEYWORDS, replace);
   }
   const symbols = a.model.symbols.filter((s) => s.neuron === neuronFrame.name);
@@ -181,14 +179,18 @@ function completeInner(a: Analysis, offset: number): CompletionCandidate[] {
   return out;
 }
 
-/** In a `connect` line: `via` after `connect A -> B`, then the weights of B's incoming blocks. */
+/** In a `connect` line: `via` and `delay` after `connect A -> B`, the weights of B's incoming blocks after `via`, `delay` after `via W`. */
 function connectCandidates(a: Analysis, ctx: Context, replace: A.Range): CompletionCandidate[] {
   const st = ctx.statement;
   const target = st.length >= 4 && st[2]?.tokenType.name === 'Arrow' ? a.model.neurons.find((n) => n.name === st[3]!.image) : undefined;
-  if (st.length === 4 && target) return keywordCandidates(['via'], replace).map((c) => ({ ...c, snippet: 'via ${1:weight}' }));
+  if (st.length === 4 && st[3]!.tokenType.name === 'Identifier') { // via only where it tells blocks apart
+    const via = target && target.receptors.length > 1 ? keywordCandidates(['via'], replace).map((c) => ({ ...c, snippet: 'via ${1:weight}' })) : [];
+    return [...via, ...keywordCandidates(['delay'], replace)];
+  }
   if (st.length === 5 && st[4]!.image === 'via' && target) {
     return target.receptors.map((r) => ({ ...nameCandidate(r.symbol, replace), detail: `incoming block of ${target.name}${r.weightUnit ? ` · [${r.weightUnit}]` : ''}` }));
   }
+  if (st.length === 6 && st[4]!.image === 'via') return keywordCandidates(['delay'], replace);
   return [];
 }
 
