@@ -62,7 +62,7 @@ describe('delays: syntax and units', () => {
     const named = analyse(`neuron B {\n  param delay = 2 [ms]\n  state V = 0\n  dV/dt = -V / delay\n}\n`);
     expect(named.diagnostics).toEqual([]);
   });
-  test("'via W delay D' together (in this order): both read, no diagnostic (LANGUAGE.md v1)", () => {
+  test("'via W delay D' together (in this order): both read, no diagnostic (docs/language.md, v1)", () => {
     const a = check('connect A -> A via w delay 1 [ms]');
     expect(a.diagnostics.map((d) => d.code)).toEqual([]);
     expect(a.model.connections.map((c) => [c.via, c.delaySI])).toEqual([['w', 1e-3]]);

@@ -181,6 +181,15 @@ export function startServer(connection: Connection, options: ServerOptions = {})
     revalidateAll();
   };
 
+  // Test and bench support only: with SALTUS_MEMORY_PROBE=1 (and node --expose-gc), the heap
+  // after a full collection, so a leak test measures live objects rather than V8's slack.
+  if (process.env.SALTUS_MEMORY_PROBE === '1') {
+    connection.onRequest('saltus/memoryProbe', () => {
+      (globalThis as { gc?: () => void }).gc?.();
+      const m = process.memoryUsage();
+      return { heapUsed: m.heapUsed, rss: m.rss, collected: typeof (globalThis as { gc?: unknown }).gc === 'function' };
+    });
+  }
   connection.onInitialize((params): InitializeResult => {
     const caps = params.capabilities;
     canReadConfiguration = caps.workspace?.configuration === true;
