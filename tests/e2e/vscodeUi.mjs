@@ -162,10 +162,19 @@ export class VscodeUi {
 
   /** Runs a command by its palette title; returns false when the palette does not list it. */
   async runCommand(title) {
-    await this.page.keyboard.press('F1');
     const box = this.page.locator('.quick-input-widget input');
-    await box.waitFor();
-    await box.fill(`>${title}`);
+    // The command box can open inert while a webview holds the focus (seen once after the
+    // cross-check report opened): then close it, focus the first editor group and try again.
+    for (let attempt = 0; ; attempt++) {
+      await this.page.keyboard.press('F1');
+      await box.waitFor();
+      const filled = await box.fill(`>${title}`, { timeout: attempt === 0 ? 8000 : 20000 }).then(() => true, (e) => (attempt === 0 ? false : Promise.reject(e)));
+      if (filled) break;
+      await this.page.keyboard.press('Escape');
+      await this.page.keyboard.press('Escape');
+      await this.page.keyboard.press('Control+1');
+      await this.page.waitForTimeout(500);
+    }
     const row = this.page.locator('.quick-input-list .monaco-list-row', { hasText: title }).first();
     if (!(await row.waitFor({ timeout: 5000 }).then(() => true, () => false))) {
       await this.page.keyboard.press('Escape');
