@@ -14,12 +14,8 @@ import { numpyPython, runPython } from './helpers/python';
 import { runCli, root } from './helpers/cli';
 import { analyse } from '../server/src/pipeline';
 import { planTraining } from '../server/src/plan/plan';
+import { lcg as rng } from './helpers/lcg';
 
-/** A seeded generator (common practice: a 32-bit LCG, Numerical Recipes constants). */
-function rng(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => { s = (Math.imul(s, 1664525) + 1013904223) >>> 0; return s / 2 ** 32; };
-}
 
 const GCC = ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic'];
 const hasGcc = spawnSync('gcc', ['--version']).status === 0;

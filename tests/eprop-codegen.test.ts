@@ -11,12 +11,8 @@ import { runCli, root } from './helpers/cli';
 import { analyse } from '../server/src/pipeline';
 import { planTraining } from '../server/src/plan/plan';
 import { readFileSync } from 'node:fs';
+import { lcg as rng } from './helpers/lcg';
 
-/** A seeded generator (common practice: a 32-bit LCG, Numerical Recipes constants). */
-function rng(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => { s = (Math.imul(s, 1664525) + 1013904223) >>> 0; return s / 2 ** 32; };
-}
 
 const python = numpyPython();
 const torch = torchPython();

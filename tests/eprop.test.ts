@@ -14,6 +14,7 @@ import { ARRIVAL, PSEUDO, SPIKE, eligibilityName } from '../server/src/base/name
 import { torchPython, runPython } from './helpers/python';
 import { runEprop, type LayerProblem } from './helpers/eprop';
 import { fromMathjs as parseMathjs } from './helpers/parseMathjs';
+import { lcg as rng } from './helpers/lcg';
 
 const ROOT = join(__dirname, '..');
 const neuronOf = (text: string, name?: string): ResolvedNeuron => {
@@ -21,11 +22,6 @@ const neuronOf = (text: string, name?: string): ResolvedNeuron => {
   expect(a.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
   return a.model.neurons.find((n) => name === undefined || n.name === name)!;
 };
-/** A seeded generator (common practice: a 32-bit LCG, Numerical Recipes constants). */
-function rng(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => { s = (Math.imul(s, 1664525) + 1013904223) >>> 0; return s / 2 ** 32; };
-}
 
 const LIF_DELTA = `timestep 1 [ms]
 neuron Lif {
