@@ -578,6 +578,17 @@ def forward(net, dt, max_spikes=100000):
     return run
 
 
+def _new_instant(run, rows):
+    """A new instant in the trials `rows`: every firing population's jump-fired bookkeeping is reset
+    (no guard reference, nothing fired, no initial firing, no last event)."""
+    for M in run.firing:
+        M.jref[rows] = float("nan")
+        M.jfired[rows] = False
+        M.jinit[rows] = False
+        M.jlast[rows] = -1
+        M.jlast_n[rows] = -1
+
+
 def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
     """An arrival on projection j from sender `src` (per row) at time t (per row)."""
     pr = net.projections[j]
@@ -590,12 +601,7 @@ def _arrive(run, lives, names, net, j, rows, src, t, cause, step, advance):
     if bool(X.any(fresh)):
         rn = rows[fresh]
         run.inst[rn] = t[fresh]
-        for M in run.firing:
-            M.jref[rn] = float("nan")
-            M.jfired[rn] = False
-            M.jinit[rn] = False
-            M.jlast[rn] = -1
-            M.jlast_n[rn] = -1
+        _new_instant(run, rn)
     if L.model.HAS_GUARD:
         untouched = L.jref[rows][:, 0] != L.jref[rows][:, 0]
         if bool(X.any(untouched)):
@@ -629,12 +635,7 @@ def _arrive_targets(run, lives, names, net, j, b, src, t, cause, step, advance, 
     r = len(run.records)
     if run.inst[b] != t:
         run.inst[rows] = t
-        for M in run.firing:
-            M.jref[rows] = float("nan")
-            M.jfired[rows] = False
-            M.jinit[rows] = False
-            M.jlast[rows] = -1
-            M.jlast_n[rows] = -1
+        _new_instant(run, rows)
     if L.model.HAS_GUARD:
         if L.jref[b, 0] != L.jref[b, 0]:
             L.jref[rows] = L.model.guard(x_pre, L.pop.params, X.full((1, 1), t))[0] + X.zeros_like(L.jref[rows])
