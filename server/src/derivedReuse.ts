@@ -32,10 +32,17 @@ const kept = new WeakMap<ResolvedNeuron, Kept>();
 /** How often kept diagnostics were handed out again, and how often computed (tests read it). */
 export const derivedReuseCount = { reused: 0, computed: 0 };
 
+const keys = new WeakMap<Analysis, string>();
+
+/** The effective dt as reuse compares it, once per analysis (the server asks for every neuron). */
 function timestepKey(a: Analysis): string {
+  const hit = keys.get(a);
+  if (hit !== undefined) return hit;
   const ts = a.timestep;
   const file = a.model.timestepDecl?.value;
-  return JSON.stringify([ts?.seconds ?? null, ts?.source ?? null, ts?.label ?? null, file ? a.text.slice(file.range.start, file.range.end) : null]);
+  const key = JSON.stringify([ts?.seconds ?? null, ts?.source ?? null, ts?.label ?? null, file ? a.text.slice(file.range.start, file.range.end) : null]);
+  keys.set(a, key);
+  return key;
 }
 
 const isRange = (x: Record<string, unknown>): boolean => typeof x.start === 'number' && typeof x.end === 'number' && Object.keys(x).length === 2;
