@@ -5,29 +5,19 @@
 // relative in float64, on every sample scenario and on a recurrent network with two trials and
 // each classification loss (tests/helpers/gridCompare.ts). Scenario data: invented pump-sensor
 // spike patterns.
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { afterAll, describe, expect, test } from 'vitest';
-import { analyse } from '../server/src/pipeline';
-import { generateFiles, writeGenerated } from '../server/src/codegen';
-import { numpyPython, runPython } from './helpers/python';
-import { CELL, CELL_LOSSES, type RunnerReport, SAMPLE_SCENARIOS, cellNetwork, compareWithGrid, sampleNetwork } from './helpers/gridCompare';
+import { afterAll, describe, test } from 'vitest';
+import { numpyPython } from './helpers/python';
+import { CELL, CELL_LOSSES, type RunnerReport, runNumpyRunner, SAMPLE_SCENARIOS, cellNetwork, compareWithGrid, sampleNetwork } from './helpers/gridCompare';
 
 const work = mkdtempSync(join(tmpdir(), 'saltus-numpy-'));
 afterAll(() => rmSync(work, { recursive: true, force: true }));
 const python = numpyPython();
 
-/** Generates the NumPy target with `net` as the network description, runs run.py, returns its report. */
-function runGenerated(name: string, modelText: string, netJson: unknown, dt: string): RunnerReport {
-  const dir = join(work, name);
-  const g = generateFiles(analyse(modelText), { target: 'numpy', network: netJson, source: `${name}.saltus` });
-  expect(g.errors).toEqual([]);
-  const w = writeGenerated(dir, g.files, {});
-  expect(w.errors).toEqual([]);
-  writeFileSync(join(dir, 'net.json'), JSON.stringify(netJson));
-  return JSON.parse(runPython(python!, ['run.py', 'net.json', '--dt', dt, '--format', 'json'], dir)) as RunnerReport;
-}
+const runGenerated = (name: string, modelText: string, netJson: unknown, dt: string): RunnerReport =>
+  runNumpyRunner(python!, join(work, name), name, modelText, netJson, dt);
 
 describe.skipIf(!python)('NumPy target: run.py agrees with the grid simulator in float64', () => {
   for (const name of SAMPLE_SCENARIOS) {

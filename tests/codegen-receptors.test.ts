@@ -13,21 +13,14 @@ import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { generateFiles, writeGenerated } from '../server/src/codegen';
 import { numpyPython, runPython, torchPython } from './helpers/python';
-import { type RunnerReport, compareWithGrid, sampleNetwork } from './helpers/gridCompare';
+import { type RunnerReport, runNumpyRunner, compareWithGrid, sampleNetwork } from './helpers/gridCompare';
 
 const work = mkdtempSync(join(tmpdir(), 'saltus-receptors-'));
 afterAll(() => rmSync(work, { recursive: true, force: true }));
 const python = numpyPython();
 
-function runNumpy(name: string, modelText: string, netJson: unknown, dt: string): RunnerReport {
-  const dir = join(work, name);
-  const g = generateFiles(analyse(modelText), { target: 'numpy', network: netJson, source: `${name}.saltus` });
-  expect(g.errors).toEqual([]);
-  const w = writeGenerated(dir, g.files, {});
-  expect(w.errors).toEqual([]);
-  writeFileSync(join(dir, 'net.json'), JSON.stringify(netJson));
-  return JSON.parse(runPython(python!, ['run.py', 'net.json', '--dt', dt, '--format', 'json'], dir)) as RunnerReport;
-}
+const runNumpy = (name: string, modelText: string, netJson: unknown, dt: string): RunnerReport =>
+  runNumpyRunner(python!, join(work, name), name, modelText, netJson, dt);
 
 describe.skipIf(!python)('NumPy target with receptors', () => {
   test('receptors sample scenario at dt = 0.1 ms: the same spikes, loss and gradients as the grid', () => {

@@ -4,12 +4,14 @@
 // tests/grid.test.ts): the same spikes, the loss and every gradient to a relative bound; and
 // the networks every target is checked on: the sample scenarios, and a recurrent two-layer
 // network of invented pump-sensor spike patterns with two trials and each of the five losses.
-import { readFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { expect } from 'vitest';
 import { analyse } from '../../server/src/pipeline';
 import { parseScenario } from '../../server/src/crosscheck';
 import { gridBackward, gridForward, networkFromScenario, type Network } from '../../server/src/grid';
+import { generateFiles, writeGenerated } from '../../server/src/codegen';
+import { runPython } from './python';
 
 const ROOT = join(__dirname, '..', '..');
 
@@ -140,4 +142,17 @@ export function cellNetwork(loss: (typeof CELL_LOSSES)[number]): { json: unknown
       : l.kind === 'ce-first-spike' ? { kind: 'ce-first-spike', population: 'out', tau: l.tau_s } : l) as Network['loss'],
   };
   return { json, net };
+}
+
+/**
+ * Generates the NumPy target of `modelText` into `dir` with `netJson` as the network description,
+ * runs its run.py at `dt` (e.g. '0.1ms') with `python`, and returns the runner's JSON report.
+ */
+export function runNumpyRunner(python: string, dir: string, name: string, modelText: string, netJson: unknown, dt: string): RunnerReport {
+  const g = generateFiles(analyse(modelText), { target: 'numpy', network: netJson, source: `${name}.saltus` });
+  expect(g.errors).toEqual([]);
+  const w = writeGenerated(dir, g.files, {});
+  expect(w.errors).toEqual([]);
+  writeFileSync(join(dir, 'net.json'), JSON.stringify(netJson));
+  return JSON.parse(runPython(python, ['run.py', 'net.json', '--dt', dt, '--format', 'json'], dir)) as RunnerReport;
 }
