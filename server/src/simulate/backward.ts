@@ -357,10 +357,8 @@ export function backward(net: Network, traj: Trajectory, inputs: readonly InputT
           const at = { pre: states[q]!, time: e.time };
           const scratchZ = zNew.slice();
           scratchZ.set(zAfter, off);
-          const b = fill(m, at.pre, scratchZ, e.time);
-          setBlock(m, b, s.weight, r);
           // the target's coupling term takes the flow of the mode it is in
-          const c = (modesAfter?.[m] && it.a.quiet ? it.a.quiet.couplings[r]! : it.a.receptors[r]!.coupling)(b);
+          const c = couplingOf(m, s.weight, r, at.pre, scratchZ, e.time, modesAfter?.[m] === 1);
           coupling += c;
           // The one-sided delay derivative: the arrival moved to just after the spike event.
           const after = q + 1 < list.length ? states[q + 1]!.subarray(off, off + size) : e.post.subarray(off, off + size);
