@@ -2,15 +2,17 @@
 //   dist/client.js  VS Code extension (client/src/extension.ts), `vscode` left external
 //   dist/cli.js     the `saltus` command (server/src/cli/main.ts), executable, with a shebang;
 //                   `saltus lsp --stdio` makes it a language-server entry as well
-//   dist/server.js  the language server the client starts over node IPC: a few lines that run
-//                   dist/cli.js as `saltus lsp` (one copy of the server code, not two)
+//   dist/server.js  the language server the client starts over node IPC: a small loader that runs
+//                   dist/cli.js as `saltus lsp` through a V8 code cache (server/src/boot/serverEntry.ts;
+//                   one copy of the server code, not two)
+//   dist/katex.js   KaTeX, which dist/cli.js loads on first use (not at start)
 //   dist/katex/     katex.min.css and its .woff2 fonts, for a webview
 // Invariants: CommonJS, Node 20, linked source maps, minified with names kept (stack traces
 // stay readable through the maps); the script exits
 // non-zero when any bundle fails; it prints every output's size. Run by `npm run build` and
 // by `prepare`, so `npm ci` leaves a working build.
 import { build } from 'esbuild';
-import { chmodSync, copyFileSync, existsSync, mkdirSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { chmodSync, copyFileSync, existsSync, mkdirSync, readdirSync, rmSync, statSync } from 'node:fs';
 import { rawTextPlugin } from './esbuild-plugins.mjs';
 import { dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -41,6 +43,22 @@ const missingLanguageServer = {
   },
 };
 
+/**
+ * KaTeX leaves dist/cli.js for its own file, dist/katex.js, which the server loads on first
+ * use (outputs/preview.ts `loadTypesetter`): a fifth of the bundle the first diagnostics do
+ * not need is then neither compiled nor run at start.
+ */
+const katexApart = {
+  name: 'katex-apart',
+  setup(b) {
+    // a CommonJS stand-in, so the bundle's `import('katex')` becomes a plain require of the
+    // file beside it (a real dynamic import would need an ES module loader in every host)
+    b.onResolve({ filter: /^katex$/ }, () => ({ path: 'katex', namespace: 'katex-apart' }));
+    b.onLoad({ filter: /.*/, namespace: 'katex-apart' }, () => ({ loader: 'js', contents: "module.exports = require('./katex.js');" }));
+    b.onResolve({ filter: /^\.\/katex\.js$/, namespace: 'katex-apart' }, () => ({ path: './katex.js', external: true }));
+  },
+};
+
 const common = {
   bundle: true,
   platform: 'node',
@@ -56,7 +74,10 @@ const common = {
 
 const bundles = [
   { entryPoints: ['client/src/extension.ts'], outfile: 'dist/client.js', external: ['vscode'] },
-  { entryPoints: ['server/src/cli/main.ts'], outfile: 'dist/cli.js', banner: { js: '#!/usr/bin/env node' } },
+  { entryPoints: ['server/src/cli/main.ts'], outfile: 'dist/cli.js', banner: { js: '#!/usr/bin/env node' }, plugins: [...common.plugins, katexApart] },
+  { entryPoints: ['katex'], outfile: 'dist/katex.js', sourcemap: false },
+  // only Node built-ins: it loads dist/cli.js at run time, through the V8 code cache
+  { entryPoints: ['server/src/boot/serverEntry.ts'], outfile: 'dist/server.js', sourcemap: false },
 ];
 
 function copyKatex() {
@@ -94,18 +115,10 @@ try {
   process.exit(1);
 }
 chmodSync(join(dist, 'cli.js'), 0o755);
-// vscode-languageserver reads its transport (--node-ipc, --stdio) from process.argv
-writeFileSync(join(dist, 'server.js'), [
-  '// dist/server.js: the Saltus language server, started by the VS Code client over node IPC.',
-  "// It is the CLI's `saltus lsp` (dist/cli.js) with the transport the client passes.",
-  "process.argv.splice(2, 0, 'lsp');",
-  "require('./cli.js');",
-  '',
-].join('\n'));
 const katexFiles = copyKatex();
 const ms = performance.now() - started;
 
-for (const b of [...bundles, { outfile: 'dist/server.js' }]) {
+for (const b of bundles) {
   const file = join(root, b.outfile);
   console.log(`  ${b.outfile.padEnd(18)} ${kib(statSync(file).size).padStart(11)}`);
 }

@@ -141,7 +141,7 @@ describe('package.json manifest', () => {
     const lines = readFileSync(join(root, '.vscodeignore'), 'utf8').split('\n').map((l) => l.trim());
     expect(lines).toContain('**');
     const kept = new Set(lines.filter((l) => l.startsWith('!')).map((l) => l.slice(1)));
-    const needed = [pkg.main, ...contributedFiles.map(([, p]) => p), './dist/server.js', './dist/cli.js', './package.json'];
+    const needed = [pkg.main, ...contributedFiles.map(([, p]) => p), './dist/server.js', './dist/cli.js', './dist/katex.js', './package.json'];
     for (const p of needed) expect(kept.has(p.replace(/^\.\//, '')), `${p} must be kept by a ! line`).toBe(true);
     expect(kept.has('dist/katex/**')).toBe(true);
     expect(kept.has('media/walkthrough/**')).toBe(true);

@@ -26,9 +26,11 @@ let client: LanguageClient | undefined;
 
 export async function activate(context: vscode.ExtensionContext): Promise<void> {
   const serverModule = context.asAbsolutePath(path.join('dist', 'server.js'));
+  // the server keeps its V8 code cache in the extension's own storage (server/src/boot/serverEntry.ts)
+  const env = { ...process.env, SALTUS_CODE_CACHE_DIR: path.join(context.globalStorageUri.fsPath, 'code-cache') };
   const serverOptions: ServerOptions = {
-    run: { module: serverModule, transport: TransportKind.ipc },
-    debug: { module: serverModule, transport: TransportKind.ipc, options: { execArgv: ['--nolazy', '--inspect=6019'] } },
+    run: { module: serverModule, transport: TransportKind.ipc, options: { env } },
+    debug: { module: serverModule, transport: TransportKind.ipc, options: { env, execArgv: ['--nolazy', '--inspect=6019'] } },
   };
   const clientOptions: LanguageClientOptions = {
     documentSelector: [{ language: 'saltus' }],

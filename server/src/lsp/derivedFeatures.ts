@@ -7,6 +7,7 @@
 // uncached neurons only within CODELENS_BUDGET_MS.
 import type { CodeLens, Connection, ProgressToken, WorkDoneProgressReporter } from 'vscode-languageserver';
 import { adjointPreview, type AdjointPreview } from '../outputs/adjointPreview';
+import { loadTypesetter } from '../outputs/preview';
 import { RULES } from '../rules/index';
 import { makeGuard, type DocumentState } from './documentState';
 import { toRange } from './convert';
@@ -109,5 +110,8 @@ export function registerDerivedFeatures(connection: Connection, state: DocumentS
   const generate = guarded('generate code', null as GenerateReply | null, (a, uri, p: GenerateParams & { textDocument?: { uri?: string } }) => generateInto(a, uri, p));
   connection.onRequest('saltus/generate', (p: GenerateParams) => generate({ ...p, textDocument: { uri: p?.uri } }));
   const preview = guarded('adjoint preview', null as AdjointPreview | null, (a, uri) => adjointPreview(a, decodeURIComponent(uri.split('/').pop() ?? uri)));
-  connection.onRequest('saltus/adjointPreview', (p: { uri?: string } | undefined) => preview({ textDocument: { uri: p?.uri } }));
+  connection.onRequest('saltus/adjointPreview', async (p: { uri?: string } | undefined) => {
+    await loadTypesetter();
+    return preview({ textDocument: { uri: p?.uri } });
+  });
 }

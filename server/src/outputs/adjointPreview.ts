@@ -2,7 +2,8 @@
 // sections of every learning rule of the registry (rules/index.ts: the EventProp adjoint,
 // then e-prop's eligibility traces where the neuron has a surrogate), each equation as LaTeX
 // (typeset by outputs/preview.ts), and the planner's table and plot (outputs/planPreview.ts). Used by the VS Code webview (through the server's
-// `saltus/adjointPreview` request) and by standalone HTML exports.
+// `saltus/adjointPreview` request) and by standalone HTML exports; callers load the typesetter first
+// (`loadTypesetter` of outputs/preview.ts).
 import type { Analysis } from '../pipeline';
 import { derivations } from '../pipeline';
 import { RULES } from '../rules/index';

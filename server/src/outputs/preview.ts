@@ -4,7 +4,19 @@
 //
 // Invariant: every piece of user text (model names, docstrings, notes) is HTML-escaped;
 // LaTeX goes through katex.renderToString with `throwOnError: false` and `trust: false`.
-import katex from 'katex';
+// KaTeX is loaded on first use (`loadTypesetter`), not at start: it is a fifth of the bundle
+// and the language server's first diagnostics do not need it. The build ships it as its own
+// file (dist/katex.js, scripts/build.mjs).
+import type Katex from 'katex';
+
+let katex: typeof Katex | undefined;
+
+/** Loads KaTeX once; call (and await) before `typeset` or anything that renders a model. */
+export async function loadTypesetter(): Promise<void> {
+  if (katex) return;
+  const m = (await import('katex')) as unknown as { default?: typeof Katex } & typeof Katex;
+  katex = m.default ?? m;
+}
 
 export interface PreviewRow { label: string; latex: string; note?: string }
 export interface PreviewSection { title: string; note?: string; rows: PreviewRow[] }
@@ -26,6 +38,7 @@ export function escapeHtml(s: string): string {
 }
 
 export function typeset(latex: string, display = true): string {
+  if (!katex) throw new Error('typeset: the typesetter is not loaded (await loadTypesetter() first)');
   try {
     return katex.renderToString(latex, { displayMode: display, throwOnError: false, trust: false, strict: 'ignore', maxSize: 50, maxExpand: 1000, output: 'html' });
   } catch {

@@ -8,7 +8,7 @@ import { dirname, join, resolve } from 'node:path';
 import { randomBytes } from 'node:crypto';
 import { analyse } from '../../pipeline';
 import { adjointPreview } from '../../outputs/adjointPreview';
-import { renderPage } from '../../outputs/preview';
+import { loadTypesetter, renderPage } from '../../outputs/preview';
 import type { LearningRule } from '../../rules/types';
 import { oneOf, parseCommandArgs, timestepArg, timestepHelp, TIMESTEP_OPTIONS, UsageError, type Command } from '../command';
 import { readSourceFiles } from '../sourceFiles';
@@ -51,7 +51,7 @@ Exit status: 0 derived, 1 the file has errors or NAME has errors, 2 usage error.
       const ok = chosen.filter((n) => n.wellFormed);
       for (const n of chosen.filter((x) => !x.wellFormed)) io.err(`saltus ${name}: ${n.name} has errors and is not derived (run 'saltus check ${source!.path}')\n`);
       io.out(rule.render(ok, format, a.timestep ? { dt: a.timestep.seconds } : {}) + '\n');
-      if (values.html !== undefined) writeHtml(resolve(io.cwd, values.html as string), a, source!.path);
+      if (values.html !== undefined) await writeHtml(resolve(io.cwd, values.html as string), a, source!.path);
       return { exitCode: ok.length < chosen.length ? 1 : 0 };
     },
   };
@@ -59,7 +59,8 @@ Exit status: 0 derived, 1 the file has errors or NAME has errors, 2 usage error.
 }
 
 /** Writes the preview page and, beside it, the KaTeX stylesheet and fonts it links to. */
-function writeHtml(out: string, a: ReturnType<typeof analyse>, label: string): void {
+async function writeHtml(out: string, a: ReturnType<typeof analyse>, label: string): Promise<void> {
+  await loadTypesetter();
   const p = adjointPreview(a, label);
   const dir = dirname(out);
   mkdirSync(dir, { recursive: true });
