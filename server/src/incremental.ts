@@ -7,8 +7,8 @@
 // on its line; the comments and blank lines after it belong to the next block (notes above a
 // neuron document it), and the last block runs to the end of the text. A block is a *neuron
 // block* when its only tokens outside braces are `neuron NAME ["doc"]` before one `{ ... }`.
-// When an edit lies inside one neuron block, that block's text is parsed alone (padded with
-// spaces, so its offsets are the file's), resolved with the units written before it, and the
+// When an edit lies inside one neuron block, that block's text is parsed alone (from offset 0,
+// then moved to its offsets in the file), resolved with the units written before it, and the
 // blocks after it are reused with their ranges shifted. Anything else falls back to a full
 // analysis: braces that do not balance, an edit that crosses a block boundary or touches any
 // other block (`timestep`, `connect`, the text before the first neuron), a block that no longer
@@ -263,26 +263,30 @@ function reuse(old: string, oldLines: LineIndex, table: Table, text: string, opt
   if (firstLineBreak(text) !== table.eol) return undefined;
   const last = k === blocks.length - 1;
   const end = b.end + delta;
-  // the block alone, at its offsets in the file
+  // the block alone, parsed from offset 0 (it starts a line, as in the file) and moved to its
+  // place afterwards: the work is the block's, not the file's
   if (b.start > 0 && b.start < table.eol.length) return undefined;
-  const padded = (b.start === 0 ? '' : ' '.repeat(b.start - table.eol.length) + table.eol) + text.slice(b.start, end);
-  const parsed = parse(padded);
-  const raw = splitRaw(padded, parsed.tokens, b.start, end);
+  const alone = text.slice(b.start, end);
+  const parsed = parse(alone);
+  const raw = splitRaw(alone, parsed.tokens, 0, alone.length);
   if (!raw) return undefined;
   if (last) { if (raw.length > 1 && raw[raw.length - 1]!.tokens === 0) raw[raw.length - 2]!.end = raw.pop()!.end; }
-  else if (raw.length === 2 && raw[1]!.start === end && raw[1]!.tokens === 0) raw.pop();
-  if (raw.length !== 1 || raw[0]!.kind !== 'neuron' || raw[0]!.end !== end) return undefined;
+  else if (raw.length === 2 && raw[1]!.start === alone.length && raw[1]!.tokens === 0) raw.pop();
+  if (raw.length !== 1 || raw[0]!.kind !== 'neuron' || raw[0]!.end !== alone.length) return undefined;
   const items = parsed.file.items;
   const before = b.items[0];
   if (items.length !== 1 || items[0]!.kind !== 'neuron' || b.items.length !== 1 || before?.kind !== 'neuron') return undefined;
   if (!parsedWhole(items, parsed.tokens)) return undefined;
   const name = items[0]!.name?.name;
   if (name === undefined || name !== before.name?.name) return undefined;
-  const m = resolveBlock(items, parsed.file.comments, parsed.strayJumps, k > 0 ? blocks[k - 1]!.unitsAfter : [], padded.length);
+  const m = resolveBlock(items, parsed.file.comments, parsed.strayJumps, k > 0 ? blocks[k - 1]!.unitsAfter : [], alone.length);
   if (!sameList(m.unitsUsed, b.unitsAfter)) return undefined;
-  const fresh: Block = { start: b.start, end, kind: 'neuron', items, comments: parsed.file.comments, tokens: parsed.tokens, errors: parsed.errors,
-    strayJumps: parsed.strayJumps, strayNotes: parsed.strayNotes, docForm: docFormDiagnostics(padded, parsed), neurons: m.neurons,
+  const fresh: Block = { start: 0, end: alone.length, kind: 'neuron', items, comments: parsed.file.comments, tokens: parsed.tokens, errors: parsed.errors,
+    strayJumps: parsed.strayJumps, strayNotes: parsed.strayNotes, docForm: docFormDiagnostics(alone, parsed), neurons: m.neurons,
     symbols: m.symbols, references: m.references, diagnostics: m.diagnostics, exprDims: m.exprDims, unitsAfter: b.unitsAfter };
+  // a diagnostic's range may be a node's range object: give each its own before moving (as clampAll does)
+  for (const x of [...fresh.docForm, ...fresh.diagnostics]) x.range = { start: x.range.start, end: x.range.end };
+  if (b.start !== 0) shift(fresh, b.start);
   // Committed from here on: the old block goes, the later ones move.
   for (const key of b.exprDims.keys()) table.exprDims.delete(key);
   for (const [key, v] of fresh.exprDims) table.exprDims.set(key, v);
