@@ -11,9 +11,10 @@ import { PassThrough } from 'node:stream';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
   createProtocolConnection, StreamMessageReader, StreamMessageWriter,
-  type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent,
+  type Hover, type CompletionItem, type WorkspaceEdit, type CodeAction, type MarkupContent, type PublishDiagnosticsParams,
 } from 'vscode-languageserver-protocol/node';
 import { analysisKey, readSettings } from '../server/src/lsp/settings';
+import { TYPING_PAUSE_MS } from '../server/src/lsp/server';
 import { Client, pos, root, startStdioServer, type StdioServer } from './helpers/lspClient';
 
 const samplesDir = join(root, 'samples');
@@ -342,6 +343,31 @@ describe('language server over stdio', () => {
     expect(zero.diagnostics.find((d) => d.code === 'zero-guard-slope')).toMatchObject({ severity: 1, message: expect.stringContaining('gdot = (theta - V) / tau_m') });
     const lenses = await client.conn.sendRequest('textDocument/codeLens', { textDocument: { uri: flat } }) as { command: { title: string } }[];
     expect(lenses[0]!.command.title).toBe('adjoint: not derived (the guard slope is identically 0)');
+  });
+
+  it('keeps the derived checks of untouched neurons in the first publish after an edit, and derives an edited one after a pause in typing', async () => {
+    const uri = 'file:///inline/typing.saltus';
+    const two = LIF + LIF.split('\n').slice(2).join('\n').replace('neuron Sensor', 'neuron Probe');
+    const grazing = (p: PublishDiagnosticsParams): number => p.diagnostics.filter((d) => d.code === 'grazing-crossing').length;
+    client.open(uri, two);
+    await client.until(() => client.diagnostics.get(uri)?.find((p) => p.version === 1 && grazing(p) === 2), 20_000, 'both neurons derived');
+    // edits inside Probe, 40 ms apart: each version's first publish still shows Sensor's derived check (no flicker), not yet Probe's
+    const line = two.split('\n').findIndex((l, i) => i > 12 && l.includes('param theta'));
+    const sent: number[] = [];
+    for (let v = 2; v <= 6; v++) {
+      const text = two.replace(/(neuron Probe[^]*?param theta = )1/, `$11.${v}`);
+      sent[v] = performance.now();
+      void client.conn.sendNotification('textDocument/didChange', { textDocument: { uri, version: v }, contentChanges: [{ text }] });
+      const first = await client.diagnosticsFor(uri, v);
+      expect(grazing(first), `version ${v}: the first publish`).toBe(1);
+      expect(first.diagnostics.find((d) => d.code === 'grazing-crossing')!.range.start.line).toBeLessThan(line);
+      await new Promise((r) => setTimeout(r, 40));
+    }
+    const done = await client.until(() => client.diagnostics.get(uri)?.find((p) => p.version === 6 && grazing(p) === 2), 20_000, 'Probe derived after the pause');
+    const arrived = performance.now();
+    expect(arrived - sent[6]!).toBeGreaterThanOrEqual(TYPING_PAUSE_MS);
+    expect(client.diagnostics.get(uri)!.filter((p) => (p.version ?? 0) > 1 && (p.version ?? 0) < 6 && grazing(p) === 2)).toEqual([]); // no fresh derivation while typing
+    expect(done.diagnostics.filter((d) => d.severity === 1 || d.severity === 2)).toEqual([]);
   });
 
   it('clears diagnostics on close, then shuts down and exits with code 0', async () => {

@@ -70,13 +70,26 @@ function mapSnapshots(x: unknown, range: (s: [number, number, boolean]) => Range
 }
 const RANGE_TAG = '\u0000range';
 
+/** The kept diagnostics of `n` when they hold at `a`'s dt. */
+function keptFor(a: Analysis, n: ResolvedNeuron, tsRange: Range | undefined): Kept | undefined {
+  const k = kept.get(n);
+  return k && k.timestepKey === timestepKey(a) && (tsRange === undefined) === (k.timestepAt === undefined) ? k : undefined;
+}
+
+const fileTimestepRange = (a: Analysis): Range | undefined => (a.timestep?.source === 'file' ? a.timestep.range : undefined);
+
+/** Whether `reusedNeuronDerivedDiagnostics(a, n)` would hand out kept results (cheap) rather than derive. */
+export function hasKeptDerivedDiagnostics(a: Analysis, n: ResolvedNeuron): boolean {
+  return keptFor(a, n, fileTimestepRange(a)) !== undefined;
+}
+
 /** The derived diagnostics of `n` at `a`'s dt: reused (moved) when `n` and the dt are unchanged since the last call. */
 export function reusedNeuronDerivedDiagnostics(a: Analysis, n: ResolvedNeuron): Diagnostic[] {
   const key = timestepKey(a);
   const anchor = n.symbol.nameRange.start;
-  const tsRange = a.timestep?.source === 'file' ? a.timestep.range : undefined;
-  const k = kept.get(n);
-  if (k && k.timestepKey === key && (tsRange === undefined) === (k.timestepAt === undefined)) {
+  const tsRange = fileTimestepRange(a);
+  const k = keptFor(a, n, tsRange);
+  if (k) {
     derivedReuseCount.reused++;
     const dn = anchor - k.anchor, dt = tsRange && k.timestepAt !== undefined ? tsRange.start - k.timestepAt : 0;
     return mapSnapshots(k.diagnostics, ([s, e, withTs]) => ({ start: s + (withTs ? dt : dn), end: e + (withTs ? dt : dn) })) as Diagnostic[];

@@ -53,7 +53,16 @@ interface Block {
   moving?: { ranges: A.Range[]; openEnds: A.IncomingBlock[] };
 }
 
-interface Table { blocks: Block[]; eol: string; exprDims: Map<A.Expr, Dim> }
+/** The parts every analysis lists for the whole file, each the blocks' arrays one after another. */
+const JOINED = ['items', 'comments', 'tokens', 'errors', 'strayJumps', 'strayNotes', 'docForm', 'symbols', 'references', 'diagnostics'] as const;
+type JoinedPart = typeof JOINED[number];
+type Joined = { [K in JoinedPart]: Block[K][number][] };
+
+interface Table {
+  blocks: Block[]; eol: string; exprDims: Map<A.Expr, Dim>;
+  /** The joined parts of the last assemble(), kept up to date by splicing when one block is replaced. */
+  joined?: Joined;
+}
 
 /** The block table behind each analysis made here; taken out when the analysis is reused. */
 const tables = new WeakMap<Analysis, Table>();
@@ -290,6 +299,7 @@ function reuse(old: string, oldLines: LineIndex, table: Table, text: string, opt
   // Committed from here on: the old block goes, the later ones move.
   for (const key of b.exprDims.keys()) table.exprDims.delete(key);
   for (const [key, v] of fresh.exprDims) table.exprDims.set(key, v);
+  if (table.joined) spliceJoined(table.joined, blocks, k, fresh);
   blocks[k] = fresh;
   if (delta !== 0) for (let j = k + 1; j < blocks.length; j++) shift(blocks[j]!, delta);
   const a = assemble(text, table, options, LineIndex.edited(oldLines, text, p, old.length - s, text.length - s));
@@ -348,13 +358,34 @@ function joined<T>(blocks: readonly Block[], part: (b: Block) => readonly T[]): 
   return out;
 }
 
+function joinAll(blocks: readonly Block[]): Joined {
+  const out: Partial<Record<JoinedPart, unknown[]>> = {};
+  for (const part of JOINED) out[part] = joined(blocks, (b) => b[part] as readonly unknown[]);
+  return out as Joined;
+}
+
+/**
+ * Puts `fresh`'s parts where block `k`'s were in the joined arrays (in place: the analysis that
+ * listed them is consumed), so an edit does not copy the file's tokens, symbols and references.
+ */
+function spliceJoined(j: Joined, blocks: readonly Block[], k: number, fresh: Block): void {
+  for (const part of JOINED) {
+    let at = 0;
+    for (let i = 0; i < k; i++) at += blocks[i]![part].length;
+    const list = j[part] as unknown[], add = fresh[part] as readonly unknown[];
+    if (add.length < 10_000) list.splice(at, blocks[k]![part].length, ...add);
+    else j[part] = [...list.slice(0, at), ...add, ...list.slice(at + blocks[k]![part].length)] as never;
+  }
+}
+
 /** The analysis the blocks make up, as `analyse` builds it. */
 function assemble(text: string, table: Table, options: AnalyseOptions, lines = new LineIndex(text)): Analysis {
   const blocks = table.blocks;
-  const items = joined(blocks, (b) => b.items), comments = joined(blocks, (b) => b.comments), tokens = joined(blocks, (b) => b.tokens);
-  const errors = joined(blocks, (b) => b.errors), strayJumps = joined(blocks, (b) => b.strayJumps), strayNotes = joined(blocks, (b) => b.strayNotes);
-  const docForm = joined(blocks, (b) => b.docForm), neurons = joined(blocks, (b) => b.neurons), symbols = joined(blocks, (b) => b.symbols);
-  const references = joined(blocks, (b) => b.references), modelDiagnostics = joined(blocks, (b) => b.diagnostics);
+  const j = table.joined ??= joinAll(blocks);
+  const { items, comments, tokens, errors, strayJumps, strayNotes, docForm, symbols } = j;
+  // the connections' references and diagnostics are appended below: copies, the kept lists stay the blocks'
+  const references = j.references.slice(), modelDiagnostics = j.diagnostics.slice();
+  const neurons = joined(blocks, (b) => b.neurons);
   let timestepSI: number | undefined, timestepDecl: A.TimestepDecl | undefined;
   for (const b of blocks) {
     if (b.timestepDecl) timestepDecl = b.timestepDecl;

@@ -11,9 +11,10 @@ import { SALTUS_INFORMATION_URI } from './version';
 export const DIAGNOSTICS_DOC = 'docs/language.md';
 
 /** The web address of a file of the repository, from package.json `homepage`. */
+const WEB_ROOT = SALTUS_INFORMATION_URI.replace(/#.*$/, '').replace(/\/+$/, '');
+
 export function repositoryFileUrl(path: string): string {
-  const root = SALTUS_INFORMATION_URI.replace(/#.*$/, '').replace(/\/+$/, '');
-  return `${root}/blob/main/${path}`;
+  return `${WEB_ROOT}/blob/main/${path}`;
 }
 
 /** The id of a code's row in docs/language.md. */

@@ -8,7 +8,11 @@ import type { Analysis } from '../pipeline';
 import type { Diagnostic } from '../base/diagnostic';
 
 export interface CachedAnalysis {
-  uri: string; version: number; analysis: Analysis; derived?: Diagnostic[];
+  uri: string; version: number; analysis: Analysis;
+  /** The derived checks of every neuron, once all are done. */
+  derived?: Diagnostic[];
+  /** Until then: the derived checks kept from earlier versions for the neurons an edit did not touch (derivedReuse.ts). */
+  kept?: Diagnostic[];
   /** The settings the analysis was made under (settings.ts analysisKey): a change re-analyses. */
   settingsKey: string;
   /** The derived-checks run in progress for this entry (a newer run supersedes it). */

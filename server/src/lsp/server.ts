@@ -8,8 +8,9 @@
 // changes are queued, only the newest text is analysed (coalesced with setImmediate: a
 // check runs once no newer version arrived during the last event-loop turn). The fast
 // diagnostics are published with the document version; the slow derived checks run on a
-// later turn, one neuron after another in slices of the event loop (a neuron an edit did not
-// touch hands out its previous results, moved: derivedReuse.ts), and are published
+// later turn, one neuron after another in slices of the event loop (the results of neurons an
+// edit did not touch are kept, moved, and published with the fast diagnostics: derivedReuse.ts;
+// a neuron to derive afresh waits for a pause in typing, TYPING_PAUSE_MS), and are published
 // merged only if that version is still current: a newer version, closing the document or
 // shutdown cancels the rest, and DERIVED_BUDGET_MS bounds the work per version (neurons
 // not reached get one 'time-budget' diagnostic). Only the text the client sent is analysed;
@@ -22,7 +23,7 @@ import { TextDocument } from 'vscode-languageserver-textdocument';
 import { analyse, timeBudgetDiagnostic, type Analysis, type DerivedOptions } from '../pipeline';
 import { type Diagnostic, setInternalErrorLog } from '../base/diagnostic';
 import { analyseIncremental } from '../incremental';
-import { reusedNeuronDerivedDiagnostics } from '../derivedReuse';
+import { hasKeptDerivedDiagnostics, reusedNeuronDerivedDiagnostics } from '../derivedReuse';
 import type { HoverSection } from '../outputs/hover';
 import { SEMANTIC_TOKEN_MODIFIERS, SEMANTIC_TOKEN_TYPES } from '../outputs/semanticTokens';
 import { toLspDiagnostic } from './convert';
@@ -48,6 +49,8 @@ export interface ServerOptions {
 export const DERIVED_BUDGET_MS = 2000;
 /** Longest stretch of derived work before the server turns to queued messages (an edit waits at most this). */
 const SLICE_MS = 5;
+/** How long after the last edit a neuron is derived afresh (common practice: slow checks wait for a pause in typing). */
+export const TYPING_PAUSE_MS = 250;
 
 /** The newest analysis of one document version, with its derived diagnostics once computed. */
 export function startServer(connection: Connection, options: ServerOptions = {}): void {
@@ -62,6 +65,8 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   // SALTUS_FULL_ANALYSIS=1 analyses every version whole (the bench's before/after comparison).
   const incremental = process.env.SALTUS_FULL_ANALYSIS !== '1';
   let shutDown = false;
+  /** When the last edit of any document arrived (performance.now()); fresh derivations wait for a pause after it. */
+  let lastEditAt = -Infinity;
   const log = (message: string): void => { try { connection.console.error(message); } catch { /* connection gone */ } };
   setInternalErrorLog(log);
   let client: ClientFacts = NO_CLIENT_FACTS;
@@ -84,8 +89,9 @@ export function startServer(connection: Connection, options: ServerOptions = {})
       return fresh;
     },
     diagnosticsFor(c) {
-      if (!c.derived?.length) return c.analysis.diagnostics;
-      return [...c.analysis.diagnostics, ...c.derived].sort((x, y) => x.range.start - y.range.start || x.range.end - y.range.end);
+      const derived = c.derived ?? c.kept;
+      if (!derived?.length) return c.analysis.diagnostics;
+      return [...c.analysis.diagnostics, ...derived].sort((x, y) => x.range.start - y.range.start || x.range.end - y.range.end);
     },
     openUris: () => documents.all().map((d) => d.uri),
     client: () => client,
@@ -102,6 +108,11 @@ export function startServer(connection: Connection, options: ServerOptions = {})
     try {
       const c = state.analysisFor(uri);
       if (!c) return;
+      // the derived checks kept for neurons the edit did not touch go out with the fast ones
+      if (!options.derived && !c.derived) {
+        c.kept = c.analysis.model.neurons.filter((n) => n.wellFormed && hasKeptDerivedDiagnostics(c.analysis, n))
+          .flatMap((n) => reusedNeuronDerivedDiagnostics(c.analysis, n));
+      }
       publish(c);
       setImmediate(() => deriveLater(uri, c.version));
     } catch (e) {
@@ -122,14 +133,21 @@ export function startServer(connection: Connection, options: ServerOptions = {})
     }
     // One neuron after another, a slice of the event loop at a time: a newer version of the
     // document (or its closing) cancels the rest, and the work time per version is bounded.
-    const todo = c.analysis.model.neurons.filter((n) => n.wellFormed);
+    // The neurons with kept results were handed out with the fast diagnostics (validate); a
+    // neuron derived afresh (tens of milliseconds, which no slice can interrupt) waits until no
+    // edit came for TYPING_PAUSE_MS, so typing in a large file is not held up by derivations.
+    const kept = c.kept ?? [];
+    const todo = c.analysis.model.neurons.filter((n) => n.wellFormed && !hasKeptDerivedDiagnostics(c.analysis, n));
+    if (todo.length === 0) { c.derived = kept; return; } // already published with the fast diagnostics
     const run = {};
     c.deriving = run;
-    const out: Diagnostic[] = [];
+    const out: Diagnostic[] = [...kept];
     let next = 0, worked = 0;
     const slice = (): void => {
       try {
         if (documents.get(uri)?.version !== version || cache.get(uri) !== c || c.deriving !== run || shutDown) return; // stale: cancelled
+        const wait = lastEditAt + TYPING_PAUSE_MS - performance.now();
+        if (wait > 0) { setTimeout(slice, wait + 1); return; }
         const sliceStart = performance.now();
         while (next < todo.length && performance.now() - sliceStart < SLICE_MS) {
           if (worked + (performance.now() - sliceStart) > budgetMs) {
@@ -165,7 +183,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   };
 
   const revalidateAll = (): void => {
-    for (const c of cache.values()) delete c.derived;
+    for (const c of cache.values()) { delete c.derived; delete c.kept; }
     for (const doc of documents.all()) schedule(doc.uri);
   };
 
@@ -243,7 +261,7 @@ export function startServer(connection: Connection, options: ServerOptions = {})
   connection.onDidChangeConfiguration((p) => { void loadSettings(p.settings); });
 
   documents.onDidOpen((e) => schedule(e.document.uri));
-  documents.onDidChangeContent((e) => { if (settings.diagnosticsWhen === 'typing') schedule(e.document.uri); });
+  documents.onDidChangeContent((e) => { lastEditAt = performance.now(); if (settings.diagnosticsWhen === 'typing') schedule(e.document.uri); });
   documents.onDidSave((e) => schedule(e.document.uri));
   documents.onDidClose((e) => {
     cache.delete(e.document.uri);
