@@ -11,6 +11,7 @@ import type { ResolvedNeuron } from '../server/src/model/types';
 import { evaluate } from '../server/src/symbolic/evaluate';
 import { stepMapFor } from '../server/src/step/map';
 import { ARRIVAL, PSEUDO, SPIKE, eligibilityName } from '../server/src/base/names';
+import { arrivalName } from '../server/src/eprop/derive';
 import { torchPython, runPython } from './helpers/python';
 import { runEprop, type LayerProblem } from './helpers/eprop';
 import { fromMathjs as parseMathjs } from './helpers/parseMathjs';
@@ -100,7 +101,12 @@ describe('closed forms of Bellec et al. 2020 (Nat. Commun. 11:3625, Methods; for
 });
 
 /** x3 = A(F(J(x, z))) evaluated from the model's own jumps and step map, with a smooth z = s(g) so that the psi path can be differenced. */
-function composite(n: ResolvedNeuron, x: number[], w: number, pv: Record<string, number>, dt: number, z0: number, width: number): { x3: number[]; z: number } {
+/** The name of block k's arrival in the step: z_pre for the first, z_pre_<weight> for the others. */
+const arrivalOf = (n: ResolvedNeuron, k: number): string => (k === 0 ? ARRIVAL : arrivalName(n.receptors[k]!.weight));
+
+/** One discrete step with a smooth spike z = (1 + tanh(g / width)) / 2, then an arrival at each incoming block with arrive[k] = 1, one after another. */
+function composite(n: ResolvedNeuron, x: number[], ws: Record<string, number>, pv: Record<string, number>, dt: number, z0: number, width: number,
+  arrive: readonly number[] = n.receptors.map(() => 1)): { x3: number[]; z: number } {
   const env: Record<string, number> = { ...pv, dt, t: 0.003 };
   n.states.forEach((s, i) => { env[s.name] = x[i]!; });
   const g = evaluate(n.fire!.guard, env);
@@ -115,10 +121,14 @@ function composite(n: ResolvedNeuron, x: number[], w: number, pv: Record<string,
   const e2: Record<string, number> = { ...pv, dt, t: 0.003 };
   n.states.forEach((s, i) => { e2[s.name] = x1[i]!; });
   for (const st of m.stages) e2[st.name] = evaluate(st.expr, e2);
-  const x2 = m.next.map((f) => evaluate(f, e2));
-  const e3: Record<string, number> = { ...pv, [n.incoming!.weight]: w };
-  n.states.forEach((s, i) => { e3[s.name] = x2[i]!; });
-  return { x3: n.states.map((s, i) => { const r = n.incoming!.jumps.get(s.name); return r ? evaluate(r, e3) : x2[i]!; }), z };
+  let y = m.next.map((f) => evaluate(f, e2));
+  for (const [k, blk] of n.receptors.entries()) {
+    if (!arrive[k]) continue;
+    const e3: Record<string, number> = { ...pv, ...ws };
+    n.states.forEach((s, i) => { e3[s.name] = y[i]!; });
+    y = n.states.map((s, i) => { const r = blk.jumps.get(s.name); return r ? evaluate(r, e3) : y[i]!; });
+  }
+  return { x3: y, z };
 }
 
 describe('the derived one-step update against central differences of the step (every firing sample)', () => {
@@ -127,6 +137,8 @@ describe('the derived one-step update against central differences of the step (e
     ['adaptive_lif.saltus', 'AdaptiveLif', [1.1, 0.5, 0.3]],
     ['izhikevich.saltus', 'Izhikevich', [0.025, -0.01, 0.004]],
     ['adex.saltus', 'AdEx', [-0.0405, 0.05e-9, 0.1e-9]],
+    // two incoming blocks (receptors), both arriving in the step, each with its own weight
+    ['receptors.saltus', 'Balanced', [0.9, 0.4, 0.2]],
   ];
   it.each(cases)('%s', (file, name, x0) => {
     const n = neuronOf(readFileSync(join(ROOT, 'samples', file), 'utf8'), name);
@@ -134,49 +146,59 @@ describe('the derived one-step update against central differences of the step (e
     expect(d.notDerived).toBeUndefined();
     const pv: Record<string, number> = Object.fromEntries(n.params.map((p) => [p.name, p.valueSI!]));
     const dt = 1e-4, w = 0.3 * (Math.abs(x0[2] ?? x0[1]!) || 1);
+    const ws: Record<string, number> = Object.fromEntries(n.receptors.map((b, k) => [b.weight, w * (1 + 0.5 * k)]));
     const gScale = Math.abs(evaluate(n.fire!.rhs, { ...pv, ...Object.fromEntries(n.states.map((s, i) => [s.name, x0[i]!])) })) || 1;
     const width = 0.5 * gScale;
-    // the detached jumps see the spike of the base point, held (stop-gradient)
-    const z0 = composite(n, x0, w, pv, dt, 0, width).z;
-    const base = composite(n, x0, w, pv, dt, z0, width);
-    const envOf = (eps: number[], zpre: number): Record<string, number> => {
-      const env: Record<string, number> = { ...pv, dt, t: 0.003, [n.incoming!.weight]: w, [SPIKE]: base.z, [ARRIVAL]: zpre };
-      n.states.forEach((s, i) => { env[s.name] = x0[i]!; env[eligibilityName(s.name)] = eps[i]!; });
-      const g = evaluate(n.fire!.guard, env);
-      env[PSEUDO] = (0.5 / width) * (1 - Math.tanh(g / width) ** 2); // ds/dg of the smooth spike used by `composite`
-      return env;
-    };
     const zeros = n.states.map(() => 0);
     const rel = (a: number, b: number, scale: number): number => Math.abs(a - b) / Math.max(scale, 1e-300);
     let worst = 0;
-    for (const q of d.quantities) {
-      // dx3/dq: the update at eps = 0 (with the arrival for the weight)
-      const fd = (i: number): number => {
-        if (q.kind === 'weight') { const h = 1e-6 * Math.max(1, Math.abs(w)); return (composite(n, x0, w + h, pv, dt, z0, width).x3[i]! - composite(n, x0, w - h, pv, dt, z0, width).x3[i]!) / (2 * h); }
-        const h = 1e-6 * Math.abs(pv[q.name]!);
-        const up = composite(n, x0, w, { ...pv, [q.name]: pv[q.name]! + h }, dt, z0, width).x3[i]!;
-        const dn = composite(n, x0, w, { ...pv, [q.name]: pv[q.name]! - h }, dt, z0, width).x3[i]!;
-        return (up - dn) / (2 * h);
+    // every block alone, and all together (one block: it arrives)
+    const patterns = n.receptors.length === 1 ? [[1]] : [n.receptors.map(() => 1), ...n.receptors.map((_, k) => n.receptors.map((__, j) => (j === k ? 1 : 0)))];
+    for (const arrive of patterns) {
+      // the detached jumps see the spike of the base point, held (stop-gradient)
+      const z0 = composite(n, x0, ws, pv, dt, 0, width, arrive).z;
+      const base = composite(n, x0, ws, pv, dt, z0, width, arrive);
+      const envOf = (eps: number[], zpre: number): Record<string, number> => {
+        const env: Record<string, number> = { ...pv, ...ws, dt, t: 0.003, [SPIKE]: base.z };
+        n.receptors.forEach((_, k) => { env[arrivalOf(n, k)] = zpre * arrive[k]!; });
+        n.states.forEach((s, i) => { env[s.name] = x0[i]!; env[eligibilityName(s.name)] = eps[i]!; });
+        const g = evaluate(n.fire!.guard, env);
+        env[PSEUDO] = (0.5 / width) * (1 - Math.tanh(g / width) ** 2); // ds/dg of the smooth spike used by `composite`
+        return env;
       };
-      n.states.forEach((_, i) => {
-        const got = evaluate(q.update[i]!, envOf(zeros, 1));
-        const want = fd(i);
-        worst = Math.max(worst, rel(got, want, Math.max(Math.abs(want), 1e-8 * Math.abs(x0[i]!) / Math.abs(q.kind === 'weight' ? w : pv[q.name]!))));
+      for (const q of d.quantities) {
+        // dx3/dq: the update at eps = 0 (with the arrival for the weight)
+        const fd = (i: number): number => {
+          if (q.kind === 'weight') {
+            const h = 1e-6 * Math.max(1, Math.abs(ws[q.name]!));
+            return (composite(n, x0, { ...ws, [q.name]: ws[q.name]! + h }, pv, dt, z0, width, arrive).x3[i]! - composite(n, x0, { ...ws, [q.name]: ws[q.name]! - h }, pv, dt, z0, width, arrive).x3[i]!) / (2 * h);
+          }
+          const h = 1e-6 * Math.abs(pv[q.name]!);
+          const up = composite(n, x0, ws, { ...pv, [q.name]: pv[q.name]! + h }, dt, z0, width, arrive).x3[i]!;
+          const dn = composite(n, x0, ws, { ...pv, [q.name]: pv[q.name]! - h }, dt, z0, width, arrive).x3[i]!;
+          return (up - dn) / (2 * h);
+        };
+        n.states.forEach((_, i) => {
+          const got = evaluate(q.update[i]!, envOf(zeros, 1));
+          const want = fd(i);
+          worst = Math.max(worst, rel(got, want, Math.max(Math.abs(want), 1e-8 * Math.abs(x0[i]!) / Math.abs(q.kind === 'weight' ? ws[q.name]! : pv[q.name]!))));
+        });
+      }
+      // M = dx3/dx: the update's response to each unit eligibility, against differences in each state
+      const q0 = d.quantities[0]!;
+      n.states.forEach((_, j) => {
+        const h = 1e-6 * Math.max(Math.abs(x0[j]!), 1e-3 * gScale);
+        const up = [...x0]; up[j]! += h; const dn = [...x0]; dn[j]! -= h;
+        const xu = composite(n, up, ws, pv, dt, z0, width, arrive).x3, xd = composite(n, dn, ws, pv, dt, z0, width, arrive).x3;
+        const unit = zeros.map((_, k) => (k === j ? 1 : 0));
+        n.states.forEach((_, i) => {
+          const got = evaluate(q0.update[i]!, envOf(unit, 0)) - evaluate(q0.update[i]!, envOf(zeros, 0));
+          const want = (xu[i]! - xd[i]!) / (2 * h);
+          worst = Math.max(worst, rel(got, want, Math.max(Math.abs(want), 1e-6 * Math.abs(x0[i]! / (x0[j]! || 1)))));
+        });
       });
     }
-    // M = dx3/dx: the update's response to each unit eligibility, against differences in each state
-    const q0 = d.quantities[0]!;
-    n.states.forEach((_, j) => {
-      const h = 1e-6 * Math.max(Math.abs(x0[j]!), 1e-3 * gScale);
-      const up = [...x0]; up[j]! += h; const dn = [...x0]; dn[j]! -= h;
-      const xu = composite(n, up, w, pv, dt, z0, width).x3, xd = composite(n, dn, w, pv, dt, z0, width).x3;
-      const unit = zeros.map((_, k) => (k === j ? 1 : 0));
-      n.states.forEach((_, i) => {
-        const got = evaluate(q0.update[i]!, envOf(unit, 0)) - evaluate(q0.update[i]!, envOf(zeros, 0));
-        const want = (xu[i]! - xd[i]!) / (2 * h);
-        worst = Math.max(worst, rel(got, want, Math.max(Math.abs(want), 1e-6 * Math.abs(x0[i]! / (x0[j]! || 1)))));
-      });
-    });
+    expect(d.quantities.filter((q) => q.kind === 'weight').map((q) => q.name)).toEqual(n.receptors.map((b) => b.weight));
     console.log(`${file}: worst relative difference to central differences ${worst.toExponential(2)}`);
     expect(worst).toBeLessThan(1e-5);
   }, 60_000);
