@@ -326,8 +326,12 @@ describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulat
     const grid = compare('delayed_relay', relay, 1e-4);
     expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
   }, 300_000);
-  test.skipIf(!torchPython())('the relay through the PyTorch runner (the same runtime on tensors; delays reported, not trained)', () => {
-    compare('delayed_relay', relay, 1e-4, 'torch', torchPython()!);
+  test('the model file\'s delay reaches the runner: no "delay_s" on the readout projection, the file\'s 1 ms (as the cross-check reads it)', () => {
+    const grid = compare('delayed_relay', (sc) => { relay(sc); delete sc.projections[2].delay_s; }, 1e-4);
+    expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
+  }, 300_000);
+  test.skipIf(!torchPython())('the relay through the PyTorch runner (the same runtime on tensors; delays reported, not trained; the readout\'s delay the file\'s)', () => {
+    compare('delayed_relay', (sc) => { relay(sc); delete sc.projections[2].delay_s; }, 1e-4, 'torch', torchPython()!);
   }, 300_000);
   test('the delta layer, two trials: neurons fired by jumps at delayed arrivals', () => {
     compare('delta_layer', (sc) => {

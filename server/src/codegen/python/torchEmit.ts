@@ -7,7 +7,8 @@
 // generated-code marker and a hash line.
 import { oneLine, pyComment, pyStringBody } from '../escape';
 import type { KernelPlan } from '../kernelPlan';
-import { type GeneratedFile, TORCH_DIALECT, importLines, runnerFile } from './emit';
+import { type GeneratedFile, TORCH_DIALECT, fileDelaysLines, importLines, runnerFile } from './emit';
+import type { FileDelay } from '../network';
 import torchLayersText from './torch_layers.py?raw';
 
 const HASH = '# saltus-hash: sha256:@@SALTUS_HASH@@ (of this file without this line). Saltus will not overwrite this file once it has been changed, unless forced.';
@@ -74,12 +75,12 @@ export function layersFile(plans: readonly KernelPlan[]): GeneratedFile {
 }
 
 /** network.py: the Network module of a network description, over the generated models. */
-export function networkFile(plans: readonly KernelPlan[]): GeneratedFile {
+export function networkFile(plans: readonly KernelPlan[], fileDelays: readonly FileDelay[] = []): GeneratedFile {
   const L = [...stamp('network.py', 'the Network module of a network description'),
     '"""Network: a network description (docs/network-step.md) as an nn.Module whose forward returns its loss."""',
     'import torch', '',
     ...importLines(TORCH_DIALECT, [...plans.map((p): [string, string, string] => [mod(p), '', alias(p)]), ['saltus_torch', 'GridNetwork']]), '',
-    'MODELS = {', ...plans.map((p) => `    "${pyStringBody(p.neuron.name)}": ${alias(p)},`), '}', '', '',
+    'MODELS = {', ...plans.map((p) => `    "${pyStringBody(p.neuron.name)}": ${alias(p)},`), '}', '', ...fileDelaysLines(fileDelays), '',
     'class Network(GridNetwork):',
     '    """A network description as a module: weights per projection and trainable parameters per',
     '    population as nn.Parameters; forward() runs every trial and returns the loss with its exact gradient.',
@@ -95,7 +96,7 @@ export function networkFile(plans: readonly KernelPlan[]): GeneratedFile {
     '    """',
     '',
     '    def __init__(self, description: dict, dt: float, dtype: torch.dtype = torch.float64, device=None, max_spikes: int = 100000) -> None:',
-    '        super().__init__(description, MODELS, dt, dtype=dtype, device=device, max_spikes=max_spikes)', '', '',
+    '        super().__init__(description, MODELS, dt, dtype=dtype, device=device, max_spikes=max_spikes, file_delays=FILE_DELAYS)', '', '',
     '__all__ = ["Network", "MODELS"]'];
   return { name: 'network.py', content: L.join('\n') + '\n' };
 }

@@ -455,13 +455,15 @@ class GridNetwork(torch.nn.Module):
         Of the weights and parameters.
     """
 
-    def __init__(self, description: dict, models: dict, dt: float, dtype=torch.float64, device=None, max_spikes: int = 100000):
+    def __init__(self, description: dict, models: dict, dt: float, dtype=torch.float64, device=None, max_spikes: int = 100000,
+                 file_delays: Optional[dict] = None):
         super().__init__()
         self.description = description
         self.models = dict(models)
+        self.file_delays = dict(file_delays or {})  # the model file's delays (grid.load_network)
         self.dt = float(dt)
         self.max_spikes = int(max_spikes)
-        base = grid.load_network(description, self.models)
+        base = grid.load_network(description, self.models, self.file_delays)
         self.weights = torch.nn.ParameterList([torch.nn.Parameter(torch.tensor(p["weights"], dtype=dtype, device=device))
                                                for p in description["projections"]])
         self._param_keys: List[Tuple[str, str]] = []
@@ -496,7 +498,7 @@ class GridNetwork(torch.nn.Module):
         desc["populations"] = pops
         dtype, device = self._dtype_device()
         with X.on(dtype, device):
-            return grid.load_network(desc, self.models)
+            return grid.load_network(desc, self.models, self.file_delays)
 
     def forward(self) -> torch.Tensor:
         """Runs every trial; returns the loss (a 0-d tensor) whose backward is the exact gradient."""
