@@ -157,8 +157,8 @@ class _Live:
             starts.append(y)
         S = self.S
         G = len(self.model.GRAD_PARAMS)
-        dh = 0.0
-        da = 0.0
+        dh = X.zeros_like(h)  # arrays even where the kernel's outputs are constants (a guard state without flow)
+        da = X.zeros_like(h)
         for s in range(self.m - 1, -1, -1):
             out = self.model.map_vjp(starts[s], self.pop.params, a + s * sub, sub, lam)
             fh, ft = out[S], out[S + 1]
