@@ -175,6 +175,24 @@ describe.skipIf(!hasGcc)('C runner with transmission delays: the grid simulator\
     expect(delay).toBeLessThan(1e-3);
   }, 120_000);
 
+  test('a bad delay_s stops the runner with a message naming the field (exit 2)', () => {
+    const text = sampleText('delayed_relay');
+    const dir = build('relay-bad', text, relay(sampleJson('delayed_relay')));
+    const answer = (edit: (sc: Sc) => void): string => {
+      const sc = relay(sampleJson('delayed_relay'));
+      edit(sc);
+      writeFileSync(join(dir, 'net.json'), JSON.stringify(sc));
+      const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', '0.1ms'], { cwd: dir, encoding: 'utf8' });
+      expect(r.status).toBe(2);
+      return r.stderr;
+    };
+    expect(answer((sc) => { sc.projections[2].delay_s = -1e-3; })).toMatch(/projections\[2\]\.delay_s: a delay must be a finite number of seconds >= 0/);
+    expect(answer((sc) => { sc.projections[1].delay_s = [[0, 1e-3]]; })).toMatch(/projections\[1\]\.delay_s: must be one delay \(s\) or 2 rows of 2 numbers/);
+    expect(answer((sc) => { sc.projections[1].delay_s = [[0, 1e-3], [0]]; })).toMatch(/projections\[1\]\.delay_s\[1\]: must be a list of 2 delays/);
+    expect(answer((sc) => { sc.projections[1].delay_s = [[0, 1e-3], [null, 0]]; })).toMatch(/projections\[1\]\.delay_s\[1\]\[0\]: a delay must be/);
+    expect(answer((sc) => { sc.projections[0].delay_s = 'soon'; })).toMatch(/projections\[0\]\.delay_s: must be one delay/);
+  }, 120_000);
+
   test('negative control: the delay gradients with their sign flipped fail the comparison', () => {
     const text = sampleText('delayed_relay');
     const json = relay(sampleJson('delayed_relay'));
