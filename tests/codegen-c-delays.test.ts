@@ -238,14 +238,17 @@ function nvcc(args: string[], cwd: string): Promise<{ status: number | null; std
 }
 
 describe.skipIf(!hasGcc || !NVCC)('CUDA runner with delays: nvcc -Werror build, its host path equal to the C runner', () => {
-  test('receptors with shared and per-synapse delays: saltus_run.cu --host against saltus_run.c', async () => {
+  test('receptors with shared and per-synapse delays: saltus_run.cu --host against saltus_run.c (and nvcc -c in single precision)', async () => {
     const text = sampleText('receptors');
     const sc = sampleJson('receptors');
     sc.projections[0].delay_s = 0.6e-3;
     sc.projections[2].delay_s = [[0, 1.1e-3], [0.7e-3, 0]];
+    const FLAGS = ['-Werror', 'all-warnings', '-Xcompiler', '-Wall,-Wextra'];
     const dir = build('receptors-cuda', text, sc, { cuda: true });
-    const b = await nvcc(['-O2', '-Werror', 'all-warnings', '-Xcompiler', '-Wall,-Wextra', '-o', 'saltus_run', 'saltus_run.cu'], dir);
+    const single = build('receptors-cuda-float', text, sc, { cuda: true, float: true });
+    const [b, f] = await Promise.all([nvcc(['-O2', ...FLAGS, '-o', 'saltus_run', 'saltus_run.cu'], dir), nvcc(['-c', ...FLAGS, 'saltus_grid.cu', '-o', 'saltus_grid.o'], single)]);
     expect(b.status, b.stderr).toBe(0);
+    expect(f.status, `single precision, nvcc -c: ${f.stderr}`).toBe(0);
     const host = run(dir, sc, '0.1ms', ['--host']);
     const c = run(build('receptors-c', text, sc), sc, '0.1ms');
     expect(host.spikes).toEqual(c.spikes);
