@@ -24,7 +24,7 @@ import { type Network, gridBackward, gridForward, networkFromScenario } from '..
 import { type RunnerReport, compareWithGrid, gradientDeviation, rel } from './helpers/gridCompare';
 
 type Report = RunnerReport & { delays?: number[][][] };
-type Sc = Record<string, any>; // eslint-disable-line @typescript-eslint/no-explicit-any
+type Sc = Record<string, any>;
 
 const ROOT = join(__dirname, '..');
 const work = mkdtempSync(join(tmpdir(), 'saltus-codegen-c-delays-'));

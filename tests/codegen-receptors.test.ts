@@ -187,7 +187,7 @@ print(json.dumps(out))
     const g = generateFiles(analyse(text), { target: 'torch', source: 'receptors.saltus' });
     expect(g.errors).toEqual([]);
     expect(writeGenerated(join(dir, 'pkg_rec'), g.files, { force: true }).errors).toEqual([]);
-    const r = JSON.parse(runPython(torch!, ['-c', script], dir)) as Record<string, any>; // eslint-disable-line @typescript-eslint/no-explicit-any
+    const r = JSON.parse(runPython(torch!, ['-c', script], dir)) as Record<string, any>;
     for (const [key, blocks] of [['both', ['w_exc', 'w_inh']], ['inh', ['w_inh']]] as const) {
       const np = runNumpy(`layer_${key}`, text, description([...blocks]), '0.1ms');
       const t = r[key];
