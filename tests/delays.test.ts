@@ -265,17 +265,20 @@ describe('delays on the grid (the semantics of generated code)', () => {
   });
 });
 
-describe('generated code refuses delays it does not run yet', () => {
-  test('a network description with delay_s, or over a file that connects with a delay, is refused with its place', () => {
+describe('generated code takes delay_s and the file\'s delays', () => {
+  test('a network description with delay_s is read, and the file\'s delays travel with it for the runner', () => {
     const sc = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'delayed_relay.json'), 'utf8'));
-    const r = readNetworkSpec(sc, ['Relay', 'Readout'], ['Relay -> Relay', 'Relay -> Readout']);
-    expect(r.errors.filter((e) => /transmission delays are not in this target's generated code yet/.test(e)).map((e) => e.split(':')[0])).toEqual(
-      ['projections[0].delay_s', 'projections[1].delay_s', 'projections[2]']);
-    // the NumPy target runs delay_s, but no runner reads the file's delay: it must be given as delay_s
-    expect(readNetworkSpec(sc, ['Relay', 'Readout'], ['Relay -> Relay', 'Relay -> Readout'], true).errors.filter((e) => /model file connects/.test(e)))
-      .toEqual([expect.stringMatching(/^projections\[2\]: the model file connects Relay -> Readout with a delay, which the generated runner does not read: give it as this projection's "delay_s"$/)]);
-    const plain = JSON.parse(readFileSync(join(__dirname, '..', 'samples', 'scenarios', 'lif_current.json'), 'utf8'));
-    expect(readNetworkSpec(plain, ['LifCurrent', 'Readout'], []).errors).toEqual([]);
+    const file = [{ from: 'Relay', to: 'Relay', via: 'w', delay: 5e-4 }, { from: 'Relay', to: 'Readout', via: 'w', delay: 1e-3 }];
+    const r = readNetworkSpec(sc, ['Relay', 'Readout'], file);
+    // only the quantities with units are refused (the runner reads SI numbers), never a delay as such
+    expect(r.errors.every((e) => /reads SI numbers only/.test(e))).toBe(true);
+    const si = { ...sc, duration_s: 0.05, projections: sc.projections.map((p: Record<string, unknown>, k: number) => ({ ...p, ...(k === 0 ? { delay_s: 3e-4 } : k === 1 ? { delay_s: [[0, 4e-4], [8e-4, 0]] } : {}) })) };
+    const ok = readNetworkSpec(si, ['Relay', 'Readout'], file);
+    expect(ok.errors).toEqual([]);
+    expect(ok.spec!.fileDelays).toEqual(file);
+    const g = generateFiles(analyse(readFileSync(join(__dirname, '..', 'samples', 'delayed_relay.saltus'), 'utf8')), { target: 'c', network: si });
+    expect(g.errors).toEqual([]);
+    expect(g.files.find((f) => f.name === 'saltus_run.c')!.content).toContain('{"Relay", "Readout", "w", 0.001},');
   });
 });
 
@@ -323,8 +326,12 @@ describe.skipIf(!python)('delays in the generated NumPy runner: the grid simulat
     const grid = compare('delayed_relay', relay, 1e-4);
     expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
   }, 300_000);
-  test.skipIf(!torchPython())('the relay through the PyTorch runner (the same runtime on tensors; delays reported, not trained)', () => {
-    compare('delayed_relay', relay, 1e-4, 'torch', torchPython()!);
+  test('the model file\'s delay reaches the runner: no "delay_s" on the readout projection, the file\'s 1 ms (as the cross-check reads it)', () => {
+    const grid = compare('delayed_relay', (sc) => { relay(sc); delete sc.projections[2].delay_s; }, 1e-4);
+    expect(grid[2]![0]!.every((v) => v !== 0)).toBe(true);
+  }, 300_000);
+  test.skipIf(!torchPython())('the relay through the PyTorch runner (the same runtime on tensors; delays reported, not trained; the readout\'s delay the file\'s)', () => {
+    compare('delayed_relay', (sc) => { relay(sc); delete sc.projections[2].delay_s; }, 1e-4, 'torch', torchPython()!);
   }, 300_000);
   test('the delta layer, two trials: neurons fired by jumps at delayed arrivals', () => {
     compare('delta_layer', (sc) => {

@@ -13,7 +13,7 @@ import { afterAll, describe, expect, test } from 'vitest';
 import { analyse } from '../server/src/pipeline';
 import { generateFiles } from '../server/src/codegen';
 import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
-import { gridForward, networkFromScenario } from '../server/src/grid';
+import { gridBackward, gridForward, networkFromScenario } from '../server/src/grid';
 import { numpyPython } from './helpers/python';
 import { type RunnerReport, compareWithGrid } from './helpers/gridCompare';
 
@@ -135,5 +135,89 @@ describe.skipIf(!hasGcc)('C runner', () => {
   }, 120_000);
   test('stops on a loop with a message', () => {
     expect(runC('loop', LOOP).stderr).toMatch(/b\[[01]\] is carried across its threshold a second time at 0\.002 s.*loop of spikes fired by jumps/);
+  }, 120_000);
+});
+
+// A guard whose states have no flow (a spike counter: only incoming jumps move it, so it fires
+// only by jumps, docs/language.md "Spikes fired by jumps"). Its step map and the map's
+// derivatives in time are constants; the runners take them as arrays. Two counters, two trials,
+// a delayed projection onto a leaky score: the NumPy and C runners against the grid simulator to
+// 1e-12, and the grid's gradients against the accurate simulator's adjoint, which the cross-check
+// compares with central finite differences (our own independent check).
+const COUNTER = `neuron Counter {
+  param n_max = 3
+  param tau_u = 5 [ms] trainable
+  state c = 0
+  state u = 0
+  du/dt = -u / tau_u
+  fire when c crosses n_max up { c := 0  u := u + 1 }
+  incoming w { c := c + w  u := u + 0.1 * w }
+}
+neuron Score {
+  param tau = 10 [ms] trainable
+  state V = 0
+  dV/dt = -V / tau
+  incoming w { V := V + w }
+}
+connect Counter -> Score`;
+const IN0 = [[0.001, 0], [0.002, 1], [0.003, 0], [0.004, 1], [0.0055, 0], [0.007, 1], [0.008, 0], [0.0105, 1], [0.012, 0]];
+const IN1 = [[0.0015, 1], [0.0025, 0], [0.0042, 1], [0.006, 0], [0.0071, 1], [0.0093, 0], [0.011, 1]];
+const counterNet = (trials: number[][][]) => ({
+  duration_s: 0.016,
+  populations: { pulses: { size: 2, ...(trials.length === 1 ? { spikes: trials[0] } : {}) }, cnt: { model: 'Counter', size: 2 }, sc: { model: 'Score', size: 1 } },
+  projections: [
+    { from: 'pulses', to: 'cnt', weights: [[1.1, 0.6], [0.5, 1.2]] },
+    { from: 'cnt', to: 'sc', weights: [[0.7, -0.4]], delay_s: 5e-4 },
+  ],
+  ...(trials.length > 1 ? { trials: trials.map((s) => ({ inputs: { pulses: s } })) } : {}),
+  loss: { kind: 'state-integral', population: 'sc', state: 'V', target: 0.1 },
+});
+function counterRun(target: 'numpy' | 'c', net: unknown): RunnerReport {
+  const dir = join(work, `counter_${target}`);
+  const g = generateFiles(analyse(COUNTER), { target, network: net, source: 'counter.saltus' });
+  expect(g.errors).toEqual([]);
+  mkdirSync(dir, { recursive: true });
+  for (const f of g.files) writeFileSync(join(dir, f.name), f.content);
+  writeFileSync(join(dir, 'net.json'), JSON.stringify(net));
+  if (target === 'c') {
+    const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic', ...readdirSync(dir).filter((f) => f.endsWith('.c')), '-lm', '-o', 'run'],
+      { cwd: dir, encoding: 'utf8' });
+    if (cc.status !== 0 || cc.stderr) throw new Error(`gcc failed:\n${cc.stderr}`);
+  }
+  const r = target === 'c' ? spawnSync(join(dir, 'run'), ['net.json', '--dt', '0.1ms', '--format', 'json'], { cwd: dir, encoding: 'utf8' })
+    : spawnSync(python!, ['run.py', 'net.json', '--dt', '0.1ms', '--format', 'json'], { cwd: dir, encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`${target} runner failed:\n${r.stderr}`);
+  return JSON.parse(r.stdout) as RunnerReport;
+}
+const counterGrid = (trials: number[][][]) => {
+  const sc = parseScenario(counterNet([trials[0]!]), analyse(COUNTER));
+  if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+  const net = networkFromScenario(sc.scenario);
+  net.trials = trials.map((s) => ({ inputs: { pulses: s as [number, number][] } }));
+  return net;
+};
+
+describe('a spike counter (a guard without flow) in generated code', () => {
+  test('the grid\'s gradients are the accurate simulator\'s, which agree with central differences', () => {
+    const run = gridForward(counterGrid([IN0]), { dt: 1e-4 });
+    expect(run.errors).toEqual([]);
+    expect(run.trials[0]!.spikes.cnt!.length).toBeGreaterThan(2);
+    const g = gridBackward(run);
+    const cc = runCrossCheckSync(analyse(COUNTER), counterNet([IN0]), { traces: false });
+    expect(cc.errors).toEqual([]);
+    expect(cc.passed).toBe(true);
+    for (const row of cc.gradients) {
+      const grid = g.weights[row.projection]![row.to]![row.from]!;
+      expect(Math.abs(grid - row.adjoint), `w${row.projection}[${row.to}][${row.from}]`).toBeLessThanOrEqual(1e-8 * Math.max(Math.abs(row.adjoint), 1e-6));
+    }
+    expect(cc.gradients.some((row) => row.adjoint !== 0)).toBe(true);
+  });
+  test.skipIf(!python)('the NumPy runner agrees with the grid simulator to 1e-12 (two trials)', () => {
+    const r = compareWithGrid('NumPy runner', 'spike counter', counterGrid([IN0, IN1]), 1e-4, counterRun('numpy', counterNet([IN0, IN1])));
+    expect(r.spikes).toBeGreaterThan(3);
+  }, 120_000);
+  test.skipIf(!hasGcc)('the C runner agrees with the grid simulator to 1e-12 (two trials)', () => {
+    const r = compareWithGrid('C runner', 'spike counter', counterGrid([IN0, IN1]), 1e-4, counterRun('c', counterNet([IN0, IN1])));
+    expect(r.spikes).toBeGreaterThan(3);
   }, 120_000);
 });

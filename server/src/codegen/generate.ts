@@ -68,8 +68,12 @@ export function generateFiles(analysis: Analysis, options: GenerateOptions): Gen
     const errors: string[] = [];
     let network;
     if (options.network !== undefined) {
-      const r = readNetworkSpec(options.network, all.map((n) => n.name),
-        analysis.model.connections.filter((c) => c.delaySI !== undefined).map((c) => `${c.from} -> ${c.to}`), options.target === 'numpy' || options.target === 'torch');
+      // the file's delays, by the receiving block's weight (crosscheck/scenario.ts takes them the same way)
+      const fileDelays = analysis.model.connections.flatMap((c) => {
+        const via = c.via ?? all.find((n) => n.name === c.to)?.receptors[0]?.weight;
+        return c.delaySI !== undefined && via !== undefined ? [{ from: c.from, to: c.to, via, delay: c.delaySI }] : [];
+      });
+      const r = readNetworkSpec(options.network, all.map((n) => n.name), fileDelays);
       if (r.errors.length) return fail(...r.errors.map((e) => `network description: ${e}`));
       network = r.spec!;
     }

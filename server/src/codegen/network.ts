@@ -3,9 +3,10 @@
 // generated runner reads the file again at run time for weights, inputs and the loss.
 // The runner reads SI numbers only: a quantity with a unit ("2 [nS]"), which the cross-check
 // accepts, is refused here with its path and the SI number to write.
-// Transmission delays: the Python runtime (NumPy, PyTorch) reads `delay_s` (`delaysRun`); C
-// and CUDA do not run delays yet, and no runner reads a `connect ... delay` of the file (`fileDelays`): such
-// a description is refused with the place, never run without them.
+// Transmission delays: every runner (NumPy, PyTorch, C, CUDA) reads a projection's `delay_s`;
+// without one it takes the model file's `connect A -> B [via W] delay D` between the two
+// populations' models into that block (`fileDelays`, baked into the generated runner), the rule
+// of the cross-check (crosscheck/scenario.ts): a description's `delay_s` overrides the file's.
 // Invariant: `readNetworkSpec` never throws; problems name the JSON field.
 import { readQuantity } from '../crosscheck/quantity';
 
@@ -14,12 +15,18 @@ export interface NetworkSpec {
   models: string[];
   /** The parsed description (handed to the runner's tests and docs as it is). */
   json: unknown;
+  /** The model file's delays, which a runner applies to a projection without its own `delay_s`. */
+  fileDelays: FileDelay[];
 }
+
+/** A `connect from -> to [via] delay D` of the model file: models by declared name, the receiving
+ *  block by its weight name (the first block's when the connection names none), D in seconds. */
+export interface FileDelay { from: string; to: string; via: string; delay: number }
 
 type Obj = Record<string, unknown>;
 const isObj = (v: unknown): v is Obj => typeof v === 'object' && v !== null && !Array.isArray(v);
 
-export function readNetworkSpec(json: unknown, modelNames: readonly string[], fileDelays: readonly string[] = [], delaysRun = false): { spec?: NetworkSpec; errors: string[] } {
+export function readNetworkSpec(json: unknown, modelNames: readonly string[], fileDelays: readonly FileDelay[] = []): { spec?: NetworkSpec; errors: string[] } {
   const errors: string[] = [];
   if (!isObj(json)) return { errors: ['the network description must be a JSON object with populations, projections and loss'] };
   const pops = json.populations;
@@ -33,20 +40,10 @@ export function readNetworkSpec(json: unknown, modelNames: readonly string[], fi
     } else if (!models.includes(p.model)) models.push(p.model);
   }
   if (!Array.isArray(json.projections)) errors.push('projections: must be a list');
-  else {
-    json.projections.forEach((p: unknown, k) => {
-      if (isObj(p) && p.delay_s !== undefined && !delaysRun) errors.push(`projections[${k}].delay_s: transmission delays are not in this target's generated code yet (the NumPy and PyTorch targets and the cross-check run them)`);
-      const from = isObj(p) && typeof p.from === 'string' && isObj(pops[p.from]) ? (pops[p.from] as Obj).model : undefined;
-      const to = isObj(p) && typeof p.to === 'string' && isObj(pops[p.to]) ? (pops[p.to] as Obj).model : undefined;
-      if (isObj(p) && p.delay_s === undefined && fileDelays.includes(`${String(from)} -> ${String(to)}`)) {
-        errors.push(`projections[${k}]: the model file connects ${String(from)} -> ${String(to)} with a delay, which the generated runner does not read: give it as this projection's "delay_s"${delaysRun ? '' : ' (transmission delays are not in this target\'s generated code yet; the NumPy and PyTorch targets and the cross-check run them)'}`);
-      }
-    });
-  }
   if (!isObj(json.loss)) errors.push('loss: must be an object');
   if (models.length === 0 && errors.length === 0) errors.push('populations: no population uses a model of the file');
   errors.push(...quantityStrings(json).slice(0, 5));
-  return errors.length ? { errors } : { spec: { models, json }, errors };
+  return errors.length ? { errors } : { spec: { models, json, fileDelays: [...fileDelays] }, errors };
 }
 
 /** Fields whose string values are names or text, not values. */

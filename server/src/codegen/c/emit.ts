@@ -23,6 +23,10 @@ import epropHeaderText from './saltus_eprop.h?raw';
 import epropBodyText from './saltus_eprop.c?raw';
 import epropRunText from './saltus_eprop_run.c?raw';
 import { NO_EPROP_RUNNER, anyEprop, epropC } from './eprop';
+import type { FileDelay } from '../network';
+
+/** A double as C reads it back exactly. */
+const cDouble = (v: number): string => { const t = String(v); return /[.eE]/.test(t) ? t : `${t}.0`; };
 
 export interface GeneratedFile { name: string; content: string }
 
@@ -251,7 +255,7 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
 }
 
 /** The network runner: saltus_run.c (C) or saltus_run.cu (CUDA; it includes saltus_grid.cu). */
-export function runnerFile(models: readonly KernelPlan[], f: CFlavour): GeneratedFile {
+export function runnerFile(models: readonly KernelPlan[], f: CFlavour, fileDelays: readonly FileDelay[] = []): GeneratedFile {
   const file = f.cuda ? 'saltus_run.cu' : 'saltus_run.c';
   const build = f.cuda ? 'nvcc -O2 -o saltus_run saltus_run.cu' : `cc -std=c99 -O2 -o saltus_run saltus_run.c saltus_grid.c ${models.map((m) => `${m.prefix}.c`).join(' ')} -lm`;
   const L = ['/*', ` * ${file}: runs a network description on the generated grid step and prints its loss, spikes and exact gradient`,
@@ -262,6 +266,12 @@ export function runnerFile(models: readonly KernelPlan[], f: CFlavour): Generate
     '/* The models this runner knows, by the name declared in the model file. */',
     `static const saltus_model *const saltus_models[] = {${models.map((m) => `&${m.prefix}_model`).join(', ')}};`,
     `#define SALTUS_N_MODELS ${models.length}`,
+    '/* The model file\'s `connect A -> B [via W] delay D` (models and block by declared name, D in s): a projection',
+    '   between populations of those models into that block without its own "delay_s" takes D (docs/codegen.md). */',
+    'typedef struct { const char *from, *to, *via; double delay; } saltus_file_delay;',
+    'static const saltus_file_delay saltus_file_delays[] = {',
+    ...fileDelays.map((d) => `    {"${cStringBody(d.from)}", "${cStringBody(d.to)}", "${cStringBody(d.via)}", ${cDouble(d.delay)}},`),
+    '    {0, 0, 0, 0}};',
     ...(anyEprop(models) ? ['/* Their e-prop functions (saltus_eprop.h), in the same order. */',
       `static const saltus_eprop_model *const saltus_eprop_models[] = {${models.map((m) => `&${m.prefix}_eprop`).join(', ')}};`] : []),
     '', runnerText, anyEprop(models) ? epropRunText : NO_EPROP_RUNNER];

@@ -17,6 +17,6 @@ export function cFiles(ctx: TargetContext, cuda: boolean): GeneratedFile[] {
   const eprop = anyEprop(plans);
   const files = plans.flatMap((p, i) => modelFiles(p, f, i, mctx, eprop));
   files.push(...runtimeFiles(plans, f));
-  if (ctx.network) files.push(runnerFile(plans, f));
+  if (ctx.network) files.push(runnerFile(plans, f, ctx.network.fileDelays));
   return files;
 }

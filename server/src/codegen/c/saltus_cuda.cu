@@ -15,11 +15,11 @@ __global__ void saltus_forward_kernel(const saltus_network *net, const saltus_pl
 }
 
 __global__ void saltus_backward_kernel(const saltus_network *net, const saltus_plan *plan, saltus_trial_ws *ws, int n_trials,
-                                       saltus_real *gW, saltus_real *gP)
+                                       saltus_real *gW, saltus_real *gP, saltus_real *gD)
 {
     int b = (int)(blockIdx.x * blockDim.x + threadIdx.x);
     if (b >= n_trials || ws[b].status != SALTUS_OK) return;
-    saltus_trial_backward(net, plan, b, &ws[b], gW + (size_t)b * plan->w_total, gP + (size_t)b * plan->g_total);
+    saltus_trial_backward(net, plan, b, &ws[b], gW + (size_t)b * plan->w_total, gP + (size_t)b * plan->g_total, gD + (size_t)b * plan->w_total);
 }
 
 /* Device memory of one run: every allocation is listed here and freed together. */
@@ -55,7 +55,7 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
     saltus_population *pops = (saltus_population *)malloc((size_t)net->n_populations * sizeof(saltus_population));
     saltus_projection *projs = (saltus_projection *)malloc(((size_t)net->n_projections + 1) * sizeof(saltus_projection));
     saltus_trial *trials = (saltus_trial *)malloc((size_t)net->n_trials * sizeof(saltus_trial));
-    saltus_real *params = 0, *initial = 0, *weights = 0, *times = 0, *targets = 0;
+    saltus_real *params = 0, *initial = 0, *weights = 0, *delays = 0, *times = 0, *targets = 0;
     int *ipop = 0, *iidx = 0;
     size_t np = 0, ns = 0, nw = 0, ni = 0, a, b2, c;
     int p, j, b, k;
@@ -71,10 +71,11 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
     params = (saltus_real *)malloc((np + 1) * sizeof(saltus_real));
     initial = (saltus_real *)malloc((ns + 1) * sizeof(saltus_real));
     weights = (saltus_real *)malloc((nw + 1) * sizeof(saltus_real));
+    delays = (saltus_real *)malloc((nw + 1) * sizeof(saltus_real));
     times = (saltus_real *)malloc((ni + 1) * sizeof(saltus_real));
     ipop = (int *)malloc((ni + 1) * sizeof(int));
     iidx = (int *)malloc((ni + 1) * sizeof(int));
-    if (!params || !initial || !weights || !times || !ipop || !iidx) { *err = cudaErrorMemoryAllocation; goto done; }
+    if (!params || !initial || !weights || !delays || !times || !ipop || !iidx) { *err = cudaErrorMemoryAllocation; goto done; }
     a = b2 = 0;
     for (p = 0; p < net->n_populations; p++) {
         const saltus_model *M = net->populations[p].model;
@@ -88,6 +89,7 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
     for (j = 0; j < net->n_projections; j++) {
         size_t n = (size_t)net->populations[net->projections[j].to].size * net->populations[net->projections[j].from].size;
         memcpy(weights + a, net->projections[j].weights, n * sizeof(saltus_real));
+        if (net->projections[j].delays) memcpy(delays + a, net->projections[j].delays, n * sizeof(saltus_real));
         a += n;
     }
     a = 0;
@@ -100,6 +102,7 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
         saltus_real *dparams = (saltus_real *)saltus_dev_copy(mem, params, np * sizeof(saltus_real), err);
         saltus_real *dinitial = (saltus_real *)saltus_dev_copy(mem, initial, ns * sizeof(saltus_real), err);
         saltus_real *dweights = (saltus_real *)saltus_dev_copy(mem, weights, nw * sizeof(saltus_real), err);
+        saltus_real *ddelays = (saltus_real *)saltus_dev_copy(mem, delays, nw * sizeof(saltus_real), err);
         saltus_real *dtimes = (saltus_real *)saltus_dev_copy(mem, times, ni * sizeof(saltus_real), err);
         int *dipop = (int *)saltus_dev_copy(mem, ipop, ni * sizeof(int), err);
         int *diidx = (int *)saltus_dev_copy(mem, iidx, ni * sizeof(int), err);
@@ -127,6 +130,7 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
         for (j = 0; j < net->n_projections; j++) {
             projs[j] = net->projections[j];
             projs[j].weights = dweights + a;
+            if (net->projections[j].delays) projs[j].delays = ddelays + a;
             a += (size_t)net->populations[net->projections[j].to].size * net->populations[net->projections[j].from].size;
         }
         a = 0;
@@ -146,7 +150,7 @@ static saltus_network *saltus_dev_network(saltus_dev_mem *mem, const saltus_netw
         out = (saltus_network *)saltus_dev_copy(mem, &d, sizeof d, err);
     }
 done:
-    free(pops); free(projs); free(trials); free(params); free(initial); free(weights); free(times); free(ipop); free(iidx);
+    free(pops); free(projs); free(trials); free(params); free(initial); free(weights); free(delays); free(times); free(ipop); free(iidx);
     return *err == cudaSuccess ? out : 0;
 }
 
@@ -157,7 +161,7 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
     saltus_network *dnet;
     saltus_plan dplan_h, *dplan;
     saltus_trial_ws *hws = 0, *dws = 0;
-    saltus_real *dgW = 0, *dgP = 0, *hgW = 0, *hgP = 0;
+    saltus_real *dgW = 0, *dgP = 0, *dgD = 0, *hgW = 0, *hgP = 0, *hgD = 0;
     size_t R, I, cap_events, cap_x, cap_s, cap_q, max_state = 1, max_n = 1, max_in = 0;
     int B = net->n_trials, b, p, attempt, capacity, blocks = (net->n_trials + SALTUS_THREADS - 1) / SALTUS_THREADS;
     size_t i;
@@ -170,8 +174,9 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
     out->trials = (saltus_trial_ws *)calloc((size_t)B, sizeof(saltus_trial_ws));
     out->gW = (saltus_real *)calloc(out->plan.w_total + 1, sizeof(saltus_real));
     out->gP = (saltus_real *)calloc((size_t)out->plan.g_total + 1, sizeof(saltus_real));
+    out->gD = (saltus_real *)calloc(out->plan.w_total + 1, sizeof(saltus_real));
     hws = (saltus_trial_ws *)calloc((size_t)B, sizeof(saltus_trial_ws));
-    if (!out->trials || !out->gW || !out->gP || !hws) { snprintf(err, cap, "out of memory"); goto fail; }
+    if (!out->trials || !out->gW || !out->gP || !out->gD || !hws) { snprintf(err, cap, "out of memory"); goto fail; }
     cudaDeviceSetLimit(cudaLimitStackSize, 32 * 1024);
     dnet = saltus_dev_network(&mem, net, &ce);
     dplan_h = out->plan;
@@ -189,7 +194,7 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
     I = saltus_ws_ints(&out->plan);
     cap_events = 1024 + 4 * max_in * (size_t)(net->n_projections + 1);
     for (attempt = 0; attempt < 12; attempt++) {
-        saltus_real *reals, *Tbuf, *xbuf;
+        saltus_real *reals, *Tbuf, *Tnbuf, *xbuf;
         int *ints, *sbuf;
         saltus_event *events;
         saltus_pending *queue;
@@ -204,6 +209,7 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
         sbuf = (int *)saltus_dev_copy(&wsmem, 0, (size_t)B * cap_s * sizeof(int), &ce);
         queue = (saltus_pending *)saltus_dev_copy(&wsmem, 0, (size_t)B * cap_q * sizeof(saltus_pending), &ce);
         Tbuf = (saltus_real *)saltus_dev_copy(&wsmem, 0, (size_t)B * (cap_events + 1) * sizeof(saltus_real), &ce);
+        Tnbuf = (saltus_real *)saltus_dev_copy(&wsmem, 0, (size_t)B * (cap_s + 1) * sizeof(saltus_real), &ce);
         if (ce != cudaSuccess) goto cuda_fail;
         for (b = 0; b < B; b++) {
             saltus_trial_ws *w = &hws[b];
@@ -214,6 +220,7 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
             w->sbuf = sbuf + (size_t)b * cap_s; w->cap_sbuf = cap_s;
             w->queue = queue + (size_t)b * cap_q; w->cap_queue = cap_q;
             w->T = Tbuf + (size_t)b * (cap_events + 1); w->cap_T = cap_events + 1;
+            w->Tn = Tnbuf + (size_t)b * (cap_s + 1); w->cap_Tn = cap_s + 1;
         }
         dws = (saltus_trial_ws *)saltus_dev_copy(&wsmem, hws, (size_t)B * sizeof(saltus_trial_ws), &ce);
         if (ce != cudaSuccess) goto cuda_fail;
@@ -236,15 +243,18 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
     }
     dgW = (saltus_real *)saltus_dev_copy(&wsmem, 0, (size_t)B * out->plan.w_total * sizeof(saltus_real), &ce);
     dgP = (saltus_real *)saltus_dev_copy(&wsmem, 0, (size_t)B * (size_t)out->plan.g_total * sizeof(saltus_real), &ce);
+    dgD = (saltus_real *)saltus_dev_copy(&wsmem, 0, (size_t)B * out->plan.w_total * sizeof(saltus_real), &ce);
     if (ce != cudaSuccess) goto cuda_fail;
-    saltus_backward_kernel<<<blocks, SALTUS_THREADS>>>(dnet, dplan, dws, B, dgW, dgP);
+    saltus_backward_kernel<<<blocks, SALTUS_THREADS>>>(dnet, dplan, dws, B, dgW, dgP, dgD);
     ce = cudaGetLastError();
     if (ce == cudaSuccess) ce = cudaDeviceSynchronize();
     hgW = (saltus_real *)malloc(((size_t)B * out->plan.w_total + 1) * sizeof(saltus_real));
     hgP = (saltus_real *)malloc(((size_t)B * (size_t)out->plan.g_total + 1) * sizeof(saltus_real));
-    if (!hgW || !hgP) { snprintf(err, cap, "out of memory"); goto fail; }
+    hgD = (saltus_real *)malloc(((size_t)B * out->plan.w_total + 1) * sizeof(saltus_real));
+    if (!hgW || !hgP || !hgD) { snprintf(err, cap, "out of memory"); goto fail; }
     if (ce == cudaSuccess) ce = cudaMemcpy(hgW, dgW, (size_t)B * out->plan.w_total * sizeof(saltus_real), cudaMemcpyDeviceToHost);
     if (ce == cudaSuccess) ce = cudaMemcpy(hgP, dgP, (size_t)B * (size_t)out->plan.g_total * sizeof(saltus_real), cudaMemcpyDeviceToHost);
+    if (ce == cudaSuccess) ce = cudaMemcpy(hgD, dgD, (size_t)B * out->plan.w_total * sizeof(saltus_real), cudaMemcpyDeviceToHost);
     if (ce == cudaSuccess) ce = cudaMemcpy(hws, dws, (size_t)B * sizeof(saltus_trial_ws), cudaMemcpyDeviceToHost);
     if (ce != cudaSuccess) goto cuda_fail;
     for (b = 0; b < B; b++) {
@@ -255,6 +265,7 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
             goto fail;
         }
         for (i = 0; i < out->plan.w_total; i++) out->gW[i] += hgW[(size_t)b * out->plan.w_total + i];
+        for (i = 0; i < out->plan.w_total; i++) out->gD[i] += hgD[(size_t)b * out->plan.w_total + i];
         for (i = 0; i < (size_t)out->plan.g_total; i++) out->gP[i] += hgP[(size_t)b * out->plan.g_total + i];
         out->loss += hws[b].loss;
         /* the host copy keeps the trial's loss and its event log (the spikes) */
@@ -266,14 +277,14 @@ int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltu
         if (ce != cudaSuccess) goto cuda_fail;
         w->cap_events = hws[b].n_events + 1;
     }
-    free(hws); free(hgW); free(hgP);
+    free(hws); free(hgW); free(hgP); free(hgD);
     saltus_dev_free(&wsmem);
     saltus_dev_free(&mem);
     return 0;
 cuda_fail:
     snprintf(err, cap, "CUDA: %s", cudaGetErrorString(ce));
 fail:
-    free(hws); free(hgW); free(hgP);
+    free(hws); free(hgW); free(hgP); free(hgD);
     saltus_dev_free(&wsmem);
     saltus_dev_free(&mem);
     saltus_result_free(out);

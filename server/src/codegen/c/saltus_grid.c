@@ -299,7 +299,7 @@ size_t saltus_ws_reals(const saltus_plan *plan)
 
 size_t saltus_ws_ints(const saltus_plan *plan)
 {
-    return 3 * (size_t)plan->n_total + (size_t)plan->n_loss + 1 + (size_t)plan->n_populations;
+    return 4 * (size_t)plan->n_total + (size_t)plan->n_loss + 1 + (size_t)plan->n_populations;
 }
 
 SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, saltus_real *reals, int *ints)
@@ -321,6 +321,7 @@ SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, sa
     ws->argmax = ints + 2 * plan->n_total;
     ws->jflag = ints + 2 * plan->n_total + plan->n_loss + 1;
     ws->jlast = ws->jflag + plan->n_total;
+    ws->jlastn = ws->jlast + plan->n_populations;
 }
 
 /* Room for `need` elements in a growable array (realloc on the host), or SALTUS_E_CAPACITY
@@ -350,6 +351,7 @@ SALTUS_DEFINE_RESERVE(reserve_xbuf, saltus_real, xbuf, cap_xbuf)
 SALTUS_DEFINE_RESERVE(reserve_sbuf, int, sbuf, cap_sbuf)
 SALTUS_DEFINE_RESERVE(reserve_queue, saltus_pending, queue, cap_queue)
 SALTUS_DEFINE_RESERVE(reserve_T, saltus_real, T, cap_T)
+SALTUS_DEFINE_RESERVE(reserve_Tn, saltus_real, Tn, cap_Tn)
 
 int saltus_ws_init(saltus_trial_ws *ws, const saltus_plan *plan)
 {
@@ -373,6 +375,7 @@ void saltus_ws_free(saltus_trial_ws *ws)
     free(ws->sbuf);
     free(ws->queue);
     free(ws->T);
+    free(ws->Tn);
     memset(ws, 0, sizeof *ws);
 }
 
@@ -383,7 +386,7 @@ SALTUS_HD static int pending_less(const saltus_pending *a, const saltus_pending 
     return a->time < b->time || (a->time == b->time && a->seq < b->seq);
 }
 
-SALTUS_HD static int queue_push(saltus_trial_ws *ws, saltus_real time, int projection, int source, int cause)
+SALTUS_HD static int queue_push(saltus_trial_ws *ws, saltus_real time, int projection, int source, int cause, int targeted, saltus_real delay)
 {
     size_t i, j;
     saltus_pending p, tmp;
@@ -394,6 +397,8 @@ SALTUS_HD static int queue_push(saltus_trial_ws *ws, saltus_real time, int proje
     p.projection = projection;
     p.source = source;
     p.cause = cause;
+    p.targeted = targeted;
+    p.delay = delay;
     i = ws->n_queue++;
     ws->queue[i] = p;
     while (i > 0) {
@@ -434,6 +439,39 @@ SALTUS_HD static saltus_real queue_next_into(const saltus_network *net, const sa
         if (p->time < best && net->projections[p->projection].to == pop) best = p->time;
     }
     return best;
+}
+
+/* Whether neuron n of projection pr's target receives the targeted arrival (source, delay d). */
+SALTUS_HD static int saltus_is_target(const saltus_network *net, const saltus_projection *pr, int n, int source, saltus_real d)
+{
+    if (pr->from == pr->to && n == source) return 0;
+    return pr->delays[(size_t)n * net->populations[pr->from].size + source] == d;
+}
+
+/* What a spike of `source` at s sends along projection j (forward.ts `schedule`): one arrival at s
+ * for the whole target, or with delays one per distinct delay d (ascending) for the neurons with
+ * that delay; one at or after the duration is dropped. */
+SALTUS_HD static int queue_schedule(const saltus_network *net, saltus_trial_ws *ws, int j, int source, saltus_real s, int cause)
+{
+    const saltus_projection *pr = &net->projections[j];
+    int n, rows = net->populations[pr->to].size, found, rc;
+    saltus_real prev = -SALTUS_INF, d, v;
+    if (!pr->delays) return queue_push(ws, s, j, source, cause, 0, 0);
+    for (;;) {
+        d = SALTUS_INF;
+        found = 0;
+        for (n = 0; n < rows; n++) {
+            if (pr->from == pr->to && n == source) continue;
+            v = pr->delays[(size_t)n * net->populations[pr->from].size + source];
+            if (v > prev && v < d) { d = v; found = 1; }
+        }
+        if (!found) return SALTUS_OK;
+        if (s + d < net->duration) {
+            rc = queue_push(ws, s + d, j, source, cause, 1, d);
+            if (rc) return rc;
+        }
+        prev = d;
+    }
 }
 
 /* ---- forward ---- */
@@ -539,6 +577,9 @@ SALTUS_NOINLINE SALTUS_HD static int fw_emit(saltus_ctx *c, int p, int n, saltus
     E->start = ws->start[pp->n_off + n];
     E->projection = E->source = E->cause = -1;
     E->by_jump = by_jump;
+    E->targeted = 0;
+    E->delay = 0;
+    E->tn_at = 0;
     E->x_at = ws->n_xbuf;
     E->s_at = (size_t)-1;
     ws->n_xbuf += (size_t)S;
@@ -552,7 +593,7 @@ SALTUS_NOINLINE SALTUS_HD static int fw_emit(saltus_ctx *c, int p, int n, saltus
     if (p == c->lp && E->first && (loss->kind == SALTUS_LOSS_SPIKE_TIME || loss->kind == SALTUS_LOSS_CE_FIRST_SPIKE)) ws->loss_values[n] = s;
     for (j = 0; j < net->n_projections; j++) {
         if (net->projections[j].from != p) continue;
-        rc = queue_push(ws, s, j, n, ev);
+        rc = queue_schedule(net, ws, j, n, s, ev);
         if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
     }
     if (++ws->spike_count > plan->max_spikes) return fw_fail(ws, SALTUS_E_SPIKES, -1, -1, -1, s);
@@ -570,7 +611,7 @@ SALTUS_HD static void fw_open_instant(saltus_ctx *c, saltus_real s)
         const saltus_pop_plan *pp = &c->plan->pops[p];
         ws->jlast[p] = -1;
         if (!c->net->populations[p].model) continue;
-        for (n = 0; n < pp->n; n++) { ws->jref[pp->n_off + n] = SALTUS_R(NAN); ws->jflag[pp->n_off + n] = 0; }
+        for (n = 0; n < pp->n; n++) { ws->jref[pp->n_off + n] = SALTUS_R(NAN); ws->jflag[pp->n_off + n] = 0; ws->jlastn[pp->n_off + n] = -1; }
     }
 }
 
@@ -610,7 +651,7 @@ SALTUS_HD static int fw_jump_fired(saltus_ctx *c, saltus_real s, int step)
         n = c->plan->pops[hitP].n_off + hitN;
         if (ws->jflag[n] & 2) return fw_fail(ws, SALTUS_E_JUMP_LOOP, hitP, hitN, -1, s);
         ws->jflag[n] |= 2;
-        rc = fw_emit(c, hitP, hitN, s, step, ws->jlast[hitP]);
+        rc = fw_emit(c, hitP, hitN, s, step, ws->jlast[hitP] > ws->jlastn[n] ? ws->jlast[hitP] : ws->jlastn[n]);
         if (rc) return rc;
     }
 }
@@ -628,7 +669,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
     c.lp = lp;
     c.ls = loss->state;
     saltus_carve(&c.t, plan, ws->scratch);
-    ws->n_events = ws->n_xbuf = ws->n_sbuf = ws->n_queue = 0;
+    ws->n_events = ws->n_xbuf = ws->n_sbuf = ws->n_queue = ws->n_tn = 0;
     ws->seq = 0;
     ws->spike_count = 0;
     ws->integral = 0;
@@ -655,6 +696,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
             saltus_real g = M->has_guard ? SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, net->populations[p].params, 0) : SALTUS_R(NAN);
             ws->jref[pp->n_off + n] = g;
             ws->jflag[pp->n_off + n] = M->has_guard && saltus_fired_side(M->direction, g) ? 4 : 0;
+            ws->jlastn[pp->n_off + n] = -1;
         }
     }
     for (j = 0; j < net->n_projections; j++) {
@@ -662,7 +704,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
         if (net->populations[from].model) continue;
         for (k = 0; k < tr->n_inputs; k++) {
             if (tr->input_pop[k] != from) continue;
-            rc = queue_push(ws, tr->input_time[k], j, tr->input_index[k], -1);
+            rc = queue_schedule(net, ws, j, tr->input_index[k], tr->input_time[k], -1);
             if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
         }
     }
@@ -715,13 +757,17 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 saltus_real *y = c.t.v[V_Y2], *x;
                 saltus_event *E;
                 int ev = (int)ws->n_events, S = pp->S;
-                for (n = 0; n < pp->n; n++) fw_advance(&c, q, n, arr.time);
+                /* with delays: only the neurons this arrival reaches */
+#define SALTUS_REACHES(n) (arr.targeted ? saltus_is_target(net, pr, n, arr.source, arr.delay) : 1)
+                for (n = 0; n < pp->n; n++) if (SALTUS_REACHES(n)) fw_advance(&c, q, n, arr.time);
                 fw_open_instant(&c, arr.time);
                 fw_touch(&c, q);
-                ws->jlast[q] = ev;
+                if (arr.targeted) { for (n = 0; n < pp->n; n++) if (SALTUS_REACHES(n)) ws->jlastn[pp->n_off + n] = ev; }
+                else ws->jlast[q] = ev;
                 rc = reserve_events(ws, ws->n_events + 1);
                 if (!rc) rc = reserve_xbuf(ws, ws->n_xbuf + (size_t)pp->n * S);
                 if (!rc && pp->needs_starts) rc = reserve_sbuf(ws, ws->n_sbuf + (size_t)pp->n);
+                if (!rc && arr.targeted) rc = reserve_Tn(ws, ws->n_tn + (size_t)pp->n);
                 if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
                 E = &ws->events[ws->n_events++];
                 E->kind = 0;
@@ -733,6 +779,10 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 E->cause = arr.cause;
                 E->neuron = E->first = E->start = -1;
                 E->by_jump = -2;
+                E->targeted = arr.targeted;
+                E->delay = arr.delay;
+                E->tn_at = ws->n_tn;
+                if (arr.targeted) ws->n_tn += (size_t)pp->n;
                 E->x_at = ws->n_xbuf;
                 for (i = 0; i < pp->n * S; i++) ws->xbuf[ws->n_xbuf + (size_t)i] = ws->x[pp->x_off + (size_t)i];
                 ws->n_xbuf += (size_t)pp->n * S;
@@ -742,6 +792,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                     ws->n_sbuf += (size_t)pp->n;
                 } else E->s_at = (size_t)-1;
                 for (n = 0; n < pp->n; n++) {
+                    if (!SALTUS_REACHES(n)) continue;
                     if (!(self && n == arr.source)) {
                         x = ws->x + pp->x_off + (size_t)n * S;
                         SALTUS_CALL_IN(M, pr->receptor, jump, x, par, arr.time, pr->weights[(size_t)n * from_size + arr.source], y);
@@ -749,6 +800,7 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                     }
                     ws->start[pp->n_off + n] = ev;
                 }
+#undef SALTUS_REACHES
                 rc = fw_jump_fired(&c, arr.time, step);
                 if (rc) return rc;
             }
@@ -805,6 +857,14 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
 
 /* ---- backward ---- */
 
+/* dL/d(time of event ev) += x from neuron n; a targeted arrival keeps it per neuron too (the delay gradients). */
+SALTUS_HD static void bw_add_T(saltus_trial_ws *ws, int ev, int n, saltus_real x)
+{
+    const saltus_event *E = &ws->events[ev];
+    ws->T[ev] += x;
+    if (E->kind == 0 && E->targeted) ws->Tn[E->tn_at + (size_t)n] += x;
+}
+
 /* The state of neuron n right after logged event `ref` (it jumped there, or not). */
 SALTUS_HD static void bw_post_state(saltus_ctx *c, int p, int n, int ref, saltus_real *out)
 {
@@ -817,7 +877,7 @@ SALTUS_HD static void bw_post_state(saltus_ctx *c, int p, int n, int ref, saltus
     } else {
         const saltus_projection *pr = &c->net->projections[E->projection];
         const saltus_real *xp = c->ws->xbuf + E->x_at + (size_t)n * S;
-        if (pr->from == pr->to && n == E->source) { for (i = 0; i < S; i++) out[i] = xp[i]; }
+        if (E->targeted ? !saltus_is_target(c->net, pr, n, E->source, E->delay) : pr->from == pr->to && n == E->source) { for (i = 0; i < S; i++) out[i] = xp[i]; }
         else SALTUS_CALL_IN(M, pr->receptor, jump, xp, par, E->time, pr->weights[(size_t)n * c->net->populations[pr->from].size + E->source], out);
     }
 }
@@ -905,7 +965,7 @@ SALTUS_NOINLINE SALTUS_HD static void bw_segment(saltus_ctx *c, int p, int n, sa
             startT = -bw_flow_dot(c, p, post, a, lamStart);
         }
     }
-    if (ref >= 0) ws->T[ref] += startT;
+    if (ref >= 0) bw_add_T(ws, ref, n, startT);
     for (i = 0; i < S; i++) lam[i] = lamStart[i];
     ws->cur[pp->n_off + n] = a;
 }
@@ -943,7 +1003,7 @@ SALTUS_NOINLINE SALTUS_HD static saltus_real bw_end_term(saltus_ctx *c, int p, i
 }
 
 SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan *plan, int b, saltus_trial_ws *ws,
-                                    saltus_real *gW, saltus_real *gP)
+                                    saltus_real *gW, saltus_real *gP, saltus_real *gD)
 {
     const saltus_loss *loss = &net->loss;
     saltus_ctx c;
@@ -957,7 +1017,10 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
     saltus_carve(&c.t, plan, ws->scratch);
     rc = reserve_T(ws, ws->n_events + 1);
     if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
+    if (!rc) rc = reserve_Tn(ws, ws->n_tn + 1);
+    if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
     for (i = 0; i < (int)ws->n_events; i++) ws->T[i] = 0;
+    for (i = 0; i < (int)ws->n_tn; i++) ws->Tn[i] = 0;
     for (i = 0; i < (int)plan->x_total; i++) ws->lam[i] = 0;
     for (i = 0; i < plan->g_total; i++) ws->grad[i] = 0;
 
@@ -983,19 +1046,24 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
                 int self = pr->from == pr->to, from_size = net->populations[pr->from].size;
                 for (n = 0; n < pp->n; n++) {
                     saltus_real *lam = ws->lam + pp->x_off + (size_t)n * S;
+                    if (E->targeted && !saltus_is_target(net, pr, n, E->source, E->delay)) continue;
                     bw_segment(&c, E->pop, n, E->time, e, step);
                     if (!(self && n == E->source)) {
                         size_t wi = (size_t)n * from_size + E->source;
                         for (i = 0; i < S; i++) lampost[i] = lam[i];
                         SALTUS_CALL_IN(M, pr->receptor, vjp, ws->xbuf + E->x_at + (size_t)n * S, par, E->time, pr->weights[wi], lampost, kb);
                         gW[plan->w_off[E->projection] + wi] += kb[S + 1 + G];
-                        ws->T[e] += kb[S];
+                        bw_add_T(ws, e, n, kb[S]);
                         for (q = 0; q < G; q++) ws->grad[pp->g_off + q] += kb[S + 1 + q];
                         for (i = 0; i < S; i++) lam[i] = kb[i];
                     }
-                    ws->T[e] += bw_end_term(&c, E->pop, n, e, pp->needs_starts ? ws->sbuf[E->s_at + (size_t)n] : -1, lam, (saltus_real *)0);
+                    bw_add_T(ws, e, n, bw_end_term(&c, E->pop, n, e, pp->needs_starts ? ws->sbuf[E->s_at + (size_t)n] : -1, lam, (saltus_real *)0));
                 }
                 if (E->cause >= 0) ws->T[E->cause] += ws->T[e];
+                if (E->targeted && gD)
+                    for (n = 0; n < pp->n; n++)
+                        if (saltus_is_target(net, pr, n, E->source, E->delay))
+                            gD[plan->w_off[E->projection] + (size_t)n * from_size + E->source] += ws->Tn[E->tn_at + (size_t)n];
             } else {
                 saltus_real *lam, *mu = c.t.v[V_MU], *rate = c.t.v[V_RATE2], D, gdot, phi;
                 n = E->neuron;
@@ -1013,7 +1081,7 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
                 D = ws->T[e] + bw_end_term(&c, E->pop, n, e, E->start, mu, rate);
                 if (E->by_jump != -2) {
                     /* fired by a jump: its time is its arrival's; D goes there, no phi */
-                    if (E->by_jump >= 0) ws->T[E->by_jump] += D;
+                    if (E->by_jump >= 0) bw_add_T(ws, E->by_jump, n, D);
                     for (i = 0; i < S; i++) lam[i] = mu[i];
                     continue;
                 }
@@ -1110,6 +1178,9 @@ int saltus_plan_make(const saltus_network *net, double dt, long max_spikes, doub
         if (from->model && !from->model->has_guard) SALTUS_FAIL("projections[%d].from: %s never fires", j, from->model->name);
         for (k = 0; k < to->size * from->size; k++)
             if (!isfinite(pr->weights[k])) SALTUS_FAIL("projections[%d].weights: every weight must be a finite number", j);
+        if (pr->delays)
+            for (k = 0; k < to->size * from->size; k++)
+                if (!(pr->delays[k] >= 0) || !isfinite(pr->delays[k])) SALTUS_FAIL("projections[%d].delay_s: every delay must be a finite time >= 0", j);
         plan->w_off[j] = w;
         w += (size_t)to->size * from->size;
     }
@@ -1200,7 +1271,8 @@ int saltus_run(const saltus_network *net, double dt, long max_spikes, saltus_res
     out->trials = (saltus_trial_ws *)calloc((size_t)net->n_trials, sizeof(saltus_trial_ws));
     out->gW = (saltus_real *)calloc(out->plan.w_total + 1, sizeof(saltus_real));
     out->gP = (saltus_real *)calloc((size_t)out->plan.g_total + 1, sizeof(saltus_real));
-    if (!out->trials || !out->gW || !out->gP) { snprintf(err, cap, "out of memory"); saltus_result_free(out); return -1; }
+    out->gD = (saltus_real *)calloc(out->plan.w_total + 1, sizeof(saltus_real));
+    if (!out->trials || !out->gW || !out->gP || !out->gD) { snprintf(err, cap, "out of memory"); saltus_result_free(out); return -1; }
     for (b = 0; b < net->n_trials; b++) {
         if (saltus_ws_init(&out->trials[b], &out->plan)) { snprintf(err, cap, "out of memory"); saltus_result_free(out); return -1; }
         rc = saltus_trial_forward(net, &out->plan, b, &out->trials[b]);
@@ -1213,7 +1285,7 @@ int saltus_run(const saltus_network *net, double dt, long max_spikes, saltus_res
         out->loss += out->trials[b].loss;
     }
     for (b = 0; b < net->n_trials; b++) {
-        rc = saltus_trial_backward(net, &out->plan, b, &out->trials[b], out->gW, out->gP);
+        rc = saltus_trial_backward(net, &out->plan, b, &out->trials[b], out->gW, out->gP, out->gD);
         if (rc) {
             saltus_trial_message(net, &out->trials[b], &out->plan, msg, sizeof msg);
             snprintf(err, cap, "trial %d: %s", b, msg);
@@ -1231,6 +1303,7 @@ void saltus_result_free(saltus_result *r)
     free(r->trials);
     free(r->gW);
     free(r->gP);
+    free(r->gD);
     saltus_plan_free(&r->plan);
     memset(r, 0, sizeof *r);
 }

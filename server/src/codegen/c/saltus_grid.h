@@ -112,6 +112,8 @@ typedef struct {
     int from, to;               /* population indices */
     const saltus_real *weights; /* weights[to][from], size(to) rows of size(from), row-major */
     int receptor;               /* the receiving incoming block (its index in the model; 0: the first) */
+    const saltus_real *delays;  /* transmission delays delays[to][from] (s, >= 0), shaped like weights; NULL: none
+                                   (a spike of j at s reaches neuron i at s + delays[i][j]; docs/network-step.md) */
 } saltus_projection;
 
 typedef struct {
@@ -173,12 +175,18 @@ typedef struct {
     size_t s_at;                /* arrival of a population that keeps starts: each neuron's segment start, in sbuf */
     int by_jump;                /* spikes: -2 located on the flow; else fired by a jump (docs/language.md), at the
                                    instant of this arrival event (-1: the initial state at t = 0) */
+    int targeted;               /* arrivals of a projection with delays: only the neurons i (i != source on a
+                                   population's projection onto itself) with delays[i][source] == delay receive it */
+    saltus_real delay;
+    size_t tn_at;               /* targeted arrivals: their per-neuron time sensitivities (the delay gradients), in Tn */
 } saltus_event;
 
 typedef struct {
     saltus_real time;
     long seq;
     int projection, source, cause;
+    int targeted;               /* as in saltus_event */
+    saltus_real delay;
 } saltus_pending;
 
 enum {
@@ -200,6 +208,7 @@ typedef struct {
     int *sbuf;              size_t n_sbuf, cap_sbuf;
     saltus_pending *queue;  size_t n_queue, cap_queue;
     saltus_real *T;         size_t cap_T;          /* dL/d(time) per event (backward) */
+    saltus_real *Tn;        size_t n_tn, cap_Tn;   /* dL/d(time) per targeted arrival and receiving neuron (backward) */
     /* fixed parts, sized by the plan */
     saltus_real *x, *tau, *lam, *cur;
     int *start, *fired, *argmax;
@@ -211,6 +220,7 @@ typedef struct {
        not touched), flags (2 fired there, 4 on the fired side at t = 0), each population's last arrival */
     saltus_real *jref, inst;
     int *jflag, *jlast;
+    int *jlastn;                                   /* each neuron's last targeted arrival at the instant (delays) */
     /* results */
     saltus_real loss, integral;
     long seq, spike_count;
@@ -235,10 +245,11 @@ void saltus_ws_free(saltus_trial_ws *ws);
 SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, saltus_real *reals, int *ints);
 
 /* One trial forward (the event log, spikes and loss in ws) and backward (gW, gP accumulate
- * dL/dW per projection and dL/dp per population and gradient parameter). SALTUS_OK or an error code. */
+ * dL/dW per projection and dL/dp per population and gradient parameter; gD, when not NULL, dL/d(delay)
+ * per projection, laid out like gW, 0 for a projection without delays). SALTUS_OK or an error code. */
 SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan *plan, int trial, saltus_trial_ws *ws);
 SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan *plan, int trial, saltus_trial_ws *ws,
-                                    saltus_real *gW, saltus_real *gP);
+                                    saltus_real *gW, saltus_real *gP, saltus_real *gD);
 /* The message of a trial's error. */
 void saltus_trial_message(const saltus_network *net, const saltus_trial_ws *ws, const saltus_plan *plan, char *buf, size_t cap);
 
@@ -250,6 +261,7 @@ typedef struct {
     saltus_real loss;           /* the sum over trials */
     saltus_real *gW;            /* plan.w_total: dL/dW, projection by projection, weights[to][from] */
     saltus_real *gP;            /* plan.g_total: dL/dp, population by population, gradient parameters in model order */
+    saltus_real *gD;            /* plan.w_total: dL/d(delay), laid out like gW */
 } saltus_result;
 
 int saltus_run(const saltus_network *net, double dt, long max_spikes, saltus_result *out, char *err, size_t cap);

@@ -3,6 +3,10 @@
  * grid runtime with the models above, and prints
  *   {"loss": L, "spikes": {POP: [[t, i], ...]}, "weights": [dL/dW per projection, weights[to][from]],
  *    "params": {"POP.NAME": dL/dp}}
+ * and, when a projection has transmission delays, "delays": [dL/d(delay) per projection, like "weights"].
+ * A projection's delays are its "delay_s" (one number, or a matrix shaped like the weights), else the
+ * model file's `connect A -> B [via W] delay D` between the two populations' models into that block
+ * (saltus_file_delays, written by the generator), as the cross-check takes them.
  * in SI units (trial 0's spikes; with several trials also "trials" and "spikes_per_trial").
  * Exit status: 0 printed; 1 the simulation failed (message on stderr); 2 bad arguments or a bad
  * description (one line on stderr naming the field). It reads its input with a small JSON
@@ -440,18 +444,66 @@ static int named_values(reader *r, built *B, const jval *o, const char *path, co
     return 0;
 }
 
+/* Projection pr's delays (rows x cols, SI) into the pool at *at (-1: none): its "delay_s", one number
+ * >= 0 or a matrix shaped like the weights; without one, the model file's delay for the two populations'
+ * models and the receiving block (saltus_file_delays), when both are model populations. */
+static int read_delays(reader *r, built *B, const jval *pr, const char *path, int from, int to, int receptor, int rows, int cols, long *at)
+{
+    const jval *d = jget(pr, "delay_s");
+    char fp[420], rp[440], ep[460];
+    int j, k, matrix;
+    double v = -1;
+    *at = -1;
+    fmt(fp, sizeof fp, "%.400s.delay_s", path);
+    if (!d) {
+        const saltus_model *fm = B->pops[from].model, *tm = B->pops[to].model;
+        if (!fm || !tm) return 0;
+        for (k = 0; saltus_file_delays[k].from; k++) {
+            const saltus_file_delay *f = &saltus_file_delays[k];
+            if (!strcmp(f->from, fm->name) && !strcmp(f->to, tm->name) && tm->incoming_names && !strcmp(f->via, tm->incoming_names[receptor])) { v = f->delay; break; }
+        }
+        if (v < 0) return 0;
+    } else if (d->kind == J_NUM) {
+        v = d->num;
+        if (!(v >= 0) || !isfinite(v)) return bad(r, fp, "a delay must be a finite number of seconds >= 0%s%s", "", "");
+    } else if (d->kind != J_ARR || (int)d->n != rows) {
+        char want[80];
+        fmt(want, sizeof want, "%d rows of %d numbers", rows, cols);
+        return bad(r, fp, "must be one delay (s) or %s, shaped like the weights", want, "");
+    }
+    matrix = d && d->kind == J_ARR;
+    *at = pool_real(B, (size_t)rows * cols);
+    if (*at < 0) return bad(r, fp, "out of memory%s%s", "", "");
+    for (j = 0; j < rows; j++) {
+        const jval *row = matrix ? &d->items[j] : 0;
+        fmt(rp, sizeof rp, "%s[%d]", fp, j);
+        if (matrix && (row->kind != J_ARR || (int)row->n != cols)) {
+            char want[40];
+            fmt(want, sizeof want, "%d", cols);
+            return bad(r, rp, "must be a list of %s delays (s), like the weights' row%s", want, "");
+        }
+        for (k = 0; k < cols; k++) {
+            double x = matrix ? row->items[k].num : v;
+            fmt(ep, sizeof ep, "%s[%d]", rp, k);
+            if (matrix && (row->items[k].kind != J_NUM || !(x >= 0) || !isfinite(x))) return bad(r, ep, "a delay must be a finite number of seconds >= 0%s%s", "", "");
+            B->reals[*at + (long)j * cols + (long)k] = (saltus_real)x;
+        }
+    }
+    return 0;
+}
+
 static int read_network(reader *r, const jval *root, built *B)
 {
-    static const char *const root_keys[] = {"description", "duration_s", "populations", "projections", "loss", "trials", "sample", 0};
+    static const char *const root_keys[] = {"$schema", "description", "duration_s", "populations", "projections", "loss", "trials", "sample", 0};
     static const char *const input_keys[] = {"size", "spikes", 0};
     static const char *const model_keys[] = {"model", "size", "params", "initial", "scales", 0};
-    static const char *const proj_keys[] = {"from", "to", "via", "weights", 0};
+    static const char *const proj_keys[] = {"from", "to", "via", "weights", "delay_s", 0};
     static const char *const trial_keys[] = {"inputs", "label", 0};
     const jval *pops, *projs, *loss, *trials, *v;
     double duration;
     int n_pops, p, j, b, n_trials, lp = -1;
     offsets *off = 0;
-    long *proj_w = 0, *trial_in = 0, target_at = -1;
+    long *proj_w = 0, *proj_d = 0, *trial_in = 0, target_at = -1;
     int *trial_count = 0;
     char path[400], known[300];
     size_t i, k;
@@ -522,14 +574,15 @@ static int read_network(reader *r, const jval *root, built *B)
     B->net.n_projections = (int)projs->n;
     B->projs = (saltus_projection *)calloc(projs->n + 1, sizeof(saltus_projection));
     proj_w = (long *)calloc(projs->n + 1, sizeof(long));
-    if (!B->projs || !proj_w) { bad(r, "projections", "out of memory%s%s", "", ""); goto done; }
+    proj_d = (long *)calloc(projs->n + 1, sizeof(long));
+    if (!B->projs || !proj_w || !proj_d) { bad(r, "projections", "out of memory%s%s", "", ""); goto done; }
     for (i = 0; i < projs->n; i++) {
         const jval *pr = &projs->items[i], *w;
         int from, to, rows, cols;
         char fp[80];
         fmt(path, sizeof path, "projections[%lu]", (unsigned long)i);
         if (pr->kind != J_OBJ) { bad(r, path, "must be an object with from, to and weights%s%s", "", ""); goto done; }
-        if (unknown_keys(r, pr, path, proj_keys, "from, to, via, weights")) goto done;
+        if (unknown_keys(r, pr, path, proj_keys, "from, to, via, weights, delay_s")) goto done;
         for (j = 0; j < 2; j++) {
             const jval *end = jget(pr, j ? "to" : "from");
             fmt(fp, sizeof fp, "%s.%s", path, j ? "to" : "from");
@@ -601,6 +654,7 @@ static int read_network(reader *r, const jval *root, built *B)
                 B->reals[proj_w[i] + (long)j * cols + (long)k] = (saltus_real)row->items[k].num;
             }
         }
+        if (read_delays(r, B, pr, path, from, to, B->projs[i].receptor, rows, cols, &proj_d[i])) goto done;
     }
 
     loss = jget(root, "loss");
@@ -730,7 +784,10 @@ static int read_network(reader *r, const jval *root, built *B)
         B->pops[p].params = B->reals + off[p].params;
         B->pops[p].initial = B->reals + off[p].initial;
     }
-    for (i = 0; i < projs->n; i++) B->projs[i].weights = B->reals + proj_w[i];
+    for (i = 0; i < projs->n; i++) {
+        B->projs[i].weights = B->reals + proj_w[i];
+        B->projs[i].delays = proj_d[i] >= 0 ? B->reals + proj_d[i] : 0;
+    }
     for (b = 0; b < n_trials; b++) {
         /* spikes were stored as (pop, index) int pairs and one time each, in order */
         int n = trial_count[b], *ints = B->ints + trial_in[3 * b];
@@ -760,6 +817,7 @@ static int read_network(reader *r, const jval *root, built *B)
 done:
     free(off);
     free(proj_w);
+    free(proj_d);
     free(trial_in);
     free(trial_count);
     return rc;
@@ -864,8 +922,27 @@ static void put_result(const saltus_network *net, const saltus_result *res, int 
             } else printf("dL/d%s.%s: %.17g\n", net->populations[p].name, M->param_names[M->grad_params[q]], v);
         }
     }
+    if (json) printf("}");
+    for (j = 0; j < net->n_projections; j++) if (net->projections[j].delays) break;
+    if (j < net->n_projections) {
+        /* dL/d(delay) per projection, laid out like the weights (0 for a projection without delays) */
+        if (json) printf(", \"delays\": [");
+        for (j = 0; j < net->n_projections; j++) {
+            const saltus_projection *pr = &net->projections[j];
+            int rows = net->populations[pr->to].size, cols = net->populations[pr->from].size;
+            const saltus_real *g = res->gD + res->plan.w_off[j];
+            if (json) printf("%s[", j ? ", " : "");
+            else printf("dL/d(delay) projection %d (%s -> %s): [", j, net->populations[pr->from].name, net->populations[pr->to].name);
+            for (i = 0; i < rows; i++) {
+                printf("%s[", i ? ", " : "");
+                for (k = 0; k < cols; k++) { if (k) printf(", "); put_number((double)g[(size_t)i * cols + k]); }
+                printf("]");
+            }
+            printf(json ? "]" : "]\n");
+        }
+        if (json) printf("]");
+    }
     if (json) {
-        printf("}");
         if (net->n_trials > 1) {
             printf(", \"trials\": %d, \"spikes_per_trial\": [", net->n_trials);
             for (b = 0; b < net->n_trials; b++) { if (b) printf(", "); put_spikes(net, &res->trials[b]); }

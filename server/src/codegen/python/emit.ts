@@ -12,6 +12,7 @@ import { oneLine, pyComment, pyStringBody } from '../escape';
 import { type KernelPlan, headerLines, kernelNamer } from '../kernelPlan';
 import type { Kernel } from '../kernels';
 import type { Renaming } from '../names';
+import type { FileDelay } from '../network';
 import runtimeText from './runtime.py?raw';
 import numpyDialectText from './numpy_dialect.py?raw';
 import torchDialectText from './torch_dialect.py?raw';
@@ -40,6 +41,13 @@ export function importLines(d: PyDialect, what: readonly (readonly [module: stri
   const rel = what.map(([m, n, a]) => (n ? `from .${m} import ${n}` : `from . import ${m}${as(a)}`));
   return ['try:  # inside the generated package', ...ind(rel), 'except ImportError:  # run as a script next to the files', ...ind(plain)];
 }
+/** FILE_DELAYS: the model file's `connect A -> B [via W] delay D` by (from model, to model, block weight), D in s;
+ *  the runtime gives it to a projection without its own "delay_s" (runtime.py `load_network`). */
+export function fileDelaysLines(fileDelays: readonly FileDelay[]): string[] {
+  return ['# the model file\'s delays (s) by (from model, to model, receiving block): a projection without its own "delay_s" takes them',
+    'FILE_DELAYS = {', ...fileDelays.map((d) => `    ("${pyStringBody(d.from)}", "${pyStringBody(d.to)}", "${pyStringBody(d.via)}"): ${repr(d.delay)},`), '}', ''];
+}
+
 const ind = (lines: readonly string[], n = 1): string[] => lines.map((l) => (l ? '    '.repeat(n) + l : l));
 const repr = (v: number): string => (Number.isNaN(v) ? 'float("nan")' : v === Infinity ? 'float("inf")' : v === -Infinity ? 'float("-inf")' : String(v));
 
@@ -115,7 +123,7 @@ export function runtimeFiles(d: PyDialect): GeneratedFile[] {
 }
 
 /** run.py: `python3 run.py NET.json --dt 0.1ms --format json` (the runner contract of docs/codegen.md). */
-export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_DIALECT): GeneratedFile {
+export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_DIALECT, fileDelays: readonly FileDelay[] = []): GeneratedFile {
   const torch = d.id === 'torch';
   const imports = models.map((m) => `import ${m.prefix.toLowerCase()}`);
   const table = models.map((m) => `    "${pyStringBody(m.neuron.name)}": ${m.prefix.toLowerCase()},`);
@@ -131,7 +139,7 @@ export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_D
     'sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))', '',
     'import saltus_grid  # noqa: E402', ...imports.map((l) => `${l}  # noqa: E402`),
     ...(torch ? ['import torch  # noqa: E402', 'import network  # noqa: E402'] : []), '',
-    'MODELS = {', ...table, '}', '',
+    'MODELS = {', ...table, '}', '', ...(torch ? [] : fileDelaysLines(fileDelays)),
     '_UNITS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "ns": 1e-9}', '', '',
     'def parse_time(text):',
     '    """A time as the CLI writes it: 0.1ms, 0.1 ms, 0.1 [ms], 1e-4 s."""',
@@ -175,7 +183,7 @@ export function runnerFile(models: readonly KernelPlan[], d: PyDialect = NUMPY_D
       '        raise SystemExit("run.py: %s" % e)',
       '    out = net.report()',
     ] : [
-      '        net = saltus_grid.load_network(json.load(f), MODELS)',
+      '        net = saltus_grid.load_network(json.load(f), MODELS, FILE_DELAYS)',
       '    try:',
       '        run = saltus_grid.forward(net, dt)',
       '    except saltus_grid.GridError as e:',

@@ -157,8 +157,8 @@ class _Live:
             starts.append(y)
         S = self.S
         G = len(self.model.GRAD_PARAMS)
-        dh = 0.0
-        da = 0.0
+        dh = X.zeros_like(h)  # arrays even where the kernel's outputs are constants (a guard state without flow)
+        da = X.zeros_like(h)
         for s in range(self.m - 1, -1, -1):
             out = self.model.map_vjp(starts[s], self.pop.params, a + s * sub, sub, lam)
             fh, ft = out[S], out[S + 1]
@@ -938,11 +938,13 @@ def _receptor(p, pops, models, k):
     return names.index(via)
 
 
-def load_network(obj, models):
+def load_network(obj, models, file_delays=None):
     """A Network from a network description (the cross-check scenario format, docs/codegen.md):
     {"duration_s", "populations": {name: {"size", "spikes"} | {"model", "size", "params", "initial"}},
     "projections": [{"from", "to", "weights"}], "loss": {...}, "trials": [{"inputs": {...}, "label"}]?}.
-    `models` maps model names to generated model modules. Values are SI numbers."""
+    `models` maps model names to generated model modules. Values are SI numbers. `file_delays`
+    maps (from model, to model, block weight) to the model file's `connect ... delay` (s): a
+    projection between two model populations without its own "delay_s" takes it (the cross-check's rule)."""
     pops = obj["populations"]
     inputs = {}
     populations = []
@@ -967,8 +969,12 @@ def load_network(obj, models):
     projections = []
     for k, p in enumerate(obj["projections"]):
         pr = {"from": p["from"], "to": p["to"], "weights": p["weights"], "receptor": _receptor(p, pops, models, k)}
-        if "delay_s" in p:  # one delay for the projection, or delays[to][from] shaped like the weights
-            d = p["delay_s"]
+        d = p.get("delay_s")
+        if d is None and file_delays and "model" in pops[p["from"]] and "model" in pops[p["to"]]:
+            names = tuple(getattr(models[pops[p["to"]]["model"]], "INCOMING", ()))
+            if pr["receptor"] < len(names):
+                d = file_delays.get((pops[p["from"]]["model"], pops[p["to"]]["model"], names[pr["receptor"]]))
+        if d is not None:  # one delay for the projection, or delays[to][from] shaped like the weights
             pr["delays"] = [[float(v) for v in row] for row in d] if isinstance(d, list) else [[float(d)] * len(row) for row in p["weights"]]
         projections.append(pr)
     return Network(obj["duration_s"], inputs, populations, projections, trials, loss)

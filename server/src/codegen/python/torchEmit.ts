@@ -7,7 +7,8 @@
 // generated-code marker and a hash line.
 import { oneLine, pyComment, pyStringBody } from '../escape';
 import type { KernelPlan } from '../kernelPlan';
-import { type GeneratedFile, TORCH_DIALECT, importLines, runnerFile } from './emit';
+import { type GeneratedFile, TORCH_DIALECT, fileDelaysLines, importLines, runnerFile } from './emit';
+import type { FileDelay } from '../network';
 import torchLayersText from './torch_layers.py?raw';
 
 const HASH = '# saltus-hash: sha256:@@SALTUS_HASH@@ (of this file without this line). Saltus will not overwrite this file once it has been changed, unless forced.';
@@ -32,7 +33,7 @@ export function layersFile(plans: readonly KernelPlan[]): GeneratedFile {
   const L = [...stamp('layers.py', 'one PyTorch layer class per model'),
     '"""Layers of the generated models: spike events in, spike events (and optionally a state readout) out,',
     'with the exact event-based gradient (saltus_torch.SpikingLayer)."""',
-    'from typing import Dict, Optional, Sequence, Tuple', '', 'import torch', '',
+    'from typing import Dict, Optional, Sequence, Tuple, Union', '', 'import torch', '',
     ...importLines(TORCH_DIALECT, [...plans.map((p): [string, string, string] => [mod(p), '', alias(p)]), ['saltus_torch', 'SpikingLayer']]), '', ''];
   const names: string[] = [];
   for (const p of plans) {
@@ -45,7 +46,11 @@ export function layersFile(plans: readonly KernelPlan[]): GeneratedFile {
     L.push(`    ${p.grid.guard ? `It fires when its threshold is crossed (direction ${p.grid.guard.direction}); ` : 'It never fires (give it a readout); '}` +
       `its backward pass keeps ${p.grid.exact && !p.stateDependent ? 'the events only (memory grows with spikes, not steps)' : 'the state at every grid point as well as the events'}.`, '');
     L.push('    Parameters', '    ----------');
-    L.push('    in_features : int', '        Input neurons.', '    out_features : int', '        Neurons of this layer.');
+    const blocks = p.grid.incoming.length;
+    if (blocks > 1) {
+      L.push('    in_features : int or sequence of int', '        Input neurons: one number for every fed block, or one per block (in ``via`` order).');
+    } else L.push('    in_features : int', '        Input neurons.');
+    L.push('    out_features : int', '        Neurons of this layer.');
     L.push('    dt : float', '        The grid step in s.', '    duration : float', '        The simulated time in s.');
     for (const q of kw) {
       L.push(`    ${q.id} : float, default ${repr(q.valueSI)}`);
@@ -56,30 +61,35 @@ export function layersFile(plans: readonly KernelPlan[]): GeneratedFile {
     L.push('    readout : (str, str), optional', `        ("max" | "integral", STATE): also output a state's largest grid value or time integral; STATE one of ${p.states.map((s) => s.id).join(', ')}.`);
     L.push('    weight_std, weight_mean : float, optional', '        Initial weights ~ N(weight_mean, weight_std**2); weight_std defaults to 1/sqrt(in_features).');
     L.push('    dtype, device', '        Of the weight and parameters (the simulation runs on them).');
+    if (blocks > 1) {
+      L.push('    via : str or sequence of str, optional', `        The incoming blocks the inputs feed, one input and weight each (default: all, ${p.grid.incoming.map((r) => r.weight).join(', ')}); ` +
+        'then ``weights`` holds one weight per block and ``forward`` takes a sequence of times and one of index tensors.');
+    }
     L.push('', '    Returns from ``forward(times, index)``', '    ---------------------------------------',
       '    saltus_torch.LayerOutput', '        (times, index, first, readout); spike events padded with +inf times and -1 indices.', '    """', '');
-    const sig = ['self', 'in_features: int', 'out_features: int', 'dt: float', 'duration: float', '*',
+    const sig = ['self', blocks > 1 ? 'in_features: Union[int, Sequence[int]]' : 'in_features: int', 'out_features: int', 'dt: float', 'duration: float', '*',
       ...kw.map((q) => `${q.id}: float = ${repr(q.valueSI)}`),
       'params: Optional[Dict[str, float]] = None', 'trainable: Optional[Sequence[str]] = None',
       'readout: Optional[Tuple[str, str]] = None', 'weight_std: Optional[float] = None', 'weight_mean: float = 0.0',
-      'dtype: torch.dtype = torch.float64', 'device: Optional[torch.device] = None', 'max_spikes: int = 100000'];
+      'dtype: torch.dtype = torch.float64', 'device: Optional[torch.device] = None', 'max_spikes: int = 100000',
+      ...(blocks > 1 ? ['via: Optional[Union[str, Sequence[str]]] = None'] : [])];
     L.push(`    def __init__(${sig.join(', ')}) -> None:`);
     L.push(`        values = {${kw.map((q) => `"${q.id}": ${q.id}`).join(', ')}}`);
     L.push('        values.update(params or {})');
     L.push(`        super().__init__(${alias(p)}, in_features, out_features, dt, duration, params=values, trainable=trainable, readout=readout,`);
-    L.push('                         weight_std=weight_std, weight_mean=weight_mean, dtype=dtype, device=device, max_spikes=max_spikes)', '', '');
+    L.push(`                         weight_std=weight_std, weight_mean=weight_mean, dtype=dtype, device=device, max_spikes=max_spikes${blocks > 1 ? ', via=via' : ''})`, '', '');
   }
   L.push(`__all__ = [${names.map((n) => `"${n}"`).join(', ')}]`);
   return { name: 'layers.py', content: L.join('\n') + '\n' };
 }
 
 /** network.py: the Network module of a network description, over the generated models. */
-export function networkFile(plans: readonly KernelPlan[]): GeneratedFile {
+export function networkFile(plans: readonly KernelPlan[], fileDelays: readonly FileDelay[] = []): GeneratedFile {
   const L = [...stamp('network.py', 'the Network module of a network description'),
     '"""Network: a network description (docs/network-step.md) as an nn.Module whose forward returns its loss."""',
     'import torch', '',
     ...importLines(TORCH_DIALECT, [...plans.map((p): [string, string, string] => [mod(p), '', alias(p)]), ['saltus_torch', 'GridNetwork']]), '',
-    'MODELS = {', ...plans.map((p) => `    "${pyStringBody(p.neuron.name)}": ${alias(p)},`), '}', '', '',
+    'MODELS = {', ...plans.map((p) => `    "${pyStringBody(p.neuron.name)}": ${alias(p)},`), '}', '', ...fileDelaysLines(fileDelays), '',
     'class Network(GridNetwork):',
     '    """A network description as a module: weights per projection and trainable parameters per',
     '    population as nn.Parameters; forward() runs every trial and returns the loss with its exact gradient.',
@@ -95,7 +105,7 @@ export function networkFile(plans: readonly KernelPlan[]): GeneratedFile {
     '    """',
     '',
     '    def __init__(self, description: dict, dt: float, dtype: torch.dtype = torch.float64, device=None, max_spikes: int = 100000) -> None:',
-    '        super().__init__(description, MODELS, dt, dtype=dtype, device=device, max_spikes=max_spikes)', '', '',
+    '        super().__init__(description, MODELS, dt, dtype=dtype, device=device, max_spikes=max_spikes, file_delays=FILE_DELAYS)', '', '',
     '__all__ = ["Network", "MODELS"]'];
   return { name: 'network.py', content: L.join('\n') + '\n' };
 }

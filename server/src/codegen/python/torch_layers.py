@@ -137,11 +137,13 @@ class FrozenModel:
 
 
 class LayerSpec:
-    """What a layer's Function needs besides tensors: the model module, the grid and the readout."""
+    """What a layer's Function needs besides tensors: the model module, the grid, the readout, and
+    the incoming blocks its inputs feed (their indices in the model, one input and weight each)."""
 
     def __init__(self, model, dt: float, duration: float, param_names: Sequence[str], fixed: Dict[str, float],
-                 readout: Optional[Tuple[str, str]] = None, max_spikes: int = 100000):
+                 readout: Optional[Tuple[str, str]] = None, max_spikes: int = 100000, blocks: Sequence[int] = (0,)):
         self.model = model
+        self.blocks = list(blocks)
         self.dt = float(dt)
         self.duration = float(duration)
         self.param_names = list(param_names)
@@ -151,35 +153,48 @@ class LayerSpec:
         self.last_kept_bytes = 0
 
 
-def _input_trials(times: torch.Tensor, index: torch.Tensor):
-    """Per trial: the valid input events in listing order, and their positions sorted by (time, position)."""
-    tl = times.detach().cpu().tolist()
-    il = index.detach().cpu().tolist()
+def _input_trials(times: Sequence[torch.Tensor], index: Sequence[torch.Tensor]):
+    """Per trial: the valid input events of each input k (population "in<k>") in listing order, and
+    per input and trial their positions sorted by (time, position)."""
     trials, order = [], []
-    for trow, irow in zip(tl, il):
-        items = [(t, i, k) for k, (t, i) in enumerate(zip(trow, irow)) if i >= 0 and math.isfinite(t)]
-        trials.append({"inputs": {"in": [(t, i) for t, i, _ in items]}, "label": 0})
-        order.append([k for _, k in sorted((t, k) for t, _, k in items)])
+    for k, (tk, ik) in enumerate(zip(times, index)):
+        order.append([])
+        for b, (trow, irow) in enumerate(zip(tk.detach().cpu().tolist(), ik.detach().cpu().tolist())):
+            items = [(t, i, m) for m, (t, i) in enumerate(zip(trow, irow)) if i >= 0 and math.isfinite(t)]
+            if k == 0:
+                trials.append({"inputs": {}, "label": 0})
+            trials[b]["inputs"]["in%d" % k] = [(t, i) for t, i, _ in items]
+            order[k].append([m for _, m in sorted((t, m) for t, _, m in items)])
     return trials, order
 
 
 class GridLayerFunction(torch.autograd.Function):
-    """One population on the grid, driven by input spike events through a dense weight.
+    """One population on the grid, driven by input spike events through a dense weight per
+    incoming block it feeds (spec.blocks; one block: the common case).
 
-    forward(spec, in_times, in_index, weight, *params) -> (times, index, first, readout); backward
-    returns dL/d(in_times), dL/d(weight) and dL/d(param) for each trainable parameter, from the
-    exact adjoint of the grid simulation (docs/network-step.md).
+    forward(spec, in_times, in_index, weight, *params) -> (times, index, first, readout) with K =
+    len(spec.blocks) blocks: in_times, in_index and weight one tensor each, or K tensors each, then
+    in_times_1..K-1, in_index_1..K-1 and weight_1..K-1 come first in params (the layer passes them).
+    Backward returns dL/d(in_times) and dL/d(weight) of every block and dL/d(param) for each
+    trainable parameter, from the exact adjoint of the grid simulation (docs/network-step.md).
     """
 
     @staticmethod
     def forward(ctx, spec: LayerSpec, in_times: torch.Tensor, in_index: torch.Tensor, weight: torch.Tensor, *params: torch.Tensor):
+        K = len(spec.blocks)
+        times_k = [in_times] + list(params[0:K - 1])
+        index_k = [in_index] + list(params[K - 1:2 * (K - 1)])
+        weight_k = [weight] + list(params[2 * (K - 1):3 * (K - 1)])
+        params = params[3 * (K - 1):]
         dtype, device = weight.dtype, weight.device
         B = in_times.shape[0]
-        n_out, n_in = weight.shape
+        n_out = weight.shape[0]
+        if any(t.shape[0] != B for t in times_k):
+            raise ValueError("every block's input needs the same batch size (%s)" % ", ".join(str(t.shape[0]) for t in times_k))
         values = dict(spec.fixed)
         for name, p in zip(spec.param_names, params):
             values[name] = float(p)
-        trials, order = _input_trials(in_times, in_index)
+        trials, order = _input_trials(times_k, index_k)
         if spec.readout is None:
             loss = {"kind": "ce-first-spike", "population": "layer", "tau_s": 1.0}
         else:
@@ -187,12 +202,13 @@ class GridLayerFunction(torch.autograd.Function):
             loss = {"kind": "ce-max" if kind == "max" else "ce-integral", "population": "layer", "state": state}
         with X.on(dtype, device):
             pop = grid.Population("layer", n_out, spec.model, values)
-            net = grid.Network(spec.duration, {"in": n_in}, [pop],
-                               [{"from": "in", "to": "layer", "weights": weight.detach()}], trials, loss)
+            net = grid.Network(spec.duration, {"in%d" % k: w.shape[1] for k, w in enumerate(weight_k)}, [pop],
+                               [{"from": "in%d" % k, "to": "layer", "weights": w.detach(), "receptor": r}
+                                for k, (w, r) in enumerate(zip(weight_k, spec.blocks))], trials, loss)
             run = grid.forward(net, spec.dt, spec.max_spikes)
-            # where each spike record's rows sit in the padded output, and each input arrival's rows in the input
+            # where each spike record's rows sit in the padded output, and each input arrival's rows in its input
             counts = [0] * B
-            seen_in = [0] * B
+            seen_in = [[0] * B for _ in range(K)]
             slots = {}
             in_slots = {}
             for e, rec in enumerate(run.records):
@@ -204,11 +220,11 @@ class GridLayerFunction(torch.autograd.Function):
                         counts[b] += 1
                     slots[e] = torch.tensor(pos, dtype=torch.int64, device=device)
                 elif rec.cause < 0:
-                    pos = []
+                    k, pos = rec.projection, []
                     for b in rows:
-                        pos.append(order[b][seen_in[b]])
-                        seen_in[b] += 1
-                    in_slots[e] = torch.tensor(pos, dtype=torch.int64, device=device)
+                        pos.append(order[k][b][seen_in[k][b]])
+                        seen_in[k][b] += 1
+                    in_slots[e] = (k, torch.tensor(pos, dtype=torch.int64, device=device))
             out_times, out_index = pad_events([s["layer"] for s in run.spikes], dtype, device)
             first = torch.full((B, n_out), math.inf, dtype=dtype, device=device)
             for b, s in enumerate(run.spikes):
@@ -220,7 +236,7 @@ class GridLayerFunction(torch.autograd.Function):
         ctx.run = run
         ctx.slots = slots
         ctx.in_slots = in_slots
-        ctx.in_shape = tuple(in_times.shape)
+        ctx.in_shapes = [tuple(t.shape) for t in times_k]
         ctx.n_params = len(params)
         spec.last_kept_bytes = kept_bytes(run)
         ctx.mark_non_differentiable(out_index)
@@ -246,25 +262,29 @@ class GridLayerFunction(torch.autograd.Function):
                 return g_times[rec.trials, pos] + torch.where(rec.first, g_first[rec.trials, rec.neuron], torch.zeros_like(rec.time))
 
             out = grid.backward(run, spike_time_grad)
-            g_in = torch.zeros(ctx.in_shape, dtype=dtype, device=device)
+            g_in = [torch.zeros(shape, dtype=dtype, device=device) for shape in ctx.in_shapes]
             for kind, e, sens in out["event_times"]:
                 if kind == "arrival" and e in ctx.in_slots:
                     rec = run.records[e]
-                    g_in = g_in.index_put((rec.trials, ctx.in_slots[e]), sens.to(dtype), accumulate=True)
-            gW = out["weights"][0]
+                    k, pos = ctx.in_slots[e]
+                    g_in[k] = g_in[k].index_put((rec.trials, pos), sens.to(dtype), accumulate=True)
+            gW = out["weights"]
             gp = [torch.tensor(out["params"]["layer"][name], dtype=dtype, device=device) for name in spec.param_names]
-        return (None, g_in, None, gW) + tuple(gp)
+        more = tuple(g_in[1:]) + (None,) * (len(g_in) - 1) + tuple(gW[1:])
+        return (None, g_in[0], None, gW[0]) + more + tuple(gp)
 
 
 class SpikingLayer(torch.nn.Module):
-    """A population of one generated model driven by input spikes through a dense weight.
+    """A population of one generated model driven by input spikes through a dense weight per
+    incoming block it feeds.
 
     Parameters
     ----------
     model : module
         A generated model module (its kernels and constants).
     in_features, out_features : int
-        Input neurons and neurons of this layer.
+        Input neurons and neurons of this layer; with several blocks fed, ``in_features`` is one
+        number for every block or a sequence of one per block.
     dt : float
         The grid step in s.
     duration : float
@@ -283,13 +303,30 @@ class SpikingLayer(torch.nn.Module):
         See weight_std.
     dtype, device
         Of the weight and parameters; the simulation runs on them.
+    via : str or sequence of str, optional
+        The incoming blocks (receptors) the inputs feed, by weight name, one input and weight each,
+        in this order (default: every block of the model, in declaration order). With one block the
+        layer has ``weight`` and ``forward(times, index)``; with several it has ``weights``
+        (by block name; ``weight`` is the first) and ``forward`` takes one times and one index
+        tensor per block, as two sequences.
     """
 
-    def __init__(self, model, in_features: int, out_features: int, dt: float, duration: float,
+    def __init__(self, model, in_features, out_features: int, dt: float, duration: float,
                  params: Optional[Dict[str, float]] = None, trainable: Optional[Sequence[str]] = None,
                  readout: Optional[Tuple[str, str]] = None, weight_std: Optional[float] = None,
-                 weight_mean: float = 0.0, dtype=torch.float64, device=None, max_spikes: int = 100000):
+                 weight_mean: float = 0.0, dtype=torch.float64, device=None, max_spikes: int = 100000,
+                 via=None):
         super().__init__()
+        names_in = list(getattr(model, "INCOMING", ())) or ["w"]
+        via = list(names_in) if via is None else [via] if isinstance(via, str) else list(via)
+        for v in via:
+            if v not in names_in:
+                raise ValueError("%s has no incoming block %r (its blocks: %s)" % (model.NAME, v, ", ".join(names_in)))
+        if not via or len(set(via)) != len(via):
+            raise ValueError("via must name each fed incoming block once (its blocks: %s)" % ", ".join(names_in))
+        sizes = [int(in_features)] * len(via) if isinstance(in_features, int) else [int(n) for n in in_features]
+        if len(sizes) != len(via):
+            raise ValueError("in_features: one number, or one per fed block (%s)" % ", ".join(via))
         values = dict(model.DEFAULT_PARAMS)
         for k, v in (params or {}).items():
             if k not in values:
@@ -304,28 +341,34 @@ class SpikingLayer(torch.nn.Module):
         if readout is None and not model.HAS_GUARD:
             raise ValueError("%s never fires; give the layer a readout, e.g. readout=('max', %r)" % (model.NAME, model.STATES[0]))
         self.model = model
-        self.in_features = int(in_features)
+        self.via = via
+        self.in_features = sizes[0] if len(sizes) == 1 else sizes
         self.out_features = int(out_features)
-        std = weight_std if weight_std is not None else 1.0 / math.sqrt(max(1, in_features))
-        w = torch.randn(out_features, in_features, dtype=dtype, device=device) * std + weight_mean
-        self.weight = torch.nn.Parameter(w)
+        ws = []
+        for n_in in sizes:
+            std = weight_std if weight_std is not None else 1.0 / math.sqrt(max(1, n_in))
+            ws.append(torch.nn.Parameter(torch.randn(out_features, n_in, dtype=dtype, device=device) * std + weight_mean))
+        self.weight = ws[0]
+        if len(ws) > 1:
+            self.weights = torch.nn.ParameterDict({v: w for v, w in zip(via, ws)})
         self.model_params = torch.nn.ParameterDict({k: torch.nn.Parameter(torch.tensor(values[k], dtype=dtype, device=device)) for k in names})
         fixed = {k: v for k, v in values.items() if k not in names}
-        self.spec = LayerSpec(model if names else FrozenModel(model), dt, duration, names, fixed, readout, max_spikes)
+        self.spec = LayerSpec(model if names else FrozenModel(model), dt, duration, names, fixed, readout, max_spikes,
+                              [names_in.index(v) for v in via])
 
     @property
     def last_kept_bytes(self) -> int:
         """Bytes the last forward call kept for its backward pass."""
         return self.spec.last_kept_bytes
 
-    def forward(self, times: torch.Tensor, index: torch.Tensor) -> LayerOutput:
+    def forward(self, times, index) -> LayerOutput:
         """Simulates the layer for a batch of input spike events.
 
         Parameters
         ----------
-        times : torch.Tensor
+        times : torch.Tensor, or a sequence of them (one per fed block, in ``via`` order)
             (B, K) input spike times in s (+inf pads); may require grad.
-        index : torch.Tensor
+        index : torch.Tensor, or a sequence of them (one per fed block)
             (B, K) int64 input neuron of each spike (-1 pads).
 
         Returns
@@ -333,10 +376,16 @@ class SpikingLayer(torch.nn.Module):
         LayerOutput
             (times, index, first, readout) of this layer.
         """
-        times = times.to(dtype=self.weight.dtype, device=self.weight.device)
-        index = index.to(device=self.weight.device)
+        seq = isinstance(times, (list, tuple)) and isinstance(index, (list, tuple))
+        times_k = list(times) if seq else [times]
+        index_k = list(index) if seq else [index]
+        if len(times_k) != len(self.via) or len(index_k) != len(self.via) or not all(isinstance(t, torch.Tensor) for t in times_k + index_k):
+            raise ValueError("forward takes one times and one index tensor per fed block (%s)" % ", ".join(self.via))
+        times_k = [t.to(dtype=self.weight.dtype, device=self.weight.device) for t in times_k]
+        index_k = [i.to(device=self.weight.device) for i in index_k]
+        ws = [self.weights[v] for v in self.via] if len(self.via) > 1 else [self.weight]
         params = [self.model_params[k] for k in self.spec.param_names]
-        return LayerOutput(*GridLayerFunction.apply(self.spec, times, index, self.weight, *params))
+        return LayerOutput(*GridLayerFunction.apply(self.spec, times_k[0], index_k[0], ws[0], *times_k[1:], *index_k[1:], *ws[1:], *params))
 
     def eprop(self, inputs: torch.Tensor, targets: torch.Tensor, readout: torch.Tensor, kappa: float,
               feedback: str = "exact", seed: int = 0) -> dict:
@@ -374,6 +423,8 @@ def eprop_backward(layer: "SpikingLayer", inputs: torch.Tensor, targets: torch.T
     dict
         {"loss": E, "spikes": spikes of the pass, "kept_bytes": bytes of the arrays kept}.
     """
+    if layer.spec.blocks != [0]:
+        raise ValueError("e-prop runs a layer that feeds its model's first incoming block only; this one feeds %s" % ", ".join(layer.via))
     w = layer.weight
     values = dict(layer.spec.fixed)
     values.update({k: float(v) for k, v in layer.model_params.items()})
@@ -455,13 +506,15 @@ class GridNetwork(torch.nn.Module):
         Of the weights and parameters.
     """
 
-    def __init__(self, description: dict, models: dict, dt: float, dtype=torch.float64, device=None, max_spikes: int = 100000):
+    def __init__(self, description: dict, models: dict, dt: float, dtype=torch.float64, device=None, max_spikes: int = 100000,
+                 file_delays: Optional[dict] = None):
         super().__init__()
         self.description = description
         self.models = dict(models)
+        self.file_delays = dict(file_delays or {})  # the model file's delays (grid.load_network)
         self.dt = float(dt)
         self.max_spikes = int(max_spikes)
-        base = grid.load_network(description, self.models)
+        base = grid.load_network(description, self.models, self.file_delays)
         self.weights = torch.nn.ParameterList([torch.nn.Parameter(torch.tensor(p["weights"], dtype=dtype, device=device))
                                                for p in description["projections"]])
         self._param_keys: List[Tuple[str, str]] = []
@@ -496,7 +549,7 @@ class GridNetwork(torch.nn.Module):
         desc["populations"] = pops
         dtype, device = self._dtype_device()
         with X.on(dtype, device):
-            return grid.load_network(desc, self.models)
+            return grid.load_network(desc, self.models, self.file_delays)
 
     def forward(self) -> torch.Tensor:
         """Runs every trial; returns the loss (a 0-d tensor) whose backward is the exact gradient."""

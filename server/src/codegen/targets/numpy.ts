@@ -13,7 +13,7 @@ export const NUMPY_TARGET: CodeTarget = {
     const plans = ctx.kernelPlans();
     const files = plans.map((p) => modelModule(p, NUMPY_DIALECT, { ...(ctx.source ? { source: ctx.source } : {}), renamed: ctx.renamed }));
     files.push(...runtimeFiles(NUMPY_DIALECT));
-    if (ctx.network) files.push(runnerFile(plans));
+    if (ctx.network) files.push(runnerFile(plans, undefined, ctx.network.fileDelays));
     return files;
   },
 };

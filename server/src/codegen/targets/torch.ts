@@ -16,7 +16,7 @@ export const TORCH_TARGET: CodeTarget = {
     const plans = ctx.kernelPlans();
     const files = plans.map((p) => modelModule(p, TORCH_DIALECT, { ...(ctx.source ? { source: ctx.source } : {}), renamed: ctx.renamed }));
     files.push(...runtimeFiles(TORCH_DIALECT), torchRuntimeFile(), layersFile(plans));
-    if (ctx.network) files.push(networkFile(plans), runnerFile(plans, TORCH_DIALECT));
+    if (ctx.network) files.push(networkFile(plans, ctx.network.fileDelays), runnerFile(plans, TORCH_DIALECT));
     files.push(initFile(plans, !!ctx.network));
     return files;
   },
