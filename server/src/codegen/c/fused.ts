@@ -21,7 +21,7 @@ import type { CFlavour } from './emit';
 /** Whether a model gets fused population steps: a guard, a spike jump and an incoming block. */
 export function hasFused(plan: KernelPlan): boolean {
   const has = (n: string): boolean => plan.kernels.some((k) => k.name === n);
-  return ['guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp', 'map_step', 'map_vjp'].every(has);
+  return ['flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp', 'map_step', 'map_vjp'].every(has);
 }
 
 /** Prints inline kernel arithmetic with step-constant subexpressions hoisted. */
@@ -251,7 +251,7 @@ export function fusedC(plan: KernelPlan, f: CFlavour, arities: Set<number>): { l
     `int ${M}_pop_substeps(saltus_real dt)`, '{',
     ...(exact ? ['    (void)dt;', '    return 1;'] : ['    int m = 1;',
       `    while (m < SALTUS_MAX_SUBSTEPS && ${String(plan.rate)} * (double)dt / m > SALTUS_SUBSTEP_RATE_BOUND) m *= 2;`, '    return m;']), '}', ''];
-  const rare = fusedText.replace(/@M@/g, M).replace(/@S@/g, String(S)).replace(/@G@/g, String(G)).replace(/@DIR@/g, String(dir)).split('\n');
+  const rare = fusedText.replace(/@M@/g, M).replace(/@S@/g, String(S)).replace(/@G@/g, String(G)).replace(/@DIR@/g, String(dir)).replace(/@EXACT@/g, exact ? '1' : '0').split('\n');
   return {
     lines: [...substepFn, ...rare, '', ...prune(forward), ...prune(backward)],
     protos: [`int ${M}_pop_substeps(saltus_real dt);`, `${fwProto};`, `${bwProto};`],

@@ -51,6 +51,16 @@ static void @M@_fz_seg_vjp(const saltus_real *xa, const saltus_real *p, saltus_r
     *da = sa;
 }
 
+/* G(x, a, u) and dG/du: for an exact map dG/du is the flow at G (one map step and one flow instead of
+ * the map's tangent), otherwise the sub-stepped tangent. */
+static void @M@_fz_at(const saltus_real *x, const saltus_real *p, saltus_real a, saltus_real u, int m, saltus_real *out, saltus_real *rate)
+{
+    if (@EXACT@) {
+        @M@_map_step(x, p, a, u, out);
+        @M@_flow(out, p, a + u, rate);
+    } else @M@_fz_seg_rate(x, p, a, u, m, out, rate);
+}
+
 static int @M@_fz_crossed(saltus_real g0, saltus_real g1)
 {
     int up = g0 < 0 && g1 >= 0, down = g0 > 0 && g1 <= 0;
@@ -73,7 +83,7 @@ static saltus_real @M@_fz_locate(const saltus_real *x, const saltus_real *p, sal
     u = h * g0 / (g0 - g1);
     if (!(u > lo && u < hi)) u = (saltus_real)0.5 * h;
     for (it = 0; it < 100; it++) {
-        @M@_fz_seg_rate(x, p, a, u, m, y, rate);
+        @M@_fz_at(x, p, a, u, m, y, rate);
         gv = @M@_guard(y, p, a + u);
         @M@_guard_grad(y, p, a + u, k);
         dg = k[@S@];
@@ -120,8 +130,11 @@ static int @M@_fz_fix_forward(saltus_real *x, const saltus_real *p, saltus_real 
         @M@_spike_jump(a, p, s, b);
         *ts = s;
         fired = 1;
-        if (isfinite(@M@_fz_locate_crossing(b, p, s, @M@_guard(b, p, s), t1 - s, m))) return -1;
+        /* the rest of the step; a second crossing there is refused */
+        g0 = @M@_guard(b, p, s);
         @M@_fz_seg(b, p, s, t1 - s, m, x);
+        u = @M@_guard(x, p, t1);
+        if (isfinite(u) ? @M@_fz_crossed(g0, u) : isfinite(@M@_fz_locate_crossing(b, p, s, g0, t1 - s, m))) return -1;
     } else {
         @M@_fz_seg(x, p, t, t1 - t, m, a);
         for (i = 0; i < @S@; i++) x[i] = a[i];
@@ -135,11 +148,11 @@ static int @M@_fz_fix_forward(saltus_real *x, const saltus_real *p, saltus_real 
 static void @M@_fz_fix_backward(const saltus_real *x0, const saltus_real *p, saltus_real t, saltus_real t1, int m, saltus_real w,
                                 saltus_real s, saltus_real gs, saltus_real *lam, saltus_real *gin, saltus_real *gp)
 {
-    saltus_real xin[@S@], a[@S@], rate[@S@], b[@S@], lb[@S@], la[@S@], gx[@S@], l1[@S@], lg[@S@], gpg[@G@ + 1], g2[@G@ + 1];
+    saltus_real xin[@S@], a[@S@], rate[@S@], b[@S@], lb[@S@], la[@S@], gx[@S@], l1[@S@], lg[@S@], gpg[@G@ + 1];
     saltus_real k[@S@ + 2 + @G@ + 1], dh, da, Lu, slope, coef;
     int i, q;
     @M@_incoming_jump(x0, p, t, w, xin);
-    @M@_fz_seg_rate(xin, p, t, s - t, m, a, rate);
+    @M@_fz_at(xin, p, t, s - t, m, a, rate);
     @M@_spike_jump(a, p, s, b);
     @M@_fz_seg_vjp(b, p, s, t1 - s, m, lam, lb, gp, &dh, &da);
     Lu = da - dh + gs;
@@ -151,12 +164,12 @@ static void @M@_fz_fix_backward(const saltus_real *x0, const saltus_real *p, sal
     @M@_guard_grad(a, p, s, k);
     slope = k[@S@];
     for (i = 0; i < @S@; i++) { gx[i] = k[i]; slope += k[i] * rate[i]; }
-    for (q = 0; q < @G@; q++) { gpg[q] = k[@S@ + 1 + q]; g2[q] = 0; }
+    for (q = 0; q < @G@; q++) gpg[q] = k[@S@ + 1 + q];
     coef = -Lu / slope;
-    @M@_fz_seg_vjp(xin, p, t, s - t, m, la, l1, gp, &dh, &da);
-    @M@_fz_seg_vjp(xin, p, t, s - t, m, gx, lg, g2, &dh, &da);
-    for (i = 0; i < @S@; i++) l1[i] += coef * lg[i];
-    for (q = 0; q < @G@; q++) gp[q] += coef * (g2[q] + gpg[q]);
+    /* the first segment once, for la + coef gx (its vector-Jacobian product is linear in the costate) */
+    for (i = 0; i < @S@; i++) lg[i] = la[i] + coef * gx[i];
+    @M@_fz_seg_vjp(xin, p, t, s - t, m, lg, l1, gp, &dh, &da);
+    for (q = 0; q < @G@; q++) gp[q] += coef * gpg[q];
     @M@_incoming_vjp(x0, p, t, w, l1, k);
     for (i = 0; i < @S@; i++) lam[i] = k[i];
     for (q = 0; q < @G@; q++) gp[q] += k[@S@ + 1 + q];
