@@ -5,7 +5,7 @@
  * the crossing located inside the step by Newton's method, the reset and the rest of the step; and
  * backward the transposed propagator, its parameter derivatives, and the spike adjoint (the
  * crossing time's sensitivity, EventProp's jump condition, Wunderlich & Pehle 2021).
- * Built with -DNN=<neurons> -DSTEPS=<forward steps> -DSTEPS_B=<forward+backward steps>; saltus_real
+ * Built with -DNN=<neurons> -DSTEPS=<forward steps> -DSTEPS_B=<forward+backward steps> -DDRIVE=<per mille>; saltus_real
  * is float or double as generated. Prints: seconds (best of REPS) for generated forward,
  * hand-written forward, generated forward+backward, hand-written forward+backward, then the
  * four checksums and the spike count of one forward run. */
@@ -187,12 +187,12 @@ int main(void)
     gpm = malloc(NN * sizeof(R)); gps = malloc(NN * sizeof(R)); F = malloc(NN);
     hist = malloc((size_t)STEPS_B * 2 * NN * sizeof(R)); Fh = malloc((size_t)STEPS_B * NN); Th = malloc((size_t)STEPS_B * NN * sizeof(R));
     if (!V || !I || !T || !lamV || !lamI || !gin || !gpm || !gps || !F || !hist || !Fh || !Th) { fprintf(stderr, "out of memory\n"); return 2; }
-    /* NV input vectors (invented drive): about 2 % of the neurons get an arrival of 0.5-1.5 per step */
+    /* NV input vectors (invented drive): DRIVE per mille of the neurons get an arrival of 0.5-1.5 per step */
     for (v = 0; v < NV; v++) {
         in[v] = malloc(NN * sizeof(R));
         for (i = 0; i < NN; i++) {
             seed = seed * 6364136223846793005UL + 1442695040888963407UL;
-            in[v][i] = ((seed >> 33) % 1000) < 20 ? (R)(0.5 + (double)((seed >> 20) % 1000) / 1000.0) : (R)0;
+            in[v][i] = ((seed >> 33) % 1000) < DRIVE ? (R)(0.5 + (double)((seed >> 20) % 1000) / 1000.0) : (R)0;
         }
     }
     gp[0] = gpm; gp[1] = gps;

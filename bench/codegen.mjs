@@ -118,7 +118,8 @@ int main(void)
   const fusedFlags = [['-O2'], ['-O3', '-march=native']];
   const sizes = [{ n: 4096, steps: 10000, stepsB: 2000 }, { n: 100000, steps: 400, stepsB: 80 }];
   console.log(`codegen: fused population step (LifCurrent_pop_forward, _pop_backward) vs a hand-written fused loop (bench/codegen-fused.c), best of 3,`);
-  console.log(`  gcc -std=c99 -Wall -Wextra -Werror -pedantic plus the flags shown; speed ratio = hand-written time / generated time (1 = as fast), goal >= ${fusedGoal}`);
+  console.log(`  gcc -std=c99 -Wall -Wextra -Werror -pedantic plus the flags shown; dt 0.1 ms, 0.8 % of the neurons get an input per step (invented drive);`);
+  console.log(`  speed ratio = hand-written time / generated time (1 = as fast), goal >= ${fusedGoal}`);
   for (const float of [false, true]) {
     const fdir = join(dir, float ? 'fused_f32' : 'fused_f64');
     const g = spawnSync(process.execPath, [cli, 'generate', join(root, 'samples/lif_current.saltus'), '--target', 'c', '--model', 'LifCurrent', '--out', fdir, ...(float ? ['--float'] : [])], { encoding: 'utf8' });
@@ -127,19 +128,20 @@ int main(void)
     for (const opt of fusedFlags) {
       for (const sz of sizes) {
         const exe = `bench_${opt.join('').replace(/[^a-zA-Z0-9]/g, '')}_${sz.n}`;
-        const b = spawnSync('gcc', ['-std=c99', ...opt, '-Wall', '-Wextra', '-Werror', '-pedantic', `-DNN=${sz.n}L`, `-DSTEPS=${sz.steps}`, `-DSTEPS_B=${sz.stepsB}`,
+        const b = spawnSync('gcc', ['-std=c99', ...opt, '-Wall', '-Wextra', '-Werror', '-pedantic', `-DNN=${sz.n}L`, `-DSTEPS=${sz.steps}`, `-DSTEPS_B=${sz.stepsB}`, '-DDRIVE=8',
           'LifCurrent.c', 'saltus_grid.c', 'bench.c', '-lm', '-o', exe], { cwd: fdir, encoding: 'utf8' });
         if (b.status !== 0) throw new Error(`gcc failed: ${b.stderr}`);
         const r = spawnSync(join(fdir, exe), { encoding: 'utf8' });
         if (r.status !== 0) throw new Error(`the fused benchmark failed: ${r.stderr}`);
         const [fg, fh, bg, bh, s0, s1, s2, s3, spikes] = r.stdout.trim().split(' ').map(Number);
-        const tol = float ? 1e-4 : 1e-9;
+        // float32: the closed form and the divided differences round differently, over thousands of steps
+        const tol = float ? 1e-3 : 1e-9;
         const okF = Math.abs(s0 - s1) <= tol * Math.max(1, Math.abs(s1));
         const okB = Math.abs(s2 - s3) <= tol * Math.max(1, Math.abs(s3));
         const label = `${float ? 'float32' : 'float64'} ${opt.join(' ')} N=${sz.n}`;
         const ns = (sec, steps) => (sec * 1e9 / (sz.n * steps)).toFixed(3);
         console.log(`  ${label.padEnd(34)} forward: generated ${ns(fg, sz.steps)} ns, hand ${ns(fh, sz.steps)} ns per neuron-step, ratio ${(fh / fg).toFixed(2)} (goal >= ${fusedGoal}; replaces 0.41)${okF ? '' : `  CHECKSUMS DIFFER (${s0} vs ${s1})`}`);
-        console.log(`  ${''.padEnd(34)} forward+backward: generated ${ns(bg, sz.stepsB)} ns, hand ${ns(bh, sz.stepsB)} ns, ratio ${(bh / bg).toFixed(2)} (goal >= ${fusedGoal}; no earlier figure)${okB ? '' : `  CHECKSUMS DIFFER (${s2} vs ${s3})`}  [${spikes} spikes in ${sz.steps} steps]`);
+        console.log(`  ${''.padEnd(34)} forward+backward: generated ${ns(bg, sz.stepsB)} ns, hand ${ns(bh, sz.stepsB)} ns, ratio ${(bh / bg).toFixed(2)} (goal >= ${fusedGoal}; no earlier figure)${okB ? '' : `  CHECKSUMS DIFFER (${s2} vs ${s3})`}  [${(spikes / (sz.n * sz.steps * 1e-4)).toFixed(1)} spikes/s per neuron]`);
         figure(`fused forward ${label} hand/generated`, fh / fg, 'x');
         figure(`fused forward+backward ${label} hand/generated`, bh / bg, 'x');
         if (!okF || !okB) process.exitCode = 1;
