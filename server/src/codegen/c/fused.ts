@@ -10,7 +10,7 @@
 // runtime's crossing location and spike adjoint on the per-neuron kernels).
 // Invariants: the printed arithmetic is exactly the kernels' (hoisting only moves
 // subexpressions that read no per-neuron value); C only (CUDA keeps the grid runtime).
-import { type Sym, freeSymbols, sym, substitute } from '../../symbolic/sym';
+import { type Sym, freeSymbols, isNum, sym, substitute } from '../../symbolic/sym';
 import { key } from '../../symbolic/normalise';
 import { toC } from '../../symbolic/print';
 import type { KernelPlan } from '../kernelPlan';
@@ -64,6 +64,27 @@ class Printer {
   /** s with its maximal step-constant subexpressions hoisted. */
   private lift(s: Sym, vary: Set<string>): Sym {
     if (!this.varies(s, vary)) return this.hoist(s);
+    if (s.k === 'add') {
+      // terms c1 * v + c2 * v with step-constant c1, c2 and the same moving part v: (c1 + c2) * v
+      const groups = new Map<string, { v: Sym; cs: Sym[] }>();
+      const rest: Sym[] = [];
+      for (const term of s.terms) {
+        if (!this.varies(term, vary)) { rest.push(term); continue; }
+        const fs = term.k === 'mul' ? term.factors : [term];
+        const cs = fs.filter((x) => !this.varies(x, vary));
+        const vs = fs.filter((x) => this.varies(x, vary));
+        const v: Sym = vs.length === 1 ? vs[0]! : { k: 'mul', factors: vs };
+        const id = key(v);
+        const g = groups.get(id);
+        const c: Sym = cs.length === 0 ? { k: 'num', v: 1 } : cs.length === 1 ? cs[0]! : { k: 'mul', factors: cs };
+        if (g) g.cs.push(c); else groups.set(id, { v, cs: [c] });
+      }
+      if ([...groups.values()].some((g) => g.cs.length > 1)) {
+        const terms: Sym[] = [...rest];
+        for (const g of groups.values()) terms.push(g.cs.length === 1 && isNum(g.cs[0]!, 1) ? g.v : { k: 'mul', factors: [g.cs.length === 1 ? g.cs[0]! : { k: 'add', terms: g.cs }, g.v] });
+        s = { k: 'add', terms };
+      }
+    }
     if (s.k === 'add' || s.k === 'mul') {
       const parts = s.k === 'add' ? s.terms : s.factors;
       const fixed = parts.filter((x) => !this.varies(x, vary));

@@ -1,7 +1,15 @@
 /* ---- fused population steps (docs/codegen.md, "Fused population steps"): the rare path ----
  * A neuron whose guard crossed inside the step is finished here, one neuron at a time, with the
  * grid runtime's algorithms (saltus_grid.c: the segment map in m sub-steps, Newton in a shrinking
- * bracket, bisection of a flow that blows up) on this model's kernels. */
+ * bracket, bisection of a flow that blows up) on this model's kernels. Kept out of line where the
+ * compiler knows how, so the pass over the flags keeps its registers. */
+#ifndef SALTUS_FZ_COLD
+#if defined(__GNUC__)
+#define SALTUS_FZ_COLD __attribute__((noinline, cold))
+#else
+#define SALTUS_FZ_COLD
+#endif
+#endif
 
 /* G(x, a, h): the step map in m equal sub-steps. */
 static void @M@_fz_seg(const saltus_real *x, const saltus_real *p, saltus_real a, saltus_real h, int m, saltus_real *out)
@@ -119,7 +127,7 @@ static saltus_real @M@_fz_locate_crossing(const saltus_real *x, const saltus_rea
 /* One flagged neuron over [t, t1]: x (S) holds its state at t after the input; on return its state at
  * t1, *ts the spike time. 1: one spike; 0: none; -1: two crossings in the step or a state that is
  * not finite (the grid runtime handles those). */
-static int @M@_fz_fix_forward(saltus_real *x, const saltus_real *p, saltus_real t, saltus_real t1, int m, saltus_real *ts)
+SALTUS_FZ_COLD static int @M@_fz_fix_forward(saltus_real *x, const saltus_real *p, saltus_real t, saltus_real t1, int m, saltus_real *ts)
 {
     saltus_real a[@S@], b[@S@], g0 = @M@_guard(x, p, t), u, s;
     int i, fired = 0;
@@ -145,7 +153,7 @@ static int @M@_fz_fix_forward(saltus_real *x, const saltus_real *p, saltus_real 
 
 /* The adjoint of one spiking neuron's step (t, spike at s, t1): lam (S) holds lambda at t1 on entry
  * and lambda at t before the input on return; gp (G) += dL/dp; *gin = dL/d(input weight). */
-static void @M@_fz_fix_backward(const saltus_real *x0, const saltus_real *p, saltus_real t, saltus_real t1, int m, saltus_real w,
+SALTUS_FZ_COLD static void @M@_fz_fix_backward(const saltus_real *x0, const saltus_real *p, saltus_real t, saltus_real t1, int m, saltus_real w,
                                 saltus_real s, saltus_real gs, saltus_real *lam, saltus_real *gin, saltus_real *gp)
 {
     saltus_real xin[@S@], a[@S@], rate[@S@], b[@S@], lb[@S@], la[@S@], gx[@S@], l1[@S@], lg[@S@], gpg[@G@ + 1];
