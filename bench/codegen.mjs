@@ -157,6 +157,8 @@ int main(void)
     const name = sc.replace(/\.json$/, '');
     const out = join(dir, name);
     const g = spawnSync(process.execPath, [cli, 'generate', join(root, 'samples', `${name}.saltus`), '--target', 'c', '--network', join(root, 'samples', 'scenarios', sc), '--out', out], { encoding: 'utf8' });
+    // a scenario the C target refuses (transmission delays, quiet periods so far) is listed with the reason
+    if (g.status === 1) { console.log(`  ${name.padEnd(14)} skipped: ${g.stderr.split('\n')[0].replace(/^saltus generate: [^:]*: /, '')}`); continue; }
     if (g.status !== 0) throw new Error(`saltus generate failed: ${g.stderr}`);
     copyFileSync(join(root, 'samples', 'scenarios', sc), join(out, 'net.json'));
     const b = spawnSync('gcc', [...flags, ...readdirSync(out).filter((f) => f.endsWith('.c')), '-lm', '-o', 'saltus_run'], { cwd: out, encoding: 'utf8' });

@@ -171,9 +171,17 @@ export function fusedC(plan: KernelPlan, f: CFlavour, arities: Set<number>): { l
   body.push(...st('_a').map((a, i) => `const saltus_real ${a} = _X${i}[_i];`), 'const saltus_real _w = _W[_i];');
   const inc = fw.inline(kernelOf(plan, 'incoming_jump'), 'in', { x: st('_a'), t: 't', w: '_w', varying: sig(['w']) });
   body.push(...inc.lines, ...inc.outs.map((o, i) => `const saltus_real _b${i} = ${o};`));
-  const ga = fw.inline(kernelOf(plan, 'guard'), 'ga', { x: st('_a'), t: 't', varying: new Set() });
-  const gb = fw.inline(kernelOf(plan, 'guard'), 'gb', { x: st('_b'), t: 't', varying: new Set() });
-  body.push(...ga.lines, `const saltus_real _ga = ${ga.outs[0]};`, ...gb.lines, `const saltus_real _gb = ${gb.outs[0]};`);
+  // an input jump that leaves every state the guard reads alone cannot fire the neuron: no test for it
+  const guardK = kernelOf(plan, 'guard');
+  const guardReads = new Set<string>();
+  for (const e of [...guardK.locals.map((a) => a.expr), ...guardK.outputs.map((o) => o.expr)]) for (const n of freeSymbols(e)) guardReads.add(n);
+  const incK = kernelOf(plan, 'incoming_jump');
+  const inputMovesGuard = plan.states.some((_, i) => guardReads.has(`x.${i}`)
+    && !(incK.outputs[i]!.expr.k === 'sym' && (incK.outputs[i]!.expr as { name: string }).name === `x.${i}`));
+  const ga = fw.inline(guardK, 'ga', { x: st('_a'), t: 't', varying: new Set() });
+  const gb = fw.inline(guardK, 'gb', { x: st('_b'), t: 't', varying: new Set() });
+  if (inputMovesGuard) body.push(...ga.lines, `const saltus_real _ga = ${ga.outs[0]};`);
+  body.push(...gb.lines, `const saltus_real _gb = ${gb.outs[0]};`);
   if (exact) {
     const map = fw.inline(kernelOf(plan, 'map_step'), 'mp', { x: st('_b'), t: 't', dt: 'dt', varying: new Set() });
     body.push(...map.lines, ...map.outs.map((o, i) => `const saltus_real _y${i} = ${o};`));
@@ -185,7 +193,7 @@ export function fusedC(plan: KernelPlan, f: CFlavour, arities: Set<number>): { l
   }
   const g1 = fw.inline(kernelOf(plan, 'guard'), 'g1', { x: st('_y'), t: '_t1', varying: new Set() });
   body.push(...g1.lines, `const saltus_real _g1 = ${g1.outs[0]};`,
-    `const int _f = ${crossed('_gb', '_g1')} | !(SALTUS_FABS(_g1) < (saltus_real)INFINITY) | (${jumpCrossed('_ga', '_gb')} << 1);`,
+    `const int _f = ${crossed('_gb', '_g1')} | !(SALTUS_FABS(_g1) < (saltus_real)INFINITY)${inputMovesGuard ? ` | (${jumpCrossed('_ga', '_gb')} << 1)` : ''};`,
     ...st('_X').map((x, i) => `${x}[_i] = _f ? _b${i} : _y${i};`), '_F[_i] = (unsigned char)_f;', '_cnt += _f != 0;');
   const restrictX = (name: string, arr: string): string[] => plan.states.map((_, i) => `saltus_real *restrict ${name}${i} = ${arr}[${i}];`);
   const substeps = exact ? ['const int _m = 1;'] : [`const int _m = ${M}_pop_substeps(dt);`, 'const saltus_real _sub = dt / (saltus_real)_m;'];
