@@ -27,6 +27,7 @@ import type { FileDelay } from '../network';
 
 /** A double as C reads it back exactly. */
 const cDouble = (v: number): string => { const t = String(v); return /[.eE]/.test(t) ? t : `${t}.0`; };
+import { fusedC } from './fused';
 
 export interface GeneratedFile { name: string; content: string }
 
@@ -157,6 +158,7 @@ export function modelFiles(plan: KernelPlan, f: CFlavour, id: number, ctx: CCont
   const guard = `SALTUS_${M.toUpperCase()}_${x.h.toUpperCase()}`;
   const arities = new Set<number>();
   const fns = plan.kernels.flatMap((k) => kernelFunction(plan, k, f, arities));
+  const fused = fusedC(plan, f, arities);
   const helpers = [...arities].sort((a, b) => a - b).flatMap((n) => expddHelper(M, n, f));
   const facts = [`/* ${M}: ${plan.states.length} states (${plan.states.map((s) => s.id).join(', ')}), ${plan.params.length} parameters`
     + `${plan.params.length ? ` (${plan.params.map((p) => p.id).join(', ')})` : ''}, in these orders in x and p. */`];
@@ -168,9 +170,10 @@ export function modelFiles(plan: KernelPlan, f: CFlavour, id: number, ctx: CCont
   const protos = plan.kernels.map((k) => `${signature(plan, k)};`);
   const h = [...header(plan, f, `${M}.h`, ctx), `#ifndef ${guard}`, `#define ${guard}`, '', '#include "saltus_grid.h"', '',
     '#ifdef __cplusplus', 'extern "C" {', '#endif', '', ...facts, ...protos, `extern const saltus_model ${M}_model;`,
+    ...(fused.protos.length ? ['/* Fused population steps (docs/codegen.md, "Fused population steps"). */', ...fused.protos] : []),
     ...(eprop ? [`extern const saltus_eprop_model ${M}_eprop; /* e-prop (saltus_grid.h) */`] : []), '',
     '#ifdef __cplusplus', '}', '#endif', '', `#endif /* ${guard} */`, ''];
-  const c = [...header(plan, f, `${M}.c`, ctx), '#include <math.h>', `#include "${M}.h"`, '', ...helpers, ...fns, ...modelTable(plan, f, id), ...(eprop ? epropC(plan, f).lines : [])];
+  const c = [...header(plan, f, `${M}.c`, ctx), '#include <math.h>', `#include "${M}.h"`, '', ...helpers, ...fns, ...modelTable(plan, f, id), ...(eprop ? epropC(plan, f).lines : []), ...fused.lines];
   return [{ name: `${M}.h`, content: h.join('\n') }, { name: `${M}.c`, content: c.join('\n') }];
 }
 
