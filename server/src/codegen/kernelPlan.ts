@@ -79,6 +79,9 @@ export function planKernels(neuron: ResolvedNeuron, prefix: string, dtSI: number
     // a guard the flow never moves (a spike counter) runs in the accurate simulator and on the
     // grid; the generated runtimes are not checked on it yet, so they refuse it with the reason
     if (adjoint.spike?.byJumpsOnly) errors.push(`${neuron.name}: its guard's states have no flow and change only by jumps (it fires only by jumps, a spike counter): generated code does not run such a guard yet (the accurate cross-check does: saltus crosscheck)`);
+    // a quiet period runs on the grid (grid/: a per-neuron countdown, its end located inside a
+    // step); the generated runtimes do not run it yet, so they refuse it with the reason
+    if (neuron.quiet) errors.push(`${neuron.name} has a quiet period ('quiet for'): generated code does not run quiet periods yet (the grid semantics and the accurate cross-check do: saltus crosscheck)`);
     const grid = gridDerivationFor(neuron);
     errors.push(...grid.problems.map((p) => `${neuron.name}: ${p}`));
     if (errors.length) return { errors, renamed };

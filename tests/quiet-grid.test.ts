@@ -1,0 +1,264 @@
+// Quiet (refractory) periods on the grid (server/src/grid/, docs/network-step.md "Quiet
+// periods"): a per-neuron countdown, its end located inside a step (the step split there:
+// the quiet map up to it, the normal map after), no firing while quiet, and the exact
+// backward pass of that forward pass (the end's timing term, dL/dDURATION).
+// - Consistency: every gradient (weights, parameters, the trainable DURATION) equals central
+//   finite differences of the grid forward pass itself (Richardson-extrapolated).
+// - Convergence: the grid's spike times, loss and gradient approach the accurate hybrid
+//   simulator's (Dormand-Prince with event location, simulate/) as dt -> 0 (a non-linear flow,
+//   whose ETDRK4 map is not exact); for a linear flow (exact map) they agree at any dt.
+// - A quiet period of 0 gives exactly the run of the same model without the block.
+// - The firing rate of a LIF under constant drive RI with a refractory period t_ref,
+//   1 / (t_ref + tau ln(RI / (RI - theta))) (Gerstner, Kistler, Naud & Paninski 2014,
+//   Neuronal Dynamics, ch. 1, from memory).
+// Scenario data: the invented pump-sensor pattern of samples/scenarios/refractory_lif.json.
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { describe, expect, test } from 'vitest';
+import { analyse } from '../server/src/pipeline';
+import { parseScenario, runCrossCheckSync } from '../server/src/crosscheck';
+import { gridBackward, gridForward, networkFromScenario, type Network } from '../server/src/grid';
+import { simulate } from '../server/src/simulate';
+import { modelNeuron } from './helpers/models';
+
+const ROOT = join(__dirname, '..');
+const ms = 1e-3;
+const rel = (a: number, b: number): number => Math.abs(a - b) / Math.max(Math.abs(b), 1e-300);
+
+function refractoryScenario(edit: (text: string) => string = (t) => t): { net: Network; analysis: ReturnType<typeof analyse>; json: string } {
+  const analysis = analyse(edit(readFileSync(join(ROOT, 'samples', 'refractory_lif.saltus'), 'utf8')));
+  expect(analysis.diagnostics.filter((d) => d.severity === 'error')).toEqual([]);
+  const json = readFileSync(join(ROOT, 'samples', 'scenarios', 'refractory_lif.json'), 'utf8');
+  const sc = parseScenario(json, analysis);
+  if (!sc.ok) throw new Error(JSON.stringify(sc.errors));
+  return { net: networkFromScenario(sc.scenario), analysis, json };
+}
+
+interface Row { label: string; grid: number; get: () => number; set: (v: number) => void }
+
+function rows(net: Network, g: ReturnType<typeof gridBackward>): Row[] {
+  const out: Row[] = [];
+  net.projections.forEach((pr, p) => pr.weights.forEach((r, i) => r.forEach((_, j) => {
+    if (pr.from === pr.to && i === j) return;
+    out.push({ label: `w${p}[${i}][${j}]`, grid: g.weights[p]![i]![j]!, get: () => pr.weights[i]![j]!, set: (v) => { pr.weights[i]![j] = v; } });
+  })));
+  net.projections.forEach((pr, p) => pr.delays?.forEach((r, i) => r.forEach((_, j) => {
+    if ((pr.from === pr.to && i === j) || r[j] === 0) return;
+    out.push({ label: `d${p}[${i}][${j}]`, grid: g.delays[p]![i]![j]!, get: () => pr.delays![i]![j]!, set: (v) => { pr.delays![i]![j] = v; } });
+  })));
+  for (const pop of net.populations) {
+    if (pop.kind !== 'model') continue;
+    for (const q of pop.model.params.filter((x) => x.trainable)) {
+      const base = pop.params;
+      out.push({ label: `${pop.name}.${q.name}`, grid: g.params[pop.name]![q.name]!, get: () => pop.params[q.name] ?? q.valueSI!,
+        set: (v) => { (pop as { params: Record<string, number> }).params = { ...base, [q.name]: v }; } });
+    }
+  }
+  return out;
+}
+
+const spikeCount = (r: ReturnType<typeof gridForward>): number => r.trials.reduce((s, t) => s + Object.values(t.spikes).reduce((a, x) => a + x.length, 0), 0);
+
+/** Central differences of the grid loss (Richardson); rows whose spike count changes are skipped and named. */
+function fdCheck(net: Network, dt: number): { worst: number; raw: number; skipped: string[]; rows: { label: string; grid: number; fd: number }[] } {
+  const run = gridForward(net, { dt });
+  expect(run.errors).toEqual([]);
+  const g = gridBackward(run);
+  const n0 = spikeCount(run);
+  let worst = 0, raw = 0;
+  const skipped: string[] = [], out: { label: string; grid: number; fd: number }[] = [];
+  for (const r of rows(net, g)) {
+    const v0 = r.get();
+    const h = 1e-6 * Math.max(Math.abs(v0), 1e-12);
+    const at = (x: number): ReturnType<typeof gridForward> => { r.set(x); const o = gridForward(net, { dt }); r.set(v0); return o; };
+    const runs = [at(v0 + h), at(v0 - h), at(v0 + h / 2), at(v0 - h / 2)];
+    if (runs.some((x) => spikeCount(x) !== n0)) { skipped.push(r.label); continue; }
+    const d1 = (runs[0]!.loss - runs[1]!.loss) / (2 * h), d2 = (runs[2]!.loss - runs[3]!.loss) / h;
+    const fd = (4 * d2 - d1) / 3;
+    const floor = 3e3 * 2.2e-16 * Math.abs(run.loss) / h;
+    const gap = Math.abs(r.grid - fd);
+    out.push({ label: r.label, grid: r.grid, fd });
+    raw = Math.max(raw, gap / Math.max(Math.abs(fd), Math.abs(r.grid), 1e-300));
+    if (process.env.QUIET_GRID_ROWS) console.log(r.label, r.grid, fd, floor);
+    if (gap > floor) worst = Math.max(worst, gap / Math.max(Math.abs(fd), Math.abs(r.grid)));
+  }
+  return { worst, raw, skipped, rows: out };
+}
+
+const quietEnds = (run: ReturnType<typeof gridForward>) => run.trials.flatMap((t) => t.log.filter((e) => e.kind === 'quiet-end'));
+
+describe('the grid gradient with quiet periods = derivative of the grid forward pass (central differences)', () => {
+  test('refractory_lif scenario at dt = 0.1 ms: every weight, tau_m and the quiet period t_ref', () => {
+    const { net } = refractoryScenario();
+    const run = gridForward(net, { dt: 1e-4 });
+    expect(run.errors).toEqual([]);
+    // quiet periods do end inside steps, not on grid points
+    const ends = quietEnds(run);
+    expect(ends.length).toBeGreaterThan(3);
+    expect(ends.some((e) => Math.abs(e.time / 1e-4 - Math.round(e.time / 1e-4)) > 1e-3)).toBe(true);
+    const r = fdCheck(net, 1e-4);
+    console.log(`refractory_lif grid: ${r.rows.length} rows, worst relative gap ${r.raw.toExponential(2)} (${r.worst.toExponential(2)} above the rounding floor); t_ref: ${JSON.stringify(r.rows.find((x) => x.label.endsWith('t_ref')))}; skipped: ${r.skipped.join(', ') || 'none'}`);
+    const tRef = r.rows.find((x) => x.label === 'hid.t_ref')!;
+    expect(Math.abs(tRef.grid)).toBeGreaterThan(1e-6);
+    expect(r.worst).toBeLessThan(1e-6);
+    expect(r.raw).toBeLessThan(1e-5);
+    expect(r.rows.length).toBeGreaterThan(8);
+  }, 120_000);
+
+  test('transmission delays and a recurrent projection: arrivals while quiet, every weight, delay and t_ref', () => {
+    const { net } = refractoryScenario();
+    net.projections[0]!.delays = [[0.6e-3, 1.3e-3, 0.25e-3], [0.9e-3, 0.45e-3, 1.7e-3]];
+    net.projections.push({ from: 'hid', to: 'hid', weights: [[0, 0.8], [1.1, 0]], delays: [[0, 0.35e-3], [0.55e-3, 0]] });
+    net.projections.push({ from: 'sensor', to: 'hid', weights: [[0.9, 0.3, 0.7], [0.2, 1.2, 0.4]] });
+    const run = gridForward(net, { dt: 1e-4 });
+    expect(run.errors).toEqual([]);
+    // some arrivals reach a neuron while it is quiet
+    const tr = run.trials[0]!;
+    const whileQuiet = tr.log.filter((e) => e.kind === 'arrival' && tr.log.some((q) => q.kind === 'quiet-end' && q.pop === e.pop && q.time > e.time
+      && (e.targets ? [...e.targets].includes(q.neuron) : true) && tr.log[q.cause]!.time < e.time));
+    expect(whileQuiet.length).toBeGreaterThan(0);
+    const r = fdCheck(net, 1e-4);
+    console.log(`delays + recurrence: ${r.rows.length} rows, worst relative gap ${r.raw.toExponential(2)} (${r.worst.toExponential(2)} above the rounding floor); skipped: ${r.skipped.join(', ') || 'none'}`);
+    expect(r.rows.filter((x) => x.label.startsWith('d')).length).toBeGreaterThan(4);
+    expect(r.worst).toBeLessThan(1e-6);
+    expect(r.raw).toBeLessThan(1e-5);
+  }, 180_000);
+
+  // The loss on the quiet population itself (its integral crosses quiet segments), a duration
+  // built of two parameters, a quiet flow that is not held (V relaxes to a level of its own,
+  // a non-linear quiet map: ETDRK4 sub-steps, segment starts kept) and a spike-time variant.
+  const VARIANT = (t: string): string => t
+    .replace('param t_ref = 3 [ms] trainable   #~ refractory period: V is held after each spike',
+      'param t_ref = 2 [ms] trainable\n  param t_abs = 0.7 [ms] trainable\n  param tau_q = 4 [ms] trainable')
+    .replace('quiet for t_ref {\n    dV/dt = 0', 'quiet for t_ref + t_abs {\n    dV/dt = -V * (1 + V * V) / tau_q');
+  for (const loss of ['state-integral', 'ce-integral'] as const) {
+    test(`a two-parameter duration, a non-linear quiet flow, ${loss} loss on the quiet population`, () => {
+      const { net } = refractoryScenario(VARIANT);
+      const hid = net.populations.find((p) => p.name === 'hid')!;
+      expect(hid.kind === 'model' && hid.model.quiet).toBeTruthy();
+      net.loss = loss === 'state-integral' ? { kind: 'state-integral', population: 'hid', state: 'V', target: [0.3, 0.2] }
+        : { kind: 'ce-integral', population: 'hid', state: 'V' };
+      net.trials[0] = { ...net.trials[0]!, label: 1 };
+      const run = gridForward(net, { dt: 1e-4 });
+      expect(run.errors).toEqual([]);
+      expect(quietEnds(run).length).toBeGreaterThan(2);
+      const r = fdCheck(net, 1e-4);
+      console.log(`variant (${loss}): ${r.rows.length} rows, worst relative gap ${r.raw.toExponential(2)} (${r.worst.toExponential(2)} above the rounding floor); skipped: ${r.skipped.join(', ') || 'none'}`);
+      for (const p of ['hid.t_ref', 'hid.t_abs', 'hid.tau_q']) expect(r.rows.find((x) => x.label === p), p).toBeDefined();
+      expect(Math.abs(r.rows.find((x) => x.label === 'hid.t_abs')!.grid)).toBeGreaterThan(0);
+      expect(r.worst).toBeLessThan(1e-6);
+      expect(r.raw).toBeLessThan(1e-5);
+    }, 180_000);
+  }
+});
+
+describe('the grid converges to the accurate simulator as dt -> 0', () => {
+  test('refractory_lif (linear flows: exact maps): spike times and gradient agree at dt = 0.1 ms already', () => {
+    const { net, analysis, json } = refractoryScenario();
+    const exact = runCrossCheckSync(analysis, json, { traces: false, rtol: 1e-12 });
+    expect(exact.errors).toEqual([]);
+    const run = gridForward(net, { dt: 1e-4 });
+    const g = gridBackward(run);
+    const errs = [
+      ...exact.gradients.map((r) => rel(g.weights[r.projection]![r.to]![r.from]!, r.adjoint)),
+      ...exact.params.filter((r) => r.adjoint !== 0).map((r) => rel(g.params[r.population]![r.name]!, r.adjoint)),
+    ];
+    const tRef = exact.params.find((p) => p.name === 't_ref')!;
+    console.log(`refractory_lif: grid vs accurate: loss ${rel(run.loss, exact.loss).toExponential(2)}, worst gradient ${Math.max(...errs).toExponential(2)} (t_ref ${g.params.hid!.t_ref} vs ${tRef.adjoint})`);
+    expect(rel(run.loss, exact.loss)).toBeLessThan(1e-7);
+    expect(Math.max(...errs)).toBeLessThan(1e-5);
+  }, 120_000);
+
+  // A quadratic integrate-and-fire neuron (non-linear: the map is ETDRK4, not exact) with a
+  // quiet period whose flow is non-linear too.
+  const QIF = `neuron Q {
+  param tau = 10 [ms]
+  param drive = 2
+  param t_ref = 1.3 [ms] trainable
+  state V = 0
+  dV/dt = (V * V + drive) / tau
+  fire when V crosses 1 up { V := -1 }
+  quiet for t_ref { dV/dt = -V * (1 + V * V) / tau }
+}`;
+  test('a non-linear model: the spike-time error shrinks like a high order of dt', () => {
+    const m = modelNeuron(QIF, 'Q');
+    const T = 0.08;
+    const acc = simulate({ neurons: [{ model: m }], synapses: [] }, T, [], { rtol: 1e-12 });
+    expect(acc.errors).toEqual([]);
+    const ref = acc.spikes.map((s) => s.time);
+    expect(ref.length).toBeGreaterThan(4);
+    const errAt = (dt: number): number => {
+      const net: Network = { duration: T, populations: [{ kind: 'model', name: 'q', size: 1, model: m, params: {}, initial: {} }], projections: [],
+        trials: [{ inputs: {} }], loss: { kind: 'spike-time', population: 'q', targets: [0.01] } };
+      const run = gridForward(net, { dt, substeps: { q: 1 } });
+      expect(run.errors).toEqual([]);
+      const t = run.trials[0]!.spikes.q!.map(([s]) => s);
+      expect(t.length).toBe(ref.length);
+      return Math.max(...t.map((s, k) => Math.abs(s - ref[k]!)));
+    };
+    const errs = [4e-4, 2e-4, 1e-4, 5e-5].map(errAt);
+    console.log(`QIF with a quiet period: worst spike-time error vs the accurate simulator at dt = 0.4, 0.2, 0.1, 0.05 ms: ${errs.map((e) => e.toExponential(2)).join(', ')}`);
+    for (let k = 1; k < errs.length; k++) expect(errs[k]!).toBeLessThan(errs[k - 1]! / 4);
+    expect(errs[errs.length - 1]!).toBeLessThan(1e-8);
+  }, 60_000);
+});
+
+describe('a quiet period of 0 is no quiet period', () => {
+  test('t_ref = 0 gives exactly the run of the model without the block (loss, spikes, every gradient)', () => {
+    const withQ = refractoryScenario();
+    const without = refractoryScenario((t) => t.replace(/ {2}quiet for t_ref \{[^}]*\}\n/, ''));
+    const hidW = without.net.populations.find((p) => p.name === 'hid')!;
+    expect(hidW.kind === 'model' && hidW.model.quiet).toBeFalsy();
+    const hidQ = withQ.net.populations.find((p) => p.name === 'hid')!;
+    if (hidQ.kind !== 'model') throw new Error('hid is a model population');
+    (hidQ as { params: Record<string, number> }).params = { ...hidQ.params, t_ref: 0 };
+    const a = gridForward(withQ.net, { dt: 1e-4 }), b = gridForward(without.net, { dt: 1e-4 });
+    expect(a.errors).toEqual([]);
+    expect(quietEnds(a)).toEqual([]);
+    expect(a.loss).toBe(b.loss);
+    expect(a.trials[0]!.spikes).toEqual(b.trials[0]!.spikes);
+    const ga = gridBackward(a), gb = gridBackward(b);
+    expect(ga.weights).toEqual(gb.weights);
+    expect(ga.params.hid!.tau_m).toBe(gb.params.hid!.tau_m);
+    expect(ga.params.hid!.t_ref).toBe(0);
+  });
+});
+
+describe('closed form: the firing rate of a LIF with a refractory period on the grid', () => {
+  const DRIVEN = `neuron Driven {
+  param tau = 10 [ms]
+  param RI = 1.5
+  param theta = 1
+  param t_ref = 2 [ms] trainable
+  state V = 0
+  dV/dt = (RI - V) / tau
+  fire when V crosses theta up { V := 0 }
+  quiet for t_ref { dV/dt = 0 }
+}`;
+  test('ISI = t_ref + tau ln(RI / (RI - theta)) (Gerstner et al. 2014, Neuronal Dynamics, ch. 1, from memory)', () => {
+    const m = modelNeuron(DRIVEN, 'Driven');
+    const free = 10 * ms * Math.log(1.5 / (1.5 - 1));
+    for (const [tRef, dt] of [[0, 1e-4], [1 * ms, 1e-4], [2.37 * ms, 1e-4], [5 * ms, 3e-4]] as const) {
+      const net: Network = { duration: 0.2, populations: [{ kind: 'model', name: 'd', size: 1, model: m, params: { t_ref: tRef }, initial: {} }], projections: [],
+        trials: [{ inputs: {} }], loss: { kind: 'spike-time', population: 'd', targets: [0.01] } };
+      const run = gridForward(net, { dt });
+      expect(run.errors).toEqual([]);
+      const t = run.trials[0]!.spikes.d!.map(([s]) => s);
+      expect(Math.abs(t[0]! - free)).toBeLessThan(1e-12);
+      const isi = t.slice(1).map((x, k) => x - t[k]!);
+      expect(isi.length).toBeGreaterThan(5);
+      // the map is the exact flow and crossings are located to rounding: only rounding is left
+      for (const d of isi) expect(Math.abs(d - (tRef + free))).toBeLessThan(1e-12);
+      expect(Math.abs(1 / isi[isi.length - 1]! - 1 / (tRef + free)) * (tRef + free)).toBeLessThan(1e-9);
+    }
+  });
+});
+
+describe('what still refuses a quiet period', () => {
+  test('e-prop and generated code say why', async () => {
+    const { planKernels } = await import('../server/src/codegen/kernelPlan');
+    const m = modelNeuron(readFileSync(join(ROOT, 'samples', 'refractory_lif.saltus'), 'utf8'), 'RefractoryLif');
+    const p = planKernels(m, 'x', 1e-4);
+    expect(p.errors.join('\n')).toMatch(/quiet period.*generated code does not run quiet periods yet/);
+  });
+});
