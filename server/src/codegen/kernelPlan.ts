@@ -18,6 +18,7 @@ import { type Kernel, modelKernels } from './kernels';
 import { type Renaming, renameAll } from './names';
 import { HASH_PLACEHOLDER } from './hash';
 import { derivationFor } from '../adjoint/cache';
+import { quietMode } from '../model/quiet';
 
 export interface PlanQuantity {
   name: string;
@@ -43,6 +44,8 @@ export interface KernelPlan {
   kernels: Kernel[];
   /** The rate of the sub-step rule (1/s; 0 for an exact map). */
   rate: number;
+  /** The same for the quiet mode's map (a model with `quiet for`; its own sub-steps). */
+  quietRate?: number;
   /** The map's derivatives read the segment-start state (the backward pass keeps grid checkpoints). */
   stateDependent: boolean;
   /** The dt the analysis ran at, when there is one (quoted in headers only; code takes dt at run time). */
@@ -79,14 +82,12 @@ export function planKernels(neuron: ResolvedNeuron, prefix: string, dtSI: number
     // a guard the flow never moves (a spike counter) runs in the accurate simulator and on the
     // grid; the generated runtimes are not checked on it yet, so they refuse it with the reason
     if (adjoint.spike?.byJumpsOnly) errors.push(`${neuron.name}: its guard's states have no flow and change only by jumps (it fires only by jumps, a spike counter): generated code does not run such a guard yet (the accurate cross-check does: saltus crosscheck)`);
-    // a quiet period runs on the grid (grid/: a per-neuron countdown, its end located inside a
-    // step); the generated runtimes do not run it yet, so they refuse it with the reason
-    if (neuron.quiet) errors.push(`${neuron.name} has a quiet period ('quiet for'): generated code does not run quiet periods yet (the grid semantics and the accurate cross-check do: saltus crosscheck)`);
     const grid = gridDerivationFor(neuron);
     errors.push(...grid.problems.map((p) => `${neuron.name}: ${p}`));
     if (errors.length) return { errors, renamed };
     const plan: KernelPlan = {
       neuron, prefix, states, params, ...(weight ? { weight } : {}), grid, kernels: modelKernels(grid), rate: substepRate(neuron),
+      ...(neuron.quiet ? { quietRate: substepRate(quietMode(neuron)) } : {}),
       stateDependent: grid.segmentStates.length > 0,
       ...(dtSI !== undefined && dtSI > 0 && Number.isFinite(dtSI) ? { dtSI } : {}), notes: [],
     };
@@ -189,4 +190,12 @@ export function kernelNamer(plan: KernelPlan, k: Kernel, vector: (kind: 'lam' | 
     return unknown(n);
   };
   return { locals, used, name };
+}
+
+/** A target whose runtime does not run quiet periods yet refuses a model with one, with the
+ *  reason (the grid semantics, the NumPy and PyTorch targets and the accurate cross-check run them). */
+export function refuseQuiet(plans: readonly KernelPlan[], errors: string[], target: string): void {
+  for (const p of plans) {
+    if (p.grid.quiet) errors.push(`${p.neuron.name} has a quiet period ('quiet for'): the ${target} target's generated code does not run quiet periods yet (the NumPy and PyTorch targets and the accurate cross-check do)`);
+  }
 }

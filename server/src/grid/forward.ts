@@ -40,6 +40,7 @@ import { type Kernels, compileKernels, crossed, jumpCrossed, load, valuesFor } f
 import { type ModelPopulation, type Network, initialVector, paramVector, validateNetwork } from './network';
 import { SegmentMap } from './segment';
 import { substepsFor } from '../step/substeps';
+import { quietMode } from '../model/quiet';
 
 export const GAUSS_NODES = [0.5 - Math.sqrt(15) / 10, 0.5, 0.5 + Math.sqrt(15) / 10] as const;
 export const GAUSS_WEIGHTS = [5 / 18, 8 / 18, 5 / 18] as const;
@@ -116,6 +117,8 @@ export interface GridRun {
   steps: number;
   /** Sub-steps of the map per model population. */
   substeps: Record<string, number>;
+  /** Sub-steps of the quiet mode's map per model population with a quiet period (its own rate). */
+  quietSubsteps: Record<string, number>;
   trials: TrialRun[];
   loss: number;
 }
@@ -129,7 +132,7 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   const errors = validateNetwork(net);
   const dt = opts.dt;
   if (!(dt > 0) || !Number.isFinite(dt)) errors.push(`dt: must be a positive number of seconds; got ${dt}`);
-  const out: GridRun = { errors, network: net, dt, steps: 0, substeps: {}, trials: [], loss: NaN };
+  const out: GridRun = { errors, network: net, dt, steps: 0, substeps: {}, quietSubsteps: {}, trials: [], loss: NaN };
   if (errors.length) return out;
   const kernels = new Map<string, Kernels>();
   for (const p of net.populations) {
@@ -140,10 +143,14 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   }
   if (errors.length) return out;
   out.steps = stepCount(net.duration, dt);
-  for (const p of net.populations) if (p.kind === 'model') out.substeps[p.name] = opts.substeps?.[p.name] ?? substepsFor(p.model, dt);
+  for (const p of net.populations) {
+    if (p.kind !== 'model') continue;
+    out.substeps[p.name] = opts.substeps?.[p.name] ?? substepsFor(p.model, dt);
+    if (p.model.quiet) out.quietSubsteps[p.name] = opts.substeps?.[p.name] ?? substepsFor(quietMode(p.model), dt);
+  }
   let total = 0;
   for (let b = 0; b < net.trials.length; b++) {
-    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000, out.substeps);
+    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000, out.substeps, out.quietSubsteps);
     if ('error' in r) { errors.push(`trial ${b}: ${r.error}`); return out; }
     out.trials.push(r);
     total += r.loss;
@@ -209,7 +216,7 @@ interface Live {
 }
 
 function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: number, steps: number, maxSpikes: number,
-  substeps: Readonly<Record<string, number>>): TrialRun | { error: string } {
+  substeps: Readonly<Record<string, number>>, quietSubsteps: Readonly<Record<string, number>>): TrialRun | { error: string } {
   const trial = net.trials[b]!;
   const popIndex = new Map(net.populations.map((p, i) => [p.name, i]));
   const log: LogEvent[] = [];
@@ -236,7 +243,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const quietDuration = k.quiet ? k.quiet.duration(valuesFor(k, params)) : 0;
     const run: PopRun = { index: i, name: p.name, size: p.size, kernels: k, map: new SegmentMap(k, substeps[p.name]!, params), params,
       needsStarts: needsStartStates(k, lossPop, integralLoss), checkpoints: [], final: x, inbound,
-      ...(k.quiet ? { quietMap: new SegmentMap(k.quiet.kernels, substeps[p.name]!, params) } : {}),
+      ...(k.quiet ? { quietMap: new SegmentMap(k.quiet.kernels, quietSubsteps[p.name]!, params) } : {}),
       quietDuration: quietDuration > 0 ? quietDuration : 0, quietEnd: new Float64Array(p.size).fill(Infinity) };
     if (lossPop && loss.kind === 'ce-max') run.gridValues = Array.from({ length: p.size }, () => new Float64Array(steps + 1));
     spikes[p.name] = [];
