@@ -12,7 +12,8 @@
 //   1 / (t_ref + tau ln(RI / (RI - theta))) (Gerstner, Kistler, Naud & Paninski 2014,
 //   Neuronal Dynamics, ch. 1, from memory).
 // Scenario data: the invented pump-sensor pattern of samples/scenarios/refractory_lif.json.
-import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { spawnSync } from 'node:child_process';
+import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, test } from 'vitest';
@@ -258,19 +259,6 @@ describe('closed form: the firing rate of a LIF with a refractory period on the 
   });
 });
 
-describe('what still refuses a quiet period', () => {
-  test('the targets that do not run it yet say why, and write nothing', () => {
-    const text = readFileSync(join(ROOT, 'samples', 'refractory_lif.saltus'), 'utf8');
-    for (const target of ['c', 'cuda'] as const) {
-      const g = generateFiles(analyse(text), { target });
-      expect(g.files).toEqual([]);
-      expect(g.errors.join('\n')).toMatch(/RefractoryLif has a quiet period \('quiet for'\): the (PyTorch|C|CUDA) target's generated code does not run quiet periods yet/);
-    }
-    expect(generateFiles(analyse(text), { target: 'numpy' }).errors).toEqual([]);
-    expect(generateFiles(analyse(text), { target: 'torch' }).errors).toEqual([]);
-  });
-});
-
 // ---- generated code: the NumPy runner (run.py on runtime.py through the NumPy dialect) against the grid ----
 
 /** A network description (the runner's JSON) as a grid network, models from `text`. */
@@ -368,5 +356,75 @@ describe.skipIf(!torch)('PyTorch target with quiet periods (the same runtime thr
     writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
     const r = JSON.parse(runPython(torch!, ['run.py', 'net.json', '--dt', '0.1ms', '--format', 'json', '--device', 'cpu'], dir)) as RunnerReport;
     expect(compareWithGrid('torch run.py', 'quiet network', net, 1e-4, r).spikes).toBeGreaterThan(3);
+  }, 600_000);
+});
+
+// ---- C (gcc -std=c99, strict flags) and the CUDA runner's host path: the C runtime does not
+// run transmission delays yet, so these networks have none ----
+
+/** The quiet network without delays (the C and CUDA runners refuse delay_s so far) and without
+ *  its second sensor -> hid projection (they take one projection per pair). */
+function noDelays(json: NetJson): NetJson {
+  return { ...json, projections: json.projections.filter((_, k) => k !== 2).map(({ delay_s: _d, ...p }) => p) };
+}
+
+const hasGcc = spawnSync('gcc', ['--version']).status === 0;
+
+function runC(name: string, text: string, netJson: unknown, dt: string): RunnerReport {
+  const dir = join(work, `c_${name}`);
+  const g = generateFiles(analyse(text), { target: 'c', network: netJson, source: 'refractory_lif.saltus' });
+  expect(g.errors).toEqual([]);
+  mkdirSync(dir, { recursive: true });
+  for (const f of g.files) writeFileSync(join(dir, f.name), f.content);
+  const sources = readdirSync(dir).filter((f) => f.endsWith('.c'));
+  const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic', ...sources, '-lm', '-o', 'saltus_run'], { cwd: dir, encoding: 'utf8' });
+  if (cc.status !== 0 || cc.stderr) throw new Error(`gcc failed:\n${cc.stderr}`);
+  writeFileSync(join(dir, 'net.json'), JSON.stringify(netJson));
+  const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', dt, '--format', 'json'], { cwd: dir, encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`saltus_run failed (${r.status}):\n${r.stderr}`);
+  return JSON.parse(r.stdout) as RunnerReport;
+}
+
+describe.skipIf(!hasGcc)('C target with quiet periods (float64): the same spikes, loss and gradients as the grid (1e-12)', () => {
+  test('refractory_lif sample scenario at dt = 0.1 ms', () => {
+    const { net } = refractoryScenario();
+    const json = JSON.parse(readFileSync(join(ROOT, 'samples', 'scenarios', 'refractory_lif.json'), 'utf8'));
+    expect(compareWithGrid('C runner', 'refractory_lif', net, 1e-4, runC('sample', SAMPLE_TEXT, json, '0.1ms')).spikes).toBeGreaterThan(3);
+  }, 120_000);
+
+  const cases: [string, string, NetJson][] = [
+    ['recurrence, two trials, state-integral loss on out', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }))],
+    ['a non-linear quiet flow and a two-parameter duration, ce-integral loss on hid', VARIANT_TEXT, noDelays(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }))],
+    ['spike-time loss on hid, t_ref not a multiple of dt', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'spike-time', population: 'hid', targets_s: [0.004, 0.005] }, { t_ref: 2.33e-3 }))],
+    ['a quiet period of 0', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: 0 }))],
+  ];
+  cases.forEach(([label, text, json], k) => {
+    test(label, () => {
+      const net = netFromJson(json, text);
+      const run = gridForward(net, { dt: 1e-4 });
+      expect(run.errors).toEqual([]);
+      if (label !== 'a quiet period of 0') expect(quietEnds(run).length).toBeGreaterThan(2);
+      expect(compareWithGrid('C runner', label, net, 1e-4, runC(`case${k}`, text, json, '0.1ms')).spikes).toBeGreaterThan(3);
+    }, 120_000);
+  });
+});
+
+const hasNvcc = spawnSync('nvcc', ['--version']).status === 0;
+
+describe.skipIf(!hasNvcc)('CUDA target with quiet periods: nvcc -Werror, and the runner\'s host path', () => {
+  test('saltus_run.cu --host (the __host__ __device__ runtime, quiet kernels by model id) agrees with the grid', () => {
+    const json = noDelays(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }));
+    const net = netFromJson(json, VARIANT_TEXT);
+    const dir = join(work, 'cuda');
+    const g = generateFiles(analyse(VARIANT_TEXT), { target: 'cuda', network: json, source: 'refractory_lif.saltus' });
+    expect(g.errors).toEqual([]);
+    mkdirSync(dir, { recursive: true });
+    for (const f of g.files) writeFileSync(join(dir, f.name), f.content);
+    const b = spawnSync('nvcc', ['-O2', '-Werror', 'all-warnings', '-Xcompiler', '-Wall,-Wextra', '-o', 'saltus_run', 'saltus_run.cu'], { cwd: dir, encoding: 'utf8' });
+    expect(b.status, b.stderr).toBe(0);
+    writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
+    const r = spawnSync(join(dir, 'saltus_run'), ['net.json', '--dt', '0.1ms', '--format', 'json', '--host'], { cwd: dir, encoding: 'utf8' });
+    expect(r.status, r.stderr).toBe(0);
+    compareWithGrid('CUDA runner (host)', 'quiet network', net, 1e-4, JSON.parse(r.stdout) as RunnerReport);
   }, 600_000);
 });

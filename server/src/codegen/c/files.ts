@@ -5,12 +5,10 @@
 import type { GeneratedFile, TargetContext } from '../target';
 import { EXPDD_MAX, maxExpddArity, modelFiles, runnerFile, runtimeFiles } from './emit';
 import { anyEprop } from './eprop';
-import { refuseQuiet } from '../kernelPlan';
 
 export function cFiles(ctx: TargetContext, cuda: boolean): GeneratedFile[] {
   const plans = ctx.kernelPlans();
   const f = { cuda, float: !!ctx.options.float };
-  refuseQuiet(plans, ctx.errors, cuda ? 'CUDA' : 'C');
   for (const p of plans) {
     const n = maxExpddArity(p);
     if (n > EXPDD_MAX) ctx.errors.push(`${p.neuron.name}: its step map needs divided differences of exp with ${n} nodes; the C runtime takes at most ${EXPDD_MAX} (a chain of fewer coupled states)`);
