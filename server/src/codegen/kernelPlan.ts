@@ -192,10 +192,3 @@ export function kernelNamer(plan: KernelPlan, k: Kernel, vector: (kind: 'lam' | 
   return { locals, used, name };
 }
 
-/** A target whose runtime does not run quiet periods yet refuses a model with one, with the
- *  reason (the grid semantics, the NumPy and PyTorch targets and the accurate cross-check run them). */
-export function refuseQuiet(plans: readonly KernelPlan[], errors: string[], target: string): void {
-  for (const p of plans) {
-    if (p.grid.quiet) errors.push(`${p.neuron.name} has a quiet period ('quiet for'): the ${target} target's generated code does not run quiet periods yet (the NumPy and PyTorch targets and the accurate cross-check do)`);
-  }
-}
