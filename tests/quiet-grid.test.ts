@@ -229,6 +229,16 @@ describe('a quiet period of 0 is no quiet period', () => {
   });
 });
 
+describe('a negative duration (a scenario may override the file\'s value) stops the run with the reason', () => {
+  test('the grid simulator', () => {
+    const { net } = refractoryScenario();
+    const hid = net.populations.find((p) => p.name === 'hid')!;
+    (hid as { params: Record<string, number> }).params = { t_ref: -1e-3 };
+    const run = gridForward(net, { dt: 1e-4 });
+    expect(run.errors.join('\n')).toMatch(/hid: the quiet period of RefractoryLif lasts -0\.001 s; a duration must not be negative/);
+  });
+});
+
 describe('closed form: the firing rate of a LIF with a refractory period on the grid', () => {
   const DRIVEN = `neuron Driven {
   param tau = 10 [ms]
@@ -407,6 +417,14 @@ describe.skipIf(!hasGcc)('C target with quiet periods (float64): the same spikes
       expect(compareWithGrid('C runner', label, net, 1e-4, runC(`case${k}`, text, json, '0.1ms')).spikes).toBeGreaterThan(3);
     }, 120_000);
   });
+});
+
+describe.skipIf(!hasGcc || !python)('a negative duration stops the generated runners with the reason', () => {
+  test('C and NumPy', () => {
+    const json = noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: -1e-3 }));
+    expect(() => runC('negative', SAMPLE_TEXT, json, '0.1ms')).toThrow(/populations\.hid: the quiet period of RefractoryLif lasts -0\.001 s; a duration must not be negative/);
+    expect(() => runNumpyRunner(python!, join(work, 'negative'), 'refractory_lif', SAMPLE_TEXT, json, '0.1ms')).toThrow(/hid: the quiet period lasts -0\.001 s; a duration must not be negative/);
+  }, 120_000);
 });
 
 const hasNvcc = spawnSync('nvcc', ['--version']).status === 0;

@@ -6,6 +6,8 @@
 // Names: x are the states (values at the start of a segment for F, just before the event for
 // g, h, r), `t` the start time of the segment (F) or the event time (g, h, r), `dt` the
 // segment length, the weight name inside an incoming block.
+// A neuron with a quiet period (`quiet for`) also gets its quiet mode's map pieces and the
+// duration with its derivatives (`quiet`; docs/network-step.md item 7).
 // Invariants: deriveGrid never throws (a model it cannot handle gets `problems` and no
 // pieces); every Sym's free symbols are states, params, t, dt and the weight; results are
 // cached by the model's content hash.

@@ -91,7 +91,8 @@ export interface PopRun {
   final: Float64Array;
   /** Projections into this population. */
   inbound: number[];
-  /** The quiet mode's map (a model with `quiet for`), its duration D (s; 0: none), and the
+  /** The quiet mode's map (a model with `quiet for`), its duration D (s; 0: none; a negative
+   *  or non-finite one stops the run with an error), and the
    *  end of each neuron's quiet period at the end of the run (Infinity: not quiet). */
   quietMap?: SegmentMap;
   quietDuration: number;
@@ -244,7 +245,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const run: PopRun = { index: i, name: p.name, size: p.size, kernels: k, map: new SegmentMap(k, substeps[p.name]!, params), params,
       needsStarts: needsStartStates(k, lossPop, integralLoss), checkpoints: [], final: x, inbound,
       ...(k.quiet ? { quietMap: new SegmentMap(k.quiet.kernels, quietSubsteps[p.name]!, params) } : {}),
-      quietDuration: quietDuration > 0 ? quietDuration : 0, quietEnd: new Float64Array(p.size).fill(Infinity) };
+      quietDuration, quietEnd: new Float64Array(p.size).fill(Infinity) };
     if (lossPop && loss.kind === 'ce-max') run.gridValues = Array.from({ length: p.size }, () => new Float64Array(steps + 1));
     spikes[p.name] = [];
     return { run, pop: p, k, S, x, tau: new Float64Array(p.size), start: new Int32Array(p.size).fill(-1), v: valuesFor(k, params),
