@@ -11,7 +11,11 @@
 // - The firing rate of a LIF under constant drive RI with a refractory period t_ref,
 //   1 / (t_ref + tau ln(RI / (RI - theta))) (Gerstner, Kistler, Naud & Paninski 2014,
 //   Neuronal Dynamics, ch. 1, from memory).
-// Scenario data: the invented pump-sensor pattern of samples/scenarios/refractory_lif.json.
+// - Generated code: the NumPy, PyTorch (run.py's Network module) and C runners and the CUDA
+//   runner's host path give the grid's spikes, loss and gradients to 1e-12 relative (float64);
+//   the PyTorch layer's gradients equal central differences of its own forward.
+// Scenario data: the invented pump-sensor pattern of samples/scenarios/refractory_lif.json and
+// two more invented trials of it.
 import { spawnSync } from 'node:child_process';
 import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -366,6 +370,69 @@ describe.skipIf(!torch)('PyTorch target with quiet periods (the same runtime thr
     writeFileSync(join(dir, 'net.json'), JSON.stringify(json));
     const r = JSON.parse(runPython(torch!, ['run.py', 'net.json', '--dt', '0.1ms', '--format', 'json', '--device', 'cpu'], dir)) as RunnerReport;
     expect(compareWithGrid('torch run.py', 'quiet network', net, 1e-4, r).spikes).toBeGreaterThan(3);
+  }, 600_000);
+
+  // The layer (GridLayerFunction: one population driven by input spike events) with a quiet
+  // period: its backward (weights, tau_m, t_ref, the input spike times) against central
+  // differences of its own forward, through a loss on the readout integral and the first spikes.
+  test('the SpikingLayer with a quiet period: gradients equal central differences of its forward', () => {
+    const dir = join(work, 'torch_layer');
+    const g = generateFiles(analyse(SAMPLE_TEXT), { target: 'torch', model: 'RefractoryLif', source: 'refractory_lif.saltus' });
+    expect(g.errors).toEqual([]);
+    expect(writeGenerated(join(dir, 'gen'), g.files, { force: true }).errors).toEqual([]);
+    const script = `
+import sys, json, torch
+sys.path.insert(0, ${JSON.stringify(dir)})
+import gen
+torch.manual_seed(0)
+layer = gen.RefractoryLifLayer(3, 2, 1e-4, 0.03, readout=("integral", "V"), dtype=torch.float64)
+with torch.no_grad():
+    layer.weight.copy_(torch.tensor([[4.2, 1.5, 3.0], [2.8, 3.6, 1.9]], dtype=torch.float64))
+times = torch.tensor([[0.002, 0.0031, 0.0042, 0.0049, 0.0055, 0.0066, 0.0078, 0.009, 0.0131, 0.0162]], dtype=torch.float64, requires_grad=True)
+index = torch.tensor([[0, 0, 0, 2, 0, 0, 0, 0, 2, 1]])
+c = torch.tensor([[1.3, -0.7]], dtype=torch.float64)
+def loss_of(t):
+    o = layer(t, index)
+    first = torch.where(torch.isfinite(o.first), o.first, torch.zeros_like(o.first))
+    return (o.readout * c).sum() + 40.0 * first.sum() + 25.0 * torch.where(torch.isfinite(o.times), o.times, torch.zeros_like(o.times)).sum()
+loss = loss_of(times)
+loss.backward()
+rows = []
+def fd(get, set_, h):
+    v0 = get()
+    with torch.no_grad():
+        set_(v0 + h); lp = float(loss_of(times.detach()))
+        set_(v0 - h); lm = float(loss_of(times.detach()))
+        set_(v0)
+    return (lp - lm) / (2 * h)
+for i in range(2):
+    for j in range(3):
+        def set_w(v, i=i, j=j): layer.weight[i, j] = v
+        rows.append(["w[%d][%d]" % (i, j), float(layer.weight.grad[i, j]), fd(lambda i=i, j=j: float(layer.weight[i, j]), set_w, 1e-6)])
+for name in ["tau_m", "t_ref"]:
+    p = layer.model_params[name]
+    def set_p(v, p=p): p.fill_(v)
+    rows.append([name, float(p.grad), fd(lambda p=p: float(p), set_p, 1e-6 * float(p))])
+base = times.detach().clone()
+for k in [0, 3, 8]:
+    v0 = float(base[0, k])
+    h = 1e-9
+    with torch.no_grad():
+        b1 = base.clone(); b1[0, k] = v0 + h; lp = float(loss_of(b1))
+        b2 = base.clone(); b2[0, k] = v0 - h; lm = float(loss_of(b2))
+    rows.append(["t_in[%d]" % k, float(times.grad[0, k]), (lp - lm) / (2 * h)])
+print(json.dumps(rows))
+`;
+    const rows = JSON.parse(runPython(torch!, ['-'], dir, script)) as [string, number, number][];
+    let worst = 0;
+    for (const [label, grad, fd] of rows) {
+      const gap = Math.abs(grad - fd) / Math.max(Math.abs(fd), Math.abs(grad), 1e-12);
+      if (gap > 1e-5) console.log(`  ${label}: layer ${grad}, central difference ${fd}`);
+      worst = Math.max(worst, gap);
+    }
+    console.log(`torch SpikingLayer with a quiet period: ${rows.length} rows, worst relative gap to central differences ${worst.toExponential(2)}`);
+    expect(Math.abs(rows.find((r) => r[0] === 't_ref')![1])).toBeGreaterThan(0);
+    expect(worst).toBeLessThan(1e-5);
   }, 600_000);
 });
 
