@@ -18,6 +18,7 @@ import { type Kernel, modelKernels } from './kernels';
 import { type Renaming, renameAll } from './names';
 import { HASH_PLACEHOLDER } from './hash';
 import { derivationFor } from '../adjoint/cache';
+import { quietMode } from '../model/quiet';
 
 export interface PlanQuantity {
   name: string;
@@ -43,6 +44,8 @@ export interface KernelPlan {
   kernels: Kernel[];
   /** The rate of the sub-step rule (1/s; 0 for an exact map). */
   rate: number;
+  /** The same for the quiet mode's map (a model with `quiet for`; its own sub-steps). */
+  quietRate?: number;
   /** The map's derivatives read the segment-start state (the backward pass keeps grid checkpoints). */
   stateDependent: boolean;
   /** The dt the analysis ran at, when there is one (quoted in headers only; code takes dt at run time). */
@@ -83,6 +86,7 @@ export function planKernels(neuron: ResolvedNeuron, prefix: string, dtSI: number
     if (errors.length) return { errors, renamed };
     const plan: KernelPlan = {
       neuron, prefix, states, params, ...(weight ? { weight } : {}), grid, kernels: modelKernels(grid), rate: substepRate(neuron),
+      ...(neuron.quiet ? { quietRate: substepRate(quietMode(neuron)) } : {}),
       stateDependent: grid.segmentStates.length > 0,
       ...(dtSI !== undefined && dtSI > 0 && Number.isFinite(dtSI) ? { dtSI } : {}), notes: [],
     };
@@ -186,3 +190,4 @@ export function kernelNamer(plan: KernelPlan, k: Kernel, vector: (kind: 'lam' | 
   };
   return { locals, used, name };
 }
+

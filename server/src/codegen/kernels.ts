@@ -12,7 +12,7 @@ import { type Sym, add, freeSymbols, mul, size, sym, substitute } from '../symbo
 import { key, normalise } from '../symbolic/normalise';
 import { type Assignment, needed } from '../symbolic/program';
 import { STEP, TIME } from '../base/names';
-import type { GridDerivation, JumpPieces } from '../grid/derive';
+import type { GridDerivation, JumpPieces, MapPieces } from '../grid/derive';
 
 export type KernelArg = 'x' | 'p' | 't' | 'dt' | 'w' | 'lam' | 'dx';
 
@@ -61,19 +61,29 @@ export function modelKernels(d: GridDerivation): Kernel[] {
     const locals = renA(needed(pool, outputs.map((o) => o.expr)));
     return { name, doc, args, locals, outputs: outs };
   };
-  const A = d.map.assigns;
-  const m = d.map;
-  const col = (j: number): Sym[] => m.Fx.map((row) => row[j]!);
-  const out: Kernel[] = [
-    kernel('map_step', ['One step of the step map: x(t + dt) = F(x(t), p, t, dt).'], ['x', 'p', 't', 'dt'], vec('out', m.F), A),
-    kernel('map_jvp', ['The step map, its directional derivative dF/dx . dx, and dF/d dt, dF/dt (for locating crossings inside sub-stepped segments).'],
-      ['x', 'p', 't', 'dt', 'dx'], [...vec('out', m.F), ...vec('dir', m.F.map((_, i) => dot(m.Fx[i]!, dx))), ...vec('fh', m.Fh), ...vec('ft', m.Ft)], A),
-    kernel('map_vjp', ['The step map\'s vector-Jacobian product for lam at the end: (dF/dx)^T lam, lam . dF/d dt, lam . dF/dt, lam . dF/dp for each gradient parameter.'],
-      ['x', 'p', 't', 'dt', 'lam'], [...vec('lx', Array.from({ length: S }, (_, j) => dot(col(j), lam))),
-        { name: 'lh', expr: dot(m.Fh, lam) }, { name: 'lt', expr: dot(m.Ft, lam) },
-        ...vec('lp', Array.from({ length: G }, (_, q) => dot(m.Fp.map((row) => row[q]!), lam)))], A),
-    kernel('flow', ['The flow f(x, p, t) (dF/d dt = f(F) for an exact map).'], ['x', 'p', 't'], vec('out', m.flow)),
-  ];
+  /** The step map's kernels of one mode: `map_*` and `flow` (normal), `quiet_map_*` and `quiet_flow` (the quiet mode). */
+  const mapKernels = (pre: string, m: MapPieces, what: string): Kernel[] => {
+    const A = m.assigns;
+    const col = (j: number): Sym[] => m.Fx.map((row) => row[j]!);
+    return [
+      kernel(`${pre}map_step`, [`One step of the step map${what}: x(t + dt) = F(x(t), p, t, dt).`], ['x', 'p', 't', 'dt'], vec('out', m.F), A),
+      kernel(`${pre}map_jvp`, [`The step map${what}, its directional derivative dF/dx . dx, and dF/d dt, dF/dt (for locating crossings inside sub-stepped segments).`],
+        ['x', 'p', 't', 'dt', 'dx'], [...vec('out', m.F), ...vec('dir', m.F.map((_, i) => dot(m.Fx[i]!, dx))), ...vec('fh', m.Fh), ...vec('ft', m.Ft)], A),
+      kernel(`${pre}map_vjp`, [`The step map${what}'s vector-Jacobian product for lam at the end: (dF/dx)^T lam, lam . dF/d dt, lam . dF/dt, lam . dF/dp for each gradient parameter.`],
+        ['x', 'p', 't', 'dt', 'lam'], [...vec('lx', Array.from({ length: S }, (_, j) => dot(col(j), lam))),
+          { name: 'lh', expr: dot(m.Fh, lam) }, { name: 'lt', expr: dot(m.Ft, lam) },
+          ...vec('lp', Array.from({ length: G }, (_, q) => dot(m.Fp.map((row) => row[q]!), lam)))], A),
+      kernel(`${pre}flow`, [`The flow f(x, p, t)${what} (dF/d dt = f(F) for an exact map).`], ['x', 'p', 't'], vec('out', m.flow)),
+    ];
+  };
+  const out: Kernel[] = mapKernels('', d.map, '');
+  // A quiet period (`quiet for`): its mode's map and flow, and its duration with dD/dp (the
+  // end of the period is a transition at t_spike + D; docs/network-step.md "Quiet periods").
+  if (d.quiet) {
+    out.push(...mapKernels('quiet_', d.quiet.map, ' in the quiet period (its flows replace the listed ones; no guard)'));
+    out.push(kernel('quiet_duration', ['The duration D of the quiet period after each spike (parameters only), and dD/dp for each gradient parameter.'], ['p'],
+      [{ name: 'd', expr: d.quiet.duration }, ...vec('dp', d.quiet.durationP)]));
+  }
   if (d.guard) {
     const g = d.guard;
     out.push(kernel('guard', ['The guard g(x, p, t); a spike where it crosses 0 in the declared direction.'], ['x', 'p', 't'], [{ name: 'g', expr: g.g }]));

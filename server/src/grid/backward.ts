@@ -18,6 +18,12 @@
 // For an exact map (dG/dh = f(G), no explicit time) the segment starts are not needed:
 // dG/dh at an event's end is f(x-) of the logged state, and at an event's start
 // lambda(b-) . dG/dh = lambda(a+) . f(x+) (forward.ts `needsStarts`).
+// Quiet periods: each neuron's mode is walked backwards from the run's end (a 'quiet-end'
+// event: quiet before it; a spike that started one: normal before it), each segment's VJP and
+// time terms taken with its mode's map. The end at e = s + D is a transition with no jump and
+// guard slope 1 (docs/adjoint.md, "Transitions and quiet periods"): lambda passes unchanged;
+// its time sensitivity T_e (the quiet segment's end term, the normal segment's start term) is
+// -phi, handed to the spike that started the period (de/ds = 1), and dL/dp += T_e dD/dp.
 // Invariants: never throws for a successful forward run; reads only the run.
 import { GAUSS_NODES, GAUSS_WEIGHTS, type GridRun, type LogEvent, type PopRun, type TrialRun } from './forward';
 import { load, valuesFor } from './kernels';
@@ -55,7 +61,11 @@ export function gridBackward(run: GridRun, opts: BackwardOptions = {}): GridGrad
   return { loss: run.loss, weights, delays, params, eventTimes };
 }
 
-interface Back { run: PopRun; S: number; lam: Float64Array; cur: Float64Array; grad: Float64Array; v: Float64Array; argmax?: Int32Array }
+interface Back { run: PopRun; S: number; lam: Float64Array; cur: Float64Array; grad: Float64Array; v: Float64Array; argmax?: Int32Array;
+  /** Per neuron: in its quiet mode over the segment being walked. */
+  quiet: Uint8Array;
+  /** A values vector for the quiet kernels. */
+  vq?: Float64Array }
 
 function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: number[][][], gD: number[][][],
   gP: Record<string, Record<string, number>>, eventTimes: EventTime[], opts: BackwardOptions): void {
@@ -82,7 +92,8 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
     if (!r) return null;
     const S = r.kernels.S;
     const B: Back = { run: r, S, lam: new Float64Array(r.size * S), cur: new Float64Array(r.size), grad: new Float64Array(r.kernels.gradIndex.length),
-      v: valuesFor(r.kernels, r.params) };
+      v: valuesFor(r.kernels, r.params), quiet: Uint8Array.from(r.quietEnd, (e) => (e < Infinity ? 1 : 0)),
+      ...(r.kernels.quiet ? { vq: valuesFor(r.kernels.quiet.kernels, r.params) } : {}) };
     if (r.gridValues) B.argmax = Int32Array.from(r.gridValues.map((g) => g.indexOf(Math.max(...g))));
     return B;
   });
@@ -94,6 +105,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
   const postState = (B: Back, n: number, ref: number): Float64Array => {
     const E = log[ref]!, k = B.run.kernels, S = B.S, v = B.v;
     const out = new Float64Array(S);
+    if (E.kind === 'quiet-end') return E.xPre.slice();
     if (E.kind === 'spike') {
       load(k, v, E.xPre, 0, E.time);
       for (let j = 0; j < S; j++) out[j] = k.spike!.J[j]!(v);
@@ -108,18 +120,21 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
   /** Segment start of neuron n: the grid point of `step` (ref -1) or the logged event ref. */
   const startOf = (B: Back, n: number, ref: number, step: number): { a: number; xa: Float64Array } =>
     (ref < 0 ? { a: step * dt, xa: B.run.checkpoints[step]!.slice(n * B.S, n * B.S + B.S) } : { a: log[ref]!.time, xa: postState(B, n, ref) });
-  const flowDot = (B: Back, x: ArrayLike<number>, t: number, lam: ArrayLike<number>): number => {
-    const k = B.run.kernels;
-    load(k, B.v, x, 0, t);
+  /** The kernels, values vector and segment map of neuron n's mode over the segment being walked. */
+  const modeOf = (B: Back, n: number) => (B.quiet[n] ? { k: B.run.kernels.quiet!.kernels, v: B.vq!, map: B.run.quietMap! }
+    : { k: B.run.kernels, v: B.v, map: B.run.map });
+  const flowDot = (B: Back, n: number, x: ArrayLike<number>, t: number, lam: ArrayLike<number>): number => {
+    const { k, v } = modeOf(B, n);
+    load(k, v, x, 0, t);
     let s = 0;
-    for (let i = 0; i < B.S; i++) s += lam[i]! * k.flow[i]!(B.v);
+    for (let i = 0; i < B.S; i++) s += lam[i]! * k.flow[i]!(v);
     return s;
   };
   const lossHere = (B: Back): boolean => integral && B.run.index === lossPopIndex;
 
   /** lambda(b-) -> lambda(a+) across neuron n's segment [a, cur] started at `ref` in `step`. */
   const segmentBack = (B: Back, n: number, a: number, ref: number, step: number): void => {
-    const S = B.S, o = n * S, h = B.cur[n]! - a, map = B.run.map;
+    const S = B.S, o = n * S, h = B.cur[n]! - a, map = modeOf(B, n).map;
     const lamEnd = B.lam.slice(o, o + S);
     const lamStart = new Float64Array(S);
     let startT = 0;
@@ -143,7 +158,7 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
     } else {
       // exact map whose derivatives read no state: dG/dx, dG/dp at any state; dG/dh = f(G)
       map.vjp(new Float64Array(S), a, h, lamEnd, lamStart, B.grad);
-      if (ref >= 0) startT = -flowDot(B, postState(B, n, ref), a, lamStart);
+      if (ref >= 0) startT = -flowDot(B, n, postState(B, n, ref), a, lamStart);
     }
     if (ref >= 0) addT(ref, n, startT);
     B.lam.set(lamStart, o);
@@ -152,11 +167,11 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
 
   /** dL/d(end time) of neuron n's segment ending at logged event e (started at ref) for lambda(e-), and dG/dh there. */
   const endTerm = (B: Back, n: number, e: LogEvent, ref: number, lamEnd: ArrayLike<number>, rate: Float64Array | null): number => {
-    const S = B.S, map = B.run.map;
+    const S = B.S, mode = modeOf(B, n), map = mode.map;
     if (!B.run.needsStarts) {
-      const xPre = e.kind === 'spike' ? e.xPre : e.xPre.subarray(n * S, n * S + S);
-      if (rate) { load(B.run.kernels, B.v, xPre, 0, e.time); for (let i = 0; i < S; i++) rate[i] = B.run.kernels.flow[i]!(B.v); }
-      return flowDot(B, xPre, e.time, lamEnd);
+      const xPre = e.kind === 'arrival' ? e.xPre.subarray(n * S, n * S + S) : e.xPre;
+      if (rate) { load(mode.k, mode.v, xPre, 0, e.time); for (let i = 0; i < S; i++) rate[i] = mode.k.flow[i]!(mode.v); }
+      return flowDot(B, n, xPre, e.time, lamEnd);
     }
     const { a, xa } = startOf(B, n, ref, e.step);
     const h = e.time - a;
@@ -214,9 +229,20 @@ function backwardTrial(net: Network, run: GridRun, tr: TrialRun, b: number, gW: 
         const per = Tn.get(e);
         if (targets && per) for (const n of targets) gD[E.projection]![n]![E.source]! += per[n]!;
         eventTimes.push({ trial: b, kind: 'arrival', time: E.time, pop: pr.from, index: E.source, dLdt: T[e]! });
+      } else if (E.kind === 'quiet-end') {
+        // the end of a quiet period: no jump, lambda unchanged; its time moves with its spike
+        const n = E.neuron, o = n * S;
+        segmentBack(B, n, E.time, e, step);
+        B.quiet[n] = 1;
+        T[e]! += endTerm(B, n, E, E.start, B.lam.subarray(o, o + S), null);
+        T[E.cause]! += T[e]!;
+        const Q = k.quiet!;
+        for (let q = 0; q < B.grad.length; q++) B.grad[q]! += T[e]! * Q.durationP[q]!(v);
       } else {
         const n = E.neuron, o = n * S;
         segmentBack(B, n, E.time, e, step);
+        // the segment before a spike that started a quiet period is in the normal mode
+        if (E.quiet) B.quiet[n] = 0;
         load(k, v, E.xPre, 0, E.time);
         const lam = B.lam.slice(o, o + S);
         const mu = new Float64Array(S);

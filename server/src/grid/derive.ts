@@ -6,6 +6,8 @@
 // Names: x are the states (values at the start of a segment for F, just before the event for
 // g, h, r), `t` the start time of the segment (F) or the event time (g, h, r), `dt` the
 // segment length, the weight name inside an incoming block.
+// A neuron with a quiet period (`quiet for`) also gets its quiet mode's map pieces and the
+// duration with its derivatives (`quiet`; docs/network-step.md item 7).
 // Invariants: deriveGrid never throws (a model it cannot handle gets `problems` and no
 // pieces); every Sym's free symbols are states, params, t, dt and the weight; results are
 // cached by the model's content hash.
@@ -18,6 +20,7 @@ import { derivative } from '../symbolic/derivative';
 import { normalise } from '../symbolic/normalise';
 import { STEP, TIME } from '../base/names';
 import { stepMapFor } from '../step/map';
+import { quietMode } from '../model/quiet';
 import type { Direction } from '../syntax/ast';
 
 export interface MapPieces {
@@ -58,6 +61,20 @@ export interface JumpPieces {
 
 export interface IncomingPieces extends JumpPieces { weight: string; Jw: Sym[] }
 
+/** The quiet mode (`quiet for DURATION { FLOWS }`): its own step map (the quiet flows replace
+ *  the listed normal ones), and the duration with its derivatives. The incoming jumps are the
+ *  normal ones; there is no guard while quiet. */
+export interface QuietPieces {
+  exact: boolean;
+  mapReason: string;
+  map: MapPieces;
+  /** States whose segment-start values the quiet map's derivatives read. */
+  segmentStates: string[];
+  /** DURATION (parameters only) and dDURATION/d gradParams[k]. */
+  duration: Sym;
+  durationP: Sym[];
+}
+
 export interface GridDerivation {
   name: string;
   hash: string;
@@ -74,6 +91,8 @@ export interface GridDerivation {
   incoming: IncomingPieces[];
   /** States whose values at the start of every segment the backward pass needs (F's derivatives depend on them). */
   segmentStates: string[];
+  /** The quiet mode, for a neuron with a quiet period (null otherwise). */
+  quiet: QuietPieces | null;
   problems: string[];
 }
 
@@ -97,22 +116,24 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
   const gradParams = neuron.params.filter((p) => p.trainable).map((p) => p.name);
   const empty: MapPieces = { assigns: [], F: [], Fx: [], Fh: [], Ft: [], Fp: [], flow: [] };
   const base: GridDerivation = { name: neuron.name, hash: modelHash(neuron), states, params, gradParams, exact: false, mapReason: '',
-    map: empty, guard: null, spike: null, incoming: [], segmentStates: [], problems: [] };
+    map: empty, guard: null, spike: null, incoming: [], segmentStates: [], quiet: null, problems: [] };
   if (!neuron.wellFormed) return { ...base, problems: [`${neuron.name} has errors; fix them first (saltus check)`] };
-  // Quiet periods run in the accurate simulator (simulate/) and the derived adjoint; the grid
-  // semantics (a per-neuron countdown) and so every generated target do not have them yet:
-  // refused with the reason rather than run as if the block were absent.
-  if (neuron.quiet) return { ...base, problems: [`${neuron.name} has a quiet period ('quiet for'): the grid semantics and generated code do not run quiet periods yet (the accurate cross-check does: saltus crosscheck)`] };
   try {
-    const m = stepMapFor(neuron);
-    if (m.problems.length) return { ...base, problems: m.problems };
+    const normal = mapPiecesFor(neuron, states, gradParams);
+    if ('problems' in normal) return { ...base, problems: normal.problems };
     const d = (s: Sym, x: string): Sym => derivative(s, x);
-    const F = m.next;
-    const md = mapDerivatives(m, gradParams);
-    const map: MapPieces = {
-      assigns: md.assigns, F, Fx: md.Fx, Fh: md.Fh, Ft: md.Ft, Fp: md.Fp,
-      flow: states.map((x) => normalise(neuron.flows.get(x) ?? { k: 'num', v: 0 })),
-    };
+    const { map } = normal;
+    const F = map.F;
+    // A quiet period (docs/network-step.md "Quiet periods"): a second mode with its own map;
+    // its end is a time-triggered transition at t_spike + DURATION.
+    let quiet: QuietPieces | null = null;
+    if (neuron.quiet) {
+      const q = mapPiecesFor(quietMode(neuron), states, gradParams);
+      if ('problems' in q) return { ...base, problems: q.problems.map((m) => `in the quiet period: ${m}`) };
+      const duration = normalise(neuron.quiet.duration);
+      quiet = { exact: q.exact, mapReason: q.reason, map: q.map, segmentStates: q.segmentStates, duration,
+        durationP: gradParams.map((p) => d(duration, p)) };
+    }
     const jumpPieces = (jumps: ReadonlyMap<string, Sym>, weight?: string): JumpPieces => {
       const J = states.map((x) => normalise(jumps.get(x) ?? sym(x)));
       return {
@@ -130,19 +151,38 @@ export function deriveGrid(neuron: ResolvedNeuron): GridDerivation {
       spike = jumpPieces(neuron.fire.jumps);
     }
     const incoming: IncomingPieces[] = neuron.receptors.map((r) => ({ weight: r.weight, ...jumpPieces(r.jumps, r.weight) }) as IncomingPieces);
-    // the backward pass evaluates Fx and Fp at each segment's start state, and Fh, Ft there
-    // too unless the map is exact (then dF/d dt = f at the recorded event states, dF/dt = 0)
-    const needs = [...map.Fx.flat(), ...map.Fp.flat(), ...(m.exact ? [] : [...map.Fh, ...map.Ft])];
-    const segmentStates = states.filter((x) => needs.some((s) => dependsThrough(map.assigns, s, x)));
     const problems: string[] = [];
     const known = new Set([...states, ...params, TIME, STEP, ...incoming.map((i) => i.weight), ...map.assigns.map((a) => a.name)]);
+    const knownQ = new Set([...known, ...(quiet?.map.assigns.map((a) => a.name) ?? [])]);
     for (const s of [...F, g0(guard), ...(spike?.J ?? []), ...incoming.flatMap((i) => i.J)]) {
       for (const x of freeSymbols(s)) if (!known.has(x)) problems.push(`'${x}' has no value`);
     }
-    return { ...base, exact: m.exact, mapReason: m.reason, map, guard, spike, incoming, segmentStates, problems: [...new Set(problems)] };
+    for (const s of [...(quiet?.map.F ?? []), ...(quiet ? [quiet.duration] : [])]) {
+      for (const x of freeSymbols(s)) if (!knownQ.has(x)) problems.push(`'${x}' has no value (quiet period)`);
+    }
+    return { ...base, exact: normal.exact, mapReason: normal.reason, map, guard, spike, incoming, segmentStates: normal.segmentStates, quiet,
+      problems: [...new Set(problems)] };
   } catch (e) {
     return { ...base, problems: [`internal error while deriving the grid gradient of ${neuron.name}: ${(e as Error).message}`] };
   }
+}
+
+/** The step map of one mode of `neuron` with its derivatives, and the states whose
+ *  segment-start values the backward pass reads. */
+function mapPiecesFor(neuron: ResolvedNeuron, states: string[], gradParams: string[]):
+  { map: MapPieces; exact: boolean; reason: string; segmentStates: string[] } | { problems: string[] } {
+  const m = stepMapFor(neuron);
+  if (m.problems.length) return { problems: m.problems };
+  const md = mapDerivatives(m, gradParams);
+  const map: MapPieces = {
+    assigns: md.assigns, F: m.next, Fx: md.Fx, Fh: md.Fh, Ft: md.Ft, Fp: md.Fp,
+    flow: states.map((x) => normalise(neuron.flows.get(x) ?? { k: 'num', v: 0 })),
+  };
+  // the backward pass evaluates Fx and Fp at each segment's start state, and Fh, Ft there
+  // too unless the map is exact (then dF/d dt = f at the recorded event states, dF/dt = 0)
+  const needs = [...map.Fx.flat(), ...map.Fp.flat(), ...(m.exact ? [] : [...map.Fh, ...map.Ft])];
+  const segmentStates = states.filter((x) => needs.some((s) => dependsThrough(map.assigns, s, x)));
+  return { map, exact: m.exact, reason: m.reason, segmentStates };
 }
 
 const g0 = (g: GuardPieces | null): Sym => g?.g ?? { k: 'num', v: 0 };

@@ -26,12 +26,21 @@
 // share one arrival, `targets`); an arrival at or after the duration is dropped; an arrival
 // with targets advances and jumps those neurons only. A projection without delays keeps one
 // arrival at s for the whole receiving population.
+// Quiet periods (`quiet for D`, docs/network-step.md "Quiet periods"): a spike of a neuron
+// whose D > 0 puts it in its quiet mode until s + D (its countdown): its segments use the
+// quiet map, its guard is not tested (no crossing, no spike fired by a jump); arrivals still
+// jump it. The end is an event of its own ('quiet-end', no jump) located inside its step, so
+// the step is split there: the quiet map up to it, the normal map after. An end at the instant
+// of arrivals comes first; an end at or after the duration is not reached; a guard on the fired
+// side at the end does not fire (only its next crossing does), as in the accurate simulator.
+// D = 0 is no quiet period: the run is the one without the block.
 // Invariants: never throws for a validated network (numeric trouble becomes `errors`).
 import { gridDerivationFor } from './derive';
 import { type Kernels, compileKernels, crossed, jumpCrossed, load, valuesFor } from './kernels';
 import { type ModelPopulation, type Network, initialVector, paramVector, validateNetwork } from './network';
 import { SegmentMap } from './segment';
 import { substepsFor } from '../step/substeps';
+import { quietMode } from '../model/quiet';
 
 export const GAUSS_NODES = [0.5 - Math.sqrt(15) / 10, 0.5, 0.5 + Math.sqrt(15) / 10] as const;
 export const GAUSS_WEIGHTS = [5 / 18, 8 / 18, 5 / 18] as const;
@@ -59,7 +68,12 @@ export type LogEvent =
   | { kind: 'spike'; step: number; time: number; pop: number; neuron: number; xPre: Float64Array; first: boolean; start: StartRef;
       /** A spike fired by a jump: the index of the arrival whose instant it shares (-1: the
        *  initial state at t = 0); its time moves with that arrival, not with a crossing. */
-      byJump?: number };
+      byJump?: number;
+      /** The spike started a quiet period (D > 0). */
+      quiet?: boolean }
+  | { kind: 'quiet-end'; step: number; time: number; pop: number; neuron: number; xPre: Float64Array; start: StartRef;
+      /** The spike that started the quiet period (its time moves this end). */
+      cause: number };
 
 export interface PopRun {
   index: number;
@@ -77,6 +91,12 @@ export interface PopRun {
   final: Float64Array;
   /** Projections into this population. */
   inbound: number[];
+  /** The quiet mode's map (a model with `quiet for`), its duration D (s; 0: none; a negative
+   *  or non-finite one stops the run with an error), and the
+   *  end of each neuron's quiet period at the end of the run (Infinity: not quiet). */
+  quietMap?: SegmentMap;
+  quietDuration: number;
+  quietEnd: Float64Array;
 }
 
 export interface TrialRun {
@@ -98,6 +118,8 @@ export interface GridRun {
   steps: number;
   /** Sub-steps of the map per model population. */
   substeps: Record<string, number>;
+  /** Sub-steps of the quiet mode's map per model population with a quiet period (its own rate). */
+  quietSubsteps: Record<string, number>;
   trials: TrialRun[];
   loss: number;
 }
@@ -111,7 +133,7 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   const errors = validateNetwork(net);
   const dt = opts.dt;
   if (!(dt > 0) || !Number.isFinite(dt)) errors.push(`dt: must be a positive number of seconds; got ${dt}`);
-  const out: GridRun = { errors, network: net, dt, steps: 0, substeps: {}, trials: [], loss: NaN };
+  const out: GridRun = { errors, network: net, dt, steps: 0, substeps: {}, quietSubsteps: {}, trials: [], loss: NaN };
   if (errors.length) return out;
   const kernels = new Map<string, Kernels>();
   for (const p of net.populations) {
@@ -122,10 +144,14 @@ export function gridForward(net: Network, opts: GridOptions): GridRun {
   }
   if (errors.length) return out;
   out.steps = stepCount(net.duration, dt);
-  for (const p of net.populations) if (p.kind === 'model') out.substeps[p.name] = opts.substeps?.[p.name] ?? substepsFor(p.model, dt);
+  for (const p of net.populations) {
+    if (p.kind !== 'model') continue;
+    out.substeps[p.name] = opts.substeps?.[p.name] ?? substepsFor(p.model, dt);
+    if (p.model.quiet) out.quietSubsteps[p.name] = opts.substeps?.[p.name] ?? substepsFor(quietMode(p.model), dt);
+  }
   let total = 0;
   for (let b = 0; b < net.trials.length; b++) {
-    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000, out.substeps);
+    const r = runTrial(net, b, kernels, dt, out.steps, opts.maxSpikes ?? 100_000, out.substeps, out.quietSubsteps);
     if ('error' in r) { errors.push(`trial ${b}: ${r.error}`); return out; }
     out.trials.push(r);
     total += r.loss;
@@ -172,7 +198,8 @@ export class ArrivalQueue {
 
 /** Whether population i's backward pass reads segment-start states. */
 export function needsStartStates(k: Kernels, lossPopulation: boolean, integralLoss: boolean): boolean {
-  return !k.d.exact || k.d.segmentStates.length > 0 || (lossPopulation && integralLoss);
+  const q = k.quiet?.kernels.d;
+  return !k.d.exact || k.d.segmentStates.length > 0 || (q !== undefined && (!q.exact || q.segmentStates.length > 0)) || (lossPopulation && integralLoss);
 }
 
 interface Live {
@@ -190,7 +217,7 @@ interface Live {
 }
 
 function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: number, steps: number, maxSpikes: number,
-  substeps: Readonly<Record<string, number>>): TrialRun | { error: string } {
+  substeps: Readonly<Record<string, number>>, quietSubsteps: Readonly<Record<string, number>>): TrialRun | { error: string } {
   const trial = net.trials[b]!;
   const popIndex = new Map(net.populations.map((p, i) => [p.name, i]));
   const log: LogEvent[] = [];
@@ -214,8 +241,11 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const lossPop = i === lossPopIndex;
     const inbound: number[] = [];
     net.projections.forEach((pr, j) => { if (pr.to === p.name) inbound.push(j); });
+    const quietDuration = k.quiet ? k.quiet.duration(valuesFor(k, params)) : 0;
     const run: PopRun = { index: i, name: p.name, size: p.size, kernels: k, map: new SegmentMap(k, substeps[p.name]!, params), params,
-      needsStarts: needsStartStates(k, lossPop, integralLoss), checkpoints: [], final: x, inbound };
+      needsStarts: needsStartStates(k, lossPop, integralLoss), checkpoints: [], final: x, inbound,
+      ...(k.quiet ? { quietMap: new SegmentMap(k.quiet.kernels, quietSubsteps[p.name]!, params) } : {}),
+      quietDuration, quietEnd: new Float64Array(p.size).fill(Infinity) };
     if (lossPop && loss.kind === 'ce-max') run.gridValues = Array.from({ length: p.size }, () => new Float64Array(steps + 1));
     spikes[p.name] = [];
     return { run, pop: p, k, S, x, tau: new Float64Array(p.size), start: new Int32Array(p.size).fill(-1), v: valuesFor(k, params),
@@ -223,6 +253,10 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   });
   const pops = live.filter((L): L is Live => L !== null);
   const firing = pops.filter((L) => L.k.guard);
+  const quieting = pops.filter((L) => L.run.quietDuration > 0);
+  for (const L of pops) {
+    if (L.k.quiet && !(L.run.quietDuration >= 0)) return { error: `${L.pop.name}: the quiet period of ${L.pop.model.name} lasts ${L.run.quietDuration} s; a duration must not be negative (0: no quiet period)` };
+  }
 
   const queue = new ArrivalQueue();
   let seq = 0;
@@ -250,19 +284,23 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   const y = new Float64Array(Math.max(1, ...pops.map((L) => L.S)));
   const rate = new Float64Array(y.length);
 
-  /** Advance neuron n to `to` (its segment ends there), integrating the loss on the way. */
+  /** Whether neuron n of L is in its quiet period (its end not yet processed). */
+  const isQuiet = (L: Live, n: number): boolean => L.run.quietEnd[n]! < Infinity;
+  /** Advance neuron n to `to` (its segment ends there; never past the end of its quiet
+   *  period, which is an event of its own), integrating the loss on the way. */
   const advance = (L: Live, n: number, to: number): void => {
     const S = L.S, a = L.tau[n]!, h = to - a;
     if (!(h > 0)) { L.tau[n] = to; return; }
+    const map = isQuiet(L, n) ? L.run.quietMap! : L.run.map;
     if (L.lossPop && integralLoss) {
       let acc = 0;
       for (let q = 0; q < 3; q++) {
-        const X = L.run.map.apply(L.x, n * S, a, GAUSS_NODES[q]! * h, y)[lossState]!;
+        const X = map.apply(L.x, n * S, a, GAUSS_NODES[q]! * h, y)[lossState]!;
         acc += GAUSS_WEIGHTS[q]! * (loss.kind === 'state-integral' ? 0.5 * (X - loss.target[n]!) ** 2 : X);
       }
       if (loss.kind === 'state-integral') integral += h * acc; else lossValues[n]! += h * acc;
     }
-    L.x.set(L.run.map.apply(L.x, n * S, a, h, y).subarray(0, S), n * S);
+    L.x.set(map.apply(L.x, n * S, a, h, y).subarray(0, S), n * S);
     L.tau[n] = to;
   };
 
@@ -272,7 +310,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   const crossing = (L: Live, n: number, e: number): number => {
     const k = L.k, G = k.guard!, v = L.v, S = L.S;
     const a = L.tau[n]!, h = e - a;
-    if (!(h > 0)) return Infinity;
+    if (!(h > 0) || isQuiet(L, n)) return Infinity;
     const g0 = guardNow(L, n);
     // the guard along the map's continuous extension x(u) = G(x, a, u), u in [0, h], and its slope
     const at = (u: number): { g: number; dg: number } => {
@@ -286,6 +324,8 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
   };
 
   let spikeCount = 0;
+  /** The spike that started each quiet neuron's period ('pop:n'). */
+  const quietCause = new Map<string, number>();
   /** A spike of neuron n of L at time s (its segment already advanced there): log, spike jump,
    *  the fired-side check, arrivals for its targets. An error message when the run must stop. */
   const emit = (L: Live, n: number, s: number, step: number, byJump?: number): string | undefined => {
@@ -294,7 +334,9 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     const xPre = L.x.slice(n * S, n * S + S);
     const first = !L.fired[n];
     L.fired[n] = 1;
-    log.push({ kind: 'spike', step, time: s, pop: L.run.index, neuron: n, xPre, first, start: L.start[n]!, ...(byJump !== undefined ? { byJump } : {}) });
+    const D = L.run.quietDuration;
+    log.push({ kind: 'spike', step, time: s, pop: L.run.index, neuron: n, xPre, first, start: L.start[n]!, ...(byJump !== undefined ? { byJump } : {}),
+      ...(D > 0 ? { quiet: true } : {}) });
     load(k, L.v, xPre, 0, s);
     for (let j = 0; j < S; j++) y[j] = k.spike!.J[j]!(L.v);
     L.x.set(y.subarray(0, S), n * S);
@@ -303,6 +345,8 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
     if (!Number.isFinite(after) || onFiredSide(k.guard!.direction, after)) {
       return `${L.pop.name}[${n}] is on the fired side of its threshold right after its own spike at ${s} s: its spike jump must leave it below the threshold`;
     }
+    // the quiet period starts: its countdown runs to s + D
+    if (D > 0) { L.run.quietEnd[n] = s + D; quietCause.set(`${L.run.index}:${n}`, ev); }
     spikes[L.pop.name]!.push([s, n]);
     if (L.lossPop && first && (loss.kind === 'spike-time' || loss.kind === 'ce-first-spike')) lossValues[n] = s;
     net.projections.forEach((pr, j) => { if (pr.from === L.pop.name) schedule(j, n, s, ev); });
@@ -338,6 +382,7 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
         const g = ref.get(L);
         if (!g) continue;
         for (let n = 0; n < L.pop.size && !hit; n++) {
+          if (isQuiet(L, n)) continue;
           const key = `${L.run.index}:${n}`;
           if ((initial.has(key) && !firedNow.has(key)) || jumpCrossed(L.k.guard!.direction, g[n]!, guardNow(L, n))) { hit = L; hitN = n; }
         }
@@ -381,6 +426,24 @@ function runTrial(net: Network, b: number, kernels: Map<string, Kernels>, dt: nu
           const s = crossing(L, n, e);
           if (s < best) { best = s; bestPop = L; bestN = n; }
         }
+      }
+      // the first end of a quiet period in this step (before arrivals at its instant)
+      let tQ = Infinity, qPop: Live | null = null, qN = -1;
+      for (const L of quieting) {
+        for (let n = 0; n < L.pop.size; n++) if (L.run.quietEnd[n]! < tQ) { tQ = L.run.quietEnd[n]!; qPop = L; qN = n; }
+      }
+      if (qPop && tQ < tEnd && tQ <= tArr && tQ <= best) {
+        advance(qPop, qN, tQ);
+        const ev = log.length;
+        const key = `${qPop.run.index}:${qN}`;
+        log.push({ kind: 'quiet-end', step, time: tQ, pop: qPop.run.index, neuron: qN, xPre: qPop.x.slice(qN * qPop.S, qN * qPop.S + qPop.S),
+          start: qPop.start[qN]!, cause: quietCause.get(key)! });
+        qPop.run.quietEnd[qN] = Infinity;
+        quietCause.delete(key);
+        qPop.start[qN] = ev;
+        // the guard it has now is the reference of a jump at this instant
+        if (tQ === instant && ref.has(qPop)) ref.get(qPop)![qN] = guardNow(qPop, qN);
+        continue;
       }
       if (bestPop && best <= tArr) {
         advance(bestPop, bestN, best);

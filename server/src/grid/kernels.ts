@@ -4,7 +4,8 @@
 // With several incoming blocks (receptors) the weight slot holds the weight of the block an
 // arrival reaches: each block's closures read its own weight name from that one slot.
 // The grid simulator fills the vector and calls the closures; generated code prints the same
-// Syms. Invariant: every closure reads only that layout.
+// Syms. A quiet mode has kernels of its own (its map's stage names differ), same layout.
+// Invariant: every closure reads only that layout.
 import { type Compiled, compile } from '../symbolic/evaluate';
 import type { Sym } from '../symbolic/sym';
 import { compileAssigns, needed } from '../symbolic/program';
@@ -31,6 +32,9 @@ export interface Kernels {
   incoming?: JumpKernels;
   /** Indices (into params) of the parameters with a gradient. */
   gradIndex: number[];
+  /** The quiet mode (`quiet for`): its map as kernels of their own (own values vector; no
+   *  guard, no spike jump; the same incoming jumps), the duration and dDURATION/d gradParams. */
+  quiet?: { kernels: Kernels; duration: Compiled; durationP: Compiled[] };
 }
 
 export function compileKernels(d: GridDerivation): Kernels {
@@ -54,6 +58,11 @@ export function compileKernels(d: GridDerivation): Kernels {
     ...(d.spike ? { spike: jump(d.spike) } : {}),
     receptors, ...(receptors[0] ? { incoming: receptors[0] } : {}),
     gradIndex: d.gradParams.map((p) => d.params.indexOf(p)),
+    ...(d.quiet ? { quiet: {
+      kernels: compileKernels({ ...d, exact: d.quiet.exact, mapReason: d.quiet.mapReason, map: d.quiet.map, segmentStates: d.quiet.segmentStates,
+        guard: null, spike: null, quiet: null }),
+      duration: c(d.quiet.duration), durationP: d.quiet.durationP.map(c),
+    } } : {}),
   };
 }
 

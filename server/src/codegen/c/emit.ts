@@ -134,7 +134,10 @@ function modelTable(plan: KernelPlan, f: CFlavour, id: number): string[] {
     `    ${plan.params.length ? `${M}_default_params` : '0'}, ${M}_initial,`,
     `    ${plan.grid.exact ? 1 : 0}, ${plan.stateDependent ? 1 : 0}, ${plan.grid.guard ? 1 : 0}, ${dir}, ${plan.grid.incoming.length}, ${num(plan.rate, { cuda: false, float: false })},`,
     `    ${['map_step', 'map_jvp', 'map_vjp', 'flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp'].map(fn).join(', ')},`,
-    `    ${blocks.length ? `${M}_incoming_names, ${M}_incoming_jumps, ${M}_incoming_vjps` : '0, 0, 0'}`,
+    `    ${blocks.length ? `${M}_incoming_names, ${M}_incoming_jumps, ${M}_incoming_vjps` : '0, 0, 0'},`,
+    // a quiet period: its mode's facts and kernels (saltus_grid.h)
+    `    ${plan.grid.quiet ? 1 : 0}, ${plan.grid.quiet?.exact ? 1 : 0}, ${plan.grid.quiet && plan.grid.quiet.segmentStates.length > 0 ? 1 : 0}, ${num(plan.quietRate ?? 0, { cuda: false, float: false })},`,
+    `    ${QUIET_KERNELS.map(fn).join(', ')}`,
     '};', '');
   return L;
 }
@@ -204,6 +207,13 @@ const KERNEL_SIGS: [string, string, string][] = [
   ['void', 'incoming_jump', 'const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, saltus_real *out'],
   ['void', 'incoming_vjp', 'const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, const saltus_real *lam, saltus_real *out'],
 ];
+/** The quiet mode's kernels (a model with `quiet for`), in the order of saltus_model. */
+const QUIET_KERNELS = ['quiet_map_step', 'quiet_map_jvp', 'quiet_map_vjp', 'quiet_flow', 'quiet_duration'];
+/** Dispatch signatures of the quiet kernels (CUDA): the map ones as the normal, the duration of p. */
+const QUIET_SIGS: [string, string, string][] = [
+  ...KERNEL_SIGS.filter(([, k]) => ['map_step', 'map_jvp', 'map_vjp', 'flow'].includes(k)).map(([r, k, sig]): [string, string, string] => [r, `quiet_${k}`, sig]),
+  ['void', 'quiet_duration', 'const saltus_real *p, saltus_real *out'],
+];
 const argNames = (sig: string): string => sig.split(', ').map((a) => a.replace(/^.*[\s*]/, '')).join(', ');
 
 /** The e-prop runtime's declarations (saltus_eprop.h) inside saltus_grid.h, before its closing #endif. */
@@ -225,7 +235,8 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
     ];
   }
   const IN_SIGS = KERNEL_SIGS.filter(([, k]) => k.startsWith('incoming_'));
-  const dispatchProtos = [...KERNEL_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig});`),
+  const ALL_SIGS = [...KERNEL_SIGS, ...QUIET_SIGS];
+  const dispatchProtos = [...ALL_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig});`),
     ...IN_SIGS.map(([ret, k, sig]) => `SALTUS_HD ${ret} saltus_dispatch_${k}_in(int id, int r, ${sig});`)];
   const cuh = [...stamp('saltus_grid.cuh', 'the grid runtime\'s types and functions for CUDA', f),
     '/* Kernels are called through a switch on the model\'s id (saltus_grid.cu), not through pointers. */',
@@ -237,7 +248,7 @@ export function runtimeFiles(models: readonly KernelPlan[], f: CFlavour): Genera
     'int saltus_cuda_run(const saltus_network *net, double dt, long max_spikes, saltus_result *out, char *err, size_t cap);', '',
     ...(eprop ? ['/* e-prop (docs/eprop.md): the model functions are __host__ __device__; the layer pass runs on the host. */', epropHeaderText, ''] : []),
     '#endif /* SALTUS_GRID_H */', ''];
-  const dispatch = KERNEL_SIGS.flatMap(([ret, k, sig]) => {
+  const dispatch = ALL_SIGS.flatMap(([ret, k, sig]) => {
     const cases = models.filter((m) => m.kernels.some((x) => x.name === k)).map((m, _i) => `    case ${models.indexOf(m)}: ${ret === 'void' ? '' : 'return '}${m.prefix}_${k}(${argNames(sig)});${ret === 'void' ? ' return;' : ''}`);
     const unused = argNames(sig).split(', ').map((a) => `(void)${a};`).join(' ');
     return [`SALTUS_NOINLINE SALTUS_HD ${ret} saltus_dispatch_${k}(int id, ${sig})`, '{', '    switch (id) {', ...cases, '    default: break;', '    }',

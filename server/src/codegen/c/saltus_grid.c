@@ -3,7 +3,11 @@
  * grid simulator does it (server/src/grid/forward.ts, backward.ts; the same names are used
  * here). The per-trial functions touch only the trial's workspace, so trials run one after
  * another on the host or one per thread on a GPU. Nothing here knows a model: kernels are
- * called through the saltus_model table (SALTUS_CALL). */
+ * called through the saltus_model table (SALTUS_CALL).
+ * Quiet periods (docs/network-step.md item 7): a spike starts a countdown to s + D (ws->qend);
+ * the neuron's segments then use the quiet map (saltus_seg.quiet), its guard is not tested, and
+ * the end is an event of its own (kind 2) located inside the step; backward, its time
+ * sensitivity goes to the spike that started it and T dD/dp to the parameters. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -153,7 +157,11 @@ typedef struct {
     const saltus_model *M;
     const saltus_real *p;
     int S, G, m;
+    int quiet;                  /* the quiet mode's map */
 } saltus_seg;
+
+/* A map kernel of the segment's mode. */
+#define SEG_CALL(g, kernel, ...) ((g)->quiet ? SALTUS_CALL((g)->M, quiet_##kernel, __VA_ARGS__) : SALTUS_CALL((g)->M, kernel, __VA_ARGS__))
 
 /* G(x, a, h) into out. */
 SALTUS_NOINLINE SALTUS_HD static void seg_apply(const saltus_seg *g, const saltus_real *x, saltus_real a, saltus_real h, saltus_real *out, saltus_tmp *t)
@@ -163,7 +171,7 @@ SALTUS_NOINLINE SALTUS_HD static void seg_apply(const saltus_seg *g, const saltu
     for (i = 0; i < g->S; i++) out[i] = x[i];
     if (!(h > 0)) return;
     for (s = 0; s < g->m; s++) {
-        SALTUS_CALL(g->M, map_step, out, g->p, a + (saltus_real)s * sub, sub, tmp);
+        SEG_CALL(g, map_step, out, g->p, a + (saltus_real)s * sub, sub, tmp);
         for (i = 0; i < g->S; i++) out[i] = tmp[i];
     }
 }
@@ -176,7 +184,7 @@ SALTUS_NOINLINE SALTUS_HD static void seg_apply_rate(const saltus_seg *g, const 
     int s, i, S = g->S;
     for (i = 0; i < S; i++) { out[i] = x[i]; rate[i] = 0; }
     for (s = 0; s < g->m; s++) {
-        SALTUS_CALL(g->M, map_jvp, out, g->p, a + (saltus_real)s * sub, sub, rate, k);
+        SEG_CALL(g, map_jvp, out, g->p, a + (saltus_real)s * sub, sub, rate, k);
         for (i = 0; i < S; i++) {
             out[i] = k[i];
             rate[i] = k[S + i] + k[2 * S + i] / (saltus_real)g->m + k[3 * S + i] * ((saltus_real)s / (saltus_real)g->m);
@@ -193,9 +201,9 @@ SALTUS_NOINLINE SALTUS_HD static void seg_vjp(const saltus_seg *g, const saltus_
     saltus_real sh = 0, sa = 0;
     int s, i, q, S = g->S;
     for (i = 0; i < S; i++) { st[i] = xa[i]; lam[i] = lamEnd[i]; }
-    for (s = 0; s < g->m - 1; s++) SALTUS_CALL(g->M, map_step, st + (size_t)s * S, g->p, a + (saltus_real)s * sub, sub, st + (size_t)(s + 1) * S);
+    for (s = 0; s < g->m - 1; s++) SEG_CALL(g, map_step, st + (size_t)s * S, g->p, a + (saltus_real)s * sub, sub, st + (size_t)(s + 1) * S);
     for (s = g->m - 1; s >= 0; s--) {
-        SALTUS_CALL(g->M, map_vjp, st + (size_t)s * S, g->p, a + (saltus_real)s * sub, sub, lam, k);
+        SEG_CALL(g, map_vjp, st + (size_t)s * S, g->p, a + (saltus_real)s * sub, sub, lam, k);
         sh = sh + k[S] / (saltus_real)g->m + k[S + 1] * ((saltus_real)s / (saltus_real)g->m);
         sa = sa + k[S + 1];
         if (grads) for (q = 0; q < g->G; q++) grads[q] += k[S + 2 + q];
@@ -293,13 +301,13 @@ SALTUS_HD static saltus_real saltus_locate_crossing(const saltus_seg *g, const s
 size_t saltus_ws_reals(const saltus_plan *plan)
 {
     size_t grid = (size_t)(plan->steps + 1) * (size_t)plan->n_grid;
-    return 2 * plan->x_total + 3 * (size_t)plan->n_total + (size_t)plan->steps * plan->ck_stride + grid
+    return 2 * plan->x_total + 4 * (size_t)plan->n_total + (size_t)plan->steps * plan->ck_stride + grid
         + 2 * (size_t)plan->n_loss + (size_t)plan->g_total + saltus_scratch_size(plan);
 }
 
 size_t saltus_ws_ints(const saltus_plan *plan)
 {
-    return 4 * (size_t)plan->n_total + (size_t)plan->n_loss + 1 + (size_t)plan->n_populations;
+    return 6 * (size_t)plan->n_total + (size_t)plan->n_loss + 1 + (size_t)plan->n_populations;
 }
 
 SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, saltus_real *reals, int *ints)
@@ -315,6 +323,7 @@ SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, sa
     ws->loss_coef = r; r += plan->n_loss;
     ws->grad = r; r += plan->g_total;
     ws->jref = r; r += plan->n_total;
+    ws->qend = r; r += plan->n_total;
     ws->scratch = r;
     ws->start = ints;
     ws->fired = ints + plan->n_total;
@@ -322,6 +331,8 @@ SALTUS_HD void saltus_ws_attach(saltus_trial_ws *ws, const saltus_plan *plan, sa
     ws->jflag = ints + 2 * plan->n_total + plan->n_loss + 1;
     ws->jlast = ws->jflag + plan->n_total;
     ws->jlastn = ws->jlast + plan->n_populations;
+    ws->qcause = ws->jlastn + plan->n_total;
+    ws->qmode = ws->qcause + plan->n_total;
 }
 
 /* Room for `need` elements in a growable array (realloc on the host), or SALTUS_E_CAPACITY
@@ -492,6 +503,14 @@ SALTUS_HD static void seg_of(const saltus_ctx *c, int p, saltus_seg *g)
     g->S = c->plan->pops[p].S;
     g->G = c->plan->pops[p].G;
     g->m = c->plan->pops[p].m;
+    g->quiet = 0;
+}
+
+/* The segment map of neuron n of population p in its mode (quiet: the quiet map, its sub-steps). */
+SALTUS_HD static void seg_of_mode(const saltus_ctx *c, int p, int quiet, saltus_seg *g)
+{
+    seg_of(c, p, g);
+    if (quiet) { g->quiet = 1; g->m = c->plan->pops[p].mq; }
 }
 
 /* Neuron n of population p to time `to`, integrating the loss on the way (forward.ts `advance`). */
@@ -505,7 +524,7 @@ SALTUS_NOINLINE SALTUS_HD static void fw_advance(saltus_ctx *c, int p, int n, sa
     saltus_seg g;
     int q, i;
     if (!(h > 0)) { ws->tau[pp->n_off + n] = to; return; }
-    seg_of(c, p, &g);
+    seg_of_mode(c, p, ws->qend[pp->n_off + n] < SALTUS_INF, &g);
     if (p == c->lp && c->plan->integral) {
         acc = 0;
         for (q = 0; q < 3; q++) {
@@ -530,7 +549,7 @@ SALTUS_HD static saltus_real fw_crossing(saltus_ctx *c, int p, int n, saltus_rea
     const saltus_real *x = c->ws->x + pp->x_off + (size_t)n * pp->S;
     saltus_real a = c->ws->tau[pp->n_off + n], h = e - a, g0;
     saltus_seg g;
-    if (!(h > 0)) return SALTUS_INF;
+    if (!(h > 0) || c->ws->qend[pp->n_off + n] < SALTUS_INF) return SALTUS_INF; /* a quiet neuron's guard is not tested */
     seg_of(c, p, &g);
     g0 = SALTUS_CALL(M, guard, x, g.p, a);
     return a + saltus_locate_crossing(&g, x, a, M->direction, g0, h, &c->t);
@@ -590,6 +609,7 @@ SALTUS_NOINLINE SALTUS_HD static int fw_emit(saltus_ctx *c, int p, int n, saltus
     after = SALTUS_CALL(M, guard, x, par, ws->tau[pp->n_off + n]);
     if (!isfinite(after) || saltus_fired_side(M->direction, after)) return fw_fail(ws, SALTUS_E_FIRED_SIDE, p, n, -1, s);
     ws->jref[pp->n_off + n] = after;
+    if (pp->qdur > 0) { ws->qend[pp->n_off + n] = s + pp->qdur; ws->qcause[pp->n_off + n] = ev; } /* the quiet period starts */
     if (p == c->lp && E->first && (loss->kind == SALTUS_LOSS_SPIKE_TIME || loss->kind == SALTUS_LOSS_CE_FIRST_SPIKE)) ws->loss_values[n] = s;
     for (j = 0; j < net->n_projections; j++) {
         if (net->projections[j].from != p) continue;
@@ -643,7 +663,9 @@ SALTUS_HD static int fw_jump_fired(saltus_ctx *c, saltus_real s, int step)
             if (!M || !M->has_guard) continue;
             for (n = 0; n < pp->n; n++) {
                 int k = pp->n_off + n, flag = ws->jflag[k];
-                saltus_real g = SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, c->net->populations[p].params, ws->tau[k]);
+                saltus_real g;
+                if (ws->qend[k] < SALTUS_INF) continue; /* quiet: cannot fire */
+                g = SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)n * pp->S, c->net->populations[p].params, ws->tau[k]);
                 if (((flag & 4) && !(flag & 2)) || saltus_jump_crossed(M->direction, ws->jref[k], g)) { hitP = p; hitN = n; break; }
             }
         }
@@ -684,6 +706,8 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
             ws->tau[pp->n_off + n] = 0;
             ws->start[pp->n_off + n] = -1;
             ws->fired[pp->n_off + n] = 0;
+            ws->qend[pp->n_off + n] = SALTUS_INF;
+            ws->qcause[pp->n_off + n] = -1;
         }
     }
     ws->inst = 0;
@@ -738,6 +762,48 @@ SALTUS_HD int saltus_trial_forward(const saltus_network *net, const saltus_plan 
                 for (n = 0; n < plan->pops[p].n; n++) {
                     s = fw_crossing(&c, p, n, e);
                     if (s < best) { best = s; bestPop = p; bestN = n; }
+                }
+            }
+            {
+                /* the first end of a quiet period in this step (before spikes and arrivals at its instant) */
+                saltus_real tQ = SALTUS_INF;
+                int qP = -1, qN = -1;
+                for (p = 0; p < net->n_populations; p++) {
+                    if (!(plan->pops[p].qdur > 0)) continue;
+                    for (n = 0; n < plan->pops[p].n; n++)
+                        if (ws->qend[plan->pops[p].n_off + n] < tQ) { tQ = ws->qend[plan->pops[p].n_off + n]; qP = p; qN = n; }
+                }
+                if (qP >= 0 && tQ < tEnd && tQ <= tArr && tQ <= best) {
+                    const saltus_pop_plan *pp = &plan->pops[qP];
+                    const saltus_model *M = net->populations[qP].model;
+                    saltus_event *E;
+                    int kq = pp->n_off + qN, ev = (int)ws->n_events, S = pp->S;
+                    fw_advance(&c, qP, qN, tQ);
+                    rc = reserve_events(ws, ws->n_events + 1);
+                    if (!rc) rc = reserve_xbuf(ws, ws->n_xbuf + (size_t)S);
+                    if (rc) return fw_fail(ws, rc, -1, -1, -1, 0);
+                    E = &ws->events[ws->n_events++];
+                    E->kind = 2;
+                    E->step = step;
+                    E->time = tQ;
+                    E->pop = qP;
+                    E->neuron = qN;
+                    E->first = -1;
+                    E->start = ws->start[kq];
+                    E->projection = E->source = -1;
+                    E->cause = ws->qcause[kq];
+                    E->by_jump = -2;
+                    E->x_at = ws->n_xbuf;
+                    E->s_at = (size_t)-1;
+                    for (i = 0; i < S; i++) ws->xbuf[ws->n_xbuf + (size_t)i] = ws->x[pp->x_off + (size_t)qN * S + i];
+                    ws->n_xbuf += (size_t)S;
+                    ws->qend[kq] = SALTUS_INF;
+                    ws->qcause[kq] = -1;
+                    ws->start[kq] = ev;
+                    /* the guard it has now is the reference of a jump at this instant */
+                    if (M->has_guard && tQ == ws->inst && !isnan(ws->jref[kq]))
+                        ws->jref[kq] = SALTUS_CALL(M, guard, ws->x + pp->x_off + (size_t)qN * S, net->populations[qP].params, tQ);
+                    continue;
                 }
             }
             if (bestPop >= 0 && best <= tArr) {
@@ -872,7 +938,9 @@ SALTUS_HD static void bw_post_state(saltus_ctx *c, int p, int n, int ref, saltus
     const saltus_model *M = c->net->populations[p].model;
     const saltus_real *par = c->net->populations[p].params;
     int S = c->plan->pops[p].S, i;
-    if (E->kind == 1) {
+    if (E->kind == 2) {
+        for (i = 0; i < S; i++) out[i] = c->ws->xbuf[E->x_at + (size_t)i];
+    } else if (E->kind == 1) {
         SALTUS_CALL(M, spike_jump, c->ws->xbuf + E->x_at, par, E->time, out);
     } else {
         const saltus_projection *pr = &c->net->projections[E->projection];
@@ -896,12 +964,19 @@ SALTUS_HD static saltus_real bw_start_of(saltus_ctx *c, int p, int n, int ref, i
     return c->ws->events[ref].time;
 }
 
-SALTUS_HD static saltus_real bw_flow_dot(saltus_ctx *c, int p, const saltus_real *x, saltus_real t, const saltus_real *lam)
+/* The flow of neuron n's mode (quiet or normal) into f. */
+SALTUS_HD static void bw_flow(saltus_ctx *c, int p, int n, const saltus_real *x, saltus_real t, saltus_real *f)
 {
     const saltus_model *M = c->net->populations[p].model;
+    if (c->ws->qmode[c->plan->pops[p].n_off + n]) SALTUS_CALL(M, quiet_flow, x, c->net->populations[p].params, t, f);
+    else SALTUS_CALL(M, flow, x, c->net->populations[p].params, t, f);
+}
+
+SALTUS_HD static saltus_real bw_flow_dot(saltus_ctx *c, int p, int n, const saltus_real *x, saltus_real t, const saltus_real *lam)
+{
     saltus_real *f = c->t.kb, s = 0;
     int i;
-    SALTUS_CALL(M, flow, x, c->net->populations[p].params, t, f);
+    bw_flow(c, p, n, x, t, f);
     for (i = 0; i < c->plan->pops[p].S; i++) s += lam[i] * f[i];
     return s;
 }
@@ -935,7 +1010,7 @@ SALTUS_NOINLINE SALTUS_HD static void bw_segment(saltus_ctx *c, int p, int n, sa
     saltus_real *lamEnd = t->v[V_LAMEND], *lamStart = t->v[V_LAMSTART], *xa = t->v[V_XA];
     saltus_real h = ws->cur[pp->n_off + n] - a, startT = 0, dh, da, qh, qa, u, w, X;
     saltus_seg g;
-    seg_of(c, p, &g);
+    seg_of_mode(c, p, ws->qmode[pp->n_off + n], &g);
     for (i = 0; i < S; i++) lamEnd[i] = lam[i];
     if (pp->needs_starts) {
         bw_start_of(c, p, n, ref, step, xa);
@@ -962,7 +1037,7 @@ SALTUS_NOINLINE SALTUS_HD static void bw_segment(saltus_ctx *c, int p, int n, sa
         if (ref >= 0) {
             saltus_real *post = t->v[V_POST];
             bw_post_state(c, p, n, ref, post);
-            startT = -bw_flow_dot(c, p, post, a, lamStart);
+            startT = -bw_flow_dot(c, p, n, post, a, lamStart);
         }
     }
     if (ref >= 0) bw_add_T(ws, ref, n, startT);
@@ -981,11 +1056,11 @@ SALTUS_NOINLINE SALTUS_HD static saltus_real bw_end_term(saltus_ctx *c, int p, i
     saltus_real a, h, s, dh, da, X, *xa = t->v[V_XA2];
     saltus_seg g;
     if (!pp->needs_starts) {
-        const saltus_real *xPre = c->ws->xbuf + E->x_at + (E->kind == 1 ? 0 : (size_t)n * S);
-        if (rate) SALTUS_CALL(c->net->populations[p].model, flow, xPre, c->net->populations[p].params, E->time, rate);
-        return bw_flow_dot(c, p, xPre, E->time, lamEnd);
+        const saltus_real *xPre = c->ws->xbuf + E->x_at + (E->kind == 0 ? (size_t)n * S : 0);
+        if (rate) bw_flow(c, p, n, xPre, E->time, rate);
+        return bw_flow_dot(c, p, n, xPre, E->time, lamEnd);
     }
-    seg_of(c, p, &g);
+    seg_of_mode(c, p, c->ws->qmode[pp->n_off + n], &g);
     a = bw_start_of(c, p, n, ref, E->step, xa);
     h = E->time - a;
     seg_vjp(&g, xa, a, h, lamEnd, t->v[V_OUT2], (saltus_real *)0, &dh, &da, t);
@@ -1023,6 +1098,7 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
     for (i = 0; i < (int)ws->n_tn; i++) ws->Tn[i] = 0;
     for (i = 0; i < (int)plan->x_total; i++) ws->lam[i] = 0;
     for (i = 0; i < plan->g_total; i++) ws->grad[i] = 0;
+    for (i = 0; i < plan->n_total; i++) ws->qmode[i] = ws->qend[i] < SALTUS_INF; /* the modes at the end of the run */
 
     e = (int)ws->n_events - 1;
     for (step = plan->steps - 1; step >= 0; step--) {
@@ -1064,11 +1140,21 @@ SALTUS_HD int saltus_trial_backward(const saltus_network *net, const saltus_plan
                     for (n = 0; n < pp->n; n++)
                         if (saltus_is_target(net, pr, n, E->source, E->delay))
                             gD[plan->w_off[E->projection] + (size_t)n * from_size + E->source] += ws->Tn[E->tn_at + (size_t)n];
+            } else if (E->kind == 2) {
+                /* the end of a quiet period: no jump, lambda unchanged; its time moves with its spike */
+                n = E->neuron;
+                bw_segment(&c, E->pop, n, E->time, e, step);
+                ws->qmode[pp->n_off + n] = 1;
+                ws->T[e] += bw_end_term(&c, E->pop, n, e, E->start, ws->lam + pp->x_off + (size_t)n * S, (saltus_real *)0);
+                ws->T[E->cause] += ws->T[e];
+                SALTUS_CALL(M, quiet_duration, par, kb);
+                for (q = 0; q < G; q++) ws->grad[pp->g_off + q] += ws->T[e] * kb[1 + q];
             } else {
                 saltus_real *lam, *mu = c.t.v[V_MU], *rate = c.t.v[V_RATE2], D, gdot, phi;
                 n = E->neuron;
                 lam = ws->lam + pp->x_off + (size_t)n * S;
                 bw_segment(&c, E->pop, n, E->time, e, step);
+                if (pp->qdur > 0) ws->qmode[pp->n_off + n] = 0; /* before a spike that started a quiet period: the normal mode */
                 for (i = 0; i < S; i++) lampost[i] = lam[i];
                 SALTUS_CALL(M, spike_vjp, ws->xbuf + E->x_at, par, E->time, lampost, kb);
                 for (i = 0; i < S; i++) mu[i] = kb[i];
@@ -1149,6 +1235,18 @@ int saltus_plan_make(const saltus_network *net, double dt, long max_spikes, doub
         pp->m = 1;
         if (!M->exact) while (pp->m < SALTUS_MAX_SUBSTEPS && M->rate * dt / pp->m > SALTUS_SUBSTEP_RATE_BOUND) pp->m *= 2;
         pp->needs_starts = !M->exact || M->state_dependent || (p == lossPop && plan->integral);
+        if (M->has_quiet) {
+            /* the quiet mode: its own sub-steps, and the duration for these parameter values */
+            saltus_real *dq = (saltus_real *)calloc((size_t)M->n_grad + 1, sizeof(saltus_real));
+            if (!dq) SALTUS_FAIL("out of memory");
+            SALTUS_CALL(M, quiet_duration, P->params, dq);
+            pp->qdur = dq[0];
+            free(dq);
+            if (!(pp->qdur >= 0)) SALTUS_FAIL("populations.%s: the quiet period of %s lasts %g s; a duration must not be negative (0: no quiet period)", P->name, M->name, (double)pp->qdur);
+            pp->mq = 1;
+            if (!M->quiet_exact) while (pp->mq < SALTUS_MAX_SUBSTEPS && M->quiet_rate * dt / pp->mq > SALTUS_SUBSTEP_RATE_BOUND) pp->mq *= 2;
+            if (!M->quiet_exact || M->quiet_state_dependent) pp->needs_starts = 1;
+        }
         pp->x_off = x;
         pp->n_off = nn;
         pp->g_off = g;

@@ -51,7 +51,11 @@
  *   incoming_vjp  out[S + 2 + G]: (dJ/dx)^T lam, lam . dJ/dt, lam . dJ/dp, lam . dJ/dw
  * A model without a fire (incoming) block has NULL spike (incoming) kernels. A model with several
  * incoming blocks (receptors) lists each block's pair in incoming_jumps/incoming_vjps (block 0 is
- * incoming_jump/incoming_vjp), with the blocks' weight names in incoming_names. */
+ * incoming_jump/incoming_vjp), with the blocks' weight names in incoming_names.
+ * A model with a quiet period (`quiet for D`, has_quiet) also has its quiet mode's map kernels
+ * quiet_map_step, quiet_map_jvp, quiet_map_vjp, quiet_flow (the same outputs) and
+ *   quiet_duration out[1 + G]: D, dD/dp (gradient parameters)
+ * with the quiet map's facts (quiet_exact, quiet_state_dependent, quiet_rate); NULL otherwise. */
 typedef struct saltus_model {
     const char *name;                  /* as declared in the model file */
     int id;                            /* position in the generated set (CUDA dispatch) */
@@ -79,6 +83,13 @@ typedef struct saltus_model {
     const char *const *incoming_names; /* the blocks' weight names, as declared (a projection's "via") */
     void (*const *incoming_jumps)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, saltus_real *out);
     void (*const *incoming_vjps)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real w, const saltus_real *lam, saltus_real *out);
+    int has_quiet, quiet_exact, quiet_state_dependent;
+    double quiet_rate;
+    void (*quiet_map_step)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, saltus_real *out);
+    void (*quiet_map_jvp)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, const saltus_real *dx, saltus_real *out);
+    void (*quiet_map_vjp)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, const saltus_real *lam, saltus_real *out);
+    void (*quiet_flow)(const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real *out);
+    void (*quiet_duration)(const saltus_real *p, saltus_real *out);
 } saltus_model;
 
 /* How the runtime calls a kernel (the CUDA file replaces it by a dispatch on the model's id). */
@@ -152,6 +163,8 @@ typedef struct {
     int n_off;                  /* its neurons in the per-neuron arrays */
     size_t ck_off;              /* its place in one step's checkpoint block */
     int g_off;                  /* its gradient parameters in the gradient array */
+    int mq;                     /* sub-steps of the quiet mode's map */
+    saltus_real qdur;           /* the quiet period after each spike (s; 0: none) */
 } saltus_pop_plan;
 
 typedef struct {
@@ -166,7 +179,7 @@ typedef struct {
 } saltus_plan;
 
 typedef struct {
-    int kind;                   /* 0 arrival, 1 spike */
+    int kind;                   /* 0 arrival, 1 spike, 2 the end of a quiet period (neuron, start; cause: the spike that started it) */
     int step, pop;
     int projection, source, cause; /* arrivals: the projection, the sender, the spike event that caused it (-1: input) */
     int neuron, first, start;   /* spikes: the neuron, its first spike, where its segment started (-1: the grid point) */
@@ -221,6 +234,10 @@ typedef struct {
     saltus_real *jref, inst;
     int *jflag, *jlast;
     int *jlastn;                                   /* each neuron's last targeted arrival at the instant (delays) */
+    /* quiet periods: each neuron's end of its current one (infinity: not quiet), the spike event
+       that started it, and (backward) its mode over the segment being walked */
+    saltus_real *qend;
+    int *qcause, *qmode;
     /* results */
     saltus_real loss, integral;
     long seq, spike_count;

@@ -76,6 +76,13 @@ export function modelModule(plan: KernelPlan, d: PyDialect, ctx: { source?: stri
   L.push(`STATE_DEPENDENT_DERIVATIVES = ${plan.stateDependent ? 'True' : 'False'}`);
   L.push(`RATE = ${repr(plan.rate)}`);
   L.push(`HAS_GUARD = ${plan.grid.guard ? 'True' : 'False'}`);
+  // a quiet period (`quiet for`): its own map kernels (quiet_*), exactness, sub-step rate and
+  // whether its map's derivatives read the segment-start state
+  const q = plan.grid.quiet;
+  L.push(`HAS_QUIET = ${q ? 'True' : 'False'}`);
+  L.push(`QUIET_EXACT = ${q?.exact ? 'True' : 'False'}`);
+  L.push(`QUIET_RATE = ${repr(plan.quietRate ?? 0)}`);
+  L.push(`QUIET_STATE_DEPENDENT_DERIVATIVES = ${q && q.segmentStates.length > 0 ? 'True' : 'False'}`);
   L.push(`DIRECTION = ${plan.grid.guard ? `"${plan.grid.guard.direction}"` : 'None'}`);
   L.push(`WEIGHT = ${plan.weight ? `"${plan.weight.id}"` : 'None'}`);
   // the incoming blocks by their weight names as written (a projection's "via" names one)

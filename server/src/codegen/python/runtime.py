@@ -14,6 +14,12 @@
 # (neurons with equal delays share one arrival; at or after the duration: dropped); such an
 # arrival advances and jumps its own neurons only, one trial at a time. Its time sensitivity
 # per receiving neuron is dL/d(delay) of that synapse.
+# Quiet periods (`quiet for D`, docs/network-step.md "Quiet periods"): a spike starts a
+# per-neuron countdown to s + D (`qend`); while it runs the neuron's segments use the quiet
+# map (quiet_map_* kernels), its guard is not tested, arrivals still jump it; the end is a
+# "quiet-end" record located inside its step (before arrivals at its instant), which the
+# backward pass walks like grid/backward.ts: lambda unchanged, its time sensitivity handed to
+# the spike that started it, dL/dp += T dD/dp.
 
 import heapq
 
@@ -34,15 +40,21 @@ class GridError(Exception):
     """A simulation that cannot go on (a diverging state, a reset on the fired side, too many spikes)."""
 
 
-def substeps(model, dt):
+def substeps(model, dt, quiet=False):
     """Sub-steps of the step map per grid step (step/substeps.ts): 1 for an exact map, else the fewest
-    power of two m <= 64 with RATE * dt / m <= 0.2."""
-    if model.EXACT:
+    power of two m <= 64 with RATE * dt / m <= 0.2 (quiet: the quiet mode's map and rate)."""
+    if (model.QUIET_EXACT if quiet else model.EXACT):
         return 1
+    rate = model.QUIET_RATE if quiet else model.RATE
     m = 1
-    while m < MAX_SUBSTEPS and model.RATE * dt / m > SUBSTEP_RATE_BOUND:
+    while m < MAX_SUBSTEPS and rate * dt / m > SUBSTEP_RATE_BOUND:
         m *= 2
     return m
+
+
+def _select(q, quiet, normal):
+    """Per element: the quiet mode's value where q, else the normal one (lists of arrays)."""
+    return [X.where(q, b, a) for a, b in zip(normal, quiet)]
 
 
 def _crossed(direction, g0, g1):
@@ -117,6 +129,20 @@ class _Live:
         self.fired = X.zeros_bool((B, self.n))
         self.loss_pop = lossing
         self.needs_starts = (not pop.model.EXACT) or pop.model.STATE_DEPENDENT_DERIVATIVES or (lossing and integral)
+        # a quiet period: its sub-steps, its duration D (0: none) with dD/dp, and per (trial,
+        # neuron) the end of the current one (inf: not quiet) and the spike record that started it
+        self.has_quiet = bool(getattr(pop.model, "HAS_QUIET", False))
+        self.qdur = 0.0
+        if self.has_quiet:
+            self.mq = substeps(pop.model, dt, True)
+            out = pop.model.quiet_duration(pop.params)
+            self.qdur = float(out[0])
+            if not self.qdur >= 0:
+                raise GridError("%s: the quiet period lasts %g s; a duration must not be negative (0: no quiet period)" % (pop.name, self.qdur))
+            self.qdur_grad = list(out[1:])
+            self.needs_starts = self.needs_starts or (not pop.model.QUIET_EXACT) or pop.model.QUIET_STATE_DEPENDENT_DERIVATIVES
+        self.qend = X.full((B, self.n), float("inf"))
+        self.qcause = X.full_int((B, self.n), -1)
         self.checkpoints = []
         self.grid_values = None
         self.inbound = []
@@ -130,45 +156,94 @@ class _Live:
         # the last arrival with targets (a projection with delays) onto each neuron at the instant
         self.jlast_n = X.full_int((B, self.n), -1)
 
-    # the step map in m sub-steps over [a, a + h], per element
-    def apply(self, x, a, h):
-        sub = h / self.m
-        for s in range(self.m):
-            x = list(self.model.map_step(x, self.pop.params, a + s * sub, sub))
+    def _kernels(self, quiet):
+        M = self.model
+        if quiet:
+            return M.quiet_map_step, M.quiet_map_jvp, M.quiet_map_vjp, self.mq
+        return M.map_step, M.map_jvp, M.map_vjp, self.m
+
+    def _mode(self, q):
+        """None: every element normal; True: every element quiet; else q (a mixed batch)."""
+        if q is None or not self.has_quiet or not bool(X.any(q)):
+            return None
+        return True if bool(X.all(q)) else q
+
+    # the step map in m sub-steps over [a, a + h], per element; q: per element in the quiet mode
+    def apply(self, x, a, h, q=None):
+        mode = self._mode(q)
+        if mode is None or mode is True:
+            return self._apply(x, a, h, mode is True)
+        return _select(q, self._apply(x, a, h, True), self._apply(x, a, h, False))
+
+    def _apply(self, x, a, h, quiet):
+        step, _, _, m = self._kernels(quiet)
+        sub = h / m
+        for s in range(m):
+            x = list(step(x, self.pop.params, a + s * sub, sub))
         return x
 
-    def apply_rate(self, x, a, u):
-        sub = u / self.m
+    def apply_rate(self, x, a, u, q=None):
+        mode = self._mode(q)
+        if mode is None or mode is True:
+            return self._apply_rate(x, a, u, mode is True)
+        yq, rq = self._apply_rate(x, a, u, True)
+        yn, rn = self._apply_rate(x, a, u, False)
+        return _select(q, yq, yn), _select(q, rq, rn)
+
+    def _apply_rate(self, x, a, u, quiet):
+        _, jvp, _, m = self._kernels(quiet)
+        sub = u / m
         rate = [X.zeros_like(u) for _ in range(self.S)]
-        for s in range(self.m):
-            out = self.model.map_jvp(x, self.pop.params, a + s * sub, sub, rate)
+        for s in range(m):
+            out = jvp(x, self.pop.params, a + s * sub, sub, rate)
             S = self.S
             x = list(out[:S])
-            rate = [out[S + i] + out[2 * S + i] / self.m + out[3 * S + i] * (s / self.m) for i in range(S)]
+            rate = [out[S + i] + out[2 * S + i] / m + out[3 * S + i] * (s / m) for i in range(S)]
         return x, rate
 
-    def vjp(self, xa, a, h, lam, grads):
+    def vjp(self, xa, a, h, lam, grads, q=None):
         """(dG/dx)^T lam, lam . dG/dh, lam . dG/da; grads[q] += lam . dG/dp_q (per element, summed by the caller)."""
-        sub = h / self.m
+        mode = self._mode(q)
+        if mode is None or mode is True:
+            return self._vjp(xa, a, h, lam, grads, mode is True)
+        gq = None if grads is None else [X.zeros_like(h) for _ in grads]
+        gn = None if grads is None else [X.zeros_like(h) for _ in grads]
+        lq, hq, aq = self._vjp(xa, a, h, lam, gq, True)
+        ln, hn, an = self._vjp(xa, a, h, lam, gn, False)
+        if grads is not None:
+            for k in range(len(grads)):
+                grads[k] = grads[k] + X.where(q, gq[k], gn[k])
+        return _select(q, lq, ln), X.where(q, hq, hn), X.where(q, aq, an)
+
+    def _vjp(self, xa, a, h, lam, grads, quiet):
+        step, _, vjp, m = self._kernels(quiet)
+        sub = h / m
         starts = [xa]
         y = xa
-        for s in range(self.m - 1):
-            y = list(self.model.map_step(y, self.pop.params, a + s * sub, sub))
+        for s in range(m - 1):
+            y = list(step(y, self.pop.params, a + s * sub, sub))
             starts.append(y)
         S = self.S
         G = len(self.model.GRAD_PARAMS)
         dh = X.zeros_like(h)  # arrays even where the kernel's outputs are constants (a guard state without flow)
         da = X.zeros_like(h)
-        for s in range(self.m - 1, -1, -1):
-            out = self.model.map_vjp(starts[s], self.pop.params, a + s * sub, sub, lam)
+        for s in range(m - 1, -1, -1):
+            out = vjp(starts[s], self.pop.params, a + s * sub, sub, lam)
             fh, ft = out[S], out[S + 1]
-            dh = dh + fh / self.m + ft * (s / self.m)
+            dh = dh + fh / m + ft * (s / m)
             da = da + ft
             if grads is not None:
-                for q in range(G):
-                    grads[q] = grads[q] + out[S + 2 + q]
+                for k in range(G):
+                    grads[k] = grads[k] + out[S + 2 + k]
             lam = list(out[:S])
         return lam, dh, da
+
+    def flow(self, x, t, q=None):
+        mode = self._mode(q)
+        if mode is None:
+            return list(self.model.flow(x, self.pop.params, t))
+        fq = list(self.model.quiet_flow(x, self.pop.params, t))
+        return fq if mode is True else _select(q, fq, list(self.model.flow(x, self.pop.params, t)))
 
 
 def _take(arrs, rows, cols=None):
@@ -229,6 +304,8 @@ def _crossing_times(live, e):
     a = live.tau
     h = e[:, None] - a
     positive = h > 0
+    if live.has_quiet:
+        positive = positive & ~(live.qend < float("inf"))  # a quiet neuron's guard is not tested
     g0 = G.guard(live.x, live.pop.params, a)[0]
     hh = X.where(positive, h, X.zeros_like(h))
     y = live.apply(live.x, a, hh)
@@ -304,6 +381,7 @@ def forward(net, dt, max_spikes=100000):
     if loss["kind"] == "ce-max":
         L0.grid_values = X.full((steps + 1, B, L0.n), 0.0)
     firing = [L for L in lives if L.model.HAS_GUARD]
+    quieting = [L for L in lives if L.qdur > 0]
 
     # input arrivals per target population: sorted (time, projection, order), padded with inf
     pending = {}
@@ -397,7 +475,7 @@ def forward(net, dt, max_spikes=100000):
         L.fired[rows, n] = True
         r = len(records)
         records.append(Record("spike", step, rows, s, L.index, neuron=n, x_pre=x_pre, first=first, start=L.start[rows, n],
-                              by_jump=by_jump))
+                              by_jump=by_jump, quiet=L.qdur > 0))
         _put(L.x, rows, L.model.spike_jump(x_pre, L.pop.params, s), n)
         L.start[rows, n] = r
         after = L.model.guard(_take(L.x, rows, n), L.pop.params, s)[0]
@@ -405,6 +483,9 @@ def forward(net, dt, max_spikes=100000):
             raise GridError("%s: a neuron is on the fired side of its threshold right after its own spike; its spike jump must leave it below the threshold" % L.pop.name)
         if by_jump is not None:
             L.jref[rows, n] = after
+        if L.qdur > 0:  # the quiet period starts: its countdown runs to s + D
+            L.qend[rows, n] = s + L.qdur
+            L.qcause[rows, n] = r
         for b, t, i in zip(X.tolist(rows), X.tolist(s), X.tolist(n)):
             run.spikes[b][L.pop.name].append((t, i))
         if L.loss_pop and loss["kind"] in ("spike-time", "ce-first-spike"):
@@ -426,10 +507,13 @@ def forward(net, dt, max_spikes=100000):
         h = tt - a
         h = X.where(h > 0, h, X.zeros_like(h))
         xs = _take(L.x, rows, cols)
+        qm = None
+        if L.has_quiet:
+            qm = (L.qend[rows, cols] if cols is not None else L.qend[rows]) < float("inf")
         if L.loss_pop and integral:
             acc = X.zeros_like(h)
             for q in range(3):
-                X_ = L.apply(xs, a, GAUSS_NODES[q] * h)[ls]
+                X_ = L.apply(xs, a, GAUSS_NODES[q] * h, qm)[ls]
                 if loss["kind"] == "state-integral":
                     target = X.array(loss["target"])
                     tgt = target[cols] if cols is not None else target[None, :]
@@ -443,7 +527,7 @@ def forward(net, dt, max_spikes=100000):
                 values[rows, cols] = values[rows, cols] + h * acc
             else:
                 values[rows] = values[rows] + h * acc
-        _put(L.x, rows, L.apply(xs, a, h), cols)
+        _put(L.x, rows, L.apply(xs, a, h, qm), cols)
         if cols is not None:
             L.tau[rows, cols] = a + h
         else:
@@ -477,6 +561,16 @@ def forward(net, dt, max_spikes=100000):
                 best = X.where(better, m, best)
                 best_pop = X.where(better, X.full_int((B,), L.index), best_pop)
                 best_n = X.where(better, idx, best_n)
+            # the first end of a quiet period per trial (before arrivals at its instant)
+            tq = X.full((B,), float("inf"))
+            q_pop = X.full_int((B,), -1)
+            q_n = X.full_int((B,), -1)
+            for L in quieting:
+                m, idx = X.min_last(L.qend)
+                better = m < tq
+                tq = X.where(better, m, tq)
+                q_pop = X.where(better, X.full_int((B,), L.index), q_pop)
+                q_n = X.where(better, idx, q_n)
             # spikes fired by jumps at the current instant, once no input arrives there any more:
             # the first neuron (populations in order, then by index) carried across fires
             jump_pop = X.full_int((B,), -1)
@@ -487,15 +581,37 @@ def forward(net, dt, max_spikes=100000):
                     break
                 g_now = L.model.guard(_take(L.x, cand), L.pop.params, run.inst[cand][:, None])[0]
                 due = (L.jinit[cand] & ~L.jfired[cand]) | _jump_crossed(L.model.DIRECTION, L.jref[cand], g_now)
+                if L.has_quiet:
+                    due = due & ~(L.qend[cand] < float("inf"))
                 order = X.where(due, X.zeros_like(g_now) + X.arange(L.n)[None, :], X.full(g_now.shape, float("inf")))
                 m, idx = X.min_last(order)
                 hit = X.isfinite(m)
                 jump_pop[cand[hit]] = L.index
                 jump_n[cand[hit]] = idx[hit]
             jumping = active & (jump_pop >= 0)
-            spiking = active & ~jumping & (best <= tin) & X.isfinite(best)
-            arriving = active & ~jumping & ~spiking & X.isfinite(tin)
-            active = jumping | spiking | arriving
+            ending = active & ~jumping & (tq < t_end) & (tq <= tin) & (tq <= best)
+            spiking = active & ~jumping & ~ending & (best <= tin) & X.isfinite(best)
+            arriving = active & ~jumping & ~ending & ~spiking & X.isfinite(tin)
+            active = jumping | ending | spiking | arriving
+            for L in quieting:
+                rows = X.nonzero1(ending & (q_pop == L.index))
+                if len(rows) == 0:
+                    continue
+                n = q_n[rows]
+                s = tq[rows]
+                advance(L, rows, n, s)
+                r = len(records)
+                records.append(Record("quiet-end", step, rows, s, L.index, neuron=n, x_pre=_take(L.x, rows, n), start=L.start[rows, n],
+                                      cause=X.copy(L.qcause[rows, n])))
+                L.qend[rows, n] = float("inf")
+                L.qcause[rows, n] = -1
+                L.start[rows, n] = r
+                if L.model.HAS_GUARD:
+                    # the guard it has now is the reference of a jump at this instant
+                    touched = (run.inst[rows] == s) & (L.jref[rows, n] == L.jref[rows, n])
+                    if bool(X.any(touched)):
+                        g_now = L.model.guard(_take(L.x, rows, n), L.pop.params, s)[0]
+                        L.jref[rows, n] = X.where(touched, g_now, L.jref[rows, n])
             for L in firing:
                 rows = X.nonzero1(jumping & (jump_pop == L.index))
                 if len(rows) == 0:
@@ -677,6 +793,11 @@ def backward(run, spike_time_grad=None):
     coef = run.coef
     if loss["kind"] == "state-integral":
         target = X.array(loss["target"])
+    # per (trial, neuron): in the quiet mode over the segment being walked (from the run's end backwards)
+    qmode = {L.index: (L.qend < float("inf")) if L.has_quiet else None for L in lives}
+
+    def mode(L, rows, cols):
+        return None if qmode[L.index] is None else qmode[L.index][rows, cols]
 
     def dl(rows, cols, X_):
         """The loss integrand's partial by the loss state (times the classification weight)."""
@@ -697,7 +818,9 @@ def backward(run, spike_time_grad=None):
             rec = records[r]
             rr, cc = rows[sel], cols[sel]
             slot = X.search(rec.trials, rr)
-            if rec.kind == "spike":
+            if rec.kind == "quiet-end":
+                vals = [v[slot] for v in rec.x_pre]
+            elif rec.kind == "spike":
                 xp = [v[slot] for v in rec.x_pre]
                 vals = L.model.spike_jump(xp, L.pop.params, rec.time[slot])
             else:
@@ -731,8 +854,8 @@ def backward(run, spike_time_grad=None):
                 a[sel] = rec.time[X.search(rec.trials, rows[sel])]
         return a, xa
 
-    def flow_dot(L, x, t, lam_):
-        f = L.model.flow(x, L.pop.params, t)
+    def flow_dot(L, x, t, lam_, q=None):
+        f = L.flow(x, t, q)
         s = 0.0
         for i in range(L.S):
             s = s + lam_[i] * f[i]
@@ -758,29 +881,30 @@ def backward(run, spike_time_grad=None):
         h = cur[L.index][rows, cols] - a
         lam_end = [v[rows, cols] for v in lam[L.index]]
         g = [X.zeros_like(h) for _ in L.model.GRAD_PARAMS]
+        qm = mode(L, rows, cols)
         if L.needs_starts:
             _, xa = start_of(L, ref, rows, cols, step)
-            lam_start, dh, da = L.vjp(xa, a, h, lam_end, g)
+            lam_start, dh, da = L.vjp(xa, a, h, lam_end, g, qm)
             start_t = da - dh
             if L.loss_pop and integral:
                 for q in range(3):
                     u = GAUSS_NODES[q] * h
                     w = GAUSS_WEIGHTS[q]
-                    X_ = L.apply(xa, a, u)[ls]
+                    X_ = L.apply(xa, a, u, qm)[ls]
                     src = [X.zeros_like(h) for _ in range(L.S)]
                     src[ls] = h * w * dl(rows, cols, X_)
-                    back, qh, qa = L.vjp(xa, a, u, src, g)
+                    back, qh, qa = L.vjp(xa, a, u, src, g, qm)
                     lam_start = [p + b2 for p, b2 in zip(lam_start, back)]
                     start_t = start_t + qa - GAUSS_NODES[q] * qh - w * lval(rows, cols, X_)
         else:
             zero = [X.zeros_like(h) for _ in range(L.S)]
-            lam_start, _, _ = L.vjp(zero, a, h, lam_end, g)
+            lam_start, _, _ = L.vjp(zero, a, h, lam_end, g, qm)
             start_t = X.zeros_like(h)
             has = ref >= 0
             if bool(X.any(has)):
                 idx = X.nonzero1(has)
                 xp = post_state(L, ref[idx], rows[idx], cols[idx])
-                start_t[idx] = -flow_dot(L, xp, a[idx], [v[idx] for v in lam_start])
+                start_t[idx] = -flow_dot(L, xp, a[idx], [v[idx] for v in lam_start], None if qm is None else qm[idx])
         for q in range(len(g)):
             grads[L.index][q][rows, cols] = grads[L.index][q][rows, cols] + g[q]
         add_T(ref, rows, start_t, cols)
@@ -789,16 +913,17 @@ def backward(run, spike_time_grad=None):
 
     def end_term(L, rows, cols, rec_time, x_pre, ref, step, lam_end, want_rate):
         """dL/d(end time) of segments ending at an event (time per element) for lambda(e-); and dG/dh there."""
+        qm = mode(L, rows, cols)
         if not L.needs_starts:
-            rate = list(L.model.flow(x_pre, L.pop.params, rec_time)) if want_rate else None
-            return flow_dot(L, x_pre, rec_time, lam_end), rate
+            rate = L.flow(x_pre, rec_time, qm) if want_rate else None
+            return flow_dot(L, x_pre, rec_time, lam_end, qm), rate
         a, xa = start_of(L, ref, rows, cols, step)
         h = rec_time - a
-        _, s, _ = L.vjp(xa, a, h, lam_end, None)
-        rate = L.apply_rate(xa, a, h)[1] if want_rate else None
+        _, s, _ = L.vjp(xa, a, h, lam_end, None, qm)
+        rate = L.apply_rate(xa, a, h, qm)[1] if want_rate else None
         if L.loss_pop and integral:
             for q in range(3):
-                y, r = L.apply_rate(xa, a, GAUSS_NODES[q] * h)
+                y, r = L.apply_rate(xa, a, GAUSS_NODES[q] * h, qm)
                 X_ = y[ls]
                 s = s + GAUSS_WEIGHTS[q] * (lval(rows, cols, X_) + h * GAUSS_NODES[q] * dl(rows, cols, X_) * r[ls])
         return s, rate
@@ -875,9 +1000,22 @@ def backward(run, spike_time_grad=None):
                     slot = X.search(records[rec.cause].trials, rows)
                     Tsens[rec.cause] = X.index_add(Tsens[rec.cause], slot, Tsens[e])
                 event_times.append(("arrival", e, Tsens[e]))
+            elif rec.kind == "quiet-end":
+                # the end of a quiet period: no jump, lambda unchanged; its time moves with its spike
+                n = rec.neuron
+                segment_back(L, rows, n, rec.time, X.full_int(rows.shape, e), step)
+                qmode[L.index][rows, n] = True
+                lam_now = [v[rows, n] for v in lam[L.index]]
+                et, _ = end_term(L, rows, n, rec.time, rec.x_pre, rec.start, step, lam_now, False)
+                Tsens[e] = Tsens[e] + et
+                add_T(rec.cause, rows, Tsens[e])
+                for q in range(len(L.model.GRAD_PARAMS)):
+                    grads[L.index][q][rows, n] = grads[L.index][q][rows, n] + Tsens[e] * L.qdur_grad[q]
             else:
                 n = rec.neuron
                 segment_back(L, rows, n, rec.time, X.full_int(rows.shape, e), step)
+                if getattr(rec, "quiet", False):
+                    qmode[L.index][rows, n] = False  # the segment before it is in the normal mode
                 lam_post = [v[rows, n] for v in lam[L.index]]
                 out = L.model.spike_vjp(rec.x_pre, L.pop.params, rec.time, lam_post)
                 S = L.S

@@ -44,7 +44,7 @@ export function layersFile(plans: readonly KernelPlan[]): GeneratedFile {
     L.push(`class ${cls}(SpikingLayer):`);
     L.push(`    """A layer of ${doc(p.neuron.name)} neurons${p.neuron.doc ? ` (${doc(p.neuron.doc, 200)})` : ''} driven by input spikes through a dense weight.`, '');
     L.push(`    ${p.grid.guard ? `It fires when its threshold is crossed (direction ${p.grid.guard.direction}); ` : 'It never fires (give it a readout); '}` +
-      `its backward pass keeps ${p.grid.exact && !p.stateDependent ? 'the events only (memory grows with spikes, not steps)' : 'the state at every grid point as well as the events'}.`, '');
+      `its backward pass keeps ${p.grid.exact && !p.stateDependent && (!p.grid.quiet || (p.grid.quiet.exact && p.grid.quiet.segmentStates.length === 0)) ? 'the events only (memory grows with spikes, not steps)' : 'the state at every grid point as well as the events'}.`, '');
     L.push('    Parameters', '    ----------');
     const blocks = p.grid.incoming.length;
     if (blocks > 1) {

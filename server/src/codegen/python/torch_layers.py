@@ -120,6 +120,8 @@ class FrozenModel:
         self._model = model
         self.GRAD_PARAMS = ()
         self.STATE_DEPENDENT_DERIVATIVES = bool(model.STATE_DEPENDENT_DERIVATIVES) and not model.EXACT
+        quiet_exact = bool(getattr(model, "QUIET_EXACT", True))
+        self.QUIET_STATE_DEPENDENT_DERIVATIVES = bool(getattr(model, "QUIET_STATE_DEPENDENT_DERIVATIVES", False)) and not quiet_exact
 
     def __getattr__(self, name):
         kernel = getattr(self._model, name)
@@ -219,7 +221,7 @@ class GridLayerFunction(torch.autograd.Function):
                         pos.append(counts[b])
                         counts[b] += 1
                     slots[e] = torch.tensor(pos, dtype=torch.int64, device=device)
-                elif rec.cause < 0:
+                elif rec.kind == "arrival" and rec.cause < 0:
                     k, pos = rec.projection, []
                     for b in rows:
                         pos.append(order[k][b][seen_in[k][b]])
