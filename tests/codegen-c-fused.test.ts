@@ -254,3 +254,17 @@ describe.skipIf(!hasGcc)('fused population steps in single precision (--float)',
     }, 120_000);
   }
 });
+
+describe('which models get fused population steps', () => {
+  test('none for a model with a quiet period or with several incoming blocks (saltus_run runs them)', () => {
+    for (const [file, model] of [['refractory_lif.saltus', 'RefractoryLif'], ['receptors.saltus', 'Balanced']] as const) {
+      const g = generateFiles(analyse(readFileSync(join(__dirname, '..', 'samples', file), 'utf8')), { target: 'c', model });
+      expect(g.errors).toEqual([]);
+      const c = g.files.find((f) => f.name === `${model}.c`)!.content;
+      expect(c).toContain(`${model}_map_step`);
+      expect(c).not.toContain(`${model}_pop_forward`);
+    }
+    const lif = generateFiles(analyse(readFileSync(join(__dirname, '..', 'samples', 'lif_current.saltus'), 'utf8')), { target: 'c', model: 'LifCurrent' });
+    expect(lif.files.find((f) => f.name === 'LifCurrent.c')!.content).toContain('LifCurrent_pop_forward');
+  });
+});

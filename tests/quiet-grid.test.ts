@@ -436,13 +436,12 @@ print(json.dumps(rows))
   }, 600_000);
 });
 
-// ---- C (gcc -std=c99, strict flags) and the CUDA runner's host path: the C runtime does not
-// run transmission delays yet, so these networks have none ----
+// ---- C (gcc -std=c99, strict flags) and the CUDA runner's host path: quiet periods together
+// with per-synapse transmission delays and recurrence ----
 
-/** The quiet network without delays (the C and CUDA runners refuse delay_s so far) and without
- *  its second sensor -> hid projection (they take one projection per pair). */
-function noDelays(json: NetJson): NetJson {
-  return { ...json, projections: json.projections.filter((_, k) => k !== 2).map(({ delay_s: _d, ...p }) => p) };
+/** The quiet network without its second sensor -> hid projection (the C and CUDA runners take one projection per pair). */
+function onePerPair(json: NetJson): NetJson {
+  return { ...json, projections: json.projections.filter((_, k) => k !== 2) };
 }
 
 const hasGcc = spawnSync('gcc', ['--version']).status === 0;
@@ -470,10 +469,10 @@ describe.skipIf(!hasGcc)('C target with quiet periods (float64): the same spikes
   }, 120_000);
 
   const cases: [string, string, NetJson][] = [
-    ['recurrence, two trials, state-integral loss on out', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }))],
-    ['a non-linear quiet flow and a two-parameter duration, ce-integral loss on hid', VARIANT_TEXT, noDelays(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }))],
-    ['spike-time loss on hid, t_ref not a multiple of dt', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'spike-time', population: 'hid', targets_s: [0.004, 0.005] }, { t_ref: 2.33e-3 }))],
-    ['a quiet period of 0', SAMPLE_TEXT, noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: 0 }))],
+    ['recurrence, two trials, state-integral loss on out', SAMPLE_TEXT, onePerPair(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }))],
+    ['a non-linear quiet flow and a two-parameter duration, ce-integral loss on hid', VARIANT_TEXT, onePerPair(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }))],
+    ['spike-time loss on hid, t_ref not a multiple of dt', SAMPLE_TEXT, onePerPair(quietNetJson({ kind: 'spike-time', population: 'hid', targets_s: [0.004, 0.005] }, { t_ref: 2.33e-3 }))],
+    ['a quiet period of 0', SAMPLE_TEXT, onePerPair(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: 0 }))],
   ];
   cases.forEach(([label, text, json], k) => {
     test(label, () => {
@@ -488,7 +487,7 @@ describe.skipIf(!hasGcc)('C target with quiet periods (float64): the same spikes
 
 describe.skipIf(!hasGcc || !python)('a negative duration stops the generated runners with the reason', () => {
   test('C and NumPy', () => {
-    const json = noDelays(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: -1e-3 }));
+    const json = onePerPair(quietNetJson({ kind: 'state-integral', population: 'out', state: 'V', target: 0.5 }, { t_ref: -1e-3 }));
     expect(() => runC('negative', SAMPLE_TEXT, json, '0.1ms')).toThrow(/populations\.hid: the quiet period of RefractoryLif lasts -0\.001 s; a duration must not be negative/);
     expect(() => runNumpyRunner(python!, join(work, 'negative'), 'refractory_lif', SAMPLE_TEXT, json, '0.1ms')).toThrow(/hid: the quiet period lasts -0\.001 s; a duration must not be negative/);
   }, 120_000);
@@ -498,7 +497,7 @@ const hasNvcc = spawnSync('nvcc', ['--version']).status === 0;
 
 describe.skipIf(!hasNvcc)('CUDA target with quiet periods: nvcc -Werror, and the runner\'s host path', () => {
   test('saltus_run.cu --host (the __host__ __device__ runtime, quiet kernels by model id) agrees with the grid', () => {
-    const json = noDelays(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }));
+    const json = onePerPair(quietNetJson({ kind: 'ce-integral', population: 'hid', state: 'V' }));
     const net = netFromJson(json, VARIANT_TEXT);
     const dir = join(work, 'cuda');
     const g = generateFiles(analyse(VARIANT_TEXT), { target: 'cuda', network: json, source: 'refractory_lif.saltus' });

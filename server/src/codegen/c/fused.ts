@@ -18,10 +18,10 @@ import type { Kernel } from '../kernels';
 import fusedText from './saltus_fused.c?raw';
 import type { CFlavour } from './emit';
 
-/** Whether a model gets fused population steps: a guard, a spike jump and one incoming block (receptors: not yet). */
+/** Whether a model gets fused population steps: a guard, a spike jump and one incoming block (receptors and quiet periods: not yet). */
 export function hasFused(plan: KernelPlan): boolean {
   const has = (n: string): boolean => plan.kernels.some((k) => k.name === n);
-  return plan.grid.incoming.length === 1 && ['flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp', 'map_step', 'map_vjp'].every(has);
+  return plan.grid.incoming.length === 1 && !plan.neuron.quiet && ['flow', 'guard', 'guard_grad', 'spike_jump', 'spike_vjp', 'incoming_jump', 'incoming_vjp', 'map_step', 'map_vjp'].every(has);
 }
 
 /** Prints inline kernel arithmetic with step-constant subexpressions hoisted. */
