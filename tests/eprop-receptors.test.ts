@@ -1,0 +1,78 @@
+// Generated e-prop for a neuron with several incoming blocks (receptors): samples/receptors.saltus,
+// neuron Balanced (an excitatory and an inhibitory current synapse, tau_e and tau_i trainable), a
+// layer without recurrence fed through both blocks (the layer task's "blocks", docs/eprop.md).
+// e-prop (Bellec et al. 2020) computes the gradient online from eligibility traces; without
+// recurrence and with the exact learning signal it equals backpropagation through time of the
+// same discrete model, so the independent check is BPTT written by hand in PyTorch autograd
+// (float64, tests/helpers/eprop_receptors_bptt.py), to 1e-10; the TS evaluation of the derived
+// formulas (tests/helpers/eprop.ts runEpropBlocks) to 1e-12.
+import { describe, expect, it } from 'vitest';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { numpyPython, runPython, torchPython } from './helpers/python';
+import { runCli, root } from './helpers/cli';
+import { analyse } from '../server/src/pipeline';
+import { deriveEligibility } from '../server/src/eprop/index';
+import { runEpropBlocks } from './helpers/eprop';
+import { lcg as rng } from './helpers/lcg';
+
+const python = numpyPython();
+const torch = torchPython();
+const dir = mkdtempSync(join(tmpdir(), 'saltus-eprop-rec-'));
+const T = 300, N = 5, K = 2, nExc = 6, nInh = 4;
+
+/** Made-up pump-sensor trains into both synapses of 5 Balanced neurons and 2 leaky readouts. */
+function task(seed: number, trials: number) {
+  const r = rng(seed);
+  const train = (n: number, rate: number) => Array.from({ length: trials }, () => Array.from({ length: T }, () => Array.from({ length: n }, () => (r() < rate ? 1 : 0))));
+  const mat = (rows: number, cols: number, lo: number, span: number) => Array.from({ length: rows }, () => Array.from({ length: cols }, () => lo + span * r()));
+  return {
+    model: 'Balanced', kappa: Math.exp(-1e-3 / 0.02),
+    blocks: { w_exc: { inputs: train(nExc, 0.12), win: mat(N, nExc, 1, 3) }, w_inh: { inputs: train(nInh, 0.1), win: mat(N, nInh, 0.2, 1.5) } },
+    wout: mat(K, N, -0.3, 1),
+    targets: Array.from({ length: trials }, () => Array.from({ length: T }, (_, t) => [Math.sin(t / 30), Math.cos(t / 45)])),
+  };
+}
+
+const maxRel = (a: number[], b: number[]): number => Math.max(...a.map((v, i) => Math.abs(v - b[i]!))) / Math.max(...b.map(Math.abs));
+
+describe('generated e-prop with several incoming blocks (NumPy target)', () => {
+  it.skipIf(!python || !torch)('equals PyTorch autograd BPTT (1e-10) and the TS reference (1e-12): each block\'s weights, tau_e, tau_i', () => {
+    const r = runCli(['generate', 'samples/receptors.saltus', '--target', 'numpy', '--out', dir, '--network', 'samples/scenarios/receptors.json']);
+    expect(r.code, r.stderr).toBe(0);
+    const t = task(2027, 1);
+    writeFileSync(join(dir, 'task.json'), JSON.stringify(t));
+    const got = JSON.parse(runPython(python!, ['run.py', 'task.json', '--dt', '1ms', '--rule', 'eprop', '--format', 'json'], dir)) as
+      { loss: number; spikes: number; weights: Record<string, number[][]>; params: Record<string, number> };
+    const n = analyse(readFileSync(join(root, 'samples', 'receptors.saltus'), 'utf8')).model.neurons.find((x) => x.name === 'Balanced')!;
+    const params = Object.fromEntries(n.params.map((p) => [p.name, p.valueSI!]));
+    const blocks = Object.entries(t.blocks).map(([weight, b]) => ({ weight, inputs: b.inputs[0]!, win: b.win }));
+    const problem = { dt: 1e-3, T, kappa: t.kappa, params, blocks, wout: t.wout, targets: t.targets[0]! };
+    const want = JSON.parse(runPython(torch!, [join(__dirname, 'helpers', 'eprop_receptors_bptt.py')], root, JSON.stringify(problem))) as
+      { loss: number; spikes: number; gradWin: Record<string, number[][]>; gradParams: Record<string, number> };
+    const ts = runEpropBlocks(n, deriveEligibility(n), problem);
+    expect(got.spikes).toBe(want.spikes);
+    expect(ts.spikes).toBe(want.spikes);
+    expect(got.spikes).toBeGreaterThan(20);
+    expect(Math.abs(got.loss - want.loss) / want.loss).toBeLessThan(1e-12);
+    const lines: string[] = [];
+    for (const w of ['w_exc', 'w_inh']) {
+      const a = got.weights[w]!.flat();
+      expect(Math.max(...a.map(Math.abs))).toBeGreaterThan(0);
+      const vsTorch = maxRel(a, want.gradWin[w]!.flat()), vsTs = maxRel(a, ts.gradWin[w]!.flat());
+      lines.push(`${w}: ${vsTorch.toExponential(2)} vs BPTT, ${vsTs.toExponential(2)} vs TS`);
+      expect(vsTorch).toBeLessThan(1e-10);
+      expect(vsTs).toBeLessThan(1e-12);
+    }
+    for (const q of ['tau_e', 'tau_i']) {
+      expect(got.params[q]).not.toBe(0);
+      const vsTorch = Math.abs(got.params[q]! - want.gradParams[q]!) / Math.abs(want.gradParams[q]!);
+      const vsTs = Math.abs(got.params[q]! - ts.gradParams[q]!) / Math.abs(ts.gradParams[q]!);
+      lines.push(`${q}: ${vsTorch.toExponential(2)} vs BPTT, ${vsTs.toExponential(2)} vs TS`);
+      expect(vsTorch).toBeLessThan(1e-10);
+      expect(vsTs).toBeLessThan(1e-12);
+    }
+    console.log(`generated e-prop, two receptors, ${got.spikes} spikes; max rel. differences: ${lines.join('; ')}`);
+  }, 180_000);
+});
