@@ -5,9 +5,10 @@
 // recurrence and with the exact learning signal it equals backpropagation through time of the
 // same discrete model, so the independent check is BPTT written by hand in PyTorch autograd
 // (float64, tests/helpers/eprop_receptors_bptt.py), to 1e-10; the TS evaluation of the derived
-// formulas (tests/helpers/eprop.ts runEpropBlocks) to 1e-12.
+// formulas (tests/helpers/eprop.ts runEpropBlocks) to 1e-12. The PyTorch target's layer
+// (via both blocks, `eprop` into each block's weight `.grad`) equals the NumPy figures to 1e-12.
 import { describe, expect, it } from 'vitest';
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { numpyPython, runPython, torchPython } from './helpers/python';
@@ -34,6 +35,26 @@ function task(seed: number, trials: number) {
     targets: Array.from({ length: trials }, () => Array.from({ length: T }, (_, t) => [Math.sin(t / 30), Math.cos(t / 45)])),
   };
 }
+
+/** The generated torch package used as a user would: the layer fed through both blocks, its eprop method. */
+const LAYER_SCRIPT = (base: string) => `
+import json, sys, torch
+sys.path.insert(0, ${JSON.stringify(base)})
+import rec_pkg as pkg
+t = json.load(sys.stdin)
+via = ["w_exc", "w_inh"]
+win = {v: torch.tensor(t["blocks"][v]["win"], dtype=torch.float64) for v in via}
+inputs = [torch.tensor(t["blocks"][v]["inputs"], dtype=torch.float64) for v in via]
+wout, targets = torch.tensor(t["wout"], dtype=torch.float64), torch.tensor(t["targets"], dtype=torch.float64)
+layer = pkg.BalancedLayer([win[v].shape[1] for v in via], win["w_exc"].shape[0], 1e-3, inputs[0].shape[1] * 1e-3, via=via)
+with torch.no_grad():
+    for v in via:
+        layer.weights[v].copy_(win[v])
+readout = torch.nn.Parameter(wout.clone())
+out = layer.eprop(inputs, targets, readout, t["kappa"])
+print(json.dumps({"loss": out["loss"], "spikes": out["spikes"], "weights": {v: layer.weights[v].grad.tolist() for v in via},
+                  "readout": readout.grad.tolist(), "params": {k: p.grad.item() for k, p in layer.model_params.items()}}))
+`;
 
 const maxRel = (a: number[], b: number[]): number => Math.max(...a.map((v, i) => Math.abs(v - b[i]!))) / Math.max(...b.map(Math.abs));
 
@@ -75,4 +96,26 @@ describe('generated e-prop with several incoming blocks (NumPy target)', () => {
     }
     console.log(`generated e-prop, two receptors, ${got.spikes} spikes; max rel. differences: ${lines.join('; ')}`);
   }, 180_000);
+
+  it.skipIf(!python || !torch)('the PyTorch layer fed through both blocks puts the NumPy gradients (1e-12) in each block\'s weight .grad', () => {
+    const base = mkdtempSync(join(tmpdir(), 'saltus-eprop-rec-torch-'));
+    const np = join(base, 'np'), pkg = join(base, 'rec_pkg');
+    for (const [target, out] of [['numpy', np], ['torch', pkg]] as const) {
+      mkdirSync(out, { recursive: true });
+      const r = runCli(['generate', 'samples/receptors.saltus', '--target', target, '--out', out, '--network', 'samples/scenarios/receptors.json', '--force']);
+      expect(r.code, r.stderr).toBe(0);
+    }
+    const t = task(77, 2);
+    writeFileSync(join(np, 'task.json'), JSON.stringify(t));
+    const want = JSON.parse(runPython(python!, ['run.py', 'task.json', '--dt', '1ms', '--rule', 'eprop', '--format', 'json'], np)) as
+      { loss: number; spikes: number; weights: Record<string, number[][]>; readout: number[][]; params: Record<string, number> };
+    const got = JSON.parse(runPython(torch!, ['-c', LAYER_SCRIPT(base)], base, JSON.stringify(t))) as typeof want;
+    expect(got.spikes).toBe(want.spikes);
+    expect(got.spikes).toBeGreaterThan(20);
+    expect(Math.abs(got.loss - want.loss) / want.loss).toBeLessThan(1e-12);
+    const diffs = [...['w_exc', 'w_inh'].map((w) => maxRel(got.weights[w]!.flat(), want.weights[w]!.flat())), maxRel(got.readout.flat(), want.readout.flat()),
+      ...['tau_e', 'tau_i'].map((q) => Math.abs(got.params[q]! - want.params[q]!) / Math.abs(want.params[q]!))];
+    console.log(`torch layer vs NumPy e-prop, two receptors: ${got.spikes} spikes; max rel. differences w_exc, w_inh, readout, tau_e, tau_i: ${diffs.map((d) => d.toExponential(2)).join(', ')}`);
+    for (const d of diffs) expect(d).toBeLessThan(1e-12);
+  }, 300_000);
 });
