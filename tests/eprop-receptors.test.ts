@@ -118,4 +118,30 @@ describe('generated e-prop with several incoming blocks (NumPy target)', () => {
     console.log(`torch layer vs NumPy e-prop, two receptors: ${got.spikes} spikes; max rel. differences w_exc, w_inh, readout, tau_e, tau_i: ${diffs.map((d) => d.toExponential(2)).join(', ')}`);
     for (const d of diffs) expect(d).toBeLessThan(1e-12);
   }, 300_000);
+
+  it.skipIf(!python || !torch)('a network description follows each projection\'s "via": equals PyTorch autograd BPTT of the same discrete network (1e-10)', () => {
+    const out = join(dir, 'net');
+    mkdirSync(out, { recursive: true });
+    const r = runCli(['generate', 'samples/receptors.saltus', '--target', 'numpy', '--out', out, '--network', 'samples/scenarios/receptors.json', '--force']);
+    expect(r.code, r.stderr).toBe(0);
+    const scenario = JSON.parse(readFileSync(join(root, 'samples', 'scenarios', 'receptors.json'), 'utf8')) as
+      { populations: Record<string, unknown>; projections: { from: string; to: string; via?: string }[] };
+    // the scenario without its recurrent projection (e-prop leaves recurrent paths out by design)
+    const net = { ...scenario, projections: scenario.projections.filter((p) => !(p.from === 'hid' && p.to === 'hid')) };
+    expect(net.projections.map((p) => p.via)).toEqual(['w_exc', 'w_inh', undefined]);
+    writeFileSync(join(out, 'net.json'), JSON.stringify(net));
+    const got = JSON.parse(runPython(python!, ['run.py', 'net.json', '--dt', '0.1ms', '--rule', 'eprop', '--format', 'json'], out)) as
+      { loss: number; weights: number[][][]; params: Record<string, number>; spikes: Record<string, number[][]> };
+    const model = analyse(readFileSync(join(root, 'samples', 'receptors.saltus'), 'utf8')).model;
+    const vals = (name: string): Record<string, number> => Object.fromEntries(model.neurons.find((n) => n.name === name)!.params.map((p) => [p.name, p.valueSI!]));
+    const want = JSON.parse(runPython(torch!, [join(__dirname, 'helpers', 'eprop_net_receptors_bptt.py')], root,
+      JSON.stringify({ net, dt: 1e-4, params: vals('Balanced'), readout: vals('Readout') }))) as { loss: number; weights: number[][][]; params: Record<string, number>; spikes: number };
+    expect(got.spikes.hid!.length).toBe(want.spikes);
+    expect(want.spikes).toBeGreaterThan(3);
+    expect(Math.abs(got.loss - want.loss) / want.loss).toBeLessThan(1e-12);
+    const diffs = [...got.weights.map((w, j) => maxRel(w.flat(), want.weights[j]!.flat())),
+      ...['hid.tau_e', 'hid.tau_i'].map((q) => Math.abs(got.params[q]! - want.params[q]!) / Math.abs(want.params[q]!))];
+    console.log(`network e-prop via both blocks vs BPTT: ${want.spikes} spikes; max rel. differences sensor->hid (w_exc, w_inh), hid->out, tau_e, tau_i: ${diffs.map((d) => d.toExponential(2)).join(', ')}`);
+    for (const d of diffs) expect(d).toBeLessThan(1e-10);
+  }, 180_000);
 });
