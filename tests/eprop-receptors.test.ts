@@ -144,4 +144,16 @@ describe('generated e-prop with several incoming blocks (NumPy target)', () => {
     console.log(`network e-prop via both blocks vs BPTT: ${want.spikes} spikes; max rel. differences sensor->hid (w_exc, w_inh), hid->out, tau_e, tau_i: ${diffs.map((d) => d.toExponential(2)).join(', ')}`);
     for (const d of diffs) expect(d).toBeLessThan(1e-10);
   }, 180_000);
+
+  it.skipIf(!python)('refuses a layer task naming no block of the model, or blocks of different lengths, with a sentence', () => {
+    const out = join(dir, 'bad');
+    mkdirSync(out, { recursive: true });
+    const r = runCli(['generate', 'samples/receptors.saltus', '--target', 'numpy', '--out', out, '--network', 'samples/scenarios/receptors.json', '--force']);
+    expect(r.code, r.stderr).toBe(0);
+    const t = task(5, 1);
+    const run = (x: unknown) => { writeFileSync(join(out, 'task.json'), JSON.stringify(x)); return () => runPython(python!, ['run.py', 'task.json', '--dt', '1ms', '--rule', 'eprop'], out); };
+    expect(run({ ...t, blocks: { w_gaba: t.blocks.w_inh } })).toThrow(/blocks\.w_gaba: Balanced has no incoming block with the weight w_gaba \(its blocks: w_exc, w_inh\)/);
+    expect(run({ ...t, blocks: { ...t.blocks, w_inh: { ...t.blocks.w_inh, inputs: [t.blocks.w_inh.inputs[0]!.slice(0, 10)] } } }))
+      .toThrow(/blocks\.w_inh: inputs must be 1 trials x 300 steps/);
+  }, 120_000);
 });

@@ -103,13 +103,13 @@ export function epropC(plan: KernelPlan, f: Flavour): { lines: string[]; hasTrac
  * Why a model's C/CUDA files carry no e-prop functions, or undefined. Besides a model without
  * traces: a step map that is not exact (the exponential Runge-Kutta map), whose eligibility
  * formulas print to hundreds of kilobytes of C (AdEx: about 800 kB, 24 s of gcc -O2); the NumPy
- * and PyTorch targets have them; and several incoming blocks, as in the Python targets (the
- * generated e-prop layer feeds one block).
+ * and PyTorch targets have them; and several incoming blocks (receptors): the C layer runtime
+ * (saltus_eprop.c) feeds one block, while the NumPy and PyTorch targets feed them all.
  */
 export function whyNoCEprop(plan: KernelPlan): string | undefined {
   const d = eligibilityFor(plan.neuron);
   if (d.notDerived) return d.notDerived;
-  if (plan.neuron.receptors.length > 1) return `${plan.neuron.name} has ${plan.neuron.receptors.length} incoming blocks: the generated e-prop layer feeds one block (saltus eligibility derives them all)`;
+  if (plan.neuron.receptors.length > 1) return `${plan.neuron.name} has ${plan.neuron.receptors.length} incoming blocks: the C e-prop runtime feeds one block (the NumPy and PyTorch targets feed them all)`;
   if (d.scheme !== 'exact') return `its step map is not exact (${d.scheme}): its e-prop formulas are generated for the NumPy and PyTorch targets only`;
   return undefined;
 }

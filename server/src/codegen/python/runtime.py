@@ -1059,6 +1059,9 @@ def eprop_layer(model, task, params=None, feedback="exact", seed=0):
     B, T = len(fed[0][2]), len(fed[0][2][0])
     nIns = [len(b[2][0][0]) for b in fed]
     N, K, S = len(fed[0][3]), len(task["wout"]), len(model.STATES)
+    for (_, w, a, m) in fed[1:]:
+        if len(a) != B or len(a[0]) != T or len(m) != N:
+            raise GridError("blocks.%s: inputs must be %d trials x %d steps and win %d rows, as the first block's" % (w, B, T, N))
     fb = _feedback(feedback, wout, seed)
     x = [X.full((B, N), float(model.INITIAL[s])) for s in model.STATES]
     qs = list(enumerate(model.EPROP))
