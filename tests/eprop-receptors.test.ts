@@ -6,9 +6,11 @@
 // same discrete model, so the independent check is BPTT written by hand in PyTorch autograd
 // (float64, tests/helpers/eprop_receptors_bptt.py), to 1e-10; the TS evaluation of the derived
 // formulas (tests/helpers/eprop.ts runEpropBlocks) to 1e-12. The PyTorch target's layer
-// (via both blocks, `eprop` into each block's weight `.grad`) equals the NumPy figures to 1e-12.
+// (via both blocks, `eprop` into each block's weight `.grad`) equals the NumPy figures to 1e-12,
+// and so does the C runner (`saltus_run --rule eprop`, gcc's strict flags as tests/eprop-c.test.ts).
 import { describe, expect, it } from 'vitest';
-import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { spawnSync } from 'node:child_process';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { numpyPython, runPython, torchPython } from './helpers/python';
@@ -156,4 +158,46 @@ describe('generated e-prop with several incoming blocks (NumPy target)', () => {
     expect(run({ ...t, blocks: { ...t.blocks, w_inh: { ...t.blocks.w_inh, inputs: [t.blocks.w_inh.inputs[0]!.slice(0, 10)] } } }))
       .toThrow(/blocks\.w_inh: inputs must be 1 trials x 300 steps/);
   }, 120_000);
+
+  it.skipIf(!python || spawnSync('gcc', ['--version']).status !== 0)('the C runner (gcc strict flags) gives the NumPy gradients of both blocks (1e-12), and trains them', () => {
+    const np = join(dir, 'np-c'), c = join(dir, 'c');
+    for (const [target, out] of [['numpy', np], ['c', c]] as const) {
+      mkdirSync(out, { recursive: true });
+      const r = runCli(['generate', 'samples/receptors.saltus', '--target', target, '--out', out, '--network', 'samples/scenarios/receptors.json', '--force']);
+      expect(r.code, r.stderr).toBe(0);
+    }
+    const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic', ...readdirSync(c).filter((f) => f.endsWith('.c')), '-lm', '-o', 'saltus_run'], { cwd: c, encoding: 'utf8' });
+    expect(cc.status, cc.stderr).toBe(0);
+    expect(cc.stderr).toBe('');
+    const t = task(31, 2);
+    writeFileSync(join(np, 'task.json'), JSON.stringify(t));
+    writeFileSync(join(c, 'task.json'), JSON.stringify(t));
+    const runC = (extra: string[] = []) => spawnSync(join(c, 'saltus_run'), ['task.json', '--dt', '1ms', '--rule', 'eprop', '--format', 'json', ...extra], { cwd: c, encoding: 'utf8', maxBuffer: 1 << 26 });
+    const rc = runC();
+    expect(rc.status, rc.stderr).toBe(0);
+    type G = { loss: number; spikes: number; weights: Record<string, number[][]>; readout: number[][]; params: Record<string, number> };
+    const got = JSON.parse(rc.stdout) as G;
+    const want = JSON.parse(runPython(python!, ['run.py', 'task.json', '--dt', '1ms', '--rule', 'eprop', '--format', 'json'], np)) as G;
+    expect(got.spikes).toBe(want.spikes);
+    expect(got.spikes).toBeGreaterThan(20);
+    expect(Object.keys(got.weights)).toEqual(['w_exc', 'w_inh']);
+    expect(Math.abs(got.loss - want.loss) / want.loss).toBeLessThan(1e-12);
+    const diffs = [...['w_exc', 'w_inh'].map((w) => maxRel(got.weights[w]!.flat(), want.weights[w]!.flat())), maxRel(got.readout.flat(), want.readout.flat()),
+      ...['tau_e', 'tau_i'].map((q) => Math.abs(got.params[q]! - want.params[q]!) / Math.abs(want.params[q]!))];
+    console.log(`C vs NumPy e-prop, two receptors: ${got.spikes} spikes; max rel. differences w_exc, w_inh, readout, tau_e, tau_i: ${diffs.map((d) => d.toExponential(2)).join(', ')}`);
+    for (const d of diffs) expect(d).toBeLessThan(1e-12);
+    // training both blocks' weights: the C and NumPy losses per epoch agree, and fall
+    const ce = runC(['--epochs', '6', '--lr', '2e-5']);
+    expect(ce.status, ce.stderr).toBe(0);
+    const lc = (JSON.parse(ce.stdout) as { losses: number[] }).losses;
+    const ln = (JSON.parse(runPython(python!, ['run.py', 'task.json', '--dt', '1ms', '--rule', 'eprop', '--format', 'json', '--epochs', '6', '--lr', '2e-5'], np)) as { losses: number[] }).losses;
+    console.log(`e-prop training through both blocks, losses (C): ${lc.map((l) => l.toFixed(1)).join(' ')}`);
+    lc.forEach((l, i) => expect(Math.abs(l - ln[i]!) / ln[i]!).toBeLessThan(1e-9));
+    expect(lc.at(-1)!).toBeLessThan(lc[0]!);
+    // a block name the model lacks is refused with a sentence
+    writeFileSync(join(c, 'task.json'), JSON.stringify({ ...t, blocks: { w_gaba: t.blocks.w_inh } }));
+    const bad = runC();
+    expect(bad.status).toBe(2);
+    expect(bad.stderr).toMatch(/blocks\.w_gaba: Balanced has no incoming block with this weight/);
+  }, 180_000);
 });
