@@ -200,4 +200,30 @@ describe('generated e-prop with several incoming blocks (NumPy target)', () => {
     expect(bad.status).toBe(2);
     expect(bad.stderr).toMatch(/blocks\.w_gaba: Balanced has no incoming block with this weight/);
   }, 180_000);
+
+  const nvcc = ['nvcc', '/usr/local/bin/nvcc'].find((x) => spawnSync(x, ['--version']).status === 0);
+  it.skipIf(!nvcc || spawnSync('gcc', ['--version']).status !== 0)('saltus_run.cu of the receptors sample compiles with nvcc (warnings as errors); its host e-prop gives the C figures', () => {
+    const cu = join(dir, 'cu'), c = join(dir, 'cu-c');
+    for (const [target, out] of [['cuda', cu], ['c', c]] as const) {
+      mkdirSync(out, { recursive: true });
+      const r = runCli(['generate', 'samples/receptors.saltus', '--target', target, '--out', out, '--network', 'samples/scenarios/receptors.json', '--force']);
+      expect(r.code, r.stderr).toBe(0);
+    }
+    const b = spawnSync(nvcc!, ['-O2', '-Werror', 'all-warnings', '-Xcompiler', '-Wall,-Wextra', '-o', 'saltus_run', 'saltus_run.cu'], { cwd: cu, encoding: 'utf8' });
+    expect(b.status, b.stderr).toBe(0);
+    const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-pedantic', ...readdirSync(c).filter((f) => f.endsWith('.c')), '-lm', '-o', 'saltus_run'], { cwd: c, encoding: 'utf8' });
+    expect(cc.status, cc.stderr).toBe(0);
+    writeFileSync(join(dir, 'cu-task.json'), JSON.stringify(task(13, 1)));
+    const args = [join(dir, 'cu-task.json'), '--dt', '1ms', '--rule', 'eprop', '--format', 'json'];
+    const r = spawnSync(join(cu, 'saltus_run'), args, { cwd: cu, encoding: 'utf8', maxBuffer: 1 << 26 });
+    if (r.status !== 0 && /CUDA|cuda|driver/.test(r.stderr)) { console.log(`skipped running the CUDA binary: ${r.stderr.trim()}`); return; }
+    expect(r.status, r.stderr).toBe(0);
+    const want = spawnSync(join(c, 'saltus_run'), args, { cwd: c, encoding: 'utf8', maxBuffer: 1 << 26 });
+    type G = { loss: number; spikes: number; weights: Record<string, number[][]>; params: Record<string, number> };
+    const got = JSON.parse(r.stdout) as G, ref = JSON.parse(want.stdout) as G;
+    expect(got.spikes).toBe(ref.spikes);
+    expect(Math.abs(got.loss - ref.loss) / ref.loss).toBeLessThan(1e-12);
+    for (const w of ['w_exc', 'w_inh']) expect(maxRel(got.weights[w]!.flat(), ref.weights[w]!.flat())).toBeLessThan(1e-12);
+    for (const q of ['tau_e', 'tau_i']) expect(Math.abs(got.params[q]! - ref.params[q]!) / Math.abs(ref.params[q]!)).toBeLessThan(1e-12);
+  }, 300_000);
 });
