@@ -2,7 +2,9 @@
  * order of the derivation: spike test, eligibility update and trace per synapse (the weight)
  * and per neuron (each trained parameter) on the state at the start of the step, the spike
  * jump and flow, the arrivals of the step's input spikes, then the readout, its error, the
- * learning signal and the gradient sums. */
+ * learning signal and the gradient sums. A model with several incoming blocks takes the _k
+ * functions: each input's block (task->in_block) picks its weight quantity and arrival map, its
+ * own input is that block's z_pre and the other blocks' is whether any of their inputs arrived. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
