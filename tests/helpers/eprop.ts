@@ -117,3 +117,102 @@ export function runEprop(n: ResolvedNeuron, d: EligibilityDerivation, p: LayerPr
   }
   return { loss, gradWin, gradParams, spikes: z.flat().reduce((a, b) => a + b, 0) };
 }
+
+/** One incoming block (receptor) of a layer with several: its weight name, input trains and weights. */
+export interface BlockInput { weight: string; inputs: number[][]; win: number[][] }
+
+export interface BlocksResult { loss: number; gradWin: Record<string, number[][]>; gradParams: Record<string, number>; spikes: number }
+
+/**
+ * runEprop for a neuron with several incoming blocks (receptors, eprop/derive.ts), without
+ * recurrence: each block k has its own input trains and weights; its arrival symbol in the
+ * step (`receptors[k].arrival`) is the synapse's input for its own weight's eligibility and
+ * "any input of block k in this step" elsewhere (the other weights' and the parameters'); the
+ * state takes the step, then each block's arrivals (`receptors[k].next`) in the order written.
+ */
+export function runEpropBlocks(n: ResolvedNeuron, d: EligibilityDerivation, p: Omit<LayerProblem, 'inputs' | 'win' | 'wrec'> & { blocks: BlockInput[] }): BlocksResult {
+  const X = d.states;
+  const params = n.params.map((q) => q.name);
+  const rec = d.receptors;
+  const names = [...X, ...params, 't', 'dt', SPIKE, PSEUDO, ...rec.map((r) => r.arrival), ...rec.map((r) => r.weight), ...X.map(eligibilityName)];
+  const idx = (s: string): number => names.indexOf(s);
+  const c = (s: Parameters<typeof compile>[0]) => compile(s, names);
+  const step = d.step.map(c), guard = c(d.guard), psi = c(d.psi);
+  const arrive = rec.map((r) => r.next.map(c));
+  const qs = d.quantities.map((q) => ({ q, update: q.update.map(c), trace: c(q.trace) }));
+  const blocks = p.blocks.map((b) => ({ ...b, k: rec.findIndex((r) => r.weight === b.weight) }));
+  if (blocks.some((b) => b.k < 0)) throw new Error(`${n.name} has no block ${blocks.find((b) => b.k < 0)!.weight}`);
+  blocks.sort((a, b) => a.k - b.k);
+  const nHid = p.wout[0]!.length, nOut = p.wout.length;
+  const vals = new Float64Array(names.length);
+  for (const q of n.params) vals[idx(q.name)] = q.valueSI!;
+  vals[idx('dt')] = p.dt;
+  const x = Array.from({ length: nHid }, () => n.states.map((s) => s.initialSI));
+  const epsW = blocks.map((b) => Array.from({ length: nHid }, () => Array.from({ length: b.win[0]!.length }, () => new Float64Array(X.length))));
+  const pq = qs.filter((e) => e.q.kind === 'param');
+  const epsP = pq.map(() => Array.from({ length: nHid }, () => new Float64Array(X.length)));
+  const traceW: number[][][][] = []; // [t][block][j][i]
+  const traceP: number[][][] = []; // [t][param][j]
+  const z: number[][] = [];
+  for (let t = 0; t < p.T; t++) {
+    const zt: number[] = [], tw: number[][][] = blocks.map(() => []), tp: number[][] = epsP.map(() => []);
+    vals[idx('t')] = t * p.dt;
+    const anyK = rec.map((_, k) => { const b = blocks.find((bb) => bb.k === k); return b && b.inputs[t]!.some((v) => v) ? 1 : 0; });
+    for (let j = 0; j < nHid; j++) {
+      X.forEach((s, m) => { vals[idx(s)] = x[j]![m]!; });
+      zt.push(guard(vals) > 0 ? 1 : 0);
+    }
+    for (let j = 0; j < nHid; j++) {
+      X.forEach((s, m) => { vals[idx(s)] = x[j]![m]!; });
+      vals[idx(SPIKE)] = zt[j]!;
+      vals[idx(PSEUDO)] = psi(vals);
+      const setAll = (): void => rec.forEach((r, k) => { vals[idx(r.arrival)] = anyK[k]!; vals[idx(r.weight)] = 0; });
+      blocks.forEach((b, m) => {
+        const wq = qs.find((e) => e.q.kind === 'weight' && e.q.name === b.weight)!;
+        const row: number[] = [];
+        for (let i = 0; i < b.win[0]!.length; i++) {
+          setAll();
+          X.forEach((s, r) => { vals[idx(eligibilityName(s))] = epsW[m]![j]![i]![r]!; });
+          vals[idx(b.weight)] = b.win[j]![i]!;
+          row.push(wq.trace(vals));
+          vals[idx(rec[b.k]!.arrival)] = b.inputs[t]![i]!;
+          epsW[m]![j]![i]!.set(wq.update.map((u) => u(vals)));
+        }
+        tw[m]!.push(row);
+      });
+      pq.forEach((e, m) => {
+        setAll();
+        X.forEach((s, r) => { vals[idx(eligibilityName(s))] = epsP[m]![j]![r]!; });
+        tp[m]!.push(e.trace(vals));
+        epsP[m]![j]!.set(e.update.map((u) => u(vals)));
+      });
+      let cur = step.map((f) => f(vals));
+      for (const b of blocks) {
+        for (let i = 0; i < b.win[0]!.length; i++) {
+          if (!b.inputs[t]![i]) continue;
+          X.forEach((s, m) => { vals[idx(s)] = cur[m]!; });
+          vals[idx(b.weight)] = b.win[j]![i]!;
+          cur = arrive[b.k]!.map((f) => f(vals));
+        }
+      }
+      x[j] = cur;
+    }
+    z.push(zt); traceW.push(tw); traceP.push(tp);
+  }
+  const y: number[][] = [new Array(nOut).fill(0)];
+  for (let t = 0; t < p.T; t++) y.push(y[t]!.map((v, k) => p.kappa * v + p.wout[k]!.reduce((a, w, j) => a + w * z[t]![j]!, 0)));
+  let loss = 0;
+  for (let t = 1; t <= p.T; t++) for (let k = 0; k < nOut; k++) loss += 0.5 * (y[t]![k]! - p.targets[t - 1]![k]!) ** 2;
+  const G: number[][] = Array.from({ length: p.T + 2 }, () => new Array(nOut).fill(0));
+  for (let t = p.T; t >= 1; t--) for (let k = 0; k < nOut; k++) G[t]![k] = (y[t]![k]! - p.targets[t - 1]![k]!) + p.kappa * G[t + 1]![k]!;
+  const gradWin: Record<string, number[][]> = Object.fromEntries(blocks.map((b) => [b.weight, b.win.map((r) => r.map(() => 0))]));
+  const gradParams: Record<string, number> = Object.fromEntries(pq.map((e) => [e.q.name, 0]));
+  for (let t = 0; t < p.T; t++) {
+    for (let j = 0; j < nHid; j++) {
+      const L = p.wout.reduce((a, row, k) => a + row[j]! * G[t + 1]![k]!, 0);
+      blocks.forEach((b, m) => { for (let i = 0; i < b.win[0]!.length; i++) gradWin[b.weight]![j]![i]! += L * traceW[t]![m]![j]![i]!; });
+      pq.forEach((e, m) => { gradParams[e.q.name]! += L * traceP[t]![m]![j]!; });
+    }
+  }
+  return { loss, gradWin, gradParams, spikes: z.flat().reduce((a, b) => a + b, 0) };
+}

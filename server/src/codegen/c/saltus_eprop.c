@@ -2,7 +2,9 @@
  * order of the derivation: spike test, eligibility update and trace per synapse (the weight)
  * and per neuron (each trained parameter) on the state at the start of the step, the spike
  * jump and flow, the arrivals of the step's input spikes, then the readout, its error, the
- * learning signal and the gradient sums. */
+ * learning signal and the gradient sums. A model with several incoming blocks takes the _k
+ * functions: each input's block (task->in_block) picks its weight quantity and arrival map, its
+ * own input is that block's z_pre and the other blocks' is whether any of their inputs arrived. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -35,19 +37,29 @@ int saltus_eprop_layer(const saltus_eprop_model *em, const saltus_eprop_task *tk
 {
     const saltus_model *M = em->model;
     const int S = M->n_states, N = tk->N, nI = tk->n_in, K = tk->K, Q = em->n_q;
+    const int nb = em->n_blocks > 1 ? em->n_blocks : 0; /* several blocks: the _k functions */
     const size_t syn = (size_t)N * (size_t)nI;
-    int wq = -1, q, b, t, n, i, k, s;
+    int wq = -1, nw = 0, q, b, t, n, i, k, s;
     size_t reals;
-    saltus_real *mem, *eps_w, *ebar_w, *eps_p, *ebar_p, *x, *y, *zbar, *z, *psi, *L, *err_k, *tmp, *nx, *xs;
+    saltus_real *mem, *eps_w, *ebar_w, *eps_p, *ebar_p, *x, *y, *zbar, *z, *psi, *L, *err_k, *tmp, *nx, *xs, *anyb, *zk, *wk;
     memset(out, 0, sizeof *out);
     if (Q == 0) {
         snprintf(err, cap, "%s has no e-prop traces: %s", M->name, em->none ? em->none : "no surrogate");
         return -1;
     }
-    for (q = 0; q < Q; q++) if (em->q_kind[q] == 0) wq = q;
+    for (q = 0; q < Q; q++) if (em->q_kind[q] == 0) { wq = q; nw++; }
+    if (nb && (!em->update_k || !em->trace_k || !em->arrive_k || !em->block_q)) {
+        snprintf(err, cap, "%s: its e-prop table lacks the functions of several incoming blocks", M->name);
+        return -1;
+    }
+    for (i = 0; nb && tk->in_block && i < nI; i++)
+        if (tk->in_block[i] < 0 || tk->in_block[i] >= nb || (i && tk->in_block[i] < tk->in_block[i - 1])) {
+            snprintf(err, cap, "input %d: its block index %d is out of range or out of order", i, tk->in_block[i]);
+            return -1;
+        }
     /* per trial: eps_w S x syn, ebar_w syn, eps_p Q x S x N, ebar_p Q x N, x S x N, y K, zbar N,
        z, psi, L N, err K, three scratch vectors of S */
-    reals = (size_t)S * syn + syn + (size_t)Q * S * N + (size_t)Q * N + (size_t)S * N + K + 4 * (size_t)N + K + 3 * (size_t)S;
+    reals = (size_t)S * syn + syn + (size_t)Q * S * N + (size_t)Q * N + (size_t)S * N + K + 4 * (size_t)N + K + 3 * (size_t)S + 3 * (size_t)nb;
     mem = (saltus_real *)calloc(reals, sizeof(saltus_real));
     out->grad_w = (saltus_real *)calloc(syn ? syn : 1, sizeof(saltus_real));
     out->grad_out = (saltus_real *)calloc((size_t)K * N + 1, sizeof(saltus_real));
@@ -72,9 +84,12 @@ int saltus_eprop_layer(const saltus_eprop_model *em, const saltus_eprop_task *tk
     tmp = err_k + K;
     nx = tmp + S;
     xs = nx + S;
+    anyb = xs + S; /* per block: any input there in this step; then the z_pre and weight vectors */
+    zk = anyb + nb;
+    wk = zk + nb;
     /* what the planner counts (plan/plan.ts, e-prop): eligibility vectors and filtered traces of
        the weight and the parameters, the current state, the gradient sums */
-    out->kept_bytes = sizeof(saltus_real) * ((size_t)S * syn + syn + (size_t)(Q - (wq >= 0)) * ((size_t)S * N + N) + (size_t)S * N + syn + (size_t)(Q - (wq >= 0)));
+    out->kept_bytes = sizeof(saltus_real) * ((size_t)S * syn + syn + (size_t)(Q - nw) * ((size_t)S * N + N) + (size_t)S * N + syn + (size_t)(Q - nw));
     for (b = 0; b < tk->B; b++) {
         memset(mem, 0, reals * sizeof(saltus_real));
         for (n = 0; n < N; n++) for (s = 0; s < S; s++) x[(size_t)s * N + n] = M->initial[s];
@@ -84,13 +99,28 @@ int saltus_eprop_layer(const saltus_eprop_model *em, const saltus_eprop_task *tk
             const saltus_real *tg = tk->targets + ((size_t)b * tk->T + t) * K;
             saltus_real anyin = 0, sp[2], e;
             for (i = 0; i < nI; i++) if (in[i] > 0) anyin = 1;
+            for (k = 0; k < nb; k++) anyb[k] = 0;
+            for (i = 0; i < nI && nb; i++) if (in[i] > 0) anyb[tk->in_block ? tk->in_block[i] : 0] = 1;
             for (n = 0; n < N; n++) {
                 for (s = 0; s < S; s++) xs[s] = x[(size_t)s * N + n];
                 em->spike(xs, tk->params, tt, sp);
                 z[n] = sp[0];
                 psi[n] = sp[1];
                 out->spikes += sp[0] > 0;
-                if (wq >= 0) {
+                if (nb) {
+                    for (i = 0; i < nI; i++) {
+                        const size_t j = (size_t)n * nI + i;
+                        const int kb = tk->in_block ? tk->in_block[i] : 0, qb = em->block_q[kb];
+                        for (k = 0; k < nb; k++) { zk[k] = anyb[k]; wk[k] = 0; }
+                        zk[kb] = in[i];
+                        wk[kb] = tk->win[j];
+                        for (s = 0; s < S; s++) tmp[s] = eps_w[(size_t)s * syn + j];
+                        em->trace_k(qb, xs, tk->params, tt, tk->dt, z[n], zk, psi[n], wk, tmp, &e);
+                        em->update_k(qb, xs, tk->params, tt, tk->dt, z[n], zk, psi[n], wk, tmp, nx);
+                        for (s = 0; s < S; s++) eps_w[(size_t)s * syn + j] = nx[s];
+                        ebar_w[j] = tk->kappa * ebar_w[j] + e;
+                    }
+                } else if (wq >= 0) {
                     for (i = 0; i < nI; i++) {
                         const size_t j = (size_t)n * nI + i;
                         for (s = 0; s < S; s++) tmp[s] = eps_w[(size_t)s * syn + j];
@@ -102,17 +132,24 @@ int saltus_eprop_layer(const saltus_eprop_model *em, const saltus_eprop_task *tk
                 }
                 for (q = 0; q < Q; q++) {
                     saltus_real *ep = eps_p + (size_t)q * S * N;
-                    if (q == wq) continue;
+                    if (em->q_kind[q] == 0) continue;
                     for (s = 0; s < S; s++) tmp[s] = ep[(size_t)s * N + n];
-                    em->trace(q, xs, tk->params, tt, tk->dt, z[n], anyin, psi[n], 0, tmp, &e);
-                    em->update(q, xs, tk->params, tt, tk->dt, z[n], anyin, psi[n], 0, tmp, nx);
+                    if (nb) {
+                        for (k = 0; k < nb; k++) { zk[k] = anyb[k]; wk[k] = 0; }
+                        em->trace_k(q, xs, tk->params, tt, tk->dt, z[n], zk, psi[n], wk, tmp, &e);
+                        em->update_k(q, xs, tk->params, tt, tk->dt, z[n], zk, psi[n], wk, tmp, nx);
+                    } else {
+                        em->trace(q, xs, tk->params, tt, tk->dt, z[n], anyin, psi[n], 0, tmp, &e);
+                        em->update(q, xs, tk->params, tt, tk->dt, z[n], anyin, psi[n], 0, tmp, nx);
+                    }
                     for (s = 0; s < S; s++) ep[(size_t)s * N + n] = nx[s];
                     ebar_p[(size_t)q * N + n] = tk->kappa * ebar_p[(size_t)q * N + n] + e;
                 }
                 em->step(xs, tk->params, tt, tk->dt, z[n], nx);
                 for (i = 0; i < nI; i++) {
-                    if (!(in[i] > 0) || !em->arrive) continue;
-                    em->arrive(nx, tk->params, tk->win[(size_t)n * nI + i], tmp);
+                    if (!(in[i] > 0) || (!em->arrive && !nb)) continue;
+                    if (nb) em->arrive_k(tk->in_block ? tk->in_block[i] : 0, nx, tk->params, tk->win[(size_t)n * nI + i], tmp);
+                    else em->arrive(nx, tk->params, tk->win[(size_t)n * nI + i], tmp);
                     for (s = 0; s < S; s++) nx[s] = tmp[s];
                 }
                 for (s = 0; s < S; s++) x[(size_t)s * N + n] = nx[s];
@@ -132,7 +169,7 @@ int saltus_eprop_layer(const saltus_eprop_model *em, const saltus_eprop_task *tk
             }
             if (wq >= 0) for (n = 0; n < N; n++) for (i = 0; i < nI; i++) out->grad_w[(size_t)n * nI + i] += L[n] * ebar_w[(size_t)n * nI + i];
             for (q = 0; q < Q; q++) {
-                if (q == wq) continue;
+                if (em->q_kind[q] == 0) continue;
                 for (n = 0; n < N; n++) out->grad_q[q] += L[n] * ebar_p[(size_t)q * N + n];
             }
             for (k = 0; k < K; k++) for (n = 0; n < N; n++) out->grad_out[(size_t)k * N + n] += err_k[k] * zbar[n];

@@ -18,7 +18,12 @@
  *   arrive  out[S]: the state after one arrival of weight w (NULL: no incoming block)
  *   update  out[S]: eps(t+1) of trained quantity k from eps(t)
  *   trace   out[1]: e(t) of trained quantity k
- * n_q = 0 where the model has no traces (`none` says why). */
+ * n_q = 0 where the model has no traces (`none` says why). A model with several incoming blocks
+ * (receptors) has n_blocks > 1, their weight names and weight quantities, and in place of
+ * arrive, update and trace (0 there):
+ *   arrive_k  out[S]: the state after one arrival of weight w at block blk
+ *   update_k, trace_k: as update and trace, with z_pre and weight one entry per block
+ * (z_pre[b]: the arrival at block b in the step; weight[b] its weight). */
 typedef struct saltus_eprop_model {
     const saltus_model *model;
     int n_q;
@@ -33,6 +38,14 @@ typedef struct saltus_eprop_model {
                    saltus_real psi, saltus_real weight, const saltus_real *eps, saltus_real *out);
     void (*trace)(int k, const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, saltus_real z, saltus_real z_pre,
                   saltus_real psi, saltus_real weight, const saltus_real *eps, saltus_real *out);
+    int n_blocks;
+    const char *const *block_name;
+    const int *block_q;         /* each block's weight quantity */
+    void (*arrive_k)(int blk, const saltus_real *x, const saltus_real *p, saltus_real weight, saltus_real *out);
+    void (*update_k)(int k, const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, saltus_real z, const saltus_real *z_pre,
+                     saltus_real psi, const saltus_real *weight, const saltus_real *eps, saltus_real *out);
+    void (*trace_k)(int k, const saltus_real *x, const saltus_real *p, saltus_real t, saltus_real dt, saltus_real z, const saltus_real *z_pre,
+                    saltus_real psi, const saltus_real *weight, const saltus_real *eps, saltus_real *out);
 } saltus_eprop_model;
 
 /* A layer task; arrays row-major, SI. */
@@ -45,6 +58,8 @@ typedef struct {
     const saltus_real *targets;     /* B x T x K */
     const saltus_real *params;      /* the model's n_params values */
     saltus_real kappa, dt;
+    const int *in_block;            /* n_in: the block each input feeds, ascending (NULL: the first);
+                                       for a model with n_blocks > 1 */
 } saltus_eprop_task;
 
 typedef struct {

@@ -2,14 +2,16 @@
 /* ---- --rule eprop (docs/eprop.md, "Generated code"): a layer task trained by e-prop ----
  * TASK.json = {"model", "inputs": [trial][step][input], "win": [neuron][input],
  * "wout": [output][neuron], "kappa", "targets": [trial][step][output], "params"?: {NAME: value}};
- * prints {"loss", "spikes", "weights", "readout", "params", "kept_bytes"}, or with --epochs the
+ * a model with several incoming blocks takes "blocks": {WEIGHT: {"inputs", "win"}} in place of
+ * "inputs" and "win" (its "weights" then maps each fed block's name to its gradient); prints {"loss", "spikes", "weights", "readout", "params", "kept_bytes"}, or with --epochs the
  * loss of every epoch {"losses": [...]} (gradient descent on win and wout). */
 
 static const char *EPROP_USAGE =
     "Usage: saltus_run TASK.json --dt TIME --rule eprop [--feedback exact|symmetric|random] [--seed N]\n"
     "                  [--epochs N --lr RATE] [--format json|text]\n"
     "Runs e-prop on a layer task (docs/eprop.md): TASK.json = {\"model\", \"inputs\": [trial][step][input],\n"
-    "\"win\": [neuron][input], \"wout\": [output][neuron], \"kappa\", \"targets\": [trial][step][output], \"params\"?}.\n";
+    "\"win\": [neuron][input], \"wout\": [output][neuron], \"kappa\", \"targets\": [trial][step][output], \"params\"?};\n"
+    "several incoming blocks: \"blocks\": {WEIGHT: {\"inputs\", \"win\"}} in place of \"inputs\" and \"win\".\n";
 
 /* A rectangular nested list of numbers with nd levels: dims filled (or checked where > 0). */
 static int eprop_nd(const jval *v, int nd, int *dims, saltus_real **out, const char *path, char *err, size_t cap)
@@ -61,6 +63,57 @@ static void eprop_put_matrix(const saltus_real *m, int rows, int cols)
     printf("]");
 }
 
+/* A task's "blocks" (several incoming blocks): each fed block's inputs and win, concatenated along
+ * the inputs in the model's block order, with each input's block in *in_block. 0, or -1 with err. */
+static int eprop_blocks(const saltus_eprop_model *em, const jval *blocks, saltus_eprop_task *tk, saltus_real **inputs, saltus_real **win,
+                        int **in_block, char *err, size_t cap)
+{
+    int b, d, dims[3], n_in = 0, B = 0, T = 0, N = 0;
+    size_t j, t;
+    saltus_real *bi[64], *bw[64];
+    int bn[64];
+    char path[300];
+    if (em->n_blocks < 2 || em->n_blocks > 64) { fmt(err, cap, "blocks: %.100s has no several incoming blocks; give \"inputs\" and \"win\"", em->model->name); return -1; }
+    if (blocks->kind != J_OBJ || blocks->n == 0) { fmt(err, cap, "blocks: must map weight names of %.100s to {\"inputs\", \"win\"}", em->model->name); return -1; }
+    for (j = 0; j < blocks->n; j++) {
+        int found = -1;
+        for (b = 0; b < em->n_blocks; b++) if (!strcmp(em->block_name[b], blocks->keys[j])) found = b;
+        if (found < 0 || blocks->items[j].kind != J_OBJ) { fmt(err, cap, "blocks.%.200s: %.100s has no incoming block with this weight, or it is not an object", blocks->keys[j], em->model->name); return -1; }
+    }
+    for (b = 0; b < em->n_blocks; b++) {
+        const jval *v = jget(blocks, em->block_name[b]);
+        bi[b] = bw[b] = 0;
+        bn[b] = 0;
+        if (!v) continue;
+        dims[0] = B; dims[1] = T; dims[2] = 0;
+        snprintf(path, sizeof path, "blocks.%.200s.inputs", em->block_name[b]);
+        if (eprop_nd(jget(v, "inputs"), 3, dims, &bi[b], path, err, cap)) goto fail;
+        B = dims[0]; T = dims[1]; bn[b] = dims[2];
+        dims[0] = N; dims[1] = bn[b];
+        snprintf(path, sizeof path, "blocks.%.200s.win", em->block_name[b]);
+        if (eprop_nd(jget(v, "win"), 2, dims, &bw[b], path, err, cap)) goto fail;
+        N = dims[0];
+        n_in += bn[b];
+    }
+    *inputs = (saltus_real *)malloc((size_t)B * T * n_in * sizeof(saltus_real));
+    *win = (saltus_real *)malloc((size_t)N * n_in * sizeof(saltus_real));
+    *in_block = (int *)malloc((size_t)n_in * sizeof(int));
+    if (!*inputs || !*win || !*in_block) { fmt(err, cap, "out of memory"); goto fail; }
+    for (b = 0, d = 0; b < em->n_blocks; b++) {
+        int i;
+        for (i = 0; i < bn[b]; i++) (*in_block)[d + i] = b;
+        for (t = 0; t < (size_t)B * T; t++) for (i = 0; i < bn[b]; i++) (*inputs)[t * n_in + d + i] = bi[b][t * bn[b] + i];
+        for (t = 0; t < (size_t)N; t++) for (i = 0; i < bn[b]; i++) (*win)[t * n_in + d + i] = bw[b][t * bn[b] + i];
+        d += bn[b];
+    }
+    for (b = 0; b < em->n_blocks; b++) { free(bi[b]); free(bw[b]); }
+    tk->B = B; tk->T = T; tk->n_in = n_in; tk->N = N;
+    return 0;
+fail:
+    for (d = 0; d <= b && d < em->n_blocks; d++) { free(bi[d]); free(bw[d]); }
+    return -1;
+}
+
 static int rule_main(int argc, char **argv)
 {
     const char *path = 0, *feedback = "exact";
@@ -75,6 +128,7 @@ static int rule_main(int argc, char **argv)
     saltus_eprop_task tk;
     saltus_eprop_result res;
     saltus_real *inputs = 0, *win = 0, *wout = 0, *targets = 0, *fb = 0, *params = 0;
+    int *in_block = 0;
     memset(&tk, 0, sizeof tk);
     memset(&res, 0, sizeof res);
     for (a = 1; a < argc; a++) {
@@ -120,11 +174,16 @@ static int rule_main(int argc, char **argv)
     if (!em) { fprintf(stderr, "saltus_run: %s: model: must name one of the models of this runner\n", path); goto done; }
     if (em->n_q == 0) { fprintf(stderr, "saltus_run: %s has no e-prop traces: %s\n", em->model->name, em->none ? em->none : "no surrogate"); goto done; }
     dims[0] = dims[1] = dims[2] = 0;
-    if (eprop_nd(jget(&root, "inputs"), 3, dims, &inputs, "inputs", err, sizeof err)) goto bad;
-    tk.B = dims[0]; tk.T = dims[1]; tk.n_in = dims[2];
-    dims[0] = 0; dims[1] = tk.n_in;
-    if (eprop_nd(jget(&root, "win"), 2, dims, &win, "win", err, sizeof err)) goto bad;
-    tk.N = dims[0];
+    if (jget(&root, "blocks")) {
+        if (eprop_blocks(em, jget(&root, "blocks"), &tk, &inputs, &win, &in_block, err, sizeof err)) goto bad;
+    } else {
+        if (eprop_nd(jget(&root, "inputs"), 3, dims, &inputs, "inputs", err, sizeof err)) goto bad;
+        tk.B = dims[0]; tk.T = dims[1]; tk.n_in = dims[2];
+        dims[0] = 0; dims[1] = tk.n_in;
+        if (eprop_nd(jget(&root, "win"), 2, dims, &win, "win", err, sizeof err)) goto bad;
+        tk.N = dims[0];
+    }
+    tk.in_block = in_block;
     dims[0] = 0; dims[1] = tk.N;
     if (eprop_nd(jget(&root, "wout"), 2, dims, &wout, "wout", err, sizeof err)) goto bad;
     tk.K = dims[0];
@@ -171,7 +230,23 @@ static int rule_main(int argc, char **argv)
         printf("{\"loss\": ");
         put_number((double)res.loss);
         printf(", \"spikes\": %ld, \"weights\": ", res.spikes);
-        eprop_put_matrix(res.grad_w, tk.N, tk.n_in);
+        if (in_block) { /* by block: the columns of each fed block */
+            int b0 = 0, i0, i1, r, c;
+            printf("{");
+            for (i0 = 0; i0 < tk.n_in; i0 = i1, b0++) {
+                for (i1 = i0; i1 < tk.n_in && in_block[i1] == in_block[i0]; i1++) continue;
+                printf("%s", b0 ? ", " : "");
+                put_string(em->block_name[in_block[i0]]);
+                printf(": [");
+                for (r = 0; r < tk.N; r++) {
+                    printf("%s[", r ? ", " : "");
+                    for (c = i0; c < i1; c++) { if (c > i0) printf(", "); put_number((double)res.grad_w[(size_t)r * tk.n_in + c]); }
+                    printf("]");
+                }
+                printf("]");
+            }
+            printf("}");
+        } else eprop_put_matrix(res.grad_w, tk.N, tk.n_in);
         printf(", \"readout\": ");
         eprop_put_matrix(res.grad_out, tk.K, tk.N);
         printf(", \"params\": {");
@@ -194,7 +269,7 @@ bad:
     fprintf(stderr, "saltus_run: %s: %s\n", path, err);
     rc = 2;
 done:
-    free(inputs); free(win); free(wout); free(targets); free(fb); free(params);
+    free(inputs); free(win); free(wout); free(targets); free(fb); free(params); free(in_block);
     jfree(&root);
     return rc;
 }

@@ -1155,91 +1155,142 @@ def _feedback(kind, wout, seed):
     return X.array([[r.gauss(0.0, 1.0) / N ** 0.5 for _ in range(N)] for _ in range(K)])
 
 
+def _layer_blocks(model, task):
+    """The incoming blocks a layer task feeds, in the model's block order: (index, weight name,
+    inputs (B, T, nIn), win (N, nIn)). A task with "blocks" ({weight name: {"inputs", "win"}})
+    names them (docs/eprop.md); one without feeds the first block from "inputs" and "win"."""
+    names = tuple(getattr(model, "EPROP_BLOCKS", ()))
+    if "blocks" not in task:
+        return [(0, names[0] if names else None, task["inputs"], task["win"])]
+    given = task["blocks"]
+    if not isinstance(given, dict) or not given:
+        raise GridError("blocks: a layer task's \"blocks\" maps weight names of %s to {\"inputs\", \"win\"}" % model.NAME)
+    if not names:
+        names = tuple(getattr(model, "INCOMING", ()))[:1]
+    for w in given:
+        if w not in names:
+            raise GridError("blocks.%s: %s has no incoming block with the weight %s (its blocks: %s)" % (w, model.NAME, w, ", ".join(names)))
+        for f in ("inputs", "win"):
+            if f not in given[w]:
+                raise GridError("blocks.%s: needs %r" % (w, f))
+    return [(k, w, given[w]["inputs"], given[w]["win"]) for k, w in enumerate(names) if w in given]
+
+
 def eprop_layer(model, task, params=None, feedback="exact", seed=0):
-    """The e-prop gradient of one pass over `task` (see above); returns loss, gradients, spikes, kept bytes."""
+    """The e-prop gradient of one pass over `task` (see above); returns loss, gradients, spikes, kept bytes.
+    With several incoming blocks (receptors) the task's "blocks" feed them, one input train and
+    one weight matrix each, and "weights" maps each block's weight name to its gradient."""
     if not getattr(model, "EPROP", ()):
         raise GridError("%s has no e-prop traces: %s" % (model.NAME, getattr(model, "EPROP_NONE", "no surrogate")))
     dt = float(task["dt"])
     pv = dict(model.DEFAULT_PARAMS)
     pv.update(params or {})
     p = tuple(float(pv[n]) for n in model.PARAMS)
-    inputs = X.array(task["inputs"])  # (B, T, nIn), 0 or 1
-    win = X.array(task["win"])        # (N, nIn)
+    nb = len(getattr(model, "EPROP_BLOCKS", ())) or 1
+    multi = nb > 1
+    fed = _layer_blocks(model, task)
+    ins = [X.array(b[2]) for b in fed]   # (B, T, nIn_k), 0 or 1
+    wins = [X.array(b[3]) for b in fed]  # (N, nIn_k)
     wout = X.array(task["wout"])      # (K, N)
     targets = X.array(task["targets"])  # (B, T, K)
     kappa = float(task["kappa"])
-    B, T, nIn = len(task["inputs"]), len(task["inputs"][0]), len(task["inputs"][0][0])
-    N, K, S = len(task["win"]), len(task["wout"]), len(model.STATES)
+    B, T = len(fed[0][2]), len(fed[0][2][0])
+    nIns = [len(b[2][0][0]) for b in fed]
+    N, K, S = len(fed[0][3]), len(task["wout"]), len(model.STATES)
+    for (_, w, a, m) in fed[1:]:
+        if len(a) != B or len(a[0]) != T or len(m) != N:
+            raise GridError("blocks.%s: inputs must be %d trials x %d steps and win %d rows, as the first block's" % (w, B, T, N))
     fb = _feedback(feedback, wout, seed)
     x = [X.full((B, N), float(model.INITIAL[s])) for s in model.STATES]
     qs = list(enumerate(model.EPROP))
-    wq = [k for k, (_, kind) in qs if kind == "weight"]
+    wq = [k for k, (_, kind) in qs if kind == "weight"]  # one per block, in block order
     pq = [(k, name) for k, (name, kind) in qs if kind == "param"]
-    zero3 = X.full((B, N, nIn), 0.0)
+    arrive = tuple(getattr(model, "EPROP_ARRIVE", ())) or (getattr(model, "eprop_arrive", None),)
+    zero3s = [X.full((B, N, n), 0.0) for n in nIns]
     zero2 = X.full((B, N), 0.0)
-    eps_w = [X.full((B, N, nIn), 0.0) for _ in range(S)]
-    ebar_w = X.full((B, N, nIn), 0.0)
+    eps_w = [[X.full((B, N, n), 0.0) for _ in range(S)] for n in nIns]
+    ebar_w = [X.full((B, N, n), 0.0) for n in nIns]
     eps_p = [[X.full((B, N), 0.0) for _ in range(S)] for _ in pq]
     ebar_p = [X.full((B, N), 0.0) for _ in pq]
-    grad_w = X.full((N, nIn), 0.0)
+    grad_w = [X.full((N, n), 0.0) for n in nIns]
     grad_p = [0.0 for _ in pq]
     grad_out = X.full((K, N), 0.0)
     y = X.full((B, K), 0.0)
     zbar = X.full((B, N), 0.0)
     loss = 0.0
     spikes = 0
-    w3 = win[None, :, :]
+    w3s = [w[None, :, :] for w in wins]
     for t in range(T):
         tt = t * dt
         z, psi = model.eprop_spike(x, p, tt)
         z = z + zero2
         psi = psi + zero2
         spikes += int(X.sum(z))
-        s = inputs[:, t, :]
-        anyin = (X.sum_last(s) > 0) * 1.0
+        ss = [a[:, t, :] for a in ins]
+        anyins = [(X.sum_last(s) > 0) * 1.0 for s in ss]
+        anyblk = [zero2[:, :1] for _ in range(nb)]  # (B, 1): any arrival at block k in this step
+        for (k, _, _, _), a in zip(fed, anyins):
+            anyblk[k] = a[:, None]
         x3 = [xi[:, :, None] for xi in x]
-        if wq:
-            k = wq[0]
-            args = (x3, p, tt, dt, z[:, :, None], s[:, None, :], psi[:, :, None], w3, eps_w)
-            e = model.EPROP_TRACE[k](*args) + zero3
-            eps_w = [u + zero3 for u in model.EPROP_UPDATE[k](*args)]
-            ebar_w = kappa * ebar_w + e
+        for m, (k, _, _, _) in enumerate(fed):
+            if k >= len(wq):
+                continue
+            if multi:
+                zp = tuple(ss[m][:, None, :] if j == k else anyblk[j][:, :, None] for j in range(nb))
+                wt = tuple(w3s[m] if j == k else 0.0 for j in range(nb))
+            else:
+                zp, wt = ss[m][:, None, :], w3s[m]
+            args = (x3, p, tt, dt, z[:, :, None], zp, psi[:, :, None], wt, eps_w[m])
+            e = model.EPROP_TRACE[wq[k]](*args) + zero3s[m]
+            eps_w[m] = [u + zero3s[m] for u in model.EPROP_UPDATE[wq[k]](*args)]
+            ebar_w[m] = kappa * ebar_w[m] + e
         for m, (k, _) in enumerate(pq):
-            args = (x, p, tt, dt, z, anyin[:, None] + zero2, psi, 0.0, eps_p[m])
+            if multi:
+                args = (x, p, tt, dt, z, tuple(a + zero2 for a in anyblk), psi, (0.0,) * nb, eps_p[m])
+            else:
+                args = (x, p, tt, dt, z, anyins[0][:, None] + zero2, psi, 0.0, eps_p[m])
             e = model.EPROP_TRACE[k](*args) + zero2
             eps_p[m] = [u + zero2 for u in model.EPROP_UPDATE[k](*args)]
             ebar_p[m] = kappa * ebar_p[m] + e
         x = [xi + zero2 for xi in model.eprop_step(x, p, tt, dt, z)]
-        for i in range(nIn):
-            hit = s[:, i][:, None] > 0
-            if bool(X.any(hit)):
-                after = model.eprop_arrive(x, p, win[None, :, i])
-                x = [X.where(hit, a + zero2, xi) for a, xi in zip(after, x)]
+        for m, (k, _, _, _) in enumerate(fed):  # the blocks one after another, in the model's order
+            s, win = ss[m], wins[m]
+            for i in range(nIns[m]):
+                hit = s[:, i][:, None] > 0
+                if bool(X.any(hit)):
+                    after = arrive[k](x, p, win[None, :, i])
+                    x = [X.where(hit, a + zero2, xi) for a, xi in zip(after, x)]
         y = kappa * y + z @ wout.T
         err = y - targets[:, t, :]
         loss += 0.5 * float(X.sum(err * err))
         L = err @ fb  # (B, N)
-        if wq:
-            grad_w = grad_w + (L[:, :, None] * ebar_w).sum(0)
+        for m, (k, _, _, _) in enumerate(fed):
+            if k < len(wq):
+                grad_w[m] = grad_w[m] + (L[:, :, None] * ebar_w[m]).sum(0)
         for m in range(len(pq)):
             grad_p[m] += float(X.sum(L * ebar_p[m]))
         zbar = kappa * zbar + z
         grad_out = grad_out + err.T @ zbar
-    kept = [*eps_w, ebar_w, *[a for e in eps_p for a in e], *ebar_p, *x, grad_w]
-    return {"loss": loss, "spikes": spikes, "weights": X.tolist(grad_w), "readout": X.tolist(grad_out),
+    kept = [*[a for e in eps_w for a in e], *ebar_w, *[a for e in eps_p for a in e], *ebar_p, *x, *grad_w]
+    weights = {b[1]: X.tolist(g) for b, g in zip(fed, grad_w)} if "blocks" in task else X.tolist(grad_w[0])
+    return {"loss": loss, "spikes": spikes, "weights": weights, "readout": X.tolist(grad_out),
             "params": {name: grad_p[m] for m, (_, name) in enumerate(pq)},
             "kept_bytes": sum(_nbytes(a) for a in kept) + 8 * len(pq)}
 
 
 def eprop_train(model, task, epochs, lr, params=None, feedback="exact", seed=0):
     """Gradient descent on the input and readout weights with e-prop; returns the loss of every epoch."""
+    step = lambda W, D: [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(W, D)]
     losses = []
     for _ in range(int(epochs)):
         g = eprop_layer(model, task, params, feedback, seed)
         losses.append(g["loss"])
         task = dict(task)
-        task["win"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["win"], g["weights"])]
-        task["wout"] = [[w - lr * d for w, d in zip(rw, rd)] for rw, rd in zip(task["wout"], g["readout"])]
+        if "blocks" in task:
+            task["blocks"] = {w: dict(b, win=step(b["win"], g["weights"][w])) if w in g["weights"] else b for w, b in task["blocks"].items()}
+        else:
+            task["win"] = step(task["win"], g["weights"])
+        task["wout"] = step(task["wout"], g["readout"])
     return losses
 
 
@@ -1252,8 +1303,10 @@ on the readout population; prints the runner contract with "rule": "eprop" and "
 
 With --rule eprop, TASK.json is a layer task of one model (docs/eprop.md): {"model", "inputs":
 [trial][step][input], "win": [neuron][input], "wout": [output][neuron], "kappa", "targets":
-[trial][step][output], "params"?}. Prints the e-prop gradient {"loss", "spikes", "weights",
-"readout", "params", "kept_bytes"}, or with --epochs the loss of each epoch {"losses": [...]}.
+[trial][step][output], "params"?}; a model with several incoming blocks takes "blocks":
+{WEIGHT: {"inputs", "win"}} in place of "inputs" and "win" (one per block, by weight name).
+Prints the e-prop gradient {"loss", "spikes", "weights", "readout", "params", "kept_bytes"}
+("weights" by block name with "blocks"), or with --epochs the loss of each epoch {"losses": [...]}.
 --rule eventprop (the default) runs the network description as without --rule."""
 
 
@@ -1422,12 +1475,27 @@ def eprop_network(net, dt, feedback="exact", seed=0):
                 if v > 0:
                     spikes[P.name].append([tt, i])
         pre = [counts[pr["from"]][:, t, :] if pr["from"] in counts else z[pr["from"]] for pr in projs]
+        # any arrival at each block of each population in this step (several blocks: receptors)
+        anyblk = {}
+        for j, pr in enumerate(projs):
+            if pr["to"] != R.name:
+                r = int(pr.get("receptor", 0))
+                hits = (X.sum_last(pre[j]) > 0)[:, None] * 1.0
+                prev = anyblk.setdefault(pr["to"], {}).get(r)
+                anyblk[pr["to"]][r] = hits if prev is None else ((prev + hits) > 0) * 1.0
         for j in eps:
             pr, P = projs[j], pops[projs[j]["to"]]
-            kw = [k for k, (_, kind) in enumerate(P.model.EPROP) if kind == "weight"][0]
+            r = int(pr.get("receptor", 0))
+            kw = [k for k, (_, kind) in enumerate(P.model.EPROP) if kind == "weight"][r]
             zero3 = X.full((B, P.size, size[pr["from"]]), 0.0)
-            args = ([xi[:, :, None] for xi in x[P.name]], P.params, tt, dt, z[P.name][:, :, None], pre[j][:, None, :],
-                    psi[P.name][:, :, None], pr["weights"][None, :, :], eps[j])
+            nb = len(getattr(P.model, "EPROP_BLOCKS", ())) or 1
+            if nb > 1:  # this projection's block gets its own arrivals and weights, the others whether any arrived
+                zp = tuple(pre[j][:, None, :] if k == r else anyblk[P.name].get(k, X.full((B, 1), 0.0))[:, :, None] for k in range(nb))
+                wt = tuple(pr["weights"][None, :, :] if k == r else 0.0 for k in range(nb))
+            else:
+                zp, wt = pre[j][:, None, :], pr["weights"][None, :, :]
+            args = ([xi[:, :, None] for xi in x[P.name]], P.params, tt, dt, z[P.name][:, :, None], zp,
+                    psi[P.name][:, :, None], wt, eps[j])
             e = P.model.EPROP_TRACE[kw](*args) + zero3
             eps[j] = [u + zero3 for u in P.model.EPROP_UPDATE[kw](*args)]
             ebar[j] = [a + b_dir[k] * e for k, a in enumerate(readout_step(ebar[j], tt))]
@@ -1439,8 +1507,11 @@ def eprop_network(net, dt, feedback="exact", seed=0):
                 if pr["to"] == n:
                     anyin = anyin + X.sum_last(pre[j])[:, None]
             anyin = (anyin > 0) * 1.0
+            nb = len(getattr(P.model, "EPROP_BLOCKS", ())) or 1
+            if nb > 1:
+                anyin = tuple(anyblk.get(n, {}).get(k, X.full((B, 1), 0.0)) + zero2 for k in range(nb))
             for m, (k, _) in enumerate(q):
-                args = (x[n], P.params, tt, dt, z[n], anyin, psi[n], 0.0, eps_p[n][m])
+                args = (x[n], P.params, tt, dt, z[n], anyin, psi[n], (0.0,) * nb if nb > 1 else 0.0, eps_p[n][m])
                 e = P.model.EPROP_TRACE[k](*args) + zero2
                 eps_p[n][m] = [u + zero2 for u in P.model.EPROP_UPDATE[k](*args)]
                 ebar_p[n][m] = [a + b_dir[kk] * e for kk, a in enumerate(readout_step(ebar_p[n][m], tt))]
@@ -1454,7 +1525,8 @@ def eprop_network(net, dt, feedback="exact", seed=0):
                 x[P.name] = xs
             else:
                 x[P.name] = [v + zero2 for v in P.model.eprop_step(x[P.name], P.params, tt, dt, z[P.name])]
-        for j, pr in enumerate(projs):
+        for j in sorted(range(len(projs)), key=lambda j: int(projs[j].get("receptor", 0))):  # blocks in the model's order
+            pr = projs[j]
             P, s = pops[pr["to"]], pre[j]
             zero2 = X.full((B, P.size), 0.0)
             for i in range(size[pr["from"]]):
@@ -1465,7 +1537,8 @@ def eprop_network(net, dt, feedback="exact", seed=0):
                     if P is R:
                         after = Rm.incoming_jump(x[P.name], P.params, tt + dt, pr["weights"][None, :, i])
                     else:
-                        after = P.model.eprop_arrive(x[P.name], P.params, pr["weights"][None, :, i])
+                        arrive = getattr(P.model, "EPROP_ARRIVE", None) or (P.model.eprop_arrive,)
+                        after = arrive[int(pr.get("receptor", 0))](x[P.name], P.params, pr["weights"][None, :, i])
                     x[P.name] = [X.where(hit, a + zero2, xi) for a, xi in zip(after, x[P.name])]
             if j in zin:
                 zin[j] = [a + b_dir[k] * s for k, a in enumerate(readout_step(zin[j], tt))]

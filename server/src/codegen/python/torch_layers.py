@@ -404,15 +404,16 @@ def eprop_backward(layer: "SpikingLayer", inputs: torch.Tensor, targets: torch.T
     its trace filtered by the readout, a learning signal per neuron and step (``feedback``:
     "exact" or "symmetric", the readout's transpose, which for this readout is the exact dE/dz;
     "random", a fixed random matrix drawn from ``seed``); nothing grows with the steps. The
-    gradients are *added* to ``.grad`` of ``layer.weight``, of the layer's trainable parameters
+    gradients are *added* to ``.grad`` of ``layer.weight`` (of each fed block's weight), of the layer's trainable parameters
     and of ``readout`` when it requires grad, so a torch optimizer can step on them.
 
     Parameters
     ----------
     layer : SpikingLayer
         Its model must have eligibility traces (a ``surrogate`` line).
-    inputs : torch.Tensor
-        (B, T, in_features) input spikes per step, 0 or 1.
+    inputs : torch.Tensor, or a sequence of them (one per fed block, in ``via`` order)
+        (B, T, in_features) input spikes per step, 0 or 1; with several blocks fed, each block's
+        gradient goes to ``.grad`` of its weight in ``layer.weights``.
     targets : torch.Tensor
         (B, T, K) the readout's targets per step.
     readout : torch.Tensor
@@ -425,13 +426,19 @@ def eprop_backward(layer: "SpikingLayer", inputs: torch.Tensor, targets: torch.T
     dict
         {"loss": E, "spikes": spikes of the pass, "kept_bytes": bytes of the arrays kept}.
     """
-    if layer.spec.blocks != [0]:
-        raise ValueError("e-prop runs a layer that feeds its model's first incoming block only; this one feeds %s" % ", ".join(layer.via))
     w = layer.weight
     values = dict(layer.spec.fixed)
     values.update({k: float(v) for k, v in layer.model_params.items()})
-    task = {"dt": layer.spec.dt, "inputs": inputs.detach(), "win": w.detach(), "wout": readout.detach(),
-            "targets": targets.detach(), "kappa": float(kappa)}
+    task = {"dt": layer.spec.dt, "wout": readout.detach(), "targets": targets.detach(), "kappa": float(kappa)}
+    if layer.spec.blocks == [0]:
+        task.update(inputs=inputs.detach(), win=w.detach())
+        ws = None
+    else:  # several blocks (receptors), or one that is not the first: the layer task's "blocks"
+        inputs_k = list(inputs) if isinstance(inputs, (list, tuple)) else [inputs]
+        if len(inputs_k) != len(layer.via) or not all(isinstance(t, torch.Tensor) for t in inputs_k):
+            raise ValueError("e-prop takes one input tensor per fed block (%s)" % ", ".join(layer.via))
+        ws = {v: (layer.weights[v] if len(layer.via) > 1 else w) for v in layer.via}
+        task["blocks"] = {v: {"inputs": t.detach(), "win": ws[v].detach()} for v, t in zip(layer.via, inputs_k)}
     with X.on(w.dtype, w.device):
         out = grid.eprop_layer(layer.model, task, values, feedback, seed)
 
@@ -439,7 +446,11 @@ def eprop_backward(layer: "SpikingLayer", inputs: torch.Tensor, targets: torch.T
         g = torch.as_tensor(value, dtype=param.dtype, device=param.device)
         param.grad = g if param.grad is None else param.grad + g
 
-    add(w, out["weights"])
+    if ws is None:
+        add(w, out["weights"])
+    else:
+        for v, param in ws.items():
+            add(param, out["weights"][v])
     for k, v in layer.model_params.items():
         if k in out["params"]:
             add(v, out["params"][k])
