@@ -28,13 +28,11 @@ import type { FileDelay } from '../network';
 /** A double as C reads it back exactly. */
 const cDouble = (v: number): string => { const t = String(v); return /[.eE]/.test(t) ? t : `${t}.0`; };
 import { fusedC } from './fused';
+import type { CFlavour } from './flavour';
 
 export interface GeneratedFile { name: string; content: string }
 
-export interface CFlavour {
-  cuda: boolean;
-  float: boolean;
-}
+export type { CFlavour } from './flavour';
 
 export interface CContext { source?: string; renamed: readonly Renaming[] }
 

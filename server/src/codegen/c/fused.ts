@@ -16,7 +16,7 @@ import { toC } from '../../symbolic/print';
 import type { KernelPlan } from '../kernelPlan';
 import type { Kernel } from '../kernels';
 import fusedText from './saltus_fused.c?raw';
-import type { CFlavour } from './emit';
+import type { CFlavour } from './flavour';
 
 /** Whether a model gets fused population steps: a guard, a spike jump and one incoming block (receptors and quiet periods: not yet). */
 export function hasFused(plan: KernelPlan): boolean {
