@@ -14,6 +14,7 @@ import math
 import sys
 
 import torch
+from surrogate_spike import triangular_spike  # beside this script
 
 torch.set_default_dtype(torch.float64)
 p = json.load(sys.stdin)
@@ -28,17 +29,7 @@ targets = torch.tensor(p["targets"], dtype=torch.float64)
 wrec = torch.tensor(p["wrec"]) if p.get("wrec") is not None else None
 
 
-class Spike(torch.autograd.Function):
-    @staticmethod
-    def forward(ctx, g):
-        psi = 0.3 / theta * torch.clamp(1 - torch.abs(g) / theta, min=0)
-        ctx.save_for_backward(psi)
-        return (g > 0).to(g.dtype)
-
-    @staticmethod
-    def backward(ctx, grad):
-        (psi,) = ctx.saved_tensors
-        return grad * psi
+Spike = triangular_spike(theta)
 
 
 am, as_, aa = math.exp(-dt / tau_m), math.exp(-dt / tau_s), math.exp(-dt / tau_a)

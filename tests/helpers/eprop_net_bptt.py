@@ -16,6 +16,7 @@ import math
 import sys
 
 import torch
+from surrogate_spike import triangular_spike  # beside this script
 
 torch.set_default_dtype(torch.float64)
 p = json.load(sys.stdin)
@@ -37,17 +38,7 @@ n_hid, n_out = net["populations"]["hid"]["size"], net["populations"]["out"]["siz
 target = torch.full((n_out,), float(net["loss"]["target"]))
 
 
-class Spike(torch.autograd.Function):
-    @staticmethod
-    def forward(ctx, g):
-        psi = 0.3 / theta * torch.clamp(1 - torch.abs(g) / theta, min=0)
-        ctx.save_for_backward(psi)
-        return (g > 0).to(g.dtype)
-
-    @staticmethod
-    def backward(ctx, grad):
-        (psi,) = ctx.saved_tensors
-        return grad * psi
+Spike = triangular_spike(theta)
 
 
 def flow(V, I, tm, ts):

@@ -15,6 +15,7 @@ import json
 import sys
 
 import torch
+from surrogate_spike import triangular_spike  # beside this script
 
 torch.set_default_dtype(torch.float64)
 p = json.load(sys.stdin)
@@ -32,17 +33,7 @@ wout = torch.tensor(p["wout"], dtype=torch.float64)
 targets = torch.tensor(p["targets"], dtype=torch.float64)
 
 
-class Spike(torch.autograd.Function):
-    @staticmethod
-    def forward(ctx, g):
-        psi = 0.3 / theta * torch.clamp(1 - torch.abs(g) / theta, min=0)
-        ctx.save_for_backward(psi)
-        return (g > 0).to(g.dtype)
-
-    @staticmethod
-    def backward(ctx, grad):
-        (psi,) = ctx.saved_tensors
-        return grad * psi
+Spike = triangular_spike(theta)
 
 
 am = torch.exp(torch.tensor(-dt / tau_m))
