@@ -7,7 +7,7 @@
 // line saying so; then the LIF network scenario trains by the generated PyTorch code's e-prop
 // (the loss must fall; skipped with a line without torch). Exit 0 on success, 1 otherwise.
 import { spawnSync } from 'node:child_process';
-import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import { existsSync, readdirSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
@@ -78,18 +78,10 @@ for (const s of good) expectExit(`step ${s}`, saltus(['step', s, '--format', 'js
 
 // --- Step 4: generated code ------------------------------------------------------------
 heading('saltus generate samples/lif_current.saltus --target c   (C, CUDA, NumPy and PyTorch for every sample)');
-// A model with a quiet period runs in the accurate simulator and its cross-check, not yet in
-// the grid semantics that generated code follows: generation refuses it with that reason.
-const quietOnly = (s) => /^\s*quiet\s+for\b/m.test(readFileSync(join(root, s), 'utf8'));
 for (const s of good) {
   const name = s.replace(/^samples\//, '').replace(/\.saltus$/, '');
   for (const target of ['c', 'cuda', 'numpy', 'torch']) {
     const r = saltus(['generate', s, '--target', target, '--out', join(out, 'generated', target, name), '--force'], s === 'samples/lif_current.saltus' && target === 'c' ? false : true);
-    if (quietOnly(s)) {
-      if (r.status === 0 || !/quiet period/.test(r.stderr)) failures.push(`generate ${target} ${s}: expected the refusal of a quiet period (not in generated code yet)`);
-      else if (target === 'c') console.log(`${s}: not generated: quiet periods are not in generated code yet (the cross-check below runs it)`);
-      continue;
-    }
     expectExit(`generate ${target} ${s}`, r);
   }
 }
